@@ -1,0 +1,107 @@
+"""Bad input gets a clear message naming the file and the key, exit code 2, no traceback."""
+
+from __future__ import annotations
+
+import json
+import shutil
+import subprocess
+import sys
+
+import pytest
+
+from conftest import DEMOS
+
+DEMO = DEMOS / "phosphate_assay"
+
+
+def _run(*args, cwd=None):
+    return subprocess.run([sys.executable, "-m", "validate.cli", *args], capture_output=True, text=True,
+                          cwd=cwd)
+
+
+@pytest.fixture
+def demo_copy(tmp_path):
+    folder = tmp_path / "demo"
+    shutil.copytree(DEMO, folder)
+    return folder
+
+
+def _edit(folder, old, new, name="method.toml"):
+    path = folder / name
+    text = path.read_text(encoding="utf-8")
+    assert old in text, f"test set-up: {old!r} not in {name}"
+    path.write_text(text.replace(old, new, 1), encoding="utf-8")
+    return folder / "method.toml"
+
+
+CASES = [
+    ("broken TOML", 'class = "A"\n', 'class = "A\n', ["method.toml", "TOML syntax error", "line"]),
+    ("missing key", 'formula = "c_measured * V_flask / V_sample * M_P"\n', "\n",
+     ["method.toml", "[result]", "formula"]),
+    ("unknown class", 'nominal = "5 mL"\nclass = "A"', 'nominal = "5 mL"\nclass = "Z"',
+     ["method.toml", "[equipment.pipette_5].class", "'Z'", "A, B"]),
+    ("negative volume", 'volume = "2.00 mL"', 'volume = "-2.00 mL"',
+     ["method.toml", "[solutions.S2].aliquot.volume", "greater than zero"]),
+    ("volume in a mass unit", 'volume = "2.00 mL"', 'volume = "2.00 mg"',
+     ["[solutions.S2].aliquot.volume", "mass", "volume is needed"]),
+    ("unknown key", "made_by = \"weighing\"", "made_by = \"weighing\"\nmolarmass = 1",
+     ["[solutions.stock].molarmass", "did you mean `molar_mass`"]),
+    ("missing readings table", 'readings = "readings.csv"', 'readings = "missing.csv"',
+     ["missing.csv", "not found"]),
+]
+
+
+@pytest.mark.parametrize("label, old, new, expected", CASES, ids=[c[0] for c in CASES])
+def test_bad_method_file(demo_copy, tmp_path, label, old, new, expected):
+    method = _edit(demo_copy, old, new)
+    out = tmp_path / "out"
+    proc = _run("run", str(method), "--out", str(out))
+    assert proc.returncode == 2, proc.stderr
+    assert "Traceback" not in proc.stderr
+    for fragment in expected:
+        assert fragment in proc.stderr, f"{fragment!r} not in {proc.stderr!r}"
+    assert not out.exists(), "a refused input must leave no output"
+
+
+def test_non_numeric_reading(demo_copy, tmp_path):
+    _edit(demo_copy, "S4,0.3406", "S4,zero point three", name="readings.csv")
+    proc = _run("run", str(demo_copy / "method.toml"), "--out", str(tmp_path / "out"))
+    assert proc.returncode == 2
+    assert "readings.csv" in proc.stderr and "row" in proc.stderr and "not a number" in proc.stderr
+
+
+def test_decimal_comma_reading(demo_copy, tmp_path):
+    _edit(demo_copy, "S4,0.3406", 'S4,"0,3406"', name="readings.csv")
+    proc = _run("check", str(demo_copy / "method.toml"))
+    assert proc.returncode == 2 and "decimal comma" in proc.stderr
+
+
+def test_demo_run_writes_the_record(tmp_path):
+    out = tmp_path / "out"
+    proc = _run("run", str(DEMO / "method.toml"), "--out", str(out))
+    assert proc.returncode == 0, proc.stderr
+    record = json.loads((out / "results.json").read_text())
+    assert record["software"]["name"] == "validate"
+    assert {i["path"].split("/")[-1] for i in record["inputs"]} == {"method.toml", "readings.csv"}
+    assert all(len(i["sha256"]) == 64 for i in record["inputs"])
+    for result in record["results"]:
+        for key in ("name", "unit", "value", "standard_uncertainty", "expanded_uncertainty",
+                    "coverage_factor", "coverage_probability", "effective_dof"):
+            assert key in result
+        assert result["expanded_uncertainty"] == pytest.approx(
+            result["coverage_factor"] * result["standard_uncertainty"])
+    shares = [row["share"] for row in record["budget"] if row["result"] == record["results"][0]["name"]]
+    assert shares == sorted(shares, reverse=True) and sum(shares) == pytest.approx(1.0)
+    for key in ("source", "step", "equipment", "sensitivity", "contribution", "share"):
+        assert key in record["budget"][0]
+    assert (out / "budget.csv").read_text().startswith("result,source,step")
+    # a second run into the same folder is refused rather than overwriting the record
+    again = _run("run", str(DEMO / "method.toml"), "--out", str(out))
+    assert again.returncode == 2 and "--overwrite" in again.stderr
+
+
+def test_init_writes_a_starter_that_checks(tmp_path):
+    proc = _run("init", str(tmp_path / "new"))
+    assert proc.returncode == 0, proc.stderr
+    check = _run("check", str(tmp_path / "new" / "method.toml"))
+    assert check.returncode == 0, check.stderr

@@ -1,0 +1,106 @@
+"""Properties the model and the linear engine must have (hypothesis)."""
+
+from __future__ import annotations
+
+import math
+
+import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+
+from validate import api
+
+DILUTION = """
+[settings]
+temperature_range = "{temp} K"
+
+[equipment.pipette]
+kind = "one-mark pipette"
+nominal = "{vp} mL"
+tolerance = "{tp} mL"
+repeatability = "{rp} mL"
+
+[equipment.flask]
+kind = "volumetric flask"
+nominal = "{vf} mL"
+tolerance = "{tf} mL"
+repeatability = "{rf} mL"
+
+[solutions.stock]
+made_by = "certificate"
+concentration = {{ value = "{c0} mg/L", expanded_uncertainty = "{uc} mg/L", coverage_factor = 2 }}
+
+[solutions.first]
+made_by = "dilution"
+from = "stock"
+aliquot = "pipette"
+flask = "flask"
+
+[solutions.second]
+made_by = "dilution"
+from = "first"
+aliquot = "pipette"
+flask = "flask"
+
+[result]
+name = "diluted"
+unit = "mg/L"
+formula = "{formula}"
+"""
+
+settings_ = settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+volumes = st.sampled_from([(1, 10), (2, 50), (5, 100), (10, 100), (20, 250)])
+
+
+def _write(write_method, vp, vf, scale=1.0, temp=3.0, formula="second", rel=(0.002, 0.001)):
+    text = DILUTION.format(vp=vp * scale, vf=vf * scale, tp=vp * scale * rel[0], rp=vp * scale * rel[1],
+                           tf=vf * scale * rel[0], rf=vf * scale * rel[1], c0=1000.0, uc=2.0,
+                           temp=temp, formula=formula)
+    return write_method(text)
+
+
+@settings_
+@given(volumes=volumes, temp=st.floats(0.5, 5.0))
+def test_squared_contributions_add_up_to_the_combined_variance(write_method, volumes, temp):
+    # GUM 5.1.2: for independent inputs u_c^2 = sum (c_i u_i)^2. Sources are independent by
+    # construction, so the contributions must add up to the package's own combined u.
+    run = api.analyse(_write(write_method, *volumes, temp=temp))
+    (r,) = run.results
+    total = sum(row.contribution**2 for row in r.contributions)
+    assert total == pytest.approx(r.standard_uncertainty**2, rel=1e-9)
+    assert sum(row.share for row in r.contributions) == pytest.approx(1.0, rel=1e-9)
+
+
+@settings_
+@given(volumes=volumes)
+def test_one_item_used_twice_is_one_correlated_source(write_method, volumes):
+    # The same pipette in two dilution steps: ONE calibration offset shared by both
+    # uses (DESIGN.md section 3), so its contribution is twice that of one use:
+    # c = c0 (Vp/Vf)^2, dc/dVp = 2 c / Vp; u(offset) = tolerance/sqrt(6) (triangular, CG4).
+    vp, vf = volumes
+    run = api.analyse(_write(write_method, vp, vf))
+    (r,) = run.results
+    names = [row.source for row in r.contributions]
+    assert names.count("pipette: calibration") == 1
+    assert sum(1 for n in names if n.startswith("pipette: repeatability")) == 2  # fresh per use
+    row = next(x for x in r.contributions if x.source == "pipette: calibration")
+    expected = 2 * r.value / vp * (vp * 0.002 / math.sqrt(6))
+    assert abs(row.contribution) == pytest.approx(expected, rel=1e-6)
+
+
+@settings_
+@given(volumes=volumes, scale=st.floats(0.1, 10.0))
+def test_scaling_every_volume_leaves_the_concentration_unchanged(write_method, volumes, scale):
+    # c = c0 * Vp/Vf: a common factor on every volume cancels (and so do relative tolerances)
+    base = api.analyse(_write(write_method, *volumes)).results[0]
+    scaled = api.analyse(_write(write_method, *volumes, scale=scale)).results[0]
+    assert scaled.value == pytest.approx(base.value, rel=1e-12)
+    assert scaled.standard_uncertainty == pytest.approx(base.standard_uncertainty, rel=1e-9)
+
+
+def test_shared_temperature_cancels_in_a_dilution_ratio(write_method):
+    # Expansion of the solution acts on aliquot and flask alike: V_p (1 + a dT) / (V_f (1 + a dT))
+    # is independent of dT, so a shared temperature source contributes nothing to a dilution.
+    run = api.analyse(_write(write_method, 10, 100, temp=5.0))
+    row = next(x for x in run.results[0].contributions if x.source == "laboratory temperature")
+    assert row.contribution == pytest.approx(0.0, abs=1e-12)

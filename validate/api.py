@@ -1,0 +1,120 @@
+"""The pipeline behind the commands: method file -> model -> engines -> record.
+
+The command line holds no computation; everything it prints comes from here.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import hashlib
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from validate import __version__
+from validate.calibration import fit_line
+from validate.inputs.errors import InputError
+from validate.inputs.method_file import load_method
+from validate.inputs.schema import Method
+from validate.model import Model, build_model
+from validate.propagation.budget import budget_rows, grouped
+from validate.propagation.linear import LinearResult, propagate
+from validate.report.records import budget_csv, record_json, sha256_of, write_atomic
+
+OUTPUT_FILES = ("results.json", "budget.csv")
+
+
+@dataclass
+class Run:
+    method: Method
+    model: Model
+    results: list[LinearResult]
+    record: dict = field(default_factory=dict)
+
+
+def check(path) -> tuple[Method, Model]:
+    """Read and check a method file, and build its model (no propagation)."""
+    method = load_method(path)
+    return method, build_model(method)
+
+
+def analyse(path) -> Run:
+    method, model = check(path)
+    results = propagate(model)
+    run = Run(method, model, results)
+    run.record = build_record(run)
+    return run
+
+
+def calibration_summary(method: Method, model: Model) -> dict | None:
+    """The straight line as the analyst sees it: absorbance against concentration."""
+    cal = method.calibration
+    if cal is None:
+        return None
+    conc = model.concentrations(model.nominal_inputs())
+    ids = list(cal.standards) + (list(cal.blanks) if cal.blanks_in_fit else [])
+    factor = cal.concentration_unit.factor
+    xs, ys, labels = [], [], []
+    for sid in ids:
+        for a in method.readings[sid]:
+            xs.append(conc[sid] / factor)
+            ys.append(a)
+            labels.append(sid)
+    fit = fit_line(xs, ys)
+    return {
+        "concentration_unit": cal.concentration_unit.text,
+        "points": [{"id": i, "concentration": x, "absorbance": y} for i, x, y in zip(labels, xs, ys)],
+        "slope": fit.slope, "intercept": fit.intercept,
+        "slope_standard_uncertainty": fit.slope_u, "intercept_standard_uncertainty": fit.intercept_u,
+        "residual_standard_deviation": fit.residual_sd, "r_squared": fit.r_squared, "n": fit.n,
+        "dof": fit.dof,
+        "samples": [{"id": s.id, "readings": list(method.readings[s.id])} for s in method.samples],
+    }
+
+
+def build_record(run: Run) -> dict:
+    method, results = run.method, run.results
+    inputs = [{"path": str(p), "sha256": sha256_of(p)} for p in method.input_files]
+    fingerprint = hashlib.sha256("".join(i["sha256"] for i in inputs).encode()).hexdigest()[:8]
+    now = _dt.datetime.now(_dt.timezone.utc)
+    return {
+        "software": {"name": "validate", "version": __version__},
+        "run": {"record_id": f"VR-{now:%Y%m%d-%H%M%S}-{fingerprint}", "created": now.isoformat(timespec="seconds")},
+        "method": {"title": method.title, "measurand": method.measurand, "scope": method.scope,
+                   "file": method.path, "formula": method.result.formula.text,
+                   "result_unit": method.result.unit.text},
+        "inputs": inputs,
+        "settings": method.settings.to_dict(),
+        "defaults_applied": list(method.defaults_shown),
+        "notes": list(method.notes),
+        "assumptions": list(run.model.assumptions),
+        "registers": list(method.registers_used),
+        "equipment": [{"id": i.id, "kind": i.kind, "class": i.item_class, "provenance": i.provenance}
+                      for i in method.items.values()],
+        "sources": [s.to_dict() for s in run.model.sources.values()],
+        "calibration": calibration_summary(method, run.model),
+        "results": [
+            {**r.to_dict(),
+             "budget_by_step": [g.to_dict() for g in grouped(r, "step")],
+             "budget_by_equipment": [g.to_dict() for g in grouped(r, "equipment")]}
+            for r in results
+        ],
+        "budget": budget_rows(results),
+    }
+
+
+def write_outputs(run: Run, out_dir, overwrite: bool = False) -> list[Path]:
+    out = Path(out_dir)
+    if out.exists() and not out.is_dir():
+        raise InputError("the output path exists and is not a folder", file=out,
+                         fix="choose a folder name with --out")
+    existing = [out / name for name in OUTPUT_FILES if (out / name).exists()]
+    if existing and not overwrite:
+        raise InputError("this folder already holds a record; it is not overwritten", file=out,
+                         fix="choose another folder with --out, or add --overwrite to replace it")
+    out.mkdir(parents=True, exist_ok=True)
+    payloads = {"results.json": record_json(run.record), "budget.csv": budget_csv(run.record["budget"])}
+    written = []
+    for name, data in payloads.items():
+        write_atomic(out / name, data)
+        written.append(out / name)
+    return written

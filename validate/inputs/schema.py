@@ -1,0 +1,155 @@
+"""Validated objects read from a method file. Values are SI; units kept for display."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+from validate.inputs.units import Unit
+
+VOLUMETRIC_KINDS = ("one-mark pipette", "graduated pipette", "piston pipette", "burette",
+                    "volumetric flask")
+EQUIPMENT_KINDS = VOLUMETRIC_KINDS + ("cuvette", "photometer", "balance")
+SOLUTION_ORIGINS = ("weighing", "certificate", "dilution", "blank")
+
+
+@dataclass(frozen=True)
+class UncertainValue:
+    """A number with its standard uncertainty and distribution, in SI."""
+
+    value: float
+    unit: Unit
+    u: float = 0.0
+    distribution: str = "normal"
+    dof: float = math.inf
+    provenance: str = ""
+    kind: str = "B"
+    trapezoid_d: float = 0.0
+
+
+@dataclass(frozen=True)
+class Item:
+    """One equipment item; tolerances resolved from a register or the method file."""
+
+    id: str
+    kind: str
+    item_class: str
+    nominal: float | None = None  # m^3 for volumetric items
+    tolerance: float = 0.0  # maximum permissible error, SI
+    repeatability: float = 0.0  # standard deviation per use, SI
+    distribution: str = "triangular"  # of the calibration offset
+    reading: float = 0.0  # burette: half-width of one reading, SI
+    path: float | None = None  # cuvette: m
+    offset: float = 0.0  # photometer: absorbance half-width
+    noise: float = 0.0  # photometer: absorbance standard deviation per reading
+    linearity: float = 0.0  # balance: kg half-width
+    provenance: str = ""
+    defaults_used: tuple[str, ...] = ()  # plain-words notes on defaults applied
+
+
+@dataclass(frozen=True)
+class Delivery:
+    """A volume delivered (or a flask filled) by one item in one step."""
+
+    item: str
+    volume: float  # selected volume, m^3
+
+
+@dataclass(frozen=True)
+class Solution:
+    id: str
+    made_by: str
+    mass: UncertainValue | None = None
+    balance: str | None = None
+    purity: UncertainValue | None = None
+    molar_mass: UncertainValue | None = None
+    concentration: UncertainValue | None = None  # certificate
+    parent: str | None = None
+    aliquot: Delivery | None = None
+    flask: Delivery | None = None
+    description: str = ""
+
+
+@dataclass(frozen=True)
+class Calibration:
+    standards: tuple[str, ...]
+    blanks: tuple[str, ...]
+    blanks_in_fit: bool
+    readings_file: str
+    cuvette: str | None
+    photometer: str | None
+    concentration_unit: Unit
+
+
+@dataclass(frozen=True)
+class Sample:
+    id: str
+    description: str = ""
+
+
+@dataclass(frozen=True)
+class NamedQuantity:
+    name: str
+    value: UncertainValue | None = None
+    delivery: Delivery | None = None  # a volume delivered by an item, one use per sample
+    step: str = ""
+
+
+@dataclass(frozen=True)
+class ResultSpec:
+    name: str
+    unit: Unit
+    formula: object  # validate.inputs.formula.Formula
+
+
+@dataclass(frozen=True)
+class Settings:
+    coverage_probability: float = 0.95
+    scatter: str = "observed"
+    glassware_distribution: str = "triangular"
+    temperature_range: float = 3.0  # K, half-width of a rectangular distribution
+    expansion_coefficient: float = 2.1e-4  # per K
+    shared_temperature: bool = True
+    registers: tuple[str, ...] = ()
+
+    def to_dict(self) -> dict:
+        return {
+            "coverage_probability": self.coverage_probability,
+            "scatter": self.scatter,
+            "glassware_distribution": self.glassware_distribution,
+            "temperature_range_K": self.temperature_range,
+            "expansion_coefficient_per_K": self.expansion_coefficient,
+            "shared_temperature": self.shared_temperature,
+            "registers": list(self.registers),
+        }
+
+
+@dataclass(frozen=True)
+class Method:
+    path: str
+    title: str
+    measurand: str
+    scope: str
+    settings: Settings
+    items: dict[str, Item]
+    solutions: dict[str, Solution]
+    calibration: Calibration | None
+    samples: tuple[Sample, ...]
+    quantities: dict[str, NamedQuantity]
+    result: ResultSpec
+    readings: dict[str, tuple[float, ...]] = field(default_factory=dict)
+    input_files: tuple[str, ...] = ()
+    defaults_shown: tuple[str, ...] = ()  # every default the loader applied, in plain words
+    notes: tuple[str, ...] = ()  # warnings about the input that do not stop the run
+    registers_used: tuple[str, ...] = ()
+
+    def concentration_dims(self, solution_id: str) -> tuple[int, ...]:
+        """Dimension of a solution's concentration (mass or amount per volume)."""
+        sol = self.solutions[solution_id]
+        if sol.made_by == "weighing":
+            return (0, -3, 1, 0) if sol.molar_mass is not None else (1, -3, 0, 0)
+        if sol.made_by == "certificate":
+            return sol.concentration.unit.dims
+        if sol.made_by == "dilution":
+            return self.concentration_dims(sol.parent)
+        return self.calibration.concentration_unit.dims if self.calibration else (0, -3, 1, 0)

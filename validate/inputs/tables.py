@@ -1,0 +1,179 @@
+"""Reading TOML tables with checked keys, units and uncertain values."""
+
+from __future__ import annotations
+
+import difflib
+import math
+
+from validate.inputs.errors import InputError
+from validate.inputs.units import Unit, UnitError, describe_dims, parse_quantity, parse_unit
+from validate.inputs.schema import UncertainValue
+from validate.metrology.sources import DISTRIBUTIONS
+
+
+class Table:
+    """A TOML table that knows its file and place, and refuses unknown keys."""
+
+    def __init__(self, data, file, where: str):
+        if not isinstance(data, dict):
+            raise InputError(f"expected a table, got {type(data).__name__}", file=file, where=where,
+                             fix="write this entry as a table, e.g. [section] with key = value lines")
+        self.data, self.file, self.where = data, file, where
+
+    def error(self, what: str, key: str | None = None, fix: str | None = None) -> InputError:
+        where = f"{self.where}.{key}" if key else self.where
+        return InputError(what, file=self.file, where=where, fix=fix)
+
+    def allow(self, *keys: str) -> None:
+        for key in self.data:
+            if key not in keys:
+                close = difflib.get_close_matches(key, keys, n=1)
+                hint = f"did you mean `{close[0]}`?" if close else f"allowed keys: {', '.join(keys)}"
+                raise self.error(f"unknown key `{key}`", key, fix=hint)
+
+    def has(self, key: str) -> bool:
+        return key in self.data
+
+    def get(self, key: str, default=None):
+        return self.data.get(key, default)
+
+    def require(self, key: str, fix: str | None = None):
+        if key not in self.data:
+            raise self.error(f"missing key `{key}`", fix=fix or f"add `{key} = ...` to {self.where}")
+        return self.data[key]
+
+    def text(self, key: str, default: str | None = None, required: bool = False) -> str | None:
+        value = self.require(key) if required else self.data.get(key, default)
+        if value is not None and not isinstance(value, str):
+            raise self.error(f"expected text in quotes, got {value!r}", key)
+        return value
+
+    def number(self, key: str, default: float | None = None, low=None, high=None) -> float | None:
+        if key not in self.data:
+            return default
+        value = self.data[key]
+        if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
+            raise self.error(f"expected a number, got {value!r}", key)
+        if (low is not None and value <= low) or (high is not None and value >= high):
+            raise self.error(f"{value} is out of range; it must lie between {low} and {high}", key)
+        return float(value)
+
+    def sub(self, key: str) -> "Table":
+        where = f"[{key}]" if self.where == "top level" else f"{self.where}.{key}"
+        return Table(self.require(key), self.file, where)
+
+    def quantity(self, key: str, dims=None, positive: bool = True) -> tuple[float, Unit]:
+        """A value with a unit, converted to SI, its dimension checked."""
+        return parse_si(self.require(key), self, key, dims, positive)
+
+    def uncertain(self, key: str, dims=None, positive: bool = True) -> UncertainValue:
+        return parse_uncertain(self.require(key), self, key, dims, positive)
+
+
+def parse_si(raw, table: Table, key: str, dims=None, positive=True) -> tuple[float, Unit]:
+    try:
+        number, unit = parse_quantity(raw)
+    except UnitError as exc:
+        raise table.error(str(exc), key, fix="write a number and its unit in quotes, e.g. \"10.00 mL\"") from None
+    if dims is not None and unit.dims != tuple(dims):
+        wanted = describe_dims(tuple(dims))
+        raise table.error(f"the unit {unit.text or '(none)'!r} is a {describe_dims(unit.dims)}, "
+                          f"but a {wanted} is needed here", key,
+                          fix=f"give the value in a unit of {wanted}")
+    if not math.isfinite(number):
+        raise table.error("the value is not a finite number", key)
+    if positive and number <= 0:
+        raise table.error(f"the value {number} must be greater than zero", key)
+    return number * unit.factor, unit
+
+
+_UNCERTAIN_KEYS = ("value", "u", "half_width", "expanded_uncertainty", "coverage_factor",
+                   "readings", "distribution", "dof", "limit_uncertainty", "provenance")
+
+
+def parse_uncertain(raw, parent: Table, key: str, dims=None, positive=True) -> UncertainValue:
+    """A number with its uncertainty: "10 mL" (exact) or a table, e.g.
+    {value = "99.9 %", half_width = "0.1 %"} (rectangular unless stated),
+    {value = "1000 mg/L", expanded_uncertainty = "2 mg/L", coverage_factor = 2},
+    {value = "10 mL", u = "0.01 mL", distribution = "t", dof = 9},
+    {readings = ["1.02 g", "1.01 g", ...]} (Type A: mean, s/sqrt(n), n-1 dof)."""
+    if not isinstance(raw, dict):
+        value, unit = parse_si(raw, parent, key, dims, positive)
+        return UncertainValue(value, unit, provenance="stated value, no uncertainty given")
+    t = Table(raw, parent.file, f"{parent.where}.{key}")
+    t.allow(*_UNCERTAIN_KEYS)
+    provenance = t.text("provenance", "") or ""
+    if t.has("readings"):
+        return _type_a(t, dims, positive, provenance)
+    value, unit = parse_si(t.require("value"), t, "value", dims, positive)
+    dist = t.text("distribution")
+    if dist is not None and dist not in DISTRIBUTIONS:
+        raise t.error(f"unknown distribution {dist!r}", "distribution",
+                      fix=f"use one of: {', '.join(DISTRIBUTIONS)}")
+    spread_keys = [k for k in ("u", "half_width", "expanded_uncertainty") if t.has(k)]
+    if len(spread_keys) > 1:
+        raise t.error(f"give only one of {', '.join(spread_keys)}")
+    if not spread_keys:
+        return UncertainValue(value, unit, provenance=provenance or "stated value, no uncertainty given")
+    spread_key = spread_keys[0]
+    spread, spread_unit = parse_si(t.get(spread_key), t, spread_key, None, positive=False)
+    if spread_unit.dims != unit.dims:
+        raise t.error(f"the unit of `{spread_key}` ({spread_unit.text}) does not match the value's "
+                      f"({unit.text})", spread_key)
+    if spread < 0:
+        raise t.error("an uncertainty cannot be negative", spread_key)
+    dof = t.number("dof", math.inf, low=0)
+    if spread_key == "half_width":
+        dist = dist or "rectangular"
+        if dist == "rectangular":
+            u = spread / math.sqrt(3.0)
+        elif dist == "triangular":
+            u = spread / math.sqrt(6.0)
+        elif dist == "trapezoid":
+            d, _ = parse_si(t.require("limit_uncertainty"), t, "limit_uncertainty", unit.dims, False)
+            u = math.sqrt(spread**2 / 3.0 + d * d / 9.0)
+            return UncertainValue(value, unit, u, dist, dof, provenance, "B", d)
+        else:
+            raise t.error(f"a half-width goes with a rectangular, triangular or trapezoid "
+                          f"distribution, not {dist!r}", "distribution")
+    elif spread_key == "expanded_uncertainty":
+        k = t.number("coverage_factor", low=0)
+        if k is None:
+            raise t.error("an expanded uncertainty needs its `coverage_factor`",
+                          fix="add coverage_factor = 2 (or the k stated on the certificate)")
+        u, dist = spread / k, dist or "normal"
+    else:
+        u, dist = spread, dist or ("t" if math.isfinite(dof) else "normal")
+    if dist == "t" and not math.isfinite(dof):
+        raise t.error("a t distribution needs `dof` (degrees of freedom)", "dof")
+    if dist in ("rectangular", "triangular", "trapezoid") and spread_key != "half_width":
+        raise t.error(f"give a {dist} distribution by its `half_width`", spread_key)
+    return UncertainValue(value, unit, u, dist, dof, provenance, "B")
+
+
+def _type_a(t: Table, dims, positive, provenance) -> UncertainValue:
+    readings = t.get("readings")
+    if not isinstance(readings, list) or len(readings) < 2:
+        raise t.error("`readings` must be a list of at least two values", "readings")
+    parsed = [parse_si(r, t, f"readings[{i}]", dims, positive) for i, r in enumerate(readings)]
+    units = {p[1].dims for p in parsed}
+    if len(units) > 1:
+        raise t.error("the readings have different kinds of unit", "readings")
+    values = [p[0] for p in parsed]
+    n = len(values)
+    mean = sum(values) / n
+    sd = math.sqrt(sum((v - mean) ** 2 for v in values) / (n - 1))
+    return UncertainValue(mean, parsed[0][1], sd / math.sqrt(n), "t", n - 1,
+                          provenance or f"mean of {n} readings (Type A)", "A")
+
+
+def unit_of(table: Table, key: str, dims=None) -> Unit:
+    raw = table.text(key, required=True)
+    try:
+        unit = parse_unit(raw)
+    except UnitError as exc:
+        raise table.error(str(exc), key) from None
+    if dims is not None and unit.dims != tuple(dims):
+        raise table.error(f"{raw!r} is a {describe_dims(unit.dims)}, but a "
+                          f"{describe_dims(tuple(dims))} is needed", key)
+    return unit

@@ -1,0 +1,118 @@
+"""Equipment items and their uses turned into uncertainty sources and model terms.
+
+DESIGN.md section 3: one calibration offset per item, shared by all its uses;
+a fresh repeatability term per use; one laboratory-temperature deviation
+shared by every volumetric step (unless the settings say otherwise); a
+burette delivery is the difference of two readings.
+"""
+
+from __future__ import annotations
+
+from validate.inputs.schema import Delivery, Item, Method
+from validate.metrology.sources import Source, rectangular, triangular
+
+ML = 1e-6  # m^3 per mL, for display
+TEMPERATURE = "laboratory temperature"
+
+
+class SourceSet:
+    """The model's sources by name. Adding a name twice returns the first object:
+    that identity is what correlates every use of one item or solution."""
+
+    def __init__(self):
+        self.sources: dict[str, Source] = {}
+
+    def add(self, source: Source) -> str:
+        self.sources.setdefault(source.name, source)
+        return source.name
+
+
+def _offset(item: Item) -> Source:
+    make = triangular if item.distribution == "triangular" else rectangular
+    return make(f"{item.id}: calibration", 0.0, item.tolerance, step="equipment calibration",
+                equipment=item.id, provenance=f"tolerance +/-{item.tolerance / ML:.4g} mL, "
+                f"{item.distribution}; {item.provenance}", unit="mL", display_factor=ML)
+
+
+def temperature_source(method: Method, step: str) -> Source:
+    s = method.settings
+    name = TEMPERATURE if s.shared_temperature else f"{TEMPERATURE} ({step})"
+    return rectangular(name, 0.0, s.temperature_range, step=TEMPERATURE if s.shared_temperature else step,
+                       provenance=f"deviation from 20 degC within +/-{s.temperature_range:g} K, rectangular; "
+                       f"volume expansion {s.expansion_coefficient:g} per K", unit="K")
+
+
+def volume_term(ss: SourceSet, method: Method, delivery: Delivery, step: str, use: str,
+                with_repeatability: bool = True):
+    """A closure x -> delivered volume (m^3) for one use of an item in one step.
+
+    `with_repeatability=False` leaves out the per-use random terms (repeatability,
+    burette readings) where the calibration line's observed scatter covers them.
+
+    V = V_selected + scale * offset + repeatability + V_selected * alpha * dT,
+    where scale is V_selected / nominal for burettes and graduated pipettes
+    (their tolerance applies to the full scale) and 1 otherwise (a piston
+    pipette's maximum permissible error applies in microlitres at every
+    selected volume, ISO 8655-2; a one-mark item only delivers its nominal).
+    """
+    item = method.items[delivery.item]
+    volume = delivery.volume
+    scale = volume / item.nominal if item.kind in ("burette", "graduated pipette") else 1.0
+    cal = ss.add(_offset(item))
+    temp = ss.add(temperature_source(method, step))
+    alpha = method.settings.expansion_coefficient
+    terms = []
+    if item.kind == "burette" and with_repeatability:
+        for end in ("start", "end"):
+            terms.append(ss.add(rectangular(
+                f"{item.id}: reading at {end} ({use})", 0.0, item.reading, step=step, equipment=item.id,
+                provenance=f"one reading within +/-{item.reading / ML:.3g} mL", unit="mL", display_factor=ML)))
+        signs = (-1.0, 1.0)
+    elif with_repeatability and item.repeatability > 0:
+        terms.append(ss.add(Source(
+            f"{item.id}: repeatability ({use})", 0.0, item.repeatability, "normal", step=step,
+            equipment=item.id, provenance=f"standard deviation {item.repeatability / ML:.3g} mL per use; "
+            f"{item.provenance}", unit="mL", display_factor=ML)))
+        signs = (1.0,)
+    else:
+        signs = ()
+
+    def term(x):
+        v = volume + scale * x[cal] + volume * alpha * x[temp]
+        for sign, name in zip(signs, terms):
+            v = v + sign * x[name]
+        return v
+
+    return term
+
+
+def balance_terms(ss: SourceSet, method: Method, balance_id: str, use: str, step: str) -> list[str]:
+    """Sources of one weighing: the balance's linearity (shared) and repeatability (per use)."""
+    item = method.items[balance_id]
+    names = []
+    if item.linearity > 0:
+        names.append(ss.add(rectangular(f"{item.id}: linearity", 0.0, item.linearity,
+                                        step="equipment calibration", equipment=item.id,
+                                        provenance=f"+/-{item.linearity * 1e6:.3g} mg; {item.provenance}",
+                                        unit="mg", display_factor=1e-6)))
+    if item.repeatability > 0:
+        names.append(ss.add(Source(f"{item.id}: repeatability ({use})", 0.0, item.repeatability, "normal",
+                                   step=step, equipment=item.id,
+                                   provenance=f"standard deviation {item.repeatability * 1e6:.3g} mg; "
+                                   f"{item.provenance}", unit="mg", display_factor=1e-6)))
+    return names
+
+
+def value_source(ss: SourceSet, name: str, value, step: str, equipment: str = "") -> str | None:
+    """A source for an UncertainValue, or None when it is exact (a constant)."""
+    if value.u == 0:
+        return None
+    return ss.add(Source(name, value.value, value.u, value.distribution, dof=value.dof, step=step,
+                         equipment=equipment, provenance=value.provenance or "method file",
+                         kind=value.kind, unit=value.unit.text, display_factor=value.unit.factor,
+                         trapezoid_d=value.trapezoid_d))
+
+
+def exact_or(x, name: str | None, value: float):
+    return value if name is None else x[name]
+

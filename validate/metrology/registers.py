@@ -1,0 +1,100 @@
+"""Equipment registers: tolerance tables by kind, nominal size and class.
+
+The default registers ship with the package (the project's `budgets/`
+folder, installed as `validate.registers`); a laboratory adds its own
+(its calibration certificates) through `registers = [...]` in a method file.
+A laboratory entry replaces a default entry of the same kind, size and class.
+"""
+
+from __future__ import annotations
+
+import tomllib
+from dataclasses import dataclass
+from importlib import resources
+from pathlib import Path
+
+from validate.inputs.errors import InputError
+from validate.inputs.units import UnitError, parse_quantity
+
+
+@dataclass(frozen=True)
+class RegisterEntry:
+    kind: str
+    item_class: str
+    nominal: float | None  # SI (m^3 for volumes), None for items without a size
+    values: dict  # key -> SI float (tolerance, repeatability, path, offset, ...)
+    source: str  # register title, standard and confidence, for the record
+
+
+def default_register_files() -> list[Path]:
+    try:
+        folder = resources.files("validate.registers")
+        files = sorted(Path(str(p)) for p in folder.iterdir() if p.name.endswith(".toml"))
+        if files:
+            return files
+    except (ModuleNotFoundError, FileNotFoundError, TypeError):
+        pass
+    checkout = Path(__file__).resolve().parents[2] / "budgets"
+    return sorted(checkout.glob("*.toml"))
+
+
+_SIZED_KEYS = ("tolerance", "repeatability", "subdivision", "path", "offset", "noise",
+               "linearity", "reading")
+
+
+def load_register(path: Path) -> list[RegisterEntry]:
+    try:
+        data = tomllib.loads(Path(path).read_text(encoding="utf-8"))
+    except FileNotFoundError:
+        raise InputError("register file not found", file=path,
+                         fix="check the path in `registers` of the settings") from None
+    except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
+        raise InputError(f"cannot read the register: {exc}", file=path,
+                         fix="fix the TOML syntax at the place named") from None
+    title = data.get("register", {}).get("title", Path(path).stem)
+    entries = []
+    for index, raw in enumerate(data.get("item", []), start=1):
+        where = f"[[item]] number {index}"
+        if "kind" not in raw or "class" not in raw:
+            raise InputError("an entry needs `kind` and `class`", file=path, where=where)
+        values = {}
+        try:
+            nominal = parse_quantity(raw["nominal"])[0] * parse_quantity(raw["nominal"])[1].factor \
+                if "nominal" in raw else None
+            for key in _SIZED_KEYS:
+                if key in raw:
+                    number, unit = parse_quantity(raw[key])
+                    values[key] = number * unit.factor
+        except UnitError as exc:
+            raise InputError(str(exc), file=path, where=where) from None
+        source = ", ".join(x for x in (title, raw.get("standard", ""), raw.get("confidence", "")) if x)
+        entries.append(RegisterEntry(raw["kind"], str(raw["class"]), nominal, values, source))
+    return entries
+
+
+def load_registers(extra: list[Path]) -> tuple[list[RegisterEntry], list[str]]:
+    """Default registers, then the laboratory's, later entries replacing earlier ones."""
+    files = default_register_files() + list(extra)
+    merged: dict[tuple, RegisterEntry] = {}
+    for path in files:
+        for entry in load_register(path):
+            key = (entry.kind, entry.item_class, None if entry.nominal is None else round(entry.nominal, 15))
+            merged[key] = entry
+    return list(merged.values()), [str(p) for p in files]
+
+
+def find_entry(entries: list[RegisterEntry], kind: str, item_class: str,
+               nominal: float | None) -> RegisterEntry | None:
+    for entry in entries:
+        if entry.kind != kind or entry.item_class != item_class:
+            continue
+        if nominal is None or entry.nominal is None or abs(entry.nominal - nominal) <= 1e-9 * nominal:
+            return entry
+    return None
+
+
+def classes_for(entries: list[RegisterEntry], kind: str, nominal: float | None) -> list[str]:
+    """The classes the registers hold for a kind (and size), for error messages."""
+    found = {e.item_class for e in entries if e.kind == kind and
+             (nominal is None or e.nominal is None or abs(e.nominal - nominal) <= 1e-9 * nominal)}
+    return sorted(found)

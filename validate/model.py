@@ -1,0 +1,229 @@
+"""The measurement model, written once for every numeric backend.
+
+`build_model(method)` turns a validated method into a `Model`: the list of
+uncertainty sources and a pure function from source values to results. The
+linear engine calls `evaluate` with `uncertainties` numbers, the Monte Carlo
+engine with numpy arrays of trials; both run this same code, so shared
+sources correlate results identically in both.
+
+Chain: solutions (weighing, certificate, dilution) -> standards'
+concentrations -> readings corrected for photometer offset and divided by
+the cell's path length -> straight line refitted from these values -> each
+sample's concentration in the measured solution (`c_measured`) -> the
+result formula.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+from validate.calibration import fit_line, inverse_prediction
+from validate.inputs.schema import Method
+from validate.metrology.equipment import SourceSet, balance_terms, exact_or, value_source, volume_term
+from validate.metrology.sources import Source
+
+
+class ModelError(ValueError):
+    """The data do not allow the model to give a result (e.g. a flat line)."""
+
+
+@dataclass
+class Model:
+    method: Method
+    sources: dict[str, Source]
+    result_labels: list[str]
+    assumptions: list[str] = field(default_factory=list)
+    _solution_terms: dict = field(default_factory=dict, repr=False)
+    _points: list = field(default_factory=list, repr=False)  # (solution id, [reading terms])
+    _sample_terms: dict = field(default_factory=dict, repr=False)
+    _quantity_terms: dict = field(default_factory=dict, repr=False)
+    _fit_terms: dict = field(default_factory=dict, repr=False)
+
+    def nominal_inputs(self) -> dict[str, float]:
+        return {name: s.value for name, s in self.sources.items()}
+
+    def concentrations(self, x) -> dict:
+        conc = {}
+        for sol_id, term in self._solution_terms.items():
+            conc[sol_id] = term(x, conc)
+        return conc
+
+    def line(self, x, conc=None):
+        """Intercept and slope refitted from this evaluation's standards and readings."""
+        conc = self.concentrations(x) if conc is None else conc
+        xs, ys = [], []
+        for sol_id, reading_terms in self._points:
+            for term in reading_terms:
+                xs.append(conc[sol_id])
+                ys.append(term(x))
+        n = len(xs)
+        x_mean = sum(xs) / n
+        y_mean = sum(ys) / n
+        sxx = sum((xi - x_mean) * (xi - x_mean) for xi in xs)
+        sxy = sum((xi - x_mean) * (yi - y_mean) for xi, yi in zip(xs, ys))
+        slope = sxy / sxx
+        return y_mean - slope * x_mean, slope
+
+    def evaluate(self, x) -> dict:
+        """Results (in their display units) from source values of any backend."""
+        conc = self.concentrations(x)
+        values = dict(conc)
+        line = self.line(x, conc) if self._points else None
+        results = {}
+        samples = self.method.samples if "c_measured" in self.method.result.formula.names else [None]
+        factor = self.method.result.unit.factor
+        for sample, label in zip(samples, self.result_labels):
+            for name, term in self._quantity_terms.items():
+                values[name] = term(x, sample.id if sample else "")
+            if sample is not None:
+                intercept, slope = line
+                readings = [t(x) for t in self._sample_terms[sample.id]]
+                y0 = sum(readings) / len(readings)
+                c = (y0 - intercept) / slope
+                if sample.id in self._fit_terms:
+                    c = c + x[self._fit_terms[sample.id]]
+                values["c_measured"] = c
+            results[label] = self.method.result.formula.evaluate(values) / factor
+        return results
+
+
+def build_model(method: Method) -> Model:
+    ss = SourceSet()
+    s = method.settings
+    samples = method.samples if "c_measured" in method.result.formula.names else []
+    name = method.result.name
+    labels = [f"{name}, {smp.id}" for smp in samples] or [name]
+    model = Model(method, ss.sources, labels)
+    observed = s.scatter == "observed"
+    cal = method.calibration
+    standards = set(cal.standards) if cal else set()
+    for sol in method.solutions.values():
+        model._solution_terms[sol.id] = _solution_term(ss, method, sol, observed and sol.id in standards)
+    if cal:
+        if observed:
+            model.assumptions.append(
+                "calibration scatter treated as observed: the residual scatter of the line stands for "
+                "the random effects of preparing and reading the standards and samples "
+                "(EURACHEM/CITAC CG4, Example A5), so their per-use repeatability terms are not added")
+        else:
+            model.assumptions.append(
+                "calibration scatter built bottom-up: every reading and every use of glassware "
+                "carries its own random term; no term for the line's observed scatter is added")
+        ids = list(cal.standards) + (list(cal.blanks) if cal.blanks_in_fit else [])
+        model._points = [(sid, [_reading_term(ss, method, sid, j, a, observed)
+                                for j, a in enumerate(method.readings[sid])]) for sid in ids]
+        for smp in samples:
+            model._sample_terms[smp.id] = [_reading_term(ss, method, smp.id, j, a, observed)
+                                           for j, a in enumerate(method.readings[smp.id])]
+    for q in method.quantities.values():
+        model._quantity_terms[q.name] = _quantity_term(ss, method, q, samples)
+    if cal and observed and samples:
+        _add_fit_terms(ss, model, samples)
+    return model
+
+
+def _solution_term(ss: SourceSet, method: Method, sol, is_standard_observed: bool):
+    step = f"prepare {sol.id}"
+    if sol.made_by == "blank":
+        return lambda x, conc: 0.0
+    if sol.made_by == "certificate":
+        src = value_source(ss, f"{sol.id}: certified concentration", sol.concentration, step)
+        value = sol.concentration.value
+        return lambda x, conc: exact_or(x, src, value)
+    flask = volume_term(ss, method, sol.flask, step, sol.id, not is_standard_observed)
+    if sol.made_by == "dilution":
+        aliquot = volume_term(ss, method, sol.aliquot, step, sol.id, not is_standard_observed)
+        parent = sol.parent
+        return lambda x, conc: conc[parent] * aliquot(x) / flask(x)
+    mass = value_source(ss, f"{sol.id}: mass", sol.mass, step)
+    balance = balance_terms(ss, method, sol.balance, sol.id, step) if sol.balance else []
+    purity = value_source(ss, f"{sol.id}: purity", sol.purity, step) if sol.purity else None
+    molar = value_source(ss, f"{sol.id}: molar mass", sol.molar_mass, step) if sol.molar_mass else None
+    m0 = sol.mass.value
+    p0 = sol.purity.value if sol.purity else 1.0
+    mm0 = sol.molar_mass.value if sol.molar_mass else None
+
+    def term(x, conc):
+        m = exact_or(x, mass, m0)
+        for b in balance:
+            m = m + x[b]
+        c = m * exact_or(x, purity, p0) / flask(x)
+        return c / exact_or(x, molar, mm0) if mm0 is not None else c
+
+    return term
+
+
+def _reading_term(ss: SourceSet, method: Method, ident: str, index: int, absorbance: float, observed: bool):
+    cal = method.calibration
+    photometer = method.items.get(cal.photometer) if cal.photometer else None
+    cell = method.items.get(cal.cuvette) if cal.cuvette else None
+    offset = noise = path = None
+    if photometer is not None and photometer.offset > 0:
+        offset = ss.add(Source(f"{photometer.id}: photometric offset", 0.0, photometer.offset / 3**0.5,
+                               "rectangular", step="photometric reading", equipment=photometer.id,
+                               provenance=f"+/-{photometer.offset:g} absorbance, shared by every reading; "
+                               f"{photometer.provenance}"))
+    if photometer is not None and photometer.noise > 0 and not observed:
+        noise = ss.add(Source(f"{photometer.id}: noise, {ident} reading {index + 1}", 0.0, photometer.noise,
+                              "normal", step="photometric reading", equipment=photometer.id,
+                              provenance=f"standard deviation {photometer.noise:g} absorbance per reading; "
+                              f"{photometer.provenance}"))
+    if cell is not None:
+        path = ss.add(Source(f"{cell.id}: path length", cell.path, cell.tolerance / 3**0.5, "rectangular",
+                             step="photometric reading", equipment=cell.id,
+                             provenance=f"{cell.path * 1e3:g} mm +/-{cell.tolerance * 1e3:g} mm, one cell for "
+                             f"every reading; {cell.provenance}", unit="mm", display_factor=1e-3))
+    path0 = cell.path if cell is not None else 1.0
+
+    def term(x):
+        a = absorbance
+        if noise is not None:
+            a = a + x[noise]
+        if offset is not None:
+            a = a - x[offset]
+        return a / exact_or(x, path, path0)
+
+    return term
+
+
+def _quantity_term(ss: SourceSet, method: Method, q, samples):
+    if q.delivery is not None:
+        # one use of the item per sample: a fresh repeatability term each time,
+        # the item's calibration offset shared by all of them
+        keys = [smp.id for smp in samples] or [""]
+        uses = {k: volume_term(ss, method, q.delivery, q.step, f"{q.name}, {k}" if k else q.name)
+                for k in keys}
+        return lambda x, sample_id: uses[sample_id](x)
+    src = value_source(ss, q.name, q.value, q.step)
+    value = q.value.value
+    return lambda x, sample_id: exact_or(x, src, value)
+
+
+def _add_fit_terms(ss: SourceSet, model: Model, samples) -> None:
+    """Observed scatter: one term per sample with the inverse-prediction uncertainty
+    of the line (ISO 8466-1; EURACHEM/CITAC CG4 Example A5), n-2 degrees of freedom."""
+    x0 = model.nominal_inputs()
+    conc = model.concentrations(x0)
+    xs, ys = [], []
+    for sid, terms in model._points:
+        for t in terms:
+            xs.append(conc[sid])
+            ys.append(t(x0))
+    try:
+        fit = fit_line(xs, ys)
+    except ValueError as exc:
+        raise ModelError(str(exc)) from None
+    unit = model.method.calibration.concentration_unit
+    for smp in samples:
+        pred = inverse_prediction(fit, [t(x0) for t in model._sample_terms[smp.id]])
+        if not pred.finite:
+            raise ModelError(
+                f"sample {smp.id}: the slope of the line is not significantly different from zero "
+                f"(Fieller's g = {pred.g:.2f} >= 1), so the concentration read off the line has no finite "
+                f"confidence interval; no result is reported")
+        model._fit_terms[smp.id] = ss.add(Source(
+            f"calibration line, {smp.id}", 0.0, pred.standard_uncertainty, "t", dof=fit.dof,
+            step="calibration fit", kind="A",
+            provenance=f"inverse prediction from the line's residual scatter, {pred.replicates} reading(s), "
+            f"{fit.n} calibration points, {fit.dof} degrees of freedom (ISO 8466-1; CG4 A5)",
+            unit=unit.text, display_factor=unit.factor))

@@ -1,0 +1,111 @@
+"""The linear engine: GUM law of propagation over the `uncertainties` package.
+
+Every source becomes one `ufloat` tagged with its name; the model runs once on
+them. Sensitivity coefficients are the partial derivatives the package carries
+(GUM 5.1.3), contributions are c_i u(x_i) (GUM 5.1.2), the effective degrees of
+freedom follow Welch-Satterthwaite (GUM G.4.1) and the coverage factor is the
+t quantile at the coverage probability (GUM G.3, G.4).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import asdict, dataclass
+
+from scipy import stats
+from uncertainties import ufloat
+from uncertainties.core import AffineScalarFunc
+
+from validate.model import Model, ModelError
+
+
+@dataclass(frozen=True)
+class Contribution:
+    source: str
+    step: str
+    equipment: str
+    value: float  # the source's estimate, in its own unit
+    unit: str
+    standard_uncertainty: float  # in the source's own unit
+    distribution: str
+    dof: float
+    kind: str
+    provenance: str
+    sensitivity: float  # result unit per source unit
+    contribution: float  # c_i u(x_i), in the result's unit (signed)
+    share: float  # fraction of the combined variance
+
+    def to_dict(self) -> dict:
+        d = asdict(self)
+        d["dof"] = None if math.isinf(self.dof) else self.dof
+        return d
+
+
+@dataclass(frozen=True)
+class LinearResult:
+    name: str
+    unit: str
+    value: float
+    standard_uncertainty: float
+    effective_dof: float
+    coverage_factor: float
+    coverage_probability: float
+    expanded_uncertainty: float
+    contributions: tuple[Contribution, ...]  # ranked by share, largest first
+
+    def to_dict(self) -> dict:
+        return {
+            "name": self.name, "unit": self.unit, "value": self.value,
+            "standard_uncertainty": self.standard_uncertainty,
+            "expanded_uncertainty": self.expanded_uncertainty,
+            "coverage_factor": self.coverage_factor,
+            "coverage_probability": self.coverage_probability,
+            "effective_dof": None if math.isinf(self.effective_dof) else self.effective_dof,
+        }
+
+
+def welch_satterthwaite(contributions: list[float], dofs: list[float]) -> float:
+    """nu_eff = u_c^4 / sum(u_i^4 / nu_i)  (GUM G.4.1)."""
+    total = sum(c * c for c in contributions)
+    denominator = sum(c**4 / nu for c, nu in zip(contributions, dofs) if math.isfinite(nu) and c != 0)
+    if denominator == 0:
+        return math.inf
+    return total**2 / denominator
+
+
+def coverage_factor(p: float, dof: float) -> float:
+    """k = t_{(1+p)/2, nu}; the normal quantile when nu is infinite (GUM G.3.4)."""
+    if math.isinf(dof) or dof > 1e7:
+        return float(stats.norm.ppf(0.5 + p / 2.0))
+    return float(stats.t.ppf(0.5 + p / 2.0, dof))
+
+
+def propagate(model: Model) -> list[LinearResult]:
+    variables = {name: ufloat(src.value, src.u, tag=name) for name, src in model.sources.items()}
+    outputs = model.evaluate(variables)
+    p = model.method.settings.coverage_probability
+    unit = model.method.result.unit.text
+    results = []
+    for label, y in outputs.items():
+        if not isinstance(y, AffineScalarFunc):  # no uncertain input reached this result
+            y = ufloat(float(y), 0.0)
+        if not math.isfinite(y.nominal_value):
+            raise ModelError(f"{label}: the model gives no finite value at the estimates")
+        derivatives = {var.tag: d for var, d in y.derivatives.items()}
+        rows = []
+        for name, src in model.sources.items():
+            d = derivatives.get(name, 0.0)
+            rows.append((src, d * src.display_factor, d * src.u))
+        u = y.std_dev  # the package's own combination; the contributions must add up to it
+        variance = u * u
+        contribs = [
+            Contribution(src.name, src.step, src.equipment, src.value / src.display_factor, src.unit,
+                         src.u / src.display_factor, src.distribution, src.dof, src.kind, src.provenance,
+                         sens, c, (c * c / variance) if variance > 0 else 0.0)
+            for src, sens, c in rows
+        ]
+        contribs.sort(key=lambda r: (-r.share, r.source))
+        dof = welch_satterthwaite([r.contribution for r in contribs], [r.dof for r in contribs])
+        k = coverage_factor(p, dof)
+        results.append(LinearResult(label, unit, y.nominal_value, u, dof, k, p, k * u, tuple(contribs)))
+    return results

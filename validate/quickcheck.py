@@ -1,0 +1,276 @@
+"""Quick check of a calibration table: the body of `validate calibrate TABLE.csv`.
+
+The table is a CSV file with a header row naming at least the columns
+`concentration` and `absorbance` (one row per reading; replicate readings of a
+standard repeat its concentration) and optionally `u_concentration`. Units may
+follow a column name in brackets, e.g. `concentration (mg/L)`. Lines starting
+with `#` are comments (for example a note on where the data come from).
+"""
+
+from __future__ import annotations
+
+import csv
+import math
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from validate.calibration import inverse_prediction
+from validate.inputs.errors import InputError
+from validate.validation.limits import range_flags
+from validate.validation.linearity import plain
+from validate.validation.summary import validate_calibration
+
+REQUIRED = ("concentration", "absorbance")
+OPTIONAL = ("u_concentration",)
+
+
+class TableError(InputError, ValueError):
+    """A problem with a calibration table; names the file, the place and the fix."""
+
+    def __init__(self, what: str, *, file, row: int | None = None, column: str | None = None,
+                 fix: str | None = None):
+        self.row, self.column = row, column
+        where = ", ".join(p for p in (f"line {row}" if row else "",
+                                      f"column '{column}'" if column else "") if p) or None
+        super().__init__(what, file=file, where=where, fix=fix)
+
+
+class MissingColumnError(TableError):
+    pass
+
+
+class CellError(TableError):
+    pass
+
+
+class DecimalCommaError(TableError):
+    pass
+
+
+class TooFewLevelsError(TableError):
+    pass
+
+
+class SampleError(InputError, ValueError):
+    """Bad sample readings given with the quick check."""
+
+
+@dataclass(frozen=True)
+class CalibrationTable:
+    path: str
+    concentration: tuple[float, ...]
+    absorbance: tuple[float, ...]
+    u_concentration: tuple[float, ...] | None
+    lines: tuple[int, ...]  # file line of each reading
+    units: dict  # column -> unit written in the header ("" if none)
+
+    def to_dict(self) -> dict:
+        return plain(self)
+
+
+def _column_name(raw: str) -> tuple[str, str]:
+    """'Concentration (mg/L)' -> ('concentration', 'mg/L')."""
+    text = raw.strip()
+    unit = ""
+    for opening, closing in (("(", ")"), ("[", "]")):
+        if opening in text and text.endswith(closing):
+            text, unit = text[: text.index(opening)], text[text.index(opening) + 1: -1]
+    return text.strip().lower().replace(" ", "_"), unit.strip()
+
+
+def _delimiter(header: str) -> str:
+    for candidate in (";", "\t"):
+        if candidate in header and "," not in header:
+            return candidate
+    return ","
+
+
+COMMA_FIX = ("write numbers with a decimal point (0.125, not 0,125) and separate columns with "
+             "commas; in a spreadsheet, export as CSV with '.' as the decimal separator")
+
+
+def _number(cell: str, *, file, line: int, column: str, delimiter: str) -> float:
+    text = cell.strip()
+    if text == "":
+        raise CellError("empty cell", file=file, row=line, column=column,
+                        fix="fill in the value or delete the row")
+    if "," in text and "." not in text:
+        raise DecimalCommaError(f"'{text}' uses a decimal comma", file=file, row=line,
+                                column=column, fix=COMMA_FIX)
+    try:
+        value = float(text)
+    except ValueError:
+        raise CellError(f"'{text}' is not a number", file=file, row=line, column=column,
+                        fix="give a plain number such as 0.25 or 1.5e-4") from None
+    if not math.isfinite(value):
+        raise CellError(f"'{text}' is not a finite number", file=file, row=line, column=column,
+                        fix="give a measured value")
+    return value
+
+
+def load_table(path) -> CalibrationTable:
+    """Read and check a calibration table; raise `TableError` with the fix on bad input."""
+    path = Path(path)
+    try:
+        text = path.read_text(encoding="utf-8-sig")
+    except FileNotFoundError:
+        raise TableError("file not found", file=path, fix="check the path") from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise TableError(f"cannot read the file ({exc})", file=path,
+                         fix="save the table as a UTF-8 CSV text file") from None
+    lines = [(i, ln) for i, ln in enumerate(text.splitlines(), start=1)
+             if ln.strip() and not ln.lstrip().startswith("#")]
+    if not lines:
+        raise TableError("the table is empty", file=path,
+                         fix="add a header row 'concentration,absorbance' and one row per reading")
+    header_line, header = lines[0]
+    delimiter = _delimiter(header)
+    names_units = [_column_name(c) for c in next(csv.reader([header], delimiter=delimiter))]
+    names = [n for n, _ in names_units]
+    missing = [c for c in REQUIRED if c not in names]
+    if missing:
+        raise MissingColumnError(
+            f"missing column(s) {', '.join(missing)}; the header has {', '.join(names) or 'nothing'}",
+            file=path, row=header_line,
+            fix="the first row must name the columns 'concentration' and 'absorbance' "
+                "(optionally 'u_concentration')")
+    for c in REQUIRED + OPTIONAL:
+        if names.count(c) > 1:
+            raise MissingColumnError(f"column '{c}' appears twice", file=path, row=header_line,
+                                     fix="keep one column of that name")
+    wanted = [c for c in REQUIRED + OPTIONAL if c in names]
+    cols: dict[str, list[float]] = {c: [] for c in wanted}
+    line_numbers = []
+    for line, raw in lines[1:]:
+        cells = next(csv.reader([raw], delimiter=delimiter))
+        if len(cells) != len(names):
+            if len(cells) > len(names) and delimiter == ",":
+                raise DecimalCommaError(
+                    f"the row has {len(cells)} cells but the header names {len(names)} columns; "
+                    "this usually means numbers were written with a decimal comma",
+                    file=path, row=line, fix=COMMA_FIX)
+            raise CellError(f"the row has {len(cells)} cells but the header names {len(names)} "
+                            "columns", file=path, row=line, fix="give one value per column")
+        for c in wanted:
+            value = _number(cells[names.index(c)], file=path, line=line, column=c,
+                            delimiter=delimiter)
+            if c != "absorbance" and value < 0:
+                raise CellError(f"negative {c.replace('_', ' ')} {value:g}", file=path, row=line,
+                                column=c, fix="concentrations and their uncertainties are >= 0")
+            cols[c].append(value)
+        line_numbers.append(line)
+    distinct = len(set(cols["concentration"]))
+    if distinct < 3:
+        raise TooFewLevelsError(
+            f"only {distinct} distinct concentration(s); a calibration check needs at least 3",
+            file=path, column="concentration",
+            fix="measure standards at 3 or more concentrations (ICH Q2(R1) advises at least 5)")
+    if len(set(cols["absorbance"])) == 1:
+        raise TableError("every absorbance is the same; no calibration line can be fitted",
+                         file=path, column="absorbance",
+                         fix="check that the absorbance column holds the readings of the standards")
+    return CalibrationTable(
+        str(path), tuple(cols["concentration"]), tuple(cols["absorbance"]),
+        tuple(cols["u_concentration"]) if "u_concentration" in cols else None,
+        tuple(line_numbers), {n: u for n, u in names_units if n in wanted})
+
+
+def _sample_entry(fit, summary, index: int, readings) -> dict:
+    r = np.asarray(readings, dtype=float).ravel()
+    if r.size == 0 or not np.all(np.isfinite(r)):
+        raise SampleError(f"sample {index} has no usable readings",
+                          fix="give one or more finite absorbance readings per sample")
+    ip = inverse_prediction(fit, r)
+    flags = range_flags(ip.value, summary.lowest_standard, summary.highest_standard,
+                        loq=summary.limits.loq, lod=summary.limits.lod)
+    if not ip.finite:
+        flags.append("slope not significantly different from zero: no finite interval")
+    return {"readings": r.tolist(), "replicates": ip.replicates,
+            "response_mean": ip.response_mean, "concentration": ip.value,
+            "standard_uncertainty": ip.standard_uncertainty, "dof": ip.dof, "flags": flags,
+            "source": "x0 = (y0 - a)/b with the observed-scatter uncertainty (ISO 8466-1; "
+                      "EURACHEM/CITAC CG4 Example A5)"}
+
+
+def quick_check(path, samples: list[list[float]] | None = None) -> dict:
+    """Fit, linearity tests, ICH limits (sigma from residuals) and optional samples, as plain data."""
+    table = load_table(path)
+    summary = validate_calibration(table.concentration, table.absorbance)
+    fit = summary.fit
+    notes = list(summary.notes)
+    if table.u_concentration is not None and fit.slope != 0:
+        ratio = max(table.u_concentration) / (fit.residual_sd / abs(fit.slope))
+        notes.append(f"the largest u(concentration) is {100 * ratio:.3g} % of the residual "
+                     "scatter in concentration units (s/b); the ordinary fit treats "
+                     "concentrations as exact (ISO/TS 28037 treats uncertain x)")
+    result = {
+        "file": table.path, "units": table.units, "n": fit.n,
+        "distinct_concentrations": len(set(table.concentration)), "dof": fit.dof,
+        "slope": fit.slope, "intercept": fit.intercept,
+        "slope_standard_uncertainty": fit.slope_u,
+        "intercept_standard_uncertainty": fit.intercept_u,
+        "slope_intercept_covariance": fit.covariance,
+        "residual_standard_deviation": fit.residual_sd, "r_squared": fit.r_squared,
+        "lod": summary.limits.route("ich_residual_sd").lod,
+        "loq": summary.limits.route("ich_residual_sd").loq,
+        "limit_source": summary.limits.route("ich_residual_sd").source,
+        "linearity": {k: t.to_dict() for k, t in summary.tests().items()},
+        "limits": summary.limits.to_dict(),
+        "flagged_points": list(summary.points.flagged),
+        "readings_outside_absorbance_window": summary.window.outside,
+        "absorbance_window": [summary.window.low, summary.window.high],
+        "notes": notes,
+    }
+    if samples:
+        result["sample"] = [_sample_entry(fit, summary, i, s) for i, s in enumerate(samples, 1)]
+    return plain(result)
+
+
+def _g(value, digits: int = 6) -> str:
+    return "n/a" if value is None else f"{value:.{digits}g}"
+
+
+def format_quick_check(result: dict) -> str:
+    """Plain text for the terminal."""
+    out = [f"Calibration check: {result['file']}",
+           f"  {result['n']} readings at {result['distinct_concentrations']} concentrations, "
+           f"{result['dof']} degrees of freedom",
+           "", "Straight-line fit (ordinary least squares)",
+           f"  slope       {_g(result['slope'])}   u = {_g(result['slope_standard_uncertainty'], 3)}",
+           f"  intercept   {_g(result['intercept'])}   u = {_g(result['intercept_standard_uncertainty'], 3)}",
+           f"  residual SD {_g(result['residual_standard_deviation'])}",
+           f"  r^2         {_g(result['r_squared'], 8)}", "", "Linearity"]
+    for test in result["linearity"].values():
+        head = f"  {test['name']}: "
+        if test["evaluable"]:
+            head += f"statistic {_g(test['statistic'], 4)}"
+            if test["p_value"] is not None:
+                head += f", p = {_g(test['p_value'], 3)}"
+        out += [head, f"    {test['verdict']}", f"    source: {test['source']}"]
+    limits = result["limits"]
+    out += ["", f"Detection and quantitation limits (declared route: {limits['declared_route']})"]
+    for r in limits["routes"]:
+        out.append(f"  {r['route']:<18} LOD {_g(r['lod'], 4):<10} LOQ {_g(r['loq'], 4)}")
+    iso = limits["iso11843"]
+    out.append(f"  ISO 11843-2 critical value x_C {_g(iso['critical_value'], 4)}, minimum "
+               f"detectable value x_D {_g(iso['minimum_detectable_value'], 4)} "
+               f"(alpha {iso['alpha']}, beta {iso['beta']})")
+    out += [f"  warning: {w}" for w in limits["warnings"]]
+    out.append(f"  source: {result['limit_source']}")
+    for i, s in enumerate(result.get("sample", []), 1):
+        if i == 1:
+            out += ["", "Samples (concentration from the line, observed-scatter uncertainty)"]
+        flags = f"  [{'; '.join(s['flags'])}]" if s["flags"] else ""
+        out.append(f"  sample {i}: {s['replicates']} reading(s), mean {_g(s['response_mean'], 5)}"
+                   f" -> {_g(s['concentration'])}  u = {_g(s['standard_uncertainty'], 3)}"
+                   f" ({s['dof']} dof){flags}")
+    extra = result["flagged_points"] + result["notes"]
+    if result["readings_outside_absorbance_window"]:
+        lo, hi = result["absorbance_window"]
+        extra.append(f"{result['readings_outside_absorbance_window']} reading(s) outside the "
+                     f"absorbance window {lo:g} to {hi:g} (common practice)")
+    if extra:
+        out += ["", "Notes"] + [f"  - {e}" for e in extra]
+    return "\n".join(out) + "\n"

@@ -1,0 +1,70 @@
+"""The quality record: results.json and budget.csv, written atomically.
+
+results.json is a contract other programs rely on (see README, "The record").
+Files are written to a temporary name in the same folder and moved into place
+only when complete, so an interrupted run never leaves a half-written file.
+"""
+
+from __future__ import annotations
+
+import csv
+import hashlib
+import io
+import json
+import math
+import os
+import tempfile
+from pathlib import Path
+
+
+def sha256_of(path) -> str:
+    digest = hashlib.sha256()
+    with open(path, "rb") as handle:
+        for block in iter(lambda: handle.read(1 << 16), b""):
+            digest.update(block)
+    return digest.hexdigest()
+
+
+def json_safe(value):
+    """Plain JSON types only: numpy scalars to floats, inf and nan to None."""
+    if isinstance(value, dict):
+        return {str(k): json_safe(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [json_safe(v) for v in value]
+    if hasattr(value, "item") and not isinstance(value, (str, bytes)):
+        value = value.item()
+    if isinstance(value, float) and not math.isfinite(value):
+        return None
+    return value
+
+
+def write_atomic(path: Path, data: bytes) -> None:
+    path = Path(path)
+    handle, temp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".part")
+    try:
+        with os.fdopen(handle, "wb") as out:
+            out.write(data)
+            out.flush()
+            os.fsync(out.fileno())
+        os.replace(temp, path)
+    except BaseException:
+        if os.path.exists(temp):
+            os.unlink(temp)
+        raise
+
+
+def record_json(record: dict) -> bytes:
+    return (json.dumps(json_safe(record), indent=2, ensure_ascii=False) + "\n").encode("utf-8")
+
+
+BUDGET_COLUMNS = ("result", "source", "step", "equipment", "value", "unit", "standard_uncertainty",
+                  "distribution", "dof", "kind", "sensitivity", "contribution", "share", "provenance")
+
+
+def budget_csv(rows: list[dict]) -> bytes:
+    buffer = io.StringIO()
+    writer = csv.DictWriter(buffer, fieldnames=BUDGET_COLUMNS, extrasaction="ignore", lineterminator="\n")
+    writer.writeheader()
+    for row in rows:
+        writer.writerow({k: ("" if row.get(k) is None else row.get(k)) for k in BUDGET_COLUMNS})
+    return buffer.getvalue().encode("utf-8")

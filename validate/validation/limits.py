@@ -1,0 +1,264 @@
+"""Sensitivity, molar absorptivity, detection and quantitation limits, range flags.
+
+Detection limits are given by every route the data allow (ICH Q2(R1) with
+each of its sigma estimates, ISO 11843-2) so the analyst sees how much they
+differ; one route is `declared` for the record. Limits always come from the
+ordinary (unweighted) straight line: the formulas assume a constant response
+SD, and with scatter that grows with concentration the unweighted residual SD
+overstates the scatter at the blank, which makes the limits conservative.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import optimize, stats
+
+from validate.calibration import LineFit, fit_line
+from validate.validation.linearity import negligible, plain
+
+
+@dataclass(frozen=True)
+class Sensitivity:
+    slope: float
+    standard_uncertainty: float
+    relative_standard_uncertainty: float | None
+    dof: int
+    source: str
+
+    def to_dict(self) -> dict:
+        return plain(self)
+
+
+def sensitivity(fit: LineFit) -> Sensitivity:
+    """The calibration slope (IUPAC: sensitivity) with its standard uncertainty."""
+    rel = fit.slope_u / abs(fit.slope) if fit.slope != 0 else None
+    return Sensitivity(fit.slope, fit.slope_u, rel, fit.dof,
+                       "Sensitivity is the slope of the calibration function (IUPAC Gold Book, "
+                       "'sensitivity'); u(b) = s/sqrt(Sxx) from least squares (ISO 8466-1).")
+
+
+@dataclass(frozen=True)
+class MolarAbsorptivity:
+    value: float
+    standard_uncertainty: float
+    relative_standard_uncertainty: float
+    effective_dof: float | None  # None when infinite
+    path_length_cm: float
+    path_length_u: float
+    unit: str
+    source: str
+
+    def to_dict(self) -> dict:
+        return plain(self)
+
+
+def molar_absorptivity(fit: LineFit, path_length_cm: float,
+                       path_length_u: float = 0.0) -> MolarAbsorptivity:
+    """epsilon = b / l (Beer-Lambert A = epsilon l c).
+
+    For a quotient the relative standard uncertainties add in quadrature
+    (GUM, JCGM 100:2008, 5.1.6); effective degrees of freedom by the
+    Welch-Satterthwaite formula (GUM G.4.1), path length taken as Type B with
+    infinite degrees of freedom.
+    """
+    if not (path_length_cm > 0 and math.isfinite(path_length_cm)):
+        raise ValueError(f"path length must be a positive number of centimetres, got {path_length_cm!r}")
+    if not (path_length_u >= 0 and math.isfinite(path_length_u)):
+        raise ValueError("the path-length uncertainty must be zero or a positive number of centimetres")
+    eps = fit.slope / path_length_cm
+    rel_b = fit.slope_u / abs(fit.slope)
+    rel_l = path_length_u / path_length_cm
+    rel = math.hypot(rel_b, rel_l)
+    dof = rel**4 / (rel_b**4 / fit.dof) if rel_b > 0 and fit.dof > 0 else math.inf
+    return MolarAbsorptivity(
+        eps, abs(eps) * rel, rel, dof if math.isfinite(dof) else None, path_length_cm,
+        path_length_u, "L mol^-1 cm^-1 when concentrations are in mol/L (else "
+        "concentration-unit^-1 cm^-1)",
+        "Beer-Lambert law A = epsilon l c, epsilon = slope / path length; relative standard "
+        "uncertainties of slope and path length combined in quadrature (GUM JCGM 100:2008, "
+        "5.1.6); effective degrees of freedom by Welch-Satterthwaite (GUM G.4.1).")
+
+
+# --------------------------------------------------------------------------
+# Detection and quantitation limits
+
+ROUTES = ("ich_residual_sd", "ich_intercept_sd", "ich_blank_sd", "iso11843_2")
+
+ICH_SOURCE = "ICH Q2(R1), sections 6.3 and 7.3: LOD = 3.3 sigma/S, LOQ = 10 sigma/S, S = slope; "
+
+
+@dataclass(frozen=True)
+class LimitRoute:
+    route: str
+    sigma: float | None  # response SD used (None for ISO 11843-2)
+    sigma_dof: int | None
+    lod: float
+    loq: float | None  # ISO 11843-2 defines no quantitation limit
+    source: str
+    note: str = ""
+
+
+@dataclass(frozen=True)
+class Iso11843Result:
+    critical_value_response: float  # y_C above the intercept
+    critical_value: float  # x_C
+    minimum_detectable_value: float  # x_D with delta = t(1-alpha) + t(1-beta)
+    minimum_detectable_value_exact_delta: float  # x_D with the noncentral-t delta
+    delta: float
+    delta_exact: float
+    alpha: float
+    beta: float
+    sample_replicates: int
+    dof: int
+    source: str
+
+
+@dataclass(frozen=True)
+class DetectionLimits:
+    routes: tuple[LimitRoute, ...]
+    iso11843: Iso11843Result
+    declared_route: str
+    lod: float
+    loq: float | None
+    warnings: tuple[str, ...]
+    notes: tuple[str, ...]
+
+    def route(self, name: str) -> LimitRoute | None:
+        return next((r for r in self.routes if r.route == name), None)
+
+    def to_dict(self) -> dict:
+        return plain(self)
+
+
+def _ich_route(route: str, sigma: float, dof: int, slope: float, source: str,
+               note: str = "") -> LimitRoute:
+    b = abs(slope)
+    return LimitRoute(route, sigma, dof, 3.3 * sigma / b, 10.0 * sigma / b, source, note)
+
+
+def exact_delta(dof: int, alpha: float, beta: float) -> float:
+    """Noncentrality delta with P(t'(dof, delta) <= t_{1-alpha}(dof)) = beta (ISO 11843-2, 5.3)."""
+    t_crit = stats.t.ppf(1 - alpha, dof)
+
+    def excess(d):
+        return stats.nct.cdf(t_crit, dof, d) - beta  # decreases as delta grows
+
+    hi = max(float(t_crit + stats.norm.ppf(1 - beta)), 1.0)
+    while excess(hi) > 0:  # widen the bracket in small steps (nct.cdf fails far out)
+        hi *= 1.5
+    return float(optimize.brentq(excess, 0.0, hi))
+
+
+def iso11843_2(fit: LineFit, alpha: float = 0.05, beta: float = 0.05,
+               sample_replicates: int = 1) -> Iso11843Result:
+    """Critical value x_C and minimum detectable value x_D, constant-SD linear case.
+
+    x_C = t_{1-alpha}(nu) (s/b) sqrt(1/K + 1/(IJ) + xbar^2/Sxx),  x_D = delta (s/b) sqrt(...),
+    nu = IJ - 2, Sxx over all IJ readings (ISO 11843-2:2000, clause 5.3, recalled
+    from memory). delta ~ t_{1-alpha}(nu) + t_{1-beta}(nu), the approximation the
+    standard allows (it equals 2 t_{1-alpha} for alpha = beta); the exact
+    noncentral-t delta is given beside it. Unbalanced designs use n and Sxx of
+    the actual readings.
+    """
+    if not (0 < alpha < 0.5 and 0 < beta < 0.5):
+        raise ValueError("alpha and beta must lie between 0 and 0.5 (e.g. 0.05)")
+    if sample_replicates < 1:
+        raise ValueError("the number of sample replicates K must be at least 1")
+    nu = fit.dof
+    root = math.sqrt(1.0 / sample_replicates + 1.0 / fit.n + fit.x_mean**2 / fit.sxx)
+    scale = fit.residual_sd / abs(fit.slope) * root
+    t_a, t_b = stats.t.ppf(1 - alpha, nu), stats.t.ppf(1 - beta, nu)
+    delta, delta_ex = float(t_a + t_b), exact_delta(nu, alpha, beta)
+    return Iso11843Result(
+        critical_value_response=float(t_a * fit.residual_sd * root),
+        critical_value=float(t_a * scale), minimum_detectable_value=delta * scale,
+        minimum_detectable_value_exact_delta=delta_ex * scale, delta=delta,
+        delta_exact=delta_ex, alpha=alpha, beta=beta, sample_replicates=sample_replicates,
+        dof=nu,
+        source="ISO 11843-2:2000 clause 5.3, ordinary straight-line calibration with constant "
+               "residual SD: x_C = t_{1-alpha}(IJ-2) s/b sqrt(1/K + 1/(IJ) + xbar^2/Sxx); "
+               "x_D = delta s/b sqrt(...) with delta ~ t_{1-alpha} + t_{1-beta} (approximation "
+               "allowed by the standard; exact noncentral-t delta also given). Formulas "
+               "recalled from memory.")
+
+
+def detection_limits(fit: LineFit, blanks=None, *, alpha: float = 0.05, beta: float = 0.05,
+                     sample_replicates: int = 1,
+                     declared: str = "ich_residual_sd") -> DetectionLimits:
+    """Every LOD/LOQ route the data allow, the declared one, and disagreement warnings."""
+    if declared not in ROUTES:
+        raise ValueError(f"unknown detection-limit route {declared!r}; choose one of {', '.join(ROUTES)}")
+    notes = []
+    if fit.weighted:
+        fit = fit_line(fit.x, fit.y)
+        notes.append("limits use the unweighted line of the same data (constant-SD formulas); "
+                     "with scatter growing with concentration they are conservative")
+    if fit.slope == 0:
+        raise ValueError("the calibration slope is zero; detection limits are undefined")
+    routes = [
+        _ich_route("ich_residual_sd", fit.residual_sd, fit.dof, fit.slope,
+                   ICH_SOURCE + "sigma = residual SD of the regression line."),
+        _ich_route("ich_intercept_sd", fit.intercept_u, fit.dof, fit.slope,
+                   ICH_SOURCE + "sigma = SD of the y-intercept.",
+                   "ICH names the SD of intercepts of several lines; the standard error of "
+                   "this line's intercept stands in for it (common practice)"),
+    ]
+    if blanks is not None and len(blanks) > 0:
+        b = np.asarray(blanks, dtype=float).ravel()
+        if len(b) < 2:
+            raise ValueError("a blank-based limit needs at least 2 blank readings (10 or more advised by ICH Q2)")
+        routes.append(_ich_route("ich_blank_sd", float(np.std(b, ddof=1)), len(b) - 1,
+                                 fit.slope, ICH_SOURCE + "sigma = SD of blank responses."))
+    iso = iso11843_2(fit, alpha, beta, sample_replicates)
+    routes.append(LimitRoute("iso11843_2", None, fit.dof, iso.minimum_detectable_value, None,
+                             iso.source, "minimum detectable value x_D; ISO 11843 defines no "
+                             "quantitation limit"))
+    chosen = next((r for r in routes if r.route == declared), None)
+    if chosen is None:
+        raise ValueError(f"the declared route {declared!r} needs blank readings; give the "
+                         "blanks or declare another route")
+    warnings = _disagreements(routes)
+    if negligible(fit.rss, fit):
+        warnings = ["the readings lie on the line within rounding error: limits from the "
+                    "scatter are not meaningful; use blank readings or more standards"]
+    return DetectionLimits(tuple(routes), iso, declared, chosen.lod, chosen.loq,
+                           tuple(warnings), tuple(notes))
+
+
+def _disagreements(routes) -> list[str]:
+    lods = {r.route: r.lod for r in routes if math.isfinite(r.lod) and r.lod > 0}
+    if len(lods) < 2:
+        return []
+    lo, hi = min(lods, key=lods.get), max(lods, key=lods.get)
+    if lods[hi] > 2 * lods[lo]:
+        return [f"detection limits disagree by more than a factor of two: {hi} gives "
+                f"{lods[hi]:.4g}, {lo} gives {lods[lo]:.4g}; check the blank and the "
+                "low standards, and state which route the record uses"]
+    return []
+
+
+# --------------------------------------------------------------------------
+# Working range
+
+def range_flags(x0: float, lowest_standard: float, highest_standard: float,
+                loq: float | None = None, lod: float | None = None) -> list[str]:
+    """Plain flags for a result read off the line.
+
+    A result below the LOD is flagged "below LOD" only (it is then also below
+    the LOQ); one between LOD and LOQ is flagged "below LOQ". Outside the
+    range of the standards the line is extrapolated (ISO 8466-1 restricts use
+    to the working range).
+    """
+    flags = []
+    if lod is not None and math.isfinite(lod) and x0 < lod:
+        flags.append("below LOD")
+    elif loq is not None and math.isfinite(loq) and x0 < loq:
+        flags.append("below LOQ")
+    if x0 < lowest_standard:
+        flags.append("below the lowest standard (extrapolated)")
+    elif x0 > highest_standard:
+        flags.append("above the highest standard (extrapolated)")
+    return flags
