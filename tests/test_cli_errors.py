@@ -78,7 +78,7 @@ def test_decimal_comma_reading(demo_copy, tmp_path):
 
 def test_demo_run_writes_the_record(tmp_path):
     out = tmp_path / "out"
-    proc = _run("run", str(DEMO / "method.toml"), "--out", str(out))
+    proc = _run("run", str(DEMO / "method.toml"), "--out", str(out), "--trials", "20000", "--seed", "7")
     assert proc.returncode == 0, proc.stderr
     record = json.loads((out / "results.json").read_text())
     assert record["software"]["name"] == "validate"
@@ -95,8 +95,13 @@ def test_demo_run_writes_the_record(tmp_path):
     for key in ("source", "step", "equipment", "sensitivity", "contribution", "share"):
         assert key in record["budget"][0]
     assert (out / "budget.csv").read_text().startswith("result,source,step")
+    mc = record["results"][0]["monte_carlo"]
+    for key in ("trials", "mean", "standard_uncertainty", "interval", "shortest_interval",
+                "agrees_with_gum", "invalid_trials", "seed"):
+        assert key in mc
+    assert mc["trials"] == 20000 and mc["seed"] == 7
     # a second run into the same folder is refused rather than overwriting the record
-    again = _run("run", str(DEMO / "method.toml"), "--out", str(out))
+    again = _run("run", str(DEMO / "method.toml"), "--out", str(out), "--trials", "0")
     assert again.returncode == 2 and "--overwrite" in again.stderr
 
 

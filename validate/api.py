@@ -18,6 +18,7 @@ from validate.inputs.schema import Method
 from validate.model import Model, build_model
 from validate.propagation.budget import budget_rows, grouped
 from validate.propagation.linear import LinearResult, propagate
+from validate.propagation.montecarlo import McResult, expected_work, new_seed, propagate_mc
 from validate.report.records import budget_csv, record_json, sha256_of, write_atomic
 
 OUTPUT_FILES = ("results.json", "budget.csv")
@@ -28,6 +29,9 @@ class Run:
     method: Method
     model: Model
     results: list[LinearResult]
+    monte_carlo: list[McResult] = field(default_factory=list)
+    seed: int | None = None
+    trials: int | str | None = None
     record: dict = field(default_factory=dict)
 
 
@@ -37,10 +41,17 @@ def check(path) -> tuple[Method, Model]:
     return method, build_model(method)
 
 
-def analyse(path) -> Run:
+def analyse(path, trials: int | str | None = 1_000_000, seed: int | None = None,
+            progress_factory=None) -> Run:
+    """Both engines on one method file. `trials=None` runs the linear engine only;
+    `progress_factory(total)` may return a callable advanced by trials done."""
     method, model = check(path)
     results = propagate(model)
-    run = Run(method, model, results)
+    run = Run(method, model, results, trials=trials)
+    if trials is not None:
+        run.seed = new_seed() if seed is None else int(seed)
+        progress = progress_factory(expected_work(trials, model)) if progress_factory else None
+        run.monte_carlo = propagate_mc(model, results, trials, run.seed, progress=progress)
     run.record = build_record(run)
     return run
 
@@ -92,17 +103,22 @@ def build_record(run: Run) -> dict:
                       for i in method.items.values()],
         "sources": [s.to_dict() for s in run.model.sources.values()],
         "calibration": calibration_summary(method, run.model),
+        "monte_carlo_settings": ({"trials": run.trials, "seed": run.seed,
+                                  "method": "JCGM 101:2008; calibration line refitted in every trial"}
+                                 if run.monte_carlo else None),
         "results": [
             {**r.to_dict(),
              "budget_by_step": [g.to_dict() for g in grouped(r, "step")],
-             "budget_by_equipment": [g.to_dict() for g in grouped(r, "equipment")]}
-            for r in results
+             "budget_by_equipment": [g.to_dict() for g in grouped(r, "equipment")],
+             **({"monte_carlo": mc.to_dict()} if mc else {})}
+            for r, mc in zip(results, run.monte_carlo or [None] * len(results))
         ],
         "budget": budget_rows(results),
     }
 
 
-def write_outputs(run: Run, out_dir, overwrite: bool = False) -> list[Path]:
+def check_output_folder(out_dir, overwrite: bool) -> None:
+    """Refuse early (before any computation) to write where a record already is."""
     out = Path(out_dir)
     if out.exists() and not out.is_dir():
         raise InputError("the output path exists and is not a folder", file=out,
@@ -111,6 +127,11 @@ def write_outputs(run: Run, out_dir, overwrite: bool = False) -> list[Path]:
     if existing and not overwrite:
         raise InputError("this folder already holds a record; it is not overwritten", file=out,
                          fix="choose another folder with --out, or add --overwrite to replace it")
+
+
+def write_outputs(run: Run, out_dir, overwrite: bool = False) -> list[Path]:
+    out = Path(out_dir)
+    check_output_folder(out, overwrite)
     out.mkdir(parents=True, exist_ok=True)
     payloads = {"results.json": record_json(run.record), "budget.csv": budget_csv(run.record["budget"])}
     written = []

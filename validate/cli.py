@@ -9,7 +9,6 @@ from pathlib import Path
 
 from rich.console import Console
 from rich.markup import escape
-from rich.table import Table
 
 from validate import __version__, api
 from validate.inputs.errors import InputError
@@ -30,11 +29,50 @@ def _parser() -> argparse.ArgumentParser:
     run.add_argument("--out", required=True, help="folder for results.json and budget.csv")
     run.add_argument("--overwrite", action="store_true", help="replace a record already in --out")
     run.add_argument("--top", type=int, default=5, help="how many budget lines to print (default 5)")
+    run.add_argument("--trials", default="1000000", type=_trials,
+                     help="Monte Carlo trials: a number, 'auto' (JCGM 101 7.9 adaptive) or 0 to skip "
+                          "(default 1000000)")
+    run.add_argument("--seed", type=int, default=None,
+                     help="random seed for Monte Carlo (default: a new one, recorded in the results)")
     chk = sub.add_parser("check", help="read and check a method file only")
     chk.add_argument("method")
     init = sub.add_parser("init", help="write a commented starter method file and readings table")
     init.add_argument("folder")
     return p
+
+
+def _trials(text: str):
+    if text == "auto":
+        return "auto"
+    try:
+        value = int(float(text))
+    except ValueError:
+        raise argparse.ArgumentTypeError("give a whole number of trials or 'auto'") from None
+    if value < 0 or (0 < value < 1000):
+        raise argparse.ArgumentTypeError("give 0 (no Monte Carlo), at least 1000 trials, or 'auto'")
+    return value
+
+
+def _progress_factory(console: Console):
+    """A rich progress bar on a terminal; nothing when output goes to a file or pipe."""
+    if not console.is_terminal:
+        return None
+
+    def factory(total):
+        from rich.progress import BarColumn, Progress, TextColumn, TimeRemainingColumn
+        bar = Progress(TextColumn("Monte Carlo"), BarColumn(), TextColumn("{task.percentage:>3.0f}%"),
+                       TimeRemainingColumn(), console=console, transient=True)
+        task = bar.add_task("trials", total=total)
+        bar.start()
+
+        def advance(n):
+            bar.advance(task, n)
+            if bar.tasks[0].completed >= total:
+                bar.stop()
+        advance.stop = bar.stop
+        return advance
+
+    return factory
 
 
 def main(argv=None) -> int:
@@ -72,28 +110,47 @@ def _check(args, console: Console) -> int:
 
 
 def _run(args, console: Console) -> int:
-    run = api.analyse(args.method)
+    api.check_output_folder(args.out, args.overwrite)
+    run = api.analyse(args.method, trials=args.trials or None, seed=args.seed,
+                      progress_factory=_progress_factory(console))
     written = api.write_outputs(run, args.out, overwrite=args.overwrite)
     method = run.method
     console.print(f"[bold]{escape(method.title)}[/]")
     _print_defaults(console, method)
-    table = Table(title="Results (GUM law of propagation)", show_lines=False)
-    for col in ("result", "value", "U", "k", "p", "nu_eff"):
-        table.add_column(col, justify="left" if col == "result" else "right")
-    for r in run.results:
-        value, U = round_gum(r.value, r.expanded_uncertainty)
-        nu = "inf" if r.effective_dof == float("inf") else f"{r.effective_dof:.0f}"
-        table.add_row(r.name, f"{value} {r.unit}", f"{U} {r.unit}", f"{r.coverage_factor:.2f}",
-                      f"{r.coverage_probability:.2f}", nu)
-    console.print(table)
-    for r in run.results:
-        console.print(f"[bold]{escape(r.name)}[/]: largest sources of uncertainty")
-        for row in r.contributions[: args.top]:
-            console.print(f"  {row.share:6.1%}  {escape(row.source)}  [dim](step: {escape(row.step or '-')})[/]")
-        steps = grouped(r, "step")[:3]
-        console.print("  by step: " + ", ".join(f"{g.group} {g.share:.0%}" for g in steps))
+    if run.monte_carlo:
+        console.print(f"Monte Carlo: JCGM 101, seed {run.seed} (repeat with --seed {run.seed})", style="dim")
+    for index, r in enumerate(run.results):
+        mc = run.monte_carlo[index] if run.monte_carlo else None
+        _print_result(console, r, mc, args.top)
     console.print("wrote " + ", ".join(str(p) for p in written))
     return 0
+
+
+def _print_result(console: Console, r, mc, top: int) -> None:
+    value, U = round_gum(r.value, r.expanded_uncertainty)
+    nu = "inf" if r.effective_dof == float("inf") else f"{r.effective_dof:.0f}"
+    console.print()
+    console.print(f"[bold]{escape(r.name)}[/]")
+    console.print(f"  GUM          [bold]{value} ± {U} {escape(r.unit)}[/]  "
+                  f"(k = {r.coverage_factor:.2f}, p = {r.coverage_probability:g}, nu_eff = {nu})")
+    if mc is not None:
+        s, v = mc.summary, mc.validation
+        digits = len(value.split(".")[1]) + 1 if "." in value else 1
+        fmt = lambda a, b: f"[{a:.{digits}f}, {b:.{digits}f}]"  # noqa: E731
+        verdict = (f"[green]agrees[/] with Monte Carlo (ends within {v.delta:.1g})" if v.agrees else
+                   f"[yellow]differs[/] from Monte Carlo (an end off by more than {v.delta:.1g})")
+        console.print(f"  Monte Carlo  {fmt(s.symmetric.low, s.symmetric.high)}, shortest "
+                      f"{fmt(s.shortest.low, s.shortest.high)}, {s.total_trials:,} trials")
+        console.print(f"  GUM interval {fmt(v.gum_low, v.gum_high)} {verdict}, JCGM 101 clause 8")
+        if mc.warning:
+            console.print(f"  [yellow]warning[/] {escape(mc.warning)}", soft_wrap=True)
+        elif s.invalid_trials:
+            console.print(f"  note: {s.invalid_trials} trials gave no defined result")
+    console.print("  largest sources of uncertainty:")
+    for row in r.contributions[:top]:
+        console.print(f"    {row.share:6.1%}  {escape(row.source)}  [dim]({escape(row.step or '-')})[/]")
+    steps = grouped(r, "step")[:3]
+    console.print("  by step: " + ", ".join(f"{escape(g.group)} {g.share:.0%}" for g in steps))
 
 
 def _init(args, console: Console) -> int:

@@ -34,7 +34,7 @@ class Model:
     result_labels: list[str]
     assumptions: list[str] = field(default_factory=list)
     _solution_terms: dict = field(default_factory=dict, repr=False)
-    _points: list = field(default_factory=list, repr=False)  # (solution id, [reading terms])
+    _points: list = field(default_factory=list, repr=False)  # (solution id, replicates, mean-reading term)
     _sample_terms: dict = field(default_factory=dict, repr=False)
     _quantity_terms: dict = field(default_factory=dict, repr=False)
     _fit_terms: dict = field(default_factory=dict, repr=False)
@@ -49,18 +49,20 @@ class Model:
         return conc
 
     def line(self, x, conc=None):
-        """Intercept and slope refitted from this evaluation's standards and readings."""
+        """Intercept and slope refitted from this evaluation's standards and readings.
+
+        Ordinary least squares written over calibration levels: with n_j replicate
+        readings of mean y_j at x_j, Sxx = sum n_j (x_j - xbar)^2 and
+        Sxy = sum n_j (x_j - xbar)(y_j - ybar), the same line as a fit to every reading.
+        """
         conc = self.concentrations(x) if conc is None else conc
-        xs, ys = [], []
-        for sol_id, reading_terms in self._points:
-            for term in reading_terms:
-                xs.append(conc[sol_id])
-                ys.append(term(x))
-        n = len(xs)
-        x_mean = sum(xs) / n
-        y_mean = sum(ys) / n
-        sxx = sum((xi - x_mean) * (xi - x_mean) for xi in xs)
-        sxy = sum((xi - x_mean) * (yi - y_mean) for xi, yi in zip(xs, ys))
+        levels = [(n, conc[sol_id], term(x)) for sol_id, n, term in self._points]
+        total = sum(n for n, _, _ in levels)
+        x_mean = sum(n * xj for n, xj, _ in levels) / total
+        y_mean = sum(n * yj for n, _, yj in levels) / total
+        dx = [(n, xj - x_mean, yj) for n, xj, yj in levels]
+        sxx = sum(n * d * d for n, d, _ in dx)
+        sxy = sum(n * d * (yj - y_mean) for n, d, yj in dx)
         slope = sxy / sxx
         return y_mean - slope * x_mean, slope
 
@@ -77,9 +79,7 @@ class Model:
                 values[name] = term(x, sample.id if sample else "")
             if sample is not None:
                 intercept, slope = line
-                readings = [t(x) for t in self._sample_terms[sample.id]]
-                y0 = sum(readings) / len(readings)
-                c = (y0 - intercept) / slope
+                c = (self._sample_terms[sample.id](x) - intercept) / slope
                 if sample.id in self._fit_terms:
                     c = c + x[self._fit_terms[sample.id]]
                 values["c_measured"] = c
@@ -110,11 +110,10 @@ def build_model(method: Method) -> Model:
                 "calibration scatter built bottom-up: every reading and every use of glassware "
                 "carries its own random term; no term for the line's observed scatter is added")
         ids = list(cal.standards) + (list(cal.blanks) if cal.blanks_in_fit else [])
-        model._points = [(sid, [_reading_term(ss, method, sid, j, a, observed)
-                                for j, a in enumerate(method.readings[sid])]) for sid in ids]
+        model._points = [(sid, len(method.readings[sid]), _mean_reading_term(ss, method, sid, observed))
+                         for sid in ids]
         for smp in samples:
-            model._sample_terms[smp.id] = [_reading_term(ss, method, smp.id, j, a, observed)
-                                           for j, a in enumerate(method.readings[smp.id])]
+            model._sample_terms[smp.id] = _mean_reading_term(ss, method, smp.id, observed)
     for q in method.quantities.values():
         model._quantity_terms[q.name] = _quantity_term(ss, method, q, samples)
     if cal and observed and samples:
@@ -153,32 +152,37 @@ def _solution_term(ss: SourceSet, method: Method, sol, is_standard_observed: boo
     return term
 
 
-def _reading_term(ss: SourceSet, method: Method, ident: str, index: int, absorbance: float, observed: bool):
+def _mean_reading_term(ss: SourceSet, method: Method, ident: str, observed: bool):
+    """A closure x -> mean corrected reading of one standard, blank or sample:
+    (mean absorbance + mean reading noise - photometer offset) / path length."""
     cal = method.calibration
+    readings = method.readings[ident]
     photometer = method.items.get(cal.photometer) if cal.photometer else None
     cell = method.items.get(cal.cuvette) if cal.cuvette else None
-    offset = noise = path = None
+    offset = path = None
+    noise = []
     if photometer is not None and photometer.offset > 0:
         offset = ss.add(Source(f"{photometer.id}: photometric offset", 0.0, photometer.offset / 3**0.5,
                                "rectangular", step="photometric reading", equipment=photometer.id,
                                provenance=f"+/-{photometer.offset:g} absorbance, shared by every reading; "
                                f"{photometer.provenance}"))
     if photometer is not None and photometer.noise > 0 and not observed:
-        noise = ss.add(Source(f"{photometer.id}: noise, {ident} reading {index + 1}", 0.0, photometer.noise,
-                              "normal", step="photometric reading", equipment=photometer.id,
-                              provenance=f"standard deviation {photometer.noise:g} absorbance per reading; "
-                              f"{photometer.provenance}"))
+        noise = [ss.add(Source(f"{photometer.id}: noise, {ident} reading {j + 1}", 0.0, photometer.noise,
+                               "normal", step="photometric reading", equipment=photometer.id,
+                               provenance=f"standard deviation {photometer.noise:g} absorbance per reading; "
+                               f"{photometer.provenance}")) for j in range(len(readings))]
     if cell is not None:
         path = ss.add(Source(f"{cell.id}: path length", cell.path, cell.tolerance / 3**0.5, "rectangular",
                              step="photometric reading", equipment=cell.id,
                              provenance=f"{cell.path * 1e3:g} mm +/-{cell.tolerance * 1e3:g} mm, one cell for "
                              f"every reading; {cell.provenance}", unit="mm", display_factor=1e-3))
     path0 = cell.path if cell is not None else 1.0
+    mean = sum(readings) / len(readings)
 
     def term(x):
-        a = absorbance
-        if noise is not None:
-            a = a + x[noise]
+        a = mean
+        if noise:
+            a = a + sum(x[name] for name in noise) / len(noise)
         if offset is not None:
             a = a - x[offset]
         return a / exact_or(x, path, path0)
@@ -204,18 +208,22 @@ def _add_fit_terms(ss: SourceSet, model: Model, samples) -> None:
     of the line (ISO 8466-1; EURACHEM/CITAC CG4 Example A5), n-2 degrees of freedom."""
     x0 = model.nominal_inputs()
     conc = model.concentrations(x0)
+    # the fit behind the observed scatter uses every single reading, at the estimates
+    cal = model.method.calibration
+    cell = model.method.items.get(cal.cuvette) if cal.cuvette else None
+    path = cell.path if cell is not None else 1.0
     xs, ys = [], []
-    for sid, terms in model._points:
-        for t in terms:
+    for sid, _, _ in model._points:
+        for a in model.method.readings[sid]:
             xs.append(conc[sid])
-            ys.append(t(x0))
+            ys.append(a / path)
     try:
         fit = fit_line(xs, ys)
     except ValueError as exc:
         raise ModelError(str(exc)) from None
     unit = model.method.calibration.concentration_unit
     for smp in samples:
-        pred = inverse_prediction(fit, [t(x0) for t in model._sample_terms[smp.id]])
+        pred = inverse_prediction(fit, [a / path for a in model.method.readings[smp.id]])
         if not pred.finite:
             raise ModelError(
                 f"sample {smp.id}: the slope of the line is not significantly different from zero "

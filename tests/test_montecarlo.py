@@ -1,0 +1,162 @@
+"""The Monte Carlo engine against JCGM 101 and against the linear engine."""
+
+from __future__ import annotations
+
+import math
+import shutil
+
+import numpy as np
+import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+
+from validate import api
+from validate.propagation.montecarlo import evaluate_trials
+
+from conftest import DEMOS
+
+ADDITIVE = """
+[quantities.X1]
+{x}
+[quantities.X2]
+{x}
+[quantities.X3]
+{x}
+[quantities.X4]
+{x}
+[result]
+name = "Y"
+unit = ""
+formula = "X1 + X2 + X3 + X4"
+"""
+
+
+def test_jcgm101_9_2_2_additive_model_normal_inputs(write_method):
+    # JCGM 101:2008 clause 9.2.2 (values from memory): Y = X1+X2+X3+X4, X_i ~ N(0, 1):
+    # u(y) = 2.00 and the 95 % interval [-3.92, 3.92] from both GUM and Monte Carlo.
+    path = write_method(ADDITIVE.format(x='value = 0\nu = 1'))
+    run = api.analyse(path, trials=1_000_000, seed=2008)
+    gum, mc = run.results[0], run.monte_carlo[0]
+    assert gum.standard_uncertainty == pytest.approx(2.0)
+    assert gum.expanded_uncertainty == pytest.approx(3.92, abs=0.005)
+    assert mc.summary.standard_deviation == pytest.approx(2.00, abs=0.005)
+    assert mc.summary.symmetric.low == pytest.approx(-3.92, abs=0.02)
+    assert mc.summary.symmetric.high == pytest.approx(3.92, abs=0.02)
+    assert mc.validation.agrees  # clause 8 with delta = 0.05 (u = 2.0, two significant digits)
+
+
+def test_jcgm101_9_2_3_additive_model_rectangular_inputs(write_method):
+    # JCGM 101:2008 clause 9.2.3 (values from memory): each X_i rectangular with u = 1
+    # (half-width sqrt 3): Monte Carlo u(y) = 2.00, 95 % interval [-3.88, 3.88], while the
+    # GUM's normal gives +/-3.92. The exact 97.5 % point of the sum (Irwin-Hall) is 3.879.
+    path = write_method(ADDITIVE.format(x=f'value = 0\nhalf_width = {math.sqrt(3)}'))
+    run = api.analyse(path, trials=1_000_000, seed=2008)
+    mc = run.monte_carlo[0]
+    assert run.results[0].expanded_uncertainty == pytest.approx(3.92, abs=0.005)
+    assert mc.summary.standard_deviation == pytest.approx(2.00, abs=0.005)
+    assert mc.summary.symmetric.high == pytest.approx(3.88, abs=0.015)
+    assert mc.summary.symmetric.low == pytest.approx(-3.88, abs=0.015)
+
+
+RATIO = """
+[quantities.A]
+value = 1
+u = {ua}
+[quantities.B]
+value = 1
+u = {ub}
+[result]
+name = "ratio"
+unit = ""
+formula = "{formula}"
+"""
+
+fast = settings(max_examples=12, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+
+
+@fast
+@given(ua=st.floats(0.001, 0.05), ub=st.floats(0.001, 0.05), a=st.floats(-5, 5).filter(lambda v: abs(v) > 0.1))
+def test_linear_model_engines_agree(write_method, ua, ub, a):
+    # For a model linear in its inputs with normal inputs the GUM result is exact
+    # (JCGM 101 5.7), so Monte Carlo must reproduce u within its own sampling error.
+    path = write_method(RATIO.format(ua=ua, ub=ub, formula=f"{a} * A + B"))
+    run = api.analyse(path, trials=200_000, seed=11)
+    gum, mc = run.results[0], run.monte_carlo[0]
+    # relative standard error of a standard deviation from N normal trials: 1/sqrt(2N)
+    assert mc.summary.standard_deviation == pytest.approx(gum.standard_uncertainty, rel=5 / math.sqrt(4e5))
+    assert mc.summary.mean == pytest.approx(gum.value, abs=5 * gum.standard_uncertainty / math.sqrt(2e5))
+
+
+def test_ratio_with_uncertain_denominator_is_skewed(write_method):
+    # Y = A/B with u(B)/B = 0.2: the distribution of Y is skewed to the right (a known
+    # property of ratios, JCGM 101 clause 1 and 5.7 note the GUM's limits), so the Monte
+    # Carlo interval is asymmetric about y and the symmetric GUM interval fails clause 8.
+    path = write_method(RATIO.format(ua=0.01, ub=0.2, formula="A / B"))
+    run = api.analyse(path, trials=400_000, seed=5)
+    gum, mc = run.results[0], run.monte_carlo[0]
+    low, high = mc.summary.symmetric.low, mc.summary.symmetric.high
+    assert (high - gum.value) > 1.3 * (gum.value - low)
+    assert not mc.validation.agrees
+    assert mc.summary.shortest.width < mc.summary.symmetric.width
+
+
+def test_same_seed_same_numbers(write_method):
+    path = write_method(RATIO.format(ua=0.01, ub=0.05, formula="A / B"))
+    first = api.analyse(path, trials=50_000, seed=99).monte_carlo[0].to_dict()
+    second = api.analyse(path, trials=50_000, seed=99).monte_carlo[0].to_dict()
+    other = api.analyse(path, trials=50_000, seed=100).monte_carlo[0].to_dict()
+    assert first == second
+    assert first["interval"] != other["interval"]
+
+
+def test_undefined_trials_are_counted(write_method):
+    # Y = sqrt(A) with A ~ N(0.1, 1): P(A < 0) = Phi(-0.1) = 0.4602 (standard normal table);
+    # those trials have no defined result and must be counted, not dropped.
+    path = write_method("""
+[quantities.A]
+value = 0.1
+u = 1
+[result]
+name = "root"
+unit = ""
+formula = "sqrt(A)"
+""")
+    run = api.analyse(path, trials=100_000, seed=3)
+    mc = run.monte_carlo[0]
+    assert mc.summary.total_trials == 100_000
+    assert mc.summary.invalid_trials == pytest.approx(46_020, abs=5 * math.sqrt(1e5 * 0.46 * 0.54))
+    assert mc.warning is not None and "no defined result" in mc.warning
+    assert mc.to_dict()["invalid_trials"] == mc.summary.invalid_trials
+
+
+def test_calibration_refitted_in_every_trial(tmp_path):
+    # Bottom-up demo: readings carry photometer noise, so the line differs from trial to
+    # trial. Slope and intercept of each trial must equal an independent OLS fit
+    # (numpy.polyfit) of that trial's standards and readings.
+    folder = tmp_path / "demo"
+    shutil.copytree(DEMOS / "phosphate_assay", folder)
+    text = (folder / "method.toml").read_text().replace('scatter = "observed"', 'scatter = "bottom-up"')
+    (folder / "method.toml").write_text(text)
+    method, model = api.check(folder / "method.toml")
+    from validate.propagation.distributions import draw_many
+    draws = draw_many(list(model.sources.values()), 5, np.random.default_rng(1))
+    intercepts, slopes = model.line(draws)
+    conc = model.concentrations(draws)
+    for trial in range(5):
+        xs, ys = [], []
+        for sid, n, _ in model._points:
+            for j, a in enumerate(method.readings[sid]):
+                noise = draws[f"photometer: noise, {sid} reading {j + 1}"][trial]
+                offset = draws["photometer: photometric offset"][trial]
+                xs.append(np.broadcast_to(conc[sid], (5,))[trial])  # a blank is a plain 0.0
+                ys.append((a + noise - offset) / draws["cell_40: path length"][trial])
+        slope, intercept = np.polyfit(xs, ys, 1)
+        assert slopes[trial] == pytest.approx(slope, rel=1e-9)
+        assert intercepts[trial] == pytest.approx(intercept, rel=1e-7, abs=1e-12)
+    # and the spread of the line feeds the result: Monte Carlo and GUM agree for this
+    # nearly linear model (JCGM 101 clause 8 spirit: relative difference of u below 5 %)
+    run = api.analyse(folder / "method.toml", trials=100_000, seed=4)
+    for gum, mc in zip(run.results, run.monte_carlo):
+        assert mc.summary.standard_deviation == pytest.approx(gum.standard_uncertainty, rel=0.05)
+    out = evaluate_trials(model, 10, np.random.default_rng(0))
+    assert all(v.shape == (10,) for v in out.values())

@@ -1,0 +1,178 @@
+"""The Monte Carlo engine (JCGM 101): the same model evaluated on arrays of trials.
+
+Trials are drawn for every source (validate.propagation.distributions), the
+model runs once per chunk of trials on numpy arrays, so the calibration line
+is refitted in every trial without a Python loop per trial. Memory stays
+bounded by the chunk size, apart from the output values kept for the
+coverage intervals (8 bytes per trial and result).
+
+Trials whose result is undefined (NaN or infinite, e.g. a zero slope) are
+counted and reported, never dropped silently (DESIGN.md section 3).
+"""
+
+from __future__ import annotations
+
+import secrets
+from dataclasses import dataclass
+
+import numpy as np
+
+from validate.model import Model
+from validate.propagation.distributions import draw_many
+from validate.propagation.linear import LinearResult
+from validate.propagation.mcstats import (AdaptiveCheck, GumValidation, HistogramData, McSummary,
+                                          adaptive_batch_size, adaptive_converged, histogram_data,
+                                          numerical_tolerance, summarise, validate_gum)
+
+CHUNK = 100_000  # trials evaluated together: large enough for numpy, small enough for memory
+MAX_ADAPTIVE_TRIALS = 10_000_000
+SHARE_TRIALS = 100_000  # trials per held-group run for the Monte Carlo shares
+INVALID_WARNING = 0.001  # share of undefined trials above which a warning is shown
+
+
+@dataclass(frozen=True)
+class McResult:
+    name: str
+    seed: int
+    summary: McSummary
+    validation: GumValidation
+    adaptive: AdaptiveCheck | None
+    histogram: HistogramData
+    shares_by_step: tuple[tuple[str, float], ...]
+    shares_by_equipment: tuple[tuple[str, float], ...]
+
+    @property
+    def warning(self) -> str | None:
+        share = self.summary.invalid_trials / self.summary.total_trials
+        if share > INVALID_WARNING:
+            return (f"{self.summary.invalid_trials} of {self.summary.total_trials} trials ({share:.2%}) "
+                    f"gave no defined result and are left out of the statistics")
+        return None
+
+    def to_dict(self) -> dict:
+        s, v = self.summary, self.validation
+        return {
+            "trials": s.total_trials, "mean": s.mean, "standard_uncertainty": s.standard_deviation,
+            "interval": [s.symmetric.low, s.symmetric.high],
+            "shortest_interval": [s.shortest.low, s.shortest.high],
+            "coverage_probability": s.p,
+            "agrees_with_gum": v.agrees, "invalid_trials": s.invalid_trials, "seed": self.seed,
+            "gum_interval": [v.gum_low, v.gum_high], "tolerance": v.delta,
+            "d_low": v.d_low, "d_high": v.d_high,
+            "adaptive": self.adaptive.to_dict() if self.adaptive else None,
+            "warning": self.warning,
+            "histogram": {"edges": list(self.histogram.edges), "counts": list(self.histogram.counts)},
+            "shares_by_step": [{"group": g, "share": x} for g, x in self.shares_by_step],
+            "shares_by_equipment": [{"group": g, "share": x} for g, x in self.shares_by_equipment],
+        }
+
+
+def new_seed() -> int:
+    """A seed for a run where the user gave none; it is recorded so the run can be repeated."""
+    return secrets.randbits(32)
+
+
+def evaluate_trials(model: Model, n: int, rng: np.random.Generator, hold: frozenset = frozenset()) -> dict:
+    """Output arrays of n trials; sources named in `hold` stay at their estimates.
+
+    Every source is drawn even when held, so runs with different `hold` sets
+    share their random numbers (common random numbers: their difference is
+    the held sources' effect, not sampling noise)."""
+    draws = draw_many(list(model.sources.values()), n, rng)
+    for name in hold:
+        draws[name] = np.full(n, model.sources[name].value)
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        out = model.evaluate(draws)
+    return {k: np.broadcast_to(np.asarray(v, dtype=float), (n,)) for k, v in out.items()}
+
+
+def _fixed(model: Model, trials: int, rng, progress) -> dict[str, np.ndarray]:
+    values = {label: np.empty(trials) for label in model.result_labels}
+    done = 0
+    while done < trials:
+        n = min(CHUNK, trials - done)
+        for label, arr in evaluate_trials(model, n, rng).items():
+            values[label][done:done + n] = arr
+        done += n
+        progress(n)
+    return values
+
+
+def _adaptive(model: Model, p: float, rng, progress) -> tuple[dict, dict]:
+    """JCGM 101 7.9: batches of M trials until every output's statistics are stable."""
+    m = adaptive_batch_size(p)
+    kept = {label: [] for label in model.result_labels}
+    batches = {label: [] for label in model.result_labels}
+    checks: dict[str, AdaptiveCheck] = {}
+    total = 0
+    while total < MAX_ADAPTIVE_TRIALS:
+        for label, arr in evaluate_trials(model, m, rng).items():
+            kept[label].append(np.array(arr))
+            batches[label].append(summarise(arr, p))
+        total += m
+        progress(m)
+        done = True
+        for label in model.result_labels:
+            ok, checks[label] = adaptive_converged(batches[label], ndig=2, p=p)
+            done = done and ok
+        if done:
+            break
+    return {k: np.concatenate(v) for k, v in kept.items()}, checks
+
+
+def _shares(model: Model, seed: int, key: str, progress) -> dict[str, list[tuple[str, float]]]:
+    """Share of the variance removed when one group of sources is held at its estimates:
+    1 - Var(held) / Var(all), from runs on common random numbers."""
+    groups: dict[str, set] = {}
+    for name, src in model.sources.items():
+        groups.setdefault(getattr(src, key) or "(none)", set()).add(name)
+    base = evaluate_trials(model, SHARE_TRIALS, np.random.default_rng(seed))
+    var0 = {k: np.nanvar(v) for k, v in base.items()}
+    shares = {label: [] for label in model.result_labels}
+    for group, names in groups.items():
+        held = evaluate_trials(model, SHARE_TRIALS, np.random.default_rng(seed), frozenset(names))
+        progress(SHARE_TRIALS)
+        for label, arr in held.items():
+            share = 1.0 - np.nanvar(arr) / var0[label] if var0[label] > 0 else 0.0
+            shares[label].append((group, float(share)))
+    return {k: sorted(v, key=lambda t: (-t[1], t[0])) for k, v in shares.items()}
+
+
+def propagate_mc(model: Model, linear: list[LinearResult], trials: int | str = 1_000_000,
+                 seed: int | None = None, shares: bool = True, progress=None) -> list[McResult]:
+    """Monte Carlo results for every output, validated against the GUM results (JCGM 101 clause 8)."""
+    seed = new_seed() if seed is None else int(seed)
+    progress = progress or (lambda n: None)
+    p = model.method.settings.coverage_probability
+    rng = np.random.default_rng(seed)
+    if trials == "auto":
+        values, checks = _adaptive(model, p, rng, progress)
+    else:
+        values, checks = _fixed(model, int(trials), rng, progress), {}
+    by_step = _shares(model, seed + 1, "step", progress) if shares else {}
+    by_item = _shares(model, seed + 1, "equipment", progress) if shares else {}
+    results = []
+    for gum in linear:
+        arr = values[gum.name]
+        summary = summarise(arr, p)
+        low, high = gum.value - gum.expanded_uncertainty, gum.value + gum.expanded_uncertainty
+        delta = numerical_tolerance(gum.standard_uncertainty, 2) if gum.standard_uncertainty > 0 else 0.0
+        check = validate_gum(gum.value, (low, high), (summary.symmetric.low, summary.symmetric.high), delta)
+        # the histogram shows the central part: the 95 % interval widened by 60 % on each side
+        low95, high95 = summary.symmetric.low, summary.symmetric.high
+        spread = 0.6 * (high95 - low95)
+        window = (low95 - spread, high95 + spread) if high95 > low95 else None
+        histogram = histogram_data(arr, bins=80, value_range=window)
+        results.append(McResult(gum.name, seed, summary, check, checks.get(gum.name), histogram,
+                                tuple(by_step.get(gum.name, ())), tuple(by_item.get(gum.name, ()))))
+    return results
+
+
+def expected_work(trials: int | str, model: Model, shares: bool = True) -> int:
+    """Trials the run will evaluate, for a progress bar (the adaptive run is open-ended)."""
+    groups = len({s.step for s in model.sources.values()}) + len({s.equipment for s in model.sources.values()})
+    main = adaptive_batch_size(model.method.settings.coverage_probability) * 10 if trials == "auto" else int(trials)
+    return main + (groups * SHARE_TRIALS if shares else 0)
+
+
+__all__ = ["McResult", "propagate_mc", "evaluate_trials", "new_seed", "expected_work"]
