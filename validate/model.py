@@ -37,7 +37,6 @@ class Model:
     _points: list = field(default_factory=list, repr=False)  # (solution id, replicates, mean-reading term)
     _sample_terms: dict = field(default_factory=dict, repr=False)
     _quantity_terms: dict = field(default_factory=dict, repr=False)
-    _fit_terms: dict = field(default_factory=dict, repr=False)
 
     def nominal_inputs(self) -> dict[str, float]:
         return {name: s.value for name, s in self.sources.items()}
@@ -79,10 +78,7 @@ class Model:
                 values[name] = term(x, sample.id if sample else "")
             if sample is not None:
                 intercept, slope = line
-                c = (self._sample_terms[sample.id](x) - intercept) / slope
-                if sample.id in self._fit_terms:
-                    c = c + x[self._fit_terms[sample.id]]
-                values["c_measured"] = c
+                values["c_measured"] = (self._sample_terms[sample.id](x) - intercept) / slope
             results[label] = self.method.result.formula.evaluate(values) / factor
         return results
 
@@ -110,14 +106,13 @@ def build_model(method: Method) -> Model:
                 "calibration scatter built bottom-up: every reading and every use of glassware "
                 "carries its own random term; no term for the line's observed scatter is added")
         ids = list(cal.standards) + (list(cal.blanks) if cal.blanks_in_fit else [])
-        model._points = [(sid, len(method.readings[sid]), _mean_reading_term(ss, method, sid, observed))
+        scatter = _observed_scatter(model, ids, samples) if observed else None
+        model._points = [(sid, len(method.readings[sid]), _mean_reading_term(ss, method, sid, scatter))
                          for sid in ids]
         for smp in samples:
-            model._sample_terms[smp.id] = _mean_reading_term(ss, method, smp.id, observed)
+            model._sample_terms[smp.id] = _mean_reading_term(ss, method, smp.id, scatter)
     for q in method.quantities.values():
         model._quantity_terms[q.name] = _quantity_term(ss, method, q, samples)
-    if cal and observed and samples:
-        _add_fit_terms(ss, model, samples)
     return model
 
 
@@ -152,9 +147,13 @@ def _solution_term(ss: SourceSet, method: Method, sol, is_standard_observed: boo
     return term
 
 
-def _mean_reading_term(ss: SourceSet, method: Method, ident: str, observed: bool):
+def _mean_reading_term(ss: SourceSet, method: Method, ident: str, scatter):
     """A closure x -> mean corrected reading of one standard, blank or sample:
-    (mean absorbance + mean reading noise - photometer offset) / path length."""
+    (mean absorbance + reading noise or observed scatter - photometer offset) / path length.
+
+    `scatter` (observed treatment) is (s, dof) of the line's residuals in absorbance:
+    the mean of m readings then carries a term of standard uncertainty s/sqrt(m)."""
+    observed = scatter is not None
     cal = method.calibration
     readings = method.readings[ident]
     photometer = method.items.get(cal.photometer) if cal.photometer else None
@@ -171,6 +170,13 @@ def _mean_reading_term(ss: SourceSet, method: Method, ident: str, observed: bool
                                "normal", step="photometric reading", equipment=photometer.id,
                                provenance=f"standard deviation {photometer.noise:g} absorbance per reading; "
                                f"{photometer.provenance}")) for j in range(len(readings))]
+    if observed:
+        s_abs, dof = scatter
+        noise = [ss.add(Source(
+            f"calibration scatter, {ident}", 0.0, s_abs / len(readings) ** 0.5, "t", dof=dof,
+            step="calibration fit", kind="A", dof_group="calibration line",
+            provenance=f"residual standard deviation of the line {s_abs:.3g} (absorbance), "
+            f"{len(readings)} reading(s), {dof} degrees of freedom (observed scatter; ISO 8466-1, CG4 A5)"))]
     if cell is not None:
         path = ss.add(Source(f"{cell.id}: path length", cell.path, cell.tolerance / 3**0.5, "rectangular",
                              step="photometric reading", equipment=cell.id,
@@ -181,7 +187,9 @@ def _mean_reading_term(ss: SourceSet, method: Method, ident: str, observed: bool
 
     def term(x):
         a = mean
-        if noise:
+        if observed:
+            a = a + x[noise[0]]
+        elif noise:
             a = a + sum(x[name] for name in noise) / len(noise)
         if offset is not None:
             a = a - x[offset]
@@ -203,35 +211,27 @@ def _quantity_term(ss: SourceSet, method: Method, q, samples):
     return lambda x, sample_id: exact_or(x, src, value)
 
 
-def _add_fit_terms(ss: SourceSet, model: Model, samples) -> None:
-    """Observed scatter: one term per sample with the inverse-prediction uncertainty
-    of the line (ISO 8466-1; EURACHEM/CITAC CG4 Example A5), n-2 degrees of freedom."""
-    x0 = model.nominal_inputs()
-    conc = model.concentrations(x0)
-    # the fit behind the observed scatter uses every single reading, at the estimates
-    cal = model.method.calibration
-    cell = model.method.items.get(cal.cuvette) if cal.cuvette else None
-    path = cell.path if cell is not None else 1.0
-    xs, ys = [], []
-    for sid, _, _ in model._points:
-        for a in model.method.readings[sid]:
-            xs.append(conc[sid])
-            ys.append(a / path)
+def _observed_scatter(model: Model, ids: list[str], samples) -> tuple[float, int]:
+    """Residual standard deviation (absorbance) and n-2 of the line at the estimates.
+
+    With the observed treatment each mean reading carries s/sqrt(m); propagated
+    through the refitted line this gives exactly the inverse-prediction uncertainty
+    u(x0) = s/b sqrt(1/m + 1/n + (y0 - ybar)^2 / (b^2 Sxx)) of ISO 8466-1 and
+    EURACHEM/CITAC CG4 Example A5, and it correlates samples read off one line.
+    """
+    method = model.method
+    conc = model.concentrations(model.nominal_inputs())
+    xs = [conc[sid] for sid in ids for _ in method.readings[sid]]
+    ys = [a for sid in ids for a in method.readings[sid]]
     try:
         fit = fit_line(xs, ys)
     except ValueError as exc:
-        raise ModelError(str(exc)) from None
-    unit = model.method.calibration.concentration_unit
+        raise ModelError(f"calibration: {exc}") from None
     for smp in samples:
-        pred = inverse_prediction(fit, [a / path for a in model.method.readings[smp.id]])
+        pred = inverse_prediction(fit, method.readings[smp.id])
         if not pred.finite:
             raise ModelError(
                 f"sample {smp.id}: the slope of the line is not significantly different from zero "
                 f"(Fieller's g = {pred.g:.2f} >= 1), so the concentration read off the line has no finite "
                 f"confidence interval; no result is reported")
-        model._fit_terms[smp.id] = ss.add(Source(
-            f"calibration line, {smp.id}", 0.0, pred.standard_uncertainty, "t", dof=fit.dof,
-            step="calibration fit", kind="A",
-            provenance=f"inverse prediction from the line's residual scatter, {pred.replicates} reading(s), "
-            f"{fit.n} calibration points, {fit.dof} degrees of freedom (ISO 8466-1; CG4 A5)",
-            unit=unit.text, display_factor=unit.factor))
+    return fit.residual_sd, fit.dof

@@ -42,6 +42,11 @@ class Source:
     unit: str = ""
     display_factor: float = 1.0  # SI value / display_factor = value in `unit`
     trapezoid_d: float = 0.0  # inexactness of the limits, SI (trapezoid only)
+    # Sources whose uncertainties all rest on ONE estimated standard deviation (e.g. the
+    # residual scatter of a calibration line) share a group: their degrees of freedom
+    # count once (Welch-Satterthwaite on the group's sum) and Monte Carlo draws them from
+    # one multivariate t distribution (a shared chi-square factor per trial).
+    dof_group: str = ""
 
     def __post_init__(self):
         if self.distribution not in DISTRIBUTIONS:

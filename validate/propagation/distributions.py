@@ -136,8 +136,32 @@ def draw_many(sources: Iterable[Source], n: int, rng: np.random.Generator) -> di
     """Trial arrays for all sources, keyed by source name.
 
     Drawing order is fixed and documented: sources sorted by name, each taking
-    its whole block of n trials from `rng` before the next. The same seed and
-    the same set of sources therefore reproduce every array bit for bit.
+    its whole block of n trials from `rng` before the next; then one factor per
+    `dof_group` (sorted by group name). The same seed and the same set of
+    sources therefore reproduce every array bit for bit.
+
+    t sources that share a `dof_group` rest on one estimated standard deviation
+    with `dof` degrees of freedom, so they follow a multivariate t distribution
+    (JCGM 102:2011, GUM Supplement 2, multivariate t; recalled from memory):
+    x_i = value_i + u_i z_i sqrt(dof / chi2_dof), the chi-square draw shared by
+    the group in each trial and the z_i independent standard normals.
     """
     n = _check_n(n)
-    return {src.name: draw(src, n, rng) for src in drawing_order(sources)}
+    ordered = drawing_order(sources)
+    grouped = [s for s in ordered if s.dof_group and s.distribution == "t" and s.u > 0
+               and math.isfinite(s.dof)]
+    out = {src.name: draw(src, n, rng) for src in ordered if src not in grouped}
+    for group in sorted({s.dof_group for s in grouped}):
+        members = [s for s in grouped if s.dof_group == group]
+        dof = members[0].dof
+        if any(s.dof != dof for s in members):
+            raise ValueError(f"sources of group {group!r} must share their degrees of freedom")
+        for src in members:
+            out[src.name] = rng.standard_normal(n)
+        factor = np.sqrt(dof / rng.chisquare(dof, n))
+        for src in members:
+            x = out[src.name]
+            x *= factor
+            x *= src.u
+            x += src.value
+    return out

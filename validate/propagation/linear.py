@@ -64,10 +64,24 @@ class LinearResult:
         }
 
 
-def welch_satterthwaite(contributions: list[float], dofs: list[float]) -> float:
-    """nu_eff = u_c^4 / sum(u_i^4 / nu_i)  (GUM G.4.1)."""
-    total = sum(c * c for c in contributions)
-    denominator = sum(c**4 / nu for c, nu in zip(contributions, dofs) if math.isfinite(nu) and c != 0)
+def welch_satterthwaite(contributions: list[float], dofs: list[float], groups: list[str] | None = None) -> float:
+    """nu_eff = u_c^4 / sum(u_i^4 / nu_i)  (GUM G.4.1).
+
+    Contributions in one `group` rest on one estimated standard deviation: they
+    enter as one component, u_g^2 = sum of their squares, with the group's nu.
+    """
+    groups = groups or [""] * len(contributions)
+    components: dict[str, list] = {}
+    terms = []
+    for c, nu, g in zip(contributions, dofs, groups):
+        if g:
+            entry = components.setdefault(g, [0.0, nu])
+            entry[0] += c * c
+        else:
+            terms.append((c * c, nu))
+    terms += [tuple(v) for v in components.values()]
+    total = sum(var for var, _ in terms)
+    denominator = sum(var**2 / nu for var, nu in terms if math.isfinite(nu) and var != 0)
     if denominator == 0:
         return math.inf
     return total**2 / denominator
@@ -105,7 +119,9 @@ def propagate(model: Model) -> list[LinearResult]:
             for src, sens, c in rows
         ]
         contribs.sort(key=lambda r: (-r.share, r.source))
-        dof = welch_satterthwaite([r.contribution for r in contribs], [r.dof for r in contribs])
+        group_of = {name: src.dof_group for name, src in model.sources.items()}
+        dof = welch_satterthwaite([r.contribution for r in contribs], [r.dof for r in contribs],
+                                  [group_of[r.source] for r in contribs])
         k = coverage_factor(p, dof)
         results.append(LinearResult(label, unit, y.nominal_value, u, dof, k, p, k * u, tuple(contribs)))
     return results
