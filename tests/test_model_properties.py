@@ -104,3 +104,25 @@ def test_shared_temperature_cancels_in_a_dilution_ratio(write_method):
     run = api.analyse(_write(write_method, 10, 100, temp=5.0))
     row = next(x for x in run.results[0].contributions if x.source == "laboratory temperature")
     assert row.contribution == pytest.approx(0.0, abs=1e-12)
+
+
+def test_observed_scatter_reproduces_the_inverse_prediction_formula():
+    # ISO 8466-1 / EURACHEM/CITAC CG4 Example A5: u(x0) = s/b sqrt(1/m + 1/n + (y0-ybar)^2/(b^2 Sxx)).
+    # The model carries the line's scatter as s/sqrt(m) on each mean reading; propagated through
+    # the refitted line, the calibration-fit part of the budget must equal that formula.
+    from conftest import DEMOS
+    from validate.calibration import fit_line, inverse_prediction
+
+    run = api.analyse(DEMOS / "phosphate_assay" / "method.toml", trials=None)
+    method, model = run.method, run.model
+    conc = model.concentrations(model.nominal_inputs())
+    ids = list(method.calibration.standards) + list(method.calibration.blanks)
+    xs = [conc[i] * 1e3 for i in ids for _ in method.readings[i]]  # mol/m^3 -> µmol/L
+    ys = [a for i in ids for a in method.readings[i]]
+    fit = fit_line(xs, ys)
+    for sample, result in zip(method.samples, run.results):
+        u_line = math.sqrt(sum(r.contribution**2 for r in result.contributions if r.step == "calibration fit"))
+        pred = inverse_prediction(fit, method.readings[sample.id])
+        # result = c * V_flask / V_sample * M_P: 50/20 dilution, 30.973762 g/mol, µmol/L -> mg/L
+        expected = pred.standard_uncertainty * 1e-3 * (50 / 20) * 30.973762
+        assert u_line == pytest.approx(expected, rel=1e-6)
