@@ -20,6 +20,7 @@ from validate.propagation.budget import budget_rows, grouped
 from validate.propagation.linear import LinearResult, propagate
 from validate.propagation.montecarlo import McResult, expected_work, new_seed, propagate_mc
 from validate.report.records import budget_csv, record_json, sha256_of, write_atomic
+from validate.validation.record import validation_block
 
 OUTPUT_FILES = ("results.json", "budget.csv")
 
@@ -87,6 +88,10 @@ def build_record(run: Run) -> dict:
     inputs = [{"path": str(p), "sha256": sha256_of(p)} for p in method.input_files]
     fingerprint = hashlib.sha256("".join(i["sha256"] for i in inputs).encode()).hexdigest()[:8]
     now = _dt.datetime.now(_dt.timezone.utc)
+    validation = validation_block(method, run.model, results)
+    flags = (validation or {}).get("range_flags", {})
+    labels = {label: smp.id for label, smp in zip(run.model.result_labels, method.samples)} \
+        if "c_measured" in method.result.formula.names else {}
     return {
         "software": {"name": "validate", "version": __version__},
         "run": {"record_id": f"VR-{now:%Y%m%d-%H%M%S}-{fingerprint}", "created": now.isoformat(timespec="seconds")},
@@ -94,7 +99,7 @@ def build_record(run: Run) -> dict:
                    "file": method.path, "formula": method.result.formula.text,
                    "result_unit": method.result.unit.text},
         "inputs": inputs,
-        "settings": method.settings.to_dict(),
+        "settings": {**method.settings.to_dict(), "validation": method.validation.to_dict()},
         "defaults_applied": list(method.defaults_shown),
         "notes": list(method.notes),
         "assumptions": list(run.model.assumptions),
@@ -110,9 +115,12 @@ def build_record(run: Run) -> dict:
             {**r.to_dict(),
              "budget_by_step": [g.to_dict() for g in grouped(r, "step")],
              "budget_by_equipment": [g.to_dict() for g in grouped(r, "equipment")],
+             "sample": labels.get(r.name),
+             "flags": flags.get(labels.get(r.name), []),
              **({"monte_carlo": mc.to_dict()} if mc else {})}
             for r, mc in zip(results, run.monte_carlo or [None] * len(results))
         ],
+        "validation": validation,
         "budget": budget_rows(results),
     }
 

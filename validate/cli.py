@@ -38,6 +38,11 @@ def _parser() -> argparse.ArgumentParser:
     chk.add_argument("method")
     init = sub.add_parser("init", help="write a commented starter method file and readings table")
     init.add_argument("folder")
+    cal = sub.add_parser("calibrate", help="quick check of a calibration table (CSV: concentration,absorbance)")
+    cal.add_argument("table", help="CSV with columns concentration and absorbance, one row per reading")
+    cal.add_argument("--sample", action="append", type=float, default=[], metavar="A",
+                     help="one reading of the unknown; repeat for replicate readings")
+    cal.add_argument("--json", action="store_true", help="print the result as JSON")
     return p
 
 
@@ -80,13 +85,17 @@ def main(argv=None) -> int:
     console = Console(highlight=False)
     errors = Console(stderr=True, highlight=False)
     try:
-        return {"run": _run, "check": _check, "init": _init}[args.command](args, console)
+        return {"run": _run, "check": _check, "init": _init,
+                "calibrate": _calibrate}[args.command](args, console)
     except InputError as exc:
         errors.print(f"[bold red]input error[/] {escape(exc.message())}", soft_wrap=True)
         return EXIT_INPUT
     except ModelError as exc:
         errors.print(f"[bold red]no result[/] {escape(str(exc))}", soft_wrap=True)
         return EXIT_DATA
+    except BrokenPipeError:  # output piped into a program that stopped reading (e.g. head)
+        sys.stderr.close()
+        return 0
 
 
 def _print_defaults(console: Console, method) -> None:
@@ -119,18 +128,91 @@ def _run(args, console: Console) -> int:
     _print_defaults(console, method)
     if run.monte_carlo:
         console.print(f"Monte Carlo: JCGM 101, seed {run.seed} (repeat with --seed {run.seed})", style="dim")
+    if run.record.get("validation"):
+        _print_validation(console, run.record["validation"])
     for index, r in enumerate(run.results):
         mc = run.monte_carlo[index] if run.monte_carlo else None
-        _print_result(console, r, mc, args.top)
+        _print_result(console, r, mc, args.top, run.record["results"][index].get("flags", []))
+    if run.record.get("validation"):
+        _print_criteria(console, run.record["validation"]["criteria"])
     console.print("wrote " + ", ".join(str(p) for p in written))
     return 0
 
 
-def _print_result(console: Console, r, mc, top: int) -> None:
+def _g(value, digits=4) -> str:
+    return "n/a" if value is None else f"{value:.{digits}g}"
+
+
+def _print_validation(console: Console, v: dict) -> None:
+    fit, unit = v["fit"], escape(v["concentration_unit"])
+    console.print()
+    console.print(f"[bold]Calibration line[/] ({fit['n']} readings, absorbance against {unit})")
+    console.print(f"  slope {_g(fit['slope'])} ± {_g(fit['slope_u'], 2)} per {unit}, intercept "
+                  f"{_g(fit['intercept'])} ± {_g(fit['intercept_u'], 2)}, r² {fit['r_squared']:.5f}, "
+                  f"residual SD {_g(fit['residual_sd'], 3)}")
+    for key in ("lack_of_fit", "mandel", "runs", "intercept", "weighting"):
+        test = v[key]
+        p = f" (p = {test['p_value']:.2g})" if test.get("p_value") is not None else ""
+        console.print(f"  {escape(test['name'])}{p}: {escape(test['verdict'])}", soft_wrap=True)
+    limits = v["limits"]
+    console.print(f"  LOD {_g(limits['lod'], 3)} {unit}, LOQ {_g(limits['loq'], 3)} {unit} "
+                  f"(declared route: {escape(limits['declared_route'])}); all routes: " +
+                  "; ".join(f"{escape(r['route'])} {_g(r['lod'], 3)}/{_g(r['loq'], 3)}" for r in limits["routes"]),
+                  soft_wrap=True)
+    for warning in limits["warnings"]:
+        console.print(f"  [yellow]warning[/] {escape(warning)}", soft_wrap=True)
+    sc = v["scatter_consistency"]
+    console.print(f"  scatter against the bottom-up budget: {escape(sc['verdict'])} "
+                  f"(observed SD {_g(sc['observed_sd'], 3)}, predicted {_g(sc['predicted_sd'], 3)})", soft_wrap=True)
+    window = v["window_flags"]
+    if window.get("outside"):
+        console.print(f"  [yellow]note[/] {window['outside']} reading(s) outside the absorbance window "
+                      f"{window['low']:g} to {window['high']:g} (common practice)")
+    if v.get("trueness"):
+        t = v["trueness"]
+        console.print(f"  trueness: recovery {t['recovery_percent']:.1f} %, E_n = {t['en_number']:.2f}: "
+                      f"{escape(t['verdict'])}", soft_wrap=True)
+
+
+def _print_criteria(console: Console, criteria: dict) -> None:
+    console.print()
+    rows = criteria["criteria"]
+    counts = {status: sum(1 for c in rows if c["status"] == status)
+              for status in ("met", "not met", "not set", "not evaluable")}
+    head = ", ".join(f"{n} {status}" for status, n in counts.items() if n)
+    console.print(f"[bold]Acceptance criteria[/]: {head}")
+    for c in rows:
+        if c["status"] in ("met", "not met"):
+            mark = "[green]met[/]" if c["met"] else "[red]NOT MET[/]"
+            limit = c["limit"] if not isinstance(c["limit"], list) else f"{c['limit'][0]:g} to {c['limit'][1]:g}"
+            default = " (default)" if c["is_default"] else ""
+            console.print(f"  {mark}  {escape(c['name'])}: {_g(c['observed'])} {escape(c['comparison'])} "
+                          f"{limit}{default}", soft_wrap=True)
+    console.print(f"  [dim]{escape(criteria['caution'])}[/]", soft_wrap=True)
+
+
+def _calibrate(args, console: Console) -> int:
+    import json
+
+    from validate.quickcheck import format_quick_check, quick_check
+    result = quick_check(args.table, [args.sample] if args.sample else None)
+    if args.sample:
+        result["sample"] = result["sample"][0]  # the --sample values are replicate readings of one unknown
+    if args.json:
+        print(json.dumps(result, indent=2))
+    else:
+        text = format_quick_check({**result, "sample": [result["sample"]]} if args.sample else result)
+        console.print(escape(text), soft_wrap=True)
+    return 0
+
+
+def _print_result(console: Console, r, mc, top: int, flags=()) -> None:
     value, U = round_gum(r.value, r.expanded_uncertainty)
     nu = "inf" if r.effective_dof == float("inf") else f"{r.effective_dof:.0f}"
     console.print()
     console.print(f"[bold]{escape(r.name)}[/]")
+    for flag in flags:
+        console.print(f"  [bold yellow]FLAG[/] {escape(flag)}: report with this flag, not as a plain number")
     console.print(f"  GUM          [bold]{value} ± {U} {escape(r.unit)}[/]  "
                   f"(k = {r.coverage_factor:.2f}, p = {r.coverage_probability:g}, nu_eff = {nu})")
     if mc is not None:

@@ -23,7 +23,7 @@ MASS = (1, 0, 0, 0)
 LENGTH = (0, 1, 0, 0)
 NONE = (0, 0, 0, 0)
 TOP_KEYS = ("method", "settings", "equipment", "solutions", "calibration", "samples",
-            "quantities", "result")
+            "quantities", "result", "validation", "acceptance")
 RESERVED = {"c_measured"}
 
 
@@ -76,7 +76,60 @@ def load_method(path) -> S.Method:
         registers_used=tuple(register_files),
     )
     result = _result(top, method)
-    return S.Method(**{**method.__dict__, "result": result})
+    validation = _validation(top, method, result, defaults)
+    return S.Method(**{**method.__dict__, "result": result, "validation": validation,
+                       "defaults_shown": tuple(defaults)})
+
+
+def _validation(top: Table, method: S.Method, result: S.ResultSpec, defaults: list[str]) -> S.ValidationSettings:
+    from validate.validation.criteria import CRITERIA, DEFAULTS
+    from validate.validation.limits import ROUTES
+    t = Table(top.get("validation", {}), top.file, "[validation]")
+    t.allow("declared_limit", "alpha", "beta", "absorbance_window", "reference_sample", "reference_value")
+    base = S.ValidationSettings()
+    route = t.text("declared_limit", base.declared_limit)
+    if route not in ROUTES:
+        raise t.error(f"unknown route {route!r}", "declared_limit", fix=f"use one of: {', '.join(ROUTES)}")
+    alpha = t.number("alpha", base.alpha, low=0, high=0.5)
+    beta = t.number("beta", base.beta, low=0, high=0.5)
+    window = t.get("absorbance_window", list(base.window))
+    if (not isinstance(window, list) or len(window) != 2 or
+            not all(isinstance(w, (int, float)) and not isinstance(w, bool) for w in window) or window[0] >= window[1]):
+        raise t.error("expected two absorbances, low and high", "absorbance_window", fix="e.g. [0.1, 1.0]")
+    sample = t.text("reference_sample")
+    ref = None
+    if sample is not None:
+        if sample not in {s.id for s in method.samples}:
+            raise t.error(f"`{sample}` is not one of the [samples]", "reference_sample")
+        ref = t.uncertain("reference_value", result.unit.dims, positive=False)
+    elif t.has("reference_value"):
+        raise t.error("a reference value needs `reference_sample`, the sample it belongs to", "reference_value")
+    if method.calibration is not None:
+        for key, text in (("declared_limit", f"declared detection-limit route: {route}"),
+                          ("alpha", f"false-positive probability alpha = {alpha:g} (ISO 11843-2)"),
+                          ("beta", f"false-negative probability beta = {beta:g} (ISO 11843-2)"),
+                          ("absorbance_window", f"absorbance window {window[0]:g} to {window[1]:g} "
+                           f"(common practice)")):
+            if not t.has(key):
+                defaults.append(f"default: {text}")
+    a = Table(top.get("acceptance", {}), top.file, "[acceptance]")
+    a.allow(*CRITERIA)
+    acceptance = {}
+    for key in a.data:
+        value = a.get(key)
+        if key == "recovery_range":
+            if (not isinstance(value, list) or len(value) != 2 or
+                    not all(isinstance(v, (int, float)) and not isinstance(v, bool) for v in value)):
+                raise a.error("expected [low, high] in percent", key, fix="e.g. recovery_range = [95, 105]")
+            acceptance[key] = (float(value[0]), float(value[1]))
+        else:
+            acceptance[key] = a.number(key)
+    unset = [k for k in CRITERIA if k not in acceptance and DEFAULTS[k] is not None]
+    if method.calibration is not None and unset:
+        defaults.append("default acceptance criteria (common practice, set yours under [acceptance]): " +
+                        ", ".join(f"{k} = {DEFAULTS[k]}" for k in unset))
+    return S.ValidationSettings(route, alpha, beta, (float(window[0]), float(window[1])), sample, ref,
+                                acceptance)
 
 
 def _settings(t: Table, defaults: list[str]) -> S.Settings:

@@ -125,6 +125,29 @@ class Settings:
 
 
 @dataclass(frozen=True)
+class ValidationSettings:
+    """How the method is validated: the declared limit route, test levels, the
+    absorbance window, a reference sample for trueness and the acceptance criteria."""
+
+    declared_limit: str = "ich_residual_sd"
+    alpha: float = 0.05
+    beta: float = 0.05
+    window: tuple[float, float] = (0.1, 1.0)
+    reference_sample: str | None = None
+    reference_value: UncertainValue | None = None
+    acceptance: dict = field(default_factory=dict)
+
+    def to_dict(self) -> dict:
+        ref = self.reference_value
+        return {"declared_limit": self.declared_limit, "alpha": self.alpha, "beta": self.beta,
+                "absorbance_window": list(self.window), "reference_sample": self.reference_sample,
+                "reference_value": None if ref is None else ref.value / ref.unit.factor,
+                "reference_standard_uncertainty": None if ref is None else ref.u / ref.unit.factor,
+                "reference_unit": None if ref is None else ref.unit.text,
+                "acceptance": {k: (list(v) if isinstance(v, tuple) else v) for k, v in self.acceptance.items()}}
+
+
+@dataclass(frozen=True)
 class Method:
     path: str
     title: str
@@ -142,6 +165,7 @@ class Method:
     defaults_shown: tuple[str, ...] = ()  # every default the loader applied, in plain words
     notes: tuple[str, ...] = ()  # warnings about the input that do not stop the run
     registers_used: tuple[str, ...] = ()
+    validation: ValidationSettings = field(default_factory=ValidationSettings)
 
     def concentration_dims(self, solution_id: str) -> tuple[int, ...]:
         """Dimension of a solution's concentration (mass or amount per volume)."""

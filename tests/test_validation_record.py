@@ -1,0 +1,72 @@
+"""The validation block of a run: range flags, criteria, trueness and the calibrate command."""
+
+from __future__ import annotations
+
+import json
+import shutil
+import subprocess
+import sys
+
+import pytest
+
+from validate import api
+
+from conftest import DEMOS, REFERENCE
+
+
+@pytest.fixture(scope="module")
+def demo_run():
+    return api.analyse(DEMOS / "phosphate_assay" / "method.toml", trials=None)
+
+
+def test_demo_record_has_the_validation_block(demo_run):
+    v = demo_run.record["validation"]
+    for key in ("lack_of_fit", "mandel", "runs", "intercept", "weighting", "limits", "criteria",
+                "range_flags", "window_flags", "scatter_consistency", "trueness", "repeatability"):
+        assert key in v, key
+    statuses = {c["key"]: c["status"] for c in v["criteria"]["criteria"]}
+    assert statuses["min_r_squared"] == "met"
+    assert statuses["max_repeatability_rsd"] == "not set"
+    # every route's LOD is positive, and the declared one is reported
+    assert all(r["lod"] > 0 for r in v["limits"]["routes"])
+    assert v["limits"]["declared_route"] == "ich_residual_sd"
+
+
+def test_extrapolated_sample_is_flagged(tmp_path):
+    # ISO 8466-1 restricts the line to its working range: a reading above the highest
+    # standard must be flagged in the record, not reported as a plain number.
+    folder = tmp_path / "demo"
+    shutil.copytree(DEMOS / "phosphate_assay", folder)
+    readings = (folder / "readings.csv").read_text()
+    readings = readings.replace("outfall,0.6598", "outfall,0.9598").replace("outfall,0.6600", "outfall,0.9600") \
+        .replace("outfall,0.6622", "outfall,0.9622")
+    (folder / "readings.csv").write_text(readings)
+    run = api.analyse(folder / "method.toml", trials=None)
+    flags = {r["sample"]: r["flags"] for r in run.record["results"]}
+    assert flags["outfall"] == ["above the highest standard (extrapolated)"]
+    assert flags["river_upstream"] == []
+
+
+def test_trueness_against_the_reference_sample(demo_run):
+    # E_n = (x - X) / sqrt(U_x^2 + U_ref^2) (ISO 13528 / ISO/IEC 17043): recomputed by hand
+    t = demo_run.record["validation"]["trueness"]
+    ref = next(r for r in demo_run.record["results"] if r["sample"] == "reference_water")
+    k = ref["coverage_factor"]
+    en = (ref["value"] - 0.200) / ((ref["expanded_uncertainty"]) ** 2 + (k * 0.003) ** 2) ** 0.5
+    assert t["en_number"] == pytest.approx(en, rel=1e-9)
+    assert t["recovery_percent"] == pytest.approx(100 * ref["value"] / 0.200, rel=1e-12)
+
+
+def test_calibrate_command_reproduces_norris():
+    # NIST StRD "Norris" certified values through `validate calibrate --json`
+    proc = subprocess.run([sys.executable, "-m", "validate.cli", "calibrate",
+                           str(REFERENCE / "norris_calibration.csv"), "--sample", "300", "--sample", "301",
+                           "--json"], capture_output=True, text=True)
+    assert proc.returncode == 0, proc.stderr
+    out = json.loads(proc.stdout)
+    assert out["slope"] == pytest.approx(1.00211681802045, rel=1e-9)
+    assert out["intercept"] == pytest.approx(-0.262323073774029, rel=1e-9)
+    assert out["residual_standard_deviation"] == pytest.approx(0.884796396144373, rel=1e-9)
+    # two replicate readings of one unknown: x0 = (300.5 - a) / b
+    assert out["sample"]["concentration"] == pytest.approx((300.5 + 0.262323073774029) / 1.00211681802045)
+    assert out["sample"]["standard_uncertainty"] > 0

@@ -1,0 +1,124 @@
+"""The validation block of the record: the method's calibration judged as a method.
+
+Gathers, for the calibration of a method file: the line's validation
+statistics (validate.validation.summary), each sample's range flags, the
+absorbance window of every reading, repeatability from replicate readings,
+trueness against a reference sample, the consistency of the observed scatter
+with the bottom-up budget, and the acceptance criteria.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+
+from validate.calibration import inverse_prediction
+from validate.inputs.schema import Method
+from validate.model import Model, build_model
+from validate.propagation.linear import LinearResult
+from validate.validation.criteria import evaluate_criteria
+from validate.validation.limits import range_flags
+from validate.validation.linearity import plain
+from validate.validation.precision import recovery, repeatability, scatter_consistency
+from validate.validation.summary import validate_calibration
+from validate.validation.window import absorbance_window_flags
+
+
+def calibration_data(method: Method, model: Model):
+    """Concentrations (calibration unit) and absorbances of every reading in the fit."""
+    cal = method.calibration
+    conc = model.concentrations(model.nominal_inputs())
+    ids = list(cal.standards) + (list(cal.blanks) if cal.blanks_in_fit else [])
+    factor = cal.concentration_unit.factor
+    xs = [conc[i] / factor for i in ids for _ in method.readings[i]]
+    ys = [a for i in ids for a in method.readings[i]]
+    return xs, ys
+
+
+def predicted_reading_sd(method: Method, slope_abs_per_unit: float) -> float:
+    """Scatter of single readings about the line that the bottom-up sources predict:
+    photometer noise and the per-use random terms of each standard's preparation
+    (repeatability, burette readings), averaged over the standards."""
+    from uncertainties import ufloat
+
+    bottom_up = dataclasses.replace(method, settings=dataclasses.replace(method.settings, scatter="bottom-up"))
+    model = build_model(bottom_up)
+    variables = {n: ufloat(s.value, s.u, tag=n) for n, s in model.sources.items()}
+    conc = model.concentrations(variables)
+    factor = method.calibration.concentration_unit.factor
+    variances = []
+    for sid in method.calibration.standards:
+        c = conc[sid]
+        random_part = sum((d * var.std_dev) ** 2 for var, d in getattr(c, "derivatives", {}).items()
+                          if model.sources[var.tag].step == f"prepare {sid}")
+        variances.append((slope_abs_per_unit * math.sqrt(random_part) / factor) ** 2)
+    photometer = method.items.get(method.calibration.photometer) if method.calibration.photometer else None
+    noise = photometer.noise if photometer else 0.0
+    return math.sqrt(noise**2 + sum(variances) / len(variances))
+
+
+def validation_block(method: Method, model: Model, results: list[LinearResult]) -> dict | None:
+    cal = method.calibration
+    if cal is None:
+        return None
+    v = method.validation
+    xs, ys = calibration_data(method, model)
+    blanks = [a for b in cal.blanks for a in method.readings[b]] or None
+    cell = method.items.get(cal.cuvette) if cal.cuvette else None
+    replicates = [len(method.readings[s.id]) for s in method.samples] or [1]
+    summary = validate_calibration(
+        xs, ys, blanks=blanks, alpha=v.alpha, beta=v.beta, declared_limit=v.declared_limit,
+        path_length_cm=cell.path * 100 if cell else None,
+        path_length_u=cell.tolerance / math.sqrt(3) * 100 if cell else None,
+        sample_replicates=min(replicates))
+    fit = summary.fit
+    nonzero = [x for x in fit.x if x > 0] or list(fit.x)
+    samples, flags = {}, {}
+    for smp in method.samples:
+        pred = inverse_prediction(fit, method.readings[smp.id])
+        f = range_flags(pred.value, min(nonzero), max(fit.x), summary.limits.loq, summary.limits.lod)
+        flags[smp.id] = f
+        samples[smp.id] = {"concentration": pred.value, "standard_uncertainty": pred.standard_uncertainty,
+                           "readings": list(method.readings[smp.id]), "flags": f}
+    sample_ids = [s.id for s in method.samples]
+    all_readings = [a for i in list(cal.standards) + list(cal.blanks) + sample_ids for a in method.readings[i]]
+    window = absorbance_window_flags(all_readings, *v.window)
+    rep_groups = [[(a - fit.intercept) / fit.slope for a in method.readings[i]] for i in sample_ids
+                  if len(method.readings[i]) >= 2]
+    precision = repeatability(rep_groups) if rep_groups else None
+    consistency = scatter_consistency(fit.residual_sd, fit.dof, predicted_reading_sd(method, fit.slope))
+    trueness = _trueness(method, results)
+    observed = summary.observed_for_criteria()
+    rel_u = [100 * r.expanded_uncertainty / abs(r.value) for r in results if r.value]
+    observed["relative_expanded_uncertainty"] = max(rel_u) if rel_u else None
+    if precision is not None:
+        observed["repeatability_rsd_percent"] = precision.rsd_percent
+    if trueness is not None:
+        observed["recovery_percent"] = trueness.recovery_percent
+        observed["en_number"] = trueness.en_number
+    criteria = evaluate_criteria(v.acceptance, observed)
+    block = plain(summary)
+    block.update({
+        "settings": v.to_dict(),
+        "concentration_unit": cal.concentration_unit.text,
+        "samples": samples,
+        "range_flags": flags,
+        "window_flags": plain(window),
+        "repeatability": plain(precision) if precision else None,
+        "trueness": plain(trueness) if trueness else None,
+        "scatter_consistency": plain(consistency),
+        "criteria": plain(criteria),
+    })
+    return block
+
+
+def _trueness(method: Method, results: list[LinearResult]):
+    v = method.validation
+    if v.reference_sample is None:
+        return None
+    index = [s.id for s in method.samples].index(v.reference_sample)
+    result = results[index]
+    ref = v.reference_value
+    factor = method.result.unit.factor
+    return recovery(result.value, result.standard_uncertainty, ref.value / factor, ref.u / factor,
+                    coverage_factor=result.coverage_factor)
