@@ -31,6 +31,7 @@ class Run:
     model: Model
     results: list[LinearResult]
     monte_carlo: list[McResult] = field(default_factory=list)
+    combination: tuple | None = None  # equilibrium studies: (GLS combination, K values, covariance)
     seed: int | None = None
     trials: int | str | None = None
     record: dict = field(default_factory=dict)
@@ -39,6 +40,9 @@ class Run:
 def check(path) -> tuple[Method, Model]:
     """Read and check a method file, and build its model (no propagation)."""
     method = load_method(path)
+    if method.equilibrium is not None:
+        from validate.equilibrium_model import build_equilibrium_model
+        return method, build_equilibrium_model(method)
     return method, build_model(method)
 
 
@@ -47,8 +51,13 @@ def analyse(path, trials: int | str | None = 1_000_000, seed: int | None = None,
     """Both engines on one method file. `trials=None` runs the linear engine only;
     `progress_factory(total)` may return a callable advanced by trials done."""
     method, model = check(path)
+    combination = None
+    if method.equilibrium is not None:
+        from validate.equilibrium_record import prepare_combination
+        combination = prepare_combination(model)  # fixes the combined estimator's weights
     results = propagate(model)
     run = Run(method, model, results, trials=trials)
+    run.combination = combination
     if trials is not None:
         run.seed = new_seed() if seed is None else int(seed)
         progress = progress_factory(expected_work(trials, model)) if progress_factory else None
@@ -88,16 +97,22 @@ def build_record(run: Run) -> dict:
     inputs = [{"path": str(p), "sha256": sha256_of(p)} for p in method.input_files]
     fingerprint = hashlib.sha256("".join(i["sha256"] for i in inputs).encode()).hexdigest()[:8]
     now = _dt.datetime.now(_dt.timezone.utc)
-    validation = validation_block(method, run.model, results)
+    validation = validation_block(method, run.model, results) if method.calibration else None
+    equilibrium = None
+    if method.equilibrium is not None:
+        from validate.equilibrium_record import equilibrium_block
+        equilibrium = equilibrium_block(run.model, results, run.monte_carlo, *run.combination)
     flags = (validation or {}).get("range_flags", {})
     labels = {label: smp.id for label, smp in zip(run.model.result_labels, method.samples)} \
-        if "c_measured" in method.result.formula.names else {}
+        if method.result is not None and "c_measured" in method.result.formula.names else {}
     return {
         "software": {"name": "validate", "version": __version__},
         "run": {"record_id": f"VR-{now:%Y%m%d-%H%M%S}-{fingerprint}", "created": now.isoformat(timespec="seconds")},
         "method": {"title": method.title, "measurand": method.measurand, "scope": method.scope,
-                   "file": method.path, "formula": method.result.formula.text,
-                   "result_unit": method.result.unit.text},
+                   "file": method.path,
+                   "formula": method.result.formula.text if method.result else
+                   "K = [ML] / (([M]0 - [ML]) ([L]0 - [ML])), [ML] from the line of the standards",
+                   "result_unit": method.result.unit.text if method.result else method.equilibrium.k_unit.text},
         "inputs": inputs,
         "settings": {**method.settings.to_dict(), "validation": method.validation.to_dict()},
         "defaults_applied": list(method.defaults_shown),
@@ -121,6 +136,7 @@ def build_record(run: Run) -> dict:
             for r, mc in zip(results, run.monte_carlo or [None] * len(results))
         ],
         "validation": validation,
+        "equilibrium": equilibrium,
         "budget": budget_rows(results),
     }
 

@@ -110,9 +110,14 @@ def _print_defaults(console: Console, method) -> None:
 def _check(args, console: Console) -> int:
     method, model = api.check(args.method)
     console.print(f"[bold]{escape(method.title)}[/]")
+    if method.equilibrium is not None:
+        study = method.equilibrium
+        contents = (f"{len(study.standards)} standards, {len(study.mixtures)} mixtures, "
+                    f"{len(study.series)} addition series")
+    else:
+        contents = f"{len(method.samples)} samples"
     console.print(f"read {', '.join(method.input_files)}: {len(method.items)} equipment items, "
-                  f"{len(method.solutions)} solutions, {len(method.samples)} samples, "
-                  f"{len(model.sources)} uncertainty sources")
+                  f"{len(method.solutions)} solutions, {contents}, {len(model.sources)} uncertainty sources")
     _print_defaults(console, method)
     console.print("[green]the method file is complete and consistent[/]")
     return 0
@@ -130,6 +135,10 @@ def _run(args, console: Console) -> int:
         console.print(f"Monte Carlo: JCGM 101, seed {run.seed} (repeat with --seed {run.seed})", style="dim")
     if run.record.get("validation"):
         _print_validation(console, run.record["validation"])
+    if run.record.get("equilibrium"):
+        _print_equilibrium(console, run, args.top)
+        console.print("wrote " + ", ".join(str(p) for p in written))
+        return 0
     for index, r in enumerate(run.results):
         mc = run.monte_carlo[index] if run.monte_carlo else None
         _print_result(console, r, mc, args.top, run.record["results"][index].get("flags", []))
@@ -137,6 +146,58 @@ def _run(args, console: Console) -> int:
         _print_criteria(console, run.record["validation"]["criteria"])
     console.print("wrote " + ", ".join(str(p) for p in written))
     return 0
+
+
+def _print_equilibrium(console: Console, run, top: int) -> None:
+    from rich.table import Table
+
+    e = run.record["equilibrium"]
+    unit, cu = escape(e["k_unit"]), escape(e["concentration_unit"])
+    cond = e["conditions"]
+    console.print()
+    console.print(f"[bold]Formation constant K of ML (1:1)[/], in {unit}; conditional on "
+                  f"{_g(cond['temperature_C'])} degC, I = {_g(cond['ionic_strength_mol_per_L'])} mol/L")
+    table = Table(show_edge=False, pad_edge=False)
+    for col in ("point", f"[M]0 {cu}", f"[L]0 {cu}", "K", "U", "Monte Carlo 95 %"):
+        table.add_column(col, justify="left" if col == "point" else "right")
+    for p in e["mixtures"]:
+        value, U = round_gum(p["K"], p["expanded_uncertainty"])
+        interval = f"[{p['interval'][0]:.4g}, {p['interval'][1]:.4g}]" if p["interval"] else "-"
+        table.add_row(p["id"], f"{p['M_total']:.4g}", f"{p['L_total']:.4g}", value, U, interval)
+    console.print(table)
+    by_name = {r.name: (r, mc) for r, mc in zip(run.results, run.monte_carlo or [None] * len(run.results))}
+    from validate.equilibrium_model import COMBINED, LOG10
+    for label in (COMBINED, LOG10):
+        r, mc = by_name[label]
+        _print_result(console, r, mc, top if label == COMBINED else 0)
+    c = e["combined"]
+    if c.get("consistency"):
+        k = c["consistency"]
+        console.print(f"  consistency: chi-square {k['chi_square']:.2f} on {k['dof']} dof, p = {k['p_value']:.2g}, "
+                      f"Birge ratio {k['birge_ratio']:.2f}: {escape(k['verdict'])}", soft_wrap=True)
+    if any(w < 0 for w in c["weights"]):
+        console.print("  note: some generalised-least-squares weights are negative (strongly correlated K values)",
+                      style="dim")
+    if "trend" in e and "message" in e["trend"]:
+        console.print(f"  trend with {escape(e['trend']['against'])}: {escape(e['trend']['message'])} "
+                      f"(p = {e['trend']['p_value']:.2g})", soft_wrap=True)
+    b = e["complete_complexation_bias"]
+    console.print(f"  taking the standards as fully complexed would bias the slope by {b['slope']:+.1%} and K by "
+                  f"{b['K']:+.1%} (naive K = {b['naive_K']:.4g} {unit}); fraction complexed in the standards "
+                  f"{min(b['fraction_complexed_in_standards']):.3f} to {max(b['fraction_complexed_in_standards']):.3f}",
+                  soft_wrap=True)
+    if not b["iteration_converged"]:
+        console.print("  [yellow]warning[/] the correction of the standards did not converge: see the joint fit",
+                      soft_wrap=True)
+    j = e.get("joint_fit", {})
+    if "K" in j:
+        console.print(f"  cross-check, joint nonlinear fit: K = {j['K']:.4g} ± {j['standard_uncertainty']:.2g} "
+                      f"{unit} (standard uncertainty)")
+    if "activity_estimate" in e:
+        a = e["activity_estimate"]
+        console.print(f"  activity estimate (Davies, an estimate): K at zero ionic strength about "
+                      f"{a['K_thermodynamic']['value'] if isinstance(a['K_thermodynamic'], dict) else a['K_thermodynamic']:.4g} {unit}",
+                      soft_wrap=True)
 
 
 def _g(value, digits=4) -> str:
@@ -228,6 +289,8 @@ def _print_result(console: Console, r, mc, top: int, flags=()) -> None:
             console.print(f"  [yellow]warning[/] {escape(mc.warning)}", soft_wrap=True)
         elif s.invalid_trials:
             console.print(f"  note: {s.invalid_trials} trials gave no defined result")
+    if top <= 0:
+        return
     console.print("  largest sources of uncertainty:")
     for row in r.contributions[:top]:
         console.print(f"    {row.share:6.1%}  {escape(row.source)}  [dim]({escape(row.step or '-')})[/]")

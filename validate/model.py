@@ -38,6 +38,9 @@ class Model:
     _sample_terms: dict = field(default_factory=dict, repr=False)
     _quantity_terms: dict = field(default_factory=dict, repr=False)
 
+    def unit_of(self, label: str) -> str:
+        return self.method.result.unit.text
+
     def nominal_inputs(self) -> dict[str, float]:
         return {name: s.value for name, s in self.sources.items()}
 
@@ -93,8 +96,8 @@ def build_model(method: Method) -> Model:
     observed = s.scatter == "observed"
     cal = method.calibration
     standards = set(cal.standards) if cal else set()
-    for sol in method.solutions.values():
-        model._solution_terms[sol.id] = _solution_term(ss, method, sol, observed and sol.id in standards)
+    for sol in solution_order(method.solutions):
+        model._solution_terms[sol.id] = solution_term(ss, method, sol, observed and sol.id in standards)
     if cal:
         if observed:
             model.assumptions.append(
@@ -107,16 +110,35 @@ def build_model(method: Method) -> Model:
                 "carries its own random term; no term for the line's observed scatter is added")
         ids = list(cal.standards) + (list(cal.blanks) if cal.blanks_in_fit else [])
         scatter = _observed_scatter(model, ids, samples) if observed else None
-        model._points = [(sid, len(method.readings[sid]), _mean_reading_term(ss, method, sid, scatter))
-                         for sid in ids]
+        model._points = [(sid, len(method.readings[sid]),
+                          mean_reading_term(ss, method, sid, scatter, cal.cuvette, cal.photometer)) for sid in ids]
         for smp in samples:
-            model._sample_terms[smp.id] = _mean_reading_term(ss, method, smp.id, scatter)
+            model._sample_terms[smp.id] = mean_reading_term(ss, method, smp.id, scatter, cal.cuvette,
+                                                            cal.photometer)
     for q in method.quantities.values():
         model._quantity_terms[q.name] = _quantity_term(ss, method, q, samples)
     return model
 
 
-def _solution_term(ss: SourceSet, method: Method, sol, is_standard_observed: bool):
+def solution_order(solutions: dict) -> list:
+    """Solutions with every parent before its dilutions (file order otherwise)."""
+    done, order = set(), []
+
+    def visit(sol):
+        if sol.id in done:
+            return
+        if sol.made_by == "dilution":
+            visit(solutions[sol.parent])
+        done.add(sol.id)
+        order.append(sol)
+
+    for sol in solutions.values():
+        visit(sol)
+    return order
+
+
+def solution_term(ss: SourceSet, method: Method, sol, is_standard_observed: bool):
+    """A closure (x, concentrations so far) -> this solution's concentration (SI)."""
     step = f"prepare {sol.id}"
     if sol.made_by == "blank":
         return lambda x, conc: 0.0
@@ -147,17 +169,17 @@ def _solution_term(ss: SourceSet, method: Method, sol, is_standard_observed: boo
     return term
 
 
-def _mean_reading_term(ss: SourceSet, method: Method, ident: str, scatter):
+def mean_reading_term(ss: SourceSet, method: Method, ident: str, scatter, cuvette: str | None,
+                      photometer_id: str | None):
     """A closure x -> mean corrected reading of one standard, blank or sample:
     (mean absorbance + reading noise or observed scatter - photometer offset) / path length.
 
     `scatter` (observed treatment) is (s, dof) of the line's residuals in absorbance:
     the mean of m readings then carries a term of standard uncertainty s/sqrt(m)."""
     observed = scatter is not None
-    cal = method.calibration
     readings = method.readings[ident]
-    photometer = method.items.get(cal.photometer) if cal.photometer else None
-    cell = method.items.get(cal.cuvette) if cal.cuvette else None
+    photometer = method.items.get(photometer_id) if photometer_id else None
+    cell = method.items.get(cuvette) if cuvette else None
     offset = path = None
     noise = []
     if photometer is not None and photometer.offset > 0:

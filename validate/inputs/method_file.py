@@ -11,6 +11,7 @@ import tomllib
 from pathlib import Path
 
 from validate.inputs import schema as S
+from validate.inputs.consistency import check_calibration_data, check_ids
 from validate.inputs.errors import InputError
 from validate.inputs.formula import FormulaError, parse_formula, result_dimension
 from validate.inputs.readings import load_readings, read_text_file
@@ -23,7 +24,7 @@ MASS = (1, 0, 0, 0)
 LENGTH = (0, 1, 0, 0)
 NONE = (0, 0, 0, 0)
 TOP_KEYS = ("method", "settings", "equipment", "solutions", "calibration", "samples",
-            "quantities", "result", "validation", "acceptance")
+            "quantities", "result", "validation", "acceptance", "equilibrium")
 RESERVED = {"c_measured"}
 
 
@@ -48,6 +49,11 @@ def load_method(path) -> S.Method:
     items = {}
     for item_id, raw in (top.get("equipment") or {}).items():
         items[item_id] = _item(item_id, Table(raw, path, f"[equipment.{item_id}]"), entries, settings, defaults)
+    repeat = [u for item in items.values() for u in item.defaults_used if u.endswith(" mL")]
+    if repeat:
+        defaults.append("repeatability per use of glassware set to 0.2 x its tolerance (a default of this "
+                        "tool, after the ratio in EURACHEM/CITAC CG4 Example A1; give `repeatability` from "
+                        "your own data): " + ", ".join(repeat))
     solutions = {}
     for sol_id, raw in (top.get("solutions") or {}).items():
         solutions[sol_id] = _solution(sol_id, Table(raw, path, f"[solutions.{sol_id}]"), items)
@@ -62,21 +68,38 @@ def load_method(path) -> S.Method:
         Table(raw, path, f"[samples.{sid}]").allow("description")
     quantities = {name: _quantity(name, Table(raw, path, f"[quantities.{name}]"), items)
                   for name, raw in (top.get("quantities") or {}).items()}
+    check_ids(samples, solutions, quantities, path)
     readings = {}
     if readings_path is not None:
         readings = load_readings(readings_path)
         _check_readings(readings, calibration, samples, solutions, readings_path, notes)
+        check_calibration_data(calibration, solutions, readings, path, readings_path)
+    equilibrium, eq_readings_path = None, None
+    if top.has("equilibrium"):
+        from validate.inputs.equilibrium_file import check_equilibrium_readings, parse_equilibrium
+        partial = S.Method(path=str(path), title="", measurand="", scope="", settings=settings, items=items,
+                           solutions=solutions, calibration=calibration, samples=samples,
+                           quantities=quantities, result=None)
+        equilibrium = parse_equilibrium(top.sub("equilibrium"), partial, defaults)
+        eq_readings_path = path.parent / equilibrium.readings_file
+        if eq_readings_path != readings_path:
+            readings = {**readings, **load_readings(eq_readings_path)}
+        check_equilibrium_readings(equilibrium, readings, eq_readings_path)
     method = S.Method(
         path=str(path), title=info.text("title", path.stem) or path.stem,
         measurand=info.text("measurand", "") or "", scope=info.text("scope", "") or "",
         settings=settings, items=items, solutions=solutions, calibration=calibration,
         samples=samples, quantities=quantities, result=None, readings=readings,
-        input_files=tuple(str(p) for p in [path, readings_path] if p is not None),
+        input_files=tuple(dict.fromkeys(str(p) for p in [path, readings_path, eq_readings_path] if p is not None)),
         defaults_shown=tuple(defaults), notes=tuple(notes),
-        registers_used=tuple(register_files),
+        registers_used=tuple(register_files), equilibrium=equilibrium,
     )
-    result = _result(top, method)
-    validation = _validation(top, method, result, defaults)
+    if equilibrium is not None and (top.has("result") or calibration is not None):
+        raise InputError("a method file holds either an assay ([calibration] and [result]) or an "
+                         "equilibrium study ([equilibrium]), not both", file=path,
+                         fix="put the two in separate method files")
+    result = _result(top, method) if equilibrium is None else None
+    validation = _validation(top, method, result, defaults) if result is not None else S.ValidationSettings()
     return S.Method(**{**method.__dict__, "result": result, "validation": validation,
                        "defaults_shown": tuple(defaults)})
 
@@ -100,10 +123,12 @@ def _validation(top: Table, method: S.Method, result: S.ResultSpec, defaults: li
     ref = None
     if sample is not None:
         if sample not in {s.id for s in method.samples}:
-            raise t.error(f"`{sample}` is not one of the [samples]", "reference_sample")
+            raise t.error(f"`{sample}` is not one of the [samples]", "reference_sample",
+                          fix=f"use one of: {', '.join(s.id for s in method.samples) or '(no samples defined)'}")
         ref = t.uncertain("reference_value", result.unit.dims, positive=False)
     elif t.has("reference_value"):
-        raise t.error("a reference value needs `reference_sample`, the sample it belongs to", "reference_value")
+        raise t.error("a reference value needs `reference_sample`, the sample it belongs to", "reference_value",
+                      fix="add reference_sample = \"...\" naming one of the [samples]")
     if method.calibration is not None:
         for key, text in (("declared_limit", f"declared detection-limit route: {route}"),
                           ("alpha", f"false-positive probability alpha = {alpha:g} (ISO 11843-2)"),
@@ -150,7 +175,7 @@ def _settings(t: Table, defaults: list[str]) -> S.Settings:
     alpha = t.number("expansion_coefficient", base.expansion_coefficient, low=0)
     shared = t.get("shared_temperature", base.shared_temperature)
     if not isinstance(shared, bool):
-        raise t.error("expected true or false", "shared_temperature")
+        raise t.error("expected true or false", "shared_temperature", fix="write true or false without quotes")
     registers = t.get("registers", [])
     if not isinstance(registers, list) or not all(isinstance(r, str) for r in registers):
         raise t.error("expected a list of file names", "registers", fix='e.g. registers = ["our_lab.toml"]')
@@ -203,7 +228,7 @@ def _item(item_id: str, t: Table, entries, settings: S.Settings, defaults: list[
     for key in own:
         values[key] = t.quantity(key, dims[key], positive=key == "path")[0]
         if values[key] < 0:
-            raise t.error("the value cannot be negative", key)
+            raise t.error("the value cannot be negative", key, fix="give its size, zero or more")
     provenance = t.text("provenance", "") or (entry.source if entry and not own else
                                               "method file (laboratory's own data)" if not entry
                                               else f"{entry.source}; overridden in the method file")
@@ -213,9 +238,7 @@ def _item(item_id: str, t: Table, entries, settings: S.Settings, defaults: list[
             raise t.error("no tolerance for this item", "tolerance", fix="give `tolerance` or a `class`")
         if "repeatability" not in values:
             values["repeatability"] = 0.2 * values["tolerance"]
-            used.append(f"{item_id}: repeatability per use set to 0.2 x tolerance = "
-                        f"{values['repeatability'] * 1e6:.4g} mL (default of this tool, after the ratio in "
-                        f"EURACHEM/CITAC CG4 Example A1; replace with your own data)")
+            used.append(f"{item_id} {values['repeatability'] * 1e6:.4g} mL")
         if kind == "burette" and "reading" not in values:
             sub = values.get("subdivision", values["tolerance"])
             values["reading"] = sub / 2.0
@@ -229,7 +252,7 @@ def _item(item_id: str, t: Table, entries, settings: S.Settings, defaults: list[
     dist = t.text("distribution", settings.glassware_distribution if kind in S.VOLUMETRIC_KINDS else "rectangular")
     if dist not in ("triangular", "rectangular"):
         raise t.error(f"unknown choice {dist!r}", "distribution", fix='use "triangular" or "rectangular"')
-    defaults.extend(used)
+    defaults.extend(u for u in used if not u.endswith(" mL"))
     return S.Item(id=item_id, kind=kind, item_class=item_class, nominal=nominal,
                   tolerance=values.get("tolerance", 0.0), repeatability=values.get("repeatability", 0.0),
                   distribution=dist, reading=values.get("reading", 0.0), path=values.get("path"),
@@ -247,17 +270,20 @@ def _delivery(raw, t: Table, key: str, items, kinds) -> S.Delivery:
         item_id = sub.text("item", required=True)
         volume = sub.quantity("volume", VOLUME)[0] if sub.has("volume") else None
     else:
-        raise t.error("expected an equipment id, or {item = \"...\", volume = \"... mL\"}", key)
+        raise t.error("expected an equipment id, or {item = \"...\", volume = \"... mL\"}", key,
+                      fix='e.g. aliquot = "pipette_5" or aliquot = { item = "burette_25", volume = "2.00 mL" }')
     if item_id not in items:
         raise t.error(f"unknown equipment `{item_id}`", key,
                       fix=f"define [equipment.{item_id}] or use one of: {', '.join(items) or '(none defined)'}")
     item = items[item_id]
     if item.kind not in kinds:
-        raise t.error(f"`{item_id}` is a {item.kind}; here a {' or '.join(kinds)} is needed", key)
+        raise t.error(f"`{item_id}` is a {item.kind}; here a {' or '.join(kinds)} is needed", key,
+                      fix=f"name a {' or '.join(kinds)} defined under [equipment]")
     if volume is None:
         volume = item.nominal
     if volume > item.nominal * (1 + 1e-9):
-        raise t.error(f"the volume is larger than the {item.kind}'s nominal volume", key)
+        raise t.error(f"the volume is larger than the {item.kind}'s nominal volume", key,
+                      fix="give the volume delivered, within the nominal volume, or name a larger item")
     if item.kind in ("one-mark pipette", "volumetric flask") and abs(volume - item.nominal) > 1e-9 * item.nominal:
         raise t.error(f"a {item.kind} delivers only its nominal volume", key,
                       fix="leave out `volume`, or use a graduated or piston pipette or a burette")
@@ -279,17 +305,20 @@ def _solution(sol_id: str, t: Table, items) -> S.Solution:
         t.allow("made_by", "description", "concentration")
         conc = t.uncertain("concentration")
         if conc.unit.dims not in ((1, -3, 0, 0), (0, -3, 1, 0)):
-            raise t.error("a concentration needs a unit of mass or amount per volume", "concentration")
+            raise t.error("a concentration needs a unit of mass or amount per volume", "concentration",
+                          fix='e.g. concentration = { value = "1000 mg/L", expanded_uncertainty = "2 mg/L", '
+                              'coverage_factor = 2 }')
         return S.Solution(sol_id, made_by, concentration=conc, description=description)
     flask = _delivery(t.require("flask"), t, "flask", items, ("volumetric flask",))
     if made_by == "weighing":
         t.allow("made_by", "description", "mass", "balance", "purity", "molar_mass", "flask")
         balance = t.text("balance")
         if balance is not None and (balance not in items or items[balance].kind != "balance"):
-            raise t.error(f"`{balance}` is not a balance defined under [equipment]", "balance")
+            raise t.error(f"`{balance}` is not a balance defined under [equipment]", "balance",
+                          fix=f'define [equipment.{balance}] with kind = "balance", or name another')
         purity = t.uncertain("purity", NONE) if t.has("purity") else None
         if purity is not None and purity.value > 1.0 + 1e-12:
-            raise t.error("a purity cannot exceed 100 %", "purity")
+            raise t.error("a purity cannot exceed 100 %", "purity", fix="give the purity stated on the certificate")
         molar = t.uncertain("molar_mass", (1, 0, -1, 0)) if t.has("molar_mass") else None
         return S.Solution(sol_id, made_by, mass=t.uncertain("mass", MASS), balance=balance,
                           purity=purity, molar_mass=molar, flask=flask, description=description)
@@ -330,23 +359,26 @@ def _calibration(t: Table, items, solutions, defaults) -> S.Calibration:
             if sid not in solutions:
                 raise t.error(f"unknown solution `{sid}`", key, fix=f"define [solutions.{sid}]")
         if len(set(ids)) != len(ids):
-            raise t.error("an id is listed twice", key)
+            raise t.error("an id is listed twice", key, fix="list each solution once")
     for sid in blanks:
         if solutions[sid].made_by != "blank":
-            raise t.error(f"`{sid}` is listed as a blank but is made by {solutions[sid].made_by}", "blanks")
+            raise t.error(f"`{sid}` is listed as a blank but is made by {solutions[sid].made_by}", "blanks",
+                          fix=f'list `{sid}` under `standards`, or make it with made_by = "blank"')
     unit = unit_of(t, "concentration_unit")
     if unit.dims not in ((1, -3, 0, 0), (0, -3, 1, 0)):
-        raise t.error("a concentration unit is needed (e.g. mg/L or µmol/L)", "concentration_unit")
+        raise t.error("a concentration unit is needed (e.g. mg/L or µmol/L)", "concentration_unit",
+                      fix='e.g. concentration_unit = "µmol/L"')
     in_fit = t.get("blanks_in_fit", True)
     if not isinstance(in_fit, bool):
-        raise t.error("expected true or false", "blanks_in_fit")
+        raise t.error("expected true or false", "blanks_in_fit", fix="write true or false without quotes")
     if blanks and not t.has("blanks_in_fit"):
         defaults.append("default: blanks enter the calibration fit as zero-concentration points")
     refs = {}
     for key, kind in (("cuvette", "cuvette"), ("photometer", "photometer")):
         ref = t.text(key)
         if ref is not None and (ref not in items or items[ref].kind != kind):
-            raise t.error(f"`{ref}` is not a {kind} defined under [equipment]", key)
+            raise t.error(f"`{ref}` is not a {kind} defined under [equipment]", key,
+                          fix=f'define [equipment.{ref}] with kind = "{kind}", or name another')
         refs[key] = ref
     readings = t.text("readings", required=True)
     n_points = len(standards) + (len(blanks) if in_fit else 0)
@@ -395,12 +427,13 @@ def _result(top: Table, method: S.Method) -> S.ResultSpec:
     try:
         formula = parse_formula(t.text("formula", required=True))
     except FormulaError as exc:
-        raise t.error(str(exc), "formula") from None
+        raise t.error(str(exc), "formula", fix='e.g. formula = "c_measured * V_flask / V_sample"') from None
     dims = {}
     for name in formula.names:
         if name == "c_measured":
             if method.calibration is None:
-                raise t.error("`c_measured` needs a [calibration]", "formula")
+                raise t.error("`c_measured` needs a [calibration]", "formula",
+                              fix="add a [calibration], or leave c_measured out of the formula")
             dims[name] = method.calibration.concentration_unit.dims
         elif name in method.quantities:
             q = method.quantities[name]
@@ -415,17 +448,21 @@ def _result(top: Table, method: S.Method) -> S.ResultSpec:
     try:
         got = result_dimension(formula, dims)
     except FormulaError as exc:
-        raise t.error(f"the formula's units do not fit together: {exc}", "formula") from None
+        raise t.error(f"the formula's units do not fit together: {exc}", "formula",
+                      fix="check the formula and the units of its quantities") from None
     if tuple(got) != tuple(unit.dims):
         raise t.error(f"the formula gives a {describe_dims(got)}, but the unit {unit.text!r} is a "
                       f"{describe_dims(unit.dims)}", "unit", fix="check the formula and the result's unit")
     if "c_measured" in formula.names and not method.samples:
-        raise t.error("the formula uses `c_measured` but there are no [samples]", "formula")
+        raise t.error("the formula uses `c_measured` but there are no [samples]", "formula",
+                      fix="add a [samples.ID] section for each sample read against the line")
     if method.calibration:
         for sid in method.calibration.standards:
             if method.concentration_dims(sid) != method.calibration.concentration_unit.dims:
                 raise InputError(f"standard `{sid}` has a {describe_dims(method.concentration_dims(sid))} "
                                  f"but the calibration unit is a "
                                  f"{describe_dims(method.calibration.concentration_unit.dims)}",
-                                 file=method.path, where="[calibration].concentration_unit")
+                                 file=method.path, where="[calibration].concentration_unit",
+                                 fix="give a molar mass for amount concentrations, or a unit of the "
+                                     "standards' kind (mg/L for mass, µmol/L for amount)")
     return S.ResultSpec(t.text("name", required=True), unit, formula)

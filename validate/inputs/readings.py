@@ -22,10 +22,11 @@ def read_text_file(path: Path, what: str) -> str:
         raise InputError(f"{what} not found", file=path,
                          fix="check the file name and the folder it is in")
     if path.is_dir():
-        raise InputError(f"{what} is a folder, not a file", file=path)
+        raise InputError(f"{what} is a folder, not a file", file=path, fix="name the file inside it")
     data = path.read_bytes()
     if not data.strip():
-        raise InputError(f"{what} is empty", file=path)
+        raise InputError(f"{what} is empty", file=path,
+                         fix="check that the right file is named and that it was saved with its content")
     if b"\x00" in data:
         raise InputError(f"{what} is not a text file (it contains binary data)", file=path,
                          fix="save it as plain text (UTF-8)")
@@ -37,38 +38,69 @@ def read_text_file(path: Path, what: str) -> str:
                          fix="save the file with UTF-8 encoding") from None
 
 
+# Plausible absorbance readings (common practice): a reading below -0.05 means the
+# reference or blank was wrong; above 4 lies beyond the photometric range that UV-Vis
+# photometers usually specify (about 3 to 4 absorbance), where stray light rules.
+LOWEST_READING = -0.05
+HIGHEST_READING = 4.0
+
+
+def _rows(text: str) -> list[tuple[int, list[str]]]:
+    """(file line number, cells) of each non-empty, non-comment line."""
+    rows = []
+    for line_no, line in enumerate(text.splitlines(), start=1):
+        if line.lstrip().startswith("#"):
+            continue
+        cells = next(csv.reader(io.StringIO(line)), [])
+        if any(cell.strip() for cell in cells):
+            rows.append((line_no, cells))
+    return rows
+
+
 def load_readings(path: Path) -> dict[str, tuple[float, ...]]:
     text = read_text_file(path, "readings table")
-    lines = [ln for ln in text.splitlines() if not ln.lstrip().startswith("#")]
-    reader = csv.reader(io.StringIO("\n".join(lines)))
-    rows = [r for r in reader if any(cell.strip() for cell in r)]
-    header = [h.strip().lower() for h in rows[0]] if rows else []
+    rows = _rows(text)
+    head_line, head_cells = rows[0] if rows else (1, [])
+    header = [h.strip().lower() for h in head_cells]
     missing = [c for c in ("id", "absorbance") if c not in header]
     if missing:
-        hint = " (the file seems to use ';' as separator: use commas)" if ";" in (lines[0] if lines else "") else ""
-        raise InputError(f"missing column(s) {', '.join(missing)}{hint}", file=path, where="line 1 (header)",
-                         fix="the first line must name the columns, e.g. id,absorbance")
+        hint = " (the file seems to use ';' as separator: use commas)" if any(";" in h for h in header) else ""
+        raise InputError(f"missing column(s) {', '.join(missing)}{hint}", file=path,
+                         where=f"line {head_line} (header)",
+                         fix="the first line that is not a comment must name the columns, e.g. id,absorbance")
     i_id, i_a = header.index("id"), header.index("absorbance")
     readings: dict[str, list[float]] = {}
-    for line_no, row in enumerate(rows[1:], start=2):
+    for line_no, row in rows[1:]:
         if len(row) <= max(i_id, i_a):
-            raise InputError("the row has too few cells", file=path, where=f"row {line_no}",
+            raise InputError("the row has too few cells", file=path, where=f"row at line {line_no}",
                              fix="every row needs an id and an absorbance")
+        if any(cell.strip() for cell in row[len(header):]):
+            raise InputError(f"the row has {len(row)} cells but the header names {len(header)} columns",
+                             file=path, where=f"row at line {line_no}",
+                             fix="a decimal comma splits a number into two cells: write a decimal point, "
+                                 "e.g. 0.512")
         ident, cell = row[i_id].strip(), row[i_a].strip()
         if not ident:
-            raise InputError("the id is empty", file=path, where=f"row {line_no}")
+            raise InputError("the id is empty", file=path, where=f"row at line {line_no}",
+                             fix="write the standard, blank or sample id in the first column")
         if re.fullmatch(r"[-+]?\d+,\d+", cell):
             raise InputError(f"the absorbance {cell!r} uses a decimal comma", file=path,
-                             where=f"row {line_no}", fix="write a decimal point, e.g. 0.512, and keep commas as separators")
+                             where=f"row at line {line_no}", fix="write a decimal point, e.g. 0.512, and keep commas as separators")
         try:
             value = float(cell)
         except ValueError:
             raise InputError(f"the absorbance {cell!r} is not a number", file=path,
-                             where=f"row {line_no}, column absorbance",
+                             where=f"row at line {line_no}, column absorbance",
                              fix="write the reading as a plain number, e.g. 0.512") from None
         if not math.isfinite(value):
             raise InputError(f"the absorbance {cell!r} is not a finite number", file=path,
-                             where=f"row {line_no}")
+                             where=f"row at line {line_no}", fix="write the reading as a plain number, e.g. 0.512")
+        if not LOWEST_READING <= value <= HIGHEST_READING:
+            raise InputError(f"the absorbance {value:g} is outside the plausible range "
+                             f"{LOWEST_READING:g} to {HIGHEST_READING:g}", file=path,
+                             where=f"row at line {line_no}",
+                             fix="check the reading; dilute a sample that reads above the range, and check "
+                                 "the blank or reference of a strongly negative reading")
         readings.setdefault(ident, []).append(value)
     if not readings:
         raise InputError("the readings table has no readings", file=path,

@@ -148,6 +148,56 @@ class ValidationSettings:
 
 
 @dataclass(frozen=True)
+class EquilibriumMix:
+    """A standard or mixture: aliquots of the reagent solutions made up in a flask."""
+
+    id: str
+    parts: dict  # "metal"/"ligand" -> Delivery
+    flask: Delivery
+    solutions: dict  # "metal"/"ligand" -> solution id the aliquot is taken from
+
+
+@dataclass(frozen=True)
+class AdditionSeries:
+    """Aliquots of one reagent added one after another to one vessel, read after each."""
+
+    id: str
+    start: dict  # reagent -> Delivery: the vessel's initial contents
+    added: str  # "metal" or "ligand"
+    aliquot: Delivery
+    additions: int
+    solutions: dict  # "metal"/"ligand" -> solution id
+
+    def reading_ids(self) -> list[str]:
+        return [f"{self.id}.{k}" for k in range(1, self.additions + 1)]
+
+
+@dataclass(frozen=True)
+class EquilibriumStudy:
+    """A 1:1 complex-formation study M + L <=> ML (DESIGN.md section 4)."""
+
+    metal: str  # solution ids of the reagent solutions
+    ligand: str
+    limiting: str  # reagent the standards are short of: "metal" or "ligand"
+    standards: tuple[EquilibriumMix, ...]
+    mixtures: tuple[EquilibriumMix, ...]
+    series: tuple[AdditionSeries, ...]
+    correction: str  # "iterate", "none"
+    iterations: int
+    temperature_C: float | None
+    ionic_strength: float | None  # mol/m^3
+    charges: tuple[int, int] | None  # of M and L, for the optional activity correction
+    k_unit: Unit
+    concentration_unit: Unit
+    readings_file: str
+    cuvette: str | None
+    photometer: str | None
+
+    def point_ids(self) -> list[str]:
+        return [m.id for m in self.mixtures] + [r for s in self.series for r in s.reading_ids()]
+
+
+@dataclass(frozen=True)
 class Method:
     path: str
     title: str
@@ -166,6 +216,7 @@ class Method:
     notes: tuple[str, ...] = ()  # warnings about the input that do not stop the run
     registers_used: tuple[str, ...] = ()
     validation: ValidationSettings = field(default_factory=ValidationSettings)
+    equilibrium: EquilibriumStudy | None = None
 
     def concentration_dims(self, solution_id: str) -> tuple[int, ...]:
         """Dimension of a solution's concentration (mass or amount per volume)."""

@@ -45,7 +45,7 @@ class Table:
     def text(self, key: str, default: str | None = None, required: bool = False) -> str | None:
         value = self.require(key) if required else self.data.get(key, default)
         if value is not None and not isinstance(value, str):
-            raise self.error(f"expected text in quotes, got {value!r}", key)
+            raise self.error(f"expected text in quotes, got {value!r}", key, fix=f'write it in quotes, e.g. {key} = "..."')
         return value
 
     def number(self, key: str, default: float | None = None, low=None, high=None) -> float | None:
@@ -53,9 +53,13 @@ class Table:
             return default
         value = self.data[key]
         if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
-            raise self.error(f"expected a number, got {value!r}", key)
+            raise self.error(f"expected a number, got {value!r}", key,
+                             fix=f"write a plain number without quotes, e.g. {key} = 0.95")
         if (low is not None and value <= low) or (high is not None and value >= high):
-            raise self.error(f"{value} is out of range; it must lie between {low} and {high}", key)
+            bounds = " and ".join(b for b in (f"above {low}" if low is not None else "",
+                                               f"below {high}" if high is not None else "") if b)
+            raise self.error(f"{value} is out of range; it must lie {bounds}", key,
+                             fix=f"give a number {bounds}")
         return float(value)
 
     def sub(self, key: str) -> "Table":
@@ -81,9 +85,10 @@ def parse_si(raw, table: Table, key: str, dims=None, positive=True) -> tuple[flo
                           f"but a {wanted} is needed here", key,
                           fix=f"give the value in a unit of {wanted}")
     if not math.isfinite(number):
-        raise table.error("the value is not a finite number", key)
+        raise table.error("the value is not a finite number", key, fix="write a finite number and its unit")
     if positive and number <= 0:
-        raise table.error(f"the value {number} must be greater than zero", key)
+        raise table.error(f"the value {number} must be greater than zero", key,
+                          fix="give the value as used or stated, greater than zero")
     return number * unit.factor, unit
 
 
@@ -112,16 +117,17 @@ def parse_uncertain(raw, parent: Table, key: str, dims=None, positive=True) -> U
                       fix=f"use one of: {', '.join(DISTRIBUTIONS)}")
     spread_keys = [k for k in ("u", "half_width", "expanded_uncertainty") if t.has(k)]
     if len(spread_keys) > 1:
-        raise t.error(f"give only one of {', '.join(spread_keys)}")
+        raise t.error(f"give only one of {', '.join(spread_keys)}", fix="keep the one your source states")
     if not spread_keys:
         return UncertainValue(value, unit, provenance=provenance or "stated value, no uncertainty given")
     spread_key = spread_keys[0]
     spread, spread_unit = parse_si(t.get(spread_key), t, spread_key, None, positive=False)
     if spread_unit.dims != unit.dims:
         raise t.error(f"the unit of `{spread_key}` ({spread_unit.text}) does not match the value's "
-                      f"({unit.text})", spread_key)
+                      f"({unit.text})", spread_key, fix=f"give `{spread_key}` in {unit.text or 'no unit'}, "
+                      f"like the value")
     if spread < 0:
-        raise t.error("an uncertainty cannot be negative", spread_key)
+        raise t.error("an uncertainty cannot be negative", spread_key, fix="give its size, zero or more")
     dof = t.number("dof", math.inf, low=0)
     if spread_key == "half_width":
         dist = dist or "rectangular"
@@ -135,7 +141,8 @@ def parse_uncertain(raw, parent: Table, key: str, dims=None, positive=True) -> U
             return UncertainValue(value, unit, u, dist, dof, provenance, "B", d)
         else:
             raise t.error(f"a half-width goes with a rectangular, triangular or trapezoid "
-                          f"distribution, not {dist!r}", "distribution")
+                          f"distribution, not {dist!r}", "distribution",
+                          fix="give `u` (a standard uncertainty) for this distribution")
     elif spread_key == "expanded_uncertainty":
         k = t.number("coverage_factor", low=0)
         if k is None:
@@ -145,20 +152,22 @@ def parse_uncertain(raw, parent: Table, key: str, dims=None, positive=True) -> U
     else:
         u, dist = spread, dist or ("t" if math.isfinite(dof) else "normal")
     if dist == "t" and not math.isfinite(dof):
-        raise t.error("a t distribution needs `dof` (degrees of freedom)", "dof")
+        raise t.error("a t distribution needs `dof` (degrees of freedom)", "dof", fix="add dof = n - 1 for n readings")
     if dist in ("rectangular", "triangular", "trapezoid") and spread_key != "half_width":
-        raise t.error(f"give a {dist} distribution by its `half_width`", spread_key)
+        raise t.error(f"give a {dist} distribution by its `half_width`", spread_key,
+                      fix=f"write half_width = ... instead of {spread_key}")
     return UncertainValue(value, unit, u, dist, dof, provenance, "B")
 
 
 def _type_a(t: Table, dims, positive, provenance) -> UncertainValue:
     readings = t.get("readings")
     if not isinstance(readings, list) or len(readings) < 2:
-        raise t.error("`readings` must be a list of at least two values", "readings")
+        raise t.error("`readings` must be a list of at least two values", "readings",
+                      fix='e.g. readings = ["1.02 g", "1.01 g", "1.03 g"]')
     parsed = [parse_si(r, t, f"readings[{i}]", dims, positive) for i, r in enumerate(readings)]
     units = {p[1].dims for p in parsed}
     if len(units) > 1:
-        raise t.error("the readings have different kinds of unit", "readings")
+        raise t.error("the readings have different kinds of unit", "readings", fix="give every reading in one unit")
     values = [p[0] for p in parsed]
     n = len(values)
     mean = sum(values) / n
@@ -172,8 +181,9 @@ def unit_of(table: Table, key: str, dims=None) -> Unit:
     try:
         unit = parse_unit(raw)
     except UnitError as exc:
-        raise table.error(str(exc), key) from None
+        raise table.error(str(exc), key, fix='write a unit such as "mg/L" or "µmol/L"') from None
     if dims is not None and unit.dims != tuple(dims):
         raise table.error(f"{raw!r} is a {describe_dims(unit.dims)}, but a "
-                          f"{describe_dims(tuple(dims))} is needed", key)
+                          f"{describe_dims(tuple(dims))} is needed", key,
+                          fix=f"give a unit of {describe_dims(tuple(dims))}")
     return unit

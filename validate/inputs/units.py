@@ -120,9 +120,9 @@ def parse_quantity(text) -> tuple[float, Unit]:
         return float(text), parse_unit("")
     if not isinstance(text, str):
         raise UnitError(f"expected a number with its unit such as \"10 mL\", got {text!r}")
+    if re.match(r"^\s*[-+]?\d+,\d", text):  # checked first: "68,05 mg" would read as 68 ",05 mg"
+        raise UnitError(f"{text!r} uses a decimal comma (or a thousands separator); write a decimal point, e.g. \"10.5 mL\"")
     match = _QUANTITY.match(text)
     if not match:
-        if re.match(r"^\s*\d+,\d+", text):
-            raise UnitError(f"{text!r} uses a decimal comma; write a decimal point, e.g. \"10.5 mL\"")
         raise UnitError(f"{text!r} is not a number followed by a unit, e.g. \"10 mL\"")
     return float(match.group(1)), parse_unit(match.group(2))

@@ -98,9 +98,9 @@ def propagate(model: Model) -> list[LinearResult]:
     variables = {name: ufloat(src.value, src.u, tag=name) for name, src in model.sources.items()}
     outputs = model.evaluate(variables)
     p = model.method.settings.coverage_probability
-    unit = model.method.result.unit.text
     results = []
     for label, y in outputs.items():
+        unit = model.unit_of(label)
         if not isinstance(y, AffineScalarFunc):  # no uncertain input reached this result
             y = ufloat(float(y), 0.0)
         if not math.isfinite(y.nominal_value):

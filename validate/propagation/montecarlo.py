@@ -26,7 +26,7 @@ from validate.propagation.mcstats import (AdaptiveCheck, GumValidation, Histogra
 
 CHUNK = 100_000  # trials evaluated together: large enough for numpy, small enough for memory
 MAX_ADAPTIVE_TRIALS = 10_000_000
-SHARE_TRIALS = 100_000  # trials per held-group run for the Monte Carlo shares
+SHARE_TRIALS = 50_000  # trials per held-group run for the Monte Carlo shares (common random numbers)
 INVALID_WARNING = 0.001  # share of undefined trials above which a warning is shown
 
 

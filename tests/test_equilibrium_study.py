@@ -1,0 +1,99 @@
+"""An equilibrium study through the method file: exact recovery, the record, correlations."""
+
+from __future__ import annotations
+
+import shutil
+
+import numpy as np
+import pytest
+
+from validate import api
+from validate.equilibrium import complex_concentration
+from validate.propagation.montecarlo import evaluate_trials
+
+from conftest import DEMOS
+
+DEMO = DEMOS / "nickel_complex"
+
+
+def _noise_free_copy(tmp_path, K_L_per_mol: float, correction: str = "iterate", iterations: int = 60):
+    """The demo with readings computed exactly from a chosen K (and absorptivity, intercept)."""
+    folder = tmp_path / "study"
+    shutil.copytree(DEMO, folder)
+    text = (folder / "method.toml").read_text()
+    text = text.replace('correction = "iterate"', f'correction = "{correction}"')
+    text = text.replace("iterations = 12", f"iterations = {iterations}")
+    (folder / "method.toml").write_text(text)
+    method, model = api.check(folder / "method.toml")
+    sm, sl, _, _, pm, pl, _ = model.columns(model.nominal_inputs())
+    K = K_L_per_mol * 1e-3  # SI: m^3/mol; concentrations in mol/m^3
+    slope, intercept = 4.2, 0.004  # absorbance per mmol/L (10 mm cell), blank
+    lines = ["id,absorbance"]
+    ids = [m.id for m in method.equilibrium.standards] + model.points
+    for ident, m, l_ in zip(ids, list(sm) + list(pm), list(sl) + list(pl)):
+        a = intercept + slope * complex_concentration(K, m, l_)
+        lines += [f"{ident},{a!r}", f"{ident},{a!r}"]
+    (folder / "readings.csv").write_text("\n".join(lines) + "\n")
+    return folder / "method.toml"
+
+
+@pytest.mark.parametrize("K", [30.0, 850.0, 2.0e4])
+def test_exact_readings_give_back_K(tmp_path, K):
+    # noise-free readings generated from a chosen K: every point and the combined K must
+    # return it (the standards' incomplete complexation corrected by the iteration)
+    run = api.analyse(_noise_free_copy(tmp_path, K), trials=None)
+    e = run.record["equilibrium"]
+    for point in e["mixtures"]:
+        assert point["K"] == pytest.approx(K, rel=1e-6), point["id"]
+    assert e["combined"]["K"] == pytest.approx(K, rel=1e-6)
+    assert e["log10K"]["value"] == pytest.approx(np.log10(K), abs=1e-6)
+
+
+def test_full_complexation_bias_matches_closed_form(tmp_path):
+    # Without correction the standards are taken as fully complexed. For a large excess of M the
+    # fraction of L complexed is f = K[M]/(1 + K[M]) (1:1 mass balance), so the naive slope is
+    # f times the true one: relative slope bias f - 1 (closed form of the 1:1 equilibrium).
+    K = 850.0
+    run = api.analyse(_noise_free_copy(tmp_path, K), trials=None)
+    bias = run.record["equilibrium"]["complete_complexation_bias"]
+    method, model = run.method, run.model
+    sm, sl, *_ = model.columns(model.nominal_inputs())
+    free_m = sm[0] - complex_concentration(K * 1e-3, sm[0], sl[0])  # mol/m^3 = mmol/L
+    f = (K * 1e-3 * free_m) / (1 + K * 1e-3 * free_m)
+    assert bias["slope"] == pytest.approx(f - 1, rel=0.02)  # f varies slightly between standards
+    assert bias["K"] > 0  # the naive K comes out high
+
+
+def test_demo_record_equilibrium_block():
+    run = api.analyse(DEMO / "method.toml", trials=20_000, seed=5)
+    e = run.record["equilibrium"]
+    for key in ("mixtures", "combined", "complete_complexation_bias", "conditions", "log10K"):
+        assert key in e
+    for point in e["mixtures"]:
+        assert {"K", "u_K", "interval"} <= set(point)
+        assert point["interval"][0] < point["K"] < point["interval"][1]
+    combined = e["combined"]
+    for key in ("K", "standard_uncertainty", "expanded_uncertainty", "interval", "consistency"):
+        assert key in combined
+    # the combination has a smaller uncertainty than the best single point
+    assert combined["standard_uncertainty"] < min(p["u_K"] for p in e["mixtures"])
+    assert e["conditions"]["temperature_C"] == 25.0
+
+
+def test_series_covariance_linear_against_monte_carlo():
+    # Points of one addition series share the vessel, the pipette's offset and the line, so their
+    # K values are correlated; the linear engine's correlation matrix (GUM 5.2) must match the
+    # Monte Carlo sample correlations (JCGM 101 7.5) within sampling error.
+    run = api.analyse(DEMO / "method.toml", trials=None)
+    _, _, cov = run.combination
+    cov = np.asarray(cov)
+    labels = [f"K, {p}" for p in run.model.points]
+    out = evaluate_trials(run.model, 100_000, np.random.default_rng(8))
+    samples = np.vstack([out[label] for label in labels])
+    mc_corr = np.corrcoef(samples)
+    sd = np.sqrt(np.diag(cov))
+    gum_corr = cov / np.outer(sd, sd)
+    series = [i for i, p in enumerate(run.model.points) if p.startswith("T.")]
+    block = np.ix_(series, series)
+    assert np.max(np.abs(mc_corr[block] - gum_corr[block])) < 0.05
+    assert np.min(gum_corr[block]) > 0.3  # they really are correlated

@@ -1,0 +1,312 @@
+"""Calibration standards that are not fully complexed: correct them and find K.
+
+The usual shortcut takes a standard made with a large excess of one reagent
+as fully complexed, [ML] = total of the limiting reagent. When K times the
+free excess is not large, only a fraction K[X]/(1 + K[X]) is complexed, the
+slope (molar absorptivity times path length) comes out low and K from the
+mixtures comes out high. Two corrections are offered:
+
+- `iterate_standards`: generic over the numeric backend (floats, ufloats,
+  numpy arrays of trials). Fit the line on full complexation, get K from the
+  mixtures, recompute [ML] in every standard with that K, refit; a fixed
+  number of vectorised iterations.
+- `fit_joint`: K, slope and intercept fitted together by nonlinear least
+  squares over all readings (plain floats only, scipy), with the covariance
+  from the Jacobian.
+
+Both report the relative bias that the full-complexation shortcut causes.
+Model of the readings: A = intercept + slope [ML]; only the complex absorbs
+beyond what the intercept (blank) takes up. Concentrations in one consistent
+unit; K in its reciprocal.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import optimize
+from uncertainties.core import AffineScalarFunc
+
+from validate import mathops
+from validate.equilibrium import (
+    IceTable, complex_concentration, complex_concentration_derivative, count_undefined,
+    describe_value, equilibrium_constant, fraction_complexed,
+)
+
+
+def line_by_sums(x, y, weights=None):
+    """Slope and intercept of y on x by least squares, written with sums only.
+
+    b = sum w (x - xm)(y - ym) / sum w (x - xm)^2, a = ym - b xm (weighted
+    means), the normal equations of a straight line (e.g. Miller & Miller,
+    Statistics and Chemometrics for Analytical Chemistry, sections 5.4 and
+    5.10). Generic: x and y are sequences of per-point values of any backend;
+    the loop runs over points, never over trials. Weights are plain floats.
+    """
+    n = len(x)
+    w = [1.0] * n if weights is None else [float(v) for v in weights]
+    sw = sum(w)
+    xm = sum(wi * xi for wi, xi in zip(w, x)) / sw
+    ym = sum(wi * yi for wi, yi in zip(w, y)) / sw
+    sxx = sum(wi * (xi - xm) ** 2 for wi, xi in zip(w, x))
+    sxy = sum(wi * (xi - xm) * (yi - ym) for wi, xi, yi in zip(w, x, y))
+    slope = sxy / sxx
+    return slope, ym - slope * xm
+
+
+@dataclass(frozen=True)
+class StandardsCorrection:
+    """Result of `iterate_standards`; value fields hold the caller's backend."""
+
+    K: object  # combined K of the mixtures after correction
+    slope: object  # absorbance per unit [ML] (molar absorptivity x path length)
+    intercept: object
+    molar_absorptivity: object  # slope / path length
+    mixtures: tuple  # IceTable per mixture (corrected)
+    fraction_standards: tuple  # fraction of the limiting reagent complexed, per standard
+    naive_K: object  # K with standards taken as fully complexed
+    naive_slope: object
+    naive_intercept: object
+    slope_bias: object  # naive/corrected - 1
+    K_bias: object  # naive/corrected - 1
+    iterations: int  # steps done (fewer than asked only when a scalar run left the domain)
+    change_history: tuple  # largest |relative change of K| per iteration (finite trials)
+    converged: bool
+    unconverged_trials: int  # trials whose last relative change exceeds the tolerance
+    undefined_trials: int  # trials with K or a mixture concentration not finite and positive
+
+    def to_dict(self) -> dict:
+        d = {k: describe_value(getattr(self, k)) for k in (
+            "K", "slope", "intercept", "molar_absorptivity", "fraction_standards",
+            "naive_K", "naive_slope", "naive_intercept", "slope_bias", "K_bias", "change_history")}
+        d.update(mixtures=[m.to_dict() for m in self.mixtures], iterations=self.iterations,
+                 converged=self.converged, unconverged_trials=self.unconverged_trials,
+                 undefined_trials=self.undefined_trials)
+        return d
+
+
+def _check_lengths(kind, *columns, minimum):
+    n = len(columns[0])
+    if any(len(c) != n for c in columns):
+        raise ValueError(f"{kind}: the M totals, L totals and absorbances have different lengths; "
+                         "give one of each per solution")
+    if n < minimum:
+        raise ValueError(f"{kind}: {n} given, at least {minimum} needed")
+
+
+def _settle(x):
+    """Expand a ufloat's derivatives now; other backends pass through.
+
+    Performance only, values unchanged: `uncertainties` expands a nested
+    expression by walking every path to the inputs, which grows
+    exponentially over the iterations unless each step is flattened.
+    """
+    if isinstance(x, AffineScalarFunc):
+        x.derivatives  # noqa: B018  (the property expands and caches)
+    return x
+
+
+def _largest_abs(x) -> float:
+    """Largest |x| over the finite trials (nan when none is finite)."""
+    v = np.abs(np.atleast_1d(np.asarray(mathops.nominal(x), dtype=float)))
+    v = v[np.isfinite(v)]
+    return float(v.max()) if v.size else math.nan
+
+
+def _mixture_states(slope, intercept, mixtures_M, mixtures_L, mixtures_A):
+    return tuple(equilibrium_constant((a - intercept) / slope, m, l)
+                 for m, l, a in zip(mixtures_M, mixtures_L, mixtures_A))
+
+
+def _combined(states: tuple[IceTable, ...], weights):
+    return sum(w * s.K for w, s in zip(weights, states))
+
+
+def iterate_standards(standards_M, standards_L, standards_A, mixtures_M, mixtures_L, mixtures_A, *,
+                      limiting: str = "L", path_length=1.0, iterations: int = 30,
+                      damping: float = 1.0, tolerance: float = 1e-9,
+                      standard_weights=None, mixture_weights=None) -> StandardsCorrection:
+    """Correct the standards for incomplete complexation by iteration.
+
+    Start: [ML] in each standard = total of the `limiting` reagent; fit the
+    line; [ML] of each mixture = (A - intercept)/slope; K per mixture from
+    the ICE table; combined K = weighted mean of the mixtures' K (equal
+    weights unless given). Then, `iterations` times: [ML] of each standard
+    from the current K (stable quadratic root), refit, recompute K, and
+    K <- K + damping (K_new - K).
+
+    Near the solution the plain iteration (damping 1) contracts by the factor
+    c = (1 - f)(1 + [ML]/[M] + [ML]/[L]), f being the fraction complexed in
+    the standards and the bracket the sensitivity of K to [ML] in a mixture
+    (first-order analysis of the fixed point); it converges when c < 1, and
+    damping 0.5 extends that to c < 3. Far from the solution (a large naive
+    bias) it can drift towards K -> 0, which is also a fixed point. So the
+    result says whether it converged; when it did not, use `fit_joint`.
+    The check uses nominal values (every trial's for arrays).
+    """
+    if limiting not in ("L", "M"):
+        raise ValueError(f"limiting={limiting!r}: say which reagent the standards are short of, 'L' or 'M'")
+    _check_lengths("standards", standards_M, standards_L, standards_A, minimum=2)
+    _check_lengths("mixtures", mixtures_M, mixtures_L, mixtures_A, minimum=1)
+    if iterations < 1 or not (0.0 < damping <= 1.0):
+        raise ValueError("iterations must be >= 1 and damping in (0, 1]")
+    n_mix = len(mixtures_A)
+    mw = [1.0] * n_mix if mixture_weights is None else [float(v) for v in mixture_weights]
+    mw = [v / sum(mw) for v in mw]
+    limiting_totals = list(standards_L if limiting == "L" else standards_M)
+
+    # Start: full complexation of the limiting reagent.
+    try:
+        slope, intercept = line_by_sums(limiting_totals, standards_A, standard_weights)
+        states = _mixture_states(slope, intercept, mixtures_M, mixtures_L, mixtures_A)
+        K = _combined(states, mw)
+    except ZeroDivisionError:
+        raise ValueError("the standards give no line: their limiting-reagent totals are all equal, "
+                         "or the slope is zero, or a mixture has a free concentration of exactly "
+                         "zero; check the standards' concentrations and absorbances") from None
+    naive_slope, naive_intercept, naive_K = slope, intercept, K
+
+    history = []
+    change = math.nan
+    with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
+        for _ in range(iterations):  # a fixed count of vectorised steps, no test on values
+            try:
+                x_std = [_settle(complex_concentration(K, m, l)) for m, l in zip(standards_M, standards_L)]
+                slope, intercept = (_settle(v) for v in line_by_sums(x_std, standards_A, standard_weights))
+                states = _mixture_states(slope, intercept, mixtures_M, mixtures_L, mixtures_A)
+                K_new = _settle(K + damping * (_combined(states, mw) - K))
+            except (ValueError, ZeroDivisionError, OverflowError):
+                # Only scalars raise (numpy gives nan per trial): the iteration left the
+                # domain (K <= 0 or a zero slope). Report it as undefined, not converged.
+                K, slope, change = math.nan, math.nan, math.nan
+                history.append(math.nan)
+                break
+            change = (K_new - K) / K_new
+            history.append(_largest_abs(change))
+            K = K_new
+        fractions = tuple(fraction_complexed(K, m, l, of=limiting) for m, l in zip(standards_M, standards_L))
+        final_change = np.abs(np.atleast_1d(np.asarray(mathops.nominal(change), dtype=float)))
+        unconverged = int(np.count_nonzero(~(final_change <= tolerance)))
+        # A zero or non-finite slope shows up as non-finite [ML] in the mixtures.
+        undefined = count_undefined(K, *[q for s in states
+                                                for q in (s.complex_conc, s.free_M, s.free_L)])
+    return StandardsCorrection(
+        K=K, slope=slope, intercept=intercept, molar_absorptivity=slope / path_length,
+        mixtures=states, fraction_standards=fractions, naive_K=naive_K, naive_slope=naive_slope,
+        naive_intercept=naive_intercept, slope_bias=naive_slope / slope - 1.0,
+        K_bias=naive_K / K - 1.0, iterations=len(history),
+        change_history=tuple(history), converged=bool(history[-1] <= tolerance),
+        unconverged_trials=unconverged, undefined_trials=undefined,
+    )
+
+
+@dataclass(frozen=True)
+class JointFit:
+    """K, slope and intercept fitted together to all readings (plain floats)."""
+
+    K: float
+    K_u: float
+    log10_K: float
+    log10_K_u: float
+    slope: float
+    slope_u: float
+    intercept: float
+    intercept_u: float
+    molar_absorptivity: float
+    molar_absorptivity_u: float  # from the fit only; add the path length's uncertainty separately
+    covariance: tuple  # 3x3, order (K, slope, intercept)
+    residual_sd: float  # sqrt(RSS/dof); sqrt(chi^2/dof), in units of reading_sd, when that is given
+    dof: int
+    n: int
+    sigma_known: bool  # True: covariance from the given reading sd; False: scaled by the residuals
+    naive_K: float
+    naive_slope: float
+    slope_bias: float  # naive/fitted - 1
+    K_bias: float
+    success: bool
+    message: str
+
+    def to_dict(self) -> dict:
+        d = {k: getattr(self, k) for k in self.__dataclass_fields__}
+        d["covariance"] = [list(row) for row in self.covariance]
+        return d
+
+
+def _float_column(name, values):
+    try:
+        return np.asarray([float(v) for v in values], dtype=float)
+    except TypeError as exc:
+        raise ValueError(f"fit_joint: {name} must be plain numbers (it fits estimates); "
+                         "pass nominal values and propagate uncertainty with iterate_standards") from exc
+
+
+def fit_joint(standards_M, standards_L, standards_A, mixtures_M, mixtures_L, mixtures_A, *,
+              limiting: str = "L", path_length: float = 1.0, reading_sd=None) -> JointFit:
+    """Nonlinear least squares of A = a + b [ML](K, M0, L0) over every reading.
+
+    Parameters fitted: log10 K (keeps K > 0 and scales well), b, a; solved
+    with scipy.optimize.least_squares and an analytic Jacobian. Covariance:
+    s^2 (J'J)^-1 with s^2 = RSS/(n - 3), or (J'J)^-1 of the residuals divided
+    by `reading_sd` when that is given (Bates & Watts, Nonlinear Regression
+    Analysis and Its Applications, 1988, section 2.3; Press et al.,
+    Numerical Recipes 3rd ed., section 15.5). u(K) = K ln10 u(log10 K).
+    """
+    _check_lengths("standards", standards_M, standards_L, standards_A, minimum=2)
+    _check_lengths("mixtures", mixtures_M, mixtures_L, mixtures_A, minimum=1)
+    M = np.concatenate([_float_column("M totals", standards_M), _float_column("M totals", mixtures_M)])
+    L = np.concatenate([_float_column("L totals", standards_L), _float_column("L totals", mixtures_L)])
+    A = np.concatenate([_float_column("absorbances", standards_A), _float_column("absorbances", mixtures_A)])
+    n = len(A)
+    if n < 4:
+        raise ValueError("fit_joint: at least 4 readings are needed to fit 3 parameters with an uncertainty")
+    sd = np.ones(n) if reading_sd is None else np.broadcast_to(np.asarray(reading_sd, dtype=float), (n,))
+    if np.any(~np.isfinite(sd)) or np.any(sd <= 0):
+        raise ValueError("fit_joint: reading_sd must be positive and finite")
+
+    start = iterate_standards(standards_M, standards_L, standards_A, mixtures_M, mixtures_L,
+                              mixtures_A, limiting=limiting, iterations=5, damping=0.5)
+    ok = bool(np.isfinite(start.K) and start.K > 0)
+    # Start from the short iteration when it stayed defined, else from the naive line
+    # and K ~ 1/concentration (the middle of the range a mixture design can resolve).
+    K0 = float(start.K) if ok else 1.0 / float(np.mean(L[len(standards_A):]))
+
+    def residuals(p):
+        K = 10.0 ** p[0]
+        return (p[2] + p[1] * complex_concentration(K, M, L) - A) / sd
+
+    def jacobian(p):
+        K = 10.0 ** p[0]
+        dK = p[1] * complex_concentration_derivative(K, M, L) * K * math.log(10.0)
+        return np.column_stack([dK, complex_concentration(K, M, L), np.ones(n)]) / sd[:, None]
+
+    p0 = np.array([math.log10(K0), float(start.slope if ok else start.naive_slope),
+                   float(start.intercept if ok else start.naive_intercept)])
+    sol = optimize.least_squares(residuals, p0, jac=jacobian, method="lm", x_scale="jac",
+                                 xtol=1e-15, ftol=1e-15, gtol=1e-15, max_nfev=2000)
+    lgK, b, a = sol.x
+    K = 10.0**lgK
+    J = jacobian(sol.x)
+    rss = float(np.sum(sol.fun**2))
+    dof = n - 3
+    s2 = 1.0 if reading_sd is not None else rss / dof
+    try:
+        cov_p = s2 * np.linalg.inv(J.T @ J)
+    except np.linalg.LinAlgError:
+        cov_p = np.full((3, 3), math.nan)
+    T = np.diag([K * math.log(10.0), 1.0, 1.0])  # d(K, b, a)/d(log10 K, b, a)
+    cov = T @ cov_p @ T
+    u = np.sqrt(np.diag(cov))
+    # The shortcut's values come from the same arithmetic, taken before any correction.
+    naive_slope, naive_K = float(start.naive_slope), float(start.naive_K)
+    return JointFit(
+        K=K, K_u=float(u[0]), log10_K=float(lgK), log10_K_u=float(math.sqrt(cov_p[0, 0])),
+        slope=float(b), slope_u=float(u[1]), intercept=float(a), intercept_u=float(u[2]),
+        molar_absorptivity=float(b) / path_length, molar_absorptivity_u=float(u[1]) / path_length,
+        covariance=tuple(tuple(float(v) for v in row) for row in cov),
+        residual_sd=math.sqrt(rss / dof) if dof > 0 else math.nan, dof=dof, n=n,
+        sigma_known=reading_sd is not None, naive_K=naive_K, naive_slope=naive_slope,
+        slope_bias=naive_slope / float(b) - 1.0, K_bias=naive_K / K - 1.0,
+        success=bool(sol.success), message=str(sol.message),
+    )

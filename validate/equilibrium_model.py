@@ -1,0 +1,182 @@
+"""The measurement model of a 1:1 complex-formation study, for both engines.
+
+Reagent solutions (from the method's [solutions]) -> totals of M and L in every
+standard, mixture and addition-series point (volumes of each aliquot and the
+flask, or the growing vessel volume) -> mean readings -> the line of the
+standards (refitted) -> optionally the standards corrected for incomplete
+complexation by a fixed number of vectorised iterations -> [ML], free M and L,
+and K for every point (ICE table) -> the combined K with fixed generalised
+least-squares weights (from the linear engine's covariance) -> log10 K.
+
+Outputs are in the display units of the study (K in `k_unit`).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from validate import mathops
+from validate.calibration import fit_line
+from validate.equilibrium import equilibrium_constant
+from validate.equilibrium_fit import iterate_standards, line_by_sums
+from validate.inputs.schema import Method
+from validate.metrology.equipment import SourceSet, volume_term
+from validate.metrology.sources import Source
+from validate.model import ModelError, mean_reading_term, solution_order, solution_term
+
+COMBINED = "K, combined"
+LOG10 = "log10 K, combined"
+
+
+def positive_or_nan(x):
+    """Trials where K is not positive have no defined result: nan (counted by the engine).
+    Plain floats and ufloats (the estimates) pass through unchanged."""
+    if isinstance(x, np.ndarray):
+        return np.where(x > 0, x, np.nan)
+    return x
+
+
+@dataclass
+class EquilibriumModel:
+    method: Method
+    sources: dict[str, Source]
+    points: list[str]  # ids of mixtures and series readings, in order
+    weights: list[float] | None = None  # GLS weights of the combined K, set after a first pass
+    assumptions: list[str] = field(default_factory=list)
+    _solutions: dict = field(default_factory=dict, repr=False)
+    _standards: list = field(default_factory=list, repr=False)  # (id, replicates, totals fn, reading fn)
+    _points: list = field(default_factory=list, repr=False)
+
+    @property
+    def result_labels(self) -> list[str]:
+        labels = [f"K, {p}" for p in self.points]
+        return labels + ([COMBINED, LOG10] if self.weights is not None else [])
+
+    def unit_of(self, label: str) -> str:
+        study = self.method.equilibrium
+        return "" if label == LOG10 else study.k_unit.text
+
+    def nominal_inputs(self) -> dict[str, float]:
+        return {name: s.value for name, s in self.sources.items()}
+
+    def concentrations(self, x) -> dict:
+        conc = {}
+        for sol_id, term in self._solutions.items():
+            conc[sol_id] = term(x, conc)
+        return conc
+
+    def columns(self, x):
+        """Totals of M and L and mean absorbances of the standards and of the points (SI)."""
+        conc = self.concentrations(x)
+        std = [(totals(x, conc), reading(x), n) for _, n, totals, reading in self._standards]
+        pts = [(totals(x, conc), reading(x)) for _, totals, reading in self._points]
+        return ([t[0] for t, _, _ in std], [t[1] for t, _, _ in std], [a for _, a, _ in std],
+                [n for _, _, n in std], [t[0] for t, _ in pts], [t[1] for t, _ in pts], [a for _, a in pts])
+
+    def ice_tables(self, x):
+        sm, sl, sa, reps, pm, pl, pa = self.columns(x)
+        study = self.method.equilibrium
+        if study.correction == "none":
+            limiting = sl if study.limiting == "ligand" else sm
+            slope, intercept = line_by_sums(limiting, sa, reps)
+            return [equilibrium_constant((a - intercept) / slope, m, l) for m, l, a in zip(pm, pl, pa)]
+        corrected = iterate_standards(sm, sl, sa, pm, pl, pa, limiting="L" if study.limiting == "ligand" else "M",
+                                      iterations=study.iterations, standard_weights=reps)
+        return list(corrected.mixtures)
+
+    def evaluate(self, x) -> dict:
+        factor = self.method.equilibrium.k_unit.factor
+        ks = [positive_or_nan(state.K) for state in self.ice_tables(x)]
+        out = {f"K, {p}": k / factor for p, k in zip(self.points, ks)}
+        if self.weights is not None:
+            combined = sum(w * k for w, k in zip(self.weights, ks)) / factor
+            out[COMBINED] = combined
+            out[LOG10] = mathops.log10(combined)
+        return out
+
+
+def build_equilibrium_model(method: Method) -> EquilibriumModel:
+    study = method.equilibrium
+    ss = SourceSet()
+    observed = method.settings.scatter == "observed"
+    model = EquilibriumModel(method, ss.sources, study.point_ids())
+    for sol in solution_order(method.solutions):
+        model._solutions[sol.id] = solution_term(ss, method, sol, False)
+
+    def mix_totals(mix, is_standard):
+        step = f"prepare {mix.id}"
+        flask = volume_term(ss, method, mix.flask, step, mix.id, not (observed and is_standard))
+        parts = {r: volume_term(ss, method, d, step, f"{mix.id}, {r}", not (observed and is_standard))
+                 for r, d in mix.parts.items()}
+
+        def totals(x, conc):
+            v = flask(x)
+            m = conc[mix.solutions["metal"]] * parts["metal"](x) / v if "metal" in parts else 0.0
+            l_ = conc[mix.solutions["ligand"]] * parts["ligand"](x) / v if "ligand" in parts else 0.0
+            return m, l_
+        return totals
+
+    std_totals = [mix_totals(mix, True) for mix in study.standards]
+    scatter = _standards_scatter(model, method, std_totals) if observed else None
+    for mix, totals in zip(study.standards, std_totals):
+        model._standards.append((mix.id, len(method.readings[mix.id]), totals,
+                                 mean_reading_term(ss, method, mix.id, scatter, study.cuvette, study.photometer)))
+    for mix in study.mixtures:
+        model._points.append((mix.id, mix_totals(mix, False),
+                              mean_reading_term(ss, method, mix.id, scatter, study.cuvette, study.photometer)))
+    for series in study.series:
+        step = f"addition series {series.id}"
+        start = {r: volume_term(ss, method, d, step, f"{series.id} start, {r}") for r, d in series.start.items()}
+        additions = [volume_term(ss, method, series.aliquot, step, f"{series.id} addition {k}")
+                     for k in range(1, series.additions + 1)]
+        for k, ident in enumerate(series.reading_ids(), start=1):
+            model._points.append((ident, _series_totals(series.solutions, start, additions[:k], series.added),
+                                  mean_reading_term(ss, method, ident, scatter, study.cuvette, study.photometer)))
+    model.assumptions.append(
+        "1:1 complex M + L <=> ML; only the complex absorbs beyond the blank (the line's intercept); "
+        "K is conditional on the temperature and ionic strength recorded")
+    if study.correction == "iterate":
+        model.assumptions.append(
+            f"standards corrected for incomplete complexation: {study.iterations} iterations of "
+            "K -> [ML] in each standard (stable quadratic root) -> refitted line -> K")
+    else:
+        model.assumptions.append("standards taken as fully complexed (no correction); the record shows "
+                                 "the bias this assumption causes")
+    if observed:
+        model.assumptions.append(
+            "calibration scatter treated as observed: the standards' residual scatter stands for the random "
+            "effects of preparing and reading standards and mixtures")
+    return model
+
+
+def _series_totals(reagent_solution, start, additions, added):
+    """Totals after k additions: the vessel holds the start aliquots plus k aliquots."""
+    def totals(x, conc):
+        volume = sum(v(x) for v in start.values()) + sum(a(x) for a in additions)
+        amount = {r: conc[reagent_solution[r]] * v(x) for r, v in start.items()}
+        amount[added] = amount.get(added, 0.0) + conc[reagent_solution[added]] * sum(a(x) for a in additions)
+        return amount.get("metal", 0.0) / volume, amount.get("ligand", 0.0) / volume
+    return totals
+
+
+def _standards_scatter(model, method, std_totals):
+    """Residual SD and n-2 of the standards' line at the estimates (readings on limiting totals)."""
+    study = method.equilibrium
+    x0 = model.nominal_inputs()
+    conc = model.concentrations(x0)
+    xs, ys = [], []  # absorbance as read: the scatter terms are added before dividing by the path
+    for mix, totals in zip(study.standards, std_totals):
+        m, l_ = totals(x0, conc)
+        for a in method.readings[mix.id]:
+            xs.append(l_ if study.limiting == "ligand" else m)
+            ys.append(a)
+    try:
+        fit = fit_line(xs, ys)
+    except ValueError as exc:
+        raise ModelError(f"equilibrium standards: {exc}") from None
+    if not math.isfinite(fit.residual_sd) or fit.dof < 1:
+        raise ModelError("equilibrium standards: too few readings to estimate the scatter of the line")
+    return fit.residual_sd, fit.dof

@@ -1,0 +1,120 @@
+"""The equilibrium block of the record: K per point and combined, with both engines.
+
+`prepare_combination` runs the linear engine once on the per-point K values to
+get their covariance (they share the line, the stock solutions and the
+glassware), combines them by generalised least squares and fixes the weights
+in the model, so both engines then evaluate the same combined estimator.
+"""
+
+from __future__ import annotations
+
+import math
+
+from uncertainties import covariance_matrix, ufloat
+
+from validate.equilibrium_combine import combine_correlated, davies_activity_correction, trend_test
+from validate.equilibrium_fit import fit_joint, iterate_standards
+from validate.equilibrium_model import COMBINED, LOG10, EquilibriumModel
+
+
+def prepare_combination(model: EquilibriumModel):
+    """Covariance of the per-point K (linear engine) and the GLS combination; sets model.weights."""
+    model.weights = None
+    variables = {n: ufloat(s.value, s.u, tag=n) for n, s in model.sources.items()}
+    outputs = model.evaluate(variables)
+    ks = [outputs[f"K, {p}"] for p in model.points]
+    cov = covariance_matrix(ks)
+    values = [k.nominal_value for k in ks]
+    combined = combine_correlated(values, cov) if len(values) > 1 else None
+    model.weights = list(combined.weights) if combined else [1.0]
+    return combined, values, cov
+
+
+def equilibrium_block(model: EquilibriumModel, results, monte_carlo, combined, values, cov) -> dict:
+    method, study = model.method, model.method.equilibrium
+    by_name = {r.name: r for r in results}
+    mc_by_name = {m.name: m for m in monte_carlo}
+    x0 = model.nominal_inputs()
+    sm, sl, sa, reps, pm, pl, pa = model.columns(x0)
+    states = model.ice_tables(x0)
+    cu = study.concentration_unit.factor
+    points = []
+    for p, state, m, l_ in zip(model.points, states, pm, pl):
+        r, mc = by_name[f"K, {p}"], mc_by_name.get(f"K, {p}")
+        points.append({
+            "id": p, "M_total": m / cu, "L_total": l_ / cu, "ML": state.complex_conc / cu,
+            "M_free": state.free_M / cu, "L_free": state.free_L / cu,
+            "K": r.value, "u_K": r.standard_uncertainty, "expanded_uncertainty": r.expanded_uncertainty,
+            "coverage_factor": r.coverage_factor,
+            "interval": [mc.summary.symmetric.low, mc.summary.symmetric.high] if mc else None,
+            "shortest_interval": [mc.summary.shortest.low, mc.summary.shortest.high] if mc else None,
+            "invalid_trials": mc.summary.invalid_trials if mc else None,
+        })
+    comb, log10 = by_name[COMBINED], by_name[LOG10]
+    mc_comb, mc_log = mc_by_name.get(COMBINED), mc_by_name.get(LOG10)
+    limiting = "L" if study.limiting == "ligand" else "M"
+    corr = iterate_standards(sm, sl, sa, pm, pl, pa, limiting=limiting, iterations=max(study.iterations, 1),
+                             standard_weights=reps)
+    block = {
+        "conditions": {"temperature_C": study.temperature_C,
+                       "ionic_strength_mol_per_L": None if study.ionic_strength is None else study.ionic_strength / 1e3,
+                       "charges": list(study.charges) if study.charges else None,
+                       "note": "K is conditional on the temperature and ionic strength recorded"},
+        "k_unit": study.k_unit.text, "concentration_unit": study.concentration_unit.text,
+        "correction": study.correction, "limiting_reagent_in_standards": study.limiting,
+        "mixtures": points,
+        "combined": {
+            "K": comb.value, "standard_uncertainty": comb.standard_uncertainty,
+            "expanded_uncertainty": comb.expanded_uncertainty, "coverage_factor": comb.coverage_factor,
+            "coverage_probability": comb.coverage_probability,
+            "interval": [mc_comb.summary.symmetric.low, mc_comb.summary.symmetric.high] if mc_comb else None,
+            "shortest_interval": [mc_comb.summary.shortest.low, mc_comb.summary.shortest.high] if mc_comb else None,
+            "agrees_with_gum": mc_comb.validation.agrees if mc_comb else None,
+            "weights": list(model.weights),
+            "consistency": None if combined is None else {
+                "chi_square": combined.chi_square, "dof": combined.dof, "p_value": combined.p_value,
+                "birge_ratio": combined.birge_ratio, "consistent": combined.consistent,
+                "verdict": ("the K values agree within their uncertainties" if combined.consistent else
+                            "the K values scatter more than their uncertainties explain: look for a missing "
+                            "source, another complex or a wrong stoichiometry"),
+                "source": "generalised least squares with the full covariance; chi-square and Birge ratio "
+                          "(Birge 1932)"},
+        },
+        "log10K": {"value": log10.value, "standard_uncertainty": log10.standard_uncertainty,
+                   "expanded_uncertainty": log10.expanded_uncertainty,
+                   "interval": [mc_log.summary.symmetric.low, mc_log.summary.symmetric.high] if mc_log else None},
+        "complete_complexation_bias": {
+            "slope": _float(corr.slope_bias), "K": _float(corr.K_bias), "naive_K": _float(corr.naive_K) / study.k_unit.factor,
+            "fraction_complexed_in_standards": [_float(f) for f in corr.fraction_standards],
+            "meaning": "relative bias (naive / corrected - 1) if the standards were taken as fully complexed",
+            "iteration_converged": corr.converged, "iterations": corr.iterations},
+        "covariance": [[c for c in row] for row in cov],
+    }
+    try:
+        jf = fit_joint(sm, sl, sa, pm, pl, pa, limiting=limiting)
+        block["joint_fit"] = {"K": jf.K / study.k_unit.factor, "standard_uncertainty": jf.K_u / study.k_unit.factor,
+                              "log10K": math.log10(jf.K / study.k_unit.factor),
+                              "slope_bias": jf.slope_bias, "K_bias": jf.K_bias, "success": jf.success,
+                              "note": "K, absorptivity and intercept fitted together by nonlinear least squares "
+                                      "over the mean readings (a cross-check of the iteration; Bates & Watts 1988)"}
+    except ValueError as exc:
+        block["joint_fit"] = {"error": str(exc)}
+    if len(values) >= 3:
+        x = [m / cu for m in pm]
+        try:
+            block["trend"] = trend_test(values, cov, x).to_dict() | {
+                "against": f"total metal ({study.concentration_unit.text})"}
+        except ValueError as exc:
+            block["trend"] = {"error": str(exc)}
+    if study.charges and study.ionic_strength is not None:
+        act = davies_activity_correction(comb.value, study.ionic_strength / 1e3, study.charges,
+                                         study.temperature_C if study.temperature_C is not None else 25.0)
+        block["activity_estimate"] = act.to_dict()
+    return block
+
+
+def _float(x) -> float:
+    try:
+        return float(x)
+    except (TypeError, ValueError):
+        return math.nan
