@@ -16,6 +16,7 @@ from validate.inputs.errors import InputError
 from validate.inputs.method_file import load_method
 from validate.inputs.schema import Method
 from validate.model import Model, build_model
+from validate.models import build_ready_model
 from validate.propagation.budget import budget_rows, grouped
 from validate.propagation.linear import LinearResult, propagate
 from validate.propagation.montecarlo import McResult, expected_work, new_seed, propagate_mc
@@ -32,6 +33,7 @@ class Run:
     results: list[LinearResult]
     monte_carlo: list[McResult] = field(default_factory=list)
     combination: tuple | None = None  # equilibrium studies: (GLS combination, K values, covariance)
+    advice: object | None = None  # validate.advisor.AdviceReport
     seed: int | None = None
     trials: int | str | None = None
     record: dict = field(default_factory=dict)
@@ -47,14 +49,11 @@ def check(path) -> tuple[Method, Model]:
 
 
 def analyse(path, trials: int | str | None = 1_000_000, seed: int | None = None,
-            progress_factory=None) -> Run:
+            progress_factory=None, advice: bool = True) -> Run:
     """Both engines on one method file. `trials=None` runs the linear engine only;
     `progress_factory(total)` may return a callable advanced by trials done."""
-    method, model = check(path)
-    combination = None
-    if method.equilibrium is not None:
-        from validate.equilibrium_record import prepare_combination
-        combination = prepare_combination(model)  # fixes the combined estimator's weights
+    method = load_method(path)
+    model, combination = build_ready_model(method)
     results = propagate(model)
     run = Run(method, model, results, trials=trials)
     run.combination = combination
@@ -62,6 +61,10 @@ def analyse(path, trials: int | str | None = 1_000_000, seed: int | None = None,
         run.seed = new_seed() if seed is None else int(seed)
         progress = progress_factory(expected_work(trials, model)) if progress_factory else None
         run.monte_carlo = propagate_mc(model, results, trials, run.seed, progress=progress)
+    if advice:
+        from validate.advisor import advise
+        run.advice = advise(method, results, seed=run.seed if run.seed is not None else 1,
+                            confirm_with_mc=3 if trials else 0)
     run.record = build_record(run)
     return run
 
@@ -137,6 +140,7 @@ def build_record(run: Run) -> dict:
         ],
         "validation": validation,
         "equilibrium": equilibrium,
+        "advice": run.advice.to_dict() if run.advice is not None else None,
         "budget": budget_rows(results),
     }
 

@@ -32,6 +32,7 @@ def _parser() -> argparse.ArgumentParser:
     run.add_argument("--trials", default="1000000", type=_trials,
                      help="Monte Carlo trials: a number, 'auto' (JCGM 101 7.9 adaptive) or 0 to skip "
                           "(default 1000000)")
+    run.add_argument("--no-advice", action="store_true", help="skip the what-if advisor")
     run.add_argument("--seed", type=int, default=None,
                      help="random seed for Monte Carlo (default: a new one, recorded in the results)")
     chk = sub.add_parser("check", help="read and check a method file only")
@@ -126,7 +127,7 @@ def _check(args, console: Console) -> int:
 def _run(args, console: Console) -> int:
     api.check_output_folder(args.out, args.overwrite)
     run = api.analyse(args.method, trials=args.trials or None, seed=args.seed,
-                      progress_factory=_progress_factory(console))
+                      progress_factory=_progress_factory(console), advice=not args.no_advice)
     written = api.write_outputs(run, args.out, overwrite=args.overwrite)
     method = run.method
     console.print(f"[bold]{escape(method.title)}[/]")
@@ -137,6 +138,7 @@ def _run(args, console: Console) -> int:
         _print_validation(console, run.record["validation"])
     if run.record.get("equilibrium"):
         _print_equilibrium(console, run, args.top)
+        _print_advice(console, run.record.get("advice"))
         console.print("wrote " + ", ".join(str(p) for p in written))
         return 0
     for index, r in enumerate(run.results):
@@ -144,6 +146,7 @@ def _run(args, console: Console) -> int:
         _print_result(console, r, mc, args.top, run.record["results"][index].get("flags", []))
     if run.record.get("validation"):
         _print_criteria(console, run.record["validation"]["criteria"])
+    _print_advice(console, run.record.get("advice"))
     console.print("wrote " + ", ".join(str(p) for p in written))
     return 0
 
@@ -198,6 +201,25 @@ def _print_equilibrium(console: Console, run, top: int) -> None:
         console.print(f"  activity estimate (Davies, an estimate): K at zero ionic strength about "
                       f"{a['K_thermodynamic']['value'] if isinstance(a['K_thermodynamic'], dict) else a['K_thermodynamic']:.4g} {unit}",
                       soft_wrap=True)
+
+
+def _print_advice(console: Console, advice: dict | None) -> None:
+    if not advice:
+        return
+    quantified = [a for a in advice["items"] if a["expanded_uncertainty_after"] is not None]
+    console.print()
+    relative = advice["unit"].startswith("relative")
+    fmt = (lambda v: f"{100 * v:.2f} %") if relative else (lambda v: f"{v:.3g} {advice['unit']}")
+    console.print(f"[bold]What to improve first[/] (judged by {escape(advice['target'])}: now "
+                  f"{fmt(advice['expanded_uncertainty_before'])})")
+    if not quantified:
+        console.print("  no change among those tried lowers the expanded uncertainty noticeably")
+    for a in quantified[:3]:
+        console.print(f"  -{a['reduction']:.0%}  {escape(a['change'])} -> {fmt(a['expanded_uncertainty_after'])}"
+                      f"  [dim]({escape(a['cost'])})[/]", soft_wrap=True)
+    if advice.get("combined"):
+        c = advice["combined"]
+        console.print(f"  together: -{c['reduction']:.0%} -> {fmt(c['expanded_uncertainty_after'])}", soft_wrap=True)
 
 
 def _g(value, digits=4) -> str:

@@ -1,0 +1,287 @@
+"""What to improve first: which change to the method lowers the expanded uncertainty most.
+
+Candidate changes (validate.advisor_candidates) come from the budget and the
+equipment registers. Each is evaluated by building the what-if variant of the
+method and running the same model through the linear engine (GUM law of
+propagation, Welch-Satterthwaite, k from the t distribution), so a change
+shows its effect on the degrees of freedom and k as well as on u. The best few
+are confirmed with Monte Carlo (JCGM 101, fixed seed), and the best two or
+three that do not touch the same thing are combined into one extra advice.
+
+Ranking figure (what "expanded uncertainty" means in an advice):
+- one result: its expanded uncertainty U, in the result's unit;
+- several results (e.g. several samples): the largest relative expanded
+  uncertainty U/|y| over the results, as a fraction. The method is only as good
+  as its worst result, and the acceptance criterion on U is stated per result.
+  The target is then "largest relative U over results", and every advice also
+  lists each result's U, k and effective degrees of freedom before and after.
+Advices are ranked by the figure after the change, ascending; a change that
+lowers it by less than MIN_REDUCTION (or raises it: with a Type A component of
+few degrees of freedom, Welch-Satterthwaite can raise k when a Type B source
+shrinks) is not listed as advice but named under `without_effect`.
+
+Qualitative advice (not evaluated by the model, ranked after the quantified
+ones with no U after): a sample whose mean reading lies outside 0.2 to 0.8
+(common practice) is better read nearer A = 1/ln 10 = 0.434, where constant
+transmittance noise gives the smallest relative error (Twyman and Lothian,
+Proc. Phys. Soc. 45 (1933) 643, from memory; validate.validation.window).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from validate.advisor_candidates import Candidate, Shares, generate
+from validate.calibration import fit_line
+from validate.inputs.errors import InputError
+from validate.inputs.schema import Method
+from validate.metrology.registers import load_registers
+from validate.equilibrium_model import COMBINED
+from validate.model import Model, ModelError
+from validate.models import build_ready_model
+from validate.propagation.linear import LinearResult, propagate
+from validate.propagation.montecarlo import propagate_mc
+from validate.validation.window import OPTIMUM_ABSORBANCE, relative_error_factor
+
+MIN_REDUCTION = 1e-3  # a change lowering the figure by less than 0.1 % is not advice
+READING_WINDOW = (0.2, 0.8)  # common practice: the band around the photometric optimum
+RELATIVE = "relative (U/|y|)"
+WORST = "largest relative U over results"
+RANKING = ("ranked by the expanded uncertainty after the change, ascending; with several results the "
+           "figure is the largest relative expanded uncertainty U/|y| over the results")
+
+
+def _dof(x: float):
+    return None if math.isinf(x) else x
+
+
+@dataclass(frozen=True)
+class ResultEffect:
+    result: str
+    value: float
+    expanded_uncertainty_before: float
+    expanded_uncertainty_after: float
+    coverage_factor_before: float
+    coverage_factor_after: float
+    effective_dof_before: float
+    effective_dof_after: float
+
+    def to_dict(self) -> dict:
+        d = dict(self.__dict__)
+        d["effective_dof_before"] = _dof(self.effective_dof_before)
+        d["effective_dof_after"] = _dof(self.effective_dof_after)
+        return d
+
+
+@dataclass(frozen=True)
+class Advice:
+    change: str
+    kind: str
+    target: str  # the result, or WORST when the method has several results
+    unit: str  # of the two expanded uncertainties: the result's unit, or RELATIVE
+    expanded_uncertainty_before: float
+    expanded_uncertainty_after: float | None  # None: qualitative advice, not evaluated
+    reduction: float | None  # 1 - after / before
+    cost: str
+    confirmed_by_monte_carlo: float | None  # the figure after, from Monte Carlo, when it confirms
+    assumption: str = ""
+    monte_carlo_note: str = ""
+    effects: tuple[ResultEffect, ...] = ()
+    details: dict = field(default_factory=dict)
+
+    def to_dict(self) -> dict:
+        d = {k: v for k, v in self.__dict__.items() if k not in ("effects", "details")}
+        return {**d, "effects": [e.to_dict() for e in self.effects], "details": dict(self.details)}
+
+
+@dataclass(frozen=True)
+class AdviceReport:
+    method: str
+    ranking: str
+    target: str
+    unit: str
+    expanded_uncertainty_before: float
+    items: tuple[Advice, ...]  # ranked: quantified by U after, then qualitative
+    combined: Advice | None  # the best two or three changes together
+    monte_carlo_before: float | None
+    monte_carlo_trials: int
+    seed: int
+    candidates_evaluated: int
+    without_effect: tuple[str, ...]  # evaluated changes that do not lower the figure
+    skipped: tuple[str, ...]  # candidates the model could not evaluate, with the reason
+    sources: tuple[str, ...]
+
+    def to_dict(self) -> dict:
+        d = {k: v for k, v in self.__dict__.items() if k not in ("items", "combined")}
+        return {**d, "items": [a.to_dict() for a in self.items],
+                "combined": self.combined.to_dict() if self.combined else None,
+                "without_effect": list(self.without_effect), "skipped": list(self.skipped),
+                "sources": list(self.sources)}
+
+
+def figure(results: list[LinearResult], widths: list[float] | None = None) -> tuple[str, str, float]:
+    """(target, unit, value) of the ranking figure; `widths` replaces the GUM U (Monte Carlo)."""
+    widths = [r.expanded_uncertainty for r in results] if widths is None else widths
+    for r, w in zip(results, widths):
+        if r.name == COMBINED:  # an equilibrium study is judged by its combined K
+            return r.name, r.unit, w
+    if len(results) == 1:
+        return results[0].name, results[0].unit, widths[0]
+    relative = [w / abs(r.value) for r, w in zip(results, widths) if r.value != 0]
+    if not relative:  # every result is zero: compare absolute U (one unit for all results)
+        return WORST, results[0].unit, max(widths)
+    return WORST, RELATIVE, max(relative)
+
+
+@dataclass
+class _Evaluated:
+    candidate: Candidate
+    model: Model
+    results: list[LinearResult]
+    value: float
+
+
+def _evaluate(method: Method, candidate: Candidate) -> _Evaluated:
+    model = build_ready_model(candidate.apply(method))[0]
+    results = propagate(model)
+    return _Evaluated(candidate, model, results, figure(results)[2])
+
+
+def _advice(ev: _Evaluated, before: list[LinearResult], fig_before: float) -> Advice:
+    target, unit, _ = figure(ev.results)
+    after = {r.name: r for r in ev.results}
+    effects = tuple(ResultEffect(b.name, b.value, b.expanded_uncertainty, after[b.name].expanded_uncertainty,
+                                 b.coverage_factor, after[b.name].coverage_factor, b.effective_dof,
+                                 after[b.name].effective_dof) for b in before)
+    c = ev.candidate
+    reduction = 1.0 - ev.value / fig_before if fig_before > 0 else 0.0
+    return Advice(c.change, c.kind, target, unit, fig_before, ev.value, reduction, c.cost, None,
+                  c.assumption, "", effects, dict(c.details))
+
+
+def _combine(method: Method, ranked: list[_Evaluated], how_many: int) -> _Evaluated | None:
+    """The best changes that touch different things, applied one after another."""
+    chosen, touched = [], set()
+    for ev in ranked:
+        if len(chosen) == how_many:
+            break
+        if not ev.candidate.touches & touched:
+            chosen.append(ev.candidate)
+            touched |= ev.candidate.touches
+    if len(chosen) < 2:
+        return None
+
+    def apply(m):
+        for cand in chosen:
+            m = cand.apply(m)
+        return m
+
+    combined = Candidate("combined", "all of: " + "; ".join(c.change for c in chosen),
+                         "; ".join(c.cost for c in chosen),
+                         "; ".join(dict.fromkeys(c.assumption for c in chosen if c.assumption)),
+                         frozenset(touched), apply, {"changes": [c.change for c in chosen]})
+    return _evaluate(method, combined)
+
+
+def _mc_figure(model: Model, results: list[LinearResult], trials: int, seed: int) -> float:
+    """Half-width of the probabilistically symmetric interval (JCGM 101 7.7.1) in the ranking figure."""
+    mc = propagate_mc(model, results, trials, seed, shares=False)
+    widths = [(m.summary.symmetric.high - m.summary.symmetric.low) / 2 for m in mc]
+    return figure(results, widths)[2]
+
+
+def _confirm(advice: Advice, ev: _Evaluated, mc_before: float, trials: int, seed: int) -> Advice:
+    mc_after = _mc_figure(ev.model, ev.results, trials, seed)
+    note = f"Monte Carlo ({trials} trials, seed {seed}): {mc_after:.4g} after, {mc_before:.4g} before"
+    confirmed = mc_after < mc_before
+    if not confirmed:
+        note += "; the change is not resolved at this number of trials"
+    return Advice(**{**advice.__dict__, "confirmed_by_monte_carlo": mc_after if confirmed else None,
+                     "monte_carlo_note": note})
+
+
+def window_advice(model: Model, results: list[LinearResult], fig_before: float, unit: str) -> list[Advice]:
+    """Qualitative advice for samples read outside READING_WINDOW: the factor by which the net
+    reading should change to reach A = 0.434 (not above the highest standard's mean reading),
+    and the expected effect, from Twyman-Lothian and from this budget's constant-absorbance scatter."""
+    method, cal = model.method, model.method.calibration
+    if cal is None or method.result is None or "c_measured" not in method.result.formula.names:
+        return []
+    conc = model.concentrations(model.nominal_inputs())
+    ids = list(cal.standards) + (list(cal.blanks) if cal.blanks_in_fit else [])
+    fit = fit_line([conc[i] for i in ids for _ in method.readings[i]], [a for i in ids for a in method.readings[i]])
+    top = max(sum(method.readings[s]) / len(method.readings[s]) for s in cal.standards)
+    goal = min(OPTIMUM_ABSORBANCE, top)
+    out = []
+    for smp, result in zip(method.samples, results):
+        mean = sum(method.readings[smp.id]) / len(method.readings[smp.id])
+        if READING_WINDOW[0] <= mean <= READING_WINDOW[1] or mean <= fit.intercept:
+            continue
+        factor = (goal - fit.intercept) / (mean - fit.intercept)
+        if abs(factor - 1.0) < 0.05:
+            continue  # the highest standard sits about here: no room to move
+        how = (f"raise the net reading about {factor:.1f}-fold (less dilution of the sample, a larger "
+               f"sample portion or a longer cell)" if factor > 1 else
+               f"dilute the sample about {1 / factor:.1f}-fold further")
+        tl = relative_error_factor(mean) / relative_error_factor(goal)
+        out.append(Advice(
+            f"read `{smp.id}` nearer A = {goal:.2f} (its mean reading is {mean:.3f}): {how}",
+            "absorbance window", result.name, unit, fig_before, None, None,
+            "a changed sample preparation or cell; check that the reading stays inside the calibrated range",
+            None,
+            f"not evaluated by the model. Expected effect: for constant transmittance noise the relative "
+            f"photometric error falls about {tl:.1f}-fold (Twyman and Lothian 1933, from memory); with this "
+            f"budget's constant absorbance scatter the reading's relative contribution falls about "
+            f"{factor:.1f}-fold" if factor > 1 else
+            f"not evaluated by the model. Expected effect: for constant transmittance noise the relative "
+            f"photometric error falls about {tl:.1f}-fold (Twyman and Lothian 1933, from memory), and stray "
+            f"light matters less at lower absorbance",
+            "", (), {"sample": smp.id, "mean_reading": mean, "goal_reading": goal, "net_reading_factor": factor,
+                     "twyman_lothian_ratio": tl}))
+    return out
+
+
+SOURCES = (
+    "GUM (JCGM 100:2008) law of propagation, Welch-Satterthwaite G.4.1, k from the t distribution G.3",
+    "JCGM 101:2008 Monte Carlo, probabilistically symmetric coverage interval 7.7.1",
+    "Twyman and Lothian, Proc. Phys. Soc. 45 (1933) 643: smallest relative error at A = 0.434 (from memory)",
+    "reading window 0.2 to 0.8 for the qualitative advice: common practice",
+    "equipment tolerances: the registers named in the method's record",
+)
+
+
+def advise(method: Method, results: list[LinearResult] | None = None, *, confirm_with_mc: int = 3,
+           mc_trials: int = 50_000, seed: int = 1, combine: int = 3) -> AdviceReport:
+    """Ranked changes that lower the expanded uncertainty, the best few confirmed by Monte Carlo,
+    and the best `combine` (two or three) together as `combined`."""
+    baseline = build_ready_model(method)[0]
+    results = propagate(baseline) if results is None else results
+    target, unit, before = figure(results)
+    extra = [Path(method.path).parent / r for r in method.settings.registers]
+    entries, _ = load_registers(extra)
+    evaluated, skipped = [], []
+    for cand in generate(method, Shares.of(results), entries):
+        try:
+            evaluated.append(_evaluate(method, cand))
+        except (ModelError, InputError, ValueError, ZeroDivisionError) as exc:
+            skipped.append(f"{cand.change}: {exc}")
+    evaluated.sort(key=lambda ev: (ev.value, ev.candidate.change))
+    useful = [ev for ev in evaluated if before > 0 and ev.value <= before * (1 - MIN_REDUCTION)]
+    without = tuple(f"{ev.candidate.change} (figure {before:.4g} -> {ev.value:.4g})"
+                    for ev in evaluated if ev not in useful)
+    items = [_advice(ev, results, before) for ev in useful]
+    combined_ev = _combine(method, useful, combine) if combine >= 2 else None
+    combined = _advice(combined_ev, results, before) if combined_ev else None
+    mc_before = None
+    if confirm_with_mc > 0 and (items or combined):
+        mc_before = _mc_figure(baseline, results, mc_trials, seed)
+        for i in range(min(confirm_with_mc, len(items))):
+            items[i] = _confirm(items[i], useful[i], mc_before, mc_trials, seed)
+        if combined:
+            combined = _confirm(combined, combined_ev, mc_before, mc_trials, seed)
+    items += window_advice(baseline, results, before, unit)
+    return AdviceReport(method.title, RANKING, target, unit, before, tuple(items), combined, mc_before,
+                        mc_trials if mc_before is not None else 0, seed, len(evaluated), without,
+                        tuple(skipped), SOURCES)

@@ -1,0 +1,406 @@
+"""Candidate changes for the improvement advisor (validate.advisor).
+
+A candidate is a change a laboratory could make, in plain words, with what it
+costs in work, and a function Method -> Method that builds the what-if variant
+(frozen dataclasses copied with dataclasses.replace; the original method is
+never touched). Candidates compose: applying several in turn gives the variant
+of a combined change.
+
+Kinds offered:
+- "better class": the same item in a register class with smaller tolerances
+  (volumetric class B -> A, a semi-micro balance, a double-beam photometer, ...);
+- "one-mark pipette": a piston pipette, always used at one volume, replaced by
+  a one-mark pipette of that volume (a piston pipette has no better class);
+- "volume pair": a dilution made with another one-mark pipette and flask of
+  the same classes, giving the same dilution factor with a lower relative
+  tolerance (checked: the new factor lies within the original pair's
+  worst-case tolerance on the factor);
+- "more sample readings", "more calibration readings": twice the readings;
+- "temperature range": the laboratory's temperature range halved;
+- "better input value": a stated input (certificate, purity, a constant) with
+  half its standard uncertainty.
+
+Not offered: reading standards and samples in the same cell. The method file
+names one cell under [calibration] for every reading, so standards and samples
+already share it and there is nothing to change.
+
+Candidates are generated only for items and inputs that carry at least
+MIN_SHARE of the variance of some result (the budget decides where to look).
+"""
+
+from __future__ import annotations
+
+import math
+from collections import Counter
+from dataclasses import dataclass, field, replace
+from typing import Callable
+
+from validate.calibration import fit_line
+from validate.inputs.schema import VOLUMETRIC_KINDS, Delivery, Item, Method
+from validate.metrology.equipment import TEMPERATURE
+from validate.metrology.registers import RegisterEntry
+from validate.model import build_model
+from validate.propagation.budget import grouped
+from validate.propagation.linear import LinearResult
+
+ML = 1e-6  # m^3 per mL
+MIN_SHARE = 0.005  # an item or input below 0.5 % of every result's variance is not worth a change
+MAX_FLASK_GROWTH = 10  # a new flask at most ten times the old one (reagent and waste; a choice of this tool)
+READING_FACTOR = 2  # "more readings" means twice as many
+DEFAULT_REPEATABILITY_RATIO = 0.2  # the loader's default: repeatability = 0.2 x tolerance (CG4 Example A1)
+# what "better" is judged on, per kind of item (smaller is better for every key)
+_COMPARED = {"cuvette": ("tolerance",), "photometer": ("offset", "noise"),
+             "balance": ("linearity", "repeatability")}
+
+
+@dataclass(frozen=True)
+class Candidate:
+    kind: str
+    change: str  # what to do, in plain words
+    cost: str  # what it costs in work or material
+    assumption: str  # what the evaluation assumes
+    touches: frozenset  # what it changes; candidates touching the same thing are not combined
+    apply: Callable[[Method], Method] = field(repr=False)
+    details: dict = field(default_factory=dict)
+
+
+@dataclass(frozen=True)
+class Shares:
+    """The largest variance share over the results, by equipment item, step and source."""
+
+    equipment: dict
+    step: dict
+    source: dict
+
+    @classmethod
+    def of(cls, results: list[LinearResult]) -> "Shares":
+        by = {"equipment": {}, "step": {}, "source": {}}
+        for r in results:
+            for key in ("equipment", "step"):
+                for g in grouped(r, key):
+                    by[key][g.group] = max(by[key].get(g.group, 0.0), g.share)
+            for c in r.contributions:
+                by["source"][c.source] = max(by["source"].get(c.source, 0.0), c.share)
+        return cls(**by)
+
+
+def _ml(volume: float) -> str:
+    return f"{volume / ML:g} mL"
+
+
+def generate(method: Method, shares: Shares, entries: list[RegisterEntry]) -> list[Candidate]:
+    """Every candidate change worth evaluating for this method and budget."""
+    out = class_candidates(method, shares, entries)
+    out += piston_candidates(method, shares, entries)
+    out += volume_pair_candidates(method, shares, entries)
+    out += reading_candidates(method)
+    out += temperature_candidates(method, shares)
+    out += input_value_candidates(method, shares)
+    return out
+
+
+# ---- equipment ----
+
+def _repeatability_for(item: Item, tolerance: float, entry: RegisterEntry) -> float:
+    """The register's repeatability; else the loader's default ratio when the item used it or
+    changes kind; else the laboratory's own value, kept (it belongs to the analyst, not the class)."""
+    if "repeatability" in entry.values:
+        return entry.values["repeatability"]
+    default = math.isclose(item.repeatability, DEFAULT_REPEATABILITY_RATIO * item.tolerance, rel_tol=1e-9)
+    if entry.kind != item.kind or default:
+        return DEFAULT_REPEATABILITY_RATIO * tolerance
+    return item.repeatability
+
+
+def item_in_class(item: Item, entry: RegisterEntry, kind: str | None = None) -> Item:
+    """The item as it would be in the register entry's class (and kind, for a replacement)."""
+    v = entry.values
+    changes = {"item_class": entry.item_class, "kind": kind or item.kind,
+               "provenance": f"{entry.source}; suggested by the advisor", "defaults_used": ()}
+    if changes["kind"] in VOLUMETRIC_KINDS:
+        changes["tolerance"] = v["tolerance"]
+        changes["repeatability"] = _repeatability_for(item, v["tolerance"], entry)
+        if "reading" in v:
+            changes["reading"] = v["reading"]
+    else:
+        changes.update({k: v[k] for k in _COMPARED[item.kind] if k in v})
+    return replace(item, **changes)
+
+
+def _better(item: Item, entry: RegisterEntry) -> bool:
+    if entry.item_class == item.item_class:
+        return False
+    keys = ("tolerance",) if item.kind in VOLUMETRIC_KINDS else _COMPARED.get(item.kind, ())
+    if item.kind == "cuvette" and not math.isclose(entry.values.get("path", -1.0), item.path or 0.0):
+        return False
+    pairs = [(entry.values[k], getattr(item, k)) for k in keys if k in entry.values]
+    return bool(pairs) and all(new <= old for new, old in pairs) and any(new < old for new, old in pairs)
+
+
+def _same_size(entry: RegisterEntry, item: Item) -> bool:
+    if item.nominal is None or entry.nominal is None:
+        return item.nominal is None and entry.nominal is None
+    return math.isclose(entry.nominal, item.nominal, rel_tol=1e-9)
+
+
+def class_candidates(method: Method, shares: Shares, entries) -> list[Candidate]:
+    out = []
+    for item in method.items.values():
+        if shares.equipment.get(item.id, 0.0) < MIN_SHARE:
+            continue
+        for entry in entries:
+            if entry.kind != item.kind or not _same_size(entry, item) or not _better(item, entry):
+                continue
+            new = item_in_class(item, entry)
+            what = f"a class {entry.item_class} {_ml(item.nominal)} {item.kind}" if item.kind in VOLUMETRIC_KINDS \
+                else f"a {item.kind} of class \"{entry.item_class}\""
+            out.append(Candidate(
+                "better class", f"use {what} as `{item.id}` instead of class \"{item.item_class}\"",
+                f"{what} instead of class \"{item.item_class}\"",
+                f"tolerances from the register ({entry.source})",
+                frozenset({f"item:{item.id}"}), lambda m, new=new: replace(m, items={**m.items, new.id: new}),
+                {"item": item.id, "class_before": item.item_class, "class_after": entry.item_class}))
+    return out
+
+
+def _uses(method: Method, item_id: str) -> list[Delivery]:
+    deliveries = [d for s in method.solutions.values() for d in (s.aliquot, s.flask) if d is not None]
+    deliveries += [q.delivery for q in method.quantities.values() if q.delivery is not None]
+    return [d for d in deliveries if d.item == item_id]
+
+
+def piston_candidates(method: Method, shares: Shares, entries) -> list[Candidate]:
+    out = []
+    for item in method.items.values():
+        if item.kind != "piston pipette" or shares.equipment.get(item.id, 0.0) < MIN_SHARE:
+            continue
+        volumes = {round(d.volume, 15) for d in _uses(method, item.id)}
+        if len(volumes) != 1:
+            continue  # used at several volumes: no single one-mark pipette replaces it
+        volume = volumes.pop()
+        choices = [e for e in entries if e.kind == "one-mark pipette" and e.nominal
+                   and math.isclose(e.nominal, volume, rel_tol=1e-9)]
+        if not choices:
+            continue
+        best = min(choices, key=lambda e: e.values["tolerance"])
+        new = replace(item_in_class(item, best, kind="one-mark pipette"), nominal=best.nominal)
+        out.append(Candidate(
+            "one-mark pipette",
+            f"deliver the {_ml(volume)} of `{item.id}` with a class {best.item_class} one-mark pipette "
+            f"instead of the piston pipette",
+            f"a class {best.item_class} one-mark pipette of {_ml(volume)} (slower; one volume only)",
+            f"tolerance from the register ({best.source})",
+            frozenset({f"item:{item.id}"}), lambda m, new=new: replace(m, items={**m.items, new.id: new}),
+            {"item": item.id, "volume_mL": round(volume / ML, 9)}))
+    return out
+
+
+def _relative_tolerance(item: Item, volume: float) -> float:
+    """Maximum permissible error of one delivery relative to the volume (see volume_term)."""
+    scale = volume / item.nominal if item.kind in ("burette", "graduated pipette") else 1.0
+    return scale * item.tolerance / volume
+
+
+def _glass(entries, kind: str, item_class: str) -> list[RegisterEntry]:
+    return [e for e in entries if e.kind == kind and e.item_class == item_class and e.nominal]
+
+
+def _find_or_make(method: Method, entry: RegisterEntry, like: Item) -> Item:
+    """An item of the method already of this kind, size and class (the laboratory has it), or a
+    new one from the register, its repeatability by the loader's default ratio (no own data yet)."""
+    for item in method.items.values():
+        if item.kind == entry.kind and item.item_class == entry.item_class and _same_size(entry, item):
+            return item
+    tol = entry.values["tolerance"]
+    return Item(id=f"{_ml(entry.nominal)} {entry.kind}, class {entry.item_class} (suggested)",
+                kind=entry.kind, item_class=entry.item_class, nominal=entry.nominal, tolerance=tol,
+                repeatability=entry.values.get("repeatability", DEFAULT_REPEATABILITY_RATIO * tol),
+                distribution=like.distribution, provenance=f"{entry.source}; suggested by the advisor")
+
+
+def volume_pair_candidates(method: Method, shares: Shares, entries) -> list[Candidate]:
+    out = []
+    for sol in method.solutions.values():
+        if sol.made_by != "dilution":
+            continue
+        pip, flask = method.items[sol.aliquot.item], method.items[sol.flask.item]
+        if pip.kind != "one-mark pipette":
+            continue
+        relevant = max(shares.equipment.get(pip.id, 0.0), shares.equipment.get(flask.id, 0.0),
+                       shares.step.get(f"prepare {sol.id}", 0.0))
+        if relevant < MIN_SHARE:
+            continue
+        va, vf = sol.aliquot.volume, sol.flask.volume
+        factor = va / vf
+        # worst case of the two maximum permissible errors, relative: the stated tolerance of the factor
+        factor_tol = _relative_tolerance(pip, va) + _relative_tolerance(flask, vf)
+        rel_now = math.hypot(_relative_tolerance(pip, va), _relative_tolerance(flask, vf))
+        best = None
+        for p in _glass(entries, "one-mark pipette", pip.item_class):
+            for q in _glass(entries, "volumetric flask", flask.item_class):
+                if p.nominal >= q.nominal or q.nominal > MAX_FLASK_GROWTH * vf * (1 + 1e-9):
+                    continue
+                if math.isclose(p.nominal, va) and math.isclose(q.nominal, vf):
+                    continue
+                if abs(p.nominal / q.nominal / factor - 1.0) > factor_tol:
+                    continue
+                rel = math.hypot(p.values["tolerance"] / p.nominal, q.values["tolerance"] / q.nominal)
+                if rel < rel_now and (best is None or (rel, q.nominal) < best[0]):
+                    best = ((rel, q.nominal), p, q)
+        if best is None:
+            continue
+        (rel, _), p, q = best
+
+        def apply(m, sol_id=sol.id, p=p, q=q, pip=pip, flask=flask):
+            new_p, new_q = _find_or_make(m, p, pip), _find_or_make(m, q, flask)
+            s = m.solutions[sol_id]
+            s = replace(s, aliquot=Delivery(new_p.id, new_p.nominal), flask=Delivery(new_q.id, new_q.nominal))
+            return replace(m, items={**m.items, new_p.id: new_p, new_q.id: new_q},
+                           solutions={**m.solutions, sol_id: s})
+
+        out.append(Candidate(
+            "volume pair",
+            f"make `{sol.id}` with {_ml(p.nominal)} into {_ml(q.nominal)} instead of "
+            f"{_ml(va)} into {_ml(vf)} (same dilution factor)",
+            f"a {_ml(p.nominal)} one-mark pipette and a {_ml(q.nominal)} flask; "
+            f"{q.nominal / vf:g} times the volume of `{sol.id}` (reagent and waste)",
+            f"tolerances from the register ({p.source}; {q.source})",
+            frozenset({f"solution:{sol.id}", f"item:{pip.id}", f"item:{flask.id}"}), apply,
+            {"solution": sol.id, "factor_before": factor, "factor_after": p.nominal / q.nominal,
+             "factor_tolerance": factor_tol, "relative_tolerance_before": rel_now,
+             "relative_tolerance_after": rel, "aliquot_mL": round(p.nominal / ML, 9),
+             "flask_mL": round(q.nominal / ML, 9)}))
+    return out
+
+
+# ---- readings ----
+
+def _calibration_ids(method: Method) -> list[str]:
+    cal = method.calibration
+    return list(cal.standards) + (list(cal.blanks) if cal.blanks_in_fit else [])
+
+
+def with_more_sample_readings(method: Method, factor: int = READING_FACTOR) -> Method:
+    """Each sample read `factor` times as often: its readings replaced by factor x m copies
+    of its mean. The mean is kept; the per-reading scatter is assumed to stay the same
+    (observed scatter: s/sqrt(m) becomes s/sqrt(factor m); bottom-up: factor m noise terms)."""
+    readings = dict(method.readings)
+    for smp in method.samples:
+        r = readings[smp.id]
+        readings[smp.id] = (sum(r) / len(r),) * (factor * len(r))
+    return replace(method, readings=readings)
+
+
+def with_more_calibration_readings(method: Method, factor: int = READING_FACTOR) -> Method:
+    """Each calibration solution read `factor` times as often, the scatter kept the same.
+
+    The N readings are repeated `factor` times with their residuals about the line
+    scaled by c = sqrt((factor N - 2) / (factor (N - 2))): the line is unchanged
+    (residuals are orthogonal to 1 and x), its residual standard deviation stays
+    s exactly, and its degrees of freedom grow from N - 2 to factor N - 2."""
+    model = build_model(method)
+    conc = model.concentrations(model.nominal_inputs())
+    ids = _calibration_ids(method)
+    xs = [conc[i] for i in ids for _ in method.readings[i]]
+    ys = [a for i in ids for a in method.readings[i]]
+    fit = fit_line(xs, ys)
+    n = len(xs)
+    c = math.sqrt((factor * n - 2) / (factor * (n - 2)))
+    readings = dict(method.readings)
+    for i in ids:
+        line = fit.intercept + fit.slope * conc[i]
+        readings[i] = tuple(line + c * (a - line) for a in method.readings[i]) * factor
+    return replace(method, readings=readings)
+
+
+def _typical_count(method: Method, ids) -> int:
+    return Counter(len(method.readings[i]) for i in ids).most_common(1)[0][0]
+
+
+def reading_candidates(method: Method) -> list[Candidate]:
+    if method.calibration is None:
+        return []
+    out = []
+    f = READING_FACTOR
+    samples = [s.id for s in method.samples]
+    if samples and "c_measured" in method.result.formula.names:
+        m = _typical_count(method, samples)
+        out.append(Candidate(
+            "more sample readings", f"read every sample {f * m} times instead of {m}",
+            f"{(f - 1) * m} more reading(s) of every sample",
+            "the scatter of one reading stays the same; the mean reading is kept",
+            frozenset({"sample readings"}), with_more_sample_readings, {"readings_per_sample": f * m}))
+    ids = _calibration_ids(method)
+    m = _typical_count(method, ids)
+    if method.settings.scatter == "observed":
+        assumed = ("the residual scatter of the line stays the same and the line itself is unchanged; its "
+                   "degrees of freedom grow (lower k). The line's scatter is taken as reading scatter: if it "
+                   "comes from preparing the standards, prepare each standard twice instead")
+    else:
+        assumed = ("each reading carries the photometer's noise; each standard is still prepared once, "
+                   "so its preparation terms stay as they are")
+    out.append(Candidate(
+        "more calibration readings",
+        f"read every calibration solution {f * m} times instead of {m} "
+        f"({f * sum(len(method.readings[i]) for i in ids)} readings on the line)",
+        f"{(f - 1) * m} more reading(s) of each of the {len(ids)} calibration solutions",
+        assumed,
+        frozenset({"calibration readings"}), with_more_calibration_readings,
+        {"readings_per_solution": f * m}))
+    return out
+
+
+# ---- settings and stated inputs ----
+
+def temperature_candidates(method: Method, shares: Shares) -> list[Candidate]:
+    share = max((v for k, v in shares.source.items() if k.startswith(TEMPERATURE)), default=0.0)
+    t = method.settings.temperature_range
+    if share < MIN_SHARE or t <= 0:
+        return []
+    return [Candidate(
+        "temperature range", f"keep the laboratory within +/-{t / 2:g} K of 20 degC instead of +/-{t:g} K",
+        f"temperature control (air conditioning, or solutions brought to temperature in a water bath "
+        f"before making up to the mark)",
+        "the volumes' expansion coefficient and every other source unchanged",
+        frozenset({"temperature"}),
+        lambda m: replace(m, settings=replace(m.settings, temperature_range=m.settings.temperature_range / 2)),
+        {"temperature_range_before_K": t, "temperature_range_after_K": t / 2})]
+
+
+_SOLUTION_INPUTS = (("mass", "mass"), ("purity", "purity"), ("molar_mass", "molar mass"),
+                    ("concentration", "certified concentration"))
+
+
+def _halved(value):
+    return replace(value, u=value.u / 2, trapezoid_d=value.trapezoid_d / 2)
+
+
+def input_value_candidates(method: Method, shares: Shares) -> list[Candidate]:
+    """Stated inputs with half their standard uncertainty. A source name the budget does not
+    know (a naming change elsewhere) is kept rather than silently left out."""
+    found = []
+    for sol in method.solutions.values():
+        for attr, label in _SOLUTION_INPUTS:
+            value = getattr(sol, attr)
+            if value is not None and value.u > 0:
+                def apply(m, sid=sol.id, attr=attr):
+                    s = m.solutions[sid]
+                    return replace(m, solutions={**m.solutions, sid: replace(s, **{attr: _halved(getattr(s, attr))})})
+                found.append((f"{sol.id}: {label}", f"the {label} of `{sol.id}`", apply))
+    for q in method.quantities.values():
+        if q.value is not None and q.value.u > 0:
+            def apply(m, name=q.name):
+                q2 = m.quantities[name]
+                return replace(m, quantities={**m.quantities, name: replace(q2, value=_halved(q2.value))})
+            found.append((q.name, f"`{q.name}`", apply))
+    out = []
+    for source, what, apply in found:
+        if shares.source.get(source, 1.0) < MIN_SHARE:
+            continue
+        out.append(Candidate(
+            "better input value", f"obtain {what} with half its present standard uncertainty",
+            "a value with a smaller uncertainty (a better certificate or reference material, "
+            "or more determinations of it)",
+            "its distribution and degrees of freedom are kept (conservative when it rests on replicates)",
+            frozenset({f"source:{source}"}), apply, {"source": source}))
+    return out
