@@ -126,3 +126,35 @@ def test_observed_scatter_reproduces_the_inverse_prediction_formula():
         # result = c * V_flask / V_sample * M_P: 50/20 dilution, 30.973762 g/mol, µmol/L -> mg/L
         expected = pred.standard_uncertainty * 1e-3 * (50 / 20) * 30.973762
         assert u_line == pytest.approx(expected, rel=1e-6)
+
+
+def test_weighted_line_reproduces_the_weighted_inverse_prediction(tmp_path):
+    # Miller and Miller, section 5.10: weighted line with w = 1/s_j^2 and the weighted
+    # inverse-prediction uncertainty s_w/b sqrt(1/(w0 m) + 1/n + (y0 - ybar_w)^2/(b^2 Sxx_w)).
+    import shutil
+
+    from conftest import DEMOS
+    from validate.calibration import fit_line, inverse_prediction
+
+    folder = tmp_path / "weighted"
+    shutil.copytree(DEMOS / "phosphate_assay", folder)
+    text = (folder / "method.toml").read_text().replace(
+        'concentration_unit = "µmol/L"', 'concentration_unit = "µmol/L"\nweighting = "inverse-variance"')
+    (folder / "method.toml").write_text(text)
+    run = api.analyse(folder / "method.toml", trials=None, advice=False)
+    model, method = run.model, run.method
+    assert run.record["validation"]["line_weighting"]["used"] == "inverse-variance"
+    conc = model.concentrations(model.nominal_inputs())
+    ids = list(method.calibration.standards) + list(method.calibration.blanks)
+    xs = [conc[i] * 1e3 for i in ids for _ in method.readings[i]]
+    ys = [a for i in ids for a in method.readings[i]]
+    ws = [model.weight(i) for i in ids for _ in method.readings[i]]
+    fit = fit_line(xs, ys, ws)
+    intercept, slope = model.line(model.nominal_inputs())
+    path = method.items["cell_40"].path
+    assert slope * path * 1e-3 == pytest.approx(fit.slope, rel=1e-9)  # per mol/m^3 -> per µmol/L
+    assert intercept * path == pytest.approx(fit.intercept, rel=1e-9)
+    for sample, result in zip(method.samples, run.results):
+        u_line = math.sqrt(sum(r.contribution**2 for r in result.contributions if r.step == "calibration fit"))
+        pred = inverse_prediction(fit, method.readings[sample.id], sample_weight=model.weight(sample.id))
+        assert u_line == pytest.approx(pred.standard_uncertainty * 1e-3 * 2.5 * 30.973762, rel=1e-6)

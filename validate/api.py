@@ -23,7 +23,7 @@ from validate.propagation.montecarlo import McResult, expected_work, new_seed, p
 from validate.report.records import budget_csv, record_json, sha256_of, write_atomic
 from validate.validation.record import validation_block
 
-OUTPUT_FILES = ("results.json", "budget.csv")
+OUTPUT_FILES = ("results.json", "budget.csv", "report.pdf")
 
 
 @dataclass
@@ -157,13 +157,28 @@ def check_output_folder(out_dir, overwrite: bool) -> None:
                          fix="choose another folder with --out, or add --overwrite to replace it")
 
 
-def write_outputs(run: Run, out_dir, overwrite: bool = False) -> list[Path]:
+def write_outputs(run: Run, out_dir, overwrite: bool = False, pdf: bool = True) -> list[Path]:
+    """results.json, budget.csv and report.pdf. Everything is built first (the PDF into a
+    hidden temporary file), then moved into place, so a failure leaves the folder as it was."""
+    import os
+
     out = Path(out_dir)
     check_output_folder(out, overwrite)
-    out.mkdir(parents=True, exist_ok=True)
     payloads = {"results.json": record_json(run.record), "budget.csv": budget_csv(run.record["budget"])}
-    written = []
-    for name, data in payloads.items():
-        write_atomic(out / name, data)
-        written.append(out / name)
+    out.mkdir(parents=True, exist_ok=True)
+    pending = out / ".report.pdf.new"
+    try:
+        if pdf:
+            from validate.report.pdf import build_report
+            build_report(run.record, pending)
+        written = []
+        for name, data in payloads.items():
+            write_atomic(out / name, data)
+            written.append(out / name)
+        if pdf:
+            os.replace(pending, out / "report.pdf")
+            written.append(out / "report.pdf")
+    finally:
+        if pending.exists():
+            pending.unlink()
     return written

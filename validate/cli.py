@@ -33,6 +33,7 @@ def _parser() -> argparse.ArgumentParser:
                      help="Monte Carlo trials: a number, 'auto' (JCGM 101 7.9 adaptive) or 0 to skip "
                           "(default 1000000)")
     run.add_argument("--no-advice", action="store_true", help="skip the what-if advisor")
+    run.add_argument("--no-pdf", action="store_true", help="do not write report.pdf")
     run.add_argument("--seed", type=int, default=None,
                      help="random seed for Monte Carlo (default: a new one, recorded in the results)")
     chk = sub.add_parser("check", help="read and check a method file only")
@@ -128,7 +129,7 @@ def _run(args, console: Console) -> int:
     api.check_output_folder(args.out, args.overwrite)
     run = api.analyse(args.method, trials=args.trials or None, seed=args.seed,
                       progress_factory=_progress_factory(console), advice=not args.no_advice)
-    written = api.write_outputs(run, args.out, overwrite=args.overwrite)
+    written = api.write_outputs(run, args.out, overwrite=args.overwrite, pdf=not args.no_pdf)
     method = run.method
     console.print(f"[bold]{escape(method.title)}[/]")
     _print_defaults(console, method)

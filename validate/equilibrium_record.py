@@ -60,7 +60,8 @@ def equilibrium_block(model: EquilibriumModel, results, monte_carlo, combined, v
                        "ionic_strength_mol_per_L": None if study.ionic_strength is None else study.ionic_strength / 1e3,
                        "charges": list(study.charges) if study.charges else None,
                        "note": "K is conditional on the temperature and ionic strength recorded"},
-        "k_unit": study.k_unit.text, "concentration_unit": study.concentration_unit.text,
+        "k_unit": study.k_unit.text, "unit": study.k_unit.text,
+        "concentration_unit": study.concentration_unit.text,
         "correction": study.correction, "limiting_reagent_in_standards": study.limiting,
         "mixtures": points,
         "combined": {

@@ -37,6 +37,10 @@ class Model:
     _points: list = field(default_factory=list, repr=False)  # (solution id, replicates, mean-reading term)
     _sample_terms: dict = field(default_factory=dict, repr=False)
     _quantity_terms: dict = field(default_factory=dict, repr=False)
+    weights: dict | None = None  # id -> weight of one reading (weighted line), mean 1 over the line
+
+    def weight(self, ident: str) -> float:
+        return 1.0 if self.weights is None else self.weights[ident]
 
     def unit_of(self, label: str) -> str:
         return self.method.result.unit.text
@@ -109,12 +113,18 @@ def build_model(method: Method) -> Model:
                 "calibration scatter built bottom-up: every reading and every use of glassware "
                 "carries its own random term; no term for the line's observed scatter is added")
         ids = list(cal.standards) + (list(cal.blanks) if cal.blanks_in_fit else [])
+        if cal.weighting == "inverse-variance":
+            model.weights = level_weights(model, ids, samples)
+            model.assumptions.append(
+                "weighted calibration line: each level weighted by 1/s^2 of its replicate readings, a sample "
+                "by 1/s^2 interpolated linearly in concentration (Miller and Miller, section 5.10)")
         scatter = _observed_scatter(model, ids, samples) if observed else None
-        model._points = [(sid, len(method.readings[sid]),
-                          mean_reading_term(ss, method, sid, scatter, cal.cuvette, cal.photometer)) for sid in ids]
+        model._points = [(sid, len(method.readings[sid]) * model.weight(sid),
+                          mean_reading_term(ss, method, sid, scatter, cal.cuvette, cal.photometer,
+                                            model.weight(sid))) for sid in ids]
         for smp in samples:
             model._sample_terms[smp.id] = mean_reading_term(ss, method, smp.id, scatter, cal.cuvette,
-                                                            cal.photometer)
+                                                            cal.photometer, model.weight(smp.id))
     for q in method.quantities.values():
         model._quantity_terms[q.name] = _quantity_term(ss, method, q, samples)
     return model
@@ -170,12 +180,13 @@ def solution_term(ss: SourceSet, method: Method, sol, is_standard_observed: bool
 
 
 def mean_reading_term(ss: SourceSet, method: Method, ident: str, scatter, cuvette: str | None,
-                      photometer_id: str | None):
+                      photometer_id: str | None, weight: float = 1.0):
     """A closure x -> mean corrected reading of one standard, blank or sample:
     (mean absorbance + reading noise or observed scatter - photometer offset) / path length.
 
     `scatter` (observed treatment) is (s, dof) of the line's residuals in absorbance:
-    the mean of m readings then carries a term of standard uncertainty s/sqrt(m)."""
+    the mean of m readings then carries a term of standard uncertainty s/sqrt(m w),
+    w the reading's weight on the line's scale (1 for an unweighted line)."""
     observed = scatter is not None
     readings = method.readings[ident]
     photometer = method.items.get(photometer_id) if photometer_id else None
@@ -195,7 +206,7 @@ def mean_reading_term(ss: SourceSet, method: Method, ident: str, scatter, cuvett
     if observed:
         s_abs, dof = scatter
         noise = [ss.add(Source(
-            f"calibration scatter, {ident}", 0.0, s_abs / len(readings) ** 0.5, "t", dof=dof,
+            f"calibration scatter, {ident}", 0.0, s_abs / (len(readings) * weight) ** 0.5, "t", dof=dof,
             step="calibration fit", kind="A", dof_group="calibration line",
             provenance=f"residual standard deviation of the line {s_abs:.3g} (absorbance), "
             f"{len(readings)} reading(s), {dof} degrees of freedom (observed scatter; ISO 8466-1, CG4 A5)"))]
@@ -233,6 +244,38 @@ def _quantity_term(ss: SourceSet, method: Method, q, samples):
     return lambda x, sample_id: exact_or(x, src, value)
 
 
+def level_weights(model: Model, ids: list[str], samples) -> dict[str, float]:
+    """Weights 1/s_j^2 from each level's replicate readings; a sample's from s interpolated
+    linearly in concentration (Miller and Miller, Statistics and Chemometrics for Analytical
+    Chemistry, section 5.10). Normalised to a mean of one over the line's readings."""
+    import statistics
+
+    method = model.method
+    conc = model.concentrations(model.nominal_inputs())
+    sds = {}
+    for sid in ids:
+        readings = method.readings[sid]
+        if len(readings) < 2:
+            raise ModelError(f"weighted line: `{sid}` has {len(readings)} reading; inverse-variance weights "
+                             f"need at least 2 replicate readings of every level")
+        sds[sid] = statistics.stdev(readings)
+        if sds[sid] == 0:
+            raise ModelError(f"weighted line: the readings of `{sid}` are identical, so their standard "
+                             f"deviation (and weight) is undefined; use weighting = \"none\"")
+    xs, ss_ = [conc[i] for i in ids], [sds[i] for i in ids]
+    trend = fit_line(xs, ss_) if len(set(xs)) >= 2 and len(xs) >= 3 else None
+    unweighted = fit_line([conc[i] for i in ids for _ in method.readings[i]],
+                          [a for i in ids for a in method.readings[i]])
+    raw = {sid: 1.0 / sds[sid] ** 2 for sid in ids}
+    for smp in samples:
+        x0 = inverse_prediction(unweighted, method.readings[smp.id]).value
+        s0 = trend.intercept + trend.slope * x0 if trend else statistics.mean(ss_)
+        raw[smp.id] = 1.0 / max(s0, min(ss_)) ** 2
+    total = sum(len(method.readings[i]) for i in ids)
+    scale = total / sum(raw[i] * len(method.readings[i]) for i in ids)
+    return {k: v * scale for k, v in raw.items()}
+
+
 def _observed_scatter(model: Model, ids: list[str], samples) -> tuple[float, int]:
     """Residual standard deviation (absorbance) and n-2 of the line at the estimates.
 
@@ -245,12 +288,13 @@ def _observed_scatter(model: Model, ids: list[str], samples) -> tuple[float, int
     conc = model.concentrations(model.nominal_inputs())
     xs = [conc[sid] for sid in ids for _ in method.readings[sid]]
     ys = [a for sid in ids for a in method.readings[sid]]
+    ws = [model.weight(sid) for sid in ids for _ in method.readings[sid]] if model.weights else None
     try:
-        fit = fit_line(xs, ys)
+        fit = fit_line(xs, ys, ws)
     except ValueError as exc:
         raise ModelError(f"calibration: {exc}") from None
     for smp in samples:
-        pred = inverse_prediction(fit, method.readings[smp.id])
+        pred = inverse_prediction(fit, method.readings[smp.id], sample_weight=model.weight(smp.id))
         if not pred.finite:
             raise ModelError(
                 f"sample {smp.id}: the slope of the line is not significantly different from zero "

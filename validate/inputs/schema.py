@@ -79,6 +79,7 @@ class Calibration:
     cuvette: str | None
     photometer: str | None
     concentration_unit: Unit
+    weighting: str = "none"  # "none" or "inverse-variance" (1/s^2 of each level's replicates)
 
 
 @dataclass(frozen=True)

@@ -46,6 +46,7 @@ def write_atomic(path: Path, data: bytes) -> None:
             out.write(data)
             out.flush()
             os.fsync(out.fileno())
+        os.chmod(temp, 0o644)  # mkstemp makes the file private; a record is meant to be read
         os.replace(temp, path)
     except BaseException:
         if os.path.exists(temp):

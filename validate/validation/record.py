@@ -25,14 +25,15 @@ from validate.validation.window import absorbance_window_flags
 
 
 def calibration_data(method: Method, model: Model):
-    """Concentrations (calibration unit) and absorbances of every reading in the fit."""
+    """Concentrations (calibration unit), absorbances and weights (None: unweighted) of every reading."""
     cal = method.calibration
     conc = model.concentrations(model.nominal_inputs())
     ids = list(cal.standards) + (list(cal.blanks) if cal.blanks_in_fit else [])
     factor = cal.concentration_unit.factor
     xs = [conc[i] / factor for i in ids for _ in method.readings[i]]
     ys = [a for i in ids for a in method.readings[i]]
-    return xs, ys
+    ws = [model.weight(i) for i in ids for _ in method.readings[i]] if model.weights else None
+    return xs, ys, ws
 
 
 def predicted_reading_sd(method: Method, slope_abs_per_unit: float) -> float:
@@ -62,12 +63,12 @@ def validation_block(method: Method, model: Model, results: list[LinearResult]) 
     if cal is None:
         return None
     v = method.validation
-    xs, ys = calibration_data(method, model)
+    xs, ys, ws = calibration_data(method, model)
     blanks = [a for b in cal.blanks for a in method.readings[b]] or None
     cell = method.items.get(cal.cuvette) if cal.cuvette else None
     replicates = [len(method.readings[s.id]) for s in method.samples] or [1]
     summary = validate_calibration(
-        xs, ys, blanks=blanks, alpha=v.alpha, beta=v.beta, declared_limit=v.declared_limit,
+        xs, ys, weights=ws, blanks=blanks, alpha=v.alpha, beta=v.beta, declared_limit=v.declared_limit,
         path_length_cm=cell.path * 100 if cell else None,
         path_length_u=cell.tolerance / math.sqrt(3) * 100 if cell else None,
         sample_replicates=min(replicates))
@@ -75,7 +76,7 @@ def validation_block(method: Method, model: Model, results: list[LinearResult]) 
     nonzero = [x for x in fit.x if x > 0] or list(fit.x)
     samples, flags = {}, {}
     for smp in method.samples:
-        pred = inverse_prediction(fit, method.readings[smp.id])
+        pred = inverse_prediction(fit, method.readings[smp.id], sample_weight=model.weight(smp.id))
         f = range_flags(pred.value, min(nonzero), max(fit.x), summary.limits.loq, summary.limits.lod)
         flags[smp.id] = f
         samples[smp.id] = {"concentration": pred.value, "standard_uncertainty": pred.standard_uncertainty,
@@ -100,11 +101,14 @@ def validation_block(method: Method, model: Model, results: list[LinearResult]) 
     block = plain(summary)
     block.update({
         "settings": v.to_dict(),
+        "line_weighting": {"used": cal.weighting,
+                      "why": ("set in the method file" if cal.weighting != "none" else
+                              "the default; see the weighting check for whether a weighted line is advised")},
         "concentration_unit": cal.concentration_unit.text,
         "samples": samples,
         "range_flags": flags,
         "window_flags": plain(window),
-        "repeatability": plain(precision) if precision else None,
+        "repeatability": {**plain(precision), "unit": cal.concentration_unit.text} if precision else None,
         "trueness": plain(trueness) if trueness else None,
         "scatter_consistency": plain(consistency),
         "criteria": plain(criteria),

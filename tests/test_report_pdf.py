@@ -1,0 +1,292 @@
+"""The PDF report: built from the record alone, read back with pypdf.
+
+Checks that the report says what the record says (headline numbers rounded
+by GUM 7.2.6, every section title, page N of M and the record id on every
+page), that long tables split across pages with their header repeated, and
+that a failed build leaves no file behind. The demo data are invented (see
+example_inputs/); the Monte Carlo, equilibrium and advice blocks below are
+made up only to exercise their sections, they check layout, not metrology.
+"""
+
+from __future__ import annotations
+
+import copy
+import re
+from dataclasses import FrozenInstanceError
+
+import numpy as np
+import pytest
+from pypdf import PdfReader
+
+from conftest import DEMOS
+from validate import advisor, api
+from validate.inputs.method_file import load_method
+from validate.propagation import mcstats
+from validate.propagation.budget import round_gum
+from validate.report import figures
+from validate.report.pdf import FIXED, ReportInfo, build_report
+from validate.validation.criteria import evaluate_criteria
+from validate.validation.summary import validate_calibration
+
+DEMO = DEMOS / "phosphate_assay" / "method.toml"
+OPTIONAL_BLOCKS = ("validation", "equilibrium", "advice", "monte_carlo_settings")
+
+
+def pages_text(path) -> list[str]:
+    """Each page's text with runs of white space made single spaces."""
+    return [" ".join((page.extract_text() or "").split()) for page in PdfReader(str(path)).pages]
+
+
+def bare(record: dict) -> dict:
+    """The record without the optional blocks, so only the fixed sections and calibration remain."""
+    out = {k: v for k, v in copy.deepcopy(record).items() if k not in OPTIONAL_BLOCKS}
+    for result in out["results"]:
+        result.pop("monte_carlo", None)
+    return out
+
+
+def synthetic_monte_carlo(result: dict, rng) -> dict:
+    """A Monte Carlo block in the record's shape, from normal draws (layout only)."""
+    values = result["value"] + result["standard_uncertainty"] * rng.standard_normal(20_000)
+    s = mcstats.summarise(values)
+    tol = mcstats.numerical_tolerance(s.standard_deviation)
+    gum = (result["value"] - result["expanded_uncertainty"],
+           result["value"] + result["expanded_uncertainty"])
+    check = mcstats.validate_gum(result["value"], gum, (s.symmetric.low, s.symmetric.high), tol)
+    hist = mcstats.histogram_data(values, 60)
+    return {"trials": 20_000, "mean": s.mean, "standard_uncertainty": s.standard_deviation,
+            "interval": [s.symmetric.low, s.symmetric.high],
+            "shortest_interval": [s.shortest.low, s.shortest.high],
+            "agrees_with_gum": check.agrees, "invalid_trials": 0, "seed": 20240917,
+            "gum_interval": list(gum), "tolerance": tol, "d_low": check.d_low, "d_high": check.d_high,
+            "histogram": {"edges": list(hist.edges), "counts": list(hist.counts)},
+            "shares_by_step": result["budget_by_step"][:3],
+            "shares_by_equipment": result["budget_by_equipment"][:3]}
+
+
+def with_all_blocks(record: dict) -> dict:
+    """The demo record with every optional block: the pipeline's own where it writes them,
+    made-up ones (layout only) where it does not yet."""
+    full = copy.deepcopy(record)
+    if not full.get("validation"):
+        points = full["calibration"]["points"]
+        summary = validate_calibration([p["concentration"] for p in points],
+                                       [p["absorbance"] for p in points],
+                                       blanks=[p["absorbance"] for p in points if p["id"] == "blank"])
+        full["validation"] = {**summary.to_dict(), "criteria": evaluate_criteria(
+            {}, summary.observed_for_criteria()).to_dict()}
+    rng = np.random.default_rng(7)
+    for r in full["results"]:
+        if not r.get("monte_carlo"):
+            r["monte_carlo"] = synthetic_monte_carlo(r, rng)
+    if not full.get("equilibrium"):
+        full["equilibrium"] = {
+            "conditions": {"temperature": "25 degC", "ionic_strength": "0.1 mol/L"},
+            "mixtures": [{"id": f"mixture {i}", "K": 150.0 + i, "u_K": 5.0,
+                          "interval": [140.0 + i, 160.0 + i]} for i in range(4)],
+            "combined": {"K": 151.37, "standard_uncertainty": 2.61, "expanded_uncertainty": 5.22,
+                         "interval": [146.15, 156.59],
+                         "consistency": {"chi2": 1.1, "dof": 3, "p_value": 0.78,
+                                         "birge_ratio": 0.6, "verdict": "the mixtures agree"}},
+            "complete_complexation_bias": {"slope": -0.03, "K": 0.08},
+            "log10K": {"value": 2.18, "standard_uncertainty": 0.0075}}
+    if not full.get("advice"):  # the advisor's own report, with a short Monte Carlo check
+        full["advice"] = advisor.advise(load_method(DEMO), confirm_with_mc=1, mc_trials=5_000).to_dict()
+    return full
+
+
+@pytest.fixture(scope="module")
+def demo_record() -> dict:
+    return api.analyse(DEMO, trials=20_000, seed=11).record  # few trials: this checks layout
+
+
+@pytest.fixture(scope="module")
+def demo_report(demo_record, tmp_path_factory):
+    path = tmp_path_factory.mktemp("demo") / "report.pdf"
+    info = build_report(demo_record, path)
+    return info, path, pages_text(path)
+
+
+def test_demo_report_has_every_section_title(demo_report):
+    info, path, pages = demo_report
+    text = " ".join(pages)
+    assert set(FIXED) <= set(info.sections)
+    assert "Calibration" in info.sections  # the demo is read off a calibration line
+    for number, title in enumerate(info.sections, 1):
+        assert f"{number} {title}" in text, title
+
+
+def test_page_n_of_m_and_record_id_on_every_page(demo_report, demo_record):
+    info, path, pages = demo_report
+    assert info.page_count == len(pages) == len(PdfReader(str(path)).pages)
+    record_id = demo_record["run"]["record_id"]
+    for n, page in enumerate(pages, 1):
+        assert f"page {n} of {info.page_count}" in page
+        assert record_id in page
+
+
+def test_first_page_headline_numbers_equal_the_record(demo_report, demo_record):
+    first = demo_report[2][0]
+    assert demo_record["run"]["record_id"] in first
+    for r in demo_record["results"]:
+        value, big_u = round_gum(r["value"], r["expanded_uncertainty"])  # GUM 7.2.6
+        assert f"{value} {r['unit']}" in first
+        assert f"{big_u} {r['unit']}" in first
+        assert f"{r['coverage_factor']:.2f}" in first
+    assert "95 %" in first
+
+
+@pytest.fixture(scope="module")
+def full_report(demo_record, tmp_path_factory):
+    record = with_all_blocks(demo_record)
+    path = tmp_path_factory.mktemp("full") / "report.pdf"
+    return record, build_report(record, path), pages_text(path)
+
+
+def test_first_page_shows_each_acceptance_verdict(full_report):
+    record, _, pages = full_report
+    first = pages[0]
+    criteria = record["validation"]["criteria"]["criteria"]
+    evaluated = [c for c in criteria if c["status"] in ("met", "not met")]
+    assert evaluated
+    for c in evaluated:
+        name = c["name"].replace("^2", "²")
+        row = re.search(re.escape(name) + r".{0,80}?\b(not met|met|not evaluable)\b", first)
+        assert row and row.group(1) == c["status"], name
+
+
+def test_input_file_hashes_and_version_in_the_appendix(demo_report, demo_record):
+    text = " ".join(demo_report[2])
+    compact = re.sub(r"\s", "", text)
+    for item in demo_record["inputs"]:
+        assert item["sha256"] in compact
+    assert f"validate {demo_record['software']['version']}" in text
+
+
+def test_report_info_is_frozen_with_to_dict(demo_report):
+    info = demo_report[0]
+    assert isinstance(info, ReportInfo)
+    assert info.to_dict() == {"page_count": info.page_count, "sections": list(info.sections)}
+    with pytest.raises(FrozenInstanceError):
+        info.page_count = 1
+
+
+def test_absent_blocks_are_left_out_and_present_ones_rendered(demo_record, full_report, tmp_path):
+    plain = build_report(bare(demo_record), tmp_path / "plain.pdf")
+    optional = {"Linearity", "Limits of detection and quantitation", "Working range",
+                "Monte Carlo check", "Equilibrium constant", "What to improve first"}
+    assert not optional & set(plain.sections)
+    full_record, full, pages = full_report
+    assert optional <= set(full.sections)
+    assert set(FIXED) <= set(full.sections)
+    text = " ".join(pages)
+    for number, title in enumerate(full.sections, 1):
+        assert f"{number} {title}" in text, title
+    assert full.page_count > plain.page_count
+    # the Monte Carlo interval on the first page, to the decimal place of U
+    for r in full_record["results"]:
+        _, big_u = round_gum(r["value"], r["expanded_uncertainty"])
+        places = len(big_u.split(".")[1])
+        low, high = r["monte_carlo"]["interval"]
+        assert f"[{low:.{places}f}, {high:.{places}f}] {r['unit']}" in pages[0]
+    for item in full_record["advice"]["items"][:3]:
+        assert " ".join(item["change"].split()) in text
+    combined = full_record["equilibrium"]["combined"]
+    value, big_u = round_gum(combined["K"], combined["expanded_uncertainty"])
+    unit = full_record["equilibrium"].get("unit", "L/mol")
+    assert f"{value} {unit}" in pages[0] and f"{big_u} {unit}" in pages[0]
+
+
+def synthetic_record(sources: int = 50) -> dict:
+    """One result with a long, flat budget: enough rows to fill more than one page."""
+    contributions = np.arange(20, 20 + sources, dtype=float)[::-1] * 1e-4
+    variance = float(np.sum(contributions**2))
+    rows = [{"result": "analyte", "source": f"budget entry {i + 1:02d}", "step": f"step {i % 5}",
+             "equipment": f"item {i % 7}", "unit": "mL", "standard_uncertainty": 0.01,
+             "sensitivity": c / 0.01, "contribution": c, "share": c**2 / variance}
+            for i, c in enumerate(contributions)]
+    result = {"name": "analyte", "unit": "mg/L", "value": 1.2345, "standard_uncertainty": variance**0.5,
+              "expanded_uncertainty": 2 * variance**0.5, "coverage_factor": 2.0,
+              "coverage_probability": 0.95, "effective_dof": None,
+              "budget_by_step": [{"group": f"step {k}", "contribution": 0.0, "share": 0.2} for k in range(5)],
+              "budget_by_equipment": []}
+    return {"software": {"name": "validate", "version": "test"},
+            "run": {"record_id": "VR-TEST-0001", "created": "2024-01-01T00:00:00+00:00"},
+            "method": {"title": "Synthetic long budget", "formula": "x", "result_unit": "mg/L"},
+            "results": [result], "budget": rows, "sources": [], "calibration": None}
+
+
+def test_long_budget_splits_with_header_repeated(tmp_path):
+    info = build_report(synthetic_record(50), tmp_path / "long.pdf")
+    pages = pages_text(tmp_path / "long.pdf")
+    with_rows = [p for p in pages if "budget entry" in p]
+    assert len(with_rows) >= 2
+    for page in with_rows:
+        assert "sensitivity c_i" in page and "c_i u(x_i) / mg/L" in page
+    text = " ".join(pages)
+    for i in range(1, 51):  # no row lost at a page break
+        assert f"budget entry {i:02d}" in text
+    assert info.page_count == len(pages)
+
+
+def test_a_result_without_a_number_is_shown_as_a_dash(tmp_path):
+    record = synthetic_record(3)
+    record["results"][0].update(value=None, expanded_uncertainty=None)  # JSON null from nan/inf
+    info = build_report(record, tmp_path / "report.pdf")
+    first = pages_text(tmp_path / "report.pdf")[0]
+    assert "analyte – mg/L – mg/L" in first
+    assert info.page_count >= 1
+
+
+def test_advice_as_a_plain_list_is_rendered(tmp_path):
+    record = synthetic_record(3)
+    record["advice"] = [{"change": "use a class A burette", "expanded_uncertainty_after": 0.05,
+                         "reduction": 0.25, "cost": "a new burette"}]
+    info = build_report(record, tmp_path / "report.pdf")
+    text = " ".join(pages_text(tmp_path / "report.pdf"))
+    assert "What to improve first" in info.sections
+    assert "use a class A burette" in text and "0.05 mg/L" in text and "25.0 %" in text
+
+
+def test_failed_build_leaves_nothing_behind(demo_record, tmp_path, monkeypatch):
+    def broken(*args, **kwargs):
+        raise RuntimeError("figure failed")
+
+    monkeypatch.setattr(figures, "share_chart", broken)
+    target = tmp_path / "report.pdf"
+    with pytest.raises(RuntimeError, match="figure failed"):
+        build_report(demo_record, target)
+    assert list(tmp_path.iterdir()) == []
+
+
+def test_failed_build_keeps_the_previous_report(demo_record, tmp_path, monkeypatch):
+    target = tmp_path / "report.pdf"
+    target.write_bytes(b"previous report")
+    monkeypatch.setattr(figures, "calibration_figure", lambda *a, **k: 1 / 0)
+    with pytest.raises(ZeroDivisionError):
+        build_report(demo_record, target)
+    assert target.read_bytes() == b"previous report"
+    assert [p.name for p in tmp_path.iterdir()] == ["report.pdf"]
+
+
+def test_not_a_record_is_refused_with_a_clear_message(tmp_path):
+    with pytest.raises(ValueError, match="the record lacks"):
+        build_report({"method": {}}, tmp_path / "report.pdf")
+    assert list(tmp_path.iterdir()) == []
+
+
+def test_prediction_band_matches_the_textbook_formula():
+    # Draper and Smith (1998), section 3.1: t s sqrt(1 + 1/n + (x0 - xbar)^2 / Sxx);
+    # checked against the same quantities computed independently by scipy.stats.linregress.
+    from scipy import stats
+    x = np.array([0.0, 1.0, 2.0, 3.0, 4.0, 5.0])
+    y = np.array([0.02, 0.11, 0.19, 0.32, 0.41, 0.49])
+    fit = stats.linregress(x, y)
+    half, s = figures.prediction_band(x, y, [2.5, 6.0], fit.slope, fit.intercept)
+    s_ref = np.sqrt(np.sum((y - fit.intercept - fit.slope * x) ** 2) / 4)
+    assert s == pytest.approx(s_ref)
+    # se(slope) = s / sqrt(Sxx) from linregress gives Sxx independently of our code
+    sxx = (s_ref / fit.stderr) ** 2
+    t = stats.t.ppf(0.975, 4)
+    expected = t * s_ref * np.sqrt(1 + 1 / 6 + (np.array([2.5, 6.0]) - 2.5) ** 2 / sxx)
+    assert half == pytest.approx(expected)

@@ -1,0 +1,231 @@
+"""The report's figures, drawn with matplotlib's Agg canvas (no pyplot, no global state).
+
+Each function takes plain values from the record and returns PNG bytes
+(200 dpi), ready for the PDF. Sizes are in inches, sized for the 174 mm
+text width of an A4 page.
+"""
+
+from __future__ import annotations
+
+import io
+import math
+import numpy as np
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.figure import Figure
+from matplotlib.ticker import FixedLocator, FormatStrFormatter, NullFormatter
+from scipy import stats
+
+from validate.validation.window import error_curve
+
+DPI = 200
+WIDTH_IN = 6.85  # 174 mm
+LINE = "#2f5d7c"
+POINT = "#1f2a33"
+BAND = "#c7d6e2"
+WARM = "#c98a2b"
+MUTED = "#7d8a95"
+BAD = "#a02c2c"
+
+
+def _figure(height_in: float) -> Figure:
+    fig = Figure(figsize=(WIDTH_IN, height_in), dpi=DPI)
+    FigureCanvasAgg(fig)
+    return fig
+
+
+def _png(fig: Figure) -> bytes:
+    buffer = io.BytesIO()
+    fig.savefig(buffer, format="png", dpi=DPI)
+    return buffer.getvalue()
+
+
+def _tidy(ax) -> None:
+    ax.spines["top"].set_visible(False)
+    ax.spines["right"].set_visible(False)
+    ax.tick_params(labelsize=8)
+    ax.grid(True, color="#e3e7ea", linewidth=0.6)
+    ax.set_axisbelow(True)
+
+
+def prediction_band(x, y, grid, slope: float, intercept: float, p: float = 0.95):
+    """Half-width of the OLS prediction interval for one new reading at each grid point.
+
+    t_{(1+p)/2}(n-2) s sqrt(1 + 1/n + (x0 - xbar)^2 / Sxx), s the residual SD of
+    the line (Draper and Smith, Applied Regression Analysis, 3rd ed. (1998),
+    section 3.1; the same expression as ISO 8466-1).
+    """
+    x, y, grid = (np.asarray(v, dtype=float) for v in (x, y, grid))
+    n = x.size
+    residuals = y - (intercept + slope * x)
+    s = math.sqrt(float(np.sum(residuals**2)) / (n - 2))
+    sxx = float(np.sum((x - x.mean()) ** 2))
+    t = stats.t.ppf(0.5 + p / 2, n - 2)
+    return t * s * np.sqrt(1.0 + 1.0 / n + (grid - x.mean()) ** 2 / sxx), s
+
+
+def calibration_figure(calibration: dict) -> bytes:
+    """The line with its standards, a 95 % prediction band and the samples; residuals beneath."""
+    pts = calibration["points"]
+    x = np.array([p["concentration"] for p in pts], dtype=float)
+    y = np.array([p["absorbance"] for p in pts], dtype=float)
+    b, a = float(calibration["slope"]), float(calibration["intercept"])
+    unit = calibration.get("concentration_unit", "")
+    samples = []
+    for s in calibration.get("samples") or []:
+        readings = [r for r in s.get("readings", []) if r is not None]
+        if readings and b != 0:
+            mean = float(np.mean(readings))
+            samples.append((s["id"], (mean - a) / b, mean))
+    x_hi = max([float(x.max())] + [sx for _, sx, _ in samples])
+    x_lo = min([0.0, float(x.min())] + [sx for _, sx, _ in samples])
+    grid = np.linspace(x_lo, x_hi + 0.03 * (x_hi - x_lo), 200)
+
+    fig = _figure(4.9)
+    gs = fig.add_gridspec(2, 1, height_ratios=[3, 1.35], hspace=0.08,
+                          left=0.12, right=0.98, top=0.97, bottom=0.1)
+    top = fig.add_subplot(gs[0])
+    low = fig.add_subplot(gs[1], sharex=top)
+    fitted = a + b * grid
+    half = prediction_band(x, y, grid, b, a)[0] if x.size > 2 else None
+    if half is not None:
+        top.fill_between(grid, fitted - half, fitted + half, color=BAND, linewidth=0,
+                         label="95 % prediction band (one new reading)")
+    top.plot(grid, fitted, color=LINE, linewidth=1.3,
+             label=f"fitted line A = {a:.4g} + {b:.4g} c")
+    blank = np.array([p.get("id", "").lower().startswith("blank") or p["concentration"] == 0
+                      for p in pts])
+    top.plot(x[~blank], y[~blank], "o", color=POINT, markersize=3.6, label="standards")
+    if blank.any():
+        top.plot(x[blank], y[blank], "s", color=MUTED, markersize=3.6, label="blanks")
+    if samples:
+        top.plot([sx for _, sx, _ in samples], [sy for _, _, sy in samples], "D", color=WARM,
+                 markersize=4.5, markerfacecolor="white", markeredgewidth=1.2,
+                 label="samples (mean reading, read off the line)")
+    top.set_ylabel("absorbance", fontsize=9)
+    top.legend(fontsize=7.5, loc="upper left", frameon=False)
+    top.tick_params(labelbottom=False)
+    _tidy(top)
+
+    resid = y - (a + b * x)
+    if half is not None:  # the same band, relative to the line, where its width can be seen
+        low.fill_between(grid, -half, half, color=BAND, linewidth=0)
+    low.axhline(0.0, color=LINE, linewidth=1.0)
+    low.plot(x[~blank], resid[~blank], "o", color=POINT, markersize=3.4)
+    if blank.any():
+        low.plot(x[blank], resid[blank], "s", color=MUTED, markersize=3.4)
+    low.set_ylabel("residual", fontsize=9)
+    low.set_xlabel(f"concentration / {unit}" if unit else "concentration", fontsize=9)
+    _tidy(low)
+    return _png(fig)
+
+
+def _short(label: str, width: int = 46) -> str:
+    """One line per bar: long source names are cut with an ellipsis (the table has them whole)."""
+    label = str(label) or "(none)"
+    return label if len(label) <= width else label[: width - 1] + "…"
+
+
+def _share_text(value: float) -> str:
+    return f"{value:.1f} %" if value >= 0.05 or value == 0 else "< 0.1 %"
+
+
+def _bars(ax, labels, shares, title: str) -> None:
+    positions = np.arange(len(labels))[::-1]
+    values = 100.0 * np.asarray(shares, dtype=float)
+    ax.barh(positions, values, color=LINE, height=0.62)
+    ax.set_yticks(positions)
+    ax.set_yticklabels([_short(lab) for lab in labels], fontsize=7.2)
+    right = max(values.max() if values.size else 1.0, 1e-9)
+    ax.set_xlim(0, right * 1.18)
+    for pos, v in zip(positions, values):
+        ax.text(v + right * 0.01, pos, _share_text(v), va="center", fontsize=7)
+    ax.set_xlabel("share of the combined variance / %", fontsize=8)
+    ax.set_title(title, fontsize=9, loc="left")
+    _tidy(ax)
+    ax.grid(False, axis="y")
+
+
+def share_chart(by_source: list[tuple[str, float]], by_step: list[tuple[str, float]],
+                top: int = 12) -> bytes:
+    """Ranked horizontal bars: the largest sources (rest summed as 'all others') and the steps."""
+    ranked = sorted(by_source, key=lambda item: -item[1])
+    shown = ranked[:top]
+    rest = ranked[top:]
+    if rest:
+        shown = shown + [(f"all {len(rest)} other sources", sum(s for _, s in rest))]
+    steps = sorted(by_step, key=lambda item: -item[1])
+    rows = len(shown) + len(steps)
+    height = min(1.5 + 0.2 * rows, 9.0)
+    fig = _figure(height)
+    gs = fig.add_gridspec(2, 1, height_ratios=[max(len(shown), 1), max(len(steps), 1)],
+                          hspace=1.1 / height * 2.2, left=0.4, right=0.97,
+                          top=1 - 0.3 / height, bottom=0.45 / height)
+    _bars(fig.add_subplot(gs[0]), [l for l, _ in shown], [s for _, s in shown],
+          f"by source (largest {min(top, len(ranked))})")
+    _bars(fig.add_subplot(gs[1]), [l for l, _ in steps], [s for _, s in steps], "by step")
+    return _png(fig)
+
+
+def monte_carlo_figure(mc: dict, value: float, u: float, nu_eff, unit: str) -> bytes:
+    """Histogram of the Monte Carlo trials with the GUM distribution and both intervals."""
+    hist = mc["histogram"]
+    edges = np.asarray(hist["edges"], dtype=float)
+    counts = np.asarray(hist["counts"], dtype=float)
+    widths = np.diff(edges)
+    density = counts / (counts.sum() * widths) if counts.sum() > 0 else counts
+    fig = _figure(3.7)
+    ax = fig.add_axes([0.1, 0.3, 0.87, 0.66])
+    ax.bar(edges[:-1], density, width=widths, align="edge", color=BAND, edgecolor=BAND,
+           label="Monte Carlo trials")
+    grid = np.linspace(edges[0], edges[-1], 400)
+    if nu_eff is None or not math.isfinite(nu_eff) or nu_eff > 1e6:
+        curve, label = stats.norm.pdf(grid, value, u), "GUM: normal, y and u(y)"
+    else:
+        curve = stats.t.pdf((grid - value) / u, nu_eff) / u
+        label = f"GUM: t distribution, ν_eff = {nu_eff:.0f}, y and u(y)"
+    ax.plot(grid, curve, color=LINE, linewidth=1.4, label=label)
+    marks = [("interval", WARM, "-", "Monte Carlo, probabilistically symmetric"),
+             ("shortest_interval", BAD, "--", "Monte Carlo, shortest"),
+             ("gum_interval", LINE, ":", "GUM, y ± U")]
+    for key, colour, style, text in marks:
+        ends = mc.get(key)
+        if ends and all(e is not None for e in ends):
+            for i, end in enumerate(ends):
+                ax.axvline(end, color=colour, linestyle=style, linewidth=1.2,
+                           label=text if i == 0 else None)
+    ax.set_xlabel(f"result / {unit}" if unit else "result", fontsize=9)
+    ax.set_ylabel("probability density", fontsize=9)
+    fig.legend(fontsize=7, frameon=False, loc="lower center", ncol=3)
+    _tidy(ax)
+    return _png(fig)
+
+
+def window_figure(standards: list[float], samples: list[float], low: float, high: float) -> bytes:
+    """The photometric error curve with the recommended window and where the readings lie."""
+    readings = [a for a in list(standards) + list(samples) if a is not None and a > 0]
+    a_max = max([2.0] + [a * 1.1 for a in readings])
+    curve = error_curve(0.02, a_max, 300)
+    fig = _figure(2.7)
+    ax = fig.add_axes([0.1, 0.18, 0.87, 0.66])
+    ax.axvspan(low, high, color="#e9efe6", label=f"recommended window {low:g} to {high:g}")
+    ax.plot(curve.absorbance, curve.relative_error_factor, color=LINE, linewidth=1.3,
+            label="relative error per unit transmittance noise")
+    ax.axvline(curve.optimum_absorbance, color=MUTED, linestyle=":", linewidth=1,
+               label=f"minimum at A = {curve.optimum_absorbance:.3f}")
+    ax.set_yscale("log")
+    ax.set_ylim(2, 60)
+    ax.yaxis.set_major_locator(FixedLocator([2, 5, 10, 20, 50]))
+    ax.yaxis.set_major_formatter(FormatStrFormatter("%g"))
+    ax.yaxis.set_minor_formatter(NullFormatter())
+    ymin = 2.0
+    ax.plot(standards, [ymin * 1.15] * len(standards), "|", color=POINT, markersize=12,
+            label="standards")
+    if samples:
+        ax.plot(samples, [ymin * 1.45] * len(samples), "|", color=WARM, markersize=12,
+                markeredgewidth=1.6, label="samples")
+    ax.set_xlim(0, a_max)
+    ax.set_xlabel("absorbance", fontsize=9)
+    ax.set_ylabel("error factor", fontsize=9)
+    fig.legend(fontsize=7, frameon=False, loc="upper center", ncol=3)
+    _tidy(ax)
+    return _png(fig)

@@ -1,0 +1,332 @@
+"""Report sections, part 1: summary, method, inputs, calibration.
+
+Every section builder takes the record dict and returns a list of flowables
+(without its numbered heading, which pdf.py adds), or None when the record
+holds nothing for it. Nothing here computes a result: values come from the
+record (the prediction band of the calibration figure is drawn from the
+record's points).
+"""
+
+from __future__ import annotations
+
+import io
+
+from reportlab.lib.utils import ImageReader
+from reportlab.platypus import Image, KeepTogether, Paragraph
+
+from validate.propagation.budget import round_gum
+from validate.report import figures
+from validate.report.style import (BAD, DASH, FRAME_WIDTH, GOOD, data_table, dof, gap, heading,
+                                   is_number, key_value_table, num, para, pct, styles, text)
+
+
+def png_image(data: bytes, width: float = FRAME_WIDTH) -> Image:
+    """A PNG at the given width, height from its aspect ratio."""
+    reader = ImageReader(io.BytesIO(data))
+    w, h = reader.getSize()
+    return Image(io.BytesIO(data), width=width, height=width * h / w)
+
+
+def figure_block(data: bytes, caption: str, width: float = FRAME_WIDTH) -> KeepTogether:
+    """A figure and its caption, never parted by a page break."""
+    return KeepTogether([gap(2), png_image(data, width), para(caption, "note")])
+
+
+def rounded(value, expanded) -> tuple[str, str]:
+    """Value and U rounded by GUM 7.2.6; dashes when the record holds no number (null)."""
+    if not (is_number(value) and is_number(expanded)):
+        return DASH, DASH
+    return round_gum(value, expanded)
+
+
+def u_decimals(result: dict) -> int:
+    """Decimal places of the rounded U of a result (0 when there is none)."""
+    big_u = rounded(result.get("value"), result.get("expanded_uncertainty"))[1]
+    return len(big_u.split(".")[1]) if "." in big_u else 0
+
+
+def concentration_unit(record: dict) -> str:
+    return (record.get("calibration") or {}).get("concentration_unit", "")
+
+
+def coloured(status: str, good: bool | None) -> Paragraph:
+    colour = {True: GOOD.hexval(), False: BAD.hexval()}.get(good)
+    body = f"<b>{text(status)}</b>" if colour is None else \
+        f'<font color="#{colour[2:]}"><b>{text(status)}</b></font>'
+    return Paragraph(body, styles()["cell"])
+
+
+# --------------------------------------------------------------------------
+# Summary (first page)
+
+def title_block(record: dict) -> list:
+    method, run, software = record.get("method", {}), record.get("run", {}), record.get("software", {})
+    facts = [("record id", run.get("record_id", DASH)),
+             ("created", run.get("created", DASH)),
+             ("measurand", method.get("measurand") or DASH),
+             ("software", f"{software.get('name', 'validate')} {software.get('version', '')}".strip())]
+    return [para(method.get("title") or "Untitled method", "title"),
+            para("Method validation and measurement uncertainty report", "subtitle"),
+            gap(2), key_value_table(facts, (32, 142)), gap(3)]
+
+
+def result_rows(record: dict) -> tuple[list[str], list[list], list[float], set[int]]:
+    results = record.get("results") or []
+    with_mc = any(r.get("monte_carlo") for r in results)
+    header = ["result", "value", "U", "k", "p", "ν_eff", "U / value"]
+    widths = [58, 26, 24, 13, 12, 13, 18]
+    if with_mc:
+        header.append("Monte Carlo interval")
+        widths = [44, 22, 20, 12, 11, 12, 17, 36]
+    rows = []
+    for r in results:
+        value, big_u = rounded(r.get("value"), r.get("expanded_uncertainty"))
+        unit = r.get("unit", "")
+        rel = (r["expanded_uncertainty"] / abs(r["value"])
+               if is_number(r.get("value")) and r["value"] and is_number(r.get("expanded_uncertainty"))
+               else None)
+        row = [r.get("name", DASH), f"{value} {unit}", f"{big_u} {unit}", num(r.get("coverage_factor"), 3),
+               pct(r.get("coverage_probability"), 0), dof(r.get("effective_dof")), pct(rel)]
+        if with_mc:
+            row.append(mc_interval_text(r))
+        rows.append(row)
+    eq = (record.get("equilibrium") or {}).get("combined")
+    if eq and is_number(eq.get("K")) and is_number(eq.get("expanded_uncertainty")):
+        value, big_u = rounded(eq["K"], eq["expanded_uncertainty"])
+        u = eq.get("standard_uncertainty")
+        k = eq["expanded_uncertainty"] / u if is_number(u) and u > 0 else None
+        unit = record["equilibrium"].get("unit", "L/mol")
+        row = ["formation constant K (combined)", f"{value} {unit}", f"{big_u} {unit}", num(k, 3),
+               pct(eq.get("coverage_probability"), 0) if eq.get("coverage_probability") else DASH,
+               dof(eq["effective_dof"]) if "effective_dof" in eq else DASH,
+               pct(eq["expanded_uncertainty"] / abs(eq["K"]) if eq["K"] else None)]
+        if with_mc:
+            row.append(DASH)
+        rows.append(row)
+    return header, rows, widths, set(range(1, len(header)))
+
+
+def mc_interval_text(result: dict) -> str:
+    """The probabilistically symmetric Monte Carlo interval, to the decimal place of U."""
+    mc = result.get("monte_carlo") or {}
+    ends = mc.get("interval")
+    if not ends or not all(is_number(e) for e in ends):
+        return DASH
+    decimals = u_decimals(result)
+    return f"[{ends[0]:.{decimals}f}, {ends[1]:.{decimals}f}] {result.get('unit', '')}"
+
+
+def limit_text(c: dict, conc_unit: str) -> str:
+    limit, unit = c.get("limit"), c.get("unit", "")
+    unit = conc_unit if unit == "concentration unit" else unit
+    suffix = f" {unit}" if unit else ""
+    if limit is None:
+        return "not set"
+    if isinstance(limit, (list, tuple)):
+        return f"{num(limit[0])} to {num(limit[1])}{suffix}"
+    symbol = {">=": "≥", "<=": "≤", "|x| <=": "|x| ≤"}.get(c.get("comparison"), c.get("comparison", ""))
+    return f"{symbol} {num(limit, 6)}{suffix}"
+
+
+def pretty(name: str) -> str:
+    """Plain-text exponents of the record shown as superscripts (r^2 -> r²)."""
+    return str(name).replace("^2", "²").replace("^-1", "⁻¹")
+
+
+def criteria_block(record: dict) -> list:
+    crit = (record.get("validation") or {}).get("criteria")
+    if not crit:
+        return []
+    conc_unit = concentration_unit(record)
+    items = crit.get("criteria") or []
+    shown = [c for c in items if c.get("status") != "not set"]
+    not_set = [pretty(c.get("name", c.get("key", ""))) for c in items if c.get("status") == "not set"]
+    failed = [c for c in shown if c.get("met") is False]
+    if crit.get("all_met") is True:
+        overall = coloured("Every evaluated acceptance criterion is met.", True)
+    elif crit.get("all_met") is False:
+        overall = coloured(f"{len(failed)} of {len(shown)} acceptance criteria not met.", False)
+    else:
+        overall = coloured("No acceptance criterion could be evaluated.", None)
+    rows = []
+    for c in shown:
+        unit = c.get("unit", "")
+        unit = conc_unit if unit == "concentration unit" else unit
+        value = c.get("observed")
+        # r² close to 1 needs its digits; other observations read well with four
+        digits = 6 if is_number(value) and 0.9 < value < 1 else 4
+        observed = f"{num(value, digits)} {unit}".strip() if value is not None else DASH
+        origin = "default (common practice)" if c.get("is_default") else "set by the user"
+        rows.append([pretty(c.get("name", c.get("key"))), limit_text(c, conc_unit), observed,
+                     coloured(c.get("status", DASH), c.get("met")), origin])
+    out = [heading("Acceptance criteria", 2), overall, gap(1.5)]
+    if rows:
+        out.append(data_table(["criterion", "limit", "observed", "verdict", "limit from"], rows,
+                              [58, 28, 24, 26, 38], numeric={2}))
+    if not_set:
+        out.append(para("Not set (no general default): " + "; ".join(not_set) + ".", "small"))
+    out.append(para(crit.get("caution") or "Acceptance criteria come from the applicable "
+                    "requirements, not from the tool.", "note"))
+    return out
+
+
+def monte_carlo_line(record: dict) -> list:
+    results = [r for r in record.get("results") or [] if r.get("monte_carlo")]
+    if not results:
+        return []
+    agree = [r for r in results if r["monte_carlo"].get("agrees_with_gum")]
+    if len(agree) == len(results):
+        line = ("Monte Carlo (JCGM 101) validates the GUM interval of every result "
+                "(JCGM 101, clause 8).")
+    else:
+        names = "; ".join(r["name"] for r in results if r not in agree)  # names may hold commas
+        line = (f"Monte Carlo (JCGM 101, clause 8) does not validate the GUM interval of "
+                f"{len(results) - len(agree)} of {len(results)} results ({names}). For these, "
+                "report the Monte Carlo interval.")
+    return [para(line, "body")]
+
+
+def summary(record: dict) -> list:
+    header, rows, widths, numeric = result_rows(record)
+    out = [heading("Results", 2),
+            data_table(header, rows, widths, numeric=numeric),
+            para("U: expanded uncertainty, U = k u(y), with coverage factor k from the t "
+                 "distribution at the effective degrees of freedom ν_eff (Welch-Satterthwaite, "
+                 "GUM G.4.1) and coverage probability p. U is rounded to two significant digits "
+                 "and the value to the same decimal place (GUM 7.2.6).", "note")]
+    for r in record.get("results") or []:
+        if r.get("flags"):  # e.g. below the LOQ, extrapolated: the reader must see it here
+            out.append(para(f'<font color="#{BAD.hexval()[2:]}"><b>flag</b></font> '
+                            f"{text(r['name'])}: {text('; '.join(map(str, r['flags'])))}",
+                            "body", markup=True))
+    out += monte_carlo_line(record)
+    out += criteria_block(record)
+    return out
+
+
+# --------------------------------------------------------------------------
+# Method and scope; measurement equation and inputs
+
+def _setting_text(value) -> str:
+    if isinstance(value, bool):
+        return "yes" if value else "no"
+    if isinstance(value, (list, tuple)):
+        return ", ".join(_setting_text(v) for v in value) if value else "none"
+    if is_number(value):
+        return num(value, 4)
+    return str(value) if value not in (None, "") else DASH
+
+
+def _flatten(settings: dict, prefix: str = "") -> list[tuple[str, str]]:
+    """Nested settings as (label, text) rows: {"validation": {"alpha": 0.05}} -> "validation: alpha"."""
+    rows = []
+    for key, value in settings.items():
+        label = prefix + str(key).replace("_", " ")
+        if isinstance(value, dict):
+            rows += _flatten(value, label + ": ") if value else [(label, "none")]
+        else:
+            rows.append((label, _setting_text(value)))
+    return rows
+
+
+def method_scope(record: dict) -> list:
+    method = record.get("method", {})
+    facts = [("measurand", method.get("measurand") or DASH),
+             ("scope", method.get("scope") or DASH),
+             ("result unit", method.get("result_unit") or DASH),
+             ("method file", method.get("file") or DASH)]
+    settings = record.get("settings") or {}
+    plain = {k: v for k, v in settings.items() if not isinstance(v, dict)}
+    out = [key_value_table(facts, (32, 142))]
+    if plain:
+        out += [heading("Settings of this evaluation", 2), key_value_table(_flatten(plain), (64, 110))]
+    for key, group in settings.items():
+        if isinstance(group, dict) and group:
+            out += [heading(f"Settings: {str(key).replace('_', ' ')}", 2),
+                    key_value_table(_flatten(group), (64, 110))]
+    return out
+
+
+def equation_inputs(record: dict) -> list:
+    method = record.get("method", {})
+    out = [para("The result is calculated as", "lead"),
+           para(f"y = {method.get('formula', DASH)}", "formula"),
+           para(f"with y in {method.get('result_unit') or DASH}. Every input quantity and "
+                "uncertainty source of the model follows, with its provenance. Type A: "
+                "evaluated from replicate readings; Type B: from certificates, tolerances "
+                "and specifications (GUM 4.2, 4.3). ν: degrees of freedom (∞ for Type B).",
+                "small")]
+    s = styles()
+    rows = []
+    for src in record.get("sources") or []:
+        where = " · ".join(v for v in (src.get("step"), src.get("equipment")) if v)
+        name = f"{text(src.get('name', ''))}"
+        if where:
+            name += f'<br/><font size="6.8" color="#5b6670">{text(where)}</font>'
+        value = src.get("value_in_unit", src.get("value"))
+        u = src.get("u_in_unit", src.get("u"))
+        rows.append([Paragraph(name, s["cell"]), num(value, 6), num(u, 3), src.get("unit") or DASH,
+                     src.get("distribution") or DASH, dof(src.get("dof")), src.get("kind") or DASH,
+                     Paragraph(text(src.get("provenance") or DASH), s["cell"])])
+    if not rows:
+        out.append(para("The record lists no input quantities.", "body"))
+        return out
+    out.append(data_table(["input", "value", "u(x)", "unit", "distribution", "ν", "type",
+                           "provenance"], rows, [38, 16, 15, 12, 22, 8, 10, 53],
+                          numeric={1, 2, 5}))
+    return out
+
+
+# --------------------------------------------------------------------------
+# Calibration
+
+def reading_decimals(cal: dict) -> int:
+    """Decimal places the readings were recorded with (the most any reading shows, at most 6)."""
+    places = 0
+    values = [p.get("absorbance") for p in cal.get("points", [])]
+    values += [r for s in cal.get("samples", []) for r in s.get("readings", [])]
+    for value in values:
+        if is_number(value):
+            shown = repr(float(value))
+            if "e" not in shown and "." in shown:
+                places = max(places, len(shown.split(".")[1].rstrip("0")))
+    return min(places, 6)
+
+def calibration(record: dict) -> list | None:
+    cal = record.get("calibration")
+    if not cal or not cal.get("points"):
+        return None
+    unit = cal.get("concentration_unit", "")
+    facts = [("slope b (sensitivity)",
+              f"{num(cal.get('slope'), 5)} per {unit}, "
+              f"u(b) = {num(cal.get('slope_standard_uncertainty'), 3)} per {unit}"),
+             ("intercept a", f"{num(cal.get('intercept'), 4)}, u(a) = "
+                             f"{num(cal.get('intercept_standard_uncertainty'), 3)} (absorbance)"),
+             ("residual standard deviation s",
+              f"{num(cal.get('residual_standard_deviation'), 3)} (absorbance)"),
+             ("coefficient of determination r²", num(cal.get("r_squared"), 6)),
+             ("points n, degrees of freedom", f"{cal.get('n', DASH)}, {cal.get('dof', DASH)}"),
+             ("concentration unit", unit or DASH)]
+    out = [para("Absorbance A = a + b c, fitted by ordinary least squares to every reading of the "
+                "standards (and of the blanks, when they enter the fit).", "lead"),
+           key_value_table(facts, (58, 116)),
+           figure_block(figures.calibration_figure(cal),
+                        "Figure: calibration line with its standards and the samples' mean "
+                        "readings placed on the line. The shaded band is the 95 % prediction "
+                        "interval of one new reading, t(n-2) s sqrt(1 + 1/n + (c - c_m)²/Sxx), "
+                        "c_m the mean concentration of the points (Draper and Smith, Applied "
+                        "Regression Analysis, 3rd ed., 1998, section 3.1). Below: residuals, "
+                        "reading minus line, with the same band drawn about zero.")]
+    samples = cal.get("samples") or []
+    if samples:
+        places = reading_decimals(cal)
+        rows = []
+        for smp in samples:
+            readings = [r for r in smp.get("readings", []) if is_number(r)]
+            mean = sum(readings) / len(readings) if readings else None
+            rows.append([smp.get("id", ""), ", ".join(f"{r:.{places}f}" for r in readings) or DASH,
+                         len(readings), f"{mean:.{places + 1}f}" if mean is not None else DASH])
+        out += [heading("Sample readings", 2),
+                data_table(["sample", "absorbance readings", "n", "mean absorbance"], rows,
+                           [45, 85, 14, 30], numeric={2, 3})]
+    return out

@@ -1,0 +1,89 @@
+"""Report section: what to improve first.
+
+Reads record["advice"] in either shape: the advisor's report (a dict with
+ranked `items`, a `combined` change, `without_effect`, `skipped`, `sources`)
+or a plain list of changes. Nothing is evaluated here.
+"""
+
+from __future__ import annotations
+
+from validate.report.style import (DASH, bullets, data_table, dof, heading, is_number, num, para,
+                                   pct)
+
+
+def _figure(value, unit: str) -> str:
+    """A ranking figure: relative ones (U/|y|) in percent, others with their unit."""
+    if not is_number(value):
+        return "not evaluated"
+    if str(unit).startswith("relative"):
+        return pct(value, 2)
+    return f"{num(value, 3)} {unit}".strip()
+
+
+def _rows(items: list[dict], unit: str) -> list[list]:
+    rows = []
+    for rank, a in enumerate(items, 1):
+        u = a.get("unit") or unit
+        rows.append([rank, a.get("change", DASH), _figure(a.get("expanded_uncertainty_after"), u),
+                     pct(a.get("reduction")) if is_number(a.get("reduction")) else DASH,
+                     _figure(a["confirmed_by_monte_carlo"], u)
+                     if is_number(a.get("confirmed_by_monte_carlo")) else DASH,
+                     a.get("cost") or DASH])
+    return rows
+
+
+def _effects(advice: dict, units: dict, title: str) -> list:
+    effects = advice.get("effects") or []
+    if not effects:
+        return []
+    rows = [[e.get("result", DASH),
+             f"{num(e.get('expanded_uncertainty_before'), 3)} → "
+             f"{num(e.get('expanded_uncertainty_after'), 3)} {units.get(e.get('result'), '')}".strip(),
+             f"{num(e.get('coverage_factor_before'), 3)} → {num(e.get('coverage_factor_after'), 3)}",
+             f"{dof(e.get('effective_dof_before'))} → {dof(e.get('effective_dof_after'))}"]
+            for e in effects]
+    return [heading(title, 2),
+            data_table(["result", "U before → after", "k before → after", "ν_eff before → after"],
+                       rows, [62, 46, 34, 32], numeric={1, 2, 3})]
+
+
+def advice(record: dict) -> list | None:
+    block = record.get("advice")
+    if isinstance(block, list):
+        block = {"items": block}
+    if not isinstance(block, dict) or not (block.get("items") or block.get("combined")):
+        return None
+    units = {r.get("name"): r.get("unit", "") for r in record.get("results") or []}
+    unit = block.get("unit") or next(iter(units.values()), "")
+    items = [a for a in block.get("items") or [] if isinstance(a, dict)]
+    intro = ("Each change is evaluated with the same model, one at a time"
+             + (f", {block['ranking']}" if block.get("ranking") else "") + ".")
+    if is_number(block.get("expanded_uncertainty_before")):
+        intro += (f" Now: {block.get('target', 'U')} = "
+                  f"{_figure(block['expanded_uncertainty_before'], unit)}.")
+    out = [para(intro, "lead")]
+    if items:
+        out.append(data_table(["#", "change", "after the change", "reduction", "Monte Carlo after",
+                               "cost"], _rows(items, unit), [7, 60, 22, 18, 24, 43],
+                              numeric={0, 2, 3, 4}))
+    combined = block.get("combined")
+    if isinstance(combined, dict):
+        out += [heading("The best changes together", 2),
+                data_table(["", "change", "after the change", "reduction", "Monte Carlo after",
+                            "cost"], _rows([combined], unit), [7, 60, 22, 18, 24, 43],
+                           numeric={0, 2, 3, 4})]
+    if isinstance(combined, dict):
+        out += _effects(combined, units, "Effect of the best changes together on each result")
+    elif items:
+        out += _effects(items[0], units,
+                        f"Effect of the first change on each result: {items[0].get('change', '')}")
+    notes = [f"{a['change']}: {a['assumption']}" for a in items if a.get("assumption")]
+    if notes:
+        out += [heading("Assumptions behind the changes", 2), *bullets(notes, "small")]
+    for title, key in (("Changes without effect", "without_effect"),
+                       ("Changes that could not be evaluated", "skipped")):
+        if block.get(key):
+            out += [heading(title, 2), *bullets(block[key], "small")]
+    if block.get("sources"):
+        out += [para("Sources", "small"), *bullets(block["sources"], "small")]
+    return out

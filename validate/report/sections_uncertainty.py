@@ -1,0 +1,239 @@
+"""Report sections, part 3: uncertainty budget, Monte Carlo, equilibrium constant."""
+
+from __future__ import annotations
+
+import math
+
+from reportlab.lib.units import mm
+from reportlab.platypus import CondPageBreak, Table, TableStyle
+
+from validate.report import figures
+from validate.report.sections import coloured, figure_block, rounded, u_decimals
+from validate.report.style import (DASH, data_table, dof, gap, heading, is_number, key_value_table,
+                                   num, para, pct)
+
+MIN_SHARE_SHOWN = 1e-4  # budget rows below 0.01 % are summed in one line (all are in budget.csv)
+
+
+def _budget_rows(record: dict, result_name: str) -> list[dict]:
+    rows = [r for r in record.get("budget") or [] if r.get("result") == result_name]
+    return sorted(rows, key=lambda r: -(r.get("share") or 0.0))
+
+
+def _per(result_unit: str, source_unit: str) -> str:
+    if not source_unit:
+        return result_unit
+    top = f"({result_unit})" if "/" in result_unit else result_unit
+    return f"{top}/{source_unit}" if "/" not in source_unit else f"{top} per {source_unit}"
+
+
+def _group_table(title: str, groups: list[dict], unit: str) -> Table:
+    rows = [[g.get("group", DASH), num(g.get("contribution"), 3), pct(g.get("share"))]
+            for g in groups]
+    return data_table([title, f"u / {unit}", "share"], rows, [43, 20, 20], numeric={1, 2})
+
+
+def budget_for_result(record: dict, result: dict) -> list:
+    unit = result.get("unit", "")
+    value, big_u = rounded(result.get("value"), result.get("expanded_uncertainty"))
+    rows = _budget_rows(record, result["name"])
+    shown = [r for r in rows if (r.get("share") or 0.0) >= MIN_SHARE_SHOWN]
+    hidden = rows[len(shown):] if len(shown) < len(rows) else []
+    table_rows = []
+    for rank, r in enumerate(shown, 1):
+        src_unit = r.get("unit") or ""
+        table_rows.append([rank, r.get("source", DASH), r.get("step") or DASH,
+                           r.get("equipment") or DASH,
+                           f"{num(r.get('standard_uncertainty'), 3)} {src_unit}".strip(),
+                           f"{num(r.get('sensitivity'), 4)} {_per(unit, src_unit)}",
+                           num(r.get("contribution"), 3), pct(r.get("share"))])
+    out = [CondPageBreak(90 * mm), heading(result["name"], 2),
+           para(f"y = {value} {unit}, u(y) = {num(result.get('standard_uncertainty'), 3)} {unit}, "
+                f"U = {big_u} {unit} (k = {num(result.get('coverage_factor'), 3)}, "
+                f"p = {pct(result.get('coverage_probability'), 0)}, ν_eff = "
+                f"{dof(result.get('effective_dof'))}).", "lead")]
+    if table_rows:
+        out.append(data_table(["#", "source", "step", "equipment", "u(x_i)", "sensitivity c_i",
+                               f"c_i u(x_i) / {unit}", "share"], table_rows,
+                              [7, 40, 24, 21, 20, 26, 20, 16], numeric={0, 4, 5, 6, 7}))
+    if hidden:
+        total = sum(r.get("share") or 0.0 for r in hidden)
+        out.append(para(f"{len(hidden)} further sources each below {pct(MIN_SHARE_SHOWN, 2)} of "
+                        f"the variance (together {pct(total, 3)}) are listed in budget.csv.",
+                        "small"))
+    by_source = [(r.get("source", ""), r.get("share") or 0.0) for r in rows]
+    by_step = [(g.get("group", ""), g.get("share") or 0.0) for g in result.get("budget_by_step") or []]
+    if by_source:
+        out.append(figure_block(figures.share_chart(by_source, by_step),
+                                "Figure: shares of the combined variance u²(y), ranked. Sources "
+                                "are independent by construction (a shared item is one source), "
+                                "so the shares add up to 100 %.", 160 * mm))
+    steps, items = result.get("budget_by_step") or [], result.get("budget_by_equipment") or []
+    if steps or items:
+        pair = Table([[_group_table("step", steps, unit), _group_table("equipment item", items, unit)]],
+                     colWidths=[87 * mm, 87 * mm], hAlign="LEFT")
+        pair.setStyle(TableStyle([("VALIGN", (0, 0), (-1, -1), "TOP"),
+                                  ("LEFTPADDING", (0, 0), (-1, -1), 0)]))
+        out.append(pair)
+    return out
+
+
+def budget(record: dict) -> list:
+    results = record.get("results") or []
+    out = [para("Each source's standard uncertainty u(x_i), its sensitivity coefficient "
+                "c_i = ∂y/∂x_i and its contribution c_i u(x_i) to the result, ranked by its share "
+                "of the combined variance (GUM 5.1.3). Sources used in several places (one "
+                "pipette, one stock solution, one temperature) enter once, so their correlation "
+                "is part of the budget.", "lead")]
+    if not results:
+        out.append(para("The record holds no result.", "body"))
+    for result in results:
+        out += budget_for_result(record, result)
+    return out
+
+
+# --------------------------------------------------------------------------
+# Monte Carlo
+
+def _decimals(mc: dict, result: dict) -> int:
+    """Decimal places: those of the numerical tolerance (JCGM 101 7.9.2), else of U + 1."""
+    tol = mc.get("tolerance")
+    if is_number(tol) and tol > 0:
+        return max(0, -math.floor(math.log10(tol)))
+    return u_decimals(result) + 1
+
+
+def _interval(ends, decimals: int, unit: str) -> str:
+    if not ends or not all(is_number(e) for e in ends):
+        return DASH
+    return f"[{ends[0]:.{decimals}f}, {ends[1]:.{decimals}f}] {unit}"
+
+
+def monte_carlo_for_result(result: dict) -> list:
+    mc, unit = result["monte_carlo"], result.get("unit", "")
+    d = _decimals(mc, result)
+    agrees = mc.get("agrees_with_gum")
+    verdict = {True: "the GUM interval is validated: both end-point differences are within δ",
+               False: "the GUM interval is not validated: report the Monte Carlo interval",
+               None: "not evaluated"}[agrees if isinstance(agrees, bool) else None]
+    p = pct(result.get("coverage_probability"), 0)
+
+    def fixed(x):
+        return f"{x:.{d}f} {unit}" if is_number(x) else DASH
+
+    facts = [("trials (undefined results)", f"{num(mc.get('trials'))} ({mc.get('invalid_trials', 0)} "
+              "undefined, counted and left out)"),
+             ("random seed", mc.get("seed", DASH) if mc.get("seed") is not None else DASH),
+             ("mean, standard uncertainty", f"{fixed(mc.get('mean'))}, "
+              f"{num(mc.get('standard_uncertainty'), 3)} {unit}"),
+             (f"{p} interval, probabilistically symmetric", _interval(mc.get("interval"), d, unit)),
+             (f"{p} interval, shortest", _interval(mc.get("shortest_interval"), d, unit)),
+             (f"{p} GUM interval y ± U", _interval(mc.get("gum_interval"), d, unit)),
+             ("differences d_low, d_high; tolerance δ",
+              f"{num(mc.get('d_low'), 2)} {unit}, {num(mc.get('d_high'), 2)} {unit}; "
+              f"δ = {num(mc.get('tolerance'), 2)} {unit}"),
+             ("verdict (JCGM 101 clause 8)", coloured(verdict, agrees if isinstance(agrees, bool) else None))]
+    if mc.get("warning"):
+        facts.append(("warning", coloured(str(mc["warning"]), False)))
+    adaptive = mc.get("adaptive")
+    if isinstance(adaptive, dict) and adaptive:
+        facts.append(("adaptive procedure (JCGM 101 7.9)",
+                      "; ".join(f"{k.replace('_', ' ')} {num(v) if is_number(v) else v}"
+                                for k, v in adaptive.items() if not isinstance(v, (dict, list)))))
+    out = [CondPageBreak(110 * mm), heading(result["name"], 2), key_value_table(facts, (62, 112))]
+    hist = mc.get("histogram") or {}
+    if (hist.get("edges") and hist.get("counts") and is_number(result.get("value"))
+            and is_number(result.get("standard_uncertainty"))):
+        png = figures.monte_carlo_figure(mc, result.get("value"), result["standard_uncertainty"],
+                                         result.get("effective_dof"), unit)
+        out.append(figure_block(png, "Figure: distribution of the Monte Carlo trials against the "
+                                "distribution the GUM assigns to the result; vertical lines mark "
+                                "the coverage intervals."))
+    out += _mc_shares(mc, result)
+    return out
+
+
+def _mc_shares(mc: dict, result: dict) -> list:
+    rows = []
+    for key, label, gum_key in (("shares_by_step", "step", "budget_by_step"),
+                                ("shares_by_equipment", "equipment item", "budget_by_equipment")):
+        gum = {g.get("group"): g.get("share") for g in result.get(gum_key) or []}
+        for g in mc.get(key) or []:
+            rows.append([label, g.get("group", DASH), pct(gum.get(g.get("group"))), pct(g.get("share"))])
+    if not rows:
+        return []
+    return [data_table(["grouped by", "group", "share, GUM", "share, Monte Carlo"], rows,
+                       [30, 84, 30, 30], numeric={2, 3}),
+            para("Shares of the variance by group from the Monte Carlo evaluation, beside the "
+                 "GUM shares of the same groups.", "note")]
+
+
+def monte_carlo(record: dict) -> list | None:
+    results = [r for r in record.get("results") or [] if isinstance(r.get("monte_carlo"), dict)]
+    if not results:
+        return None
+    out = [para("The same model evaluated with random trial values of every source (JCGM 101). "
+                "The GUM interval is validated when its end points differ from those of the "
+                "probabilistically symmetric Monte Carlo interval by no more than the numerical "
+                "tolerance δ of the standard uncertainty (JCGM 101:2008, 7.9.2 and 8.2).", "lead")]
+    settings = record.get("monte_carlo_settings") or {}
+    if settings:
+        out.append(key_value_table([
+            ("trials per result", num(settings.get("trials"))),
+            ("random seed", str(settings.get("seed", DASH))),
+            ("method", settings.get("method") or DASH)], (62, 112)))
+    for result in results:
+        out += monte_carlo_for_result(result)
+    return out
+
+
+# --------------------------------------------------------------------------
+# Equilibrium constant
+
+def equilibrium(record: dict) -> list | None:
+    eq = record.get("equilibrium")
+    if not isinstance(eq, dict) or not eq:
+        return None
+    unit = eq.get("unit", "L/mol")
+    out = [para("1:1 association M + L ⇌ ML, K = [ML] / ([M][L]). K is conditional on the "
+                "temperature and ionic strength below.", "lead")]
+    cond = eq.get("conditions") or {}
+    if cond:
+        out.append(key_value_table([(k.replace("_", " "), f"{num(v, 4)}" if is_number(v) else str(v))
+                                    for k, v in cond.items()], (58, 116)))
+    mixtures = eq.get("mixtures") or []
+    if mixtures:
+        rows = [[m.get("id", DASH), num(m.get("K"), 4), num(m.get("u_K"), 3),
+                 f"[{num((m.get('interval') or [None, None])[0], 4)}, "
+                 f"{num((m.get('interval') or [None, None])[1], 4)}]"] for m in mixtures]
+        out += [heading("Mixtures", 2),
+                data_table(["mixture", f"K / {unit}", f"u(K) / {unit}", f"interval / {unit}"],
+                           rows, [54, 36, 36, 48], numeric={1, 2, 3})]
+    comb = eq.get("combined") or {}
+    if comb:
+        facts = []
+        if is_number(comb.get("K")) and is_number(comb.get("expanded_uncertainty")):
+            value, big_u = rounded(comb["K"], comb["expanded_uncertainty"])
+            facts.append(("combined K, U", f"{value} {unit}, U = {big_u} {unit}"))
+        facts.append(("standard uncertainty", f"{num(comb.get('standard_uncertainty'), 3)} {unit}"))
+        if comb.get("interval"):
+            low, high = comb["interval"]
+            facts.append(("coverage interval", f"[{num(low, 4)}, {num(high, 4)}] {unit}"))
+        cons = comb.get("consistency") or {}
+        if cons:
+            facts.append(("consistency: χ², ν, p, Birge ratio",
+                          f"{num(cons.get('chi2'), 4)}, {cons.get('dof', DASH)}, "
+                          f"{num(cons.get('p_value'), 3)}, {num(cons.get('birge_ratio'), 3)}"))
+            facts.append(("verdict", cons.get("verdict", DASH)))
+        out += [heading("Combined constant", 2), key_value_table(facts, (58, 116))]
+    extra = []
+    bias = eq.get("complete_complexation_bias") or {}
+    if bias:
+        extra.append(("bias of assuming complete complexation",
+                      f"slope {pct(bias.get('slope'), 2)}, K {pct(bias.get('K'), 2)} (relative)"))
+    lk = eq.get("log10K") or {}
+    if is_number(lk.get("value")):
+        extra.append(("log10 K", f"{num(lk['value'], 4)}, u = {num(lk.get('standard_uncertainty'), 2)}"))
+    if extra:
+        out += [gap(2), key_value_table(extra, (58, 116))]
+    return out

@@ -1,0 +1,271 @@
+"""Report sections, part 2: the validation statistics of the calibration.
+
+Linearity tests, detection and quantitation limits, working range with the
+absorbance window, precision and trueness. Each builder returns None when
+the record has no `validation` block (or no data for the section).
+"""
+
+from __future__ import annotations
+
+from validate.report import figures
+from validate.report.sections import coloured, concentration_unit, figure_block
+from validate.report.style import (DASH, bullets, data_table, heading, is_number,
+                                   key_value_table, num, para, pct)
+
+TEST_KEYS = ("lack_of_fit", "mandel", "runs", "intercept", "weighting")
+
+ROUTE_NAMES = {
+    "ich_residual_sd": "ICH Q2: σ = residual SD of the line",
+    "ich_intercept_sd": "ICH Q2: σ = SD of the intercept",
+    "ich_blank_sd": "ICH Q2: σ = SD of the blank readings",
+    "iso11843_2": "ISO 11843-2: minimum detectable value",
+}
+
+
+def _validation(record: dict) -> dict | None:
+    v = record.get("validation")
+    return v if isinstance(v, dict) and v else None
+
+
+def linearity_tests(validation: dict) -> list[dict]:
+    """The tests as a list, whether the record holds them as a list, a dict, or top-level keys."""
+    tests = validation.get("tests")
+    if isinstance(tests, list):
+        return [t for t in tests if isinstance(t, dict)]
+    if isinstance(tests, dict):
+        return [t for t in tests.values() if isinstance(t, dict)]
+    found = [validation[k] for k in TEST_KEYS if isinstance(validation.get(k), dict)]
+    found += [v for k, v in validation.items() if k not in TEST_KEYS and isinstance(v, dict)
+              and "p_value" in v and "verdict" in v and "name" in v]
+    return found
+
+
+def _dof_text(value) -> str:
+    if isinstance(value, (list, tuple)):
+        return ", ".join(num(v, 3) for v in value) if value else DASH
+    return num(value, 3)
+
+
+def _sources(items: list[tuple[str, str]]) -> list:
+    lines = [f"{name}: {src}" for name, src in items if src]
+    return [para("Sources", "small")] + bullets(lines, "small") if lines else []
+
+
+def linearity(record: dict) -> list | None:
+    v = _validation(record)
+    tests = linearity_tests(v) if v else []
+    if not tests:
+        return None
+    rows = []
+    for t in tests:
+        significant = t.get("significant")
+        good = None if significant is None else not significant
+        if t.get("name", "").startswith("intercept"):
+            good = None  # a non-zero intercept is information, not a failure
+        rows.append([t.get("name", DASH), num(t.get("statistic"), 4), _dof_text(t.get("dof")),
+                     num(t.get("p_value"), 3), coloured(t.get("verdict", DASH), good)])
+    out = [para("Each test at its stated significance level; the verdict says what the result "
+                "means for the straight line.", "lead"),
+           data_table(["test", "statistic", "degrees of freedom", "p value", "verdict"], rows,
+                      [30, 18, 20, 16, 90], numeric={1, 2, 3})]
+    points = v.get("points") or {}
+    if points.get("flagged"):
+        out += [heading("Points that stand out", 2), *bullets(points["flagged"])]
+    if is_number(v.get("max_abs_relative_residual_percent")):
+        out.append(para("Largest |residual| / fitted value over the standards above zero: "
+                        f"{num(v['max_abs_relative_residual_percent'], 3)} %.", "body"))
+    out += _sensitivity(v, concentration_unit(record))
+    notes = list(v.get("notes") or [])
+    if notes:
+        out += [heading("Notes", 2), *bullets(notes)]
+    out += _sources([(t.get("name"), t.get("source")) for t in tests] +
+                    [("residual diagnostics", points.get("source"))])
+    return out
+
+
+def _sensitivity(v: dict, unit: str) -> list:
+    rows = []
+    s = v.get("sensitivity")
+    if isinstance(s, dict) and is_number(s.get("slope")):
+        rows.append(("sensitivity (slope)", f"{num(s['slope'], 5)} per {unit}, u = "
+                     f"{num(s.get('standard_uncertainty'), 3)} per {unit} "
+                     f"({pct(s.get('relative_standard_uncertainty'), 2)}), ν = {s.get('dof', DASH)}"))
+    e = v.get("molar_absorptivity")
+    if isinstance(e, dict) and is_number(e.get("value")):
+        rows.append(("molar absorptivity ε", f"{num(e['value'], 5)}, u = "
+                     f"{num(e.get('standard_uncertainty'), 3)} "
+                     f"({pct(e.get('relative_standard_uncertainty'), 2)}); path length "
+                     f"{num(e.get('path_length_cm'), 4)} cm; unit: {e.get('unit', DASH)}"))
+    if not rows:
+        return []
+    return [heading("Sensitivity and molar absorptivity", 2), key_value_table(rows, (44, 130))]
+
+
+def detection_limits(record: dict) -> list | None:
+    v = _validation(record)
+    limits = (v or {}).get("limits")
+    if not isinstance(limits, dict) or not limits.get("routes"):
+        return None
+    unit = concentration_unit(record)
+    declared = limits.get("declared_route")
+    rows = []
+    for r in limits["routes"]:
+        mark = "declared" if r.get("route") == declared else ""
+        rows.append([ROUTE_NAMES.get(r.get("route"), r.get("route", DASH)), num(r.get("sigma"), 3),
+                     num(r.get("lod"), 3),
+                     num(r.get("loq"), 3) if r.get("loq") is not None else "not defined",
+                     mark])
+    out = [para(f"Limits in {unit or 'the concentration unit'}; σ in absorbance. The declared "
+                f"route is the one this record uses: LOD = {num(limits.get('lod'), 3)} {unit}, "
+                f"LOQ = {num(limits.get('loq'), 3)} {unit}.", "lead"),
+           data_table(["route", "σ", f"LOD / {unit}", f"LOQ / {unit}", ""], rows,
+                      [74, 22, 26, 30, 22], numeric={1, 2, 3})]
+    iso = limits.get("iso11843")
+    if isinstance(iso, dict):
+        out.append(key_value_table([
+            ("ISO 11843-2 critical value x_C", f"{num(iso.get('critical_value'), 3)} {unit} "
+             f"(response above the intercept {num(iso.get('critical_value_response'), 3)})"),
+            ("minimum detectable value x_D", f"{num(iso.get('minimum_detectable_value'), 3)} {unit}; "
+             "with the exact noncentral-t δ "
+             f"{num(iso.get('minimum_detectable_value_exact_delta'), 3)} {unit}"),
+            ("α, β, readings per sample K", f"{num(iso.get('alpha'))}, {num(iso.get('beta'))}, "
+             f"{iso.get('sample_replicates', DASH)}")], (58, 116)))
+    warnings = list(limits.get("warnings") or []) + list(limits.get("notes") or [])
+    if warnings:
+        out += [heading("Warnings", 2), *bullets(warnings)]
+    notes = [f"{ROUTE_NAMES.get(r.get('route'), r.get('route', ''))}: {r['note']}"
+             for r in limits["routes"] if r.get("note")]
+    out += bullets(notes, "small")
+    out += _sources([(ROUTE_NAMES.get(r.get("route"), r.get("route", "")), r.get("source"))
+                     for r in limits["routes"]])
+    return out
+
+
+def _flag_rows(flags, clear: str) -> list[list]:
+    """{sample: [flags]} as table rows; `clear` where a sample has none."""
+    if isinstance(flags, dict):
+        return [[sid, "; ".join(map(str, f)) if f else clear] for sid, f in flags.items()]
+    return []
+
+
+def _sample_rows(v: dict, unit: str) -> list[list]:
+    """Samples read off the line: concentration with u, and their range flags."""
+    rows = []
+    for sid, smp in (v.get("samples") or {}).items():
+        if not isinstance(smp, dict):
+            continue
+        flags = smp.get("flags") or (v.get("range_flags") or {}).get(sid) or []
+        rows.append([sid, num(smp.get("concentration"), 4), num(smp.get("standard_uncertainty"), 3),
+                     "; ".join(map(str, flags)) if flags else "within the working range"])
+    return rows
+
+
+def working_range(record: dict) -> list | None:
+    v = _validation(record)
+    if not v:
+        return None
+    unit = concentration_unit(record)
+    limits = v.get("limits") or {}
+    facts = [("lowest and highest standard", f"{num(v.get('lowest_standard'), 4)} to "
+              f"{num(v.get('highest_standard'), 4)} {unit}"),
+             ("declared LOD and LOQ",
+              f"{num(limits.get('lod'), 3)} and {num(limits.get('loq'), 3)} {unit}")]
+    out = [key_value_table(facts, (58, 116))]
+    sample_rows = _sample_rows(v, unit)
+    if sample_rows:
+        out += [heading("Samples against the working range", 2),
+                data_table(["sample", f"concentration / {unit}", f"u / {unit}", "flags"],
+                           sample_rows, [40, 30, 22, 82], numeric={1, 2})]
+    elif _flag_rows(v.get("range_flags"), ""):
+        out += [heading("Samples against the working range", 2),
+                data_table(["sample", "flags"],
+                           _flag_rows(v.get("range_flags"), "within the working range"), [50, 124])]
+    out += _window(record, v)
+    return out
+
+
+def _flagged_readings(window_flags: dict) -> list[list]:
+    """Readings outside the window, grouped by what is wrong with them."""
+    groups: dict[str, list[float]] = {}
+    for value, flags in zip(window_flags.get("absorbance") or [], window_flags.get("flags") or []):
+        for flag in flags or []:
+            groups.setdefault(str(flag), []).append(value)
+    return [[flag, len(values), ", ".join(num(a, 4) for a in values)]
+            for flag, values in groups.items()]
+
+
+def _window(record: dict, v: dict) -> list:
+    fitted = v.get("window") if isinstance(v.get("window"), dict) else {}
+    every = v.get("window_flags") if isinstance(v.get("window_flags"), dict) else {}
+    window = every if "flags" in every else fitted
+    cal = record.get("calibration") or {}
+    standards = [p["absorbance"] for p in cal.get("points", []) if is_number(p.get("absorbance"))]
+    samples = [a for s in cal.get("samples", []) for a in s.get("readings", []) if is_number(a)]
+    low, high = window.get("low", 0.1), window.get("high", 1.0)
+    out = [heading("Absorbance window", 2)]
+    if window:
+        which = ("readings (standards, blanks and samples)" if window is every
+                 else "readings of the calibration")
+        total = (window.get("inside") or 0) + (window.get("outside") or 0)
+        out.append(para(f"{window.get('inside', DASH)} of {total} {which} lie inside the window "
+                        f"{num(low)} to {num(high)}; {window.get('outside', DASH)} outside.", "lead"))
+        flagged = _flagged_readings(window)
+        if flagged:
+            out.append(data_table(["outside the window", "n", "absorbance readings"], flagged,
+                                  [78, 10, 86], numeric={1}))
+    if standards:
+        out.append(figure_block(figures.window_figure(standards, samples, low, high),
+                                "Figure: relative concentration error per unit transmittance "
+                                "noise, 10^A/(A ln 10), smallest at A = 0.434; ticks mark the "
+                                "readings. " + (window.get("source") or "")))
+    return out if len(out) > 1 else []
+
+
+def precision_trueness(record: dict) -> list | None:
+    v = _validation(record) or {}
+    blocks = []
+    rep = v.get("repeatability")
+    if isinstance(rep, dict):
+        unit = rep.get("unit") or v.get("concentration_unit") or concentration_unit(record)
+        blocks += [heading("Repeatability", 2), key_value_table([
+            ("mean", f"{num(rep.get('mean'), 5)} {unit}"),
+            ("repeatability SD s_r", f"{num(rep.get('sd'), 3)} {unit}"),
+            ("relative SD", f"{num(rep.get('rsd_percent'), 3)} %"),
+            ("degrees of freedom, groups, readings",
+             f"{rep.get('dof', DASH)}, {rep.get('groups', DASH)}, {rep.get('n', DASH)}")]),
+            para(rep.get("source", ""), "note")]
+    ip = v.get("intermediate_precision")
+    if isinstance(ip, dict):
+        blocks += [heading("Intermediate precision", 2), key_value_table([
+            ("repeatability SD s_r", num(ip.get("repeatability_sd"), 3)),
+            ("between-group SD s_L", num(ip.get("between_group_sd"), 3)),
+            ("intermediate SD s_I", f"{num(ip.get('intermediate_sd'), 3)} "
+             f"({num(ip.get('intermediate_rsd_percent'), 3)} %), ν = {num(ip.get('intermediate_dof'), 3)}"),
+            ("F, p value", f"{num(ip.get('f_statistic'), 4)}, {num(ip.get('p_value'), 3)}"),
+            ("verdict", ip.get("verdict", DASH))]), para(ip.get("source", ""), "note")]
+    rec = v.get("trueness") or v.get("recovery")
+    if isinstance(rec, dict):
+        settings = v.get("settings") or {}
+        tu = rec.get("unit") or settings.get("reference_unit") or ""
+        blocks += [heading("Trueness: recovery against a reference value", 2), key_value_table([
+            ("sample", settings.get("reference_sample") or DASH),
+            ("measured, u", f"{num(rec.get('measured'), 5)} {tu}, u = {num(rec.get('u_measured'), 3)} {tu}"),
+            ("reference value, u",
+             f"{num(rec.get('reference'), 5)} {tu}, u = {num(rec.get('u_reference'), 3)} {tu}"),
+            ("coverage factor k for E_n", num(rec.get("coverage_factor"), 3)),
+            ("recovery", f"{num(rec.get('recovery_percent'), 4)} % "
+                         f"(u = {num(rec.get('recovery_u_percent'), 3)} %)"),
+            ("E_n", num(rec.get("en_number"), 3)),
+            ("verdict", coloured(rec.get("verdict", DASH), rec.get("satisfactory")))]),
+            para(rec.get("source", ""), "note")]
+    sc = v.get("scatter_consistency") or record.get("scatter_consistency")
+    if isinstance(sc, dict):
+        ok = "consistent" in (sc.get("verdict") or "")
+        blocks += [heading("Observed scatter against the bottom-up budget", 2), key_value_table([
+            ("observed residual SD", f"{num(sc.get('observed_sd'), 3)} (absorbance)"),
+            ("SD predicted by the budget", f"{num(sc.get('predicted_sd'), 3)} (absorbance)"),
+            ("χ², degrees of freedom", f"{num(sc.get('chi_square'), 4)}, {sc.get('dof', DASH)}"),
+            ("p (excess), p (deficit)", f"{num(sc.get('p_excess'), 3)}, {num(sc.get('p_deficit'), 3)}"),
+            ("verdict", coloured(sc.get("verdict", DASH), ok))]),
+            para(sc.get("source", ""), "note")]
+    return blocks or None

@@ -1,0 +1,228 @@
+"""The report's house style: fonts, paragraph styles, table looks and number formats.
+
+A plain look of our own: one sans family (DejaVu Sans, shipped with
+matplotlib, so µ, ±, ², ν and the like print everywhere), dark slate
+headings, light grey rules, numbers right-aligned in tables.
+"""
+
+from __future__ import annotations
+
+import math
+from functools import lru_cache
+from pathlib import Path
+from xml.sax.saxutils import escape
+
+import matplotlib
+from reportlab.lib import colors
+from reportlab.lib.enums import TA_LEFT, TA_RIGHT
+from reportlab.lib.pagesizes import A4
+from reportlab.lib.styles import ParagraphStyle
+from reportlab.lib.units import mm
+from reportlab.pdfbase import pdfmetrics
+from reportlab.pdfbase.ttfonts import TTFont
+from reportlab.platypus import Paragraph, Spacer, Table, TableStyle
+
+PAGE_SIZE = A4
+MARGIN_X = 18 * mm
+MARGIN_TOP = 22 * mm
+MARGIN_BOTTOM = 20 * mm
+FRAME_WIDTH = PAGE_SIZE[0] - 2 * MARGIN_X
+
+INK = colors.HexColor("#1f2a33")
+ACCENT = colors.HexColor("#2f5d7c")
+RULE = colors.HexColor("#b7c0c7")
+HEAD_FILL = colors.HexColor("#e4eaef")
+STRIPE = colors.HexColor("#f5f7f9")
+GOOD = colors.HexColor("#2e6b3a")
+BAD = colors.HexColor("#a02c2c")
+
+FONT = "ReportSans"
+FONT_BOLD = "ReportSans-Bold"
+FONT_ITALIC = "ReportSans-Italic"
+FONT_MONO = "ReportMono"
+
+DASH = "–"  # shown where a value is missing
+
+
+@lru_cache(maxsize=1)
+def register_fonts() -> None:
+    """Register DejaVu Sans (regular, bold, italic, mono) from matplotlib's data folder."""
+    folder = Path(matplotlib.get_data_path()) / "fonts" / "ttf"
+    files = {FONT: "DejaVuSans.ttf", FONT_BOLD: "DejaVuSans-Bold.ttf",
+             FONT_ITALIC: "DejaVuSans-Oblique.ttf", FONT_MONO: "DejaVuSansMono.ttf"}
+    for name, file in files.items():
+        pdfmetrics.registerFont(TTFont(name, str(folder / file)))
+    pdfmetrics.registerFontFamily(FONT, normal=FONT, bold=FONT_BOLD, italic=FONT_ITALIC,
+                                  boldItalic=FONT_BOLD)
+
+
+def _style(name: str, **kw) -> ParagraphStyle:
+    base = dict(fontName=FONT, fontSize=9.5, leading=12.5, textColor=INK, alignment=TA_LEFT,
+                allowWidows=0, allowOrphans=0)
+    base.update(kw)
+    return ParagraphStyle(name, **base)
+
+
+@lru_cache(maxsize=1)
+def styles() -> dict[str, ParagraphStyle]:
+    register_fonts()
+    return {
+        "title": _style("title", fontName=FONT_BOLD, fontSize=17, leading=21, spaceAfter=4,
+                        textColor=ACCENT),
+        "subtitle": _style("subtitle", fontSize=10.5, leading=14, spaceAfter=2),
+        "h1": _style("h1", fontName=FONT_BOLD, fontSize=13, leading=16, spaceBefore=10,
+                     spaceAfter=5, textColor=ACCENT),
+        "h2": _style("h2", fontName=FONT_BOLD, fontSize=10.5, leading=13.5, spaceBefore=7,
+                     spaceAfter=3),
+        "body": _style("body", spaceAfter=4),
+        "lead": _style("lead", spaceAfter=4),  # an introduction, kept with what follows (pdf.py)
+        "small": _style("small", fontSize=8, leading=10, spaceAfter=3),
+        "note": _style("note", fontName=FONT_ITALIC, fontSize=8, leading=10, spaceAfter=3,
+                       textColor=colors.HexColor("#4a5560")),
+        "bullet": _style("bullet", fontSize=9, leading=11.5, leftIndent=10, bulletIndent=0,
+                         spaceAfter=2),
+        "cell": _style("cell", fontSize=8, leading=9.8),
+        "cell_right": _style("cell_right", fontSize=8, leading=9.8, alignment=TA_RIGHT),
+        "cell_head": _style("cell_head", fontName=FONT_BOLD, fontSize=8, leading=9.8),
+        "cell_head_right": _style("cell_head_right", fontName=FONT_BOLD, fontSize=8,
+                                  leading=9.8, alignment=TA_RIGHT),
+        "mono": _style("mono", fontName=FONT_MONO, fontSize=7, leading=9),
+        "formula": _style("formula", fontName=FONT_MONO, fontSize=10, leading=13, leftIndent=12,
+                          spaceBefore=2, spaceAfter=6),
+    }
+
+
+def text(value) -> str:
+    """Plain text made safe for reportlab's paragraph markup."""
+    return escape(str(value))
+
+
+def para(value, style: str = "body", markup: bool = False) -> Paragraph:
+    return Paragraph(str(value) if markup else text(value), styles()[style])
+
+
+def heading(title: str, level: int = 1) -> Paragraph:
+    return Paragraph(text(title), styles()["h1" if level == 1 else "h2"])
+
+
+def bullets(lines, style: str = "bullet") -> list:
+    return [Paragraph(text(line), styles()[style], bulletText="•") for line in lines]
+
+
+def gap(height_mm: float = 3) -> Spacer:
+    return Spacer(1, height_mm * mm)
+
+
+# --------------------------------------------------------------------------
+# numbers
+
+def is_number(value) -> bool:
+    return isinstance(value, (int, float)) and not isinstance(value, bool) and math.isfinite(value)
+
+
+def num(value, sig: int = 4) -> str:
+    """A number to `sig` significant digits, plain notation for ordinary sizes, no trailing zeros."""
+    if value is None:
+        return DASH
+    if isinstance(value, bool) or not isinstance(value, (int, float)):
+        return text(value)
+    if not math.isfinite(value):
+        return "∞" if value > 0 else ("-∞" if value < 0 else DASH)
+    if value == 0:
+        return "0"
+    if isinstance(value, int):  # digits grouped by threes with no-break spaces (ISO 80000-1)
+        return f"{value:,}".replace(",", "\u00a0") if abs(value) >= 10_000 else str(value)
+    magnitude = math.floor(math.log10(abs(value)))
+    if -4 <= magnitude < 6:
+        decimals = max(sig - 1 - magnitude, 0)
+        out = f"{value:.{decimals}f}"
+        return out.rstrip("0").rstrip(".") if "." in out else out
+    mantissa, exponent = f"{value:.{sig - 1}e}".split("e")
+    mantissa = mantissa.rstrip("0").rstrip(".") if "." in mantissa else mantissa
+    return f"{mantissa}e{int(exponent)}"
+
+
+def pct(share, digits: int = 1) -> str:
+    """A fraction as a percentage; tiny non-zero shares shown as '< 0.1 %'."""
+    if not is_number(share):
+        return DASH
+    value = 100.0 * share
+    floor = 10.0 ** -digits
+    if 0 < abs(value) < floor:
+        return f"< {floor:.{digits}f} %"
+    return f"{value:.{digits}f} %"
+
+
+def dof(value) -> str:
+    """Degrees of freedom: None or inf shown as ∞ (Type B inputs), else rounded."""
+    if value is None or (is_number(value) and math.isinf(value)):
+        return "∞"
+    if is_number(value):
+        return f"{value:.0f}"
+    return text(value)
+
+
+# --------------------------------------------------------------------------
+# tables
+
+def data_table(header: list[str], rows: list[list], widths_mm: list[float],
+               numeric: set[int] | frozenset = frozenset(), zebra: bool = True,
+               extra_style: list | None = None) -> Table:
+    """A table that wraps every cell, right-aligns numeric columns and repeats its header.
+
+    `widths_mm` should add up to at most the frame width (174 mm on A4 with
+    our margins); cells are Paragraphs, so long text wraps instead of
+    running off the page.
+    """
+    s = styles()
+    head = [Paragraph(text(h), s["cell_head_right" if i in numeric else "cell_head"])
+            for i, h in enumerate(header)]
+    body = []
+    for row in rows:
+        cells = []
+        for i, value in enumerate(row):
+            if isinstance(value, Paragraph):
+                cells.append(value)
+            else:
+                cells.append(Paragraph(text(value), s["cell_right" if i in numeric else "cell"]))
+        body.append(cells)
+    table = Table([head] + body, colWidths=[w * mm for w in widths_mm], repeatRows=1,
+                  hAlign="LEFT")
+    commands = [
+        ("BACKGROUND", (0, 0), (-1, 0), HEAD_FILL),
+        ("LINEBELOW", (0, 0), (-1, 0), 0.8, ACCENT),
+        ("LINEBELOW", (0, -1), (-1, -1), 0.6, RULE),
+        ("VALIGN", (0, 0), (-1, -1), "TOP"),
+        ("TOPPADDING", (0, 0), (-1, -1), 2.2),
+        ("BOTTOMPADDING", (0, 0), (-1, -1), 2.2),
+        ("LEFTPADDING", (0, 0), (-1, -1), 3),
+        ("RIGHTPADDING", (0, 0), (-1, -1), 3),
+    ]
+    if zebra:
+        commands.append(("ROWBACKGROUNDS", (0, 1), (-1, -1), [colors.white, STRIPE]))
+    table.setStyle(TableStyle(commands + (extra_style or [])))
+    return table
+
+
+def key_value_table(pairs: list[tuple[str, object]], widths_mm=(52, 122)) -> Table:
+    """Two columns, label and value, for short facts (no header row)."""
+    s = styles()
+    rows = [[Paragraph(text(k), s["cell_head"]),
+             v if isinstance(v, Paragraph) else Paragraph(text(v), s["cell"])] for k, v in pairs]
+    table = Table(rows, colWidths=[w * mm for w in widths_mm], hAlign="LEFT")
+    table.setStyle(TableStyle([
+        ("VALIGN", (0, 0), (-1, -1), "TOP"),
+        ("LINEBELOW", (0, 0), (-1, -1), 0.3, RULE),
+        ("TOPPADDING", (0, 0), (-1, -1), 2.2),
+        ("BOTTOMPADDING", (0, 0), (-1, -1), 2.2),
+        ("LEFTPADDING", (0, 0), (-1, -1), 3),
+    ]))
+    return table
+
+
+def verdict_colour(status: str | None):
+    if status in ("met", "agrees", True):
+        return GOOD
+    if status in ("not met", "disagrees", False):
+        return BAD
+    return INK
