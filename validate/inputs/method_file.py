@@ -6,6 +6,7 @@ every default applied is listed in `Method.defaults_shown`.
 
 from __future__ import annotations
 
+import difflib
 import math
 import tomllib
 from pathlib import Path
@@ -47,7 +48,7 @@ def load_method(path) -> S.Method:
     extra = [(path.parent / r) for r in settings.registers]
     entries, register_files = load_registers(extra)
     items = {}
-    for item_id, raw in (top.get("equipment") or {}).items():
+    for item_id, raw in top.named_tables("equipment").items():
         items[item_id] = _item(item_id, Table(raw, path, f"[equipment.{item_id}]"), entries, settings, defaults)
     repeat = [u for item in items.values() for u in item.defaults_used if u.endswith(" mL")]
     if repeat:
@@ -55,7 +56,7 @@ def load_method(path) -> S.Method:
                         "tool, after the ratio in EURACHEM/CITAC CG4 Example A1; give `repeatability` from "
                         "your own data): " + ", ".join(repeat))
     solutions = {}
-    for sol_id, raw in (top.get("solutions") or {}).items():
+    for sol_id, raw in top.named_tables("solutions").items():
         solutions[sol_id] = _solution(sol_id, Table(raw, path, f"[solutions.{sol_id}]"), items)
     _check_solution_graph(solutions, path)
     calibration, readings_path = None, None
@@ -63,11 +64,11 @@ def load_method(path) -> S.Method:
         calibration = _calibration(top.sub("calibration"), items, solutions, defaults)
         readings_path = path.parent / calibration.readings_file
     samples = tuple(S.Sample(sid, Table(raw, path, f"[samples.{sid}]").text("description", "") or "")
-                    for sid, raw in (top.get("samples") or {}).items())
-    for sid, raw in (top.get("samples") or {}).items():
+                    for sid, raw in top.named_tables("samples").items())
+    for sid, raw in top.named_tables("samples").items():
         Table(raw, path, f"[samples.{sid}]").allow("description")
     quantities = {name: _quantity(name, Table(raw, path, f"[quantities.{name}]"), items)
-                  for name, raw in (top.get("quantities") or {}).items()}
+                  for name, raw in top.named_tables("quantities").items()}
     check_ids(samples, solutions, quantities, path)
     readings = {}
     if readings_path is not None:
@@ -349,7 +350,14 @@ def _check_solution_graph(solutions: dict, path) -> None:
 
 def _calibration(t: Table, items, solutions, defaults) -> S.Calibration:
     t.allow("standards", "blanks", "blanks_in_fit", "readings", "cuvette", "photometer",
-            "concentration_unit")
+            "concentration_unit", "weighting")
+    weighting = t.text("weighting", "none")
+    if weighting not in ("none", "inverse-variance"):
+        raise t.error(f"unknown choice {weighting!r}", "weighting",
+                      fix='use "none" (ordinary least squares) or "inverse-variance" (weights 1/s^2 from '
+                          'the replicate readings of each level)')
+    if not t.has("weighting"):
+        defaults.append("default: unweighted (ordinary least-squares) calibration line")
     standards = t.require("standards")
     blanks = t.get("blanks", [])
     for key, ids in (("standards", standards), ("blanks", blanks)):
@@ -386,7 +394,7 @@ def _calibration(t: Table, items, solutions, defaults) -> S.Calibration:
         raise t.error(f"only {n_points} calibration levels; at least 3 are needed", "standards",
                       fix="add standards (5 to 7 levels is common practice)")
     return S.Calibration(tuple(standards), tuple(blanks), in_fit, readings, refs["cuvette"],
-                         refs["photometer"], unit)
+                         refs["photometer"], unit, weighting)
 
 
 def _quantity(name: str, t: Table, items) -> S.NamedQuantity:
@@ -443,8 +451,10 @@ def _result(top: Table, method: S.Method) -> S.ResultSpec:
         else:
             known = sorted(set(method.quantities) | set(method.solutions) |
                            ({"c_measured"} if method.calibration else set()))
+            close = difflib.get_close_matches(name, known, n=1)
             raise t.error(f"the formula uses `{name}`, which is not defined", "formula",
-                          fix=f"define [quantities.{name}], or use one of: {', '.join(known)}")
+                          fix=(f"did you mean `{close[0]}`? " if close else "") +
+                          f"define [quantities.{name}], or use one of: {', '.join(known)}")
     try:
         got = result_dimension(formula, dims)
     except FormulaError as exc:

@@ -21,7 +21,9 @@ class Table:
         self.data, self.file, self.where = data, file, where
 
     def error(self, what: str, key: str | None = None, fix: str | None = None) -> InputError:
-        where = f"{self.where}.{key}" if key else self.where
+        where = self.where
+        if key:  # a top-level key is shown as its section, e.g. [settings]
+            where = f"[{key}]" if self.where == "top level" else f"{self.where}.{key}"
         return InputError(what, file=self.file, where=where, fix=fix)
 
     def allow(self, *keys: str) -> None:
@@ -62,6 +64,14 @@ class Table:
                              fix=f"give a number {bounds}")
         return float(value)
 
+    def named_tables(self, key: str) -> dict:
+        """A section of named tables such as [equipment.ID]; empty when absent."""
+        value = self.data.get(key, {})
+        if not isinstance(value, dict):
+            raise self.error(f"expected named tables, got {value!r}", key,
+                             fix=f"write one table per entry, e.g. [{key}.NAME] followed by its keys")
+        return value
+
     def sub(self, key: str) -> "Table":
         where = f"[{key}]" if self.where == "top level" else f"{self.where}.{key}"
         return Table(self.require(key), self.file, where)
@@ -81,8 +91,8 @@ def parse_si(raw, table: Table, key: str, dims=None, positive=True) -> tuple[flo
         raise table.error(str(exc), key, fix="write a number and its unit in quotes, e.g. \"10.00 mL\"") from None
     if dims is not None and unit.dims != tuple(dims):
         wanted = describe_dims(tuple(dims))
-        raise table.error(f"the unit {unit.text or '(none)'!r} is a {describe_dims(unit.dims)}, "
-                          f"but a {wanted} is needed here", key,
+        got = f"the unit {unit.text!r} is a {describe_dims(unit.dims)}" if unit.text else "the value has no unit"
+        raise table.error(f"{got}, but a {wanted} is needed here", key,
                           fix=f"give the value in a unit of {wanted}")
     if not math.isfinite(number):
         raise table.error("the value is not a finite number", key, fix="write a finite number and its unit")
