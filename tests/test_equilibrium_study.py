@@ -41,7 +41,7 @@ def _noise_free_copy(tmp_path, K_L_per_mol: float, correction: str = "iterate", 
 def test_exact_readings_give_back_K(tmp_path, K):
     # noise-free readings generated from a chosen K: every point and the combined K must
     # return it (the standards' incomplete complexation corrected by the iteration)
-    run = api.analyse(_noise_free_copy(tmp_path, K), trials=None)
+    run = api.analyse(_noise_free_copy(tmp_path, K), trials=None, advice=False)
     e = run.record["equilibrium"]
     for point in e["mixtures"]:
         assert point["K"] == pytest.approx(K, rel=1e-6), point["id"]
@@ -54,7 +54,7 @@ def test_full_complexation_bias_matches_closed_form(tmp_path):
     # fraction of L complexed is f = K[M]/(1 + K[M]) (1:1 mass balance), so the naive slope is
     # f times the true one: relative slope bias f - 1 (closed form of the 1:1 equilibrium).
     K = 850.0
-    run = api.analyse(_noise_free_copy(tmp_path, K), trials=None)
+    run = api.analyse(_noise_free_copy(tmp_path, K), trials=None, advice=False)
     bias = run.record["equilibrium"]["complete_complexation_bias"]
     method, model = run.method, run.model
     sm, sl, *_ = model.columns(model.nominal_inputs())
@@ -65,7 +65,7 @@ def test_full_complexation_bias_matches_closed_form(tmp_path):
 
 
 def test_demo_record_equilibrium_block():
-    run = api.analyse(DEMO / "method.toml", trials=20_000, seed=5)
+    run = api.analyse(DEMO / "method.toml", trials=20_000, seed=5, advice=False)
     e = run.record["equilibrium"]
     for key in ("mixtures", "combined", "complete_complexation_bias", "conditions", "log10K"):
         assert key in e
@@ -84,7 +84,7 @@ def test_series_covariance_linear_against_monte_carlo():
     # Points of one addition series share the vessel, the pipette's offset and the line, so their
     # K values are correlated; the linear engine's correlation matrix (GUM 5.2) must match the
     # Monte Carlo sample correlations (JCGM 101 7.5) within sampling error.
-    run = api.analyse(DEMO / "method.toml", trials=None)
+    run = api.analyse(DEMO / "method.toml", trials=None, advice=False)
     _, _, cov = run.combination
     cov = np.asarray(cov)
     labels = [f"K, {p}" for p in run.model.points]

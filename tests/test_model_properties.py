@@ -64,7 +64,7 @@ def _write(write_method, vp, vf, scale=1.0, temp=3.0, formula="second", rel=(0.0
 def test_squared_contributions_add_up_to_the_combined_variance(write_method, volumes, temp):
     # GUM 5.1.2: for independent inputs u_c^2 = sum (c_i u_i)^2. Sources are independent by
     # construction, so the contributions must add up to the package's own combined u.
-    run = api.analyse(_write(write_method, *volumes, temp=temp))
+    run = api.analyse(_write(write_method, *volumes, temp=temp), trials=None, advice=False)
     (r,) = run.results
     total = sum(row.contribution**2 for row in r.contributions)
     assert total == pytest.approx(r.standard_uncertainty**2, rel=1e-9)
@@ -78,7 +78,7 @@ def test_one_item_used_twice_is_one_correlated_source(write_method, volumes):
     # uses (DESIGN.md section 3), so its contribution is twice that of one use:
     # c = c0 (Vp/Vf)^2, dc/dVp = 2 c / Vp; u(offset) = tolerance/sqrt(6) (triangular, CG4).
     vp, vf = volumes
-    run = api.analyse(_write(write_method, vp, vf))
+    run = api.analyse(_write(write_method, vp, vf), trials=None, advice=False)
     (r,) = run.results
     names = [row.source for row in r.contributions]
     assert names.count("pipette: calibration") == 1
@@ -92,8 +92,8 @@ def test_one_item_used_twice_is_one_correlated_source(write_method, volumes):
 @given(volumes=volumes, scale=st.floats(0.1, 10.0))
 def test_scaling_every_volume_leaves_the_concentration_unchanged(write_method, volumes, scale):
     # c = c0 * Vp/Vf: a common factor on every volume cancels (and so do relative tolerances)
-    base = api.analyse(_write(write_method, *volumes)).results[0]
-    scaled = api.analyse(_write(write_method, *volumes, scale=scale)).results[0]
+    base = api.analyse(_write(write_method, *volumes), trials=None, advice=False).results[0]
+    scaled = api.analyse(_write(write_method, *volumes, scale=scale), trials=None, advice=False).results[0]
     assert scaled.value == pytest.approx(base.value, rel=1e-12)
     assert scaled.standard_uncertainty == pytest.approx(base.standard_uncertainty, rel=1e-9)
 
@@ -101,7 +101,7 @@ def test_scaling_every_volume_leaves_the_concentration_unchanged(write_method, v
 def test_shared_temperature_cancels_in_a_dilution_ratio(write_method):
     # Expansion of the solution acts on aliquot and flask alike: V_p (1 + a dT) / (V_f (1 + a dT))
     # is independent of dT, so a shared temperature source contributes nothing to a dilution.
-    run = api.analyse(_write(write_method, 10, 100, temp=5.0))
+    run = api.analyse(_write(write_method, 10, 100, temp=5.0), trials=None, advice=False)
     row = next(x for x in run.results[0].contributions if x.source == "laboratory temperature")
     assert row.contribution == pytest.approx(0.0, abs=1e-12)
 
@@ -113,7 +113,7 @@ def test_observed_scatter_reproduces_the_inverse_prediction_formula():
     from conftest import DEMOS
     from validate.calibration import fit_line, inverse_prediction
 
-    run = api.analyse(DEMOS / "phosphate_assay" / "method.toml", trials=None)
+    run = api.analyse(DEMOS / "phosphate_assay" / "method.toml", trials=None, advice=False)
     method, model = run.method, run.model
     conc = model.concentrations(model.nominal_inputs())
     ids = list(method.calibration.standards) + list(method.calibration.blanks)

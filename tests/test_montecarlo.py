@@ -35,7 +35,7 @@ def test_jcgm101_9_2_2_additive_model_normal_inputs(write_method):
     # JCGM 101:2008 clause 9.2.2 (values from memory): Y = X1+X2+X3+X4, X_i ~ N(0, 1):
     # u(y) = 2.00 and the 95 % interval [-3.92, 3.92] from both GUM and Monte Carlo.
     path = write_method(ADDITIVE.format(x='value = 0\nu = 1'))
-    run = api.analyse(path, trials=1_000_000, seed=2008)
+    run = api.analyse(path, trials=1_000_000, seed=2008, advice=False)
     gum, mc = run.results[0], run.monte_carlo[0]
     assert gum.standard_uncertainty == pytest.approx(2.0)
     assert gum.expanded_uncertainty == pytest.approx(3.92, abs=0.005)
@@ -50,7 +50,7 @@ def test_jcgm101_9_2_3_additive_model_rectangular_inputs(write_method):
     # (half-width sqrt 3): Monte Carlo u(y) = 2.00, 95 % interval [-3.88, 3.88], while the
     # GUM's normal gives +/-3.92. The exact 97.5 % point of the sum (Irwin-Hall) is 3.879.
     path = write_method(ADDITIVE.format(x=f'value = 0\nhalf_width = {math.sqrt(3)}'))
-    run = api.analyse(path, trials=1_000_000, seed=2008)
+    run = api.analyse(path, trials=1_000_000, seed=2008, advice=False)
     mc = run.monte_carlo[0]
     assert run.results[0].expanded_uncertainty == pytest.approx(3.92, abs=0.005)
     assert mc.summary.standard_deviation == pytest.approx(2.00, abs=0.005)
@@ -80,7 +80,7 @@ def test_linear_model_engines_agree(write_method, ua, ub, a):
     # For a model linear in its inputs with normal inputs the GUM result is exact
     # (JCGM 101 5.7), so Monte Carlo must reproduce u within its own sampling error.
     path = write_method(RATIO.format(ua=ua, ub=ub, formula=f"{a} * A + B"))
-    run = api.analyse(path, trials=200_000, seed=11)
+    run = api.analyse(path, trials=200_000, seed=11, advice=False)
     gum, mc = run.results[0], run.monte_carlo[0]
     # relative standard error of a standard deviation from N normal trials: 1/sqrt(2N)
     assert mc.summary.standard_deviation == pytest.approx(gum.standard_uncertainty, rel=5 / math.sqrt(4e5))
@@ -92,7 +92,7 @@ def test_ratio_with_uncertain_denominator_is_skewed(write_method):
     # property of ratios, JCGM 101 clause 1 and 5.7 note the GUM's limits), so the Monte
     # Carlo interval is asymmetric about y and the symmetric GUM interval fails clause 8.
     path = write_method(RATIO.format(ua=0.01, ub=0.2, formula="A / B"))
-    run = api.analyse(path, trials=400_000, seed=5)
+    run = api.analyse(path, trials=400_000, seed=5, advice=False)
     gum, mc = run.results[0], run.monte_carlo[0]
     low, high = mc.summary.symmetric.low, mc.summary.symmetric.high
     assert (high - gum.value) > 1.3 * (gum.value - low)
@@ -102,9 +102,9 @@ def test_ratio_with_uncertain_denominator_is_skewed(write_method):
 
 def test_same_seed_same_numbers(write_method):
     path = write_method(RATIO.format(ua=0.01, ub=0.05, formula="A / B"))
-    first = api.analyse(path, trials=50_000, seed=99).monte_carlo[0].to_dict()
-    second = api.analyse(path, trials=50_000, seed=99).monte_carlo[0].to_dict()
-    other = api.analyse(path, trials=50_000, seed=100).monte_carlo[0].to_dict()
+    first = api.analyse(path, trials=50_000, seed=99, advice=False).monte_carlo[0].to_dict()
+    second = api.analyse(path, trials=50_000, seed=99, advice=False).monte_carlo[0].to_dict()
+    other = api.analyse(path, trials=50_000, seed=100, advice=False).monte_carlo[0].to_dict()
     assert first == second
     assert first["interval"] != other["interval"]
 
@@ -121,7 +121,7 @@ name = "root"
 unit = ""
 formula = "sqrt(A)"
 """)
-    run = api.analyse(path, trials=100_000, seed=3)
+    run = api.analyse(path, trials=100_000, seed=3, advice=False)
     mc = run.monte_carlo[0]
     assert mc.summary.total_trials == 100_000
     assert mc.summary.invalid_trials == pytest.approx(46_020, abs=5 * math.sqrt(1e5 * 0.46 * 0.54))
@@ -155,7 +155,7 @@ def test_calibration_refitted_in_every_trial(tmp_path):
         assert intercepts[trial] == pytest.approx(intercept, rel=1e-7, abs=1e-12)
     # and the spread of the line feeds the result: Monte Carlo and GUM agree for this
     # nearly linear model (JCGM 101 clause 8 spirit: relative difference of u below 5 %)
-    run = api.analyse(folder / "method.toml", trials=100_000, seed=4)
+    run = api.analyse(folder / "method.toml", trials=100_000, seed=4, advice=False)
     for gum, mc in zip(run.results, run.monte_carlo):
         assert mc.summary.standard_deviation == pytest.approx(gum.standard_uncertainty, rel=0.05)
     out = evaluate_trials(model, 10, np.random.default_rng(0))
