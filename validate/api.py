@@ -104,7 +104,9 @@ def build_record(run: Run) -> dict:
     equilibrium = None
     if method.equilibrium is not None:
         from validate.equilibrium_record import equilibrium_block
+        from validate.validation.record import equilibrium_validation_block
         equilibrium = equilibrium_block(run.model, results, run.monte_carlo, *run.combination)
+        validation = equilibrium_validation_block(run.model)
     flags = (validation or {}).get("range_flags", {})
     labels = {label: smp.id for label, smp in zip(run.model.result_labels, method.samples)} \
         if method.result is not None and "c_measured" in method.result.formula.names else {}

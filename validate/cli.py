@@ -230,7 +230,9 @@ def _g(value, digits=4) -> str:
 def _print_validation(console: Console, v: dict) -> None:
     fit, unit = v["fit"], escape(v["concentration_unit"])
     console.print()
-    console.print(f"[bold]Calibration line[/] ({fit['n']} readings, absorbance against {unit})")
+    what = "Line of the standards" if v.get("samples") == {} and v.get("trueness") is None and \
+        v.get("scatter_consistency") is None else "Calibration line"
+    console.print(f"[bold]{what}[/] ({fit['n']} readings, absorbance against {unit})")
     console.print(f"  slope {_g(fit['slope'])} ± {_g(fit['slope_u'], 2)} per {unit}, intercept "
                   f"{_g(fit['intercept'])} ± {_g(fit['intercept_u'], 2)}, r² {fit['r_squared']:.5f}, "
                   f"residual SD {_g(fit['residual_sd'], 3)}")
@@ -245,9 +247,11 @@ def _print_validation(console: Console, v: dict) -> None:
                   soft_wrap=True)
     for warning in limits["warnings"]:
         console.print(f"  [yellow]warning[/] {escape(warning)}", soft_wrap=True)
-    sc = v["scatter_consistency"]
-    console.print(f"  scatter against the bottom-up budget: {escape(sc['verdict'])} "
-                  f"(observed SD {_g(sc['observed_sd'], 3)}, predicted {_g(sc['predicted_sd'], 3)})", soft_wrap=True)
+    sc = v.get("scatter_consistency")
+    if sc:
+        console.print(f"  scatter against the bottom-up budget: {escape(sc['verdict'])} "
+                      f"(observed SD {_g(sc['observed_sd'], 3)}, predicted {_g(sc['predicted_sd'], 3)})",
+                      soft_wrap=True)
     window = v["window_flags"]
     if window.get("outside"):
         console.print(f"  [yellow]note[/] {window['outside']} reading(s) outside the absorbance window "

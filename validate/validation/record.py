@@ -126,3 +126,40 @@ def _trueness(method: Method, results: list[LinearResult]):
     factor = method.result.unit.factor
     return recovery(result.value, result.standard_uncertainty, ref.value / factor, ref.u / factor,
                     coverage_factor=result.coverage_factor)
+
+
+def equilibrium_validation_block(model) -> dict:
+    """The line of an equilibrium study's standards, judged as a calibration: absorbance
+    against the limiting reagent's total, before any correction for incomplete complexation."""
+    method, study = model.method, model.method.equilibrium
+    x0 = model.nominal_inputs()
+    conc = model.concentrations(x0)
+    factor = study.concentration_unit.factor
+    xs, ys = [], []
+    for ident, _, totals, _ in model._standards:
+        m, l_ = totals(x0, conc)
+        limiting = l_ if study.limiting == "ligand" else m
+        for a in method.readings[ident]:
+            xs.append(limiting / factor)
+            ys.append(a)
+    cell = method.items.get(study.cuvette) if study.cuvette else None
+    v = method.validation
+    summary = validate_calibration(
+        xs, ys, alpha=v.alpha, beta=v.beta, path_length_cm=cell.path * 100 if cell else None,
+        path_length_u=cell.tolerance / math.sqrt(3) * 100 if cell else None)
+    readings = [a for ident in [m.id for m in study.standards] + model.points for a in method.readings[ident]]
+    criteria = evaluate_criteria(v.acceptance, summary.observed_for_criteria())
+    block = plain(summary)
+    block.update({
+        "settings": v.to_dict(),
+        "concentration_unit": study.concentration_unit.text,
+        "samples": {}, "range_flags": {},
+        "window_flags": plain(absorbance_window_flags(readings, *v.window)),
+        "repeatability": None, "trueness": None, "scatter_consistency": None,
+        "criteria": plain(criteria),
+        "line_weighting": {"used": "none", "why": "the standards' line of an equilibrium study is unweighted"},
+    })
+    block["notes"] = list(block.get("notes", [])) + [
+        "the line of the standards before any correction: its slope is low by the fraction not complexed "
+        "(see the equilibrium section), so the molar absorptivity shown here is the uncorrected one"]
+    return block
