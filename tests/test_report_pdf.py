@@ -3,9 +3,11 @@
 Checks that the report says what the record says (headline numbers rounded
 by GUM 7.2.6, every section title, page N of M and the record id on every
 page), that long tables split across pages with their header repeated, and
-that a failed build leaves no file behind. The demo data are invented (see
-example_inputs/); the Monte Carlo, equilibrium and advice blocks below are
-made up only to exercise their sections, they check layout, not metrology.
+that a failed build leaves no file behind, and that the report of an
+equilibrium study is laid out around its combined K. The demo data are
+invented (see example_inputs/); the Monte Carlo, equilibrium and advice
+blocks added to the assay record below are made up only to exercise their
+sections, they check layout, not metrology.
 """
 
 from __future__ import annotations
@@ -23,12 +25,13 @@ from validate import advisor, api
 from validate.inputs.method_file import load_method
 from validate.propagation import mcstats
 from validate.propagation.budget import round_gum
-from validate.report import figures
+from validate.report import figures, sections_study
 from validate.report.pdf import FIXED, ReportInfo, build_report
 from validate.validation.criteria import evaluate_criteria
 from validate.validation.summary import validate_calibration
 
 DEMO = DEMOS / "phosphate_assay" / "method.toml"
+NICKEL = DEMOS / "nickel_complex" / "method.toml"
 OPTIONAL_BLOCKS = ("validation", "equilibrium", "advice", "monte_carlo_settings")
 
 
@@ -86,7 +89,7 @@ def with_all_blocks(record: dict) -> dict:
                           "interval": [140.0 + i, 160.0 + i]} for i in range(4)],
             "combined": {"K": 151.37, "standard_uncertainty": 2.61, "expanded_uncertainty": 5.22,
                          "interval": [146.15, 156.59],
-                         "consistency": {"chi2": 1.1, "dof": 3, "p_value": 0.78,
+                         "consistency": {"chi_square": 1.1, "dof": 3, "p_value": 0.78,
                                          "birge_ratio": 0.6, "verdict": "the mixtures agree"}},
             "complete_complexation_bias": {"slope": -0.03, "K": 0.08},
             "log10K": {"value": 2.18, "standard_uncertainty": 0.0075}}
@@ -290,3 +293,168 @@ def test_prediction_band_matches_the_textbook_formula():
     t = stats.t.ppf(0.975, 4)
     expected = t * s_ref * np.sqrt(1 + 1 / 6 + (np.array([2.5, 6.0]) - 2.5) ** 2 / sxx)
     assert half == pytest.approx(expected)
+
+
+def test_assay_report_keeps_a_budget_per_result(demo_report, demo_record):
+    text = " ".join(demo_report[2])
+    for r in demo_record["results"]:
+        value, _ = round_gum(r["value"], r["expanded_uncertainty"])
+        assert f"y = {value} {r['unit']}, u(y)" in text, r["name"]  # each result's own budget
+
+
+# --------------------------------------------------------------------------
+# the report of an equilibrium study (the invented nickel demo, a real run)
+
+@pytest.fixture(scope="module")
+def nickel_record() -> dict:
+    return api.analyse(NICKEL, trials=20_000, seed=1, advice=False).record  # few trials: layout
+
+
+@pytest.fixture(scope="module")
+def nickel_report(nickel_record, tmp_path_factory):
+    path = tmp_path_factory.mktemp("nickel") / "report.pdf"
+    info = build_report(nickel_record, path)
+    return info, path, pages_text(path)
+
+
+def section_text(pages: list[str], info, title: str) -> str:
+    """The text of one numbered section, up to the next section's heading."""
+    text = " ".join(pages)
+    number = info.sections.index(title) + 1
+    start = text.index(f"{number} {title}")
+    if number == len(info.sections):
+        return text[start:]
+    return text[start:text.index(f"{number + 1} {info.sections[number]}", start)]
+
+
+def test_equilibrium_report_is_short_and_ordered(nickel_report, nickel_record):
+    info, path, pages = nickel_report
+    points = nickel_record["equilibrium"]["mixtures"]
+    assert len(points) >= 10  # the demo has 10 points: one section each made 52 pages
+    assert info.page_count < 25
+    order = list(info.sections)
+    assert order.index("Equilibrium constant") == order.index("Measurement equation and inputs") + 1
+    assert order.index("Equilibrium constant") < order.index("Uncertainty budget") \
+        < order.index("Monte Carlo check")
+    text = " ".join(pages)
+    for m in points:  # no budget or Monte Carlo block of its own for any point
+        assert f"K, {m['id']}" not in text, m["id"]
+    for number, title in enumerate(info.sections, 1):
+        assert f"{number} {title}" in text, title
+
+
+def test_first_page_headlines_the_combined_k_once(nickel_report, nickel_record):
+    first = nickel_report[2][0]
+    results = {r["name"]: r for r in nickel_record["results"]}
+    for name in ("K, combined", "log10 K, combined"):
+        r = results[name]
+        value, big_u = round_gum(r["value"], r["expanded_uncertainty"])  # GUM 7.2.6
+        assert f"{name} {value} {r['unit']} {big_u} {r['unit']}".replace("  ", " ") in first
+        places = len(big_u.split(".")[1]) if "." in big_u else 0
+        low, high = r["monte_carlo"]["interval"]
+        assert f"[{low:.{places}f}, {high:.{places}f}]" in first
+        if name == "K, combined":  # listed once, not again as a row of its own
+            assert first.count(f"{value} {r['unit']} {big_u} {r['unit']}") == 1
+    assert "formation constant K (combined)" not in first
+    for m in nickel_record["equilibrium"]["mixtures"]:  # the points, listed compactly
+        value, big_u = round_gum(m["K"], m["expanded_uncertainty"])
+        assert re.search(rf"\b{re.escape(m['id'])} {value} {big_u} \[", first), m["id"]
+
+
+def test_equilibrium_section_has_the_record_numbers(nickel_report, nickel_record):
+    info, _, pages = nickel_report
+    eq = nickel_record["equilibrium"]
+    section = section_text(pages, info, "Equilibrium constant")
+    unit = eq["k_unit"]
+    assert unit == "L/mol" and eq["concentration_unit"] in section
+    cond = eq["conditions"]
+    assert f"{cond['ionic_strength_mol_per_L']:g} mol/L" in section
+    assert f"{cond['temperature_C']:g} °C" in section
+    # combined K rounded by GUM 7.2.6, as in the record
+    k = next(r for r in nickel_record["results"] if r["name"] == "K, combined")
+    value, big_u = round_gum(k["value"], k["expanded_uncertainty"])
+    assert f"{value} {unit}, U = {big_u} {unit}" in section
+    # consistency test: the numbers the record holds (it was shown as a dash before)
+    cons = eq["combined"]["consistency"]
+    assert f"{cons['chi_square']:.4g}, {cons['dof']}" in section
+    assert f"{cons['p_value']:.3g}" in section and f"{cons['birge_ratio']:.3g}" in section
+    assert cons["verdict"] in section
+    # ICE table: every point's totals, free concentrations and K
+    for m in eq["mixtures"]:
+        row = re.search(re.escape(m["id"]) + r" (mixture|series \w+) ((?:\S+ ){5})", section)
+        assert row, m["id"]
+        assert row.group(1) == ("series T" if m["id"].startswith("T.") else "mixture")
+        shown = [float(v) for v in row.group(2).split()]
+        expected = [m[key] for key in ("M_total", "L_total", "ML", "M_free", "L_free")]
+        assert shown == pytest.approx(expected, rel=5e-4)  # four significant digits
+    # trend, bias of complete complexation, joint fit, activity estimate
+    assert eq["trend"]["message"] in section and f"{eq['trend']['p_value']:.3g}" in section
+    bias = eq["complete_complexation_bias"]
+    assert f"K {100 * abs(bias['K']):.1f} % too high" in section
+    assert f"{bias['naive_K']:.4g} {unit}" in section
+    assert f"repeated {bias['iterations']} times and converged" in section
+    assert f"K = {eq['joint_fit']['K']:.5g} {unit}" in section
+    assert "Activity correction: an estimate" in section
+    assert f"about {eq['activity_estimate']['K_thermodynamic']:.0f} {unit}" in section  # ~2300
+
+
+def test_negative_weights_are_explained(nickel_report, nickel_record):
+    info, _, pages = nickel_report
+    weights = nickel_record["equilibrium"]["combined"]["weights"]
+    negative = [m["id"] for m, w in zip(nickel_record["equilibrium"]["mixtures"], weights) if w < 0]
+    assert negative  # strongly correlated points: the demo has negative GLS weights
+    section = section_text(pages, info, "Equilibrium constant")
+    assert f"{len(negative)} of them are negative" in section
+    assert f"({', '.join(negative)})" in section
+
+
+def test_equilibrium_figure_is_drawn(nickel_report):
+    info, path, pages = nickel_report
+    number = info.sections.index("Equilibrium constant") + 1
+    pdf = PdfReader(str(path))
+    with_caption = [i for i, p in enumerate(pages) if "Figure: K of every point" in p]
+    assert with_caption
+    assert any(pdf.pages[i].images for i in with_caption)
+    assert any(f"{number} Equilibrium constant" in pages[i] for i in range(with_caption[0] + 1))
+
+
+def test_budget_and_monte_carlo_in_full_for_the_combined_k_only(nickel_report, nickel_record):
+    info, _, pages = nickel_report
+    budget = section_text(pages, info, "Uncertainty budget")
+    results = {r["name"]: r for r in nickel_record["results"]}
+    k, log_k = results["K, combined"], results["log10 K, combined"]
+    value, _ = round_gum(k["value"], k["expanded_uncertainty"])
+    assert budget.count("y = ") == 1 and f"y = {value} L/mol" in budget
+    assert "every source has the same share" in budget  # log10 K: one line, same shares
+    assert f"{log_k['standard_uncertainty']:.3g}" in budget
+    for m in nickel_record["equilibrium"]["mixtures"]:  # one compact table of the points
+        r = results[f"K, {m['id']}"]
+        value, big_u = round_gum(r["value"], r["expanded_uncertainty"])
+        assert re.search(rf"\b{re.escape(m['id'])} {value} \S+ {big_u} ", budget), m["id"]
+    mc = section_text(pages, info, "Monte Carlo check")
+    assert mc.count("trials (undefined results)") == 1
+
+
+def test_log10_budget_shown_in_full_when_its_shares_differ(nickel_record, monkeypatch):
+    monkeypatch.setattr(figures, "share_chart", lambda *a, **k: _tiny_png())  # text only
+    record = copy.deepcopy(nickel_record)
+    rows = [r for r in record["budget"] if r["result"] == "log10 K, combined"]
+    rows[0]["share"] += 0.01  # no longer the shares of K: its own budget must be shown
+    text = " ".join(p.getPlainText() for p in sections_study.budget(record)
+                    if hasattr(p, "getPlainText"))
+    assert "every source has the same share" not in text
+    log_k = next(r for r in record["results"] if r["name"] == "log10 K, combined")
+    value, _ = round_gum(log_k["value"], log_k["expanded_uncertainty"])
+    assert f"y = {value} , u(y)" in text or f"y = {value}, u(y)" in text
+
+
+def _tiny_png() -> bytes:
+    """A 1x1 PNG, to skip drawing figures where a test reads only the text."""
+    import io
+    from matplotlib.figure import Figure
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    fig = Figure(figsize=(0.1, 0.1), dpi=10)
+    FigureCanvasAgg(fig)
+    buffer = io.BytesIO()
+    fig.savefig(buffer, format="png")
+    return buffer.getvalue()

@@ -173,8 +173,8 @@ def monte_carlo_figure(mc: dict, value: float, u: float, nu_eff, unit: str) -> b
     counts = np.asarray(hist["counts"], dtype=float)
     widths = np.diff(edges)
     density = counts / (counts.sum() * widths) if counts.sum() > 0 else counts
-    fig = _figure(3.7)
-    ax = fig.add_axes([0.1, 0.3, 0.87, 0.66])
+    fig = _figure(3.1)
+    ax = fig.add_axes([0.1, 0.33, 0.87, 0.63])
     ax.bar(edges[:-1], density, width=widths, align="edge", color=BAND, edgecolor=BAND,
            label="Monte Carlo trials")
     grid = np.linspace(edges[0], edges[-1], 400)

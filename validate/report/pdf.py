@@ -17,28 +17,38 @@ import tempfile
 from dataclasses import dataclass
 from pathlib import Path
 
+from reportlab import rl_config
 from reportlab.lib.units import mm
 from reportlab.pdfgen.canvas import Canvas
 from reportlab.platypus import CondPageBreak, KeepTogether, PageBreak, Paragraph, SimpleDocTemplate, Table
 
-from validate.report import (sections, sections_advice, sections_record, sections_uncertainty,
-                             sections_validation)
+from validate.report import (sections, sections_advice, sections_equilibrium, sections_record,
+                             sections_study, sections_uncertainty, sections_validation)
 from validate.report.style import (ACCENT, FONT, MARGIN_BOTTOM, MARGIN_TOP, MARGIN_X, PAGE_SIZE,
                                    RULE, heading, register_fonts)
 
+
+def _by_kind(general, for_study):
+    """The study layout's builder for an equilibrium study (combined K first), else the general one."""
+    def build(record: dict):
+        return (for_study if sections_equilibrium.is_study(record) else general)(record)
+    return build
+
+
 # (title, builder, starts a new page). Builders return None when their block is absent.
 SECTIONS = (
-    ("Summary", sections.summary, False),
+    ("Summary", _by_kind(sections.summary, sections_study.summary), False),
     ("Method and scope", sections.method_scope, True),
     ("Measurement equation and inputs", sections.equation_inputs, False),
+    ("Equilibrium constant", sections_equilibrium.equilibrium, True),
     ("Calibration", sections.calibration, False),
     ("Linearity", sections_validation.linearity, False),
     ("Limits of detection and quantitation", sections_validation.detection_limits, False),
     ("Working range", sections_validation.working_range, False),
     ("Precision and trueness", sections_validation.precision_trueness, False),
-    ("Uncertainty budget", sections_uncertainty.budget, True),
-    ("Monte Carlo check", sections_uncertainty.monte_carlo, False),
-    ("Equilibrium constant", sections_uncertainty.equilibrium, False),
+    ("Uncertainty budget", _by_kind(sections_uncertainty.budget, sections_study.budget), True),
+    ("Monte Carlo check", _by_kind(sections_uncertainty.monte_carlo, sections_study.monte_carlo),
+     False),
     ("What to improve first", sections_advice.advice, False),
     ("Defaults applied and assumptions", sections_record.defaults_assumptions, False),
     ("Cautions", sections_record.cautions, False),
@@ -76,7 +86,7 @@ def _story(record: dict) -> tuple[list, list[str]]:
     return _bind(story), titles  # _bind keeps each heading with what follows it
 
 
-BINDING_STYLES = ("h1", "h2", "lead")
+BINDING_STYLES = ("h1", "h2", "lead", "lead_small")
 LONG_TABLE_ROWS = 15
 MIN_SPACE = 45 * mm
 MIN_TABLE_SPACE = 25 * mm
@@ -187,7 +197,11 @@ def build_report(record: dict, path: Path) -> ReportInfo:
             subject=(record.get("run") or {}).get("record_id") or "",
             author="", creator=f"validate {(record.get('software') or {}).get('version', '')}")
         pages: list[int] = []
-        doc.build(story, canvasmaker=_numbered_canvas(record, pages))
+        previous, rl_config.useA85 = rl_config.useA85, 0  # binary streams: smaller, and no slow
+        try:                                                # pure-Python ASCII85 encoding of figures
+            doc.build(story, canvasmaker=_numbered_canvas(record, pages))
+        finally:
+            rl_config.useA85 = previous
         os.chmod(temp, 0o644)  # mkstemp makes it owner-only; a report is meant to be read by others
         os.replace(temp, path)
     except BaseException:

@@ -14,6 +14,7 @@ import io
 from reportlab.lib.utils import ImageReader
 from reportlab.platypus import Image, KeepTogether, Paragraph
 
+from validate.equilibrium_model import COMBINED as COMBINED_K
 from validate.propagation.budget import round_gum
 from validate.report import figures
 from validate.report.style import (BAD, DASH, FRAME_WIDTH, GOOD, data_table, dof, gap, heading,
@@ -46,7 +47,12 @@ def u_decimals(result: dict) -> int:
 
 
 def concentration_unit(record: dict) -> str:
-    return (record.get("calibration") or {}).get("concentration_unit", "")
+    """The line's concentration unit: from the calibration block, else the validation block."""
+    for key in ("calibration", "validation"):
+        unit = (record.get(key) or {}).get("concentration_unit")
+        if unit:
+            return unit
+    return ""
 
 
 def coloured(status: str, good: bool | None) -> Paragraph:
@@ -70,8 +76,11 @@ def title_block(record: dict) -> list:
             gap(2), key_value_table(facts, (32, 142)), gap(3)]
 
 
-def result_rows(record: dict) -> tuple[list[str], list[list], list[float], set[int]]:
-    results = record.get("results") or []
+def result_rows(record: dict, results: list[dict] | None = None
+                ) -> tuple[list[str], list[list], list[float], set[int]]:
+    """Header, rows, column widths and numeric columns of the results table (all results by default)."""
+    every = record.get("results") or []
+    results = every if results is None else results
     with_mc = any(r.get("monte_carlo") for r in results)
     header = ["result", "value", "U", "k", "p", "ν_eff", "U / value"]
     widths = [58, 26, 24, 13, 12, 13, 18]
@@ -91,11 +100,12 @@ def result_rows(record: dict) -> tuple[list[str], list[list], list[float], set[i
             row.append(mc_interval_text(r))
         rows.append(row)
     eq = (record.get("equilibrium") or {}).get("combined")
-    if eq and is_number(eq.get("K")) and is_number(eq.get("expanded_uncertainty")):
+    listed = any(r.get("name") == COMBINED_K for r in every)  # never list the combined K twice
+    if eq and not listed and is_number(eq.get("K")) and is_number(eq.get("expanded_uncertainty")):
         value, big_u = rounded(eq["K"], eq["expanded_uncertainty"])
         u = eq.get("standard_uncertainty")
         k = eq["expanded_uncertainty"] / u if is_number(u) and u > 0 else None
-        unit = record["equilibrium"].get("unit", "L/mol")
+        unit = record["equilibrium"].get("k_unit") or record["equilibrium"].get("unit", "L/mol")
         row = ["formation constant K (combined)", f"{value} {unit}", f"{big_u} {unit}", num(k, 3),
                pct(eq.get("coverage_probability"), 0) if eq.get("coverage_probability") else DASH,
                dof(eq["effective_dof"]) if "effective_dof" in eq else DASH,
@@ -162,7 +172,7 @@ def criteria_block(record: dict) -> list:
     out = [heading("Acceptance criteria", 2), overall, gap(1.5)]
     if rows:
         out.append(data_table(["criterion", "limit", "observed", "verdict", "limit from"], rows,
-                              [58, 28, 24, 26, 38], numeric={2}))
+                              [52, 24, 26, 26, 46], numeric={2}))
     if not_set:
         out.append(para("Not set (no general default): " + "; ".join(not_set) + ".", "small"))
     out.append(para(crit.get("caution") or "Acceptance criteria come from the applicable "
@@ -170,8 +180,9 @@ def criteria_block(record: dict) -> list:
     return out
 
 
-def monte_carlo_line(record: dict) -> list:
-    results = [r for r in record.get("results") or [] if r.get("monte_carlo")]
+def monte_carlo_line(record: dict, results: list[dict] | None = None) -> list:
+    results = [r for r in (record.get("results") or [] if results is None else results)
+               if r.get("monte_carlo")]
     if not results:
         return []
     agree = [r for r in results if r["monte_carlo"].get("agrees_with_gum")]
@@ -249,9 +260,12 @@ def method_scope(record: dict) -> list:
 
 def equation_inputs(record: dict) -> list:
     method = record.get("method", {})
+    formula = str(method.get("formula", DASH))
+    head = formula.split(",")[0]
+    symbol = head.split("=")[0].strip() if "=" in head else "y"  # "K = ..." names itself
     out = [para("The result is calculated as", "lead"),
-           para(f"y = {method.get('formula', DASH)}", "formula"),
-           para(f"with y in {method.get('result_unit') or DASH}. Every input quantity and "
+           para(formula if "=" in head else f"y = {formula}", "formula"),
+           para(f"with {symbol} in {method.get('result_unit') or DASH}. Every input quantity and "
                 "uncertainty source of the model follows, with its provenance. Type A: "
                 "evaluated from replicate readings; Type B: from certificates, tolerances "
                 "and specifications (GUM 4.2, 4.3). ν: degrees of freedom (∞ for Type B).",

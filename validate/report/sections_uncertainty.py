@@ -1,4 +1,4 @@
-"""Report sections, part 3: uncertainty budget, Monte Carlo, equilibrium constant."""
+"""Report sections, part 3: uncertainty budget and Monte Carlo check, one block per result."""
 
 from __future__ import annotations
 
@@ -9,8 +9,8 @@ from reportlab.platypus import CondPageBreak, Table, TableStyle
 
 from validate.report import figures
 from validate.report.sections import coloured, figure_block, rounded, u_decimals
-from validate.report.style import (DASH, data_table, dof, gap, heading, is_number, key_value_table,
-                                   num, para, pct)
+from validate.report.style import (DASH, data_table, dof, heading, is_number, key_value_table, num,
+                                   para, pct)
 
 MIN_SHARE_SHOWN = 1e-4  # budget rows below 0.01 % are summed in one line (all are in budget.csv)
 
@@ -78,13 +78,16 @@ def budget_for_result(record: dict, result: dict) -> list:
     return out
 
 
+BUDGET_LEAD = ("Each source's standard uncertainty u(x_i), its sensitivity coefficient "
+               "c_i = ∂y/∂x_i and its contribution c_i u(x_i) to the result, ranked by its share "
+               "of the combined variance (GUM 5.1.3). Sources used in several places (one "
+               "pipette, one stock solution, one temperature) enter once, so their correlation "
+               "is part of the budget.")
+
+
 def budget(record: dict) -> list:
     results = record.get("results") or []
-    out = [para("Each source's standard uncertainty u(x_i), its sensitivity coefficient "
-                "c_i = ∂y/∂x_i and its contribution c_i u(x_i) to the result, ranked by its share "
-                "of the combined variance (GUM 5.1.3). Sources used in several places (one "
-                "pipette, one stock solution, one temperature) enter once, so their correlation "
-                "is part of the budget.", "lead")]
+    out = [para(BUDGET_LEAD, "lead")]
     if not results:
         out.append(para("The record holds no result.", "body"))
     for result in results:
@@ -95,7 +98,7 @@ def budget(record: dict) -> list:
 # --------------------------------------------------------------------------
 # Monte Carlo
 
-def _decimals(mc: dict, result: dict) -> int:
+def mc_decimals(mc: dict, result: dict) -> int:
     """Decimal places: those of the numerical tolerance (JCGM 101 7.9.2), else of U + 1."""
     tol = mc.get("tolerance")
     if is_number(tol) and tol > 0:
@@ -103,7 +106,7 @@ def _decimals(mc: dict, result: dict) -> int:
     return u_decimals(result) + 1
 
 
-def _interval(ends, decimals: int, unit: str) -> str:
+def interval_text(ends, decimals: int, unit: str) -> str:
     if not ends or not all(is_number(e) for e in ends):
         return DASH
     return f"[{ends[0]:.{decimals}f}, {ends[1]:.{decimals}f}] {unit}"
@@ -111,7 +114,7 @@ def _interval(ends, decimals: int, unit: str) -> str:
 
 def monte_carlo_for_result(result: dict) -> list:
     mc, unit = result["monte_carlo"], result.get("unit", "")
-    d = _decimals(mc, result)
+    d = mc_decimals(mc, result)
     agrees = mc.get("agrees_with_gum")
     verdict = {True: "the GUM interval is validated: both end-point differences are within δ",
                False: "the GUM interval is not validated: report the Monte Carlo interval",
@@ -126,9 +129,9 @@ def monte_carlo_for_result(result: dict) -> list:
              ("random seed", mc.get("seed", DASH) if mc.get("seed") is not None else DASH),
              ("mean, standard uncertainty", f"{fixed(mc.get('mean'))}, "
               f"{num(mc.get('standard_uncertainty'), 3)} {unit}"),
-             (f"{p} interval, probabilistically symmetric", _interval(mc.get("interval"), d, unit)),
-             (f"{p} interval, shortest", _interval(mc.get("shortest_interval"), d, unit)),
-             (f"{p} GUM interval y ± U", _interval(mc.get("gum_interval"), d, unit)),
+             (f"{p} interval, probabilistically symmetric", interval_text(mc.get("interval"), d, unit)),
+             (f"{p} interval, shortest", interval_text(mc.get("shortest_interval"), d, unit)),
+             (f"{p} GUM interval y ± U", interval_text(mc.get("gum_interval"), d, unit)),
              ("differences d_low, d_high; tolerance δ",
               f"{num(mc.get('d_low'), 2)} {unit}, {num(mc.get('d_high'), 2)} {unit}; "
               f"δ = {num(mc.get('tolerance'), 2)} {unit}"),
@@ -153,13 +156,24 @@ def monte_carlo_for_result(result: dict) -> list:
     return out
 
 
+SMALL_GROUP = 1e-3  # groups below 0.1 % by both evaluations are summed in one line
+
+
 def _mc_shares(mc: dict, result: dict) -> list:
     rows = []
     for key, label, gum_key in (("shares_by_step", "step", "budget_by_step"),
                                 ("shares_by_equipment", "equipment item", "budget_by_equipment")):
         gum = {g.get("group"): g.get("share") for g in result.get(gum_key) or []}
+        small = []
         for g in mc.get(key) or []:
-            rows.append([label, g.get("group", DASH), pct(gum.get(g.get("group"))), pct(g.get("share"))])
+            gum_share, mc_share = gum.get(g.get("group")), g.get("share")
+            if all(is_number(s) and s < SMALL_GROUP for s in (gum_share, mc_share)):
+                small.append(g.get("group", DASH))
+                continue
+            rows.append([label, g.get("group", DASH), pct(gum_share), pct(mc_share)])
+        if small:
+            rows.append([label, f"{len(small)} more, each below {pct(SMALL_GROUP)}: "
+                         + ", ".join(map(str, small)), DASH, DASH])
     if not rows:
         return []
     return [data_table(["grouped by", "group", "share, GUM", "share, Monte Carlo"], rows,
@@ -168,10 +182,8 @@ def _mc_shares(mc: dict, result: dict) -> list:
                  "GUM shares of the same groups.", "note")]
 
 
-def monte_carlo(record: dict) -> list | None:
-    results = [r for r in record.get("results") or [] if isinstance(r.get("monte_carlo"), dict)]
-    if not results:
-        return None
+def monte_carlo_intro(record: dict) -> list:
+    """The section's lead-in and the settings every result shares."""
     out = [para("The same model evaluated with random trial values of every source (JCGM 101). "
                 "The GUM interval is validated when its end points differ from those of the "
                 "probabilistically symmetric Monte Carlo interval by no more than the numerical "
@@ -182,58 +194,14 @@ def monte_carlo(record: dict) -> list | None:
             ("trials per result", num(settings.get("trials"))),
             ("random seed", str(settings.get("seed", DASH))),
             ("method", settings.get("method") or DASH)], (62, 112)))
-    for result in results:
-        out += monte_carlo_for_result(result)
     return out
 
 
-# --------------------------------------------------------------------------
-# Equilibrium constant
-
-def equilibrium(record: dict) -> list | None:
-    eq = record.get("equilibrium")
-    if not isinstance(eq, dict) or not eq:
+def monte_carlo(record: dict) -> list | None:
+    results = [r for r in record.get("results") or [] if isinstance(r.get("monte_carlo"), dict)]
+    if not results:
         return None
-    unit = eq.get("unit", "L/mol")
-    out = [para("1:1 association M + L ⇌ ML, K = [ML] / ([M][L]). K is conditional on the "
-                "temperature and ionic strength below.", "lead")]
-    cond = eq.get("conditions") or {}
-    if cond:
-        out.append(key_value_table([(k.replace("_", " "), f"{num(v, 4)}" if is_number(v) else str(v))
-                                    for k, v in cond.items()], (58, 116)))
-    mixtures = eq.get("mixtures") or []
-    if mixtures:
-        rows = [[m.get("id", DASH), num(m.get("K"), 4), num(m.get("u_K"), 3),
-                 f"[{num((m.get('interval') or [None, None])[0], 4)}, "
-                 f"{num((m.get('interval') or [None, None])[1], 4)}]"] for m in mixtures]
-        out += [heading("Mixtures", 2),
-                data_table(["mixture", f"K / {unit}", f"u(K) / {unit}", f"interval / {unit}"],
-                           rows, [54, 36, 36, 48], numeric={1, 2, 3})]
-    comb = eq.get("combined") or {}
-    if comb:
-        facts = []
-        if is_number(comb.get("K")) and is_number(comb.get("expanded_uncertainty")):
-            value, big_u = rounded(comb["K"], comb["expanded_uncertainty"])
-            facts.append(("combined K, U", f"{value} {unit}, U = {big_u} {unit}"))
-        facts.append(("standard uncertainty", f"{num(comb.get('standard_uncertainty'), 3)} {unit}"))
-        if comb.get("interval"):
-            low, high = comb["interval"]
-            facts.append(("coverage interval", f"[{num(low, 4)}, {num(high, 4)}] {unit}"))
-        cons = comb.get("consistency") or {}
-        if cons:
-            facts.append(("consistency: χ², ν, p, Birge ratio",
-                          f"{num(cons.get('chi2'), 4)}, {cons.get('dof', DASH)}, "
-                          f"{num(cons.get('p_value'), 3)}, {num(cons.get('birge_ratio'), 3)}"))
-            facts.append(("verdict", cons.get("verdict", DASH)))
-        out += [heading("Combined constant", 2), key_value_table(facts, (58, 116))]
-    extra = []
-    bias = eq.get("complete_complexation_bias") or {}
-    if bias:
-        extra.append(("bias of assuming complete complexation",
-                      f"slope {pct(bias.get('slope'), 2)}, K {pct(bias.get('K'), 2)} (relative)"))
-    lk = eq.get("log10K") or {}
-    if is_number(lk.get("value")):
-        extra.append(("log10 K", f"{num(lk['value'], 4)}, u = {num(lk.get('standard_uncertainty'), 2)}"))
-    if extra:
-        out += [gap(2), key_value_table(extra, (58, 116))]
+    out = monte_carlo_intro(record)
+    for result in results:
+        out += monte_carlo_for_result(result)
     return out

@@ -77,6 +77,7 @@ def styles() -> dict[str, ParagraphStyle]:
         "body": _style("body", spaceAfter=4),
         "lead": _style("lead", spaceAfter=4),  # an introduction, kept with what follows (pdf.py)
         "small": _style("small", fontSize=8, leading=10, spaceAfter=3),
+        "lead_small": _style("lead_small", fontSize=8, leading=10, spaceAfter=3),  # kept with what follows
         "note": _style("note", fontName=FONT_ITALIC, fontSize=8, leading=10, spaceAfter=3,
                        textColor=colors.HexColor("#4a5560")),
         "bullet": _style("bullet", fontSize=9, leading=11.5, leftIndent=10, bulletIndent=0,
@@ -140,6 +141,15 @@ def num(value, sig: int = 4) -> str:
     mantissa, exponent = f"{value:.{sig - 1}e}".split("e")
     mantissa = mantissa.rstrip("0").rstrip(".") if "." in mantissa else mantissa
     return f"{mantissa}e{int(exponent)}"
+
+
+def sig(value, digits: int = 4) -> str:
+    """A number to `digits` significant digits, trailing zeros kept (0.2000, not 0.2)."""
+    if not is_number(value):
+        return num(value)
+    if value == 0 or not -4 <= math.floor(math.log10(abs(value))) < 6:
+        return num(value, digits)
+    return f"{value:#.{digits}g}".rstrip(".")
 
 
 def pct(share, digits: int = 1) -> str:
