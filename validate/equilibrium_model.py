@@ -25,7 +25,7 @@ from validate.equilibrium_fit import iterate_standards, line_by_sums
 from validate.inputs.schema import Method
 from validate.metrology.equipment import SourceSet, volume_term
 from validate.metrology.sources import Source
-from validate.model import ModelError, mean_reading_term, solution_order, solution_term
+from validate.model import ModelError, SolutionInputs, mean_reading_term, solution_order, solution_term
 
 COMBINED = "K, combined"
 LOG10 = "log10 K, combined"
@@ -40,13 +40,13 @@ def positive_or_nan(x):
 
 
 @dataclass
-class EquilibriumModel:
+class EquilibriumModel(SolutionInputs):
     method: Method
     sources: dict[str, Source]
     points: list[str]  # ids of mixtures and series readings, in order
     weights: list[float] | None = None  # GLS weights of the combined K, set after a first pass
     assumptions: list[str] = field(default_factory=list)
-    _solutions: dict = field(default_factory=dict, repr=False)
+    _solution_terms: dict = field(default_factory=dict, repr=False)
     _standards: list = field(default_factory=list, repr=False)  # (id, replicates, totals fn, reading fn)
     _points: list = field(default_factory=list, repr=False)
 
@@ -59,14 +59,6 @@ class EquilibriumModel:
         study = self.method.equilibrium
         return "" if label == LOG10 else study.k_unit.text
 
-    def nominal_inputs(self) -> dict[str, float]:
-        return {name: s.value for name, s in self.sources.items()}
-
-    def concentrations(self, x) -> dict:
-        conc = {}
-        for sol_id, term in self._solutions.items():
-            conc[sol_id] = term(x, conc)
-        return conc
 
     def columns(self, x):
         """Totals of M and L and mean absorbances of the standards and of the points (SI)."""
@@ -104,7 +96,7 @@ def build_equilibrium_model(method: Method) -> EquilibriumModel:
     observed = method.settings.scatter == "observed"
     model = EquilibriumModel(method, ss.sources, study.point_ids())
     for sol in solution_order(method.solutions):
-        model._solutions[sol.id] = solution_term(ss, method, sol, False)
+        model._solution_terms[sol.id] = solution_term(ss, method, sol, False)
 
     def mix_totals(mix, is_standard):
         step = f"prepare {mix.id}"

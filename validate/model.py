@@ -27,8 +27,22 @@ class ModelError(ValueError):
     """The data do not allow the model to give a result (e.g. a flat line)."""
 
 
+class SolutionInputs:
+    """What every model shares: its sources' estimates and the solutions' concentrations
+    (`_solution_terms` in preparation order, each term seeing those before it)."""
+
+    def nominal_inputs(self) -> dict[str, float]:
+        return {name: s.value for name, s in self.sources.items()}
+
+    def concentrations(self, x) -> dict:
+        conc = {}
+        for sol_id, term in self._solution_terms.items():
+            conc[sol_id] = term(x, conc)
+        return conc
+
+
 @dataclass
-class Model:
+class Model(SolutionInputs):
     method: Method
     sources: dict[str, Source]
     result_labels: list[str]
@@ -44,15 +58,6 @@ class Model:
 
     def unit_of(self, label: str) -> str:
         return self.method.result.unit.text
-
-    def nominal_inputs(self) -> dict[str, float]:
-        return {name: s.value for name, s in self.sources.items()}
-
-    def concentrations(self, x) -> dict:
-        conc = {}
-        for sol_id, term in self._solution_terms.items():
-            conc[sol_id] = term(x, conc)
-        return conc
 
     def line(self, x, conc=None):
         """Intercept and slope refitted from this evaluation's standards and readings.
