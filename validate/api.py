@@ -160,19 +160,23 @@ def check_output_folder(out_dir, overwrite: bool) -> None:
 
 
 def write_outputs(run: Run, out_dir, overwrite: bool = False, pdf: bool = True) -> list[Path]:
-    """results.json, budget.csv and report.pdf. Everything is built first (the PDF into a
-    hidden temporary file), then moved into place, so a failure leaves the folder as it was."""
+    """results.json, budget.csv, report.pdf and a copy of the inputs (DIR/inputs/, for
+    `validate verify`). The PDF is built first into a hidden temporary file and every file is
+    written whole and moved into place, so a failure never leaves a half-written record."""
     import os
+
+    from validate.verify import store_inputs
 
     out = Path(out_dir)
     check_output_folder(out, overwrite)
-    payloads = {"results.json": record_json(run.record), "budget.csv": budget_csv(run.record["budget"])}
     out.mkdir(parents=True, exist_ok=True)
     pending = out / ".report.pdf.new"
     try:
         if pdf:
             from validate.report.pdf import build_report
             build_report(run.record, pending)
+        run.record["inputs"] = store_inputs(list(run.method.input_files), out)
+        payloads = {"results.json": record_json(run.record), "budget.csv": budget_csv(run.record["budget"])}
         written = []
         for name, data in payloads.items():
             write_atomic(out / name, data)

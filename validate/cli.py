@@ -40,6 +40,8 @@ def _parser() -> argparse.ArgumentParser:
     chk.add_argument("method")
     init = sub.add_parser("init", help="write a commented starter method file and readings table")
     init.add_argument("folder")
+    ver = sub.add_parser("verify", help="re-check a record: inputs unchanged and every number reproduced")
+    ver.add_argument("folder", help="the folder a `validate run --out` wrote")
     cal = sub.add_parser("calibrate", help="quick check of a calibration table (CSV: concentration,absorbance)")
     cal.add_argument("table", help="CSV with columns concentration and absorbance, one row per reading")
     cal.add_argument("--sample", action="append", type=float, default=[], metavar="A",
@@ -87,8 +89,8 @@ def main(argv=None) -> int:
     console = Console(highlight=False)
     errors = Console(stderr=True, highlight=False)
     try:
-        return {"run": _run, "check": _check, "init": _init,
-                "calibrate": _calibrate}[args.command](args, console)
+        return {"run": _run, "check": _check, "init": _init, "calibrate": _calibrate,
+                "verify": _verify}[args.command](args, console)
     except InputError as exc:
         errors.print(f"[bold red]input error[/] {escape(exc.message())}", soft_wrap=True)
         return EXIT_INPUT
@@ -277,6 +279,14 @@ def _print_criteria(console: Console, criteria: dict) -> None:
             console.print(f"  {mark}  {escape(c['name'])}: {_g(c['observed'])} {escape(c['comparison'])} "
                           f"{limit}{default}", soft_wrap=True)
     console.print(f"  [dim]{escape(criteria['caution'])}[/]", soft_wrap=True)
+
+
+def _verify(args, console: Console) -> int:
+    from validate.verify import describe, verify_record
+    report = verify_record(args.folder)
+    for line in describe(report):
+        console.print(escape(line), soft_wrap=True)
+    return 0 if report.passed else 1
 
 
 def _calibrate(args, console: Console) -> int:

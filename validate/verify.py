@@ -1,0 +1,237 @@
+"""Check a filed quality record: are its inputs unchanged, and does it still reproduce?
+
+`store_inputs` keeps a copy of every input file beside the record (DIR/inputs/, names and
+relative folders kept, so the stored method still finds its readings table). Later,
+`verify_record` checks each stored copy against the SHA-256 the record holds, re-runs the
+stored method with the recorded seed and number of Monte Carlo trials, and compares the
+record's `results` and `budget` number by number. The run metadata (record id, date) under
+`run` is not compared: it differs between any two runs by design.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import math
+import os
+from dataclasses import dataclass
+from pathlib import Path
+
+from validate.inputs.errors import InputError
+from validate.model import ModelError
+from validate.report.records import record_json, sha256_of, write_atomic
+
+INPUTS_FOLDER = "inputs"
+RECORD_FILE = "results.json"
+RELATIVE_TOLERANCE = 1e-9  # numbers agreeing to about 9 significant digits count as reproduced
+COMPARED_SECTIONS = ("results", "budget")
+_ABSENT = "(absent)"
+
+
+@dataclass(frozen=True)
+class InputCheck:
+    """One stored input file against the SHA-256 the record holds for it."""
+
+    path: str  # where the file was read from when the record was made
+    stored: str  # the copy, relative to the record's folder
+    recorded_sha256: str
+    stored_sha256: str | None  # None when the stored copy is missing
+
+    @property
+    def matches(self) -> bool:
+        return self.stored_sha256 == self.recorded_sha256
+
+    def to_dict(self) -> dict:
+        return {"path": self.path, "stored": self.stored, "recorded_sha256": self.recorded_sha256,
+                "stored_sha256": self.stored_sha256, "matches": self.matches}
+
+
+@dataclass(frozen=True)
+class Mismatch:
+    """A value of the record that the re-run did not reproduce."""
+
+    path: str  # e.g. "results[0].expanded_uncertainty" or "budget[3].contribution"
+    recorded: object
+    recomputed: object
+
+    def to_dict(self) -> dict:
+        return {"path": self.path, "recorded": self.recorded, "recomputed": self.recomputed}
+
+
+@dataclass(frozen=True)
+class VerifyReport:
+    folder: str
+    record_id: str | None
+    inputs: tuple[InputCheck, ...]
+    trials: int | str | None  # Monte Carlo trials of the re-run (None: linear engine only)
+    seed: int | None
+    rerun_error: str | None  # why the stored method could not be re-run, if it could not
+    numbers_compared: int
+    mismatches: tuple[Mismatch, ...]
+
+    @property
+    def inputs_unchanged(self) -> bool:
+        return all(check.matches for check in self.inputs)
+
+    @property
+    def reproduced(self) -> bool:
+        return self.rerun_error is None and not self.mismatches
+
+    @property
+    def passed(self) -> bool:
+        return self.inputs_unchanged and self.reproduced
+
+    def to_dict(self) -> dict:
+        return {"folder": self.folder, "record_id": self.record_id, "passed": self.passed,
+                "inputs_unchanged": self.inputs_unchanged, "reproduced": self.reproduced,
+                "inputs": [c.to_dict() for c in self.inputs], "trials": self.trials, "seed": self.seed,
+                "rerun_error": self.rerun_error, "numbers_compared": self.numbers_compared,
+                "relative_tolerance": RELATIVE_TOLERANCE,
+                "mismatches": [m.to_dict() for m in self.mismatches]}
+
+
+def store_inputs(input_files: list[str], out_dir) -> list[dict]:
+    """Copy each input file into OUT/inputs/, keeping its name and its folder relative to the
+    other inputs. Returns, in the same order, {"path", "stored", "sha256"} for the record;
+    the hash is of the bytes stored."""
+    paths = [Path(p) for p in input_files]
+    if not paths:
+        return []
+    base = Path(os.path.commonpath([str(p.resolve().parent) for p in paths]))
+    entries = []
+    for original in paths:
+        relative = original.resolve().relative_to(base)
+        target = Path(out_dir) / INPUTS_FOLDER / relative
+        target.parent.mkdir(parents=True, exist_ok=True)
+        data = original.read_bytes()
+        write_atomic(target, data)
+        entries.append({"path": str(original), "stored": (Path(INPUTS_FOLDER) / relative).as_posix(),
+                        "sha256": hashlib.sha256(data).hexdigest()})
+    return entries
+
+
+def reproducible_part(record: dict) -> dict:
+    """The record without its run metadata (record id, date), which no re-run repeats."""
+    return {key: value for key, value in record.items() if key != "run"}
+
+
+def compare(recorded, recomputed, path: str = "") -> tuple[list[Mismatch], int]:
+    """Every difference between two JSON values, with its path, and how many numbers were
+    compared. Numbers agree within RELATIVE_TOLERANCE; everything else must be equal."""
+    if isinstance(recorded, dict) and isinstance(recomputed, dict):
+        found, count = [], 0
+        for key in list(recorded) + [k for k in recomputed if k not in recorded]:
+            where = f"{path}.{key}" if path else str(key)
+            if key not in recomputed or key not in recorded:
+                found.append(Mismatch(where, recorded.get(key, _ABSENT), recomputed.get(key, _ABSENT)))
+                continue
+            more, n = compare(recorded[key], recomputed[key], where)
+            found += more
+            count += n
+        return found, count
+    if isinstance(recorded, list) and isinstance(recomputed, list):
+        found, count = [], 0
+        if len(recorded) != len(recomputed):
+            found.append(Mismatch(f"{path} (number of entries)", len(recorded), len(recomputed)))
+        for index, (a, b) in enumerate(zip(recorded, recomputed)):
+            more, n = compare(a, b, f"{path}[{index}]")
+            found += more
+            count += n
+        return found, count
+    if _is_number(recorded) and _is_number(recomputed):
+        same = math.isclose(recorded, recomputed, rel_tol=RELATIVE_TOLERANCE, abs_tol=0.0)
+        return ([] if same else [Mismatch(path, recorded, recomputed)]), 1
+    return ([] if recorded == recomputed and type(recorded) is type(recomputed)
+            else [Mismatch(path, recorded, recomputed)]), 0
+
+
+def _is_number(value) -> bool:
+    return isinstance(value, (int, float)) and not isinstance(value, bool)
+
+
+def verify_record(out_dir) -> VerifyReport:
+    """Check the stored inputs against their SHA-256 and re-run the stored method."""
+    from validate import api  # here, not at the top: the pipeline may one day call store_inputs
+
+    folder = Path(out_dir)
+    record = _read_record(folder)
+    entries = record.get("inputs") or []
+    checks = tuple(_check_input(folder, entry) for entry in entries)
+    if not checks or not any(c.stored_sha256 for c in checks):
+        raise InputError("this record has no stored copies of its input files, so it cannot be re-run",
+                         file=folder / RECORD_FILE, where="inputs",
+                         fix=f"records keep their inputs in {folder / INPUTS_FOLDER}; run the method again "
+                             f"to make a record that can be verified")
+    mc = record.get("monte_carlo_settings") or {}
+    trials, seed = mc.get("trials"), mc.get("seed")
+    method_file = folder / _method_entry(record, checks).stored
+    try:
+        run = api.analyse(method_file, trials=trials, seed=seed)
+    except (InputError, ModelError) as exc:
+        message = exc.message() if isinstance(exc, InputError) else str(exc)
+        return VerifyReport(str(folder), _record_id(record), checks, trials, seed, message, 0, ())
+    redone = json.loads(record_json(run.record))  # the same JSON form as the filed record
+    old, new = reproducible_part(record), reproducible_part(redone)
+    mismatches, count = [], 0
+    for section in COMPARED_SECTIONS:
+        found, n = compare(old.get(section), new.get(section), section)
+        mismatches += found
+        count += n
+    return VerifyReport(str(folder), _record_id(record), checks, trials, seed, None, count, tuple(mismatches))
+
+
+def _read_record(folder: Path) -> dict:
+    path = folder / RECORD_FILE
+    if not path.is_file():
+        raise InputError("no record here", file=path, fix="give the folder that a `validate run --out` wrote")
+    try:
+        record = json.loads(path.read_text(encoding="utf-8"))
+    except (UnicodeDecodeError, json.JSONDecodeError) as exc:
+        raise InputError(f"the record is not readable JSON ({exc})", file=path,
+                         fix="the file was damaged or edited by hand; restore it from the archive") from None
+    if not isinstance(record, dict) or not all(k in record for k in ("inputs", "results")):
+        raise InputError("this file is not a record written by validate", file=path,
+                         fix="give the folder that a `validate run --out` wrote")
+    return record
+
+
+def _check_input(folder: Path, entry: dict) -> InputCheck:
+    stored = entry.get("stored") or f"{INPUTS_FOLDER}/{Path(entry.get('path', '')).name}"
+    copy = folder / stored
+    digest = sha256_of(copy) if copy.is_file() else None
+    return InputCheck(str(entry.get("path", "")), stored, str(entry.get("sha256", "")), digest)
+
+
+def _method_entry(record: dict, checks: tuple[InputCheck, ...]) -> InputCheck:
+    """The stored method file: the input the record names as its method, else the first."""
+    method_path = (record.get("method") or {}).get("file")
+    return next((c for c in checks if c.path == method_path), checks[0])
+
+
+def _record_id(record: dict) -> str | None:
+    return (record.get("run") or {}).get("record_id")
+
+
+def describe(report: VerifyReport, limit: int = 20) -> list[str]:
+    """Plain-words lines for the terminal: each input, the re-run, the first mismatches."""
+    lines = [f"record {report.record_id or '(no id)'} in {report.folder}"]
+    for check in report.inputs:
+        state = ("unchanged" if check.matches else
+                 "MISSING" if check.stored_sha256 is None else "CHANGED (SHA-256 differs from the record)")
+        lines.append(f"  input {check.stored}: {state}")
+    how = f"{report.trials} Monte Carlo trials, seed {report.seed}" if report.trials else "linear engine only"
+    if report.rerun_error:
+        lines.append(f"  re-run ({how}) failed: {report.rerun_error}")
+    elif report.mismatches:
+        lines.append(f"  re-run ({how}): {len(report.mismatches)} of the record's values differ "
+                     f"({report.numbers_compared} numbers compared, relative tolerance {RELATIVE_TOLERANCE:g})")
+        for m in report.mismatches[:limit]:
+            lines.append(f"    {m.path}: recorded {m.recorded!r}, now {m.recomputed!r}")
+        if len(report.mismatches) > limit:
+            lines.append(f"    ... and {len(report.mismatches) - limit} more")
+    else:
+        lines.append(f"  re-run ({how}): results and budget reproduced "
+                     f"({report.numbers_compared} numbers, relative tolerance {RELATIVE_TOLERANCE:g})")
+    lines.append("verified: the record reproduces from its stored inputs" if report.passed else
+                 "NOT verified: see above")
+    return lines
