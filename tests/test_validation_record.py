@@ -70,3 +70,19 @@ def test_calibrate_command_reproduces_norris():
     # two replicate readings of one unknown: x0 = (300.5 - a) / b
     assert out["sample"]["concentration"] == pytest.approx((300.5 + 0.262323073774029) / 1.00211681802045)
     assert out["sample"]["standard_uncertainty"] > 0
+
+
+def test_a_single_blank_reading_drops_only_the_blank_route(tmp_path):
+    # ICH Q2: sigma from blanks needs replicate blank readings; with one the route is left out
+    # (and said so) rather than stopping the run.
+    folder = tmp_path / "demo"
+    shutil.copytree(DEMOS / "phosphate_assay", folder)
+    lines = (folder / "readings.csv").read_text().splitlines()
+    blank_rows = [i for i, line in enumerate(lines) if line.startswith("blank,")]
+    for i in reversed(blank_rows[1:]):
+        del lines[i]
+    (folder / "readings.csv").write_text("\n".join(lines) + "\n")
+    run = api.analyse(folder / "method.toml", trials=None, advice=False)
+    limits = run.record["validation"]["limits"]
+    assert "ich_blank_sd" not in {r["route"] for r in limits["routes"]}
+    assert any("one blank reading" in note for note in limits["notes"])

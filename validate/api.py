@@ -175,7 +175,10 @@ def write_outputs(run: Run, out_dir, overwrite: bool = False, pdf: bool = True) 
         if pdf:
             from validate.report.pdf import build_report
             build_report(run.record, pending)
-        run.record["inputs"] = store_inputs(list(run.method.input_files), out)
+        stored = store_inputs(list(run.method.input_files), out)
+        # keep the SHA-256 of what was analysed: a file changed since shows up in `validate verify`
+        run.record["inputs"] = [{**entry, "stored": copy["stored"]}
+                                for entry, copy in zip(run.record["inputs"], stored)]
         payloads = {"results.json": record_json(run.record), "budget.csv": budget_csv(run.record["budget"])}
         written = []
         for name, data in payloads.items():

@@ -17,6 +17,7 @@ import os
 from dataclasses import dataclass
 from pathlib import Path
 
+from validate import __version__
 from validate.inputs.errors import InputError
 from validate.model import ModelError
 from validate.report.records import record_json, sha256_of, write_atomic
@@ -68,6 +69,8 @@ class VerifyReport:
     rerun_error: str | None  # why the stored method could not be re-run, if it could not
     numbers_compared: int
     mismatches: tuple[Mismatch, ...]
+    recorded_version: str | None = None  # the software version that wrote the record
+    current_version: str = __version__  # the version that re-ran it; a difference may explain mismatches
 
     @property
     def inputs_unchanged(self) -> bool:
@@ -86,6 +89,7 @@ class VerifyReport:
                 "inputs_unchanged": self.inputs_unchanged, "reproduced": self.reproduced,
                 "inputs": [c.to_dict() for c in self.inputs], "trials": self.trials, "seed": self.seed,
                 "rerun_error": self.rerun_error, "numbers_compared": self.numbers_compared,
+                "recorded_version": self.recorded_version, "current_version": self.current_version,
                 "relative_tolerance": RELATIVE_TOLERANCE,
                 "mismatches": [m.to_dict() for m in self.mismatches]}
 
@@ -169,7 +173,8 @@ def verify_record(out_dir) -> VerifyReport:
         run = api.analyse(method_file, trials=trials, seed=seed)
     except (InputError, ModelError) as exc:
         message = exc.message() if isinstance(exc, InputError) else str(exc)
-        return VerifyReport(str(folder), _record_id(record), checks, trials, seed, message, 0, ())
+        return VerifyReport(str(folder), _record_id(record), checks, trials, seed, message, 0, (),
+                            _recorded_version(record))
     redone = json.loads(record_json(run.record))  # the same JSON form as the filed record
     old, new = reproducible_part(record), reproducible_part(redone)
     mismatches, count = [], 0
@@ -177,7 +182,8 @@ def verify_record(out_dir) -> VerifyReport:
         found, n = compare(old.get(section), new.get(section), section)
         mismatches += found
         count += n
-    return VerifyReport(str(folder), _record_id(record), checks, trials, seed, None, count, tuple(mismatches))
+    return VerifyReport(str(folder), _record_id(record), checks, trials, seed, None, count, tuple(mismatches),
+                        _recorded_version(record))
 
 
 def _read_record(folder: Path) -> dict:
@@ -212,9 +218,14 @@ def _record_id(record: dict) -> str | None:
     return (record.get("run") or {}).get("record_id")
 
 
+def _recorded_version(record: dict) -> str | None:
+    return (record.get("software") or {}).get("version")
+
+
 def describe(report: VerifyReport, limit: int = 20) -> list[str]:
     """Plain-words lines for the terminal: each input, the re-run, the first mismatches."""
-    lines = [f"record {report.record_id or '(no id)'} in {report.folder}"]
+    lines = [f"record {report.record_id or '(no id)'} in {report.folder}, written by validate "
+             f"{report.recorded_version or '(unknown version)'}, re-run with {report.current_version}"]
     for check in report.inputs:
         state = ("unchanged" if check.matches else
                  "MISSING" if check.stored_sha256 is None else "CHANGED (SHA-256 differs from the record)")

@@ -7,7 +7,6 @@ every default applied is listed in `Method.defaults_shown`.
 from __future__ import annotations
 
 import difflib
-import math
 import tomllib
 from pathlib import Path
 
@@ -18,6 +17,7 @@ from validate.inputs.formula import FormulaError, parse_formula, result_dimensio
 from validate.inputs.readings import load_readings, read_text_file
 from validate.inputs.tables import Table, parse_uncertain, unit_of
 from validate.inputs.units import describe_dims
+from validate.inputs.validation_settings import parse_validation
 from validate.metrology.registers import classes_for, find_entry, load_registers
 
 VOLUME = (0, 3, 0, 0)
@@ -91,7 +91,8 @@ def load_method(path) -> S.Method:
         measurand=info.text("measurand", "") or "", scope=info.text("scope", "") or "",
         settings=settings, items=items, solutions=solutions, calibration=calibration,
         samples=samples, quantities=quantities, result=None, readings=readings,
-        input_files=tuple(dict.fromkeys(str(p) for p in [path, readings_path, eq_readings_path] if p is not None)),
+        input_files=tuple(dict.fromkeys(str(p) for p in [path, readings_path, eq_readings_path, *extra]
+                                        if p is not None)),
         defaults_shown=tuple(defaults), notes=tuple(notes),
         registers_used=tuple(register_files), equilibrium=equilibrium,
     )
@@ -100,62 +101,9 @@ def load_method(path) -> S.Method:
                          "equilibrium study ([equilibrium]), not both", file=path,
                          fix="put the two in separate method files")
     result = _result(top, method) if equilibrium is None else None
-    validation = _validation(top, method, result, defaults) if result is not None else S.ValidationSettings()
+    validation = parse_validation(top, method, result, defaults) if result is not None else S.ValidationSettings()
     return S.Method(**{**method.__dict__, "result": result, "validation": validation,
                        "defaults_shown": tuple(defaults)})
-
-
-def _validation(top: Table, method: S.Method, result: S.ResultSpec, defaults: list[str]) -> S.ValidationSettings:
-    from validate.validation.criteria import CRITERIA, DEFAULTS
-    from validate.validation.limits import ROUTES
-    t = Table(top.get("validation", {}), top.file, "[validation]")
-    t.allow("declared_limit", "alpha", "beta", "absorbance_window", "reference_sample", "reference_value")
-    base = S.ValidationSettings()
-    route = t.text("declared_limit", base.declared_limit)
-    if route not in ROUTES:
-        raise t.error(f"unknown route {route!r}", "declared_limit", fix=f"use one of: {', '.join(ROUTES)}")
-    alpha = t.number("alpha", base.alpha, low=0, high=0.5)
-    beta = t.number("beta", base.beta, low=0, high=0.5)
-    window = t.get("absorbance_window", list(base.window))
-    if (not isinstance(window, list) or len(window) != 2 or
-            not all(isinstance(w, (int, float)) and not isinstance(w, bool) for w in window) or window[0] >= window[1]):
-        raise t.error("expected two absorbances, low and high", "absorbance_window", fix="e.g. [0.1, 1.0]")
-    sample = t.text("reference_sample")
-    ref = None
-    if sample is not None:
-        if sample not in {s.id for s in method.samples}:
-            raise t.error(f"`{sample}` is not one of the [samples]", "reference_sample",
-                          fix=f"use one of: {', '.join(s.id for s in method.samples) or '(no samples defined)'}")
-        ref = t.uncertain("reference_value", result.unit.dims, positive=False)
-    elif t.has("reference_value"):
-        raise t.error("a reference value needs `reference_sample`, the sample it belongs to", "reference_value",
-                      fix="add reference_sample = \"...\" naming one of the [samples]")
-    if method.calibration is not None:
-        for key, text in (("declared_limit", f"declared detection-limit route: {route}"),
-                          ("alpha", f"false-positive probability alpha = {alpha:g} (ISO 11843-2)"),
-                          ("beta", f"false-negative probability beta = {beta:g} (ISO 11843-2)"),
-                          ("absorbance_window", f"absorbance window {window[0]:g} to {window[1]:g} "
-                           f"(common practice)")):
-            if not t.has(key):
-                defaults.append(f"default: {text}")
-    a = Table(top.get("acceptance", {}), top.file, "[acceptance]")
-    a.allow(*CRITERIA)
-    acceptance = {}
-    for key in a.data:
-        value = a.get(key)
-        if key == "recovery_range":
-            if (not isinstance(value, list) or len(value) != 2 or
-                    not all(isinstance(v, (int, float)) and not isinstance(v, bool) for v in value)):
-                raise a.error("expected [low, high] in percent", key, fix="e.g. recovery_range = [95, 105]")
-            acceptance[key] = (float(value[0]), float(value[1]))
-        else:
-            acceptance[key] = a.number(key)
-    unset = [k for k in CRITERIA if k not in acceptance and DEFAULTS[k] is not None]
-    if method.calibration is not None and unset:
-        defaults.append("default acceptance criteria (common practice, set yours under [acceptance]): " +
-                        ", ".join(f"{k} = {DEFAULTS[k]}" for k in unset))
-    return S.ValidationSettings(route, alpha, beta, (float(window[0]), float(window[1])), sample, ref,
-                                acceptance)
 
 
 def _settings(t: Table, defaults: list[str]) -> S.Settings:
@@ -173,7 +121,10 @@ def _settings(t: Table, defaults: list[str]) -> S.Settings:
     temp = base.temperature_range
     if t.has("temperature_range"):
         temp = parse_uncertain(t.get("temperature_range"), t, "temperature_range", (0, 0, 0, 1), False).value
-    alpha = t.number("expansion_coefficient", base.expansion_coefficient, low=0)
+        if not 0 <= temp <= 50:  # a half-width about 20 degC; aqueous volumetric work stays well inside
+            raise t.error(f"a temperature range of +/-{temp:g} K is not a laboratory's", "temperature_range",
+                          fix='give the half-width of the laboratory\'s temperature about 20 degC, e.g. "3 K"')
+    alpha = t.number("expansion_coefficient", base.expansion_coefficient, low=0, high=0.01)  # per K; liquids ~1e-3
     shared = t.get("shared_temperature", base.shared_temperature)
     if not isinstance(shared, bool):
         raise t.error("expected true or false", "shared_temperature", fix="write true or false without quotes")

@@ -47,7 +47,8 @@ class Table:
     def text(self, key: str, default: str | None = None, required: bool = False) -> str | None:
         value = self.require(key) if required else self.data.get(key, default)
         if value is not None and not isinstance(value, str):
-            raise self.error(f"expected text in quotes, got {value!r}", key, fix=f'write it in quotes, e.g. {key} = "..."')
+            raise self.error(f"expected text in quotes, got {value!r}", key,
+                             fix=f'write it in quotes, e.g. {key} = "..."')
         return value
 
     def number(self, key: str, default: float | None = None, low=None, high=None) -> float | None:
@@ -84,6 +85,11 @@ class Table:
         return parse_uncertain(self.require(key), self, key, dims, positive)
 
 
+# Magnitudes (SI) beyond any quantity of a laboratory method; refusing them keeps squares of
+# uncertainties and sensitivities clear of floating-point overflow and underflow.
+SMALLEST_SI, LARGEST_SI = 1e-30, 1e30
+
+
 def parse_si(raw, table: Table, key: str, dims=None, positive=True) -> tuple[float, Unit]:
     try:
         number, unit = parse_quantity(raw)
@@ -99,6 +105,10 @@ def parse_si(raw, table: Table, key: str, dims=None, positive=True) -> tuple[flo
     if positive and number <= 0:
         raise table.error(f"the value {number} must be greater than zero", key,
                           fix="give the value as used or stated, greater than zero")
+    if number != 0 and not SMALLEST_SI <= abs(number * unit.factor) <= LARGEST_SI:
+        raise table.error(f"the value {number:g} {unit.text} is far outside any laboratory quantity",
+                          key, fix=f"check the number and its unit (in SI units this tool takes values between "
+                                   f"{SMALLEST_SI:g} and {LARGEST_SI:g})")
     return number * unit.factor, unit
 
 

@@ -206,10 +206,11 @@ def detection_limits(fit: LineFit, blanks=None, *, alpha: float = 0.05, beta: fl
                    "ICH names the SD of intercepts of several lines; the standard error of "
                    "this line's intercept stands in for it (common practice)"),
     ]
-    if blanks is not None and len(blanks) > 0:
+    if blanks is not None and len(blanks) == 1:
+        notes.append("one blank reading only: the blank-based limit needs at least 2 (ICH Q2 advises 10 "
+                     "or more), so that route is not shown")
+    elif blanks is not None and len(blanks) > 1:
         b = np.asarray(blanks, dtype=float).ravel()
-        if len(b) < 2:
-            raise ValueError("a blank-based limit needs at least 2 blank readings (10 or more advised by ICH Q2)")
         routes.append(_ich_route("ich_blank_sd", float(np.std(b, ddof=1)), len(b) - 1,
                                  fit.slope, ICH_SOURCE + "sigma = SD of blank responses."))
     iso = iso11843_2(fit, alpha, beta, sample_replicates)

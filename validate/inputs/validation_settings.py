@@ -1,0 +1,65 @@
+"""The [validation] and [acceptance] sections of a method file."""
+
+from __future__ import annotations
+
+import math
+
+from validate.inputs import schema as S
+from validate.inputs.tables import Table
+
+
+def parse_validation(top: Table, method: S.Method, result: S.ResultSpec, defaults: list[str]) -> S.ValidationSettings:
+    from validate.validation.criteria import CRITERIA, DEFAULTS
+    from validate.validation.limits import ROUTES
+    t = Table(top.get("validation", {}), top.file, "[validation]")
+    t.allow("declared_limit", "alpha", "beta", "absorbance_window", "reference_sample", "reference_value")
+    base = S.ValidationSettings()
+    route = t.text("declared_limit", base.declared_limit)
+    if route not in ROUTES:
+        raise t.error(f"unknown route {route!r}", "declared_limit", fix=f"use one of: {', '.join(ROUTES)}")
+    # error probabilities below 1e-5 are never used, and at ~1e-17 the t quantiles become infinite
+    alpha = t.number("alpha", base.alpha, low=1e-5, high=0.5)
+    beta = t.number("beta", base.beta, low=1e-5, high=0.5)
+    window = t.get("absorbance_window", list(base.window))
+    if (not isinstance(window, list) or len(window) != 2 or
+            not all(isinstance(w, (int, float)) and not isinstance(w, bool) and math.isfinite(w) for w in window)
+            or not window[0] < window[1]):
+        raise t.error("expected two absorbances, low and high", "absorbance_window", fix="e.g. [0.1, 1.0]")
+    sample = t.text("reference_sample")
+    ref = None
+    if sample is not None:
+        if sample not in {s.id for s in method.samples}:
+            raise t.error(f"`{sample}` is not one of the [samples]", "reference_sample",
+                          fix=f"use one of: {', '.join(s.id for s in method.samples) or '(no samples defined)'}")
+        ref = t.uncertain("reference_value", result.unit.dims, positive=False)
+    elif t.has("reference_value"):
+        raise t.error("a reference value needs `reference_sample`, the sample it belongs to", "reference_value",
+                      fix="add reference_sample = \"...\" naming one of the [samples]")
+    if method.calibration is not None:
+        for key, text in (("declared_limit", f"declared detection-limit route: {route}"),
+                          ("alpha", f"false-positive probability alpha = {alpha:g} (ISO 11843-2)"),
+                          ("beta", f"false-negative probability beta = {beta:g} (ISO 11843-2)"),
+                          ("absorbance_window", f"absorbance window {window[0]:g} to {window[1]:g} "
+                           f"(common practice)")):
+            if not t.has(key):
+                defaults.append(f"default: {text}")
+    a = Table(top.get("acceptance", {}), top.file, "[acceptance]")
+    a.allow(*CRITERIA)
+    acceptance = {}
+    for key in a.data:
+        value = a.get(key)
+        if key == "recovery_range":
+            if (not isinstance(value, list) or len(value) != 2 or
+                    not all(isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v)
+                            for v in value) or not value[0] < value[1]):
+                raise a.error("expected [low, high] in percent, low below high", key,
+                              fix="e.g. recovery_range = [95, 105]")
+            acceptance[key] = (float(value[0]), float(value[1]))
+        else:
+            acceptance[key] = a.number(key)
+    unset = [k for k in CRITERIA if k not in acceptance and DEFAULTS[k] is not None]
+    if method.calibration is not None and unset:
+        defaults.append("default acceptance criteria (common practice, set yours under [acceptance]): " +
+                        ", ".join(f"{k} = {DEFAULTS[k]}" for k in unset))
+    return S.ValidationSettings(route, alpha, beta, (float(window[0]), float(window[1])), sample, ref,
+                                acceptance)
