@@ -7,6 +7,7 @@ from __future__ import annotations
 import json
 import os
 import shutil
+from pathlib import Path
 
 import pytest
 
@@ -222,3 +223,17 @@ def test_a_failing_payload_builder_leaves_the_previous_record(record_dir, monkey
 def test_no_temporary_file_is_left_after_a_normal_write(tmp_path):
     records.write_atomic(tmp_path / "a.json", b"{}")
     assert os.listdir(tmp_path) == ["a.json"]
+
+
+def test_equilibrium_demo_record_verifies(tmp_path):
+    # issue 8: `validate verify` confirms both demos' records; here the equilibrium study,
+    # with few trials (the comparison is of every recorded number, not of their precision)
+    from validate import api
+    from validate.verify import verify_record
+
+    demo = Path(__file__).resolve().parents[1] / "example_inputs" / "nickel_complex" / "method.toml"
+    run = api.analyse(demo, trials=4000, seed=13, advice=False)
+    api.write_outputs(run, tmp_path / "rec", pdf=False)
+    report = verify_record(tmp_path / "rec")
+    assert report.inputs_unchanged and report.reproduced, report.mismatches[:3]
+    assert report.numbers_compared > 1000

@@ -31,7 +31,7 @@ def grouped(result: LinearResult, key: str) -> list[GroupShare]:
         totals[name] = totals.get(name, 0.0) + row.contribution**2
     variance = result.standard_uncertainty**2
     groups = [GroupShare(g, math.sqrt(v), v / variance if variance > 0 else 0.0) for g, v in totals.items()]
-    return sorted(groups, key=lambda g: (-g.share, g.group))
+    return sorted(groups, key=lambda g: (-round(g.share, 12), g.group))  # round-off must not reorder
 
 
 def budget_rows(results: list[LinearResult]) -> list[dict]:

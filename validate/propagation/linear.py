@@ -118,7 +118,7 @@ def propagate(model: Model) -> list[LinearResult]:
                          sens, c, (c * c / variance) if variance > 0 else 0.0)
             for src, sens, c in rows
         ]
-        contribs.sort(key=lambda r: (-r.share, r.source))
+        contribs.sort(key=lambda r: (-round(r.share, 12), r.source))  # round-off must not reorder
         group_of = {name: src.dof_group for name, src in model.sources.items()}
         dof = welch_satterthwaite([r.contribution for r in contribs], [r.dof for r in contribs],
                                   [group_of[r.source] for r in contribs])

@@ -120,22 +120,27 @@ def _adaptive(model: Model, p: float, rng, progress) -> tuple[dict, dict]:
     return {k: np.concatenate(v) for k, v in kept.items()}, checks
 
 
-def _shares(model: Model, seed: int, key: str, progress) -> dict[str, list[tuple[str, float]]]:
+def share_trials(trials) -> int:
+    """Trials per held-group run: SHARE_TRIALS, fewer when the main run itself is smaller."""
+    return SHARE_TRIALS if trials == "auto" else max(1000, min(SHARE_TRIALS, int(trials) // 4))
+
+
+def _shares(model: Model, seed: int, key: str, progress, n: int = SHARE_TRIALS) -> dict[str, list[tuple[str, float]]]:
     """Share of the variance removed when one group of sources is held at its estimates:
-    1 - Var(held) / Var(all), from runs on common random numbers."""
+    1 - Var(held) / Var(all), from runs of n trials on common random numbers."""
     groups: dict[str, set] = {}
     for name, src in model.sources.items():
         groups.setdefault(getattr(src, key) or "(none)", set()).add(name)
-    base = evaluate_trials(model, SHARE_TRIALS, np.random.default_rng(seed))
+    base = evaluate_trials(model, n, np.random.default_rng(seed))
     var0 = {k: np.nanvar(v) for k, v in base.items()}
     shares = {label: [] for label in model.result_labels}
     for group, names in groups.items():
-        held = evaluate_trials(model, SHARE_TRIALS, np.random.default_rng(seed), frozenset(names))
-        progress(SHARE_TRIALS)
+        held = evaluate_trials(model, n, np.random.default_rng(seed), frozenset(names))
+        progress(n)
         for label, arr in held.items():
             share = 1.0 - np.nanvar(arr) / var0[label] if var0[label] > 0 else 0.0
             shares[label].append((group, float(share)))
-    return {k: sorted(v, key=lambda t: (-t[1], t[0])) for k, v in shares.items()}
+    return {k: sorted(v, key=lambda t: (-round(t[1], 12), t[0])) for k, v in shares.items()}
 
 
 def propagate_mc(model: Model, linear: list[LinearResult], trials: int | str = 1_000_000,
@@ -149,8 +154,9 @@ def propagate_mc(model: Model, linear: list[LinearResult], trials: int | str = 1
         values, checks = _adaptive(model, p, rng, progress)
     else:
         values, checks = _fixed(model, int(trials), rng, progress), {}
-    by_step = _shares(model, seed + 1, "step", progress) if shares else {}
-    by_item = _shares(model, seed + 1, "equipment", progress) if shares else {}
+    n_shares = share_trials(trials)
+    by_step = _shares(model, seed + 1, "step", progress, n_shares) if shares else {}
+    by_item = _shares(model, seed + 1, "equipment", progress, n_shares) if shares else {}
     results = []
     for gum in linear:
         arr = values[gum.name]
@@ -172,7 +178,7 @@ def expected_work(trials: int | str, model: Model, shares: bool = True) -> int:
     """Trials the run will evaluate, for a progress bar (the adaptive run is open-ended)."""
     groups = len({s.step for s in model.sources.values()}) + len({s.equipment for s in model.sources.values()})
     main = adaptive_batch_size(model.method.settings.coverage_probability) * 10 if trials == "auto" else int(trials)
-    return main + (groups * SHARE_TRIALS if shares else 0)
+    return main + (groups * share_trials(trials) if shares else 0)
 
 
 __all__ = ["McResult", "propagate_mc", "evaluate_trials", "new_seed", "expected_work"]
