@@ -155,7 +155,7 @@ def readings_with_semicolons_and_decimal_commas(folder):
 def reading_with_an_unquoted_decimal_comma(folder):
     _edit(folder, "S4,0.3406", "S4,0,3406", name=READINGS)
     line = _line_of(folder, "S4,0,3406", READINGS)
-    return [READINGS, f"line {line}", "3 cells", "decimal comma"]
+    return [READINGS, f"line {line}", "cells but the header names", "decimal comma"]
 
 
 def readings_missing_for_a_standard(folder):
@@ -190,7 +190,8 @@ def falling_response(folder):
         ident = ln.split(",")[0]
         if ident in swap:
             j = seen[ident] = seen.get(ident, -1) + 1
-            ln = f"{ident},{by_id[swap[ident]][j]}"
+            cells = ln.split(",")
+            ln = ",".join([ident, by_id[swap[ident]][j], *cells[2:]])  # keep any further columns
         out.append(ln)
     (folder / READINGS).write_text("\n".join(out) + "\n", encoding="utf-8")
     return [READINGS, "falls as the concentration rises", "slope -0.08", "what to do", "right id"]

@@ -86,3 +86,19 @@ def test_a_single_blank_reading_drops_only_the_blank_route(tmp_path):
     limits = run.record["validation"]["limits"]
     assert "ich_blank_sd" not in {r["route"] for r in limits["routes"]}
     assert any("one blank reading" in note for note in limits["notes"])
+
+
+def test_intermediate_precision_over_the_series_column(demo_run):
+    # ISO 5725-3 one-way analysis of variance over the readings table's `series` column; the
+    # F statistic checked against scipy.stats.f_oneway on the same concentrations.
+    from scipy import stats
+
+    ip = demo_run.record["validation"]["intermediate_precision"]["reference_water"]
+    fit = demo_run.record["validation"]["fit"]
+    method = demo_run.method
+    values = [(a - fit["intercept"]) / fit["slope"] for a in method.readings["reference_water"]]
+    labels = method.reading_series["reference_water"]
+    groups = [[v for v, s in zip(values, labels) if s == day] for day in sorted(set(labels))]
+    assert ip["groups"] == 3 and ip["n"] == 9
+    assert ip["f_statistic"] == pytest.approx(stats.f_oneway(*groups).statistic, rel=1e-9)
+    assert ip["intermediate_sd"] >= ip["repeatability_sd"]

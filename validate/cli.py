@@ -258,6 +258,11 @@ def _print_validation(console: Console, v: dict) -> None:
     if window.get("outside"):
         console.print(f"  [yellow]note[/] {window['outside']} reading(s) outside the absorbance window "
                       f"{window['low']:g} to {window['high']:g} (common practice)")
+    for sample, ip in (v.get("intermediate_precision") or {}).items():
+        if "intermediate_sd" in ip:
+            console.print(f"  intermediate precision of {escape(sample)} over {ip['groups']} series: s_I "
+                          f"{_g(ip['intermediate_sd'], 3)} {escape(ip['unit'])} (s_r {_g(ip['repeatability_sd'], 3)}): "
+                          f"{escape(ip['verdict'])}", soft_wrap=True)
     if v.get("trueness"):
         t = v["trueness"]
         console.print(f"  trueness: recovery {t['recovery_percent']:.1f} %, E_n = {t['en_number']:.2f}: "

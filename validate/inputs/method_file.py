@@ -14,7 +14,7 @@ from validate.inputs import schema as S
 from validate.inputs.consistency import check_calibration_data, check_ids
 from validate.inputs.errors import InputError
 from validate.inputs.formula import FormulaError, parse_formula, result_dimension
-from validate.inputs.readings import load_readings, read_text_file
+from validate.inputs.readings import load_reading_series, load_readings, read_text_file
 from validate.inputs.tables import Table, parse_uncertain, unit_of
 from validate.inputs.units import describe_dims
 from validate.inputs.validation_settings import parse_validation
@@ -70,9 +70,10 @@ def load_method(path) -> S.Method:
     quantities = {name: _quantity(name, Table(raw, path, f"[quantities.{name}]"), items)
                   for name, raw in top.named_tables("quantities").items()}
     check_ids(samples, solutions, quantities, path)
-    readings = {}
+    readings, series = {}, {}
     if readings_path is not None:
         readings = load_readings(readings_path)
+        series = load_reading_series(readings_path)
         _check_readings(readings, calibration, samples, solutions, readings_path, notes)
         check_calibration_data(calibration, solutions, readings, path, readings_path)
     equilibrium, eq_readings_path = None, None
@@ -90,7 +91,7 @@ def load_method(path) -> S.Method:
         path=str(path), title=info.text("title", path.stem) or path.stem,
         measurand=info.text("measurand", "") or "", scope=info.text("scope", "") or "",
         settings=settings, items=items, solutions=solutions, calibration=calibration,
-        samples=samples, quantities=quantities, result=None, readings=readings,
+        samples=samples, quantities=quantities, result=None, readings=readings, reading_series=series,
         input_files=tuple(dict.fromkeys(str(p) for p in [path, readings_path, eq_readings_path, *extra]
                                         if p is not None)),
         defaults_shown=tuple(defaults), notes=tuple(notes),

@@ -106,3 +106,22 @@ def load_readings(path: Path) -> dict[str, tuple[float, ...]]:
         raise InputError("the readings table has no readings", file=path,
                          fix="add one row per reading: id,absorbance")
     return {k: tuple(v) for k, v in readings.items()}
+
+
+def load_reading_series(path: Path) -> dict[str, tuple[str, ...]]:
+    """The optional `series` column (a day, analyst or instrument label per reading), by id,
+    in the order of the readings; {} when the table has no such column. Call after
+    `load_readings`, which has checked the table."""
+    rows = _rows(read_text_file(path, "readings table"))
+    header = [h.strip().lower() for h in rows[0][1]]
+    if "series" not in header:
+        return {}
+    i_id, i_s = header.index("id"), header.index("series")
+    series: dict[str, list[str]] = {}
+    for line_no, row in rows[1:]:
+        label = row[i_s].strip() if len(row) > i_s else ""
+        if not label:
+            raise InputError("the series is empty", file=path, where=f"row at line {line_no}",
+                             fix="give every reading its series (e.g. the day or analyst), or drop the column")
+        series.setdefault(row[i_id].strip(), []).append(label)
+    return {k: tuple(v) for k, v in series.items()}

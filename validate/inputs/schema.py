@@ -212,6 +212,7 @@ class Method:
     quantities: dict[str, NamedQuantity]
     result: ResultSpec
     readings: dict[str, tuple[float, ...]] = field(default_factory=dict)
+    reading_series: dict[str, tuple[str, ...]] = field(default_factory=dict)  # optional day/analyst labels
     input_files: tuple[str, ...] = ()
     defaults_shown: tuple[str, ...] = ()  # every default the loader applied, in plain words
     notes: tuple[str, ...] = ()  # warnings about the input that do not stop the run

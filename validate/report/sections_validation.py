@@ -234,12 +234,19 @@ def precision_trueness(record: dict) -> list | None:
             ("degrees of freedom, groups, readings",
              f"{rep.get('dof', DASH)}, {rep.get('groups', DASH)}, {rep.get('n', DASH)}")]),
             para(rep.get("source", ""), "note")]
-    ip = v.get("intermediate_precision")
-    if isinstance(ip, dict):
-        blocks += [heading("Intermediate precision", 2), key_value_table([
-            ("repeatability SD s_r", num(ip.get("repeatability_sd"), 3)),
-            ("between-group SD s_L", num(ip.get("between_group_sd"), 3)),
-            ("intermediate SD s_I", f"{num(ip.get('intermediate_sd'), 3)} "
+    per_sample = v.get("intermediate_precision")
+    if isinstance(per_sample, dict) and "groups" in per_sample:  # a single analysis, unnamed
+        per_sample = {"": per_sample}
+    for sample, ip in (per_sample or {}).items():
+        if not isinstance(ip, dict) or "groups" not in ip:
+            continue
+        unit = ip.get("unit", "")
+        title = f"Intermediate precision: {sample}" if sample else "Intermediate precision"
+        blocks += [heading(title, 2), key_value_table([
+            ("series, readings", f"{ip.get('groups', DASH)}, {ip.get('n', DASH)}"),
+            ("repeatability SD s_r", f"{num(ip.get('repeatability_sd'), 3)} {unit}"),
+            ("between-series SD s_L", f"{num(ip.get('between_group_sd'), 3)} {unit}"),
+            ("intermediate SD s_I", f"{num(ip.get('intermediate_sd'), 3)} {unit} "
              f"({num(ip.get('intermediate_rsd_percent'), 3)} %), ν = {num(ip.get('intermediate_dof'), 3)}"),
             ("F, p value", f"{num(ip.get('f_statistic'), 4)}, {num(ip.get('p_value'), 3)}"),
             ("verdict", ip.get("verdict", DASH))]), para(ip.get("source", ""), "note")]

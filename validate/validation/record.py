@@ -19,7 +19,7 @@ from validate.propagation.linear import LinearResult
 from validate.validation.criteria import evaluate_criteria
 from validate.validation.limits import range_flags
 from validate.validation.linearity import plain
-from validate.validation.precision import recovery, repeatability, scatter_consistency
+from validate.validation.precision import intermediate_precision, recovery, repeatability, scatter_consistency
 from validate.validation.summary import validate_calibration
 from validate.validation.window import absorbance_window_flags
 
@@ -87,6 +87,7 @@ def validation_block(method: Method, model: Model, results: list[LinearResult]) 
     rep_groups = [[(a - fit.intercept) / fit.slope for a in method.readings[i]] for i in sample_ids
                   if len(method.readings[i]) >= 2]
     precision = repeatability(rep_groups) if rep_groups else None
+    between_series = _intermediate(method, fit, sample_ids)
     consistency = scatter_consistency(fit.residual_sd, fit.dof, predicted_reading_sd(method, fit.slope))
     trueness = _trueness(method, results)
     observed = summary.observed_for_criteria()
@@ -110,10 +111,30 @@ def validation_block(method: Method, model: Model, results: list[LinearResult]) 
         "window_flags": plain(window),
         "repeatability": {**plain(precision), "unit": cal.concentration_unit.text} if precision else None,
         "trueness": plain(trueness) if trueness else None,
+        "intermediate_precision": between_series,
         "scatter_consistency": plain(consistency),
         "criteria": plain(criteria),
     })
     return block
+
+
+def _intermediate(method: Method, fit, sample_ids) -> dict:
+    """Intermediate precision (ISO 5725-3) of every sample read in two or more series (the
+    readings table's optional `series` column: days, analysts), in the calibration unit.
+    The budget's observed scatter is within-series only: a series effect is reported here."""
+    out = {}
+    for ident in sample_ids:
+        labels = method.reading_series.get(ident)
+        if not labels or len(set(labels)) < 2:
+            continue
+        values = [(a - fit.intercept) / fit.slope for a in method.readings[ident]]
+        try:
+            result = intermediate_precision(values, groups=list(labels), factor="series")
+        except ValueError as exc:
+            out[ident] = {"error": str(exc)}
+            continue
+        out[ident] = {**plain(result), "unit": method.calibration.concentration_unit.text}
+    return out
 
 
 def _trueness(method: Method, results: list[LinearResult]):
