@@ -111,3 +111,16 @@ def test_init_writes_a_starter_that_checks(tmp_path):
     assert proc.returncode == 0, proc.stderr
     check = _run("check", str(tmp_path / "new" / "method.toml"))
     assert check.returncode == 0, check.stderr
+
+
+def test_interrupted_run_writes_nothing(tmp_path, monkeypatch):
+    # Ctrl-C during the computation: a clear line, exit 130, and no output folder
+    from validate import api, cli
+
+    def interrupted(*args, **kwargs):
+        raise KeyboardInterrupt
+
+    monkeypatch.setattr(api, "analyse", interrupted)
+    out = tmp_path / "out"
+    assert cli.main(["run", str(DEMO / "method.toml"), "--out", str(out)]) == 130
+    assert not out.exists()

@@ -97,6 +97,10 @@ def main(argv=None) -> int:
     except ModelError as exc:
         errors.print(f"[bold red]no result[/] {escape(str(exc))}", soft_wrap=True)
         return EXIT_DATA
+    except KeyboardInterrupt:
+        errors.print("interrupted: no record was written or changed (files are moved into place only "
+                     "when complete)")
+        return 130
     except BrokenPipeError:  # output piped into a program that stopped reading (e.g. head)
         sys.stderr.close()
         return 0

@@ -59,8 +59,10 @@ def load_register(path: Path) -> list[RegisterEntry]:
             raise InputError("an entry needs `kind` and `class`", file=path, where=where)
         values = {}
         try:
-            nominal = parse_quantity(raw["nominal"])[0] * parse_quantity(raw["nominal"])[1].factor \
-                if "nominal" in raw else None
+            nominal = None
+            if "nominal" in raw:
+                number, unit = parse_quantity(raw["nominal"])
+                nominal = number * unit.factor
             for key in _SIZED_KEYS:
                 if key in raw:
                     number, unit = parse_quantity(raw[key])
