@@ -5,6 +5,7 @@ from __future__ import annotations
 import dataclasses
 import json
 import math
+from pathlib import Path
 
 import pytest
 from hypothesis import HealthCheck, assume, given, settings
@@ -318,3 +319,18 @@ def test_single_result_figure_is_in_the_result_unit(write_method):
     method = load_method(write_method(SUM.format(ua=0.5, ub=0.5, uc=0.5)))
     results = propagate(build_model(method))
     assert figure(results) == ("total", "mg/L", results[0].expanded_uncertainty)
+
+
+def test_equilibrium_study_is_judged_by_its_combined_K():
+    # An equilibrium study is advised on its combined K; reading every point more often lowers
+    # U (the observed scatter of a mean of m readings is s/sqrt(m), ISO 8466-1 / CG4 A5).
+    from validate import api
+    from validate.advisor import advise
+
+    demo = Path(__file__).resolve().parents[1] / "example_inputs" / "nickel_complex" / "method.toml"
+    run = api.analyse(demo, trials=None, advice=False)
+    report = advise(run.method, run.results, confirm_with_mc=0)
+    assert report.target == "K, combined"
+    kinds = {a.kind: a for a in report.items}
+    assert "more point readings" in kinds
+    assert kinds["more point readings"].expanded_uncertainty_after < report.expanded_uncertainty_before

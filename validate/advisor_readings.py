@@ -1,0 +1,107 @@
+"""Advisor candidates that add readings: of the samples, of the calibration solutions, or of
+an equilibrium study's mixtures and series points (see validate.advisor_candidates)."""
+
+from __future__ import annotations
+
+import math
+from collections import Counter
+from dataclasses import replace
+
+from validate.advisor_candidates import READING_FACTOR, Candidate
+from validate.calibration import fit_line
+from validate.inputs.schema import Method
+from validate.model import build_model
+
+
+def _calibration_ids(method: Method) -> list[str]:
+    cal = method.calibration
+    return list(cal.standards) + (list(cal.blanks) if cal.blanks_in_fit else [])
+
+
+def with_more_sample_readings(method: Method, factor: int = READING_FACTOR) -> Method:
+    """Each sample read `factor` times as often: its readings replaced by factor x m copies
+    of its mean. The mean is kept; the per-reading scatter is assumed to stay the same
+    (observed scatter: s/sqrt(m) becomes s/sqrt(factor m); bottom-up: factor m noise terms)."""
+    readings = dict(method.readings)
+    for smp in method.samples:
+        r = readings[smp.id]
+        readings[smp.id] = (sum(r) / len(r),) * (factor * len(r))
+    return replace(method, readings=readings)
+
+
+def with_more_calibration_readings(method: Method, factor: int = READING_FACTOR) -> Method:
+    """Each calibration solution read `factor` times as often, the scatter kept the same.
+
+    The N readings are repeated `factor` times with their residuals about the line
+    scaled by c = sqrt((factor N - 2) / (factor (N - 2))): the line is unchanged
+    (residuals are orthogonal to 1 and x), its residual standard deviation stays
+    s exactly, and its degrees of freedom grow from N - 2 to factor N - 2."""
+    model = build_model(method)
+    conc = model.concentrations(model.nominal_inputs())
+    ids = _calibration_ids(method)
+    xs = [conc[i] for i in ids for _ in method.readings[i]]
+    ys = [a for i in ids for a in method.readings[i]]
+    fit = fit_line(xs, ys)
+    n = len(xs)
+    c = math.sqrt((factor * n - 2) / (factor * (n - 2)))
+    readings = dict(method.readings)
+    for i in ids:
+        line = fit.intercept + fit.slope * conc[i]
+        readings[i] = tuple(line + c * (a - line) for a in method.readings[i]) * factor
+    return replace(method, readings=readings)
+
+
+def _typical_count(method: Method, ids) -> int:
+    return Counter(len(method.readings[i]) for i in ids).most_common(1)[0][0]
+
+
+def with_more_point_readings(method: Method, factor: int = READING_FACTOR) -> Method:
+    """Equilibrium study: every mixture and series point read `factor` times as often (factor x m
+    copies of its mean); the scatter of one reading is assumed to stay the same."""
+    readings = dict(method.readings)
+    for ident in method.equilibrium.point_ids():
+        r = readings[ident]
+        readings[ident] = (sum(r) / len(r),) * (factor * len(r))
+    return replace(method, readings=readings)
+
+
+def reading_candidates(method: Method) -> list[Candidate]:
+    if method.equilibrium is not None:
+        points = method.equilibrium.point_ids()
+        m = _typical_count(method, points)
+        f = READING_FACTOR
+        return [Candidate(
+            "more point readings", f"read every mixture and series point {f} times as often",
+            f"{f - 1} more reading(s) for every reading now taken, on each of the {len(points)} points",
+            "the scatter of one reading stays the same; the mean reading is kept",
+            frozenset({"point readings"}), with_more_point_readings, {"reading_factor": f, "typical_readings": m})]
+    if method.calibration is None:
+        return []
+    out = []
+    f = READING_FACTOR
+    samples = [s.id for s in method.samples]
+    if samples and "c_measured" in method.result.formula.names:
+        m = _typical_count(method, samples)
+        out.append(Candidate(
+            "more sample readings", f"read every sample {f * m} times instead of {m}",
+            f"{(f - 1) * m} more reading(s) of every sample",
+            "the scatter of one reading stays the same; the mean reading is kept",
+            frozenset({"sample readings"}), with_more_sample_readings, {"readings_per_sample": f * m}))
+    ids = _calibration_ids(method)
+    m = _typical_count(method, ids)
+    if method.settings.scatter == "observed":
+        assumed = ("the residual scatter of the line stays the same and the line itself is unchanged; its "
+                   "degrees of freedom grow (lower k). The line's scatter is taken as reading scatter: if it "
+                   "comes from preparing the standards, prepare each standard twice instead")
+    else:
+        assumed = ("each reading carries the photometer's noise; each standard is still prepared once, "
+                   "so its preparation terms stay as they are")
+    out.append(Candidate(
+        "more calibration readings",
+        f"read every calibration solution {f * m} times instead of {m} "
+        f"({f * sum(len(method.readings[i]) for i in ids)} readings on the line)",
+        f"{(f - 1) * m} more reading(s) of each of the {len(ids)} calibration solutions",
+        assumed,
+        frozenset({"calibration readings"}), with_more_calibration_readings,
+        {"readings_per_solution": f * m}))
+    return out
