@@ -71,7 +71,7 @@ def reading_candidates(method: Method) -> list[Candidate]:
         m = _typical_count(method, points)
         f = READING_FACTOR
         return [Candidate(
-            "more point readings", f"read every mixture and series point {f} times as often",
+            "more point readings", f"read every mixture and series point {'twice' if f == 2 else f'{f} times'} as often",
             f"{f - 1} more reading(s) for every reading now taken, on each of the {len(points)} points",
             "the scatter of one reading stays the same; the mean reading is kept",
             frozenset({"point readings"}), with_more_point_readings, {"reading_factor": f, "typical_readings": m})]
