@@ -201,18 +201,19 @@ def mean_reading_term(ss: SourceSet, method: Method, ident: str, scatter, cuvett
     if photometer is not None and photometer.offset > 0:
         offset = ss.add(Source(f"{photometer.id}: photometric offset", 0.0, photometer.offset / 3**0.5,
                                "rectangular", step="photometric reading", equipment=photometer.id,
+                               unit="AU",
                                provenance=f"+/-{photometer.offset:g} absorbance, shared by every reading; "
                                f"{photometer.provenance}"))
     if photometer is not None and photometer.noise > 0 and not observed:
         noise = [ss.add(Source(f"{photometer.id}: noise, {ident} reading {j + 1}", 0.0, photometer.noise,
-                               "normal", step="photometric reading", equipment=photometer.id,
+                               "normal", step="photometric reading", equipment=photometer.id, unit="AU",
                                provenance=f"standard deviation {photometer.noise:g} absorbance per reading; "
                                f"{photometer.provenance}")) for j in range(len(readings))]
     if observed:
         s_abs, dof = scatter
         noise = [ss.add(Source(
             f"calibration scatter, {ident}", 0.0, s_abs / (len(readings) * weight) ** 0.5, "t", dof=dof,
-            step="calibration fit", kind="A", dof_group="calibration line",
+            step="calibration fit", kind="A", dof_group="calibration line", unit="AU",
             provenance=f"residual standard deviation of the line {s_abs:.3g} (absorbance), "
             f"{len(readings)} reading(s), {dof} degrees of freedom (observed scatter; ISO 8466-1, CG4 A5)"))]
     if cell is not None:
