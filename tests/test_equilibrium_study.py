@@ -97,3 +97,12 @@ def test_series_covariance_linear_against_monte_carlo():
     block = np.ix_(series, series)
     assert np.max(np.abs(mc_corr[block] - gum_corr[block])) < 0.05
     assert np.min(gum_corr[block]) > 0.3  # they really are correlated
+
+
+def test_points_carry_their_saturation(tmp_path):
+    # saturation s = [ML] / min([M]0, [L]0); points outside 0.2-0.8 determine K poorly
+    # (Deranleau, J. Am. Chem. Soc. 91 (1969) 4044, from memory) and are flagged
+    run = api.analyse(DEMO / "method.toml", trials=None, advice=False)
+    for p in run.record["equilibrium"]["mixtures"]:
+        assert p["saturation"] == pytest.approx(p["ML"] / min(p["M_total"], p["L_total"]), rel=1e-12)
+        assert (p["saturation_flag"] is None) == (0.2 <= p["saturation"] <= 0.8)

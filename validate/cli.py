@@ -175,6 +175,9 @@ def _print_equilibrium(console: Console, run, top: int) -> None:
         interval = f"[{p['interval'][0]:.4g}, {p['interval'][1]:.4g}]" if p["interval"] else "-"
         table.add_row(p["id"], f"{p['M_total']:.4g}", f"{p['L_total']:.4g}", value, U, interval)
     console.print(table)
+    flagged = [p for p in e["mixtures"] if p.get("saturation_flag")]
+    for p in flagged:
+        console.print(f"  [yellow]note[/] {escape(p['id'])}: {escape(p['saturation_flag'])}", soft_wrap=True)
     by_name = {r.name: (r, mc) for r, mc in zip(run.results, run.monte_carlo or [None] * len(run.results))}
     from validate.equilibrium_model import COMBINED, LOG10
     for label in (COMBINED, LOG10):

@@ -17,6 +17,11 @@ from validate.equilibrium_fit import fit_joint, iterate_standards
 from validate.equilibrium_model import COMBINED, LOG10, EquilibriumModel
 
 
+# A point constrains K best when the complex holds between about 20 % and 80 % of the
+# reagent in deficit (D. A. Deranleau, J. Am. Chem. Soc. 91 (1969) 4044; from memory).
+SATURATION_WINDOW = (0.2, 0.8)
+
+
 def prepare_combination(model: EquilibriumModel):
     """Covariance of the per-point K (linear engine) and the GLS combination; sets model.weights."""
     model.weights = None
@@ -41,7 +46,13 @@ def equilibrium_block(model: EquilibriumModel, results, monte_carlo, combined, v
     points = []
     for p, state, m, l_ in zip(model.points, states, pm, pl):
         r, mc = by_name[f"K, {p}"], mc_by_name.get(f"K, {p}")
+        saturation = float(state.complex_conc / min(m, l_)) if min(m, l_) > 0 else math.nan
         points.append({
+            "saturation": saturation,
+            "saturation_flag": (None if SATURATION_WINDOW[0] <= saturation <= SATURATION_WINDOW[1] else
+                                f"[ML] is {saturation:.0%} of the smaller total: outside {SATURATION_WINDOW[0]:.0%} to "
+                                f"{SATURATION_WINDOW[1]:.0%}, where K is well determined (Deranleau 1969, "
+                                f"from memory)"),
             "id": p, "M_total": m / cu, "L_total": l_ / cu, "ML": state.complex_conc / cu,
             "M_free": state.free_M / cu, "L_free": state.free_L / cu,
             "K": r.value, "u_K": r.standard_uncertainty, "expanded_uncertainty": r.expanded_uncertainty,
