@@ -15,13 +15,13 @@ from validate.calibration import fit_line
 from validate.inputs.errors import InputError
 from validate.inputs.method_file import load_method
 from validate.inputs.schema import Method
-from validate.model import Model, build_model
-from validate.models import build_ready_model
+from validate.model import Model
+from validate.models import build_any_model, build_ready_model
 from validate.propagation.budget import budget_rows, grouped
 from validate.propagation.linear import LinearResult, propagate
 from validate.propagation.montecarlo import McResult, expected_work, new_seed, propagate_mc
 from validate.report.records import budget_csv, record_json, sha256_of, write_atomic
-from validate.validation.record import validation_block
+from validate.validation.record import calibration_data, validation_block
 
 OUTPUT_FILES = ("results.json", "budget.csv", "report.pdf")
 
@@ -42,10 +42,7 @@ class Run:
 def check(path) -> tuple[Method, Model]:
     """Read and check a method file, and build its model (no propagation)."""
     method = load_method(path)
-    if method.equilibrium is not None:
-        from validate.equilibrium_model import build_equilibrium_model
-        return method, build_equilibrium_model(method)
-    return method, build_model(method)
+    return method, build_any_model(method)
 
 
 def analyse(path, trials: int | str | None = 1_000_000, seed: int | None = None,
@@ -74,16 +71,10 @@ def calibration_summary(method: Method, model: Model) -> dict | None:
     cal = method.calibration
     if cal is None:
         return None
-    conc = model.concentrations(model.nominal_inputs())
+    xs, ys, weights = calibration_data(method, model)
     ids = list(cal.standards) + (list(cal.blanks) if cal.blanks_in_fit else [])
-    factor = cal.concentration_unit.factor
-    xs, ys, labels = [], [], []
-    for sid in ids:
-        for a in method.readings[sid]:
-            xs.append(conc[sid] / factor)
-            ys.append(a)
-            labels.append(sid)
-    fit = fit_line(xs, ys)
+    labels = [sid for sid in ids for _ in method.readings[sid]]
+    fit = fit_line(xs, ys, weights)  # the line the model fits: weighted when the method says so
     return {
         "concentration_unit": cal.concentration_unit.text,
         "points": [{"id": i, "concentration": x, "absorbance": y} for i, x, y in zip(labels, xs, ys)],

@@ -73,14 +73,13 @@ def _progress_factory(console: Console):
                        TimeRemainingColumn(), console=console, transient=True)
         task = bar.add_task("trials", total=total)
         bar.start()
+        factory.bars.append(bar)  # stopped by the caller: an adaptive run may end before `total`
 
         def advance(n):
             bar.advance(task, n)
-            if bar.tasks[0].completed >= total:
-                bar.stop()
-        advance.stop = bar.stop
         return advance
 
+    factory.bars = []
     return factory
 
 
@@ -133,8 +132,13 @@ def _check(args, console: Console) -> int:
 
 def _run(args, console: Console) -> int:
     api.check_output_folder(args.out, args.overwrite)
-    run = api.analyse(args.method, trials=args.trials or None, seed=args.seed,
-                      progress_factory=_progress_factory(console), advice=not args.no_advice)
+    progress = _progress_factory(console)
+    try:
+        run = api.analyse(args.method, trials=args.trials or None, seed=args.seed,
+                          progress_factory=progress, advice=not args.no_advice)
+    finally:
+        for bar in getattr(progress, "bars", []):
+            bar.stop()
     written = api.write_outputs(run, args.out, overwrite=args.overwrite, pdf=not args.no_pdf)
     method = run.method
     console.print(f"[bold]{escape(method.title)}[/]")
