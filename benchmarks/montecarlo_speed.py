@@ -25,7 +25,7 @@ import numpy as np
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
-from validate import api  # noqa: E402
+from validate.workflow import pipeline as api  # noqa: E402
 from validate.propagation.distributions import draw_many  # noqa: E402
 from validate.propagation.montecarlo import propagate_mc  # noqa: E402
 
@@ -70,7 +70,7 @@ def loop_rates(method: Path, trials: int) -> tuple[float, float]:
 
 
 def peak_memory_mib(method: Path, trials: int) -> float:
-    code = ("import sys; sys.path.insert(0, %r); from validate import api; "
+    code = ("import sys; sys.path.insert(0, %r); from validate.workflow import pipeline as api; "
             "from validate.propagation.montecarlo import propagate_mc; "
             "r = api.analyse(%r, trials=None); propagate_mc(r.model, r.results, %d, seed=1, shares=False)"
             % (str(ROOT), str(method), trials))

@@ -115,7 +115,8 @@ def test_init_writes_a_starter_that_checks(tmp_path):
 
 def test_interrupted_run_writes_nothing(tmp_path, monkeypatch):
     # Ctrl-C during the computation: a clear line, exit 130, and no output folder
-    from validate import api, cli
+    from validate import cli
+    from validate.workflow import pipeline as api
 
     def interrupted(*args, **kwargs):
         raise KeyboardInterrupt

@@ -17,12 +17,12 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from uncertainties import correlation_matrix, covariance_matrix, ufloat
 
-from validate.equilibrium import (
+from validate.model.ice import (
     addition_series_totals, complex_concentration, complex_concentration_derivative,
     count_undefined, equilibrium_constant, excess_for_fraction, fraction_complexed,
     full_complexation_slope_bias,
 )
-from validate.equilibrium_fit import fit_joint, iterate_standards, line_by_sums
+from validate.model.standards import fit_joint, iterate_standards, line_by_sums
 
 # ---------------------------------------------------------------- helpers
 

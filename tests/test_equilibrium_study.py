@@ -7,8 +7,8 @@ import shutil
 import numpy as np
 import pytest
 
-from validate import api
-from validate.equilibrium import complex_concentration
+from validate.workflow import pipeline as api
+from validate.model.ice import complex_concentration
 from validate.propagation.montecarlo import evaluate_trials
 
 from conftest import DEMOS

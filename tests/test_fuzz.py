@@ -24,7 +24,7 @@ from hypothesis import strategies as st
 from conftest import DEMOS
 from validate.inputs.errors import InputError
 from validate.inputs.method_file import load_method
-from validate.model import ModelError, build_model
+from validate.model.assay import ModelError, build_model
 from validate.propagation.linear import propagate
 
 DEMO = DEMOS / "phosphate_assay"

@@ -16,7 +16,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from uncertainties import ufloat
 
-from validate.calibration import fit_line
+from validate.model.line import fit_line
 from validate.validation.limits import (detection_limits, exact_delta, iso11843_2,
                                         molar_absorptivity, range_flags, sensitivity)
 

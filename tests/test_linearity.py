@@ -22,7 +22,7 @@ from statsmodels.sandbox.stats.runs import runstest_1samp
 from statsmodels.stats.anova import anova_lm
 from statsmodels.stats.outliers_influence import OLSInfluence
 
-from validate.calibration import fit_line
+from validate.model.line import fit_line
 from validate.validation.linearity import (intercept_test, lack_of_fit_test, mandel_test,
                                            point_diagnostics, runs_distribution, runs_test,
                                            weighting_check)

@@ -8,7 +8,7 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from validate import api
+from validate.workflow import pipeline as api
 
 DILUTION = """
 [settings]
@@ -111,7 +111,7 @@ def test_observed_scatter_reproduces_the_inverse_prediction_formula():
     # The model carries the line's scatter as s/sqrt(m) on each mean reading; propagated through
     # the refitted line, the calibration-fit part of the budget must equal that formula.
     from conftest import DEMOS
-    from validate.calibration import fit_line, inverse_prediction
+    from validate.model.line import fit_line, inverse_prediction
 
     run = api.analyse(DEMOS / "phosphate_assay" / "method.toml", trials=None, advice=False)
     method, model = run.method, run.model
@@ -134,7 +134,7 @@ def test_weighted_line_reproduces_the_weighted_inverse_prediction(tmp_path):
     import shutil
 
     from conftest import DEMOS
-    from validate.calibration import fit_line, inverse_prediction
+    from validate.model.line import fit_line, inverse_prediction
 
     folder = tmp_path / "weighted"
     shutil.copytree(DEMOS / "phosphate_assay", folder)

@@ -10,7 +10,7 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from validate import api
+from validate.workflow import pipeline as api
 from validate.propagation.montecarlo import evaluate_trials
 
 from conftest import DEMOS

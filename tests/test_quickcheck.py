@@ -7,7 +7,7 @@ from pathlib import Path
 
 import pytest
 
-from validate.quickcheck import (CellError, DecimalCommaError, MissingColumnError, SampleError,
+from validate.validation.quickcheck import (CellError, DecimalCommaError, MissingColumnError, SampleError,
                                  TableError, TooFewLevelsError, format_quick_check, load_table,
                                  quick_check)
 

@@ -5,8 +5,8 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from validate import api
-from validate.calibration import fit_line
+from validate.workflow import pipeline as api
+from validate.model.line import fit_line
 from validate.propagation.budget import round_gum
 
 from conftest import REFERENCE

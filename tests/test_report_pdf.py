@@ -21,7 +21,8 @@ import pytest
 from pypdf import PdfReader
 
 from conftest import DEMOS
-from validate import advisor, api
+from validate.advisor import advice as advisor
+from validate.workflow import pipeline as api
 from validate.inputs.method_file import load_method
 from validate.propagation import mcstats
 from validate.propagation.budget import round_gum

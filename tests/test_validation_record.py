@@ -9,7 +9,7 @@ import sys
 
 import pytest
 
-from validate import api
+from validate.workflow import pipeline as api
 
 from conftest import DEMOS, REFERENCE
 

@@ -12,10 +12,11 @@ from pathlib import Path
 import pytest
 
 from conftest import DEMOS
-from validate import api
+from validate.workflow import pipeline as api
 from validate.inputs.errors import InputError
-from validate.report import records
-from validate.verify import compare, describe, reproducible_part, store_inputs, verify_record
+from validate.record import files as records
+from validate.record.verify import compare, describe, reproducible_part, store_inputs
+from validate.workflow.verify import verify_record
 
 DEMO = DEMOS / "phosphate_assay"
 SEED = 20240611
@@ -228,8 +229,8 @@ def test_no_temporary_file_is_left_after_a_normal_write(tmp_path):
 def test_equilibrium_demo_record_verifies(tmp_path):
     # issue 8: `validate verify` confirms both demos' records; here the equilibrium study,
     # with few trials (the comparison is of every recorded number, not of their precision)
-    from validate import api
-    from validate.verify import verify_record
+    from validate.workflow import pipeline as api
+    from validate.workflow.verify import verify_record
 
     demo = Path(__file__).resolve().parents[1] / "example_inputs" / "nickel_complex" / "method.toml"
     run = api.analyse(demo, trials=4000, seed=13, advice=False)

@@ -1,4 +1,4 @@
-"""The `validate` command: parses arguments, calls validate.api, prints. No computation here."""
+"""The `validate` command: parses arguments, calls validate.workflow.pipeline, prints. No computation here."""
 
 from __future__ import annotations
 
@@ -10,9 +10,10 @@ from pathlib import Path
 from rich.console import Console
 from rich.markup import escape
 
-from validate import __version__, api
+from validate import __version__
+from validate.workflow import pipeline as api
 from validate.inputs.errors import InputError
-from validate.model import ModelError
+from validate.model.assay import ModelError
 from validate.propagation.budget import grouped, round_gum
 
 EXIT_INPUT = 2
@@ -183,7 +184,7 @@ def _print_equilibrium(console: Console, run, top: int) -> None:
     for p in flagged:
         console.print(f"  [yellow]note[/] {escape(p['id'])}: {escape(p['saturation_flag'])}", soft_wrap=True)
     by_name = {r.name: (r, mc) for r, mc in zip(run.results, run.monte_carlo or [None] * len(run.results))}
-    from validate.equilibrium_model import COMBINED, LOG10
+    from validate.model.equilibrium import COMBINED, LOG10
     for label in (COMBINED, LOG10):
         r, mc = by_name[label]
         _print_result(console, r, mc, top if label == COMBINED else 0)
@@ -298,7 +299,8 @@ def _print_criteria(console: Console, criteria: dict) -> None:
 
 
 def _verify(args, console: Console) -> int:
-    from validate.verify import describe, verify_record
+    from validate.record.verify import describe
+    from validate.workflow.verify import verify_record
     report = verify_record(args.folder)
     for line in describe(report):
         console.print(escape(line), soft_wrap=True)
@@ -308,7 +310,7 @@ def _verify(args, console: Console) -> int:
 def _calibrate(args, console: Console) -> int:
     import json
 
-    from validate.quickcheck import format_quick_check, quick_check
+    from validate.validation.quickcheck import format_quick_check, quick_check
     result = quick_check(args.table, [args.sample] if args.sample else None)
     if args.sample:
         result["sample"] = result["sample"][0]  # the --sample values are replicate readings of one unknown

@@ -35,7 +35,7 @@ import re
 
 from validate.inputs import schema as S
 from validate.inputs.errors import InputError
-from validate.inputs.tables import Table, parse_si, unit_of
+from validate.inputs.tables import Table, parse_delivery as _delivery, parse_si, unit_of
 
 REAGENTS = ("metal", "ligand")
 _PIPETTES = ("one-mark pipette", "graduated pipette", "piston pipette", "burette")
@@ -43,7 +43,6 @@ _PIPETTES = ("one-mark pipette", "graduated pipette", "piston pipette", "burette
 
 def parse_equilibrium(t: Table, method_like, defaults: list[str]) -> S.EquilibriumStudy:
     """`method_like` gives `items` and `solutions` (already parsed)."""
-    from validate.inputs.method_file import _delivery  # one delivery parser for the whole file
 
     t.allow("metal", "ligand", "limiting", "correction", "iterations", "temperature", "ionic_strength",
             "charges", "k_unit", "concentration_unit", "readings", "cuvette", "photometer",

@@ -2,7 +2,7 @@
 
 A formula received from elsewhere must not be able to run code, so it is
 parsed with Python's `ast` module and only numbers, names, + - * / **, unary
-minus and the functions in `validate.mathops.FUNCTIONS` are accepted. The
+minus and the functions in `validate.model.backend.FUNCTIONS` are accepted. The
 parsed formula evaluates on any numeric backend (float, ufloat, array) and on
 `Dimension` objects to check that its result has the declared dimension.
 """
@@ -13,11 +13,13 @@ import ast
 import operator
 from dataclasses import dataclass
 
-from validate import mathops
 
 _BINARY = {ast.Add: operator.add, ast.Sub: operator.sub, ast.Mult: operator.mul,
            ast.Div: operator.truediv, ast.Pow: operator.pow}
 _UNARY = {ast.USub: operator.neg, ast.UAdd: operator.pos}
+# The elementary functions a formula may call; the model's numeric backend supplies them
+# for every engine (validate.model.backend.FUNCTIONS has exactly these names).
+FUNCTION_NAMES = frozenset({"sqrt", "log", "ln", "log10", "exp"})
 
 
 class FormulaError(ValueError):
@@ -30,9 +32,10 @@ class Formula:
     tree: ast.Expression
     names: frozenset[str]
 
-    def evaluate(self, values: dict, functions=None):
-        """Evaluate with `values` (name -> number of any backend)."""
-        return _evaluate(self.tree.body, values, functions or mathops.FUNCTIONS)
+    def evaluate(self, values: dict, functions: dict):
+        """Evaluate with `values` (name -> number of any backend) and `functions`
+        (name -> the backend's elementary function, for every name in FUNCTION_NAMES)."""
+        return _evaluate(self.tree.body, values, functions)
 
 
 def parse_formula(text: str) -> Formula:
@@ -53,13 +56,13 @@ def parse_formula(text: str) -> Formula:
         if isinstance(node, ast.Constant) and type(node.value) in (int, float):
             continue
         if isinstance(node, ast.Name):
-            if node.id not in mathops.FUNCTIONS:
+            if node.id not in FUNCTION_NAMES:
                 names.add(node.id)
             continue
         if isinstance(node, ast.Call) and isinstance(node.func, ast.Name) \
-                and node.func.id in mathops.FUNCTIONS and len(node.args) == 1 and not node.keywords:
+                and node.func.id in FUNCTION_NAMES and len(node.args) == 1 and not node.keywords:
             continue
-        allowed = ", ".join(sorted(mathops.FUNCTIONS))
+        allowed = ", ".join(sorted(FUNCTION_NAMES))
         raise FormulaError(
             f"'{ast.unparse(node) if hasattr(ast, 'unparse') else type(node).__name__}' is not allowed; "
             f"a formula may use numbers, names, + - * / ** and the functions {allowed}")
@@ -152,6 +155,6 @@ def _dimensionless_only(name):
 def result_dimension(formula: Formula, dims: dict[str, tuple[int, ...]]) -> tuple[int, ...]:
     """The dimension of the formula's result, given each name's dimension."""
     values = {name: Dimension(tuple(d)) for name, d in dims.items()}
-    funcs = {name: _dimensionless_only(name) for name in mathops.FUNCTIONS}
+    funcs = {name: _dimensionless_only(name) for name in FUNCTION_NAMES}
     result = formula.evaluate(values, funcs)
     return _as_dim(result).dims

@@ -11,14 +11,14 @@ import tomllib
 from pathlib import Path
 
 from validate.inputs import schema as S
-from validate.inputs.consistency import check_calibration_data, check_ids
+from validate.inputs.consistency import check_ids
 from validate.inputs.errors import InputError
 from validate.inputs.formula import FormulaError, parse_formula, result_dimension
 from validate.inputs.readings import load_reading_series, load_readings, read_text_file
-from validate.inputs.tables import Table, parse_uncertain, unit_of
+from validate.inputs.tables import Table, parse_delivery as _delivery, parse_uncertain, unit_of
 from validate.inputs.units import describe_dims
 from validate.inputs.validation_settings import parse_validation
-from validate.metrology.registers import classes_for, find_entry, load_registers
+from validate.inputs.registers import classes_for, find_entry, load_registers
 
 VOLUME = (0, 3, 0, 0)
 MASS = (1, 0, 0, 0)
@@ -75,7 +75,6 @@ def load_method(path) -> S.Method:
         readings = load_readings(readings_path)
         series = load_reading_series(readings_path)
         _check_readings(readings, calibration, samples, solutions, readings_path, notes)
-        check_calibration_data(calibration, solutions, readings, path, readings_path)
     equilibrium, eq_readings_path = None, None
     if top.has("equilibrium"):
         from validate.inputs.equilibrium_file import check_equilibrium_readings, parse_equilibrium
@@ -212,35 +211,6 @@ def _item(item_id: str, t: Table, entries, settings: S.Settings, defaults: list[
                   offset=values.get("offset", 0.0), noise=values.get("noise", 0.0),
                   linearity=values.get("linearity", 0.0), provenance=provenance,
                   defaults_used=tuple(used))
-
-
-def _delivery(raw, t: Table, key: str, items, kinds) -> S.Delivery:
-    if isinstance(raw, str):
-        item_id, volume = raw, None
-    elif isinstance(raw, dict):
-        sub = Table(raw, t.file, f"{t.where}.{key}")
-        sub.allow("item", "volume")
-        item_id = sub.text("item", required=True)
-        volume = sub.quantity("volume", VOLUME)[0] if sub.has("volume") else None
-    else:
-        raise t.error("expected an equipment id, or {item = \"...\", volume = \"... mL\"}", key,
-                      fix='e.g. aliquot = "pipette_5" or aliquot = { item = "burette_25", volume = "2.00 mL" }')
-    if item_id not in items:
-        raise t.error(f"unknown equipment `{item_id}`", key,
-                      fix=f"define [equipment.{item_id}] or use one of: {', '.join(items) or '(none defined)'}")
-    item = items[item_id]
-    if item.kind not in kinds:
-        raise t.error(f"`{item_id}` is a {item.kind}; here a {' or '.join(kinds)} is needed", key,
-                      fix=f"name a {' or '.join(kinds)} defined under [equipment]")
-    if volume is None:
-        volume = item.nominal
-    if volume > item.nominal * (1 + 1e-9):
-        raise t.error(f"the volume is larger than the {item.kind}'s nominal volume", key,
-                      fix="give the volume delivered, within the nominal volume, or name a larger item")
-    if item.kind in ("one-mark pipette", "volumetric flask") and abs(volume - item.nominal) > 1e-9 * item.nominal:
-        raise t.error(f"a {item.kind} delivers only its nominal volume", key,
-                      fix="leave out `volume`, or use a graduated or piston pipette or a burette")
-    return S.Delivery(item_id, volume)
 
 
 _PIPETTES = ("one-mark pipette", "graduated pipette", "piston pipette", "burette")

@@ -11,6 +11,7 @@ VOLUMETRIC_KINDS = ("one-mark pipette", "graduated pipette", "piston pipette", "
                     "volumetric flask")
 EQUIPMENT_KINDS = VOLUMETRIC_KINDS + ("cuvette", "photometer", "balance")
 SOLUTION_ORIGINS = ("weighing", "certificate", "dilution", "blank")
+DISTRIBUTIONS = ("normal", "rectangular", "triangular", "t", "trapezoid")
 
 
 @dataclass(frozen=True)

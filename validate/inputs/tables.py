@@ -7,8 +7,7 @@ import math
 
 from validate.inputs.errors import InputError
 from validate.inputs.units import Unit, UnitError, describe_dims, parse_quantity, parse_unit
-from validate.inputs.schema import UncertainValue
-from validate.metrology.sources import DISTRIBUTIONS
+from validate.inputs.schema import DISTRIBUTIONS, Delivery, UncertainValue
 
 
 class Table:
@@ -207,3 +206,33 @@ def unit_of(table: Table, key: str, dims=None) -> Unit:
                           f"{describe_dims(tuple(dims))} is needed", key,
                           fix=f"give a unit of {describe_dims(tuple(dims))}")
     return unit
+
+
+def parse_delivery(raw, t: Table, key: str, items, kinds) -> Delivery:
+    """An item named alone (its nominal volume) or {item, volume}: checked against the item's kind."""
+    if isinstance(raw, str):
+        item_id, volume = raw, None
+    elif isinstance(raw, dict):
+        sub = Table(raw, t.file, f"{t.where}.{key}")
+        sub.allow("item", "volume")
+        item_id = sub.text("item", required=True)
+        volume = sub.quantity("volume", (0, 3, 0, 0))[0] if sub.has("volume") else None
+    else:
+        raise t.error("expected an equipment id, or {item = \"...\", volume = \"... mL\"}", key,
+                      fix='e.g. aliquot = "pipette_5" or aliquot = { item = "burette_25", volume = "2.00 mL" }')
+    if item_id not in items:
+        raise t.error(f"unknown equipment `{item_id}`", key,
+                      fix=f"define [equipment.{item_id}] or use one of: {', '.join(items) or '(none defined)'}")
+    item = items[item_id]
+    if item.kind not in kinds:
+        raise t.error(f"`{item_id}` is a {item.kind}; here a {' or '.join(kinds)} is needed", key,
+                      fix=f"name a {' or '.join(kinds)} defined under [equipment]")
+    if volume is None:
+        volume = item.nominal
+    if volume > item.nominal * (1 + 1e-9):
+        raise t.error(f"the volume is larger than the {item.kind}'s nominal volume", key,
+                      fix="give the volume delivered, within the nominal volume, or name a larger item")
+    if item.kind in ("one-mark pipette", "volumetric flask") and abs(volume - item.nominal) > 1e-9 * item.nominal:
+        raise t.error(f"a {item.kind} delivers only its nominal volume", key,
+                      fix="leave out `volume`, or use a graduated or piston pipette or a burette")
+    return Delivery(item_id, volume)

@@ -7,10 +7,39 @@ import math
 from validate.inputs import schema as S
 from validate.inputs.tables import Table
 
+COMMON = "common practice; set it from the requirements that apply to the method"
+
+# setting key -> (plain name, observed key, comparison, default, unit, source)
+CRITERIA = {
+    "min_r_squared": ("coefficient of determination r^2", "r_squared", ">=", 0.995, "",
+                      COMMON + " (ICH Q2(R1) asks only that r be reported)"),
+    "max_abs_relative_residual": ("largest |residual| / fitted value of the standards",
+                                  "max_abs_relative_residual", "<=", 5.0, "%", COMMON),
+    "min_linearity_p_value": ("smallest p value of the lack-of-fit and Mandel tests",
+                              "min_linearity_p_value", ">=", 0.05, "",
+                              "5 % significance level, " + COMMON),
+    "max_relative_expanded_uncertainty": ("relative expanded uncertainty of the result",
+                                          "relative_expanded_uncertainty", "<=", None, "%",
+                                          "no general default: the fitness-for-purpose target "
+                                          "of the method (EURACHEM guide 'The Fitness for "
+                                          "Purpose of Analytical Methods')"),
+    "max_loq": ("limit of quantitation", "loq", "<=", None, "concentration unit",
+                "no general default: the lowest level the method must quantify"),
+    "recovery_range": ("recovery against the reference value", "recovery_percent", "within",
+                       (95.0, 105.0), "%", COMMON),
+    "max_abs_en": ("|E_n| against the reference value", "en_number", "|x| <=", 1.0, "",
+                   "ISO 13528:2015 and ISO/IEC 17043:2010: |E_n| <= 1 satisfactory"),
+    "max_repeatability_rsd": ("repeatability relative SD", "repeatability_rsd_percent", "<=",
+                              None, "%", "no general default: set from the method's needs"),
+}
+
+DEFAULTS = {key: spec[3] for key, spec in CRITERIA.items()}
+
+# The routes to the limits of detection and quantitation (validate.validation.limits computes them).
+ROUTES = ("ich_residual_sd", "ich_intercept_sd", "ich_blank_sd", "iso11843_2")
+
 
 def parse_validation(top: Table, method: S.Method, result: S.ResultSpec, defaults: list[str]) -> S.ValidationSettings:
-    from validate.validation.criteria import CRITERIA, DEFAULTS
-    from validate.validation.limits import ROUTES
     t = Table(top.get("validation", {}), top.file, "[validation]")
     t.allow("declared_limit", "alpha", "beta", "absorbance_window", "reference_sample", "reference_value")
     base = S.ValidationSettings()

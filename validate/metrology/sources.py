@@ -16,7 +16,7 @@ from __future__ import annotations
 import math
 from dataclasses import asdict, dataclass
 
-DISTRIBUTIONS = ("normal", "rectangular", "triangular", "t", "trapezoid")
+from validate.inputs.schema import DISTRIBUTIONS  # noqa: F401 (the names a distribution may have)
 
 
 @dataclass(frozen=True)

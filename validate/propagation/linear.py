@@ -16,7 +16,7 @@ from scipy import stats
 from uncertainties import ufloat
 from uncertainties.core import AffineScalarFunc
 
-from validate.model import Model, ModelError
+from validate.model.assay import Model, ModelError
 
 
 @dataclass(frozen=True)

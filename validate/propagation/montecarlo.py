@@ -17,7 +17,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from validate.model import Model
+from validate.model.assay import Model
 from validate.propagation.distributions import draw_many
 from validate.propagation.linear import LinearResult
 from validate.propagation.mcstats import (AdaptiveCheck, GumValidation, HistogramData, McSummary,

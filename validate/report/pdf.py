@@ -177,7 +177,7 @@ def _check_record(record) -> None:
     missing = [key for key in ("method", "run", "results") if key not in record]
     if missing:
         raise ValueError(f"the record lacks {', '.join(missing)}; pass the dict that "
-                         "validate.api.build_record returns")
+                         "validate.workflow.pipeline.build_record returns")
 
 
 def build_report(record: dict, path: Path) -> ReportInfo:

@@ -14,7 +14,7 @@ import io
 from reportlab.lib.utils import ImageReader
 from reportlab.platypus import Image, KeepTogether, Paragraph
 
-from validate.equilibrium_model import COMBINED as COMBINED_K
+from validate.model.equilibrium import COMBINED as COMBINED_K
 from validate.propagation.budget import round_gum
 from validate.report import figures
 from validate.report.style import (BAD, DASH, FRAME_WIDTH, GOOD, data_table, dof, gap, heading,

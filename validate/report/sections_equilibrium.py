@@ -12,7 +12,7 @@ from __future__ import annotations
 
 import re
 
-from validate.equilibrium_model import COMBINED, LOG10
+from validate.model.equilibrium import COMBINED, LOG10
 from validate.report import figures_equilibrium
 from validate.report.sections import coloured, figure_block, rounded
 from validate.report.sections_uncertainty import interval_text, mc_decimals

@@ -13,7 +13,7 @@ from __future__ import annotations
 from reportlab.lib.units import mm
 from reportlab.platypus import CondPageBreak, Table, TableStyle
 
-from validate.equilibrium_model import COMBINED, LOG10
+from validate.model.equilibrium import COMBINED, LOG10
 from validate.report.sections import (coloured, criteria_block, monte_carlo_line, result_rows,
                                       rounded, u_decimals)
 from validate.report.sections_equilibrium import (k_unit, point_interval,

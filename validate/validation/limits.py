@@ -16,7 +16,8 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import optimize, stats
 
-from validate.calibration import LineFit, fit_line
+from validate.inputs.validation_settings import ROUTES  # noqa: F401 (the limit routes)
+from validate.model.line import LineFit, fit_line
 from validate.validation.linearity import negligible, plain
 
 
@@ -85,7 +86,6 @@ def molar_absorptivity(fit: LineFit, path_length_cm: float,
 # --------------------------------------------------------------------------
 # Detection and quantitation limits
 
-ROUTES = ("ich_residual_sd", "ich_intercept_sd", "ich_blank_sd", "iso11843_2")
 
 ICH_SOURCE = "ICH Q2(R1), sections 6.3 and 7.3: LOD = 3.3 sigma/S, LOQ = 10 sigma/S, S = slope; "
 

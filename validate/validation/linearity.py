@@ -1,6 +1,6 @@
 """Linearity of a straight-line calibration: residual diagnostics and tests.
 
-Every function takes a `LineFit` from `validate.calibration` (ordinary or
+Every function takes a `LineFit` from `validate.model.line` (ordinary or
 weighted) and returns a frozen dataclass with `to_dict()`, a plain-words
 `verdict` and a `source` naming the published formula. Weighted fits are
 handled with the fit's normalised weights (sum w = n): residuals are scaled
@@ -15,7 +15,7 @@ from dataclasses import asdict, dataclass, fields, is_dataclass
 import numpy as np
 from scipy import stats
 
-from validate.calibration import LineFit
+from validate.model.line import LineFit
 
 
 def plain(value):

@@ -7,7 +7,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from validate.calibration import LineFit, fit_line
+from validate.model.line import LineFit, fit_line
 from validate.validation.limits import (DetectionLimits, MolarAbsorptivity, Sensitivity,
                                         detection_limits, molar_absorptivity, sensitivity)
 from validate.validation.linearity import (PointDiagnostics, SignificanceTest, linearity_tests,

@@ -12,9 +12,10 @@ import math
 
 from uncertainties import covariance_matrix, ufloat
 
-from validate.equilibrium_combine import combine_correlated, davies_activity_correction, trend_test
-from validate.equilibrium_fit import fit_joint, iterate_standards
-from validate.equilibrium_model import COMBINED, LOG10, EquilibriumModel
+from validate.equilibrium.combine import combine_correlated, davies_activity_correction, trend_test
+from validate.model.standards import fit_joint, iterate_standards
+from validate.model.build import build
+from validate.model.equilibrium import COMBINED, LOG10, EquilibriumModel
 
 
 # A point constrains K best when the complex holds between about 20 % and 80 % of the
@@ -33,6 +34,17 @@ def prepare_combination(model: EquilibriumModel):
     combined = combine_correlated(values, cov) if len(values) > 1 else None
     model.weights = list(combined.weights) if combined else [1.0]
     return combined, values, cov
+
+
+def build_ready_model(method):
+    """(model, combination). An assay's model as it is; for an equilibrium study the
+    per-point K covariance is computed first and the combined K's weights fixed, so
+    both engines evaluate the same combined estimator (combination: GLS result,
+    K values, covariance)."""
+    model = build(method)
+    if not isinstance(model, EquilibriumModel):
+        return model, None
+    return model, prepare_combination(model)
 
 
 def equilibrium_block(model: EquilibriumModel, results, monte_carlo, combined, values, cov) -> dict:

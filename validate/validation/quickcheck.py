@@ -16,7 +16,7 @@ from pathlib import Path
 
 import numpy as np
 
-from validate.calibration import inverse_prediction
+from validate.model.line import inverse_prediction
 from validate.inputs.errors import InputError
 from validate.validation.limits import range_flags
 from validate.validation.linearity import plain

@@ -1,6 +1,6 @@
 """What to improve first: which change to the method lowers the expanded uncertainty most.
 
-Candidate changes (validate.advisor_candidates) come from the budget and the
+Candidate changes (validate.advisor.candidates) come from the budget and the
 equipment registers. Each is evaluated by building the what-if variant of the
 method and running the same model through the linear engine (GUM law of
 propagation, Welch-Satterthwaite, k from the t distribution), so a change
@@ -33,14 +33,16 @@ import math
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from validate.advisor_candidates import Candidate, Shares, generate
-from validate.calibration import fit_line
+from validate.advisor.candidates import (Candidate, Shares, class_candidates, input_value_candidates,
+                                         piston_candidates, temperature_candidates, volume_pair_candidates)
+from validate.advisor.readings import reading_candidates
+from validate.model.line import fit_line
 from validate.inputs.errors import InputError
 from validate.inputs.schema import Method
-from validate.metrology.registers import load_registers
-from validate.equilibrium_model import COMBINED
-from validate.model import Model, ModelError
-from validate.models import build_ready_model
+from validate.inputs.registers import RegisterEntry, load_registers
+from validate.model.equilibrium import COMBINED
+from validate.model.assay import Model, ModelError
+from validate.equilibrium.study import build_ready_model
 from validate.propagation.linear import LinearResult, propagate
 from validate.propagation.montecarlo import propagate_mc
 from validate.validation.window import OPTIMUM_ABSORBANCE, relative_error_factor
@@ -51,6 +53,18 @@ RELATIVE = "relative (U/|y|)"
 WORST = "largest relative U over results"
 RANKING = ("ranked by the expanded uncertainty after the change, ascending; with several results the "
            "figure is the largest relative expanded uncertainty U/|y| over the results")
+
+
+
+def generate(method: Method, shares: Shares, entries: list[RegisterEntry]) -> list[Candidate]:
+    """Every candidate change worth evaluating for this method and budget."""
+    out = class_candidates(method, shares, entries)
+    out += piston_candidates(method, shares, entries)
+    out += volume_pair_candidates(method, shares, entries)
+    out += reading_candidates(method)
+    out += temperature_candidates(method, shares)
+    out += input_value_candidates(method, shares)
+    return out
 
 
 def _dof(x: float):

@@ -29,8 +29,8 @@ import numpy as np
 from scipy import optimize
 from uncertainties.core import AffineScalarFunc
 
-from validate import mathops
-from validate.equilibrium import (
+from validate.model import backend as mathops
+from validate.model.ice import (
     IceTable, complex_concentration, complex_concentration_derivative, count_undefined,
     describe_value, equilibrium_constant, fraction_complexed,
 )

@@ -1,4 +1,4 @@
-"""Candidate changes for the improvement advisor (validate.advisor).
+"""Candidate changes for the improvement advisor (validate.advisor.advice).
 
 A candidate is a change a laboratory could make, in plain words, with what it
 costs in work, and a function Method -> Method that builds the what-if variant
@@ -36,7 +36,7 @@ from typing import Callable
 
 from validate.inputs.schema import VOLUMETRIC_KINDS, Delivery, Item, Method
 from validate.metrology.equipment import TEMPERATURE
-from validate.metrology.registers import RegisterEntry
+from validate.inputs.registers import RegisterEntry
 from validate.propagation.budget import grouped
 from validate.propagation.linear import LinearResult
 
@@ -83,17 +83,6 @@ class Shares:
 
 def _ml(volume: float) -> str:
     return f"{volume / ML:g} mL"
-
-
-def generate(method: Method, shares: Shares, entries: list[RegisterEntry]) -> list[Candidate]:
-    """Every candidate change worth evaluating for this method and budget."""
-    out = class_candidates(method, shares, entries)
-    out += piston_candidates(method, shares, entries)
-    out += volume_pair_candidates(method, shares, entries)
-    out += reading_candidates(method)  # noqa: F821 (imported at the end: it needs Candidate)
-    out += temperature_candidates(method, shares)
-    out += input_value_candidates(method, shares)
-    return out
 
 
 # ---- equipment ----
@@ -324,8 +313,3 @@ def input_value_candidates(method: Method, shares: Shares) -> list[Candidate]:
             "its distribution and degrees of freedom are kept (conservative when it rests on replicates)",
             frozenset({f"source:{source}"}), apply, {"source": source}))
     return out
-
-
-# The reading candidates live in their own module; imported last because they use Candidate.
-from validate.advisor_readings import (reading_candidates, with_more_calibration_readings,  # noqa: E402
-                                       with_more_point_readings, with_more_sample_readings)

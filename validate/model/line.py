@@ -4,7 +4,7 @@ Formulas: ordinary least squares and the inverse-prediction (observed-scatter)
 uncertainty as in ISO 8466-1 and the EURACHEM/CITAC Guide CG4, Example A5;
 weighted least squares with weights normalised to a mean of one (Miller and
 Miller, Statistics and Chemometrics for Analytical Chemistry, section 5.10).
-The model of the measurement (`validate.model`) refits the line generically
+The model of the measurement (`validate.model.assay`) refits the line generically
 for the two engines; this module serves reporting and validation statistics.
 """
 

@@ -11,17 +11,18 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from validate import __version__
-from validate.calibration import fit_line
+from validate.model.line import fit_line
 from validate.inputs.errors import InputError
 from validate.inputs.method_file import load_method
 from validate.inputs.schema import Method
-from validate.model import Model
-from validate.models import build_any_model, build_ready_model
+from validate.model.assay import Model
+from validate.equilibrium.study import build_ready_model
+from validate.model.build import build
 from validate.propagation.budget import budget_rows, grouped
 from validate.propagation.linear import LinearResult, propagate
 from validate.propagation.montecarlo import McResult, expected_work, new_seed, propagate_mc
-from validate.report.records import budget_csv, record_json, sha256_of, write_atomic
-from validate.validation.record import calibration_data, validation_block
+from validate.record.files import budget_csv, record_json, sha256_of, write_atomic
+from validate.validation.block import calibration_data, validation_block
 
 OUTPUT_FILES = ("results.json", "budget.csv", "report.pdf")
 
@@ -33,7 +34,7 @@ class Run:
     results: list[LinearResult]
     monte_carlo: list[McResult] = field(default_factory=list)
     combination: tuple | None = None  # equilibrium studies: (GLS combination, K values, covariance)
-    advice: object | None = None  # validate.advisor.AdviceReport
+    advice: object | None = None  # validate.advisor.advice.AdviceReport
     seed: int | None = None
     trials: int | str | None = None
     record: dict = field(default_factory=dict)
@@ -42,7 +43,7 @@ class Run:
 def check(path) -> tuple[Method, Model]:
     """Read and check a method file, and build its model (no propagation)."""
     method = load_method(path)
-    return method, build_any_model(method)
+    return method, build(method)
 
 
 def analyse(path, trials: int | str | None = 1_000_000, seed: int | None = None,
@@ -59,7 +60,7 @@ def analyse(path, trials: int | str | None = 1_000_000, seed: int | None = None,
         progress = progress_factory(expected_work(trials, model)) if progress_factory else None
         run.monte_carlo = propagate_mc(model, results, trials, run.seed, progress=progress)
     if advice:
-        from validate.advisor import advise
+        from validate.advisor.advice import advise
         run.advice = advise(method, results, seed=run.seed if run.seed is not None else 1,
                             confirm_with_mc=3 if trials else 0)
     run.record = build_record(run)
@@ -94,8 +95,8 @@ def build_record(run: Run) -> dict:
     validation = validation_block(method, run.model, results) if method.calibration else None
     equilibrium = None
     if method.equilibrium is not None:
-        from validate.equilibrium_record import equilibrium_block
-        from validate.validation.record import equilibrium_validation_block
+        from validate.equilibrium.study import equilibrium_block
+        from validate.validation.block import equilibrium_validation_block
         equilibrium = equilibrium_block(run.model, results, run.monte_carlo, *run.combination)
         validation = equilibrium_validation_block(run.model)
     flags = (validation or {}).get("range_flags", {})
@@ -156,7 +157,7 @@ def write_outputs(run: Run, out_dir, overwrite: bool = False, pdf: bool = True) 
     written whole and moved into place, so a failure never leaves a half-written record."""
     import os
 
-    from validate.verify import store_inputs
+    from validate.record.verify import store_inputs
 
     out = Path(out_dir)
     check_output_folder(out, overwrite)

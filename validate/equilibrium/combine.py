@@ -18,8 +18,8 @@ from dataclasses import asdict, dataclass
 import numpy as np
 from scipy import linalg, stats
 
-from validate import mathops
-from validate.equilibrium import describe_value
+from validate.model import backend as mathops
+from validate.model.ice import describe_value
 
 LN10 = math.log(10.0)
 

@@ -3,15 +3,15 @@
 Every function here is generic over the numeric backend: its arguments may be
 plain floats, `uncertainties` numbers (linear engine) or numpy arrays of
 Monte Carlo trials of shape (N,). Only arithmetic operators and
-`validate.mathops` functions touch the values: there is no `if` on a value
+`validate.model.backend` functions touch the values: there is no `if` on a value
 and no loop over trials, so one code path serves both engines and a source
 used twice (one stock, one pipette) stays one object, hence correlated.
 
 Units: concentrations in any one consistent unit (mol/L, mmol/L, mol/m^3);
 K = [ML]/([M][L]) is then in the reciprocal of that unit.
 
-Related modules: `validate.equilibrium_fit` corrects standards that are not
-fully complexed; `validate.equilibrium_combine` combines correlated K values
+Related modules: `validate.model.standards` corrects standards that are not
+fully complexed; `validate.equilibrium.combine` combines correlated K values
 and applies an activity correction.
 """
 
@@ -22,7 +22,7 @@ from dataclasses import dataclass
 import numpy as np
 from uncertainties.core import AffineScalarFunc
 
-from validate import mathops
+from validate.model import backend as mathops
 
 
 def complex_concentration(K, M_total, L_total):

@@ -1,8 +1,8 @@
-"""Check a filed quality record: are its inputs unchanged, and does it still reproduce?
+"""The parts of checking a filed quality record that need no re-run.
 
 `store_inputs` keeps a copy of every input file beside the record (DIR/inputs/, names and
 relative folders kept, so the stored method still finds its readings table). Later,
-`verify_record` checks each stored copy against the SHA-256 the record holds, re-runs the
+`validate.workflow.verify.verify_record` checks each stored copy against the SHA-256 the record holds, re-runs the
 stored method with the recorded seed and number of Monte Carlo trials, and compares the
 record's `results` and `budget` number by number. The run metadata (record id, date) under
 `run` is not compared: it differs between any two runs by design.
@@ -19,8 +19,7 @@ from pathlib import Path
 
 from validate import __version__
 from validate.inputs.errors import InputError
-from validate.model import ModelError
-from validate.report.records import record_json, sha256_of, write_atomic
+from validate.record.files import record_json, sha256_of, write_atomic
 
 INPUTS_FOLDER = "inputs"
 RECORD_FILE = "results.json"
@@ -155,39 +154,6 @@ def compare(recorded, recomputed, path: str = "") -> tuple[list[Mismatch], int]:
 
 def _is_number(value) -> bool:
     return isinstance(value, (int, float)) and not isinstance(value, bool)
-
-
-def verify_record(out_dir) -> VerifyReport:
-    """Check the stored inputs against their SHA-256 and re-run the stored method."""
-    from validate import api  # here, not at the top: the pipeline may one day call store_inputs
-
-    folder = Path(out_dir)
-    record = _read_record(folder)
-    entries = record.get("inputs") or []
-    checks = tuple(_check_input(folder, entry) for entry in entries)
-    if not checks or not any(c.stored_sha256 for c in checks):
-        raise InputError("this record has no stored copies of its input files, so it cannot be re-run",
-                         file=folder / RECORD_FILE, where="inputs",
-                         fix=f"records keep their inputs in {folder / INPUTS_FOLDER}; run the method again "
-                             f"to make a record that can be verified")
-    mc = record.get("monte_carlo_settings") or {}
-    trials, seed = mc.get("trials"), mc.get("seed")
-    method_file = folder / _method_entry(record, checks).stored
-    try:
-        run = api.analyse(method_file, trials=trials, seed=seed, advice=False)
-    except (InputError, ModelError) as exc:
-        message = exc.message() if isinstance(exc, InputError) else str(exc)
-        return VerifyReport(str(folder), _record_id(record), checks, trials, seed, message, 0, (),
-                            _recorded_version(record))
-    redone = json.loads(record_json(run.record))  # the same JSON form as the filed record
-    old, new = reproducible_part(record), reproducible_part(redone)
-    mismatches, count = [], 0
-    for section in COMPARED_SECTIONS:
-        found, n = compare(old.get(section), new.get(section), section)
-        mismatches += found
-        count += n
-    return VerifyReport(str(folder), _record_id(record), checks, trials, seed, None, count, tuple(mismatches),
-                        _recorded_version(record))
 
 
 def _read_record(folder: Path) -> dict:

@@ -1,5 +1,5 @@
 """Advisor candidates that add readings: of the samples, of the calibration solutions, or of
-an equilibrium study's mixtures and series points (see validate.advisor_candidates)."""
+an equilibrium study's mixtures and series points (see validate.advisor.candidates)."""
 
 from __future__ import annotations
 
@@ -7,10 +7,10 @@ import math
 from collections import Counter
 from dataclasses import replace
 
-from validate.advisor_candidates import READING_FACTOR, Candidate
-from validate.calibration import fit_line
+from validate.advisor.candidates import READING_FACTOR, Candidate
+from validate.model.line import fit_line
 from validate.inputs.schema import Method
-from validate.model import build_model
+from validate.model.assay import build_model
 
 
 def _calibration_ids(method: Method) -> list[str]:

@@ -17,7 +17,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
-from validate.calibration import fit_line, inverse_prediction
+from validate.model import backend
+from validate.model.line import fit_line, inverse_prediction
 from validate.inputs.schema import Method
 from validate.metrology.equipment import SourceSet, balance_terms, exact_or, value_source, volume_term
 from validate.metrology.sources import Source
@@ -25,6 +26,9 @@ from validate.metrology.sources import Source
 
 class ModelError(ValueError):
     """The data do not allow the model to give a result (e.g. a flat line)."""
+
+
+MIN_LEVELS = 3  # distinct concentrations for a line with a residual scatter (n - 2 >= 1)
 
 
 class SolutionInputs:
@@ -91,7 +95,7 @@ class Model(SolutionInputs):
             if sample is not None:
                 intercept, slope = line
                 values["c_measured"] = (self._sample_terms[sample.id](x) - intercept) / slope
-            results[label] = self.method.result.formula.evaluate(values) / factor
+            results[label] = self.method.result.formula.evaluate(values, backend.FUNCTIONS) / factor
         return results
 
 
@@ -118,6 +122,7 @@ def build_model(method: Method) -> Model:
                 "calibration scatter built bottom-up: every reading and every use of glassware "
                 "carries its own random term; no term for the line's observed scatter is added")
         ids = list(cal.standards) + (list(cal.blanks) if cal.blanks_in_fit else [])
+        check_calibration_data(method, ids, model.concentrations(model.nominal_inputs()))
         if cal.weighting == "inverse-variance":
             model.weights = level_weights(model, ids, samples)
             model.assumptions.append(
@@ -133,6 +138,37 @@ def build_model(method: Method) -> Model:
     for q in method.quantities.values():
         model._quantity_terms[q.name] = _quantity_term(ss, method, q, samples)
     return model
+
+
+def check_calibration_data(method: Method, ids: list[str], conc: dict[str, float]) -> None:
+    """At least MIN_LEVELS distinct concentrations (InputError, exit 2), and a line that
+    rises with concentration (a data problem: ModelError, exit 3)."""
+    from pathlib import Path
+
+    from validate.inputs.errors import InputError
+
+    cal = method.calibration
+    path = method.path
+    readings_path = Path(method.path).parent / cal.readings_file
+    unit = cal.concentration_unit
+    levels = sorted({float(f"{conc[i] / unit.factor:.9g}") for i in ids})  # equal to 9 digits
+    if len(levels) < MIN_LEVELS:
+        shown = ", ".join(f"{x:g}" for x in levels)
+        raise InputError(f"the calibration points have only {len(levels)} distinct concentration(s) "
+                         f"({shown} {unit.text}); a line needs at least {MIN_LEVELS}", file=path,
+                         where="[calibration].standards",
+                         fix="prepare the standards at different concentrations (5 to 7 levels over the "
+                             "working range is common practice)")
+    xs = [conc[i] / unit.factor for i in ids for _ in method.readings[i]]
+    ys = [a for i in ids for a in method.readings[i]]
+    slope = fit_line(xs, ys).slope
+    if not slope > 0:
+        raise ModelError(
+            f"{readings_path}, readings of the standards: the absorbance falls as the concentration rises "
+            f"(fitted slope {slope:.3g} absorbance per {unit.text}); a Beer-Lambert calibration line rises, "
+            f"so no result is reported\n  what to do: check that every reading is under the right id "
+            f"(rows swapped between standards?) and that the preparation of the standards in {path} "
+            f"matches the solutions measured; methods read as a loss of absorbance are not supported")
 
 
 def solution_order(solutions: dict) -> list:
