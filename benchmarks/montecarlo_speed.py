@@ -25,9 +25,9 @@ import numpy as np
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
-from validate.workflow import pipeline as api  # noqa: E402
 from validate.propagation.distributions import draw_many  # noqa: E402
 from validate.propagation.montecarlo import propagate_mc  # noqa: E402
+from validate.workflow import pipeline as api  # noqa: E402
 
 DEFAULT = ROOT / "example_inputs" / "phosphate_assay" / "method.toml"
 

@@ -8,17 +8,17 @@ import math
 from pathlib import Path
 
 import pytest
+from conftest import DEMOS
 from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 
-from conftest import DEMOS
 from validate.advisor.advice import RELATIVE, WORST, advise, figure
 from validate.advisor.candidates import Shares, volume_pair_candidates
 from validate.advisor.readings import with_more_calibration_readings, with_more_sample_readings
-from validate.model.line import fit_line, inverse_prediction
 from validate.inputs.method_file import load_method
 from validate.inputs.registers import find_entry, load_registers
 from validate.model.assay import build_model
+from validate.model.line import fit_line, inverse_prediction
 from validate.propagation.linear import propagate
 
 DEMO = DEMOS / "phosphate_assay" / "method.toml"
@@ -324,8 +324,8 @@ def test_single_result_figure_is_in_the_result_unit(write_method):
 def test_equilibrium_study_is_judged_by_its_combined_K():
     # An equilibrium study is advised on its combined K; reading every point more often lowers
     # U (the observed scatter of a mean of m readings is s/sqrt(m), ISO 8466-1 / CG4 A5).
-    from validate.workflow import pipeline as api
     from validate.advisor.advice import advise
+    from validate.workflow import pipeline as api
 
     demo = Path(__file__).resolve().parents[1] / "example_inputs" / "nickel_complex" / "method.toml"
     run = api.analyse(demo, trials=None, advice=False)

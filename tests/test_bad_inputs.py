@@ -17,8 +17,8 @@ import subprocess
 import sys
 
 import pytest
-
 from conftest import DEMOS
+
 from validate import cli
 
 DEMO = DEMOS / "phosphate_assay"

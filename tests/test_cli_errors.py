@@ -8,7 +8,6 @@ import subprocess
 import sys
 
 import pytest
-
 from conftest import DEMOS
 
 DEMO = DEMOS / "phosphate_assay"

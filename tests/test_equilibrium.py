@@ -18,8 +18,13 @@ from hypothesis import strategies as st
 from uncertainties import correlation_matrix, covariance_matrix, ufloat
 
 from validate.model.ice import (
-    addition_series_totals, complex_concentration, complex_concentration_derivative,
-    count_undefined, equilibrium_constant, excess_for_fraction, fraction_complexed,
+    addition_series_totals,
+    complex_concentration,
+    complex_concentration_derivative,
+    count_undefined,
+    equilibrium_constant,
+    excess_for_fraction,
+    fraction_complexed,
     full_complexation_slope_bias,
 )
 from validate.model.standards import fit_joint, iterate_standards, line_by_sums

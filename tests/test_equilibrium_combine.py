@@ -14,8 +14,15 @@ from statsmodels.regression.linear_model import GLS
 from uncertainties import covariance_matrix, ufloat
 
 from validate.equilibrium.combine import (
-    combine_correlated, davies_activity_correction, davies_log10_gamma, debye_huckel_A,
-    gls_weights, log10_K, log10_uncertainty, trend_test, water_relative_permittivity,
+    combine_correlated,
+    davies_activity_correction,
+    davies_log10_gamma,
+    debye_huckel_A,
+    gls_weights,
+    log10_K,
+    log10_uncertainty,
+    trend_test,
+    water_relative_permittivity,
 )
 
 

@@ -6,12 +6,11 @@ import shutil
 
 import numpy as np
 import pytest
+from conftest import DEMOS
 
-from validate.workflow import pipeline as api
 from validate.model.ice import complex_concentration
 from validate.propagation.montecarlo import evaluate_trials
-
-from conftest import DEMOS
+from validate.workflow import pipeline as api
 
 DEMO = DEMOS / "nickel_complex"
 

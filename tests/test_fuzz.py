@@ -18,10 +18,10 @@ import shutil
 import tomllib
 
 import pytest
+from conftest import DEMOS
 from hypothesis import HealthCheck, given, note, settings
 from hypothesis import strategies as st
 
-from conftest import DEMOS
 from validate.inputs.errors import InputError
 from validate.inputs.method_file import load_method
 from validate.model.assay import ModelError, build_model

@@ -17,8 +17,14 @@ from hypothesis import strategies as st
 from uncertainties import ufloat
 
 from validate.model.line import fit_line
-from validate.validation.limits import (detection_limits, exact_delta, iso11843_2,
-                                        molar_absorptivity, range_flags, sensitivity)
+from validate.validation.limits import (
+    detection_limits,
+    exact_delta,
+    iso11843_2,
+    molar_absorptivity,
+    range_flags,
+    sensitivity,
+)
 
 # x = 0, 1, 2, 3, 4 (I = 5 standards, J = 1), y as below.
 X = [0.0, 1.0, 2.0, 3.0, 4.0]

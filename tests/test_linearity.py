@@ -23,9 +23,15 @@ from statsmodels.stats.anova import anova_lm
 from statsmodels.stats.outliers_influence import OLSInfluence
 
 from validate.model.line import fit_line
-from validate.validation.linearity import (intercept_test, lack_of_fit_test, mandel_test,
-                                           point_diagnostics, runs_distribution, runs_test,
-                                           weighting_check)
+from validate.validation.linearity import (
+    intercept_test,
+    lack_of_fit_test,
+    mandel_test,
+    point_diagnostics,
+    runs_distribution,
+    runs_test,
+    weighting_check,
+)
 from validate.validation.summary import is_json_ready, validate_calibration
 
 

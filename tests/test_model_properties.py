@@ -111,6 +111,7 @@ def test_observed_scatter_reproduces_the_inverse_prediction_formula():
     # The model carries the line's scatter as s/sqrt(m) on each mean reading; propagated through
     # the refitted line, the calibration-fit part of the budget must equal that formula.
     from conftest import DEMOS
+
     from validate.model.line import fit_line, inverse_prediction
 
     run = api.analyse(DEMOS / "phosphate_assay" / "method.toml", trials=None, advice=False)
@@ -134,6 +135,7 @@ def test_weighted_line_reproduces_the_weighted_inverse_prediction(tmp_path):
     import shutil
 
     from conftest import DEMOS
+
     from validate.model.line import fit_line, inverse_prediction
 
     folder = tmp_path / "weighted"

@@ -7,13 +7,12 @@ import shutil
 
 import numpy as np
 import pytest
+from conftest import DEMOS
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from validate.workflow import pipeline as api
 from validate.propagation.montecarlo import evaluate_trials
-
-from conftest import DEMOS
+from validate.workflow import pipeline as api
 
 ADDITIVE = """
 [quantities.X1]

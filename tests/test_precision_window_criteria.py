@@ -18,10 +18,8 @@ from statsmodels.stats.anova import anova_lm
 from uncertainties import ufloat
 
 from validate.validation.criteria import DEFAULTS, evaluate_criteria
-from validate.validation.precision import (intermediate_precision, recovery, repeatability,
-                                           scatter_consistency)
-from validate.validation.window import (OPTIMUM_ABSORBANCE, absorbance_window_flags,
-                                        error_curve, relative_error_factor)
+from validate.validation.precision import intermediate_precision, recovery, repeatability, scatter_consistency
+from validate.validation.window import OPTIMUM_ABSORBANCE, absorbance_window_flags, error_curve, relative_error_factor
 
 # ---- repeatability and intermediate precision ---------------------------------------------
 

@@ -7,9 +7,17 @@ from pathlib import Path
 
 import pytest
 
-from validate.validation.quickcheck import (CellError, DecimalCommaError, MissingColumnError, SampleError,
-                                 TableError, TooFewLevelsError, format_quick_check, load_table,
-                                 quick_check)
+from validate.validation.quickcheck import (
+    CellError,
+    DecimalCommaError,
+    MissingColumnError,
+    SampleError,
+    TableError,
+    TooFewLevelsError,
+    format_quick_check,
+    load_table,
+    quick_check,
+)
 
 REFERENCE = Path(__file__).parent / "reference"
 

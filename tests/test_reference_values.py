@@ -4,12 +4,11 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from conftest import REFERENCE
 
-from validate.workflow import pipeline as api
 from validate.model.line import fit_line
 from validate.propagation.budget import round_gum
-
-from conftest import REFERENCE
+from validate.workflow import pipeline as api
 
 
 def test_cg4_example_a1_through_the_method_file():

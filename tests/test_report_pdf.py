@@ -18,11 +18,10 @@ from dataclasses import FrozenInstanceError
 
 import numpy as np
 import pytest
+from conftest import DEMOS
 from pypdf import PdfReader
 
-from conftest import DEMOS
 from validate.advisor import advice as advisor
-from validate.workflow import pipeline as api
 from validate.inputs.method_file import load_method
 from validate.propagation import mcstats
 from validate.propagation.budget import round_gum
@@ -30,6 +29,7 @@ from validate.report import figures, sections_study
 from validate.report.pdf import FIXED, ReportInfo, build_report
 from validate.validation.criteria import evaluate_criteria
 from validate.validation.summary import validate_calibration
+from validate.workflow import pipeline as api
 
 DEMO = DEMOS / "phosphate_assay" / "method.toml"
 NICKEL = DEMOS / "nickel_complex" / "method.toml"
@@ -452,8 +452,9 @@ def test_log10_budget_shown_in_full_when_its_shares_differ(nickel_record, monkey
 def _tiny_png() -> bytes:
     """A 1x1 PNG, to skip drawing figures where a test reads only the text."""
     import io
-    from matplotlib.figure import Figure
+
     from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
     fig = Figure(figsize=(0.1, 0.1), dpi=10)
     FigureCanvasAgg(fig)
     buffer = io.BytesIO()

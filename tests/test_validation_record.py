@@ -8,10 +8,9 @@ import subprocess
 import sys
 
 import pytest
+from conftest import DEMOS, REFERENCE
 
 from validate.workflow import pipeline as api
-
-from conftest import DEMOS, REFERENCE
 
 
 @pytest.fixture(scope="module")

@@ -10,12 +10,12 @@ import shutil
 from pathlib import Path
 
 import pytest
-
 from conftest import DEMOS
-from validate.workflow import pipeline as api
+
 from validate.inputs.errors import InputError
 from validate.record import files as records
 from validate.record.verify import compare, describe, reproducible_part, store_inputs
+from validate.workflow import pipeline as api
 from validate.workflow.verify import verify_record
 
 DEMO = DEMOS / "phosphate_assay"

@@ -11,10 +11,10 @@ from rich.console import Console
 from rich.markup import escape
 
 from validate import __version__
-from validate.workflow import pipeline as api
 from validate.inputs.errors import InputError
 from validate.model.assay import ModelError
 from validate.propagation.budget import grouped, round_gum
+from validate.workflow import pipeline as api
 
 EXIT_INPUT = 2
 EXIT_DATA = 3

@@ -33,16 +33,23 @@ import math
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from validate.advisor.candidates import (Candidate, Shares, class_candidates, input_value_candidates,
-                                         piston_candidates, temperature_candidates, volume_pair_candidates)
+from validate.advisor.candidates import (
+    Candidate,
+    Shares,
+    class_candidates,
+    input_value_candidates,
+    piston_candidates,
+    temperature_candidates,
+    volume_pair_candidates,
+)
 from validate.advisor.readings import reading_candidates
-from validate.model.line import fit_line
-from validate.inputs.errors import InputError
-from validate.inputs.schema import Method
-from validate.inputs.registers import RegisterEntry, load_registers
-from validate.model.equilibrium import COMBINED
-from validate.model.assay import Model, ModelError
 from validate.equilibrium.study import build_ready_model
+from validate.inputs.errors import InputError
+from validate.inputs.registers import RegisterEntry, load_registers
+from validate.inputs.schema import Method
+from validate.model.assay import Model, ModelError
+from validate.model.equilibrium import COMBINED
+from validate.model.line import fit_line
 from validate.propagation.linear import LinearResult, propagate
 from validate.propagation.montecarlo import propagate_mc
 from validate.validation.window import OPTIMUM_ABSORBANCE, relative_error_factor

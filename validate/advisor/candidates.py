@@ -31,12 +31,12 @@ MIN_SHARE of the variance of some result (the budget decides where to look).
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 from dataclasses import dataclass, field, replace
-from typing import Callable
 
+from validate.inputs.registers import RegisterEntry
 from validate.inputs.schema import VOLUMETRIC_KINDS, Delivery, Item, Method
 from validate.metrology.equipment import TEMPERATURE
-from validate.inputs.registers import RegisterEntry
 from validate.propagation.budget import grouped
 from validate.propagation.linear import LinearResult
 
@@ -70,7 +70,7 @@ class Shares:
     source: dict
 
     @classmethod
-    def of(cls, results: list[LinearResult]) -> "Shares":
+    def of(cls, results: list[LinearResult]) -> Shares:
         by = {"equipment": {}, "step": {}, "source": {}}
         for r in results:
             for key in ("equipment", "step"):
@@ -268,8 +268,8 @@ def temperature_candidates(method: Method, shares: Shares) -> list[Candidate]:
         return []
     return [Candidate(
         "temperature range", f"keep the laboratory within +/-{t / 2:g} K of 20 degC instead of +/-{t:g} K",
-        f"temperature control (air conditioning, or solutions brought to temperature in a water bath "
-        f"before making up to the mark)",
+        "temperature control (air conditioning, or solutions brought to temperature in a water bath "
+        "before making up to the mark)",
         "the volumes' expansion coefficient and every other source unchanged",
         frozenset({"temperature"}),
         lambda m: replace(m, settings=replace(m.settings, temperature_range=m.settings.temperature_range / 2)),

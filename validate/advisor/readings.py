@@ -8,9 +8,9 @@ from collections import Counter
 from dataclasses import replace
 
 from validate.advisor.candidates import READING_FACTOR, Candidate
-from validate.model.line import fit_line
 from validate.inputs.schema import Method
 from validate.model.assay import build_model
+from validate.model.line import fit_line
 
 
 def _calibration_ids(method: Method) -> list[str]:

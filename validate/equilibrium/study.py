@@ -13,10 +13,9 @@ import math
 from uncertainties import covariance_matrix, ufloat
 
 from validate.equilibrium.combine import combine_correlated, davies_activity_correction, trend_test
-from validate.model.standards import fit_joint, iterate_standards
 from validate.model.build import build
 from validate.model.equilibrium import COMBINED, LOG10, EquilibriumModel
-
+from validate.model.standards import fit_joint, iterate_standards
 
 # A point constrains K best when the complex holds between about 20 % and 80 % of the
 # reagent in deficit (D. A. Deranleau, J. Am. Chem. Soc. 91 (1969) 4044; from memory).

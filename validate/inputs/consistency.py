@@ -9,6 +9,7 @@ from __future__ import annotations
 
 from validate.inputs.errors import InputError
 
+
 def check_ids(samples, solutions: dict, quantities: dict, path) -> None:
     """Samples and solutions share the readings table; quantities and solutions share
     the result formula's names. The same id in both would be read ambiguously."""

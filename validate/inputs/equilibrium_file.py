@@ -35,7 +35,8 @@ import re
 
 from validate.inputs import schema as S
 from validate.inputs.errors import InputError
-from validate.inputs.tables import Table, parse_delivery as _delivery, parse_si, unit_of
+from validate.inputs.tables import Table, parse_si, unit_of
+from validate.inputs.tables import parse_delivery as _delivery
 
 REAGENTS = ("metal", "ligand")
 _PIPETTES = ("one-mark pipette", "graduated pipette", "piston pipette", "burette")

@@ -13,7 +13,6 @@ import ast
 import operator
 from dataclasses import dataclass
 
-
 _BINARY = {ast.Add: operator.add, ast.Sub: operator.sub, ast.Mult: operator.mul,
            ast.Div: operator.truediv, ast.Pow: operator.pow}
 _UNARY = {ast.USub: operator.neg, ast.UAdd: operator.pos}

@@ -15,10 +15,11 @@ from validate.inputs.consistency import check_ids
 from validate.inputs.errors import InputError
 from validate.inputs.formula import FormulaError, parse_formula, result_dimension
 from validate.inputs.readings import load_reading_series, load_readings, read_text_file
-from validate.inputs.tables import Table, parse_delivery as _delivery, parse_uncertain, unit_of
+from validate.inputs.registers import classes_for, find_entry, load_registers
+from validate.inputs.tables import Table, parse_uncertain, unit_of
+from validate.inputs.tables import parse_delivery as _delivery
 from validate.inputs.units import describe_dims
 from validate.inputs.validation_settings import parse_validation
-from validate.inputs.registers import classes_for, find_entry, load_registers
 
 VOLUME = (0, 3, 0, 0)
 MASS = (1, 0, 0, 0)

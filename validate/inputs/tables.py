@@ -6,8 +6,8 @@ import difflib
 import math
 
 from validate.inputs.errors import InputError
-from validate.inputs.units import Unit, UnitError, describe_dims, parse_quantity, parse_unit
 from validate.inputs.schema import DISTRIBUTIONS, Delivery, UncertainValue
+from validate.inputs.units import Unit, UnitError, describe_dims, parse_quantity, parse_unit
 
 
 class Table:
@@ -72,7 +72,7 @@ class Table:
                              fix=f"write one table per entry, e.g. [{key}.NAME] followed by its keys")
         return value
 
-    def sub(self, key: str) -> "Table":
+    def sub(self, key: str) -> Table:
         where = f"[{key}]" if self.where == "top level" else f"{self.where}.{key}"
         return Table(self.require(key), self.file, where)
 

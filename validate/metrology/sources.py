@@ -16,7 +16,7 @@ from __future__ import annotations
 import math
 from dataclasses import asdict, dataclass
 
-from validate.inputs.schema import DISTRIBUTIONS  # noqa: F401 (the names a distribution may have)
+from validate.inputs.schema import DISTRIBUTIONS
 
 
 @dataclass(frozen=True)

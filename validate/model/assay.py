@@ -17,11 +17,11 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
-from validate.model import backend
-from validate.model.line import fit_line, inverse_prediction
 from validate.inputs.schema import Method
 from validate.metrology.equipment import SourceSet, balance_terms, exact_or, value_source, volume_term
 from validate.metrology.sources import Source
+from validate.model import backend
+from validate.model.line import fit_line, inverse_prediction
 
 
 class ModelError(ValueError):

@@ -18,14 +18,14 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from validate.model import backend as mathops
-from validate.model.line import fit_line
-from validate.model.ice import equilibrium_constant
-from validate.model.standards import iterate_standards, line_by_sums
 from validate.inputs.schema import Method
 from validate.metrology.equipment import SourceSet, volume_term
 from validate.metrology.sources import Source
+from validate.model import backend as mathops
 from validate.model.assay import ModelError, SolutionInputs, mean_reading_term, solution_order, solution_term
+from validate.model.ice import equilibrium_constant
+from validate.model.line import fit_line
+from validate.model.standards import iterate_standards, line_by_sums
 
 COMBINED = "K, combined"
 LOG10 = "log10 K, combined"

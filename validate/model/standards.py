@@ -31,8 +31,13 @@ from uncertainties.core import AffineScalarFunc
 
 from validate.model import backend as mathops
 from validate.model.ice import (
-    IceTable, complex_concentration, complex_concentration_derivative, count_undefined,
-    describe_value, equilibrium_constant, fraction_complexed,
+    IceTable,
+    complex_concentration,
+    complex_concentration_derivative,
+    count_undefined,
+    describe_value,
+    equilibrium_constant,
+    fraction_complexed,
 )
 
 

@@ -20,9 +20,18 @@ import numpy as np
 from validate.model.assay import Model
 from validate.propagation.distributions import draw_many
 from validate.propagation.linear import LinearResult
-from validate.propagation.mcstats import (AdaptiveCheck, GumValidation, HistogramData, McSummary,
-                                          adaptive_batch_size, adaptive_converged, histogram_data,
-                                          numerical_tolerance, summarise, validate_gum)
+from validate.propagation.mcstats import (
+    AdaptiveCheck,
+    GumValidation,
+    HistogramData,
+    McSummary,
+    adaptive_batch_size,
+    adaptive_converged,
+    histogram_data,
+    numerical_tolerance,
+    summarise,
+    validate_gum,
+)
 
 CHUNK = 100_000  # trials evaluated together: large enough for numpy, small enough for memory
 MAX_ADAPTIVE_TRIALS = 10_000_000

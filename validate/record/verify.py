@@ -19,7 +19,7 @@ from pathlib import Path
 
 from validate import __version__
 from validate.inputs.errors import InputError
-from validate.record.files import record_json, sha256_of, write_atomic
+from validate.record.files import sha256_of, write_atomic
 
 INPUTS_FOLDER = "inputs"
 RECORD_FILE = "results.json"

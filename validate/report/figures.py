@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import io
 import math
+
 import numpy as np
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure

@@ -22,10 +22,26 @@ from reportlab.lib.units import mm
 from reportlab.pdfgen.canvas import Canvas
 from reportlab.platypus import CondPageBreak, KeepTogether, PageBreak, Paragraph, SimpleDocTemplate, Table
 
-from validate.report import (sections, sections_advice, sections_equilibrium, sections_record,
-                             sections_study, sections_uncertainty, sections_validation)
-from validate.report.style import (ACCENT, FONT, MARGIN_BOTTOM, MARGIN_TOP, MARGIN_X, PAGE_SIZE,
-                                   RULE, heading, register_fonts)
+from validate.report import (
+    sections,
+    sections_advice,
+    sections_equilibrium,
+    sections_record,
+    sections_study,
+    sections_uncertainty,
+    sections_validation,
+)
+from validate.report.style import (
+    ACCENT,
+    FONT,
+    MARGIN_BOTTOM,
+    MARGIN_TOP,
+    MARGIN_X,
+    PAGE_SIZE,
+    RULE,
+    heading,
+    register_fonts,
+)
 
 
 def _by_kind(general, for_study):

@@ -17,8 +17,23 @@ from reportlab.platypus import Image, KeepTogether, Paragraph
 from validate.model.equilibrium import COMBINED as COMBINED_K
 from validate.propagation.budget import round_gum
 from validate.report import figures
-from validate.report.style import (BAD, DASH, FRAME_WIDTH, GOOD, data_table, dof, gap, heading,
-                                   is_number, key_value_table, num, para, pct, styles, text)
+from validate.report.style import (
+    BAD,
+    DASH,
+    FRAME_WIDTH,
+    GOOD,
+    data_table,
+    dof,
+    gap,
+    heading,
+    is_number,
+    key_value_table,
+    num,
+    para,
+    pct,
+    styles,
+    text,
+)
 
 
 def png_image(data: bytes, width: float = FRAME_WIDTH) -> Image:

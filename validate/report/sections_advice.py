@@ -7,8 +7,7 @@ or a plain list of changes. Nothing is evaluated here.
 
 from __future__ import annotations
 
-from validate.report.style import (DASH, bullets, data_table, dof, heading, is_number, num, para,
-                                   pct)
+from validate.report.style import DASH, bullets, data_table, dof, heading, is_number, num, para, pct
 
 
 def _figure(value, unit: str) -> str:

@@ -9,8 +9,7 @@ from reportlab.platypus import CondPageBreak, Table, TableStyle
 
 from validate.report import figures
 from validate.report.sections import coloured, figure_block, rounded, u_decimals
-from validate.report.style import (DASH, data_table, dof, heading, is_number, key_value_table, num,
-                                   para, pct)
+from validate.report.style import DASH, data_table, dof, heading, is_number, key_value_table, num, para, pct
 
 MIN_SHARE_SHOWN = 1e-4  # budget rows below 0.01 % are summed in one line (all are in budget.csv)
 

@@ -9,8 +9,7 @@ from __future__ import annotations
 
 from validate.report import figures
 from validate.report.sections import coloured, concentration_unit, figure_block
-from validate.report.style import (DASH, bullets, data_table, heading, is_number,
-                                   key_value_table, num, para, pct)
+from validate.report.style import DASH, bullets, data_table, heading, is_number, key_value_table, num, para, pct
 
 TEST_KEYS = ("lack_of_fit", "mandel", "runs", "intercept", "weighting")
 

@@ -12,9 +12,9 @@ from __future__ import annotations
 import dataclasses
 import math
 
-from validate.model.line import inverse_prediction
 from validate.inputs.schema import Method
 from validate.model.assay import Model, build_model
+from validate.model.line import inverse_prediction
 from validate.propagation.linear import LinearResult
 from validate.validation.criteria import evaluate_criteria
 from validate.validation.limits import range_flags

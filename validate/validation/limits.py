@@ -16,7 +16,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import optimize, stats
 
-from validate.inputs.validation_settings import ROUTES  # noqa: F401 (the limit routes)
+from validate.inputs.validation_settings import ROUTES
 from validate.model.line import LineFit, fit_line
 from validate.validation.linearity import negligible, plain
 

@@ -16,8 +16,8 @@ from pathlib import Path
 
 import numpy as np
 
-from validate.model.line import inverse_prediction
 from validate.inputs.errors import InputError
+from validate.model.line import inverse_prediction
 from validate.validation.limits import range_flags
 from validate.validation.linearity import plain
 from validate.validation.summary import validate_calibration

@@ -8,10 +8,15 @@ from dataclasses import dataclass
 import numpy as np
 
 from validate.model.line import LineFit, fit_line
-from validate.validation.limits import (DetectionLimits, MolarAbsorptivity, Sensitivity,
-                                        detection_limits, molar_absorptivity, sensitivity)
-from validate.validation.linearity import (PointDiagnostics, SignificanceTest, linearity_tests,
-                                           plain, point_diagnostics)
+from validate.validation.limits import (
+    DetectionLimits,
+    MolarAbsorptivity,
+    Sensitivity,
+    detection_limits,
+    molar_absorptivity,
+    sensitivity,
+)
+from validate.validation.linearity import PointDiagnostics, SignificanceTest, linearity_tests, plain, point_diagnostics
 from validate.validation.window import WindowFlags, absorbance_window_flags
 
 

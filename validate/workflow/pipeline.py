@@ -11,13 +11,13 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from validate import __version__
-from validate.model.line import fit_line
+from validate.equilibrium.study import build_ready_model
 from validate.inputs.errors import InputError
 from validate.inputs.method_file import load_method
 from validate.inputs.schema import Method
 from validate.model.assay import Model
-from validate.equilibrium.study import build_ready_model
 from validate.model.build import build
+from validate.model.line import fit_line
 from validate.propagation.budget import budget_rows, grouped
 from validate.propagation.linear import LinearResult, propagate
 from validate.propagation.montecarlo import McResult, expected_work, new_seed, propagate_mc
@@ -91,7 +91,7 @@ def build_record(run: Run) -> dict:
     method, results = run.method, run.results
     inputs = [{"path": str(p), "sha256": sha256_of(p)} for p in method.input_files]
     fingerprint = hashlib.sha256("".join(i["sha256"] for i in inputs).encode()).hexdigest()[:8]
-    now = _dt.datetime.now(_dt.timezone.utc)
+    now = _dt.datetime.now(_dt.UTC)
     validation = validation_block(method, run.model, results) if method.calibration else None
     equilibrium = None
     if method.equilibrium is not None:

@@ -13,9 +13,19 @@ from pathlib import Path
 from validate.inputs.errors import InputError
 from validate.model.assay import ModelError
 from validate.record.files import record_json
-from validate.record.verify import (COMPARED_SECTIONS, INPUTS_FOLDER, RECORD_FILE, VerifyReport, _check_input,
-                                    _method_entry, _read_record, _record_id, _recorded_version, compare,
-                                    reproducible_part)
+from validate.record.verify import (
+    COMPARED_SECTIONS,
+    INPUTS_FOLDER,
+    RECORD_FILE,
+    VerifyReport,
+    _check_input,
+    _method_entry,
+    _read_record,
+    _record_id,
+    _recorded_version,
+    compare,
+    reproducible_part,
+)
 from validate.workflow.pipeline import analyse
 
 
