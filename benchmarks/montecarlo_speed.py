@@ -70,10 +70,10 @@ def loop_rates(method: Path, trials: int) -> tuple[float, float]:
 
 
 def peak_memory_mib(method: Path, trials: int) -> float:
-    code = ("import sys; sys.path.insert(0, %r); from validate.workflow import pipeline as api; "
+    code = (f"import sys; sys.path.insert(0, {str(ROOT)!r}); from validate.workflow import pipeline as api; "
             "from validate.propagation.montecarlo import propagate_mc; "
-            "r = api.analyse(%r, trials=None); propagate_mc(r.model, r.results, %d, seed=1, shares=False)"
-            % (str(ROOT), str(method), trials))
+            f"r = api.analyse({str(method)!r}, trials=None); "
+            f"propagate_mc(r.model, r.results, {trials:d}, seed=1, shares=False)")
     subprocess.run([sys.executable, "-c", code], check=True)
     return resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024.0  # Linux: KiB
 

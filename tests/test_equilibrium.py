@@ -38,9 +38,9 @@ def exact_root(K: float, M0: float, L0: float) -> float:
     Decimal(float) is exact, so only the final rounding limits the reference.
     """
     getcontext().prec = 100
-    k, m, l = Decimal(K), Decimal(M0), Decimal(L0)
-    S = m + l + 1 / k
-    return float((S - (S * S - 4 * m * l).sqrt()) / 2)
+    k, m, lig = Decimal(K), Decimal(M0), Decimal(L0)
+    S = m + lig + 1 / k
+    return float((S - (S * S - 4 * m * lig).sqrt()) / 2)
 
 
 def naive_root(K, M0, L0):
@@ -49,7 +49,7 @@ def naive_root(K, M0, L0):
 
 
 def absorbances(K, eps, a0, M, L):
-    return [a0 + eps * complex_concentration(K, m, l) for m, l in zip(M, L)]
+    return [a0 + eps * complex_concentration(K, m, lig) for m, lig in zip(M, L, strict=True)]
 
 
 def design(K, excess=30.0, eps_per_K=0.4, a0=0.02):
@@ -242,7 +242,8 @@ def test_slope_and_K_bias_match_closed_form():
                           mix_M, mix_L, absorbances(K, eps, a0, mix_M, mix_L))
     f = K * M0 / (1 + K * M0)
     assert r.slope_bias == pytest.approx(f - 1.0, rel=1e-4)
-    naive = [equilibrium_constant(complex_concentration(K, m, l) / f, m, l).K for m, l in zip(mix_M, mix_L)]
+    naive = [equilibrium_constant(complex_concentration(K, m, lig) / f, m, lig).K
+             for m, lig in zip(mix_M, mix_L, strict=True)]
     assert r.naive_K == pytest.approx(np.mean(naive), rel=1e-4)
     assert r.K_bias == pytest.approx(np.mean(naive) / K - 1.0, rel=1e-4)
     assert r.K == pytest.approx(K, rel=1e-9)

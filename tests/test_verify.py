@@ -28,7 +28,7 @@ def _file_record(method_path, out, trials=TRIALS, seed=SEED):
     run = api.analyse(method_path, trials=trials, seed=seed)
     stored = store_inputs(list(run.method.input_files), out)
     run.record["inputs"] = [{**entry, "stored": copy["stored"]}
-                            for entry, copy in zip(run.record["inputs"], stored)]
+                            for entry, copy in zip(run.record["inputs"], stored, strict=True)]
     api.write_outputs(run, out)
     return run
 
