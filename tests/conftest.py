@@ -1,7 +1,9 @@
-"""Shared test helpers: paths and a writer for small method files."""
+"""Shared test helpers: paths, a writer for small method files, and the invented nickel(II)
+demo run once per session for the tests that only read its results."""
 
 from __future__ import annotations
 
+import json
 from pathlib import Path
 
 import pytest
@@ -23,3 +25,20 @@ def write_method(tmp_path):
         return path
 
     return write
+
+
+def _snapshot(record: dict) -> str:
+    return json.dumps(record, sort_keys=True, default=repr)
+
+
+@pytest.fixture(scope="session")
+def nickel_demo():
+    """The equilibrium demo run once (20 000 trials, seed 5, no advice), shared by tests that
+    read its record, results and model. Tests must not change it: a test that needs a changed
+    record works on a copy (copy.deepcopy); a change is reported when the session ends."""
+    from validate.workflow import pipeline
+
+    run = pipeline.analyse(DEMOS / "nickel_complex" / "method.toml", trials=20_000, seed=5, advice=False)
+    before = _snapshot(run.record)
+    yield run
+    assert _snapshot(run.record) == before, "a test changed the shared nickel demo record; work on a copy"

@@ -6,7 +6,6 @@ import dataclasses
 import json
 import math
 from itertools import pairwise
-from pathlib import Path
 
 import pytest
 from conftest import DEMOS
@@ -322,14 +321,11 @@ def test_single_result_figure_is_in_the_result_unit(write_method):
     assert figure(results) == ("total", "mg/L", results[0].expanded_uncertainty)
 
 
-def test_equilibrium_study_is_judged_by_its_combined_K():
+@pytest.mark.slow
+def test_equilibrium_study_is_judged_by_its_combined_K(nickel_demo):
     # An equilibrium study is advised on its combined K; reading every point more often lowers
     # U (the observed scatter of a mean of m readings is s/sqrt(m), ISO 8466-1 / CG4 A5).
-    from validate.advisor.advice import advise
-    from validate.workflow import pipeline as api
-
-    demo = Path(__file__).resolve().parents[1] / "example_inputs" / "nickel_complex" / "method.toml"
-    run = api.analyse(demo, trials=None, advice=False)
+    run = nickel_demo
     report = advise(run.method, run.results, confirm_with_mc=0)
     assert report.target == "K, combined"
     kinds = {a.kind: a for a in report.items}

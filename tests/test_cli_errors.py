@@ -75,6 +75,7 @@ def test_decimal_comma_reading(demo_copy, tmp_path):
     assert proc.returncode == 2 and "decimal comma" in proc.stderr
 
 
+@pytest.mark.slow
 def test_demo_run_writes_the_record(tmp_path):
     out = tmp_path / "out"
     proc = _run("run", str(DEMO / "method.toml"), "--out", str(out), "--trials", "20000", "--seed", "7")

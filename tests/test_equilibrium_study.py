@@ -36,7 +36,8 @@ def _noise_free_copy(tmp_path, K_L_per_mol: float, correction: str = "iterate", 
     return folder / "method.toml"
 
 
-@pytest.mark.parametrize("K", [30.0, 850.0, 2.0e4])
+@pytest.mark.parametrize("K", [pytest.param(30.0, marks=pytest.mark.slow), 850.0,
+                               pytest.param(2.0e4, marks=pytest.mark.slow)])
 def test_exact_readings_give_back_K(tmp_path, K):
     # noise-free readings generated from a chosen K: every point and the combined K must
     # return it (the standards' incomplete complexation corrected by the iteration)
@@ -63,8 +64,8 @@ def test_full_complexation_bias_matches_closed_form(tmp_path):
     assert bias["K"] > 0  # the naive K comes out high
 
 
-def test_demo_record_equilibrium_block():
-    run = api.analyse(DEMO / "method.toml", trials=20_000, seed=5, advice=False)
+def test_demo_record_equilibrium_block(nickel_demo):
+    run = nickel_demo  # trials=20_000, seed=5, no advice
     e = run.record["equilibrium"]
     for key in ("mixtures", "combined", "complete_complexation_bias", "conditions", "log10K"):
         assert key in e
@@ -79,11 +80,11 @@ def test_demo_record_equilibrium_block():
     assert e["conditions"]["temperature_C"] == 25.0
 
 
-def test_series_covariance_linear_against_monte_carlo():
+def test_series_covariance_linear_against_monte_carlo(nickel_demo):
     # Points of one addition series share the vessel, the pipette's offset and the line, so their
     # K values are correlated; the linear engine's correlation matrix (GUM 5.2) must match the
     # Monte Carlo sample correlations (JCGM 101 7.5) within sampling error.
-    run = api.analyse(DEMO / "method.toml", trials=None, advice=False)
+    run = nickel_demo
     _, _, cov = run.combination
     cov = np.asarray(cov)
     labels = [f"K, {p}" for p in run.model.points]
@@ -98,10 +99,10 @@ def test_series_covariance_linear_against_monte_carlo():
     assert np.min(gum_corr[block]) > 0.3  # they really are correlated
 
 
-def test_points_carry_their_saturation(tmp_path):
+def test_points_carry_their_saturation(nickel_demo):
     # saturation s = [ML] / min([M]0, [L]0); points outside 0.2-0.8 determine K poorly
     # (Deranleau, J. Am. Chem. Soc. 91 (1969) 4044, from memory) and are flagged
-    run = api.analyse(DEMO / "method.toml", trials=None, advice=False)
+    run = nickel_demo
     for p in run.record["equilibrium"]["mixtures"]:
         assert p["saturation"] == pytest.approx(p["ML"] / min(p["M_total"], p["L_total"]), rel=1e-12)
         assert (p["saturation_flag"] is None) == (0.2 <= p["saturation"] <= 0.8)

@@ -32,7 +32,6 @@ from validate.validation.summary import validate_calibration
 from validate.workflow import pipeline as api
 
 DEMO = DEMOS / "phosphate_assay" / "method.toml"
-NICKEL = DEMOS / "nickel_complex" / "method.toml"
 OPTIONAL_BLOCKS = ("validation", "equilibrium", "advice", "monte_carlo_settings")
 
 
@@ -111,6 +110,7 @@ def demo_report(demo_record, tmp_path_factory):
     return info, path, pages_text(path)
 
 
+@pytest.mark.slow
 def test_demo_report_has_every_section_title(demo_report):
     info, path, pages = demo_report
     text = " ".join(pages)
@@ -120,6 +120,7 @@ def test_demo_report_has_every_section_title(demo_report):
         assert f"{number} {title}" in text, title
 
 
+@pytest.mark.slow
 def test_page_n_of_m_and_record_id_on_every_page(demo_report, demo_record):
     info, path, pages = demo_report
     assert info.page_count == len(pages) == len(PdfReader(str(path)).pages)
@@ -129,6 +130,7 @@ def test_page_n_of_m_and_record_id_on_every_page(demo_report, demo_record):
         assert record_id in page
 
 
+@pytest.mark.slow
 def test_first_page_headline_numbers_equal_the_record(demo_report, demo_record):
     first = demo_report[2][0]
     assert demo_record["run"]["record_id"] in first
@@ -147,6 +149,7 @@ def full_report(demo_record, tmp_path_factory):
     return record, build_report(record, path), pages_text(path)
 
 
+@pytest.mark.slow
 def test_first_page_shows_each_acceptance_verdict(full_report):
     record, _, pages = full_report
     first = pages[0]
@@ -159,6 +162,7 @@ def test_first_page_shows_each_acceptance_verdict(full_report):
         assert row and row.group(1) == c["status"], name
 
 
+@pytest.mark.slow
 def test_input_file_hashes_and_version_in_the_appendix(demo_report, demo_record):
     text = " ".join(demo_report[2])
     compact = re.sub(r"\s", "", text)
@@ -167,6 +171,7 @@ def test_input_file_hashes_and_version_in_the_appendix(demo_report, demo_record)
     assert f"validate {demo_record['software']['version']}" in text
 
 
+@pytest.mark.slow
 def test_report_info_is_frozen_with_to_dict(demo_report):
     info = demo_report[0]
     assert isinstance(info, ReportInfo)
@@ -175,6 +180,7 @@ def test_report_info_is_frozen_with_to_dict(demo_report):
         info.page_count = 1
 
 
+@pytest.mark.slow
 def test_absent_blocks_are_left_out_and_present_ones_rendered(demo_record, full_report, tmp_path):
     plain = build_report(bare(demo_record), tmp_path / "plain.pdf")
     optional = {"Linearity", "Limits of detection and quantitation", "Working range",
@@ -252,6 +258,7 @@ def test_advice_as_a_plain_list_is_rendered(tmp_path):
     assert "use a class A burette" in text and "0.05 mg/L" in text and "25.0 %" in text
 
 
+@pytest.mark.slow
 def test_failed_build_leaves_nothing_behind(demo_record, tmp_path, monkeypatch):
     def broken(*args, **kwargs):
         raise RuntimeError("figure failed")
@@ -263,6 +270,7 @@ def test_failed_build_leaves_nothing_behind(demo_record, tmp_path, monkeypatch):
     assert list(tmp_path.iterdir()) == []
 
 
+@pytest.mark.slow
 def test_failed_build_keeps_the_previous_report(demo_record, tmp_path, monkeypatch):
     target = tmp_path / "report.pdf"
     target.write_bytes(b"previous report")
@@ -296,6 +304,7 @@ def test_prediction_band_matches_the_textbook_formula():
     assert half == pytest.approx(expected)
 
 
+@pytest.mark.slow
 def test_assay_report_keeps_a_budget_per_result(demo_report, demo_record):
     text = " ".join(demo_report[2])
     for r in demo_record["results"]:
@@ -307,8 +316,8 @@ def test_assay_report_keeps_a_budget_per_result(demo_report, demo_record):
 # the report of an equilibrium study (the invented nickel demo, a real run)
 
 @pytest.fixture(scope="module")
-def nickel_record() -> dict:
-    return api.analyse(NICKEL, trials=20_000, seed=1, advice=False).record  # few trials: layout
+def nickel_record(nickel_demo) -> dict:
+    return nickel_demo.record  # few trials (20 000): this checks layout
 
 
 @pytest.fixture(scope="module")
@@ -328,6 +337,7 @@ def section_text(pages: list[str], info, title: str) -> str:
     return text[start:text.index(f"{number + 1} {info.sections[number]}", start)]
 
 
+@pytest.mark.slow
 def test_equilibrium_report_is_short_and_ordered(nickel_report, nickel_record):
     info, path, pages = nickel_report
     points = nickel_record["equilibrium"]["mixtures"]
@@ -344,6 +354,7 @@ def test_equilibrium_report_is_short_and_ordered(nickel_report, nickel_record):
         assert f"{number} {title}" in text, title
 
 
+@pytest.mark.slow
 def test_first_page_headlines_the_combined_k_once(nickel_report, nickel_record):
     first = nickel_report[2][0]
     results = {r["name"]: r for r in nickel_record["results"]}
@@ -362,6 +373,7 @@ def test_first_page_headlines_the_combined_k_once(nickel_report, nickel_record):
         assert re.search(rf"\b{re.escape(m['id'])} {value} {big_u} \[", first), m["id"]
 
 
+@pytest.mark.slow
 def test_equilibrium_section_has_the_record_numbers(nickel_report, nickel_record):
     info, _, pages = nickel_report
     eq = nickel_record["equilibrium"]
@@ -399,6 +411,7 @@ def test_equilibrium_section_has_the_record_numbers(nickel_report, nickel_record
     assert f"about {eq['activity_estimate']['K_thermodynamic']:.0f} {unit}" in section  # ~2300
 
 
+@pytest.mark.slow
 def test_negative_weights_are_explained(nickel_report, nickel_record):
     info, _, pages = nickel_report
     weights = nickel_record["equilibrium"]["combined"]["weights"]
@@ -409,6 +422,7 @@ def test_negative_weights_are_explained(nickel_report, nickel_record):
     assert f"({', '.join(negative)})" in section
 
 
+@pytest.mark.slow
 def test_equilibrium_figure_is_drawn(nickel_report):
     info, path, pages = nickel_report
     number = info.sections.index("Equilibrium constant") + 1
@@ -419,6 +433,7 @@ def test_equilibrium_figure_is_drawn(nickel_report):
     assert any(f"{number} Equilibrium constant" in pages[i] for i in range(with_caption[0] + 1))
 
 
+@pytest.mark.slow
 def test_budget_and_monte_carlo_in_full_for_the_combined_k_only(nickel_report, nickel_record):
     info, _, pages = nickel_report
     budget = section_text(pages, info, "Uncertainty budget")

@@ -53,6 +53,7 @@ def _record(folder):
     return json.loads((folder / "results.json").read_text(encoding="utf-8"))
 
 
+@pytest.mark.slow
 def test_inputs_are_stored_beside_the_record_with_their_hashes(record_dir):
     record = _record(record_dir)
     assert [i["stored"] for i in record["inputs"]] == ["inputs/method.toml", "inputs/readings.csv"]
@@ -61,6 +62,7 @@ def test_inputs_are_stored_beside_the_record_with_their_hashes(record_dir):
         assert records.sha256_of(record_dir / entry["stored"]) == entry["sha256"]
 
 
+@pytest.mark.slow
 def test_an_untouched_record_verifies(record_dir):
     report = verify_record(record_dir)
     assert report.inputs_unchanged and report.reproduced and report.passed
@@ -73,6 +75,7 @@ def test_an_untouched_record_verifies(record_dir):
     assert describe(report)[-1].startswith("verified")
 
 
+@pytest.mark.slow
 def test_an_edited_readings_table_is_caught(record_dir):
     stored = record_dir / "inputs" / "readings.csv"
     stored.write_text(stored.read_text().replace("river_upstream,0.1329", "river_upstream,0.1429"))
@@ -92,6 +95,7 @@ def test_an_edited_readings_table_is_caught(record_dir):
     assert "inputs/readings.csv: CHANGED" in text and "results[0].value" in text and "NOT verified" in text
 
 
+@pytest.mark.slow
 def test_an_edited_method_file_is_caught(record_dir):
     stored = record_dir / "inputs" / "method.toml"
     stored.write_text(stored.read_text().replace('mass = "68.05 mg"', 'mass = "68.10 mg"'))
@@ -105,6 +109,7 @@ def test_an_edited_method_file_is_caught(record_dir):
         assert m.recomputed / m.recorded == pytest.approx(68.10 / 68.05, rel=1e-9)
 
 
+@pytest.mark.slow
 def test_a_changed_seed_is_caught(record_dir):
     # the Monte Carlo numbers depend on the seed: a record whose seed was altered does not reproduce
     record = _record(record_dir)
@@ -117,6 +122,7 @@ def test_a_changed_seed_is_caught(record_dir):
     assert not any(p.endswith("].value") or p.startswith("budget") for p in paths)  # the GUM part is unchanged
 
 
+@pytest.mark.slow
 def test_a_stored_method_that_no_longer_reads_is_reported(record_dir):
     (record_dir / "inputs" / "method.toml").write_text("this is not TOML =\n")
     report = verify_record(record_dir)
@@ -147,6 +153,7 @@ def test_verify_refuses_a_folder_without_a_record(tmp_path):
         verify_record(tmp_path)
 
 
+@pytest.mark.slow
 def test_verify_refuses_a_record_without_stored_inputs(record_dir):
     # a record written before inputs were stored: no `stored` entries and no inputs folder
     record = _record(record_dir)
@@ -157,6 +164,7 @@ def test_verify_refuses_a_record_without_stored_inputs(record_dir):
         verify_record(record_dir)
 
 
+@pytest.mark.slow
 def test_inputs_in_sibling_folders_keep_their_relative_places(tmp_path):
     (tmp_path / "methods").mkdir()
     (tmp_path / "data").mkdir()
@@ -206,6 +214,7 @@ def test_an_interruption_while_writing_keeps_the_old_file(tmp_path, monkeypatch)
     assert _temp_files(tmp_path) == []
 
 
+@pytest.mark.slow
 def test_a_failing_payload_builder_leaves_the_previous_record(record_dir, monkeypatch):
     before = {name: (record_dir / name).read_bytes() for name in ("results.json", "budget.csv")}
     run = api.analyse(record_dir / "inputs" / "method.toml", trials=None)
@@ -226,6 +235,7 @@ def test_no_temporary_file_is_left_after_a_normal_write(tmp_path):
     assert os.listdir(tmp_path) == ["a.json"]
 
 
+@pytest.mark.slow
 def test_equilibrium_demo_record_verifies(tmp_path):
     # issue 8: `validate verify` confirms both demos' records; here the equilibrium study,
     # with few trials (the comparison is of every recorded number, not of their precision)
