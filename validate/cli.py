@@ -20,10 +20,23 @@ EXIT_INPUT = 2
 EXIT_DATA = 3
 
 
+class _ShowVersion(argparse.Action):
+    """--version: the version and the folder the package runs from, so a foreign module named
+    `validate` found first on the path is seen at once (README). Printed as is: argparse's own
+    version action would re-wrap a long path."""
+
+    def __init__(self, option_strings, dest, **kwargs):
+        super().__init__(option_strings, dest, nargs=0, help="show the version and the package folder, then exit")
+
+    def __call__(self, parser, namespace, values, option_string=None):
+        print(f"validate {__version__}\npackage folder: {Path(__file__).resolve().parent}")
+        parser.exit()
+
+
 def _parser() -> argparse.ArgumentParser:
     p = argparse.ArgumentParser(prog="validate", description=(
         "Uncertainty budgets and method-validation records for photometric methods."))
-    p.add_argument("--version", action="version", version=f"validate {__version__}")
+    p.add_argument("--version", action=_ShowVersion)
     sub = p.add_subparsers(dest="command", required=True)
     run = sub.add_parser("run", help="evaluate a method file and write the record")
     run.add_argument("method", help="the method file (TOML)")
