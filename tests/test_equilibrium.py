@@ -179,7 +179,7 @@ def test_linear_and_monte_carlo_engines_agree_for_small_noise():
 
 def test_undefined_trials_are_counted_not_dropped():
     # A trial whose reading implies more complex than ligand gives negative free
-    # L: DESIGN.md section 3 asks for a count, the trial stays in the array.
+    # L: docs/design.md, "Monte Carlo" asks for a count, the trial stays in the array.
     std_M, std_L, std_A, mix_M, mix_L, mix_A, eps, a0 = design(1e3)
     bad = a0 + eps * 1.5 * mix_L[0]  # [ML] = 1.5 L0, impossible
     mixA = [np.array([a, a, bad]) if i == 0 else np.array([a, a, a]) for i, a in enumerate(mix_A)]
@@ -312,7 +312,8 @@ def test_addition_series_totals_hand_computed():
 
 
 def test_shared_pipette_offset_correlates_the_series():
-    # One offset d shared by every aliquot (DESIGN.md section 3): c_k = c_s k(v+d)/(V0 + k(v+d)),
+    # One offset d shared by every aliquot (docs/design.md, "One calibration offset per item"):
+    # c_k = c_s k(v+d)/(V0 + k(v+d)),
     # so dc_k/dd = c_s k V0 / (V0 + k v)^2 and cov(c_j, c_k) = dc_j/dd dc_k/dd u(d)^2
     # (GUM 5.2.2 with one common input).
     cs, v, V0, ud = 5e-3, 1.0, 20.0, 0.006

@@ -75,7 +75,7 @@ def test_squared_contributions_add_up_to_the_combined_variance(write_method, vol
 @given(volumes=volumes)
 def test_one_item_used_twice_is_one_correlated_source(write_method, volumes):
     # The same pipette in two dilution steps: ONE calibration offset shared by both
-    # uses (DESIGN.md section 3), so its contribution is twice that of one use:
+    # uses (docs/design.md, "One calibration offset per item"), so its contribution is twice that of one use:
     # c = c0 (Vp/Vf)^2, dc/dVp = 2 c / Vp; u(offset) = tolerance/sqrt(6) (triangular, CG4).
     vp, vf = volumes
     run = api.analyse(_write(write_method, vp, vf), trials=None, advice=False)

@@ -176,7 +176,7 @@ class AdditionSeries:
 
 @dataclass(frozen=True)
 class EquilibriumStudy:
-    """A 1:1 complex-formation study M + L <=> ML (DESIGN.md section 4)."""
+    """A 1:1 complex-formation study M + L <=> ML (docs/design.md, "Equilibrium constants")."""
 
     metal: str  # solution ids of the reagent solutions
     ligand: str

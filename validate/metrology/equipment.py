@@ -1,6 +1,6 @@
 """Equipment items and their uses turned into uncertainty sources and model terms.
 
-DESIGN.md section 3: one calibration offset per item, shared by all its uses;
+docs/design.md, "Metrology rules": one calibration offset per item, shared by all its uses;
 a fresh repeatability term per use; one laboratory-temperature deviation
 shared by every volumetric step (unless the settings say otherwise); a
 burette delivery is the difference of two readings.
