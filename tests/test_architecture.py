@@ -8,6 +8,7 @@ upward import cannot hide in a function body.
 from __future__ import annotations
 
 import ast
+import re
 from pathlib import Path
 
 import pytest
@@ -121,3 +122,12 @@ def test_the_contract_catches_an_upward_import(module, dep):
 def test_the_contract_catches_a_circle():
     graph = {"validate.model.a": {"validate.model.b"}, "validate.model.b": {"validate.model.a"}}
     assert cycles(graph)
+
+
+def test_the_developers_guide_shows_the_stages_in_this_order():
+    text = (PACKAGE.parent / "DEVELOPERS.md").read_text(encoding="utf-8")
+    block = text[text.index("The house"):]
+    shown = re.search(r"```\n(.*?)\n```", block, flags=re.S)
+    assert shown, "DEVELOPERS.md, The house: the order of the stages is missing"
+    names = [n.removesuffix("/").removesuffix(".py") for n in re.findall(r"[a-z_.]+", shown.group(1))]
+    assert tuple(names) == STAGES
