@@ -62,18 +62,19 @@ def shown(path: Path) -> str:
 def complex_functions(files: list[Path], limit: int = MAX_COMPLEXITY) -> list[str]:
     """Every function, method and nested function above `limit` by radon's cyclomatic complexity."""
     try:
-        from radon.complexity import cc_visit
+        from radon.visitors import ComplexityVisitor
     except ImportError:
         pytest.fail('radon is not installed: install the test extras with pip install -e ".[test]"')
     found = []
     for path in files:
-        pending = list(cc_visit(path.read_text(encoding="utf-8")))
+        visitor = ComplexityVisitor.from_code(path.read_text(encoding="utf-8"))
+        pending = [*visitor.functions, *visitor.classes]
         while pending:
             block = pending.pop()
-            pending.extend(getattr(block, "closures", []))  # nested functions are measured apart
-            pending.extend(getattr(block, "inner_classes", []))
-            if hasattr(block, "methods"):  # a class: its methods are listed as blocks of their own
+            if hasattr(block, "methods"):  # a class: measure its methods and the classes inside it
+                pending.extend([*block.methods, *block.inner_classes])
                 continue
+            pending.extend(block.closures)  # nested functions are measured on their own
             if block.complexity > limit:
                 name = f"{block.classname}.{block.name}" if block.classname else block.name
                 found.append(f"{shown(path)}:{block.lineno} {name} has complexity {block.complexity}")
@@ -139,3 +140,11 @@ def test_the_complexity_check_passes_a_clean_file_and_catches_a_branchy_function
     found = complex_functions([bad])
     assert len(found) == 1 and f"Picker.pick has complexity {MAX_COMPLEXITY + 1}" in found[0], found
     assert complex_functions([bad], limit=MAX_COMPLEXITY + 1) == []
+    # the same method inside a nested class and as a closure is found too
+    nested = tmp_path / "nested.py"
+    body = branches.replace("\n        ", "\n            ").replace("        if x == 0", "            if x == 0", 1)
+    nested.write_text(f"class Outer:\n    class Inner:\n        def pick(self, x):\n{body}            return -1\n\n\n"
+                      f"def outer(x):\n    def pick(x):\n{body}            return -1\n    return pick(x)\n",
+                      encoding="utf-8")
+    names = sorted(line.split()[1] for line in complex_functions([nested]))
+    assert names == ["Inner.pick", "pick"], names
