@@ -15,25 +15,9 @@ from reportlab.lib.utils import ImageReader
 from reportlab.platypus import Image, KeepTogether, Paragraph
 
 from validate.model.equilibrium import COMBINED as COMBINED_K
-from validate.propagation.budget import round_gum
 from validate.report import figures
-from validate.report.style import (
-    BAD,
-    DASH,
-    FRAME_WIDTH,
-    GOOD,
-    data_table,
-    dof,
-    gap,
-    heading,
-    is_number,
-    key_value_table,
-    num,
-    para,
-    pct,
-    styles,
-    text,
-)
+from validate.report.numbers import DASH, dof, gum_decimals, gum_pair, interval, is_number, num, pct
+from validate.report.style import BAD, FRAME_WIDTH, GOOD, data_table, gap, heading, key_value_table, para, styles, text
 
 
 def png_image(data: bytes, width: float = FRAME_WIDTH) -> Image:
@@ -50,15 +34,12 @@ def figure_block(data: bytes, caption: str, width: float = FRAME_WIDTH) -> KeepT
 
 def rounded(value, expanded) -> tuple[str, str]:
     """Value and U rounded by GUM 7.2.6; dashes when the record holds no number (null)."""
-    if not (is_number(value) and is_number(expanded)):
-        return DASH, DASH
-    return round_gum(value, expanded)
+    return gum_pair(value, expanded)
 
 
 def u_decimals(result: dict) -> int:
     """Decimal places of the rounded U of a result (0 when there is none)."""
-    big_u = rounded(result.get("value"), result.get("expanded_uncertainty"))[1]
-    return len(big_u.split(".")[1]) if "." in big_u else 0
+    return gum_decimals(result.get("value"), result.get("expanded_uncertainty"))
 
 
 def concentration_unit(record: dict) -> str:
@@ -133,12 +114,8 @@ def result_rows(record: dict, results: list[dict] | None = None
 
 def mc_interval_text(result: dict) -> str:
     """The probabilistically symmetric Monte Carlo interval, to the decimal place of U."""
-    mc = result.get("monte_carlo") or {}
-    ends = mc.get("interval")
-    if not ends or not all(is_number(e) for e in ends):
-        return DASH
-    decimals = u_decimals(result)
-    return f"[{ends[0]:.{decimals}f}, {ends[1]:.{decimals}f}] {result.get('unit', '')}"
+    shown = interval((result.get("monte_carlo") or {}).get("interval"), u_decimals(result))
+    return shown if shown == DASH else f"{shown} {result.get('unit', '')}"
 
 
 def limit_text(c: dict, conc_unit: str) -> str:

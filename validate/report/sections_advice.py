@@ -7,7 +7,8 @@ or a plain list of changes. Nothing is evaluated here.
 
 from __future__ import annotations
 
-from validate.report.style import DASH, bullets, data_table, dof, heading, is_number, num, para, pct
+from validate.report.numbers import DASH, dof, is_number, num, pct
+from validate.report.style import bullets, data_table, heading, para
 
 
 def _figure(value, unit: str) -> str:

@@ -14,21 +14,10 @@ import re
 
 from validate.model.equilibrium import COMBINED, LOG10
 from validate.report import figures_equilibrium
+from validate.report.numbers import DASH, dof, is_number, num, pct, sig
 from validate.report.sections import coloured, figure_block, rounded
 from validate.report.sections_uncertainty import interval_text, mc_decimals
-from validate.report.style import (
-    DASH,
-    bullets,
-    data_table,
-    dof,
-    heading,
-    is_number,
-    key_value_table,
-    num,
-    para,
-    pct,
-    sig,
-)
+from validate.report.style import bullets, data_table, heading, key_value_table, para
 
 SERIES_ID = re.compile(r"^.+\.\d+$")  # addition-series readings are named "<series>.<n>", e.g. T.1
 WEIGHTS_PER_ROW = 10

@@ -7,7 +7,8 @@ from pathlib import PurePath
 from reportlab.lib.units import mm
 from reportlab.platypus import Paragraph, Table, TableStyle
 
-from validate.report.style import ACCENT, DASH, INK, bullets, data_table, heading, key_value_table, para, styles, text
+from validate.report.numbers import DASH
+from validate.report.style import ACCENT, INK, bullets, data_table, heading, key_value_table, para, styles, text
 
 CAUTIONS = (
     "This report evaluates the data it was given. It does not replace the laboratory's own "

@@ -14,6 +14,7 @@ from reportlab.lib.units import mm
 from reportlab.platypus import CondPageBreak, Table, TableStyle
 
 from validate.model.equilibrium import COMBINED, LOG10
+from validate.report.numbers import DASH, dof, is_number, num, pct
 from validate.report.sections import coloured, criteria_block, monte_carlo_line, result_rows, rounded, u_decimals
 from validate.report.sections_equilibrium import k_unit, point_interval, point_result, results_by_name
 from validate.report.sections_uncertainty import (
@@ -24,7 +25,7 @@ from validate.report.sections_uncertainty import (
     monte_carlo_for_result,
     monte_carlo_intro,
 )
-from validate.report.style import BAD, DASH, data_table, dof, heading, is_number, key_value_table, num, para, pct, text
+from validate.report.style import BAD, data_table, heading, key_value_table, para, text
 
 SAME_SHARES = 1e-6  # log10 K's shares equal K's when they differ by less than this
 

@@ -2,14 +2,13 @@
 
 from __future__ import annotations
 
-import math
-
 from reportlab.lib.units import mm
 from reportlab.platypus import CondPageBreak, Table, TableStyle
 
 from validate.report import figures
+from validate.report.numbers import DASH, dof, interval, is_number, num, pct, tolerance_decimals
 from validate.report.sections import coloured, figure_block, rounded, u_decimals
-from validate.report.style import DASH, data_table, dof, heading, is_number, key_value_table, num, para, pct
+from validate.report.style import data_table, heading, key_value_table, para
 
 MIN_SHARE_SHOWN = 1e-4  # budget rows below 0.01 % are summed in one line (all are in budget.csv)
 
@@ -99,16 +98,12 @@ def budget(record: dict) -> list:
 
 def mc_decimals(mc: dict, result: dict) -> int:
     """Decimal places: those of the numerical tolerance (JCGM 101 7.9.2), else of U + 1."""
-    tol = mc.get("tolerance")
-    if is_number(tol) and tol > 0:
-        return max(0, -math.floor(math.log10(tol)))
-    return u_decimals(result) + 1
+    return tolerance_decimals(mc.get("tolerance"), u_decimals(result) + 1)
 
 
 def interval_text(ends, decimals: int, unit: str) -> str:
-    if not ends or not all(is_number(e) for e in ends):
-        return DASH
-    return f"[{ends[0]:.{decimals}f}, {ends[1]:.{decimals}f}] {unit}"
+    shown = interval(ends, decimals)
+    return shown if shown == DASH else f"{shown} {unit}"
 
 
 def monte_carlo_for_result(result: dict) -> list:

@@ -8,8 +8,9 @@ the record has no `validation` block (or no data for the section).
 from __future__ import annotations
 
 from validate.report import figures
+from validate.report.numbers import DASH, is_number, num, pct
 from validate.report.sections import coloured, concentration_unit, figure_block
-from validate.report.style import DASH, bullets, data_table, heading, is_number, key_value_table, num, para, pct
+from validate.report.style import bullets, data_table, heading, key_value_table, para
 
 TEST_KEYS = ("lack_of_fit", "mandel", "runs", "intercept", "weighting")
 
