@@ -402,7 +402,7 @@ def test_equilibrium_section_has_the_record_numbers(nickel_report, nickel_record
 def test_negative_weights_are_explained(nickel_report, nickel_record):
     info, _, pages = nickel_report
     weights = nickel_record["equilibrium"]["combined"]["weights"]
-    negative = [m["id"] for m, w in zip(nickel_record["equilibrium"]["mixtures"], weights) if w < 0]
+    negative = [m["id"] for m, w in zip(nickel_record["equilibrium"]["mixtures"], weights, strict=True) if w < 0]
     assert negative  # strongly correlated points: the demo has negative GLS weights
     section = section_text(pages, info, "Equilibrium constant")
     assert f"{len(negative)} of them are negative" in section

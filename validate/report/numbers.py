@@ -22,12 +22,13 @@ from __future__ import annotations
 
 import math
 from decimal import ROUND_HALF_EVEN, Decimal
+from typing import TypeGuard
 
 DASH = "–"  # shown where a value is missing (PDF)
 MISSING = "n/a"  # shown where a value is missing (terminal)
 
 
-def is_number(value) -> bool:
+def is_number(value) -> TypeGuard[float]:
     """A finite int or float (not a bool)."""
     return isinstance(value, (int, float)) and not isinstance(value, bool) and math.isfinite(value)
 

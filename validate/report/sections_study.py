@@ -126,7 +126,7 @@ def summary(record: dict) -> list:
 # Uncertainty budget
 
 def _same_shares(record: dict, a: str, b: str) -> bool:
-    shares = {}
+    shares: dict[str, dict] = {}
     for row in record.get("budget") or []:
         if row.get("result") in (a, b) and is_number(row.get("share")):
             shares.setdefault(row["result"], {})[row.get("source")] = row["share"]
@@ -149,7 +149,7 @@ def _log10_budget(record: dict, combined: dict, log10k: dict | None) -> list:
                  f"{num(log10k.get('standard_uncertainty'), 3)} (GUM 5.1.2).", "body")]
 
 
-def _largest_source(record: dict, name: str) -> tuple[str, str]:
+def _largest_source(record: dict, name: str | None) -> tuple[str, str]:
     rows = [r for r in record.get("budget") or [] if r.get("result") == name and is_number(r.get("share"))]
     if not rows:
         return DASH, DASH
@@ -203,17 +203,18 @@ def _largest_share_difference(first: dict, second: dict) -> float | None:
 
 
 def _log10_mc(combined: dict, log10k: dict | None) -> list:
-    mc = (log10k or {}).get("monte_carlo")
-    if not isinstance(mc, dict):
+    if not log10k or not isinstance(log10k.get("monte_carlo"), dict):
         return []
+    mc = log10k["monte_carlo"]
     d = mc_decimals(mc, log10k)
     agrees = mc.get("agrees_with_gum")
+    verdict = ({True: "validated", False: "not validated: report the Monte Carlo interval"}[agrees]
+               if isinstance(agrees, bool) else "not evaluated")
     facts = [("95 % interval, probabilistically symmetric", interval_text(mc.get("interval"), d, "")),
              ("95 % interval, shortest", interval_text(mc.get("shortest_interval"), d, "")),
              ("95 % GUM interval y ± U", interval_text(mc.get("gum_interval"), d, "")),
              ("verdict (JCGM 101 clause 8)",
-              coloured({True: "validated", False: "not validated: report the Monte Carlo interval"}
-                       .get(agrees, "not evaluated"), agrees if isinstance(agrees, bool) else None))]
+              coloured(verdict, agrees if isinstance(agrees, bool) else None))]
     diff = _largest_share_difference(combined.get("monte_carlo") or {}, mc)
     lead = "From the same trials as K."
     if diff is not None:

@@ -7,6 +7,7 @@ headings, light grey rules, numbers right-aligned in tables.
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from functools import lru_cache
 from pathlib import Path
 from xml.sax.saxutils import escape
@@ -113,7 +114,7 @@ def gap(height_mm: float = 3) -> Spacer:
 # --------------------------------------------------------------------------
 # tables
 
-def data_table(header: list[str], rows: list[list], widths_mm: list[float],
+def data_table(header: list[str], rows: list[list], widths_mm: Sequence[float],
                numeric: set[int] | frozenset = frozenset(), zebra: bool = True,
                extra_style: list | None = None) -> Table:
     """A table that wraps every cell, right-aligns numeric columns and repeats its header.
@@ -152,7 +153,7 @@ def data_table(header: list[str], rows: list[list], widths_mm: list[float],
     return table
 
 
-def key_value_table(pairs: list[tuple[str, object]], widths_mm=(52, 122)) -> Table:
+def key_value_table(pairs: Sequence[tuple[str, object]], widths_mm=(52, 122)) -> Table:
     """Two columns, label and value, for short facts (no header row)."""
     s = styles()
     rows = [[Paragraph(text(k), s["cell_head"]),

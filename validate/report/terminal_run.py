@@ -174,7 +174,7 @@ def _mixture_lines(e: dict) -> list[Printable]:
 
 
 def _combination_lines(e: dict) -> list[Printable]:
-    c, lines = e["combined"], []
+    c, lines = e["combined"], list[Printable]()
     if c.get("consistency"):
         k = c["consistency"]
         lines.append(Line(f"  consistency: chi-square {k['chi_square']:.2f} on {k['dof']} dof, p = "
@@ -204,7 +204,7 @@ def _bias_lines(e: dict) -> list[Printable]:
 
 
 def _cross_check_lines(e: dict) -> list[Printable]:
-    unit, lines = escape(e["k_unit"]), []
+    unit, lines = escape(e["k_unit"]), list[Printable]()
     joint = e.get("joint_fit") or {}
     if "K" in joint:
         lines.append(Line(f"  cross-check, joint nonlinear fit: K = {joint['K']:.4g} ± "
