@@ -75,6 +75,8 @@ def test_a_trailing_five_of_the_uncertainty_rounds_to_even():
     # ISO 80000-1:2009, annex B, rule B (from memory): a dropped 5 leaves an even last digit
     assert gum_pair(1.0, 0.0145)[1] == "0.014"
     assert gum_pair(1.0, 0.0235)[1] == "0.024"
+    # why numbers.py does its own rounding: the `uncertainties` package rounds this 5 up
+    assert f"{ufloat(1.0, 0.0145):.2uf}" == "1.000+/-0.015"
 
 
 def test_negative_values_and_missing_numbers():

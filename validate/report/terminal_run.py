@@ -10,7 +10,7 @@ from rich.markup import escape
 from rich.table import Table
 
 from validate.model.equilibrium import COMBINED, LOG10
-from validate.report.numbers import MISSING, compact, decimals_of, gum_pair, interval
+from validate.report.numbers import MISSING, compact, decimals_of, dof, gum_pair, interval
 
 
 @dataclass(frozen=True)
@@ -132,7 +132,7 @@ def _budget_lines(record: dict, result: dict, top: int) -> list[Printable]:
 def result_lines(record: dict, result: dict, top: int) -> list[Printable]:
     """A result with U rounded by GUM 7.2.6, its Monte Carlo check and its largest sources."""
     value, big_u = gum_pair(result["value"], result["expanded_uncertainty"], missing=MISSING)
-    nu = "inf" if result.get("effective_dof") is None else f"{result['effective_dof']:.0f}"
+    nu = dof(result.get("effective_dof"), infinite="inf")
     lines: list[Printable] = [BLANK, Line(f"[bold]{escape(result['name'])}[/]")]
     lines += [Line(f"  [bold yellow]FLAG[/] {escape(flag)}: report with this flag, not as a plain number")
               for flag in result.get("flags") or []]
