@@ -7,6 +7,7 @@ from pathlib import Path
 
 import pytest
 
+from validate.report.terminal import format_quick_check
 from validate.validation.quickcheck import (
     CellError,
     DecimalCommaError,
@@ -14,7 +15,6 @@ from validate.validation.quickcheck import (
     SampleError,
     TableError,
     TooFewLevelsError,
-    format_quick_check,
     load_table,
     quick_check,
 )

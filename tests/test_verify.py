@@ -14,7 +14,8 @@ from conftest import DEMOS
 
 from validate.inputs.errors import InputError
 from validate.record import files as records
-from validate.record.verify import compare, describe, reproducible_part, store_inputs
+from validate.record.verify import compare, reproducible_part, store_inputs
+from validate.report.terminal import describe_verify
 from validate.workflow import pipeline as api
 from validate.workflow.verify import verify_record
 
@@ -72,7 +73,7 @@ def test_an_untouched_record_verifies(record_dir):
     assert report.numbers_compared > 4 * 36 * 6
     assert json.loads(json.dumps(report.to_dict()))["passed"] is True
     assert report.recorded_version == report.current_version
-    assert describe(report)[-1].startswith("verified")
+    assert describe_verify(report.to_dict())[-1].startswith("verified")
 
 
 @pytest.mark.slow
@@ -91,7 +92,7 @@ def test_an_edited_readings_table_is_caught(record_dir):
     assert changed.recomputed > changed.recorded
     # the other samples are read off the same (unchanged) line: their values are reproduced
     assert not any(p.startswith(("results[1].value", "results[2].value", "results[3].value")) for p in by_path)
-    text = "\n".join(describe(report))
+    text = "\n".join(describe_verify(report.to_dict()))
     assert "inputs/readings.csv: CHANGED" in text and "results[0].value" in text and "NOT verified" in text
 
 

@@ -190,29 +190,3 @@ def _record_id(record: dict) -> str | None:
 
 def _recorded_version(record: dict) -> str | None:
     return (record.get("software") or {}).get("version")
-
-
-def describe(report: VerifyReport, limit: int = 20) -> list[str]:
-    """Plain-words lines for the terminal: each input, the re-run, the first mismatches."""
-    lines = [f"record {report.record_id or '(no id)'} in {report.folder}, written by validate "
-             f"{report.recorded_version or '(unknown version)'}, re-run with {report.current_version}"]
-    for check in report.inputs:
-        state = ("unchanged" if check.matches else
-                 "MISSING" if check.stored_sha256 is None else "CHANGED (SHA-256 differs from the record)")
-        lines.append(f"  input {check.stored}: {state}")
-    how = f"{report.trials} Monte Carlo trials, seed {report.seed}" if report.trials else "linear engine only"
-    if report.rerun_error:
-        lines.append(f"  re-run ({how}) failed: {report.rerun_error}")
-    elif report.mismatches:
-        lines.append(f"  re-run ({how}): {len(report.mismatches)} of the record's values differ "
-                     f"({report.numbers_compared} numbers compared, relative tolerance {RELATIVE_TOLERANCE:g})")
-        for m in report.mismatches[:limit]:
-            lines.append(f"    {m.path}: recorded {m.recorded!r}, now {m.recomputed!r}")
-        if len(report.mismatches) > limit:
-            lines.append(f"    ... and {len(report.mismatches) - limit} more")
-    else:
-        lines.append(f"  re-run ({how}): results and budget reproduced "
-                     f"({report.numbers_compared} numbers, relative tolerance {RELATIVE_TOLERANCE:g})")
-    lines.append("verified: the record reproduces from its stored inputs" if report.passed else
-                 "NOT verified: see above")
-    return lines

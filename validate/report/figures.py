@@ -64,59 +64,77 @@ def prediction_band(x, y, grid, slope: float, intercept: float, p: float = 0.95)
     return t * s * np.sqrt(1.0 + 1.0 / n + (grid - x.mean()) ** 2 / sxx), s
 
 
-def calibration_figure(calibration: dict) -> bytes:
-    """The line with its standards, a 95 % prediction band and the samples; residuals beneath."""
-    pts = calibration["points"]
-    x = np.array([p["concentration"] for p in pts], dtype=float)
-    y = np.array([p["absorbance"] for p in pts], dtype=float)
-    b, a = float(calibration["slope"]), float(calibration["intercept"])
-    unit = calibration.get("concentration_unit", "")
+def _samples_on_line(calibration: dict, a: float, b: float) -> list[tuple[str, float, float]]:
+    """(id, concentration read off the line, mean reading) of every sample with readings."""
     samples = []
     for s in calibration.get("samples") or []:
         readings = [r for r in s.get("readings", []) if r is not None]
         if readings and b != 0:
             mean = float(np.mean(readings))
             samples.append((s["id"], (mean - a) / b, mean))
+    return samples
+
+
+def _line_panel(ax, points: dict, samples: list, grid, line: tuple[float, float], half) -> None:
+    """The line, its prediction band, the standards (blanks apart) and the samples."""
+    a, b = line
+    x, y, blank = points["x"], points["y"], points["blank"]
+    fitted = a + b * grid
+    if half is not None:
+        ax.fill_between(grid, fitted - half, fitted + half, color=BAND, linewidth=0,
+                        label="95 % prediction band (one new reading)")
+    ax.plot(grid, fitted, color=LINE, linewidth=1.3, label=f"fitted line A = {a:.4g} + {b:.4g} c")
+    ax.plot(x[~blank], y[~blank], "o", color=POINT, markersize=3.6, label="standards")
+    if blank.any():
+        ax.plot(x[blank], y[blank], "s", color=MUTED, markersize=3.6, label="blanks")
+    if samples:
+        ax.plot([sx for _, sx, _ in samples], [sy for _, _, sy in samples], "D", color=WARM,
+                markersize=4.5, markerfacecolor="white", markeredgewidth=1.2,
+                label="samples (mean reading, read off the line)")
+    ax.set_ylabel("absorbance", fontsize=9)
+    ax.legend(fontsize=7.5, loc="upper left", frameon=False)
+    ax.tick_params(labelbottom=False)
+    _tidy(ax)
+
+
+def _residual_panel(ax, points: dict, grid, line: tuple[float, float], half, unit: str) -> None:
+    """Residuals of the readings, with the same band drawn about zero."""
+    a, b = line
+    x, blank = points["x"], points["blank"]
+    resid = points["y"] - (a + b * x)
+    if half is not None:  # the same band, relative to the line, where its width can be seen
+        ax.fill_between(grid, -half, half, color=BAND, linewidth=0)
+    ax.axhline(0.0, color=LINE, linewidth=1.0)
+    ax.plot(x[~blank], resid[~blank], "o", color=POINT, markersize=3.4)
+    if blank.any():
+        ax.plot(x[blank], resid[blank], "s", color=MUTED, markersize=3.4)
+    ax.set_ylabel("residual", fontsize=9)
+    ax.set_xlabel(f"concentration / {unit}" if unit else "concentration", fontsize=9)
+    _tidy(ax)
+
+
+def calibration_figure(calibration: dict) -> bytes:
+    """The line with its standards, a 95 % prediction band and the samples; residuals beneath."""
+    pts = calibration["points"]
+    x = np.array([p["concentration"] for p in pts], dtype=float)
+    y = np.array([p["absorbance"] for p in pts], dtype=float)
+    blank = np.array([p.get("id", "").lower().startswith("blank") or p["concentration"] == 0
+                      for p in pts])
+    points = {"x": x, "y": y, "blank": blank}
+    b, a = float(calibration["slope"]), float(calibration["intercept"])
+    samples = _samples_on_line(calibration, a, b)
     x_hi = max([float(x.max())] + [sx for _, sx, _ in samples])
     x_lo = min([0.0, float(x.min())] + [sx for _, sx, _ in samples])
     grid = np.linspace(x_lo, x_hi + 0.03 * (x_hi - x_lo), 200)
+    half = prediction_band(x, y, grid, b, a)[0] if x.size > 2 else None
 
     fig = _figure(4.9)
     gs = fig.add_gridspec(2, 1, height_ratios=[3, 1.35], hspace=0.08,
                           left=0.12, right=0.98, top=0.97, bottom=0.1)
     top = fig.add_subplot(gs[0])
     low = fig.add_subplot(gs[1], sharex=top)
-    fitted = a + b * grid
-    half = prediction_band(x, y, grid, b, a)[0] if x.size > 2 else None
-    if half is not None:
-        top.fill_between(grid, fitted - half, fitted + half, color=BAND, linewidth=0,
-                         label="95 % prediction band (one new reading)")
-    top.plot(grid, fitted, color=LINE, linewidth=1.3,
-             label=f"fitted line A = {a:.4g} + {b:.4g} c")
-    blank = np.array([p.get("id", "").lower().startswith("blank") or p["concentration"] == 0
-                      for p in pts])
-    top.plot(x[~blank], y[~blank], "o", color=POINT, markersize=3.6, label="standards")
-    if blank.any():
-        top.plot(x[blank], y[blank], "s", color=MUTED, markersize=3.6, label="blanks")
-    if samples:
-        top.plot([sx for _, sx, _ in samples], [sy for _, _, sy in samples], "D", color=WARM,
-                 markersize=4.5, markerfacecolor="white", markeredgewidth=1.2,
-                 label="samples (mean reading, read off the line)")
-    top.set_ylabel("absorbance", fontsize=9)
-    top.legend(fontsize=7.5, loc="upper left", frameon=False)
-    top.tick_params(labelbottom=False)
-    _tidy(top)
-
-    resid = y - (a + b * x)
-    if half is not None:  # the same band, relative to the line, where its width can be seen
-        low.fill_between(grid, -half, half, color=BAND, linewidth=0)
-    low.axhline(0.0, color=LINE, linewidth=1.0)
-    low.plot(x[~blank], resid[~blank], "o", color=POINT, markersize=3.4)
-    if blank.any():
-        low.plot(x[blank], resid[blank], "s", color=MUTED, markersize=3.4)
-    low.set_ylabel("residual", fontsize=9)
-    low.set_xlabel(f"concentration / {unit}" if unit else "concentration", fontsize=9)
-    _tidy(low)
+    _line_panel(top, points, samples, grid, (a, b), half)
+    _residual_panel(low, points, grid, (a, b), half, calibration.get("concentration_unit", ""))
     return _png(fig)
 
 
@@ -138,7 +156,7 @@ def _bars(ax, labels, shares, title: str) -> None:
     ax.set_yticklabels([_short(lab) for lab in labels], fontsize=7.2)
     right = max(values.max() if values.size else 1.0, 1e-9)
     ax.set_xlim(0, right * 1.18)
-    for pos, v in zip(positions, values):
+    for pos, v in zip(positions, values, strict=True):
         ax.text(v + right * 0.01, pos, _share_text(v), va="center", fontsize=7)
     ax.set_xlabel("share of the combined variance / %", fontsize=8)
     ax.set_title(title, fontsize=9, loc="left")
@@ -161,9 +179,9 @@ def share_chart(by_source: list[tuple[str, float]], by_step: list[tuple[str, flo
     gs = fig.add_gridspec(2, 1, height_ratios=[max(len(shown), 1), max(len(steps), 1)],
                           hspace=1.1 / height * 2.2, left=0.4, right=0.97,
                           top=1 - 0.3 / height, bottom=0.45 / height)
-    _bars(fig.add_subplot(gs[0]), [l for l, _ in shown], [s for _, s in shown],
+    _bars(fig.add_subplot(gs[0]), [label for label, _ in shown], [s for _, s in shown],
           f"by source (largest {min(top, len(ranked))})")
-    _bars(fig.add_subplot(gs[1]), [l for l, _ in steps], [s for _, s in steps], "by step")
+    _bars(fig.add_subplot(gs[1]), [label for label, _ in steps], [s for _, s in steps], "by step")
     return _png(fig)
 
 
@@ -175,7 +193,7 @@ def monte_carlo_figure(mc: dict, value: float, u: float, nu_eff, unit: str) -> b
     widths = np.diff(edges)
     density = counts / (counts.sum() * widths) if counts.sum() > 0 else counts
     fig = _figure(3.1)
-    ax = fig.add_axes([0.1, 0.33, 0.87, 0.63])
+    ax = fig.add_axes((0.1, 0.33, 0.87, 0.63))
     ax.bar(edges[:-1], density, width=widths, align="edge", color=BAND, edgecolor=BAND,
            label="Monte Carlo trials")
     grid = np.linspace(edges[0], edges[-1], 400)
@@ -207,7 +225,7 @@ def window_figure(standards: list[float], samples: list[float], low: float, high
     a_max = max([2.0] + [a * 1.1 for a in readings])
     curve = error_curve(0.02, a_max, 300)
     fig = _figure(2.7)
-    ax = fig.add_axes([0.1, 0.18, 0.87, 0.66])
+    ax = fig.add_axes((0.1, 0.18, 0.87, 0.66))
     ax.axvspan(low, high, color="#e9efe6", label=f"recommended window {low:g} to {high:g}")
     ax.plot(curve.absorbance, curve.relative_error_factor, color=LINE, linewidth=1.3,
             label="relative error per unit transmittance noise")

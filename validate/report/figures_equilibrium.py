@@ -28,7 +28,7 @@ def k_per_point_figure(points: list[PointK], combined: float | None, expanded: f
                        mc_interval: tuple[float, float] | None, unit: str, bar_label: str) -> bytes:
     """K of each point with its error bar; the combined K as a line, its GUM band and MC interval."""
     fig = _figure(3.6)
-    ax = fig.add_axes([0.11, 0.3, 0.86, 0.66])
+    ax = fig.add_axes((0.11, 0.3, 0.86, 0.66))
     x = np.arange(len(points))
     if combined is not None:
         if expanded is not None:

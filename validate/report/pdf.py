@@ -87,7 +87,7 @@ class ReportInfo:
 
 def _story(record: dict) -> tuple[list, list[str]]:
     """All flowables in order, and the titles of the sections that were rendered."""
-    story, titles = list(sections.title_block(record)), []
+    story, titles = list(sections.title_block(record)), list[str]()
     for title, builder, new_page in SECTIONS:
         body = builder(record)
         if body is None and title not in FIXED:

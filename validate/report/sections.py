@@ -15,25 +15,9 @@ from reportlab.lib.utils import ImageReader
 from reportlab.platypus import Image, KeepTogether, Paragraph
 
 from validate.model.equilibrium import COMBINED as COMBINED_K
-from validate.propagation.budget import round_gum
 from validate.report import figures
-from validate.report.style import (
-    BAD,
-    DASH,
-    FRAME_WIDTH,
-    GOOD,
-    data_table,
-    dof,
-    gap,
-    heading,
-    is_number,
-    key_value_table,
-    num,
-    para,
-    pct,
-    styles,
-    text,
-)
+from validate.report.numbers import DASH, dof, gum_decimals, gum_pair, interval, is_number, num, pct
+from validate.report.style import BAD, FRAME_WIDTH, GOOD, data_table, gap, heading, key_value_table, para, styles, text
 
 
 def png_image(data: bytes, width: float = FRAME_WIDTH) -> Image:
@@ -50,15 +34,12 @@ def figure_block(data: bytes, caption: str, width: float = FRAME_WIDTH) -> KeepT
 
 def rounded(value, expanded) -> tuple[str, str]:
     """Value and U rounded by GUM 7.2.6; dashes when the record holds no number (null)."""
-    if not (is_number(value) and is_number(expanded)):
-        return DASH, DASH
-    return round_gum(value, expanded)
+    return gum_pair(value, expanded)
 
 
 def u_decimals(result: dict) -> int:
     """Decimal places of the rounded U of a result (0 when there is none)."""
-    big_u = rounded(result.get("value"), result.get("expanded_uncertainty"))[1]
-    return len(big_u.split(".")[1]) if "." in big_u else 0
+    return gum_decimals(result.get("value"), result.get("expanded_uncertainty"))
 
 
 def concentration_unit(record: dict) -> str:
@@ -71,7 +52,7 @@ def concentration_unit(record: dict) -> str:
 
 
 def coloured(status: str, good: bool | None) -> Paragraph:
-    colour = {True: GOOD.hexval(), False: BAD.hexval()}.get(good)
+    colour = {True: GOOD.hexval(), False: BAD.hexval()}.get(good) if good is not None else None
     body = f"<b>{text(status)}</b>" if colour is None else \
         f'<font color="#{colour[2:]}"><b>{text(status)}</b></font>'
     return Paragraph(body, styles()["cell"])
@@ -91,6 +72,33 @@ def title_block(record: dict) -> list:
             gap(2), key_value_table(facts, (32, 142)), gap(3)]
 
 
+def _relative(value, expanded) -> float | None:
+    """U / |y|, None when either is missing or y is zero."""
+    return expanded / abs(value) if is_number(value) and value and is_number(expanded) else None
+
+
+def _result_row(r: dict, with_mc: bool) -> list:
+    value, big_u = rounded(r.get("value"), r.get("expanded_uncertainty"))
+    unit = r.get("unit", "")
+    row = [r.get("name", DASH), f"{value} {unit}", f"{big_u} {unit}", num(r.get("coverage_factor"), 3),
+           pct(r.get("coverage_probability"), 0), dof(r.get("effective_dof")),
+           pct(_relative(r.get("value"), r.get("expanded_uncertainty")))]
+    return row + [mc_interval_text(r)] if with_mc else row
+
+
+def _combined_k_row(record: dict, eq: dict, with_mc: bool) -> list:
+    """The combined K of an equilibrium study, for records that do not list it as a result."""
+    value, big_u = rounded(eq["K"], eq["expanded_uncertainty"])
+    u = eq.get("standard_uncertainty")
+    k = eq["expanded_uncertainty"] / u if is_number(u) and u > 0 else None
+    unit = record["equilibrium"].get("k_unit") or record["equilibrium"].get("unit", "L/mol")
+    row = ["formation constant K (combined)", f"{value} {unit}", f"{big_u} {unit}", num(k, 3),
+           pct(eq.get("coverage_probability"), 0) if eq.get("coverage_probability") else DASH,
+           dof(eq["effective_dof"]) if "effective_dof" in eq else DASH,
+           pct(eq["expanded_uncertainty"] / abs(eq["K"]) if eq["K"] else None)]
+    return row + [DASH] if with_mc else row
+
+
 def result_rows(record: dict, results: list[dict] | None = None
                 ) -> tuple[list[str], list[list], list[float], set[int]]:
     """Header, rows, column widths and numeric columns of the results table (all results by default)."""
@@ -98,47 +106,22 @@ def result_rows(record: dict, results: list[dict] | None = None
     results = every if results is None else results
     with_mc = any(r.get("monte_carlo") for r in results)
     header = ["result", "value", "U", "k", "p", "ν_eff", "U / value"]
-    widths = [58, 26, 24, 13, 12, 13, 18]
+    widths: list[float] = [58, 26, 24, 13, 12, 13, 18]
     if with_mc:
         header.append("Monte Carlo interval")
         widths = [44, 22, 20, 12, 11, 12, 17, 36]
-    rows = []
-    for r in results:
-        value, big_u = rounded(r.get("value"), r.get("expanded_uncertainty"))
-        unit = r.get("unit", "")
-        rel = (r["expanded_uncertainty"] / abs(r["value"])
-               if is_number(r.get("value")) and r["value"] and is_number(r.get("expanded_uncertainty"))
-               else None)
-        row = [r.get("name", DASH), f"{value} {unit}", f"{big_u} {unit}", num(r.get("coverage_factor"), 3),
-               pct(r.get("coverage_probability"), 0), dof(r.get("effective_dof")), pct(rel)]
-        if with_mc:
-            row.append(mc_interval_text(r))
-        rows.append(row)
+    rows = [_result_row(r, with_mc) for r in results]
     eq = (record.get("equilibrium") or {}).get("combined")
     listed = any(r.get("name") == COMBINED_K for r in every)  # never list the combined K twice
     if eq and not listed and is_number(eq.get("K")) and is_number(eq.get("expanded_uncertainty")):
-        value, big_u = rounded(eq["K"], eq["expanded_uncertainty"])
-        u = eq.get("standard_uncertainty")
-        k = eq["expanded_uncertainty"] / u if is_number(u) and u > 0 else None
-        unit = record["equilibrium"].get("k_unit") or record["equilibrium"].get("unit", "L/mol")
-        row = ["formation constant K (combined)", f"{value} {unit}", f"{big_u} {unit}", num(k, 3),
-               pct(eq.get("coverage_probability"), 0) if eq.get("coverage_probability") else DASH,
-               dof(eq["effective_dof"]) if "effective_dof" in eq else DASH,
-               pct(eq["expanded_uncertainty"] / abs(eq["K"]) if eq["K"] else None)]
-        if with_mc:
-            row.append(DASH)
-        rows.append(row)
+        rows.append(_combined_k_row(record, eq, with_mc))
     return header, rows, widths, set(range(1, len(header)))
 
 
 def mc_interval_text(result: dict) -> str:
     """The probabilistically symmetric Monte Carlo interval, to the decimal place of U."""
-    mc = result.get("monte_carlo") or {}
-    ends = mc.get("interval")
-    if not ends or not all(is_number(e) for e in ends):
-        return DASH
-    decimals = u_decimals(result)
-    return f"[{ends[0]:.{decimals}f}, {ends[1]:.{decimals}f}] {result.get('unit', '')}"
+    shown = interval((result.get("monte_carlo") or {}).get("interval"), u_decimals(result))
+    return shown if shown == DASH else f"{shown} {result.get('unit', '')}"
 
 
 def limit_text(c: dict, conc_unit: str) -> str:
@@ -149,13 +132,36 @@ def limit_text(c: dict, conc_unit: str) -> str:
         return "not set"
     if isinstance(limit, (list, tuple)):
         return f"{num(limit[0])} to {num(limit[1])}{suffix}"
-    symbol = {">=": "≥", "<=": "≤", "|x| <=": "|x| ≤"}.get(c.get("comparison"), c.get("comparison", ""))
+    comparison = str(c.get("comparison", ""))
+    symbol = {">=": "≥", "<=": "≤", "|x| <=": "|x| ≤"}.get(comparison, comparison)
     return f"{symbol} {num(limit, 6)}{suffix}"
 
 
 def pretty(name: str) -> str:
     """Plain-text exponents of the record shown as superscripts (r^2 -> r²)."""
     return str(name).replace("^2", "²").replace("^-1", "⁻¹")
+
+
+def _overall(crit: dict, shown: list[dict]) -> Paragraph:
+    """One coloured line: every criterion met, how many not met, or none evaluable."""
+    failed = [c for c in shown if c.get("met") is False]
+    if crit.get("all_met") is True:
+        return coloured("Every evaluated acceptance criterion is met.", True)
+    if crit.get("all_met") is False:
+        return coloured(f"{len(failed)} of {len(shown)} acceptance criteria not met.", False)
+    return coloured("No acceptance criterion could be evaluated.", None)
+
+
+def _criterion_row(c: dict, conc_unit: str) -> list:
+    unit = c.get("unit", "")
+    unit = conc_unit if unit == "concentration unit" else unit
+    value = c.get("observed")
+    # r² close to 1 needs its digits; other observations read well with four
+    digits = 6 if is_number(value) and 0.9 < value < 1 else 4
+    observed = f"{num(value, digits)} {unit}".strip() if value is not None else DASH
+    origin = "default (common practice)" if c.get("is_default") else "set by the user"
+    return [pretty(c.get("name", c.get("key", ""))), limit_text(c, conc_unit), observed,
+            coloured(c.get("status", DASH), c.get("met")), origin]
 
 
 def criteria_block(record: dict) -> list:
@@ -166,25 +172,8 @@ def criteria_block(record: dict) -> list:
     items = crit.get("criteria") or []
     shown = [c for c in items if c.get("status") != "not set"]
     not_set = [pretty(c.get("name", c.get("key", ""))) for c in items if c.get("status") == "not set"]
-    failed = [c for c in shown if c.get("met") is False]
-    if crit.get("all_met") is True:
-        overall = coloured("Every evaluated acceptance criterion is met.", True)
-    elif crit.get("all_met") is False:
-        overall = coloured(f"{len(failed)} of {len(shown)} acceptance criteria not met.", False)
-    else:
-        overall = coloured("No acceptance criterion could be evaluated.", None)
-    rows = []
-    for c in shown:
-        unit = c.get("unit", "")
-        unit = conc_unit if unit == "concentration unit" else unit
-        value = c.get("observed")
-        # r² close to 1 needs its digits; other observations read well with four
-        digits = 6 if is_number(value) and 0.9 < value < 1 else 4
-        observed = f"{num(value, digits)} {unit}".strip() if value is not None else DASH
-        origin = "default (common practice)" if c.get("is_default") else "set by the user"
-        rows.append([pretty(c.get("name", c.get("key"))), limit_text(c, conc_unit), observed,
-                     coloured(c.get("status", DASH), c.get("met")), origin])
-    out = [heading("Acceptance criteria", 2), overall, gap(1.5)]
+    rows = [_criterion_row(c, conc_unit) for c in shown]
+    out = [heading("Acceptance criteria", 2), _overall(crit, shown), gap(1.5)]
     if rows:
         out.append(data_table(["criterion", "limit", "observed", "verdict", "limit from"], rows,
                               [52, 24, 26, 26, 46], numeric={2}))

@@ -7,7 +7,8 @@ or a plain list of changes. Nothing is evaluated here.
 
 from __future__ import annotations
 
-from validate.report.style import DASH, bullets, data_table, dof, heading, is_number, num, para, pct
+from validate.report.numbers import DASH, dof, is_number, num, pct
+from validate.report.style import bullets, data_table, heading, para
 
 
 def _figure(value, unit: str) -> str:
@@ -46,36 +47,47 @@ def _effects(advice: dict, units: dict, title: str) -> list:
                        rows, [62, 46, 34, 32], numeric={1, 2, 3})]
 
 
-def advice(record: dict) -> list | None:
+TABLE_HEADER = ["#", "change", "after the change", "reduction", "Monte Carlo after", "cost"]
+TABLE_WIDTHS = [7, 60, 22, 18, 24, 43]
+
+
+def _advice_block(record: dict) -> dict | None:
+    """The advisor's block as a dict (a plain list of changes is wrapped), None when empty."""
     block = record.get("advice")
     if isinstance(block, list):
         block = {"items": block}
     if not isinstance(block, dict) or not (block.get("items") or block.get("combined")):
         return None
-    units = {r.get("name"): r.get("unit", "") for r in record.get("results") or []}
-    unit = block.get("unit") or next(iter(units.values()), "")
-    items = [a for a in block.get("items") or [] if isinstance(a, dict)]
+    return block
+
+
+def _intro(block: dict, unit: str) -> list:
     intro = ("Each change is evaluated with the same model, one at a time"
              + (f", {block['ranking']}" if block.get("ranking") else "") + ".")
     if is_number(block.get("expanded_uncertainty_before")):
         intro += (f" Now: {block.get('target', 'U')} = "
                   f"{_figure(block['expanded_uncertainty_before'], unit)}.")
-    out = [para(intro, "lead")]
+    return [para(intro, "lead")]
+
+
+def _changes(items: list[dict], combined, unit: str, units: dict) -> list:
+    """The ranked changes, the best ones together, and their effect on each result."""
+    out: list = []
     if items:
-        out.append(data_table(["#", "change", "after the change", "reduction", "Monte Carlo after",
-                               "cost"], _rows(items, unit), [7, 60, 22, 18, 24, 43],
-                              numeric={0, 2, 3, 4}))
-    combined = block.get("combined")
+        out.append(data_table(TABLE_HEADER, _rows(items, unit), TABLE_WIDTHS, numeric={0, 2, 3, 4}))
     if isinstance(combined, dict):
         out += [heading("The best changes together", 2),
-                data_table(["", "change", "after the change", "reduction", "Monte Carlo after",
-                            "cost"], _rows([combined], unit), [7, 60, 22, 18, 24, 43],
-                           numeric={0, 2, 3, 4})]
-    if isinstance(combined, dict):
+                data_table(["", *TABLE_HEADER[1:]], _rows([combined], unit), TABLE_WIDTHS, numeric={0, 2, 3, 4})]
         out += _effects(combined, units, "Effect of the best changes together on each result")
     elif items:
         out += _effects(items[0], units,
                         f"Effect of the first change on each result: {items[0].get('change', '')}")
+    return out
+
+
+def _notes(block: dict, items: list[dict]) -> list:
+    """Assumptions behind the changes, changes without effect or not evaluated, and sources."""
+    out: list = []
     notes = [f"{a['change']}: {a['assumption']}" for a in items if a.get("assumption")]
     if notes:
         out += [heading("Assumptions behind the changes", 2), *bullets(notes, "small")]
@@ -86,3 +98,13 @@ def advice(record: dict) -> list | None:
     if block.get("sources"):
         out += [para("Sources", "small"), *bullets(block["sources"], "small")]
     return out
+
+
+def advice(record: dict) -> list | None:
+    block = _advice_block(record)
+    if block is None:
+        return None
+    units = {r.get("name"): r.get("unit", "") for r in record.get("results") or []}
+    unit = block.get("unit") or next(iter(units.values()), "")
+    items = [a for a in block.get("items") or [] if isinstance(a, dict)]
+    return _intro(block, unit) + _changes(items, block.get("combined"), unit, units) + _notes(block, items)

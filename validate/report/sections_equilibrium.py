@@ -14,21 +14,10 @@ import re
 
 from validate.model.equilibrium import COMBINED, LOG10
 from validate.report import figures_equilibrium
+from validate.report.numbers import DASH, dof, is_number, num, pct, sig
 from validate.report.sections import coloured, figure_block, rounded
 from validate.report.sections_uncertainty import interval_text, mc_decimals
-from validate.report.style import (
-    DASH,
-    bullets,
-    data_table,
-    dof,
-    heading,
-    is_number,
-    key_value_table,
-    num,
-    para,
-    pct,
-    sig,
-)
+from validate.report.style import bullets, data_table, heading, key_value_table, para
 
 SERIES_ID = re.compile(r"^.+\.\d+$")  # addition-series readings are named "<series>.<n>", e.g. T.1
 WEIGHTS_PER_ROW = 10
@@ -134,17 +123,31 @@ def _ice_table(record: dict, eq: dict) -> list:
                        numeric={2, 3, 4, 5, 6, 7, 8, 9})]
 
 
-def _figure(record: dict, eq: dict) -> list:
-    shown = [m for m in eq.get("mixtures") or [] if is_number(m.get("K"))]
-    if not shown:
-        return []
-    from_mc = all(point_interval(record, m) for m in shown)  # else K ± U for every point
+def _points(record: dict, shown: list[dict], from_mc: bool) -> list:
+    """K of each point with its Monte Carlo interval, or K ± U when some point has none."""
     points = []
     for m in shown:
         big_u = m.get("expanded_uncertainty") if is_number(m.get("expanded_uncertainty")) else 0.0
         low, high = point_interval(record, m) if from_mc else (m["K"] - big_u, m["K"] + big_u)
         points.append(figures_equilibrium.PointK(str(m.get("id")), m["K"], low, high,
                                                  is_series(m.get("id"))))
+    return points
+
+
+def _figure_caption(bar: str, k, mc) -> str:
+    caption = (f"Figure: K of every point with its {bar} as an error bar; circles are mixtures, "
+               "squares the readings of an addition series.")
+    if k is not None:
+        caption += (" The line is the combined K, the shaded band its GUM interval K ± U"
+                    + (" and the dashed lines its Monte Carlo 95 % interval." if mc else "."))
+    return caption
+
+
+def _figure(record: dict, eq: dict) -> list:
+    shown = [m for m in eq.get("mixtures") or [] if is_number(m.get("K"))]
+    if not shown:
+        return []
+    from_mc = all(point_interval(record, m) for m in shown)  # else K ± U for every point
     combined = results_by_name(record).get(COMBINED) or {}
     comb_eq = eq.get("combined") or {}
     k = value_of(combined.get("value", comb_eq.get("K")))
@@ -152,14 +155,9 @@ def _figure(record: dict, eq: dict) -> list:
     mc = (combined.get("monte_carlo") or {}).get("interval") or comb_eq.get("interval")
     bar = "Monte Carlo 95 % interval" if from_mc else "GUM interval K ± U"
     png = figures_equilibrium.k_per_point_figure(
-        points, k, big_u if is_number(big_u) else None,
+        _points(record, shown, from_mc), k, big_u if is_number(big_u) else None,
         tuple(mc) if mc and all(is_number(e) for e in mc) else None, k_unit(eq), bar)
-    caption = (f"Figure: K of every point with its {bar} as an error bar; circles are mixtures, "
-               "squares the readings of an addition series.")
-    if k is not None:
-        caption += (" The line is the combined K, the shaded band its GUM interval K ± U"
-                    + (" and the dashed lines its Monte Carlo 95 % interval." if mc else "."))
-    return [figure_block(png, caption)]
+    return [figure_block(png, _figure_caption(bar, k, mc))]
 
 
 def _combined(record: dict, eq: dict) -> list:
@@ -210,19 +208,8 @@ def _combined(record: dict, eq: dict) -> list:
     return out + _weights(eq, comb)
 
 
-def _weights(eq: dict, comb: dict) -> list:
-    weights = comb.get("weights") or []
-    ids = [m.get("id", str(i + 1)) for i, m in enumerate(eq.get("mixtures") or [])]
-    if not weights or len(weights) != len(ids):
-        return []
-    out = [heading("Weights of the points in the combined K", 2)]
-    for start in range(0, len(ids), WEIGHTS_PER_ROW):
-        chunk = list(zip(ids, weights))[start:start + WEIGHTS_PER_ROW]
-        out.append(data_table(["point"] + [str(i) for i, _ in chunk],
-                              [["weight"] + [num(w, 3) for _, w in chunk]],
-                              [16] + [15.8] * len(chunk), numeric=set(range(1, len(chunk) + 1)),
-                              zebra=False))
-    negative = [str(i) for i, w in zip(ids, weights) if is_number(w) and w < 0]
+def _weights_note(ids: list, weights: list) -> str:
+    negative = [str(i) for i, w in zip(ids, weights, strict=True) if is_number(w) and w < 0]
     note = f"The weights add up to {num(sum(w for w in weights if is_number(w)), 4)}"
     note += "." if not negative else f"; {len(negative)} of them are negative."
     if negative:
@@ -231,7 +218,22 @@ def _weights(eq: dict, comb: dict) -> list:
                  "that mostly repeats the shared error of others. This follows from the covariance "
                  "and is not an error, but it makes the combined K sensitive to how well that "
                  "covariance is known.")
-    return out + [para(note, "small")]
+    return note
+
+
+def _weights(eq: dict, comb: dict) -> list:
+    weights = comb.get("weights") or []
+    ids = [m.get("id", str(i + 1)) for i, m in enumerate(eq.get("mixtures") or [])]
+    if not weights or len(weights) != len(ids):
+        return []
+    out = [heading("Weights of the points in the combined K", 2)]
+    for start in range(0, len(ids), WEIGHTS_PER_ROW):
+        chunk = list(zip(ids, weights, strict=True))[start:start + WEIGHTS_PER_ROW]
+        out.append(data_table(["point"] + [str(i) for i, _ in chunk],
+                              [["weight"] + [num(w, 3) for _, w in chunk]],
+                              [16] + [15.8] * len(chunk), numeric=set(range(1, len(chunk) + 1)),
+                              zebra=False))
+    return out + [para(_weights_note(ids, weights), "small")]
 
 
 def _consistency(eq: dict) -> list:
@@ -271,31 +273,42 @@ def _trend(eq: dict) -> list:
             key_value_table(facts, (62, 112))]
 
 
+def _fraction_words(eq: dict, b: dict) -> list[str]:
+    fractions = [f for f in b.get("fraction_complexed_in_standards") or [] if is_number(f)]
+    if not fractions:
+        return []
+    span = (pct(min(fractions), 2) if max(fractions) - min(fractions) < 5e-5
+            else f"{pct(min(fractions), 2)} to {pct(max(fractions), 2)}")
+    return [f"The standards are not fully complexed: {span} of the limiting reagent"
+            + (f" ({eq['limiting_reagent_in_standards']})"
+               if eq.get("limiting_reagent_in_standards") else "") + " is bound as ML."]
+
+
+def _slope_words(b: dict, unit: str) -> list[str]:
+    if not (is_number(b.get("slope")) and is_number(b.get("K"))):
+        return []
+    direction = "too high" if b["K"] > 0 else "too low"
+    return [f"Taking them as fully complexed would make the slope of the line "
+            f"{pct(abs(b['slope']), 1)} too {'low' if b['slope'] < 0 else 'high'} and K "
+            f"{pct(abs(b['K']), 1)} {direction}"
+            + (f" ({num(b['naive_K'], 4)} {unit} instead of the corrected value)."
+               if is_number(b.get("naive_K")) else ".")]
+
+
+def _iteration_words(b: dict) -> list[str]:
+    if b.get("iteration_converged") is None:
+        return []
+    return [f"The correction (K → corrected standards → refit) was repeated "
+            f"{b.get('iterations', DASH)} times and "
+            + ("converged." if b["iteration_converged"] else
+               "did NOT converge: rely on the joint fit below and check the data.")]
+
+
 def _bias(eq: dict) -> list:
     b = eq.get("complete_complexation_bias") or {}
     if not b:
         return []
-    unit = k_unit(eq)
-    fractions = [f for f in b.get("fraction_complexed_in_standards") or [] if is_number(f)]
-    words = []
-    if fractions:
-        span = (pct(min(fractions), 2) if max(fractions) - min(fractions) < 5e-5
-                else f"{pct(min(fractions), 2)} to {pct(max(fractions), 2)}")
-        words.append(f"The standards are not fully complexed: {span} of the limiting reagent"
-                     + (f" ({eq['limiting_reagent_in_standards']})"
-                        if eq.get("limiting_reagent_in_standards") else "") + " is bound as ML.")
-    if is_number(b.get("slope")) and is_number(b.get("K")):
-        direction = "too high" if b["K"] > 0 else "too low"
-        words.append(f"Taking them as fully complexed would make the slope of the line "
-                     f"{pct(abs(b['slope']), 1)} too {'low' if b['slope'] < 0 else 'high'} and K "
-                     f"{pct(abs(b['K']), 1)} {direction}"
-                     + (f" ({num(b['naive_K'], 4)} {unit} instead of the corrected value)."
-                        if is_number(b.get("naive_K")) else "."))
-    if b.get("iteration_converged") is not None:
-        words.append(f"The correction (K → corrected standards → refit) was repeated "
-                     f"{b.get('iterations', DASH)} times and "
-                     + ("converged." if b["iteration_converged"] else
-                        "did NOT converge: rely on the joint fit below and check the data."))
+    words = _fraction_words(eq, b) + _slope_words(b, k_unit(eq)) + _iteration_words(b)
     if not words:
         return []
     return [heading("Bias of assuming complete complexation", 2), para(" ".join(words), "body")]

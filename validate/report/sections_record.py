@@ -7,7 +7,8 @@ from pathlib import PurePath
 from reportlab.lib.units import mm
 from reportlab.platypus import Paragraph, Table, TableStyle
 
-from validate.report.style import ACCENT, DASH, INK, bullets, data_table, heading, key_value_table, para, styles, text
+from validate.report.numbers import DASH
+from validate.report.style import ACCENT, INK, bullets, data_table, heading, key_value_table, para, styles, text
 
 CAUTIONS = (
     "This report evaluates the data it was given. It does not replace the laboratory's own "
@@ -50,36 +51,48 @@ def _seeds(record: dict) -> str:
     return ", ".join(unique)
 
 
-def appendix(record: dict) -> list:
-    s = styles()
-    out = []
+def _equipment(record: dict) -> list:
     equipment = record.get("equipment") or []
-    if equipment:
-        rows = [[e.get("id", DASH), e.get("kind", DASH), e.get("class") or DASH,
-                 e.get("provenance") or DASH] for e in equipment]
-        out += [heading("Equipment", 2),
-                data_table(["item", "kind", "class", "provenance"], rows, [28, 30, 30, 86])]
+    if not equipment:
+        return []
+    rows = [[e.get("id", DASH), e.get("kind", DASH), e.get("class") or DASH,
+             e.get("provenance") or DASH] for e in equipment]
+    return [heading("Equipment", 2), data_table(["item", "kind", "class", "provenance"], rows, [28, 30, 30, 86])]
+
+
+def _registers(record: dict) -> list:
     registers = record.get("registers") or []
-    if registers:
-        rows = [[PurePath(r).name, Paragraph(text(r), s["mono"])] for r in registers]
-        out += [heading("Registers used", 2), data_table(["register", "path"], rows, [50, 124])]
+    if not registers:
+        return []
+    rows = [[PurePath(r).name, Paragraph(text(r), styles()["mono"])] for r in registers]
+    return [heading("Registers used", 2), data_table(["register", "path"], rows, [50, 124])]
+
+
+def _input_files(record: dict) -> list:
     inputs = record.get("inputs") or []
-    if inputs:
-        rows = [[Paragraph(text(i.get("path", DASH)), s["cell"]),
-                 Paragraph(text(i.get("sha256", DASH)), s["mono"])] for i in inputs]
-        out += [heading("Input files", 2),
-                data_table(["file", "SHA-256"], rows, [74, 100])]
+    if not inputs:
+        return []
+    s = styles()
+    rows = [[Paragraph(text(i.get("path", DASH)), s["cell"]),
+             Paragraph(text(i.get("sha256", DASH)), s["mono"])] for i in inputs]
+    return [heading("Input files", 2), data_table(["file", "SHA-256"], rows, [74, 100])]
+
+
+def _record_facts(record: dict) -> list:
     run, software = record.get("run") or {}, record.get("software") or {}
     facts = [("record id", run.get("record_id", DASH)), ("created (UTC)", run.get("created", DASH)),
              ("software", f"{software.get('name', 'validate')} {software.get('version', DASH)}")]
     seeds = _seeds(record)
     if seeds:
         facts.append(("random seed", seeds))
-    out += [heading("Record", 2), key_value_table(facts, (40, 134)),
+    return [heading("Record", 2), key_value_table(facts, (40, 134)),
             para("The record id and the input files' SHA-256"
                  + (", with the random seed," if seeds else "") + " let the evaluation be "
                  "repeated and checked against the JSON record of the same id.", "note")]
-    return out
+
+
+def appendix(record: dict) -> list:
+    return _equipment(record) + _registers(record) + _input_files(record) + _record_facts(record)
 
 
 def sign_off(record: dict) -> list:

@@ -14,6 +14,7 @@ from reportlab.lib.units import mm
 from reportlab.platypus import CondPageBreak, Table, TableStyle
 
 from validate.model.equilibrium import COMBINED, LOG10
+from validate.report.numbers import DASH, dof, is_number, num, pct
 from validate.report.sections import coloured, criteria_block, monte_carlo_line, result_rows, rounded, u_decimals
 from validate.report.sections_equilibrium import k_unit, point_interval, point_result, results_by_name
 from validate.report.sections_uncertainty import (
@@ -24,7 +25,7 @@ from validate.report.sections_uncertainty import (
     monte_carlo_for_result,
     monte_carlo_intro,
 )
-from validate.report.style import BAD, DASH, data_table, dof, heading, is_number, key_value_table, num, para, pct, text
+from validate.report.style import BAD, data_table, heading, key_value_table, para, text
 
 SAME_SHARES = 1e-6  # log10 K's shares equal K's when they differ by less than this
 
@@ -125,7 +126,7 @@ def summary(record: dict) -> list:
 # Uncertainty budget
 
 def _same_shares(record: dict, a: str, b: str) -> bool:
-    shares = {}
+    shares: dict[str, dict] = {}
     for row in record.get("budget") or []:
         if row.get("result") in (a, b) and is_number(row.get("share")):
             shares.setdefault(row["result"], {})[row.get("source")] = row["share"]
@@ -148,7 +149,7 @@ def _log10_budget(record: dict, combined: dict, log10k: dict | None) -> list:
                  f"{num(log10k.get('standard_uncertainty'), 3)} (GUM 5.1.2).", "body")]
 
 
-def _largest_source(record: dict, name: str) -> tuple[str, str]:
+def _largest_source(record: dict, name: str | None) -> tuple[str, str]:
     rows = [r for r in record.get("budget") or [] if r.get("result") == name and is_number(r.get("share"))]
     if not rows:
         return DASH, DASH
@@ -202,17 +203,18 @@ def _largest_share_difference(first: dict, second: dict) -> float | None:
 
 
 def _log10_mc(combined: dict, log10k: dict | None) -> list:
-    mc = (log10k or {}).get("monte_carlo")
-    if not isinstance(mc, dict):
+    if not log10k or not isinstance(log10k.get("monte_carlo"), dict):
         return []
+    mc = log10k["monte_carlo"]
     d = mc_decimals(mc, log10k)
     agrees = mc.get("agrees_with_gum")
+    verdict = ({True: "validated", False: "not validated: report the Monte Carlo interval"}[agrees]
+               if isinstance(agrees, bool) else "not evaluated")
     facts = [("95 % interval, probabilistically symmetric", interval_text(mc.get("interval"), d, "")),
              ("95 % interval, shortest", interval_text(mc.get("shortest_interval"), d, "")),
              ("95 % GUM interval y ± U", interval_text(mc.get("gum_interval"), d, "")),
              ("verdict (JCGM 101 clause 8)",
-              coloured({True: "validated", False: "not validated: report the Monte Carlo interval"}
-                       .get(agrees, "not evaluated"), agrees if isinstance(agrees, bool) else None))]
+              coloured(verdict, agrees if isinstance(agrees, bool) else None))]
     diff = _largest_share_difference(combined.get("monte_carlo") or {}, mc)
     lead = "From the same trials as K."
     if diff is not None:

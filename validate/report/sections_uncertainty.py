@@ -2,14 +2,13 @@
 
 from __future__ import annotations
 
-import math
-
 from reportlab.lib.units import mm
 from reportlab.platypus import CondPageBreak, Table, TableStyle
 
 from validate.report import figures
+from validate.report.numbers import DASH, dof, interval, is_number, num, pct, tolerance_decimals
 from validate.report.sections import coloured, figure_block, rounded, u_decimals
-from validate.report.style import DASH, data_table, dof, heading, is_number, key_value_table, num, para, pct
+from validate.report.style import data_table, heading, key_value_table, para
 
 MIN_SHARE_SHOWN = 1e-4  # budget rows below 0.01 % are summed in one line (all are in budget.csv)
 
@@ -32,49 +31,69 @@ def _group_table(title: str, groups: list[dict], unit: str) -> Table:
     return data_table([title, f"u / {unit}", "share"], rows, [43, 20, 20], numeric={1, 2})
 
 
-def budget_for_result(record: dict, result: dict) -> list:
+def _source_row(rank: int, r: dict, unit: str) -> list:
+    src_unit = r.get("unit") or ""
+    return [rank, r.get("source", DASH), r.get("step") or DASH, r.get("equipment") or DASH,
+            f"{num(r.get('standard_uncertainty'), 3)} {src_unit}".strip(),
+            f"{num(r.get('sensitivity'), 4)} {_per(unit, src_unit)}",
+            num(r.get("contribution"), 3), pct(r.get("share"))]
+
+
+def _result_lead(result: dict) -> list:
     unit = result.get("unit", "")
     value, big_u = rounded(result.get("value"), result.get("expanded_uncertainty"))
-    rows = _budget_rows(record, result["name"])
+    return [CondPageBreak(90 * mm), heading(result["name"], 2),
+            para(f"y = {value} {unit}, u(y) = {num(result.get('standard_uncertainty'), 3)} {unit}, "
+                 f"U = {big_u} {unit} (k = {num(result.get('coverage_factor'), 3)}, "
+                 f"p = {pct(result.get('coverage_probability'), 0)}, ν_eff = "
+                 f"{dof(result.get('effective_dof'))}).", "lead")]
+
+
+def _source_table(rows: list[dict], unit: str) -> list:
+    """Sources at or above MIN_SHARE_SHOWN, ranked; one line for the rest."""
     shown = [r for r in rows if (r.get("share") or 0.0) >= MIN_SHARE_SHOWN]
     hidden = rows[len(shown):] if len(shown) < len(rows) else []
-    table_rows = []
-    for rank, r in enumerate(shown, 1):
-        src_unit = r.get("unit") or ""
-        table_rows.append([rank, r.get("source", DASH), r.get("step") or DASH,
-                           r.get("equipment") or DASH,
-                           f"{num(r.get('standard_uncertainty'), 3)} {src_unit}".strip(),
-                           f"{num(r.get('sensitivity'), 4)} {_per(unit, src_unit)}",
-                           num(r.get("contribution"), 3), pct(r.get("share"))])
-    out = [CondPageBreak(90 * mm), heading(result["name"], 2),
-           para(f"y = {value} {unit}, u(y) = {num(result.get('standard_uncertainty'), 3)} {unit}, "
-                f"U = {big_u} {unit} (k = {num(result.get('coverage_factor'), 3)}, "
-                f"p = {pct(result.get('coverage_probability'), 0)}, ν_eff = "
-                f"{dof(result.get('effective_dof'))}).", "lead")]
-    if table_rows:
+    out: list = []
+    if shown:
         out.append(data_table(["#", "source", "step", "equipment", "u(x_i)", "sensitivity c_i",
-                               f"c_i u(x_i) / {unit}", "share"], table_rows,
+                               f"c_i u(x_i) / {unit}", "share"],
+                              [_source_row(rank, r, unit) for rank, r in enumerate(shown, 1)],
                               [7, 40, 24, 21, 20, 26, 20, 16], numeric={0, 4, 5, 6, 7}))
     if hidden:
         total = sum(r.get("share") or 0.0 for r in hidden)
         out.append(para(f"{len(hidden)} further sources each below {pct(MIN_SHARE_SHOWN, 2)} of "
                         f"the variance (together {pct(total, 3)}) are listed in budget.csv.",
                         "small"))
+    return out
+
+
+def _share_figure(rows: list[dict], result: dict) -> list:
     by_source = [(r.get("source", ""), r.get("share") or 0.0) for r in rows]
     by_step = [(g.get("group", ""), g.get("share") or 0.0) for g in result.get("budget_by_step") or []]
-    if by_source:
-        out.append(figure_block(figures.share_chart(by_source, by_step),
-                                "Figure: shares of the combined variance u²(y), ranked. Sources "
-                                "are independent by construction (a shared item is one source), "
-                                "so the shares add up to 100 %.", 160 * mm))
+    if not by_source:
+        return []
+    return [figure_block(figures.share_chart(by_source, by_step),
+                         "Figure: shares of the combined variance u²(y), ranked. Sources "
+                         "are independent by construction (a shared item is one source), "
+                         "so the shares add up to 100 %.", 160 * mm)]
+
+
+def _group_tables(result: dict, unit: str) -> list:
     steps, items = result.get("budget_by_step") or [], result.get("budget_by_equipment") or []
-    if steps or items:
-        pair = Table([[_group_table("step", steps, unit), _group_table("equipment item", items, unit)]],
-                     colWidths=[87 * mm, 87 * mm], hAlign="LEFT")
-        pair.setStyle(TableStyle([("VALIGN", (0, 0), (-1, -1), "TOP"),
-                                  ("LEFTPADDING", (0, 0), (-1, -1), 0)]))
-        out.append(pair)
-    return out
+    if not (steps or items):
+        return []
+    pair = Table([[_group_table("step", steps, unit), _group_table("equipment item", items, unit)]],
+                 colWidths=[87 * mm, 87 * mm], hAlign="LEFT")
+    pair.setStyle(TableStyle([("VALIGN", (0, 0), (-1, -1), "TOP"),
+                              ("LEFTPADDING", (0, 0), (-1, -1), 0)]))
+    return [pair]
+
+
+def budget_for_result(record: dict, result: dict) -> list:
+    unit = result.get("unit", "")
+    rows = _budget_rows(record, result["name"])
+    return (_result_lead(result) + _source_table(rows, unit) + _share_figure(rows, result)
+            + _group_tables(result, unit))
 
 
 BUDGET_LEAD = ("Each source's standard uncertainty u(x_i), its sensitivity coefficient "
@@ -99,16 +118,12 @@ def budget(record: dict) -> list:
 
 def mc_decimals(mc: dict, result: dict) -> int:
     """Decimal places: those of the numerical tolerance (JCGM 101 7.9.2), else of U + 1."""
-    tol = mc.get("tolerance")
-    if is_number(tol) and tol > 0:
-        return max(0, -math.floor(math.log10(tol)))
-    return u_decimals(result) + 1
+    return tolerance_decimals(mc.get("tolerance"), u_decimals(result) + 1)
 
 
 def interval_text(ends, decimals: int, unit: str) -> str:
-    if not ends or not all(is_number(e) for e in ends):
-        return DASH
-    return f"[{ends[0]:.{decimals}f}, {ends[1]:.{decimals}f}] {unit}"
+    shown = interval(ends, decimals)
+    return shown if shown == DASH else f"{shown} {unit}"
 
 
 def monte_carlo_for_result(result: dict) -> list:
@@ -146,7 +161,7 @@ def monte_carlo_for_result(result: dict) -> list:
     hist = mc.get("histogram") or {}
     if (hist.get("edges") and hist.get("counts") and is_number(result.get("value"))
             and is_number(result.get("standard_uncertainty"))):
-        png = figures.monte_carlo_figure(mc, result.get("value"), result["standard_uncertainty"],
+        png = figures.monte_carlo_figure(mc, result["value"], result["standard_uncertainty"],
                                          result.get("effective_dof"), unit)
         out.append(figure_block(png, "Figure: distribution of the Monte Carlo trials against the "
                                 "distribution the GUM assigns to the result; vertical lines mark "

@@ -8,8 +8,9 @@ the record has no `validation` block (or no data for the section).
 from __future__ import annotations
 
 from validate.report import figures
+from validate.report.numbers import DASH, is_number, num, pct
 from validate.report.sections import coloured, concentration_unit, figure_block
-from validate.report.style import DASH, bullets, data_table, heading, is_number, key_value_table, num, para, pct
+from validate.report.style import bullets, data_table, heading, key_value_table, para
 
 TEST_KEYS = ("lack_of_fit", "mandel", "runs", "intercept", "weighting")
 
@@ -45,7 +46,7 @@ def _dof_text(value) -> str:
     return num(value, 3)
 
 
-def _sources(items: list[tuple[str, str]]) -> list:
+def _sources(items: list[tuple[str | None, str | None]]) -> list:
     lines = [f"{name}: {src}" for name, src in items if src]
     return [para("Sources", "small")] + bullets(lines, "small") if lines else []
 
@@ -53,7 +54,7 @@ def _sources(items: list[tuple[str, str]]) -> list:
 def linearity(record: dict) -> list | None:
     v = _validation(record)
     tests = linearity_tests(v) if v else []
-    if not tests:
+    if not v or not tests:
         return None
     rows = []
     for t in tests:
@@ -186,32 +187,37 @@ def working_range(record: dict) -> list | None:
 def _flagged_readings(window_flags: dict) -> list[list]:
     """Readings outside the window, grouped by what is wrong with them."""
     groups: dict[str, list[float]] = {}
-    for value, flags in zip(window_flags.get("absorbance") or [], window_flags.get("flags") or []):
+    for value, flags in zip(window_flags.get("absorbance") or [], window_flags.get("flags") or [], strict=False):
         for flag in flags or []:
             groups.setdefault(str(flag), []).append(value)
     return [[flag, len(values), ", ".join(num(a, 4) for a in values)]
             for flag, values in groups.items()]
 
 
+def _window_text(window: dict, every: dict, low, high) -> list:
+    """How many readings lie inside the window, and those outside grouped by flag."""
+    which = "readings (standards, blanks and samples)" if window is every else "readings of the calibration"
+    total = (window.get("inside") or 0) + (window.get("outside") or 0)
+    out = [para(f"{window.get('inside', DASH)} of {total} {which} lie inside the window "
+                f"{num(low)} to {num(high)}; {window.get('outside', DASH)} outside.", "lead")]
+    flagged = _flagged_readings(window)
+    if flagged:
+        out.append(data_table(["outside the window", "n", "absorbance readings"], flagged,
+                              [78, 10, 86], numeric={1}))
+    return out
+
+
 def _window(record: dict, v: dict) -> list:
-    fitted = v.get("window") if isinstance(v.get("window"), dict) else {}
-    every = v.get("window_flags") if isinstance(v.get("window_flags"), dict) else {}
-    window = every if "flags" in every else fitted
+    fitted: dict = v["window"] if isinstance(v.get("window"), dict) else {}
+    every: dict = v["window_flags"] if isinstance(v.get("window_flags"), dict) else {}
+    window: dict = every if "flags" in every else fitted
     cal = record.get("calibration") or {}
     standards = [p["absorbance"] for p in cal.get("points", []) if is_number(p.get("absorbance"))]
     samples = [a for s in cal.get("samples", []) for a in s.get("readings", []) if is_number(a)]
     low, high = window.get("low", 0.1), window.get("high", 1.0)
     out = [heading("Absorbance window", 2)]
     if window:
-        which = ("readings (standards, blanks and samples)" if window is every
-                 else "readings of the calibration")
-        total = (window.get("inside") or 0) + (window.get("outside") or 0)
-        out.append(para(f"{window.get('inside', DASH)} of {total} {which} lie inside the window "
-                        f"{num(low)} to {num(high)}; {window.get('outside', DASH)} outside.", "lead"))
-        flagged = _flagged_readings(window)
-        if flagged:
-            out.append(data_table(["outside the window", "n", "absorbance readings"], flagged,
-                                  [78, 10, 86], numeric={1}))
+        out += _window_text(window, every, low, high)
     if standards:
         out.append(figure_block(figures.window_figure(standards, samples, low, high),
                                 "Figure: relative concentration error per unit transmittance "
@@ -220,58 +226,78 @@ def _window(record: dict, v: dict) -> list:
     return out if len(out) > 1 else []
 
 
-def precision_trueness(record: dict) -> list | None:
-    v = _validation(record) or {}
-    blocks = []
+def _repeatability(record: dict, v: dict) -> list:
     rep = v.get("repeatability")
-    if isinstance(rep, dict):
-        unit = rep.get("unit") or v.get("concentration_unit") or concentration_unit(record)
-        blocks += [heading("Repeatability", 2), key_value_table([
-            ("mean", f"{num(rep.get('mean'), 5)} {unit}"),
-            ("repeatability SD s_r", f"{num(rep.get('sd'), 3)} {unit}"),
-            ("relative SD", f"{num(rep.get('rsd_percent'), 3)} %"),
-            ("degrees of freedom, groups, readings",
-             f"{rep.get('dof', DASH)}, {rep.get('groups', DASH)}, {rep.get('n', DASH)}")]),
-            para(rep.get("source", ""), "note")]
+    if not isinstance(rep, dict):
+        return []
+    unit = rep.get("unit") or v.get("concentration_unit") or concentration_unit(record)
+    return [heading("Repeatability", 2), key_value_table([
+        ("mean", f"{num(rep.get('mean'), 5)} {unit}"),
+        ("repeatability SD s_r", f"{num(rep.get('sd'), 3)} {unit}"),
+        ("relative SD", f"{num(rep.get('rsd_percent'), 3)} %"),
+        ("degrees of freedom, groups, readings",
+         f"{rep.get('dof', DASH)}, {rep.get('groups', DASH)}, {rep.get('n', DASH)}")]),
+        para(rep.get("source", ""), "note")]
+
+
+def _intermediate_one(sample: str, ip: dict) -> list:
+    unit = ip.get("unit", "")
+    title = f"Intermediate precision: {sample}" if sample else "Intermediate precision"
+    return [heading(title, 2), key_value_table([
+        ("series, readings", f"{ip.get('groups', DASH)}, {ip.get('n', DASH)}"),
+        ("repeatability SD s_r", f"{num(ip.get('repeatability_sd'), 3)} {unit}"),
+        ("between-series SD s_L", f"{num(ip.get('between_group_sd'), 3)} {unit}"),
+        ("intermediate SD s_I", f"{num(ip.get('intermediate_sd'), 3)} {unit} "
+         f"({num(ip.get('intermediate_rsd_percent'), 3)} %), ν = {num(ip.get('intermediate_dof'), 3)}"),
+        ("F, p value", f"{num(ip.get('f_statistic'), 4)}, {num(ip.get('p_value'), 3)}"),
+        ("verdict", ip.get("verdict", DASH))]), para(ip.get("source", ""), "note")]
+
+
+def _intermediate(v: dict) -> list:
     per_sample = v.get("intermediate_precision")
     if isinstance(per_sample, dict) and "groups" in per_sample:  # a single analysis, unnamed
         per_sample = {"": per_sample}
+    out: list = []
     for sample, ip in (per_sample or {}).items():
-        if not isinstance(ip, dict) or "groups" not in ip:
-            continue
-        unit = ip.get("unit", "")
-        title = f"Intermediate precision: {sample}" if sample else "Intermediate precision"
-        blocks += [heading(title, 2), key_value_table([
-            ("series, readings", f"{ip.get('groups', DASH)}, {ip.get('n', DASH)}"),
-            ("repeatability SD s_r", f"{num(ip.get('repeatability_sd'), 3)} {unit}"),
-            ("between-series SD s_L", f"{num(ip.get('between_group_sd'), 3)} {unit}"),
-            ("intermediate SD s_I", f"{num(ip.get('intermediate_sd'), 3)} {unit} "
-             f"({num(ip.get('intermediate_rsd_percent'), 3)} %), ν = {num(ip.get('intermediate_dof'), 3)}"),
-            ("F, p value", f"{num(ip.get('f_statistic'), 4)}, {num(ip.get('p_value'), 3)}"),
-            ("verdict", ip.get("verdict", DASH))]), para(ip.get("source", ""), "note")]
+        if isinstance(ip, dict) and "groups" in ip:
+            out += _intermediate_one(sample, ip)
+    return out
+
+
+def _trueness(v: dict) -> list:
     rec = v.get("trueness") or v.get("recovery")
-    if isinstance(rec, dict):
-        settings = v.get("settings") or {}
-        tu = rec.get("unit") or settings.get("reference_unit") or ""
-        blocks += [heading("Trueness: recovery against a reference value", 2), key_value_table([
-            ("sample", settings.get("reference_sample") or DASH),
-            ("measured, u", f"{num(rec.get('measured'), 5)} {tu}, u = {num(rec.get('u_measured'), 3)} {tu}"),
-            ("reference value, u",
-             f"{num(rec.get('reference'), 5)} {tu}, u = {num(rec.get('u_reference'), 3)} {tu}"),
-            ("coverage factor k for E_n", num(rec.get("coverage_factor"), 3)),
-            ("recovery", f"{num(rec.get('recovery_percent'), 4)} % "
-                         f"(u = {num(rec.get('recovery_u_percent'), 3)} %)"),
-            ("E_n", num(rec.get("en_number"), 3)),
-            ("verdict", coloured(rec.get("verdict", DASH), rec.get("satisfactory")))]),
-            para(rec.get("source", ""), "note")]
+    if not isinstance(rec, dict):
+        return []
+    settings = v.get("settings") or {}
+    tu = rec.get("unit") or settings.get("reference_unit") or ""
+    return [heading("Trueness: recovery against a reference value", 2), key_value_table([
+        ("sample", settings.get("reference_sample") or DASH),
+        ("measured, u", f"{num(rec.get('measured'), 5)} {tu}, u = {num(rec.get('u_measured'), 3)} {tu}"),
+        ("reference value, u",
+         f"{num(rec.get('reference'), 5)} {tu}, u = {num(rec.get('u_reference'), 3)} {tu}"),
+        ("coverage factor k for E_n", num(rec.get("coverage_factor"), 3)),
+        ("recovery", f"{num(rec.get('recovery_percent'), 4)} % "
+                     f"(u = {num(rec.get('recovery_u_percent'), 3)} %)"),
+        ("E_n", num(rec.get("en_number"), 3)),
+        ("verdict", coloured(rec.get("verdict", DASH), rec.get("satisfactory")))]),
+        para(rec.get("source", ""), "note")]
+
+
+def _scatter(record: dict, v: dict) -> list:
     sc = v.get("scatter_consistency") or record.get("scatter_consistency")
-    if isinstance(sc, dict):
-        ok = "consistent" in (sc.get("verdict") or "")
-        blocks += [heading("Observed scatter against the bottom-up budget", 2), key_value_table([
-            ("observed residual SD", f"{num(sc.get('observed_sd'), 3)} (absorbance)"),
-            ("SD predicted by the budget", f"{num(sc.get('predicted_sd'), 3)} (absorbance)"),
-            ("χ², degrees of freedom", f"{num(sc.get('chi_square'), 4)}, {sc.get('dof', DASH)}"),
-            ("p (excess), p (deficit)", f"{num(sc.get('p_excess'), 3)}, {num(sc.get('p_deficit'), 3)}"),
-            ("verdict", coloured(sc.get("verdict", DASH), ok))]),
-            para(sc.get("source", ""), "note")]
+    if not isinstance(sc, dict):
+        return []
+    ok = "consistent" in (sc.get("verdict") or "")
+    return [heading("Observed scatter against the bottom-up budget", 2), key_value_table([
+        ("observed residual SD", f"{num(sc.get('observed_sd'), 3)} (absorbance)"),
+        ("SD predicted by the budget", f"{num(sc.get('predicted_sd'), 3)} (absorbance)"),
+        ("χ², degrees of freedom", f"{num(sc.get('chi_square'), 4)}, {sc.get('dof', DASH)}"),
+        ("p (excess), p (deficit)", f"{num(sc.get('p_excess'), 3)}, {num(sc.get('p_deficit'), 3)}"),
+        ("verdict", coloured(sc.get("verdict", DASH), ok))]),
+        para(sc.get("source", ""), "note")]
+
+
+def precision_trueness(record: dict) -> list | None:
+    v = _validation(record) or {}
+    blocks = _repeatability(record, v) + _intermediate(v) + _trueness(v) + _scatter(record, v)
     return blocks or None

@@ -1,13 +1,13 @@
 """The report's house style: fonts, paragraph styles, table looks and number formats.
 
-A plain look of our own: one sans family (DejaVu Sans, shipped with
+Numbers are written by validate.report.numbers. A plain look of our own: one sans family (DejaVu Sans, shipped with
 matplotlib, so µ, ±, ², ν and the like print everywhere), dark slate
 headings, light grey rules, numbers right-aligned in tables.
 """
 
 from __future__ import annotations
 
-import math
+from collections.abc import Sequence
 from functools import lru_cache
 from pathlib import Path
 from xml.sax.saxutils import escape
@@ -40,9 +40,6 @@ FONT = "ReportSans"
 FONT_BOLD = "ReportSans-Bold"
 FONT_ITALIC = "ReportSans-Italic"
 FONT_MONO = "ReportMono"
-
-DASH = "–"  # shown where a value is missing
-
 
 @lru_cache(maxsize=1)
 def register_fonts() -> None:
@@ -115,67 +112,9 @@ def gap(height_mm: float = 3) -> Spacer:
 
 
 # --------------------------------------------------------------------------
-# numbers
-
-def is_number(value) -> bool:
-    return isinstance(value, (int, float)) and not isinstance(value, bool) and math.isfinite(value)
-
-
-def num(value, sig: int = 4) -> str:
-    """A number to `sig` significant digits, plain notation for ordinary sizes, no trailing zeros."""
-    if value is None:
-        return DASH
-    if isinstance(value, bool) or not isinstance(value, (int, float)):
-        return text(value)
-    if not math.isfinite(value):
-        return "∞" if value > 0 else ("-∞" if value < 0 else DASH)
-    if value == 0:
-        return "0"
-    if isinstance(value, int):  # digits grouped by threes with no-break spaces (ISO 80000-1)
-        return f"{value:,}".replace(",", "\u00a0") if abs(value) >= 10_000 else str(value)
-    magnitude = math.floor(math.log10(abs(value)))
-    if -4 <= magnitude < 6:
-        decimals = max(sig - 1 - magnitude, 0)
-        out = f"{value:.{decimals}f}"
-        return out.rstrip("0").rstrip(".") if "." in out else out
-    mantissa, exponent = f"{value:.{sig - 1}e}".split("e")
-    mantissa = mantissa.rstrip("0").rstrip(".") if "." in mantissa else mantissa
-    return f"{mantissa}e{int(exponent)}"
-
-
-def sig(value, digits: int = 4) -> str:
-    """A number to `digits` significant digits, trailing zeros kept (0.2000, not 0.2)."""
-    if not is_number(value):
-        return num(value)
-    if value == 0 or not -4 <= math.floor(math.log10(abs(value))) < 6:
-        return num(value, digits)
-    return f"{value:#.{digits}g}".rstrip(".")
-
-
-def pct(share, digits: int = 1) -> str:
-    """A fraction as a percentage; tiny non-zero shares shown as '< 0.1 %'."""
-    if not is_number(share):
-        return DASH
-    value = 100.0 * share
-    floor = 10.0 ** -digits
-    if 0 < abs(value) < floor:
-        return f"< {floor:.{digits}f} %"
-    return f"{value:.{digits}f} %"
-
-
-def dof(value) -> str:
-    """Degrees of freedom: None or inf shown as ∞ (Type B inputs), else rounded."""
-    if value is None or (is_number(value) and math.isinf(value)):
-        return "∞"
-    if is_number(value):
-        return f"{value:.0f}"
-    return text(value)
-
-
-# --------------------------------------------------------------------------
 # tables
 
-def data_table(header: list[str], rows: list[list], widths_mm: list[float],
+def data_table(header: list[str], rows: list[list], widths_mm: Sequence[float],
                numeric: set[int] | frozenset = frozenset(), zebra: bool = True,
                extra_style: list | None = None) -> Table:
     """A table that wraps every cell, right-aligns numeric columns and repeats its header.
@@ -214,7 +153,7 @@ def data_table(header: list[str], rows: list[list], widths_mm: list[float],
     return table
 
 
-def key_value_table(pairs: list[tuple[str, object]], widths_mm=(52, 122)) -> Table:
+def key_value_table(pairs: Sequence[tuple[str, object]], widths_mm=(52, 122)) -> Table:
     """Two columns, label and value, for short facts (no header row)."""
     s = styles()
     rows = [[Paragraph(text(k), s["cell_head"]),

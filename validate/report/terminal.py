@@ -1,0 +1,253 @@
+"""What the `validate` commands print, as Lines of rich console markup.
+
+The command line only prints what these functions return. `validate run` is rendered from the
+record dict (the form results.json holds), `validate verify` from the verification report's
+dict, `validate calibrate` from the quick check's dict; numbers are written by
+validate.report.numbers.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from pathlib import Path
+
+from rich.console import Console
+from rich.markup import escape
+
+from validate.report.numbers import compact
+from validate.report.terminal_run import (
+    BLANK,
+    Line,
+    Printable,
+    advice_lines,
+    criteria_lines,
+    equilibrium_lines,
+    result_lines,
+    validation_lines,
+)
+
+__all__ = ["BLANK", "Line", "Printable", "ProgressBars", "check_facts", "check_lines", "describe_verify",
+           "error_line", "format_quick_check", "init_lines", "interrupted_line", "quick_check_lines",
+           "run_lines", "written_lines"]
+
+
+# --------------------------------------------------------------------------
+# validate check / run / init
+
+def _defaults_lines(defaults: list[str], notes: list[str]) -> list[Printable]:
+    lines: list[Printable] = []
+    if defaults:
+        lines.append(Line("[bold]Defaults applied[/] (set them in the method file to change them):"))
+        lines += [Line(f"  - {escape(text)}", soft_wrap=True) for text in defaults]
+    lines += [Line(f"[yellow]note[/] {escape(note)}", soft_wrap=True) for note in notes]
+    return lines
+
+
+def check_facts(method, model) -> dict:
+    """What `validate check` reports of a method file and its model, as a plain dict."""
+    if method.equilibrium is not None:
+        study = method.equilibrium
+        contents = (f"{len(study.standards)} standards, {len(study.mixtures)} mixtures, "
+                    f"{len(study.series)} addition series")
+    else:
+        contents = f"{len(method.samples)} samples"
+    return {"title": method.title, "input_files": [str(p) for p in method.input_files],
+            "equipment_items": len(method.items), "solutions": len(method.solutions), "contents": contents,
+            "sources": len(model.sources), "defaults_applied": list(method.defaults_shown),
+            "notes": list(method.notes)}
+
+
+def check_lines(facts: dict) -> list[Printable]:
+    """The method file read and checked: what it holds and every default applied."""
+    return [Line(f"[bold]{escape(facts['title'])}[/]"),
+            Line(escape(f"read {', '.join(facts['input_files'])}: {facts['equipment_items']} equipment items, "
+                        f"{facts['solutions']} solutions, {facts['contents']}, {facts['sources']} uncertainty "
+                        "sources")),
+            *_defaults_lines(facts["defaults_applied"], facts["notes"]),
+            Line("[green]the method file is complete and consistent[/]")]
+
+
+def _seed_lines(record: dict) -> list[Printable]:
+    seed = (record.get("monte_carlo_settings") or {}).get("seed")
+    if seed is None:
+        return []
+    return [Line(f"Monte Carlo: JCGM 101, seed {seed} (repeat with --seed {seed})", style="dim")]
+
+
+def run_lines(record: dict, top: int) -> list[Printable]:
+    """Everything `validate run` prints about a record, `top` budget lines per result."""
+    lines = [Line(f"[bold]{escape(record['method']['title'])}[/]"),
+             *_defaults_lines(record.get("defaults_applied") or [], record.get("notes") or []),
+             *_seed_lines(record)]
+    validation = record.get("validation")
+    if validation:
+        lines += validation_lines(validation)
+    if record.get("equilibrium"):
+        return lines + equilibrium_lines(record, top) + advice_lines(record.get("advice"))
+    for result in record["results"]:
+        lines += result_lines(record, result, top)
+    if validation:
+        lines += criteria_lines(validation["criteria"])
+    return lines + advice_lines(record.get("advice"))
+
+
+def written_lines(paths) -> list[Printable]:
+    return [Line(escape("wrote " + ", ".join(str(p) for p in paths)))]
+
+
+def init_lines(folder: Path) -> list[Printable]:
+    method = folder / "method.toml"
+    return [Line(escape(f"wrote {method} and {folder / 'readings.csv'}; edit them, then run "
+                        f"`validate check {method}`"))]
+
+
+def error_line(kind: str, message: str) -> Line:
+    """An error for stderr: `kind` in bold red ("input error", "no result"), then the message."""
+    return Line(f"[bold red]{escape(kind)}[/] {escape(message)}", soft_wrap=True)
+
+
+def interrupted_line() -> Line:
+    return Line("interrupted: no record was written or changed (files are moved into place only when complete)")
+
+
+# --------------------------------------------------------------------------
+# validate verify
+
+def _input_state(check: dict) -> str:
+    if check["matches"]:
+        return "unchanged"
+    return "MISSING" if check["stored_sha256"] is None else "CHANGED (SHA-256 differs from the record)"
+
+
+def _rerun_lines(report: dict, limit: int) -> list[str]:
+    how = (f"{report['trials']} Monte Carlo trials, seed {report['seed']}" if report["trials"]
+           else "linear engine only")
+    tolerance = f"relative tolerance {report['relative_tolerance']:g}"
+    mismatches = report["mismatches"]
+    if report["rerun_error"]:
+        return [f"  re-run ({how}) failed: {report['rerun_error']}"]
+    if not mismatches:
+        return [f"  re-run ({how}): results and budget reproduced ({report['numbers_compared']} numbers, "
+                f"{tolerance})"]
+    lines = [f"  re-run ({how}): {len(mismatches)} of the record's values differ "
+             f"({report['numbers_compared']} numbers compared, {tolerance})"]
+    lines += [f"    {m['path']}: recorded {m['recorded']!r}, now {m['recomputed']!r}" for m in mismatches[:limit]]
+    if len(mismatches) > limit:
+        lines.append(f"    ... and {len(mismatches) - limit} more")
+    return lines
+
+
+def describe_verify(report: dict, limit: int = 20) -> list[str]:
+    """Plain-words lines of a verification (VerifyReport.to_dict()): each input, the re-run,
+    the first `limit` mismatches, the verdict."""
+    lines = [f"record {report['record_id'] or '(no id)'} in {report['folder']}, written by validate "
+             f"{report['recorded_version'] or '(unknown version)'}, re-run with {report['current_version']}"]
+    lines += [f"  input {check['stored']}: {_input_state(check)}" for check in report["inputs"]]
+    lines += _rerun_lines(report, limit)
+    lines.append("verified: the record reproduces from its stored inputs" if report["passed"] else
+                 "NOT verified: see above")
+    return lines
+
+
+def verify_lines(report: dict) -> list[Printable]:
+    return [Line(escape(text), soft_wrap=True) for text in describe_verify(report)]
+
+
+# --------------------------------------------------------------------------
+# validate calibrate
+
+def _fit_text(result: dict) -> list[str]:
+    return [f"Calibration check: {result['file']}",
+            f"  {result['n']} readings at {result['distinct_concentrations']} concentrations, "
+            f"{result['dof']} degrees of freedom",
+            "", "Straight-line fit (ordinary least squares)",
+            f"  slope       {compact(result['slope'], 6)}   u = {compact(result['slope_standard_uncertainty'], 3)}",
+            f"  intercept   {compact(result['intercept'], 6)}   u = "
+            f"{compact(result['intercept_standard_uncertainty'], 3)}",
+            f"  residual SD {compact(result['residual_standard_deviation'], 6)}",
+            f"  r^2         {compact(result['r_squared'], 8)}"]
+
+
+def _linearity_text(result: dict) -> list[str]:
+    out = ["", "Linearity"]
+    for test in result["linearity"].values():
+        head = f"  {test['name']}: "
+        if test["evaluable"]:
+            head += f"statistic {compact(test['statistic'], 4)}"
+            if test["p_value"] is not None:
+                head += f", p = {compact(test['p_value'], 3)}"
+        out += [head, f"    {test['verdict']}", f"    source: {test['source']}"]
+    return out
+
+
+def _limits_text(result: dict) -> list[str]:
+    limits = result["limits"]
+    out = ["", f"Detection and quantitation limits (declared route: {limits['declared_route']})"]
+    out += [f"  {r['route']:<18} LOD {compact(r['lod'], 4):<10} LOQ {compact(r['loq'], 4)}"
+            for r in limits["routes"]]
+    iso = limits["iso11843"]
+    out.append(f"  ISO 11843-2 critical value x_C {compact(iso['critical_value'], 4)}, minimum "
+               f"detectable value x_D {compact(iso['minimum_detectable_value'], 4)} "
+               f"(alpha {iso['alpha']}, beta {iso['beta']})")
+    out += [f"  warning: {w}" for w in limits["warnings"]]
+    out.append(f"  source: {result['limit_source']}")
+    return out
+
+
+def _samples_text(result: dict) -> list[str]:
+    out = []
+    for i, s in enumerate(result.get("sample", []), 1):
+        if i == 1:
+            out += ["", "Samples (concentration from the line, observed-scatter uncertainty)"]
+        flags = f"  [{'; '.join(s['flags'])}]" if s["flags"] else ""
+        out.append(f"  sample {i}: {s['replicates']} reading(s), mean {compact(s['response_mean'], 5)}"
+                   f" -> {compact(s['concentration'], 6)}  u = {compact(s['standard_uncertainty'], 3)}"
+                   f" ({s['dof']} dof){flags}")
+    return out
+
+
+def _notes_text(result: dict) -> list[str]:
+    extra = result["flagged_points"] + result["notes"]
+    if result["readings_outside_absorbance_window"]:
+        lo, hi = result["absorbance_window"]
+        extra.append(f"{result['readings_outside_absorbance_window']} reading(s) outside the "
+                     f"absorbance window {lo:g} to {hi:g} (common practice)")
+    return ["", "Notes"] + [f"  - {e}" for e in extra] if extra else []
+
+
+def format_quick_check(result: dict) -> str:
+    """Plain text of a quick check of a calibration table (the dict quick_check returns)."""
+    out = _fit_text(result) + _linearity_text(result) + _limits_text(result) + _samples_text(result)
+    return "\n".join(out + _notes_text(result)) + "\n"
+
+
+def quick_check_lines(result: dict) -> list[Printable]:
+    return [Line(escape(format_quick_check(result)), soft_wrap=True)]
+
+
+# --------------------------------------------------------------------------
+# progress of a Monte Carlo run
+
+class ProgressBars:
+    """A rich progress bar for each Monte Carlo evaluation; `stop()` ends those still running
+    (an adaptive run may end before its expected number of trials)."""
+
+    def __init__(self, console: Console):
+        self.console = console
+        self.bars: list = []
+
+    def __call__(self, total: int) -> Callable[[int], None]:
+        from rich.progress import BarColumn, Progress, TextColumn, TimeRemainingColumn
+        bar = Progress(TextColumn("Monte Carlo"), BarColumn(), TextColumn("{task.percentage:>3.0f}%"),
+                       TimeRemainingColumn(), console=self.console, transient=True)
+        task = bar.add_task("trials", total=total)
+        bar.start()
+        self.bars.append(bar)
+
+        def advance(n: int) -> None:
+            bar.advance(task, n)
+        return advance
+
+    def stop(self) -> None:
+        for bar in self.bars:
+            bar.stop()

@@ -1,0 +1,276 @@
+"""The blocks `validate run` prints: the line's validation, each result, the equilibrium study,
+the acceptance criteria and the advice. Each takes parts of the record dict (the form
+results.json holds) and returns Lines; nothing here computes a result."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from rich.markup import escape
+from rich.table import Table
+
+from validate.model.equilibrium import COMBINED, LOG10
+from validate.report.numbers import MISSING, compact, decimals_of, dof, gum_pair, interval
+
+
+@dataclass(frozen=True)
+class Line:
+    """One print: rich console markup (record text already escaped). `soft_wrap` lets a long
+    line run on instead of being broken at the console's width; `style` applies to all of it."""
+
+    text: str = ""
+    soft_wrap: bool = False
+    style: str | None = None
+
+
+BLANK = Line()
+Printable = Line | Table  # what the command line prints, in order
+
+
+# --------------------------------------------------------------------------
+# the calibration line and its validation tests
+
+def _line_title(v: dict) -> str:
+    plain_line = v.get("samples") == {} and v.get("trueness") is None and v.get("scatter_consistency") is None
+    return "Line of the standards" if plain_line else "Calibration line"
+
+
+def _fit_lines(v: dict) -> list[Printable]:
+    fit, unit = v["fit"], escape(v["concentration_unit"])
+    return [BLANK,
+            Line(f"[bold]{_line_title(v)}[/] ({fit['n']} readings, absorbance against {unit})"),
+            Line(f"  slope {compact(fit['slope'])} ± {compact(fit['slope_u'], 2)} per {unit}, intercept "
+                 f"{compact(fit['intercept'])} ± {compact(fit['intercept_u'], 2)}, r² {fit['r_squared']:.5f}, "
+                 f"residual SD {compact(fit['residual_sd'], 3)}")]
+
+
+def _test_lines(v: dict) -> list[Printable]:
+    lines: list[Printable] = []
+    for key in ("lack_of_fit", "mandel", "runs", "intercept", "weighting"):
+        test = v[key]
+        p = f" (p = {test['p_value']:.2g})" if test.get("p_value") is not None else ""
+        lines.append(Line(f"  {escape(test['name'])}{p}: {escape(test['verdict'])}", soft_wrap=True))
+    return lines
+
+
+def _limit_lines(v: dict) -> list[Printable]:
+    limits, unit = v["limits"], escape(v["concentration_unit"])
+    routes = "; ".join(f"{escape(r['route'])} {compact(r['lod'], 3)}/{compact(r['loq'], 3)}"
+                       for r in limits["routes"])
+    lines: list[Printable] = [
+        Line(f"  LOD {compact(limits['lod'], 3)} {unit}, LOQ {compact(limits['loq'], 3)} {unit} "
+             f"(declared route: {escape(limits['declared_route'])}); all routes: {routes}", soft_wrap=True)]
+    lines += [Line(f"  [yellow]warning[/] {escape(w)}", soft_wrap=True) for w in limits["warnings"]]
+    return lines
+
+
+def _scatter_and_window(v: dict) -> list[Printable]:
+    lines: list[Printable] = []
+    sc = v.get("scatter_consistency")
+    if sc:
+        lines.append(Line(f"  scatter against the bottom-up budget: {escape(sc['verdict'])} (observed SD "
+                          f"{compact(sc['observed_sd'], 3)}, predicted {compact(sc['predicted_sd'], 3)})",
+                          soft_wrap=True))
+    window = v["window_flags"]
+    if window.get("outside"):
+        lines.append(Line(f"  [yellow]note[/] {window['outside']} reading(s) outside the absorbance window "
+                          f"{window['low']:g} to {window['high']:g} (common practice)"))
+    return lines
+
+
+def _precision_and_trueness(v: dict) -> list[Printable]:
+    lines: list[Printable] = []
+    for sample, ip in (v.get("intermediate_precision") or {}).items():
+        if "intermediate_sd" in ip:
+            lines.append(Line(
+                f"  intermediate precision of {escape(sample)} over {ip['groups']} series: s_I "
+                f"{compact(ip['intermediate_sd'], 3)} {escape(ip['unit'])} "
+                f"(s_r {compact(ip['repeatability_sd'], 3)}): {escape(ip['verdict'])}", soft_wrap=True))
+    t = v.get("trueness")
+    if t:
+        lines.append(Line(f"  trueness: recovery {t['recovery_percent']:.1f} %, E_n = {t['en_number']:.2f}: "
+                          f"{escape(t['verdict'])}", soft_wrap=True))
+    return lines
+
+
+def validation_lines(v: dict) -> list[Printable]:
+    """The line of the standards: fit, linearity tests, limits, scatter, precision, trueness."""
+    return (_fit_lines(v) + _test_lines(v) + _limit_lines(v) + _scatter_and_window(v)
+            + _precision_and_trueness(v))
+
+
+# --------------------------------------------------------------------------
+# one result
+
+def _monte_carlo_lines(mc: dict, decimals: int) -> list[Printable]:
+    def ends(pair) -> str:
+        return interval(pair, decimals, missing=MISSING)
+
+    verdict = (f"[green]agrees[/] with Monte Carlo (ends within {mc['tolerance']:.1g})" if mc["agrees_with_gum"]
+               else f"[yellow]differs[/] from Monte Carlo (an end off by more than {mc['tolerance']:.1g})")
+    lines: list[Printable] = [
+        Line(f"  Monte Carlo  {ends(mc['interval'])}, shortest {ends(mc['shortest_interval'])}, "
+             f"{mc['trials']:,} trials"),
+        Line(f"  GUM interval {ends(mc['gum_interval'])} {verdict}, JCGM 101 clause 8")]
+    if mc.get("warning"):
+        lines.append(Line(f"  [yellow]warning[/] {escape(mc['warning'])}", soft_wrap=True))
+    elif mc.get("invalid_trials"):
+        lines.append(Line(f"  note: {mc['invalid_trials']} trials gave no defined result"))
+    return lines
+
+
+def _budget_lines(record: dict, result: dict, top: int) -> list[Printable]:
+    rows = [row for row in record.get("budget") or [] if row["result"] == result["name"]]
+    lines: list[Printable] = [Line("  largest sources of uncertainty:")]
+    lines += [Line(f"    {row['share']:6.1%}  {escape(row['source'])}  [dim]({escape(row.get('step') or '-')})[/]")
+              for row in rows[:top]]
+    steps = result.get("budget_by_step") or []
+    lines.append(Line("  by step: " + ", ".join(f"{escape(g['group'])} {g['share']:.0%}" for g in steps[:3])))
+    return lines
+
+
+def result_lines(record: dict, result: dict, top: int) -> list[Printable]:
+    """A result with U rounded by GUM 7.2.6, its Monte Carlo check and its largest sources."""
+    value, big_u = gum_pair(result["value"], result["expanded_uncertainty"], missing=MISSING)
+    nu = dof(result.get("effective_dof"), infinite="inf")
+    lines: list[Printable] = [BLANK, Line(f"[bold]{escape(result['name'])}[/]")]
+    lines += [Line(f"  [bold yellow]FLAG[/] {escape(flag)}: report with this flag, not as a plain number")
+              for flag in result.get("flags") or []]
+    lines.append(Line(f"  GUM          [bold]{value} ± {big_u} {escape(result['unit'])}[/]  "
+                      f"(k = {result['coverage_factor']:.2f}, p = {result['coverage_probability']:g}, "
+                      f"nu_eff = {nu})"))
+    if result.get("monte_carlo"):
+        lines += _monte_carlo_lines(result["monte_carlo"], decimals_of(value) + 1)
+    if top > 0:
+        lines += _budget_lines(record, result, top)
+    return lines
+
+
+# --------------------------------------------------------------------------
+# the equilibrium study
+
+def _mixture_table(e: dict) -> Table:
+    table = Table(show_edge=False, pad_edge=False)
+    cu = escape(e["concentration_unit"])
+    for col in ("point", f"[M]0 {cu}", f"[L]0 {cu}", "K", "U", "Monte Carlo 95 %"):
+        table.add_column(col, justify="left" if col == "point" else "right")
+    for p in e["mixtures"]:
+        value, big_u = gum_pair(p["K"], p["expanded_uncertainty"], missing=MISSING)
+        ends = f"[{p['interval'][0]:.4g}, {p['interval'][1]:.4g}]" if p["interval"] else "-"
+        table.add_row(p["id"], f"{p['M_total']:.4g}", f"{p['L_total']:.4g}", value, big_u, ends)
+    return table
+
+
+def _mixture_lines(e: dict) -> list[Printable]:
+    cond = e["conditions"]
+    lines: list[Printable] = [
+        BLANK,
+        Line(f"[bold]Formation constant K of ML (1:1)[/], in {escape(e['k_unit'])}; conditional on "
+             f"{compact(cond['temperature_C'])} degC, I = {compact(cond['ionic_strength_mol_per_L'])} mol/L"),
+        _mixture_table(e)]
+    lines += [Line(f"  [yellow]note[/] {escape(p['id'])}: {escape(p['saturation_flag'])}", soft_wrap=True)
+              for p in e["mixtures"] if p.get("saturation_flag")]
+    return lines
+
+
+def _combination_lines(e: dict) -> list[Printable]:
+    c, lines = e["combined"], list[Printable]()
+    if c.get("consistency"):
+        k = c["consistency"]
+        lines.append(Line(f"  consistency: chi-square {k['chi_square']:.2f} on {k['dof']} dof, p = "
+                          f"{k['p_value']:.2g}, Birge ratio {k['birge_ratio']:.2f}: {escape(k['verdict'])}",
+                          soft_wrap=True))
+    if any(w < 0 for w in c["weights"]):
+        lines.append(Line("  note: some generalised-least-squares weights are negative (strongly correlated "
+                          "K values)", style="dim"))
+    trend = e.get("trend") or {}
+    if "message" in trend:
+        lines.append(Line(f"  trend with {escape(trend['against'])}: {escape(trend['message'])} "
+                          f"(p = {trend['p_value']:.2g})", soft_wrap=True))
+    return lines
+
+
+def _bias_lines(e: dict) -> list[Printable]:
+    b, unit = e["complete_complexation_bias"], escape(e["k_unit"])
+    fractions = b["fraction_complexed_in_standards"]
+    lines: list[Printable] = [Line(
+        f"  taking the standards as fully complexed would bias the slope by {b['slope']:+.1%} and K by "
+        f"{b['K']:+.1%} (naive K = {b['naive_K']:.4g} {unit}); fraction complexed in the standards "
+        f"{min(fractions):.3f} to {max(fractions):.3f}", soft_wrap=True)]
+    if not b["iteration_converged"]:
+        lines.append(Line("  [yellow]warning[/] the correction of the standards did not converge: see the joint fit",
+                          soft_wrap=True))
+    return lines
+
+
+def _cross_check_lines(e: dict) -> list[Printable]:
+    unit, lines = escape(e["k_unit"]), list[Printable]()
+    joint = e.get("joint_fit") or {}
+    if "K" in joint:
+        lines.append(Line(f"  cross-check, joint nonlinear fit: K = {joint['K']:.4g} ± "
+                          f"{joint['standard_uncertainty']:.2g} {unit} (standard uncertainty)"))
+    if "activity_estimate" in e:
+        k0 = e["activity_estimate"]["K_thermodynamic"]
+        k0 = k0["value"] if isinstance(k0, dict) else k0
+        lines.append(Line(f"  activity estimate (Davies, an estimate): K at zero ionic strength about "
+                          f"{k0:.4g} {unit}", soft_wrap=True))
+    return lines
+
+
+def equilibrium_lines(record: dict, top: int) -> list[Printable]:
+    """K per mixture, the combined K and log10 K, the checks of the combination and the bias."""
+    e = record["equilibrium"]
+    by_name = {r["name"]: r for r in record["results"]}
+    lines = _mixture_lines(e)
+    lines += result_lines(record, by_name[COMBINED], top)
+    lines += result_lines(record, by_name[LOG10], 0)
+    return lines + _combination_lines(e) + _bias_lines(e) + _cross_check_lines(e)
+
+
+# --------------------------------------------------------------------------
+# acceptance criteria and advice
+
+def _criterion_line(c: dict) -> Line:
+    mark = "[green]met[/]" if c["met"] else "[red]NOT MET[/]"
+    limit = c["limit"] if not isinstance(c["limit"], list) else f"{c['limit'][0]:g} to {c['limit'][1]:g}"
+    default = " (default)" if c["is_default"] else ""
+    return Line(f"  {mark}  {escape(c['name'])}: {compact(c['observed'])} {escape(c['comparison'])} "
+                f"{limit}{default}", soft_wrap=True)
+
+
+def criteria_lines(criteria: dict) -> list[Printable]:
+    """How many criteria are met, each evaluated one, and the caution."""
+    rows = criteria["criteria"]
+    counts = {status: sum(1 for c in rows if c["status"] == status)
+              for status in ("met", "not met", "not set", "not evaluable")}
+    head = ", ".join(f"{n} {status}" for status, n in counts.items() if n)
+    lines: list[Printable] = [BLANK, Line(f"[bold]Acceptance criteria[/]: {head}")]
+    lines += [_criterion_line(c) for c in rows if c["status"] in ("met", "not met")]
+    lines.append(Line(f"  [dim]{escape(criteria['caution'])}[/]", soft_wrap=True))
+    return lines
+
+
+def _advice_figure(advice: dict, value) -> str:
+    if advice["unit"].startswith("relative"):
+        return f"{100 * value:.2f} %"
+    return f"{value:.3g} {advice['unit']}"
+
+
+def advice_lines(advice: dict | None) -> list[Printable]:
+    """The three changes that lower U most, and all of them together."""
+    if not advice:
+        return []
+    quantified = [a for a in advice["items"] if a["expanded_uncertainty_after"] is not None]
+    lines: list[Printable] = [BLANK, Line(
+        f"[bold]What to improve first[/] (judged by {escape(advice['target'])}: now "
+        f"{_advice_figure(advice, advice['expanded_uncertainty_before'])})")]
+    if not quantified:
+        lines.append(Line("  no change among those tried lowers the expanded uncertainty noticeably"))
+    lines += [Line(f"  -{a['reduction']:.0%}  {escape(a['change'])} -> "
+                   f"{_advice_figure(advice, a['expanded_uncertainty_after'])}  [dim]({escape(a['cost'])})[/]",
+                   soft_wrap=True) for a in quantified[:3]]
+    if advice.get("combined"):
+        c = advice["combined"]
+        after = _advice_figure(advice, c["expanded_uncertainty_after"])
+        lines.append(Line(f"  together: -{c['reduction']:.0%} -> {after}", soft_wrap=True))
+    return lines
