@@ -39,26 +39,17 @@ from validate.model.ice import (
     equilibrium_constant,
     fraction_complexed,
 )
+from validate.model.line import straight_line
 
 
 def line_by_sums(x, y, weights=None):
-    """Slope and intercept of y on x by least squares, written with sums only.
-
-    b = sum w (x - xm)(y - ym) / sum w (x - xm)^2, a = ym - b xm (weighted
-    means), the normal equations of a straight line (e.g. Miller & Miller,
-    Statistics and Chemometrics for Analytical Chemistry, sections 5.4 and
-    5.10). Generic: x and y are sequences of per-point values of any backend;
-    the loop runs over points, never over trials. Weights are plain floats.
-    """
-    n = len(x)
-    w = [1.0] * n if weights is None else [float(v) for v in weights]
-    sw = sum(w)
-    xm = sum(wi * xi for wi, xi in zip(w, x)) / sw
-    ym = sum(wi * yi for wi, yi in zip(w, y)) / sw
-    sxx = sum(wi * (xi - xm) ** 2 for wi, xi in zip(w, x))
-    sxy = sum(wi * (xi - xm) * (yi - ym) for wi, xi, yi in zip(w, x, y))
-    slope = sxy / sxx
-    return slope, ym - slope * xm
+    """(slope, intercept) of y on x through the package's one least-squares line
+    (`validate.model.line.level_sums`): each point a level whose count is its weight
+    (the standards' replicate readings; all 1 when None). Generic over the backend;
+    the loop runs over points, never over trials."""
+    counts = [1.0] * len(x) if weights is None else [float(v) for v in weights]
+    intercept, slope = straight_line(counts, x, y)
+    return slope, intercept
 
 
 @dataclass(frozen=True)
