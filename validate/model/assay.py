@@ -16,7 +16,9 @@ result formula.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from typing import Any
 
+from validate.inputs.formula import Formula
 from validate.inputs.schema import Method
 from validate.metrology.equipment import SourceSet, balance_terms, exact_or, value_source, volume_term
 from validate.metrology.sources import Source
@@ -77,24 +79,37 @@ class Model(SolutionInputs):
         """Results (in their display units) from source values of any backend."""
         conc = self.concentrations(x)
         values = dict(conc)
-        line = self.line(x, conc) if self.design is not None else None
-        results = {}
-        samples = self.method.samples if "c_measured" in self.method.result.formula.names else [None]
+        formula = result_formula(self.method)
         factor = self.method.result.unit.factor
-        for sample, label in zip(samples, self.result_labels, strict=True):
+        read = self._read_off_line(x, conc) if "c_measured" in formula.names else [("", None)]
+        results = {}
+        for (sample_id, c_measured), label in zip(read, self.result_labels, strict=True):
             for name, term in self._quantity_terms.items():
-                values[name] = term(x, sample.id if sample else "")
-            if sample is not None:
-                intercept, slope = line
-                values["c_measured"] = (self._reading_terms[sample.id](x) - intercept) / slope
-            results[label] = self.method.result.formula.evaluate(values, backend.FUNCTIONS) / factor
+                values[name] = term(x, sample_id)
+            if c_measured is not None:  # a result without a sample reads nothing off the line
+                values["c_measured"] = c_measured
+            results[label] = formula.evaluate(values, backend.FUNCTIONS) / factor
         return results
+
+    def _read_off_line(self, x, conc) -> list[tuple[str, Any]]:
+        """(sample id, concentration in the measured solution) of every sample, from this
+        evaluation's line."""
+        intercept, slope = self.line(x, conc)
+        return [(smp.id, (self._reading_terms[smp.id](x) - intercept) / slope) for smp in self._design().samples]
+
+
+def result_formula(method: Method) -> Formula:
+    """The method's parsed result formula."""
+    formula = method.result.formula
+    if not isinstance(formula, Formula):
+        raise TypeError("the method's result formula has not been parsed")
+    return formula
 
 
 def build_model(method: Method) -> Model:
     ss = SourceSet()
     s = method.settings
-    samples = method.samples if "c_measured" in method.result.formula.names else []
+    samples = method.samples if "c_measured" in result_formula(method).names else []
     name = method.result.name
     labels = [f"{name}, {smp.id}" for smp in samples] or [name]
     model = Model(method, ss.sources, labels)
@@ -210,12 +225,12 @@ def mean_reading_term(ss: SourceSet, method: Method, ident: str, readings: tuple
             step="calibration fit", kind="A", dof_group="calibration line", unit="AU",
             provenance=f"residual standard deviation of the line {s_abs:.3g} (absorbance), "
             f"{len(readings)} reading(s), {dof} degrees of freedom (observed scatter; ISO 8466-1, CG4 A5)"))]
+    path0 = _path_of(cell) if cell is not None else 1.0
     if cell is not None:
-        path = ss.add(Source(f"{cell.id}: path length", cell.path, cell.tolerance / 3**0.5, "rectangular",
+        path = ss.add(Source(f"{cell.id}: path length", path0, cell.tolerance / 3**0.5, "rectangular",
                              step="photometric reading", equipment=cell.id,
-                             provenance=f"{cell.path * 1e3:g} mm +/-{cell.tolerance * 1e3:g} mm, one cell for "
+                             provenance=f"{path0 * 1e3:g} mm +/-{cell.tolerance * 1e3:g} mm, one cell for "
                              f"every reading; {cell.provenance}", unit="mm", display_factor=1e-3))
-    path0 = cell.path if cell is not None else 1.0
     mean = sum(readings) / len(readings)
 
     def term(x):
@@ -229,6 +244,13 @@ def mean_reading_term(ss: SourceSet, method: Method, ident: str, readings: tuple
         return a / exact_or(x, path, path0)
 
     return term
+
+
+def _path_of(cell) -> float:
+    """A cuvette's path length (m); the method file's checks give every cuvette one."""
+    if cell.path is None:
+        raise ValueError(f"cuvette `{cell.id}` has no path length")
+    return cell.path
 
 
 def _quantity_term(ss: SourceSet, method: Method, q, samples):
