@@ -38,9 +38,9 @@ def exact_root(K: float, M0: float, L0: float) -> float:
     Decimal(float) is exact, so only the final rounding limits the reference.
     """
     getcontext().prec = 100
-    k, m, l = Decimal(K), Decimal(M0), Decimal(L0)
-    S = m + l + 1 / k
-    return float((S - (S * S - 4 * m * l).sqrt()) / 2)
+    k, m, l_ = Decimal(K), Decimal(M0), Decimal(L0)
+    S = m + l_ + 1 / k
+    return float((S - (S * S - 4 * m * l_).sqrt()) / 2)
 
 
 def naive_root(K, M0, L0):
@@ -49,7 +49,7 @@ def naive_root(K, M0, L0):
 
 
 def absorbances(K, eps, a0, M, L):
-    return [a0 + eps * complex_concentration(K, m, l) for m, l in zip(M, L)]
+    return [a0 + eps * complex_concentration(K, m, l_) for m, l_ in zip(M, L, strict=True)]
 
 
 def design(K, excess=30.0, eps_per_K=0.4, a0=0.02):
@@ -179,7 +179,8 @@ def test_linear_and_monte_carlo_engines_agree_for_small_noise():
 
 def test_undefined_trials_are_counted_not_dropped():
     # A trial whose reading implies more complex than ligand gives negative free
-    # L: DESIGN.md section 3 asks for a count, the trial stays in the array.
+    # L: it is counted and reported (dropping it would bias the distribution towards the
+    # well-behaved trials), and the trial stays in the array.
     std_M, std_L, std_A, mix_M, mix_L, mix_A, eps, a0 = design(1e3)
     bad = a0 + eps * 1.5 * mix_L[0]  # [ML] = 1.5 L0, impossible
     mixA = [np.array([a, a, bad]) if i == 0 else np.array([a, a, a]) for i, a in enumerate(mix_A)]
@@ -242,7 +243,8 @@ def test_slope_and_K_bias_match_closed_form():
                           mix_M, mix_L, absorbances(K, eps, a0, mix_M, mix_L))
     f = K * M0 / (1 + K * M0)
     assert r.slope_bias == pytest.approx(f - 1.0, rel=1e-4)
-    naive = [equilibrium_constant(complex_concentration(K, m, l) / f, m, l).K for m, l in zip(mix_M, mix_L)]
+    naive = [equilibrium_constant(complex_concentration(K, m, l_) / f, m, l_).K
+             for m, l_ in zip(mix_M, mix_L, strict=True)]
     assert r.naive_K == pytest.approx(np.mean(naive), rel=1e-4)
     assert r.K_bias == pytest.approx(np.mean(naive) / K - 1.0, rel=1e-4)
     assert r.K == pytest.approx(K, rel=1e-9)
@@ -311,7 +313,7 @@ def test_addition_series_totals_hand_computed():
 
 
 def test_shared_pipette_offset_correlates_the_series():
-    # One offset d shared by every aliquot (DESIGN.md section 3): c_k = c_s k(v+d)/(V0 + k(v+d)),
+    # One offset d shared by every aliquot (one source for one item): c_k = c_s k(v+d)/(V0 + k(v+d)),
     # so dc_k/dd = c_s k V0 / (V0 + k v)^2 and cov(c_j, c_k) = dc_j/dd dc_k/dd u(d)^2
     # (GUM 5.2.2 with one common input).
     cs, v, V0, ud = 5e-3, 1.0, 20.0, 0.006

@@ -104,7 +104,7 @@ def test_weights_reproduce_the_uncertainty_in_the_linear_engine():
     K = [ufloat(980.0, 10.0) + shared, ufloat(1010.0, 6.0) + shared, ufloat(1003.0, 8.0) + 0.5 * shared]
     V = np.array(covariance_matrix(K))
     w = gls_weights(V)
-    combined = sum(wi * Ki for wi, Ki in zip(w, K))
+    combined = sum(wi * Ki for wi, Ki in zip(w, K, strict=True))
     c = combine_correlated([k.nominal_value for k in K], V)
     assert combined.std_dev == pytest.approx(c.standard_uncertainty, rel=1e-10)
     assert combined.nominal_value == pytest.approx(c.value, rel=1e-13)

@@ -29,7 +29,7 @@ def _noise_free_copy(tmp_path, K_L_per_mol: float, correction: str = "iterate", 
     slope, intercept = 4.2, 0.004  # absorbance per mmol/L (10 mm cell), blank
     lines = ["id,absorbance"]
     ids = [m.id for m in method.equilibrium.standards] + model.points
-    for ident, m, l_ in zip(ids, list(sm) + list(pm), list(sl) + list(pl)):
+    for ident, m, l_ in zip(ids, list(sm) + list(pm), list(sl) + list(pl), strict=True):
         a = intercept + slope * complex_concentration(K, m, l_)
         lines += [f"{ident},{a!r}", f"{ident},{a!r}"]
     (folder / "readings.csv").write_text("\n".join(lines) + "\n")
@@ -55,7 +55,7 @@ def test_full_complexation_bias_matches_closed_form(tmp_path):
     K = 850.0
     run = api.analyse(_noise_free_copy(tmp_path, K), trials=None, advice=False)
     bias = run.record["equilibrium"]["complete_complexation_bias"]
-    method, model = run.method, run.model
+    model = run.model
     sm, sl, *_ = model.columns(model.nominal_inputs())
     free_m = sm[0] - complex_concentration(K * 1e-3, sm[0], sl[0])  # mol/m^3 = mmol/L
     f = (K * 1e-3 * free_m) / (1 + K * 1e-3 * free_m)

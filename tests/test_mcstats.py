@@ -123,7 +123,8 @@ def test_shortest_interval_of_a_skewed_distribution():
     y = dist.rvs(size=400_000, random_state=np.random.default_rng(51))
     sym = coverage_interval_symmetric(y)
     short = coverage_interval_shortest(y)
-    best = optimize.minimize_scalar(lambda a: dist.ppf(a + 0.95) - dist.ppf(a), bounds=(1e-9, 0.05 - 1e-9), method="bounded")
+    best = optimize.minimize_scalar(lambda a: dist.ppf(a + 0.95) - dist.ppf(a), bounds=(1e-9, 0.05 - 1e-9),
+                                    method="bounded")
     exact_low, exact_high = dist.ppf(best.x), dist.ppf(best.x + 0.95)
     assert short.width < sym.width - 0.05  # clearly shorter (exact widths 2.06 vs 2.29)
     assert short.low == pytest.approx(exact_low, abs=0.02)

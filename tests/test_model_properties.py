@@ -75,7 +75,7 @@ def test_squared_contributions_add_up_to_the_combined_variance(write_method, vol
 @given(volumes=volumes)
 def test_one_item_used_twice_is_one_correlated_source(write_method, volumes):
     # The same pipette in two dilution steps: ONE calibration offset shared by both
-    # uses (DESIGN.md section 3), so its contribution is twice that of one use:
+    # uses (correlation from identity, GUM 5.2.2), so its contribution is twice that of one use:
     # c = c0 (Vp/Vf)^2, dc/dVp = 2 c / Vp; u(offset) = tolerance/sqrt(6) (triangular, CG4).
     vp, vf = volumes
     run = api.analyse(_write(write_method, vp, vf), trials=None, advice=False)
@@ -121,7 +121,7 @@ def test_observed_scatter_reproduces_the_inverse_prediction_formula():
     xs = [conc[i] * 1e3 for i in ids for _ in method.readings[i]]  # mol/m^3 -> µmol/L
     ys = [a for i in ids for a in method.readings[i]]
     fit = fit_line(xs, ys)
-    for sample, result in zip(method.samples, run.results):
+    for sample, result in zip(method.samples, run.results, strict=True):
         u_line = math.sqrt(sum(r.contribution**2 for r in result.contributions if r.step == "calibration fit"))
         pred = inverse_prediction(fit, method.readings[sample.id])
         # result = c * V_flask / V_sample * M_P: 50/20 dilution, 30.973762 g/mol, µmol/L -> mg/L
@@ -156,7 +156,7 @@ def test_weighted_line_reproduces_the_weighted_inverse_prediction(tmp_path):
     path = method.items["cell_40"].path
     assert slope * path * 1e-3 == pytest.approx(fit.slope, rel=1e-9)  # per mol/m^3 -> per µmol/L
     assert intercept * path == pytest.approx(fit.intercept, rel=1e-9)
-    for sample, result in zip(method.samples, run.results):
+    for sample, result in zip(method.samples, run.results, strict=True):
         u_line = math.sqrt(sum(r.contribution**2 for r in result.contributions if r.step == "calibration fit"))
         pred = inverse_prediction(fit, method.readings[sample.id], sample_weight=model.design.weight(sample.id))
         assert u_line == pytest.approx(pred.standard_uncertainty * 1e-3 * 2.5 * 30.973762, rel=1e-6)

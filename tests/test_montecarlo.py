@@ -155,7 +155,7 @@ def test_calibration_refitted_in_every_trial(tmp_path):
     # and the spread of the line feeds the result: Monte Carlo and GUM agree for this
     # nearly linear model (JCGM 101 clause 8 spirit: relative difference of u below 5 %)
     run = api.analyse(folder / "method.toml", trials=100_000, seed=4, advice=False)
-    for gum, mc in zip(run.results, run.monte_carlo):
+    for gum, mc in zip(run.results, run.monte_carlo, strict=True):
         assert mc.summary.standard_deviation == pytest.approx(gum.standard_uncertainty, rel=0.05)
     out = evaluate_trials(model, 10, np.random.default_rng(0))
     assert all(v.shape == (10,) for v in out.values())

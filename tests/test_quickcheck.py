@@ -23,8 +23,8 @@ REFERENCE = Path(__file__).parent / "reference"
 
 
 def test_norris_certified_values():
-    # NIST/ITL StRD linear regression dataset "Norris", certified values
-    # (/work/shared/reference-data/README.md); tests/reference/norris_calibration.csv.
+    # NIST/ITL StRD linear regression dataset "Norris", certified values;
+    # data in tests/reference/norris_calibration.csv.
     res = quick_check(REFERENCE / "norris_calibration.csv")
     assert res["n"] == 36 and res["dof"] == 34
     assert res["intercept"] == pytest.approx(-0.262323073774029, rel=1e-9)

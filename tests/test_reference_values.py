@@ -14,8 +14,8 @@ from validate.workflow import pipeline as api
 def test_cg4_example_a1_through_the_method_file():
     # Source: EURACHEM/CITAC Guide CG4 (3rd ed. 2012), Example A1, c(Cd) = 1002.7 mg/L,
     # u = 0.9 mg/L, U = 1.8 mg/L (k = 2). The guide combines rounded relative
-    # uncertainties; without intermediate rounding u = 0.835 mg/L (shared/reference-data
-    # README). We reproduce the unrounded value.
+    # uncertainties; recombining the guide's own inputs without intermediate rounding gives
+    # u = 0.835 mg/L. We reproduce the unrounded value.
     run = api.analyse(REFERENCE / "cg4_a1" / "method.toml", trials=None, advice=False)
     (result,) = run.results
     assert result.value == pytest.approx(1002.7, abs=0.05)
@@ -43,8 +43,8 @@ NORRIS_CERTIFIED = {  # NIST StRD, linear regression dataset "Norris", certified
 
 
 def test_norris_straight_line_fit():
-    # Source: NIST/ITL Statistical Reference Datasets, "Norris" (data copied in
-    # tests/reference/nist_norris.csv from shared/reference-data); certified values
+    # Source: NIST/ITL Statistical Reference Datasets, "Norris" (data in
+    # tests/reference/nist_norris.csv); certified values
     # reproduced to better than 1e-9 relative.
     data = np.loadtxt(REFERENCE / "nist_norris.csv", delimiter=",", skiprows=1)
     fit = fit_line(data[:, 0], data[:, 1])

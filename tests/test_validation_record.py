@@ -97,7 +97,7 @@ def test_intermediate_precision_over_the_series_column(demo_run):
     method = demo_run.method
     values = [(a - fit["intercept"]) / fit["slope"] for a in method.readings["reference_water"]]
     labels = method.reading_series["reference_water"]
-    groups = [[v for v, s in zip(values, labels) if s == day] for day in sorted(set(labels))]
+    groups = [[v for v, s in zip(values, labels, strict=True) if s == day] for day in sorted(set(labels))]
     assert ip["groups"] == 3 and ip["n"] == 9
     assert ip["f_statistic"] == pytest.approx(stats.f_oneway(*groups).statistic, rel=1e-9)
     assert ip["intermediate_sd"] >= ip["repeatability_sd"]

@@ -100,7 +100,7 @@ def count_undefined(*quantities) -> int:
     Concentrations and K must be > 0; a trial where one is not (a negative
     free concentration from a Monte Carlo draw, a diverged iteration) makes
     the result undefined. Such trials are counted and reported, not dropped
-    (see DESIGN.md section 3). Floats and ufloats count as one trial.
+    (dropping them would bias the distribution). Floats and ufloats count as one trial.
     """
     bad = None
     for q in quantities:

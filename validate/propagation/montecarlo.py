@@ -7,7 +7,8 @@ bounded by the chunk size, apart from the output values kept for the
 coverage intervals (8 bytes per trial and result).
 
 Trials whose result is undefined (NaN or infinite, e.g. a zero slope) are
-counted and reported, never dropped silently (DESIGN.md section 3).
+counted and reported, never dropped silently: dropping them would bias the
+distribution towards the well-behaved trials.
 """
 
 from __future__ import annotations
