@@ -187,6 +187,9 @@ def test_equilibrium_design_follows_the_study():
     study, design = method.equilibrium, model.design
     assert [lv.id for lv in design.standards] == [m.id for m in study.standards]
     assert design.point_ids() == study.point_ids() == model.points
+    assert [p.id for p in design.mixtures] == [m.id for m in study.mixtures]
+    assert [p.id for p in design.series_points] == [i for s in study.series for i in s.reading_ids()]
+    assert all(p.readings == tuple(method.readings[p.id]) for p in design.points)
     sm, sl, _, reps, *_ = model.columns(model.nominal_inputs())
     limiting = sl if study.limiting == "ligand" else sm
     assert [lv.concentration for lv in design.standards] == pytest.approx(limiting, rel=1e-12)

@@ -90,6 +90,10 @@ def _level(method: Method, ident: str, role: str, concentrations: Mapping[str, f
     return Level(ident, role, (prep,))
 
 
+def _read(method: Method, ident: str) -> ReadSolution:
+    return ReadSolution(ident, tuple(method.readings[ident]), method.reading_series.get(ident))
+
+
 def calibration_design(method: Method, concentrations: Mapping[str, float]) -> CalibrationDesign:
     """The design of a method's calibration, checked, with its weights when the method asks
     for a weighted line. `concentrations`: every solution's concentration at the estimates (SI)."""
@@ -98,8 +102,7 @@ def calibration_design(method: Method, concentrations: Mapping[str, float]) -> C
         raise ValueError("the method has no [calibration]; there is no calibration design")
     standards = tuple(_level(method, sid, "standard", concentrations) for sid in cal.standards)
     blanks = tuple(_level(method, bid, "blank", concentrations) for bid in cal.blanks)
-    samples = tuple(ReadSolution(s.id, tuple(method.readings[s.id]), method.reading_series.get(s.id))
-                    for s in method.samples)
+    samples = tuple(_read(method, s.id) for s in method.samples)
     design = CalibrationDesign(standards + (blanks if cal.blanks_in_fit else ()), blanks,
                                cal.blanks_in_fit, samples)
     check_calibration_data(method, design)
@@ -144,8 +147,14 @@ class EquilibriumDesign:
     """The design of a complex-formation study: the standards' line and the points read off it."""
 
     standards: tuple[Level, ...]  # concentration: the limiting reagent's total at the estimates (SI)
-    points: tuple[ReadSolution, ...]  # mixtures, then every addition-series point, in order
+    mixtures: tuple[ReadSolution, ...]
+    series_points: tuple[ReadSolution, ...]  # every addition series' points, series by series
     limiting: str  # reagent the standards are short of: "metal" or "ligand"
+
+    @property
+    def points(self) -> tuple[ReadSolution, ...]:
+        """The solutions K is found from: the mixtures, then the addition-series points."""
+        return self.mixtures + self.series_points
 
     def point_ids(self) -> list[str]:
         return [p.id for p in self.points]
@@ -165,6 +174,6 @@ def equilibrium_design(method: Method, limiting_totals: Mapping[str, float]) -> 
     if study is None:
         raise ValueError("the method has no equilibrium study; there is no equilibrium design")
     standards = tuple(_level(method, mix.id, "standard", limiting_totals) for mix in study.standards)
-    points = tuple(ReadSolution(i, tuple(method.readings[i]), method.reading_series.get(i))
-                   for i in study.point_ids())
-    return EquilibriumDesign(standards, points, study.limiting)
+    mixtures = tuple(_read(method, mix.id) for mix in study.mixtures)
+    series = tuple(_read(method, ident) for s in study.series for ident in s.reading_ids())
+    return EquilibriumDesign(standards, mixtures, series, study.limiting)

@@ -119,10 +119,10 @@ def build_equilibrium_model(method: Method) -> EquilibriumModel:
         return mean_reading_term(ss, method, point.id, point.readings, scatter, study.cuvette, study.photometer)
 
     model._standards = [(totals, reading(lv)) for lv, totals in zip(design.standards, std_totals, strict=True)]
-    points = iter(design.points)  # mixtures, then the series' points: the design's order
-    for mix in study.mixtures:
+    for mix, point in zip(study.mixtures, design.mixtures, strict=True):
         totals = _mix_totals(ss, method, mix, False)
-        model._points.append((totals, reading(next(points))))
+        model._points.append((totals, reading(point)))
+    series_points = iter(design.series_points)
     for series in study.series:
         step = f"addition series {series.id}"
         start = {r: volume_term(ss, method, d, step, f"{series.id} start, {r}") for r, d in series.start.items()}
@@ -130,7 +130,7 @@ def build_equilibrium_model(method: Method) -> EquilibriumModel:
                      for k in range(1, series.additions + 1)]
         for k in range(1, series.additions + 1):
             model._points.append((_series_totals(series.solutions, start, additions[:k], series.added),
-                                  reading(next(points))))
+                                  reading(next(series_points))))
     model.assumptions.extend(_assumptions(study, observed))
     return model
 
