@@ -6,6 +6,7 @@ general reference libraries; the design against the (invented) demo method files
 
 from __future__ import annotations
 
+import json
 import shutil
 
 import numpy as np
@@ -150,6 +151,9 @@ def test_demo_design_follows_the_method_file():
     assert [s.id for s in design.samples] == [s.id for s in method.samples]
     assert {s.id: s.series for s in design.samples} == {s.id: method.reading_series.get(s.id) for s in method.samples}
     assert not design.weighted and design.weight("S1") == 1.0
+    plain = json.loads(json.dumps(design.to_dict()))
+    assert [lv["id"] for lv in plain["levels"]] == [lv.id for lv in design.levels]
+    assert plain["levels"][0]["preparations"][0]["readings"] == list(method.readings[design.levels[0].id])
     # the model refits through exactly these points: at the estimates its line is the design's line
     # (readings divided by the 40 mm path; concentrations in mol/m^3)
     xs, ys, _ = design.reading_points()

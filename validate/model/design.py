@@ -18,7 +18,7 @@ concentration), counting every reading.
 from __future__ import annotations
 
 from collections.abc import Mapping
-from dataclasses import dataclass, replace
+from dataclasses import asdict, dataclass, replace
 
 from validate.inputs.schema import Method
 from validate.model.errors import ModelError
@@ -82,6 +82,11 @@ class CalibrationDesign:
         """Standards, blanks and samples: every absorbance the method reads."""
         return ([a for lv in self.standards for a in lv.readings] + self.blank_readings()
                 + [a for s in self.samples for a in s.readings])
+
+    def to_dict(self) -> dict:
+        d = asdict(self)
+        d["weights"] = None if self.weights is None else dict(self.weights)
+        return d
 
 
 def _level(method: Method, ident: str, role: str, concentrations: Mapping[str, float]) -> Level:
@@ -165,6 +170,9 @@ class EquilibriumDesign:
 
     def every_reading(self) -> list[float]:
         return [a for lv in self.standards for a in lv.readings] + [a for p in self.points for a in p.readings]
+
+    def to_dict(self) -> dict:
+        return asdict(self)
 
 
 def equilibrium_design(method: Method, limiting_totals: Mapping[str, float]) -> EquilibriumDesign:
