@@ -150,7 +150,7 @@ def test_weighted_line_reproduces_the_weighted_inverse_prediction(tmp_path):
     ids = list(method.calibration.standards) + list(method.calibration.blanks)
     xs = [conc[i] * 1e3 for i in ids for _ in method.readings[i]]
     ys = [a for i in ids for a in method.readings[i]]
-    ws = [model.weight(i) for i in ids for _ in method.readings[i]]
+    ws = [model.design.weight(i) for i in ids for _ in method.readings[i]]
     fit = fit_line(xs, ys, ws)
     intercept, slope = model.line(model.nominal_inputs())
     path = method.items["cell_40"].path
@@ -158,5 +158,5 @@ def test_weighted_line_reproduces_the_weighted_inverse_prediction(tmp_path):
     assert intercept * path == pytest.approx(fit.intercept, rel=1e-9)
     for sample, result in zip(method.samples, run.results, strict=True):
         u_line = math.sqrt(sum(r.contribution**2 for r in result.contributions if r.step == "calibration fit"))
-        pred = inverse_prediction(fit, method.readings[sample.id], sample_weight=model.weight(sample.id))
+        pred = inverse_prediction(fit, method.readings[sample.id], sample_weight=model.design.weight(sample.id))
         assert u_line == pytest.approx(pred.standard_uncertainty * 1e-3 * 2.5 * 30.973762, rel=1e-6)

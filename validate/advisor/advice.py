@@ -230,14 +230,15 @@ def window_advice(model: Model, results: list[LinearResult], fig_before: float, 
     method, cal = model.method, model.method.calibration
     if cal is None or method.result is None or "c_measured" not in method.result.formula.names:
         return []
-    conc = model.concentrations(model.nominal_inputs())
-    ids = list(cal.standards) + (list(cal.blanks) if cal.blanks_in_fit else [])
-    fit = fit_line([conc[i] for i in ids for _ in method.readings[i]], [a for i in ids for a in method.readings[i]])
-    top = max(sum(method.readings[s]) / len(method.readings[s]) for s in cal.standards)
+    design = model.design
+    assert design is not None  # a model with a calibration owns its design
+    xs, ys, _ = design.reading_points()
+    fit = fit_line(xs, ys)
+    top = max(p.mean for lv in design.standards for p in lv.preparations)
     goal = min(OPTIMUM_ABSORBANCE, top)
     out = []
-    for smp, result in zip(method.samples, results):
-        mean = sum(method.readings[smp.id]) / len(method.readings[smp.id])
+    for smp, result in zip(design.samples, results, strict=True):
+        mean = smp.mean
         if READING_WINDOW[0] <= mean <= READING_WINDOW[1] or mean <= fit.intercept:
             continue
         factor = (goal - fit.intercept) / (mean - fit.intercept)

@@ -10,12 +10,17 @@ from dataclasses import replace
 from validate.advisor.candidates import READING_FACTOR, Candidate
 from validate.inputs.schema import Method
 from validate.model.assay import build_model
+from validate.model.design import CalibrationDesign
+from validate.model.equilibrium import build_equilibrium_model
 from validate.model.line import fit_line
 
 
-def _calibration_ids(method: Method) -> list[str]:
-    cal = method.calibration
-    return list(cal.standards) + (list(cal.blanks) if cal.blanks_in_fit else [])
+def _design(method: Method) -> CalibrationDesign:
+    """The calibration design of a method (its model's; the method has a calibration)."""
+    design = build_model(method).design
+    if design is None:
+        raise ValueError("the method has no calibration line")
+    return design
 
 
 def with_more_sample_readings(method: Method, factor: int = READING_FACTOR) -> Method:
@@ -36,23 +41,20 @@ def with_more_calibration_readings(method: Method, factor: int = READING_FACTOR)
     scaled by c = sqrt((factor N - 2) / (factor (N - 2))): the line is unchanged
     (residuals are orthogonal to 1 and x), its residual standard deviation stays
     s exactly, and its degrees of freedom grow from N - 2 to factor N - 2."""
-    model = build_model(method)
-    conc = model.concentrations(model.nominal_inputs())
-    ids = _calibration_ids(method)
-    xs = [conc[i] for i in ids for _ in method.readings[i]]
-    ys = [a for i in ids for a in method.readings[i]]
+    design = _design(method)
+    xs, ys, _ = design.reading_points()
     fit = fit_line(xs, ys)
     n = len(xs)
     c = math.sqrt((factor * n - 2) / (factor * (n - 2)))
     readings = dict(method.readings)
-    for i in ids:
-        line = fit.intercept + fit.slope * conc[i]
-        readings[i] = tuple(line + c * (a - line) for a in method.readings[i]) * factor
+    for _, prep in design.fitted():
+        line = fit.intercept + fit.slope * prep.concentration
+        readings[prep.solution] = tuple(line + c * (a - line) for a in prep.readings) * factor
     return replace(method, readings=readings)
 
 
-def _typical_count(method: Method, ids) -> int:
-    return Counter(len(method.readings[i]) for i in ids).most_common(1)[0][0]
+def _typical_count(counts) -> int:
+    return Counter(counts).most_common(1)[0][0]
 
 
 def with_more_point_readings(method: Method, factor: int = READING_FACTOR) -> Method:
@@ -67,8 +69,8 @@ def with_more_point_readings(method: Method, factor: int = READING_FACTOR) -> Me
 
 def reading_candidates(method: Method) -> list[Candidate]:
     if method.equilibrium is not None:
-        points = method.equilibrium.point_ids()
-        m = _typical_count(method, points)
+        points = build_equilibrium_model(method).design.points
+        m = _typical_count(p.count for p in points)
         f = READING_FACTOR
         return [Candidate(
             "more point readings", f"read every mixture and series point {'twice' if f == 2 else f'{f} times'} as often",
@@ -79,16 +81,16 @@ def reading_candidates(method: Method) -> list[Candidate]:
         return []
     out = []
     f = READING_FACTOR
-    samples = [s.id for s in method.samples]
-    if samples and "c_measured" in method.result.formula.names:
-        m = _typical_count(method, samples)
+    design = _design(method)
+    if design.samples and "c_measured" in method.result.formula.names:
+        m = _typical_count(s.count for s in design.samples)
         out.append(Candidate(
             "more sample readings", f"read every sample {f * m} times instead of {m}",
             f"{(f - 1) * m} more reading(s) of every sample",
             "the scatter of one reading stays the same; the mean reading is kept",
             frozenset({"sample readings"}), with_more_sample_readings, {"readings_per_sample": f * m}))
-    ids = _calibration_ids(method)
-    m = _typical_count(method, ids)
+    solutions = [prep for _, prep in design.fitted()]
+    m = _typical_count(prep.count for prep in solutions)
     if method.settings.scatter == "observed":
         assumed = ("the residual scatter of the line stays the same and the line itself is unchanged; its "
                    "degrees of freedom grow (lower k). The line's scatter is taken as reading scatter: if it "
@@ -99,8 +101,8 @@ def reading_candidates(method: Method) -> list[Candidate]:
     out.append(Candidate(
         "more calibration readings",
         f"read every calibration solution {f * m} times instead of {m} "
-        f"({f * sum(len(method.readings[i]) for i in ids)} readings on the line)",
-        f"{(f - 1) * m} more reading(s) of each of the {len(ids)} calibration solutions",
+        f"({f * sum(prep.count for prep in solutions)} readings on the line)",
+        f"{(f - 1) * m} more reading(s) of each of the {len(solutions)} calibration solutions",
         assumed,
         frozenset({"calibration readings"}), with_more_calibration_readings,
         {"readings_per_solution": f * m}))

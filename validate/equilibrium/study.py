@@ -13,6 +13,7 @@ import math
 from uncertainties import covariance_matrix, ufloat
 
 from validate.equilibrium.combine import combine_correlated, davies_activity_correction, trend_test
+from validate.inputs.schema import EquilibriumStudy
 from validate.model.build import build
 from validate.model.equilibrium import COMBINED, LOG10, EquilibriumModel
 from validate.model.standards import fit_joint, iterate_standards
@@ -46,93 +47,140 @@ def build_ready_model(method):
     return model, prepare_combination(model)
 
 
-def equilibrium_block(model: EquilibriumModel, results, monte_carlo, combined, values, cov) -> dict:
-    method, study = model.method, model.method.equilibrium
-    by_name = {r.name: r for r in results}
-    mc_by_name = {m.name: m for m in monte_carlo}
-    x0 = model.nominal_inputs()
-    sm, sl, sa, reps, pm, pl, pa = model.columns(x0)
-    states = model.ice_tables(x0)
-    cu = study.concentration_unit.factor
-    points = []
-    for p, state, m, l_ in zip(model.points, states, pm, pl):
+def _interval(mc, kind: str = "symmetric") -> list[float] | None:
+    """The Monte Carlo coverage interval of a result, when the engine ran."""
+    if mc is None:
+        return None
+    interval = getattr(mc.summary, kind)
+    return [interval.low, interval.high]
+
+
+def _saturation_flag(saturation: float) -> str | None:
+    low, high = SATURATION_WINDOW
+    if low <= saturation <= high:
+        return None
+    return (f"[ML] is {saturation:.0%} of the smaller total: outside {low:.0%} to {high:.0%}, where K is "
+            f"well determined (Deranleau 1969, from memory)")
+
+
+def _point_rows(model: EquilibriumModel, by_name: dict, mc_by_name: dict, pm, pl) -> list[dict]:
+    """One row per mixture or series point: totals, ICE table, K and its uncertainty."""
+    states = model.ice_tables(model.nominal_inputs())
+    cu = model.study.concentration_unit.factor
+    rows = []
+    for p, state, m, l_ in zip(model.points, states, pm, pl, strict=True):
         r, mc = by_name[f"K, {p}"], mc_by_name.get(f"K, {p}")
         saturation = float(state.complex_conc / min(m, l_)) if min(m, l_) > 0 else math.nan
-        points.append({
+        rows.append({
             "saturation": saturation,
-            "saturation_flag": (None if SATURATION_WINDOW[0] <= saturation <= SATURATION_WINDOW[1] else
-                                f"[ML] is {saturation:.0%} of the smaller total: outside {SATURATION_WINDOW[0]:.0%} to "
-                                f"{SATURATION_WINDOW[1]:.0%}, where K is well determined (Deranleau 1969, "
-                                f"from memory)"),
+            "saturation_flag": _saturation_flag(saturation),
             "id": p, "M_total": m / cu, "L_total": l_ / cu, "ML": state.complex_conc / cu,
             "M_free": state.free_M / cu, "L_free": state.free_L / cu,
             "K": r.value, "u_K": r.standard_uncertainty, "expanded_uncertainty": r.expanded_uncertainty,
             "coverage_factor": r.coverage_factor,
-            "interval": [mc.summary.symmetric.low, mc.summary.symmetric.high] if mc else None,
-            "shortest_interval": [mc.summary.shortest.low, mc.summary.shortest.high] if mc else None,
+            "interval": _interval(mc), "shortest_interval": _interval(mc, "shortest"),
             "invalid_trials": mc.summary.invalid_trials if mc else None,
         })
-    comb, log10 = by_name[COMBINED], by_name[LOG10]
-    mc_comb, mc_log = mc_by_name.get(COMBINED), mc_by_name.get(LOG10)
-    limiting = "L" if study.limiting == "ligand" else "M"
+    return rows
+
+
+def _consistency(combined) -> dict | None:
+    if combined is None:
+        return None
+    return {"chi_square": combined.chi_square, "dof": combined.dof, "p_value": combined.p_value,
+            "birge_ratio": combined.birge_ratio, "consistent": combined.consistent,
+            "verdict": ("the K values agree within their uncertainties" if combined.consistent else
+                        "the K values scatter more than their uncertainties explain: look for a missing "
+                        "source, another complex or a wrong stoichiometry"),
+            "source": "generalised least squares with the full covariance; chi-square and Birge ratio "
+                      "(Birge 1932)"}
+
+
+def _combined_part(model: EquilibriumModel, comb, mc_comb, combined) -> dict:
+    return {
+        "K": comb.value, "standard_uncertainty": comb.standard_uncertainty,
+        "expanded_uncertainty": comb.expanded_uncertainty, "coverage_factor": comb.coverage_factor,
+        "coverage_probability": comb.coverage_probability,
+        "interval": _interval(mc_comb), "shortest_interval": _interval(mc_comb, "shortest"),
+        "agrees_with_gum": mc_comb.validation.agrees if mc_comb else None,
+        "weights": list(model.weights or []),
+        "consistency": _consistency(combined),
+    }
+
+
+def _conditions(study: EquilibriumStudy) -> dict:
+    return {"temperature_C": study.temperature_C,
+            "ionic_strength_mol_per_L": None if study.ionic_strength is None else study.ionic_strength / 1e3,
+            "charges": list(study.charges) if study.charges else None,
+            "note": "K is conditional on the temperature and ionic strength recorded"}
+
+
+def _bias_part(study: EquilibriumStudy, columns, limiting: str) -> dict:
+    """The bias of taking the standards as fully complexed, from the correction by iteration."""
+    sm, sl, sa, reps, pm, pl, pa = columns
     corr = iterate_standards(sm, sl, sa, pm, pl, pa, limiting=limiting, iterations=max(study.iterations, 1),
                              standard_weights=reps)
-    block = {
-        "conditions": {"temperature_C": study.temperature_C,
-                       "ionic_strength_mol_per_L": None if study.ionic_strength is None else study.ionic_strength / 1e3,
-                       "charges": list(study.charges) if study.charges else None,
-                       "note": "K is conditional on the temperature and ionic strength recorded"},
-        "k_unit": study.k_unit.text, "unit": study.k_unit.text,
-        "concentration_unit": study.concentration_unit.text,
-        "correction": study.correction, "limiting_reagent_in_standards": study.limiting,
-        "mixtures": points,
-        "combined": {
-            "K": comb.value, "standard_uncertainty": comb.standard_uncertainty,
-            "expanded_uncertainty": comb.expanded_uncertainty, "coverage_factor": comb.coverage_factor,
-            "coverage_probability": comb.coverage_probability,
-            "interval": [mc_comb.summary.symmetric.low, mc_comb.summary.symmetric.high] if mc_comb else None,
-            "shortest_interval": [mc_comb.summary.shortest.low, mc_comb.summary.shortest.high] if mc_comb else None,
-            "agrees_with_gum": mc_comb.validation.agrees if mc_comb else None,
-            "weights": list(model.weights),
-            "consistency": None if combined is None else {
-                "chi_square": combined.chi_square, "dof": combined.dof, "p_value": combined.p_value,
-                "birge_ratio": combined.birge_ratio, "consistent": combined.consistent,
-                "verdict": ("the K values agree within their uncertainties" if combined.consistent else
-                            "the K values scatter more than their uncertainties explain: look for a missing "
-                            "source, another complex or a wrong stoichiometry"),
-                "source": "generalised least squares with the full covariance; chi-square and Birge ratio "
-                          "(Birge 1932)"},
-        },
-        "log10K": {"value": log10.value, "standard_uncertainty": log10.standard_uncertainty,
-                   "expanded_uncertainty": log10.expanded_uncertainty,
-                   "interval": [mc_log.summary.symmetric.low, mc_log.summary.symmetric.high] if mc_log else None},
-        "complete_complexation_bias": {
-            "slope": _float(corr.slope_bias), "K": _float(corr.K_bias), "naive_K": _float(corr.naive_K) / study.k_unit.factor,
-            "fraction_complexed_in_standards": [_float(f) for f in corr.fraction_standards],
-            "meaning": "relative bias (naive / corrected - 1) if the standards were taken as fully complexed",
-            "iteration_converged": corr.converged, "iterations": corr.iterations},
-        "covariance": [[c for c in row] for row in cov],
-    }
+    return {
+        "slope": _float(corr.slope_bias), "K": _float(corr.K_bias),
+        "naive_K": _float(corr.naive_K) / study.k_unit.factor,
+        "fraction_complexed_in_standards": [_float(f) for f in corr.fraction_standards],
+        "meaning": "relative bias (naive / corrected - 1) if the standards were taken as fully complexed",
+        "iteration_converged": corr.converged, "iterations": corr.iterations}
+
+
+def _joint_fit_part(study: EquilibriumStudy, columns, limiting: str) -> dict:
+    sm, sl, sa, _, pm, pl, pa = columns
     try:
         jf = fit_joint(sm, sl, sa, pm, pl, pa, limiting=limiting)
-        block["joint_fit"] = {"K": jf.K / study.k_unit.factor, "standard_uncertainty": jf.K_u / study.k_unit.factor,
-                              "log10K": math.log10(jf.K / study.k_unit.factor),
-                              "slope_bias": jf.slope_bias, "K_bias": jf.K_bias, "success": jf.success,
-                              "note": "K, absorptivity and intercept fitted together by nonlinear least squares "
-                                      "over the mean readings (a cross-check of the iteration; Bates & Watts 1988)"}
     except ValueError as exc:
-        block["joint_fit"] = {"error": str(exc)}
+        return {"error": str(exc)}
+    k_unit = study.k_unit.factor
+    return {"K": jf.K / k_unit, "standard_uncertainty": jf.K_u / k_unit, "log10K": math.log10(jf.K / k_unit),
+            "slope_bias": jf.slope_bias, "K_bias": jf.K_bias, "success": jf.success,
+            "note": "K, absorptivity and intercept fitted together by nonlinear least squares "
+                    "over the mean readings (a cross-check of the iteration; Bates & Watts 1988)"}
+
+
+def _optional_parts(study: EquilibriumStudy, comb, values, cov, pm) -> dict:
+    """The trend of K with the metal total (3 or more points) and the activity estimate."""
+    out: dict = {}
     if len(values) >= 3:
-        x = [m / cu for m in pm]
+        x = [m / study.concentration_unit.factor for m in pm]
         try:
-            block["trend"] = trend_test(values, cov, x).to_dict() | {
+            out["trend"] = trend_test(values, cov, x).to_dict() | {
                 "against": f"total metal ({study.concentration_unit.text})"}
         except ValueError as exc:
-            block["trend"] = {"error": str(exc)}
+            out["trend"] = {"error": str(exc)}
     if study.charges and study.ionic_strength is not None:
         act = davies_activity_correction(comb.value, study.ionic_strength / 1e3, study.charges,
                                          study.temperature_C if study.temperature_C is not None else 25.0)
-        block["activity_estimate"] = act.to_dict()
+        out["activity_estimate"] = act.to_dict()
+    return out
+
+
+def equilibrium_block(model: EquilibriumModel, results, monte_carlo, combined, values, cov) -> dict:
+    study = model.study
+    by_name = {r.name: r for r in results}
+    mc_by_name = {m.name: m for m in monte_carlo}
+    columns = model.columns(model.nominal_inputs())
+    pm, pl = columns[4], columns[5]
+    comb, log10 = by_name[COMBINED], by_name[LOG10]
+    mc_log = mc_by_name.get(LOG10)
+    limiting = "L" if study.limiting == "ligand" else "M"
+    block = {
+        "conditions": _conditions(study),
+        "k_unit": study.k_unit.text, "unit": study.k_unit.text,
+        "concentration_unit": study.concentration_unit.text,
+        "correction": study.correction, "limiting_reagent_in_standards": study.limiting,
+        "mixtures": _point_rows(model, by_name, mc_by_name, pm, pl),
+        "combined": _combined_part(model, comb, mc_by_name.get(COMBINED), combined),
+        "log10K": {"value": log10.value, "standard_uncertainty": log10.standard_uncertainty,
+                   "expanded_uncertainty": log10.expanded_uncertainty, "interval": _interval(mc_log)},
+        "complete_complexation_bias": _bias_part(study, columns, limiting),
+        "covariance": [list(row) for row in cov],
+        "joint_fit": _joint_fit_part(study, columns, limiting),
+    }
+    block.update(_optional_parts(study, comb, values, cov, pm))
     return block
 
 

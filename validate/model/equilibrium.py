@@ -18,11 +18,13 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from validate.inputs.schema import Method
+from validate.inputs.schema import EquilibriumStudy, Method
 from validate.metrology.equipment import SourceSet, volume_term
 from validate.metrology.sources import Source
 from validate.model import backend as mathops
-from validate.model.assay import ModelError, SolutionInputs, mean_reading_term, solution_order, solution_term
+from validate.model.assay import SolutionInputs, mean_reading_term, solution_order, solution_term
+from validate.model.design import EquilibriumDesign, equilibrium_design
+from validate.model.errors import ModelError
 from validate.model.ice import equilibrium_constant
 from validate.model.line import fit_line
 from validate.model.standards import iterate_standards, line_by_sums
@@ -43,12 +45,24 @@ def positive_or_nan(x):
 class EquilibriumModel(SolutionInputs):
     method: Method
     sources: dict[str, Source]
-    points: list[str]  # ids of mixtures and series readings, in order
     weights: list[float] | None = None  # GLS weights of the combined K, set after a first pass
     assumptions: list[str] = field(default_factory=list)
+    design: EquilibriumDesign = field(init=False, repr=False)  # set once by build_equilibrium_model
     _solution_terms: dict = field(default_factory=dict, repr=False)
-    _standards: list = field(default_factory=list, repr=False)  # (id, replicates, totals fn, reading fn)
-    _points: list = field(default_factory=list, repr=False)
+    _standards: list = field(default_factory=list, repr=False)  # (totals fn, reading fn) per standard
+    _points: list = field(default_factory=list, repr=False)  # (totals fn, reading fn) per point
+
+    @property
+    def study(self) -> EquilibriumStudy:
+        study = self.method.equilibrium
+        if study is None:
+            raise ValueError("an equilibrium model needs a method with an equilibrium study")
+        return study
+
+    @property
+    def points(self) -> list[str]:
+        """Ids of the mixtures and addition-series points, in order."""
+        return self.design.point_ids()
 
     @property
     def result_labels(self) -> list[str]:
@@ -56,92 +70,111 @@ class EquilibriumModel(SolutionInputs):
         return labels + ([COMBINED, LOG10] if self.weights is not None else [])
 
     def unit_of(self, label: str) -> str:
-        study = self.method.equilibrium
-        return "" if label == LOG10 else study.k_unit.text
-
+        return "" if label == LOG10 else self.study.k_unit.text
 
     def columns(self, x):
         """Totals of M and L and mean absorbances of the standards and of the points (SI)."""
         conc = self.concentrations(x)
-        std = [(totals(x, conc), reading(x), n) for _, n, totals, reading in self._standards]
-        pts = [(totals(x, conc), reading(x)) for _, totals, reading in self._points]
-        return ([t[0] for t, _, _ in std], [t[1] for t, _, _ in std], [a for _, a, _ in std],
-                [n for _, _, n in std], [t[0] for t, _ in pts], [t[1] for t, _ in pts], [a for _, a in pts])
+        std = [(totals(x, conc), reading(x)) for totals, reading in self._standards]
+        pts = [(totals(x, conc), reading(x)) for totals, reading in self._points]
+        reps = [lv.count for lv in self.design.standards]
+        return ([t[0] for t, _ in std], [t[1] for t, _ in std], [a for _, a in std], reps,
+                [t[0] for t, _ in pts], [t[1] for t, _ in pts], [a for _, a in pts])
 
     def ice_tables(self, x):
         sm, sl, sa, reps, pm, pl, pa = self.columns(x)
-        study = self.method.equilibrium
+        study = self.study
         if study.correction == "none":
             limiting = sl if study.limiting == "ligand" else sm
             slope, intercept = line_by_sums(limiting, sa, reps)
-            return [equilibrium_constant((a - intercept) / slope, m, l) for m, l, a in zip(pm, pl, pa)]
+            return [equilibrium_constant((a - intercept) / slope, m, l_)
+                    for m, l_, a in zip(pm, pl, pa, strict=True)]
         corrected = iterate_standards(sm, sl, sa, pm, pl, pa, limiting="L" if study.limiting == "ligand" else "M",
                                       iterations=study.iterations, standard_weights=reps)
         return list(corrected.mixtures)
 
     def evaluate(self, x) -> dict:
-        factor = self.method.equilibrium.k_unit.factor
+        factor = self.study.k_unit.factor
         ks = [positive_or_nan(state.K) for state in self.ice_tables(x)]
-        out = {f"K, {p}": k / factor for p, k in zip(self.points, ks)}
+        out = {f"K, {p}": k / factor for p, k in zip(self.points, ks, strict=True)}
         if self.weights is not None:
-            combined = sum(w * k for w, k in zip(self.weights, ks)) / factor
+            combined = sum(w * k for w, k in zip(self.weights, ks, strict=True)) / factor
             out[COMBINED] = combined
             out[LOG10] = mathops.log10(combined)
         return out
 
 
 def build_equilibrium_model(method: Method) -> EquilibriumModel:
-    study = method.equilibrium
     ss = SourceSet()
     observed = method.settings.scatter == "observed"
-    model = EquilibriumModel(method, ss.sources, study.point_ids())
+    model = EquilibriumModel(method, ss.sources)
+    study = model.study
     for sol in solution_order(method.solutions):
         model._solution_terms[sol.id] = solution_term(ss, method, sol, False)
+    std_totals = [_mix_totals(ss, method, mix, observed) for mix in study.standards]
+    design = model.design = _design(model, std_totals)
+    scatter = _standards_scatter(design) if observed else None
 
-    def mix_totals(mix, is_standard):
-        step = f"prepare {mix.id}"
-        flask = volume_term(ss, method, mix.flask, step, mix.id, not (observed and is_standard))
-        parts = {r: volume_term(ss, method, d, step, f"{mix.id}, {r}", not (observed and is_standard))
-                 for r, d in mix.parts.items()}
+    def reading(point):
+        return mean_reading_term(ss, method, point.id, point.readings, scatter, study.cuvette, study.photometer)
 
-        def totals(x, conc):
-            v = flask(x)
-            m = conc[mix.solutions["metal"]] * parts["metal"](x) / v if "metal" in parts else 0.0
-            l_ = conc[mix.solutions["ligand"]] * parts["ligand"](x) / v if "ligand" in parts else 0.0
-            return m, l_
-        return totals
-
-    std_totals = [mix_totals(mix, True) for mix in study.standards]
-    scatter = _standards_scatter(model, method, std_totals) if observed else None
-    for mix, totals in zip(study.standards, std_totals):
-        model._standards.append((mix.id, len(method.readings[mix.id]), totals,
-                                 mean_reading_term(ss, method, mix.id, scatter, study.cuvette, study.photometer)))
-    for mix in study.mixtures:
-        model._points.append((mix.id, mix_totals(mix, False),
-                              mean_reading_term(ss, method, mix.id, scatter, study.cuvette, study.photometer)))
+    model._standards = [(totals, reading(lv)) for lv, totals in zip(design.standards, std_totals, strict=True)]
+    for mix, point in zip(study.mixtures, design.mixtures, strict=True):
+        totals = _mix_totals(ss, method, mix, False)
+        model._points.append((totals, reading(point)))
+    series_points = iter(design.series_points)
     for series in study.series:
         step = f"addition series {series.id}"
         start = {r: volume_term(ss, method, d, step, f"{series.id} start, {r}") for r, d in series.start.items()}
         additions = [volume_term(ss, method, series.aliquot, step, f"{series.id} addition {k}")
                      for k in range(1, series.additions + 1)]
-        for k, ident in enumerate(series.reading_ids(), start=1):
-            model._points.append((ident, _series_totals(series.solutions, start, additions[:k], series.added),
-                                  mean_reading_term(ss, method, ident, scatter, study.cuvette, study.photometer)))
-    model.assumptions.append(
-        "1:1 complex M + L <=> ML; only the complex absorbs beyond the blank (the line's intercept); "
-        "K is conditional on the temperature and ionic strength recorded")
-    if study.correction == "iterate":
-        model.assumptions.append(
-            f"standards corrected for incomplete complexation: {study.iterations} iterations of "
-            "K -> [ML] in each standard (stable quadratic root) -> refitted line -> K")
-    else:
-        model.assumptions.append("standards taken as fully complexed (no correction); the record shows "
-                                 "the bias this assumption causes")
-    if observed:
-        model.assumptions.append(
-            "calibration scatter treated as observed: the standards' residual scatter stands for the random "
-            "effects of preparing and reading standards and mixtures")
+        for k in range(1, series.additions + 1):
+            model._points.append((_series_totals(series.solutions, start, additions[:k], series.added),
+                                  reading(next(series_points))))
+    model.assumptions.extend(_assumptions(study, observed))
     return model
+
+
+def _mix_totals(ss: SourceSet, method: Method, mix, observed_standard: bool):
+    """A closure (x, concentrations) -> (total M, total L) of a standard or mixture made up in a flask."""
+    step = f"prepare {mix.id}"
+    flask = volume_term(ss, method, mix.flask, step, mix.id, not observed_standard)
+    parts = {r: volume_term(ss, method, d, step, f"{mix.id}, {r}", not observed_standard)
+             for r, d in mix.parts.items()}
+
+    def totals(x, conc):
+        v = flask(x)
+        m = conc[mix.solutions["metal"]] * parts["metal"](x) / v if "metal" in parts else 0.0
+        l_ = conc[mix.solutions["ligand"]] * parts["ligand"](x) / v if "ligand" in parts else 0.0
+        return m, l_
+    return totals
+
+
+def _design(model: EquilibriumModel, std_totals) -> EquilibriumDesign:
+    """The study's design, its standards at their limiting-reagent totals at the estimates."""
+    study = model.study
+    x0 = model.nominal_inputs()
+    conc = model.concentrations(x0)
+    limiting = {}
+    for mix, totals in zip(study.standards, std_totals, strict=True):
+        m, l_ = totals(x0, conc)
+        limiting[mix.id] = l_ if study.limiting == "ligand" else m
+    return equilibrium_design(model.method, limiting)
+
+
+def _assumptions(study: EquilibriumStudy, observed: bool) -> list[str]:
+    out = ["1:1 complex M + L <=> ML; only the complex absorbs beyond the blank (the line's intercept); "
+           "K is conditional on the temperature and ionic strength recorded"]
+    if study.correction == "iterate":
+        out.append(f"standards corrected for incomplete complexation: {study.iterations} iterations of "
+                   "K -> [ML] in each standard (stable quadratic root) -> refitted line -> K")
+    else:
+        out.append("standards taken as fully complexed (no correction); the record shows "
+                   "the bias this assumption causes")
+    if observed:
+        out.append("calibration scatter treated as observed: the standards' residual scatter stands for the "
+                   "random effects of preparing and reading standards and mixtures")
+    return out
 
 
 def _series_totals(reagent_solution, start, additions, added):
@@ -154,19 +187,11 @@ def _series_totals(reagent_solution, start, additions, added):
     return totals
 
 
-def _standards_scatter(model, method, std_totals):
-    """Residual SD and n-2 of the standards' line at the estimates (readings on limiting totals)."""
-    study = method.equilibrium
-    x0 = model.nominal_inputs()
-    conc = model.concentrations(x0)
-    xs, ys = [], []  # absorbance as read: the scatter terms are added before dividing by the path
-    for mix, totals in zip(study.standards, std_totals):
-        m, l_ = totals(x0, conc)
-        for a in method.readings[mix.id]:
-            xs.append(l_ if study.limiting == "ligand" else m)
-            ys.append(a)
+def _standards_scatter(design: EquilibriumDesign) -> tuple[float, int]:
+    """Residual SD and n-2 of the standards' line at the estimates (readings on limiting totals;
+    absorbance as read: the scatter terms are added before dividing by the path)."""
     try:
-        fit = fit_line(xs, ys)
+        fit = fit_line(*design.reading_points())
     except ValueError as exc:
         raise ModelError(f"equilibrium standards: {exc}") from None
     if not math.isfinite(fit.residual_sd) or fit.dof < 1:

@@ -1,20 +1,75 @@
-"""Straight-line calibration: fits and inverse prediction on plain numbers.
+"""Straight-line calibration: one weighted least-squares line, and its statistics.
 
 Formulas: ordinary least squares and the inverse-prediction (observed-scatter)
 uncertainty as in ISO 8466-1 and the EURACHEM/CITAC Guide CG4, Example A5;
 weighted least squares with weights normalised to a mean of one (Miller and
-Miller, Statistics and Chemometrics for Analytical Chemistry, section 5.10).
-The model of the measurement (`validate.model.assay`) refits the line generically
-for the two engines; this module serves reporting and validation statistics.
+Miller, Statistics and Chemometrics for Analytical Chemistry, sections 5.4 and
+5.10).
+
+`level_sums` is the one least-squares computation of the package. It is written
+over calibration levels (n_j readings of mean y_j at x_j, weight w_j per
+reading) with sums and arithmetic only, so it runs unchanged on plain floats,
+on `uncertainties` numbers (linear engine) and on numpy arrays of trials (Monte
+Carlo engine): the loop runs over levels, never over trials. The model refits
+the line with it in every evaluation; `fit_line` adds the statistics on plain
+numbers.
 """
 
 from __future__ import annotations
 
 import math
+from collections.abc import Sequence
 from dataclasses import asdict, dataclass
+from typing import Any
 
 import numpy as np
 from scipy import stats
+
+
+@dataclass(frozen=True)
+class LevelSums:
+    """Weighted sums of a straight line through levels; fields hold the caller's backend.
+
+    total = sum c_j with c_j = n_j w_j; x_mean = sum c_j x_j / total (y_mean alike);
+    sxx = sum c_j (x_j - x_mean)^2; sxy = sum c_j (x_j - x_mean)(y_j - y_mean).
+    """
+
+    total: Any
+    x_mean: Any
+    y_mean: Any
+    sxx: Any
+    sxy: Any
+
+    def line(self) -> tuple[Any, Any]:
+        """(intercept, slope): b = Sxy / Sxx, a = ybar - b xbar (the normal equations)."""
+        slope = self.sxy / self.sxx
+        return self.y_mean - slope * self.x_mean, slope
+
+
+def level_sums(counts: Sequence, x: Sequence, y: Sequence, weights: Sequence | None = None) -> LevelSums:
+    """Sums of the weighted least-squares line through levels (n_j, x_j, y_j, w_j).
+
+    With n_j readings of mean y_j at x_j the sums equal those of a fit to every
+    single reading (the within-level scatter adds to the residuals only), so
+    the line is the same. Counts and weights are plain numbers (weights None:
+    all 1); x and y may be floats, ufloats or arrays of trials.
+    """
+    c = list(counts) if weights is None else [n * w for n, w in zip(counts, weights, strict=True)]
+    if not len(c) == len(x) == len(y):
+        raise ValueError(f"a straight line needs one count, x and y per level; got {len(c)} counts, "
+                         f"{len(x)} x values and {len(y)} y values")
+    total = sum(c)
+    x_mean = sum(cj * xj for cj, xj in zip(c, x, strict=True)) / total
+    y_mean = sum(cj * yj for cj, yj in zip(c, y, strict=True)) / total
+    dx = [xj - x_mean for xj in x]
+    sxx = sum(cj * d * d for cj, d in zip(c, dx, strict=True))
+    sxy = sum(cj * d * (yj - y_mean) for cj, d, yj in zip(c, dx, y, strict=True))
+    return LevelSums(total, x_mean, y_mean, sxx, sxy)
+
+
+def straight_line(counts: Sequence, x: Sequence, y: Sequence, weights: Sequence | None = None):
+    """(intercept, slope) of the weighted least-squares line through levels (any backend)."""
+    return level_sums(counts, x, y, weights).line()
 
 
 @dataclass(frozen=True)
@@ -53,7 +108,11 @@ class LineFit:
 
 
 def fit_line(x, y, weights=None) -> LineFit:
-    """Least-squares straight line of y on x; weights are inverse variances."""
+    """Least-squares straight line of y on x with its statistics; weights are inverse variances.
+
+    Every reading is a level of one reading for `level_sums`; weights are
+    normalised to sum to n, so s(y/x) keeps the unit of y.
+    """
     x = np.asarray(x, dtype=float)
     y = np.asarray(y, dtype=float)
     if x.shape != y.shape or x.ndim != 1:
@@ -63,29 +122,33 @@ def fit_line(x, y, weights=None) -> LineFit:
         raise ValueError("a straight-line fit with an uncertainty needs at least 3 points")
     weighted = weights is not None
     w = np.ones(n) if weights is None else np.asarray(weights, dtype=float)
+    if w.shape != x.shape:
+        raise ValueError("give one weight per point")
     if np.any(w <= 0) or not np.all(np.isfinite(w)):
         raise ValueError("weights must be positive and finite")
     w = w * n / w.sum()  # normalise so that the weights sum to n
-    x_mean = float(np.sum(w * x) / n)
-    y_mean = float(np.sum(w * y) / n)
-    sxx = float(np.sum(w * (x - x_mean) ** 2))
-    if sxx == 0.0:
+    sums = level_sums([1.0] * n, x.tolist(), y.tolist(), w.tolist())
+    if sums.sxx == 0.0:
         raise ValueError("all standards have the same concentration; a line cannot be fitted")
-    sxy = float(np.sum(w * (x - x_mean) * (y - y_mean)))
-    slope = sxy / sxx
-    intercept = y_mean - slope * x_mean
-    resid = y - (intercept + slope * x)
+    intercept, slope = sums.line()
+    return _with_statistics(x, y, w, sums, float(intercept), float(slope), weighted)
+
+
+def _with_statistics(x: np.ndarray, y: np.ndarray, w: np.ndarray, sums: LevelSums, intercept: float,
+                     slope: float, weighted: bool) -> LineFit:
+    """Residual scatter, standard errors and r^2 of a fitted line (Draper and Smith, Applied
+    Regression Analysis, 3rd ed., sections 1.3-1.4; the same expressions as ISO 8466-1)."""
+    n = len(x)
+    x_mean, y_mean, sxx = float(sums.x_mean), float(sums.y_mean), float(sums.sxx)
+    resid = y - (intercept + slope * x)  # from the residuals themselves: no cancellation in Syy - b Sxy
     rss = float(np.sum(w * resid**2))
     dof = n - 2
     s = math.sqrt(rss / dof) if dof > 0 else float("nan")
-    slope_u = s / math.sqrt(sxx)
-    intercept_u = s * math.sqrt(1.0 / n + x_mean**2 / sxx)
-    covariance = -x_mean * s**2 / sxx
     syy = float(np.sum(w * (y - y_mean) ** 2))
-    r_squared = 1.0 - rss / syy if syy > 0 else float("nan")
     return LineFit(
-        slope=slope, intercept=intercept, slope_u=slope_u, intercept_u=intercept_u,
-        covariance=covariance, residual_sd=s, dof=dof, n=n, r_squared=r_squared,
+        slope=slope, intercept=intercept, slope_u=s / math.sqrt(sxx),
+        intercept_u=s * math.sqrt(1.0 / n + x_mean**2 / sxx), covariance=-x_mean * s**2 / sxx,
+        residual_sd=s, dof=dof, n=n, r_squared=1.0 - rss / syy if syy > 0 else float("nan"),
         x_mean=x_mean, y_mean=y_mean, sxx=sxx, rss=rss, weighted=weighted,
         x=tuple(x.tolist()), y=tuple(y.tolist()), weights=tuple(w.tolist()),
     )

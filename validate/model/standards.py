@@ -23,7 +23,8 @@ unit; K in its reciprocal.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
+from typing import Any
 
 import numpy as np
 from scipy import optimize
@@ -39,43 +40,34 @@ from validate.model.ice import (
     equilibrium_constant,
     fraction_complexed,
 )
+from validate.model.line import straight_line
 
 
 def line_by_sums(x, y, weights=None):
-    """Slope and intercept of y on x by least squares, written with sums only.
-
-    b = sum w (x - xm)(y - ym) / sum w (x - xm)^2, a = ym - b xm (weighted
-    means), the normal equations of a straight line (e.g. Miller & Miller,
-    Statistics and Chemometrics for Analytical Chemistry, sections 5.4 and
-    5.10). Generic: x and y are sequences of per-point values of any backend;
-    the loop runs over points, never over trials. Weights are plain floats.
-    """
-    n = len(x)
-    w = [1.0] * n if weights is None else [float(v) for v in weights]
-    sw = sum(w)
-    xm = sum(wi * xi for wi, xi in zip(w, x)) / sw
-    ym = sum(wi * yi for wi, yi in zip(w, y)) / sw
-    sxx = sum(wi * (xi - xm) ** 2 for wi, xi in zip(w, x))
-    sxy = sum(wi * (xi - xm) * (yi - ym) for wi, xi, yi in zip(w, x, y))
-    slope = sxy / sxx
-    return slope, ym - slope * xm
+    """(slope, intercept) of y on x through the package's one least-squares line
+    (`validate.model.line.level_sums`): each point a level whose count is its weight
+    (the standards' replicate readings; all 1 when None). Generic over the backend;
+    the loop runs over points, never over trials."""
+    counts = [1.0] * len(x) if weights is None else [float(v) for v in weights]
+    intercept, slope = straight_line(counts, x, y)
+    return slope, intercept
 
 
 @dataclass(frozen=True)
 class StandardsCorrection:
     """Result of `iterate_standards`; value fields hold the caller's backend."""
 
-    K: object  # combined K of the mixtures after correction
-    slope: object  # absorbance per unit [ML] (molar absorptivity x path length)
-    intercept: object
-    molar_absorptivity: object  # slope / path length
+    K: Any  # combined K of the mixtures after correction
+    slope: Any  # absorbance per unit [ML] (molar absorptivity x path length)
+    intercept: Any
+    molar_absorptivity: Any  # slope / path length
     mixtures: tuple  # IceTable per mixture (corrected)
     fraction_standards: tuple  # fraction of the limiting reagent complexed, per standard
-    naive_K: object  # K with standards taken as fully complexed
-    naive_slope: object
-    naive_intercept: object
-    slope_bias: object  # naive/corrected - 1
-    K_bias: object  # naive/corrected - 1
+    naive_K: Any  # K with standards taken as fully complexed
+    naive_slope: Any
+    naive_intercept: Any
+    slope_bias: Any  # naive/corrected - 1
+    K_bias: Any  # naive/corrected - 1
     iterations: int  # steps done (fewer than asked only when a scalar run left the domain)
     change_history: tuple  # largest |relative change of K| per iteration (finite trials)
     converged: bool
@@ -121,12 +113,74 @@ def _largest_abs(x) -> float:
 
 
 def _mixture_states(slope, intercept, mixtures_M, mixtures_L, mixtures_A):
-    return tuple(equilibrium_constant((a - intercept) / slope, m, l)
-                 for m, l, a in zip(mixtures_M, mixtures_L, mixtures_A))
+    return tuple(equilibrium_constant((a - intercept) / slope, m, l_)
+                 for m, l_, a in zip(mixtures_M, mixtures_L, mixtures_A, strict=True))
 
 
 def _combined(states: tuple[IceTable, ...], weights):
-    return sum(w * s.K for w, s in zip(weights, states))
+    return sum(w * s.K for w, s in zip(weights, states, strict=True))
+
+
+def _check_iteration(limiting: str, iterations: int, damping: float, standards, mixtures) -> None:
+    if limiting not in ("L", "M"):
+        raise ValueError(f"limiting={limiting!r}: say which reagent the standards are short of, 'L' or 'M'")
+    _check_lengths("standards", *standards, minimum=2)
+    _check_lengths("mixtures", *mixtures, minimum=1)
+    if iterations < 1 or not (0.0 < damping <= 1.0):
+        raise ValueError("iterations must be >= 1 and damping in (0, 1]")
+
+
+def _normalised(weights, n: int) -> list[float]:
+    w = [1.0] * n if weights is None else [float(v) for v in weights]
+    return [v / sum(w) for v in w]
+
+
+@dataclass
+class _State:
+    """Where the iteration stands: the line, the mixtures' ICE tables and the combined K."""
+
+    slope: Any
+    intercept: Any
+    states: tuple
+    K: Any
+
+
+def _naive(limiting_totals, standards_A, standard_weights, mixtures, mw) -> _State:
+    """The start: the standards taken as fully complexed in the limiting reagent."""
+    try:
+        slope, intercept = line_by_sums(limiting_totals, standards_A, standard_weights)
+        states = _mixture_states(slope, intercept, *mixtures)
+        return _State(slope, intercept, states, _combined(states, mw))
+    except ZeroDivisionError:
+        raise ValueError("the standards give no line: their limiting-reagent totals are all equal, "
+                         "or the slope is zero, or a mixture has a free concentration of exactly "
+                         "zero; check the standards' concentrations and absorbances") from None
+
+
+def _iterate(start: _State, standards, standard_weights, mixtures, mw, iterations: int, damping: float):
+    """`iterations` vectorised steps K -> [ML] of the standards -> line -> K; (state, history,
+    last relative change). Call inside np.errstate: trials leaving the domain give nan."""
+    standards_M, standards_L, standards_A = standards
+    now = replace(start)  # updated in place, step by step
+    history: list[float] = []
+    change: Any = math.nan
+    for _ in range(iterations):  # a fixed count of vectorised steps, no test on values
+        try:
+            x_std = [_settle(complex_concentration(now.K, m, l_))
+                     for m, l_ in zip(standards_M, standards_L, strict=True)]
+            now.slope, now.intercept = (_settle(v) for v in line_by_sums(x_std, standards_A, standard_weights))
+            now.states = _mixture_states(now.slope, now.intercept, *mixtures)
+            K_new = _settle(now.K + damping * (_combined(now.states, mw) - now.K))
+        except (ValueError, ZeroDivisionError, OverflowError):
+            # Only scalars raise (numpy gives nan per trial): the iteration left the
+            # domain (K <= 0 or a zero slope). Report it as undefined, not converged.
+            now.K, now.slope = math.nan, math.nan
+            history.append(math.nan)
+            return now, history, math.nan
+        change = (K_new - now.K) / K_new
+        history.append(_largest_abs(change))
+        now.K = K_new
+    return now, history, change
 
 
 def iterate_standards(standards_M, standards_L, standards_A, mixtures_M, mixtures_L, mixtures_A, *,
@@ -151,57 +205,26 @@ def iterate_standards(standards_M, standards_L, standards_A, mixtures_M, mixture
     result says whether it converged; when it did not, use `fit_joint`.
     The check uses nominal values (every trial's for arrays).
     """
-    if limiting not in ("L", "M"):
-        raise ValueError(f"limiting={limiting!r}: say which reagent the standards are short of, 'L' or 'M'")
-    _check_lengths("standards", standards_M, standards_L, standards_A, minimum=2)
-    _check_lengths("mixtures", mixtures_M, mixtures_L, mixtures_A, minimum=1)
-    if iterations < 1 or not (0.0 < damping <= 1.0):
-        raise ValueError("iterations must be >= 1 and damping in (0, 1]")
-    n_mix = len(mixtures_A)
-    mw = [1.0] * n_mix if mixture_weights is None else [float(v) for v in mixture_weights]
-    mw = [v / sum(mw) for v in mw]
+    standards = (standards_M, standards_L, standards_A)
+    mixtures = (mixtures_M, mixtures_L, mixtures_A)
+    _check_iteration(limiting, iterations, damping, standards, mixtures)
+    mw = _normalised(mixture_weights, len(mixtures_A))
     limiting_totals = list(standards_L if limiting == "L" else standards_M)
-
-    # Start: full complexation of the limiting reagent.
-    try:
-        slope, intercept = line_by_sums(limiting_totals, standards_A, standard_weights)
-        states = _mixture_states(slope, intercept, mixtures_M, mixtures_L, mixtures_A)
-        K = _combined(states, mw)
-    except ZeroDivisionError:
-        raise ValueError("the standards give no line: their limiting-reagent totals are all equal, "
-                         "or the slope is zero, or a mixture has a free concentration of exactly "
-                         "zero; check the standards' concentrations and absorbances") from None
-    naive_slope, naive_intercept, naive_K = slope, intercept, K
-
-    history = []
-    change = math.nan
+    naive = _naive(limiting_totals, standards_A, standard_weights, mixtures, mw)
     with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
-        for _ in range(iterations):  # a fixed count of vectorised steps, no test on values
-            try:
-                x_std = [_settle(complex_concentration(K, m, l)) for m, l in zip(standards_M, standards_L)]
-                slope, intercept = (_settle(v) for v in line_by_sums(x_std, standards_A, standard_weights))
-                states = _mixture_states(slope, intercept, mixtures_M, mixtures_L, mixtures_A)
-                K_new = _settle(K + damping * (_combined(states, mw) - K))
-            except (ValueError, ZeroDivisionError, OverflowError):
-                # Only scalars raise (numpy gives nan per trial): the iteration left the
-                # domain (K <= 0 or a zero slope). Report it as undefined, not converged.
-                K, slope, change = math.nan, math.nan, math.nan
-                history.append(math.nan)
-                break
-            change = (K_new - K) / K_new
-            history.append(_largest_abs(change))
-            K = K_new
-        fractions = tuple(fraction_complexed(K, m, l, of=limiting) for m, l in zip(standards_M, standards_L))
+        now, history, change = _iterate(naive, standards, standard_weights, mixtures, mw, iterations, damping)
+        K, slope = now.K, now.slope
+        fractions = tuple(fraction_complexed(K, m, l_, of=limiting)
+                          for m, l_ in zip(standards_M, standards_L, strict=True))
         final_change = np.abs(np.atleast_1d(np.asarray(mathops.nominal(change), dtype=float)))
         unconverged = int(np.count_nonzero(~(final_change <= tolerance)))
         # A zero or non-finite slope shows up as non-finite [ML] in the mixtures.
-        undefined = count_undefined(K, *[q for s in states
-                                                for q in (s.complex_conc, s.free_M, s.free_L)])
+        undefined = count_undefined(K, *[q for s in now.states for q in (s.complex_conc, s.free_M, s.free_L)])
     return StandardsCorrection(
-        K=K, slope=slope, intercept=intercept, molar_absorptivity=slope / path_length,
-        mixtures=states, fraction_standards=fractions, naive_K=naive_K, naive_slope=naive_slope,
-        naive_intercept=naive_intercept, slope_bias=naive_slope / slope - 1.0,
-        K_bias=naive_K / K - 1.0, iterations=len(history),
+        K=K, slope=slope, intercept=now.intercept, molar_absorptivity=slope / path_length,
+        mixtures=now.states, fraction_standards=fractions, naive_K=naive.K, naive_slope=naive.slope,
+        naive_intercept=naive.intercept, slope_bias=naive.slope / slope - 1.0,
+        K_bias=naive.K / K - 1.0, iterations=len(history),
         change_history=tuple(history), converged=bool(history[-1] <= tolerance),
         unconverged_trials=unconverged, undefined_trials=undefined,
     )

@@ -152,16 +152,21 @@ def draw_many(sources: Iterable[Source], n: int, rng: np.random.Generator) -> di
                and math.isfinite(s.dof)]
     out = {src.name: draw(src, n, rng) for src in ordered if src not in grouped}
     for group in sorted({s.dof_group for s in grouped}):
-        members = [s for s in grouped if s.dof_group == group]
-        dof = members[0].dof
-        if any(s.dof != dof for s in members):
-            raise ValueError(f"sources of group {group!r} must share their degrees of freedom")
-        for src in members:
-            out[src.name] = rng.standard_normal(n)
-        factor = np.sqrt(dof / rng.chisquare(dof, n))
-        for src in members:
-            x = out[src.name]
-            x *= factor
-            x *= src.u
-            x += src.value
+        out.update(_draw_group(group, [s for s in grouped if s.dof_group == group], n, rng))
+    return out
+
+
+def _draw_group(group: str, members: list[Source], n: int, rng: np.random.Generator) -> dict[str, np.ndarray]:
+    """One dof group's multivariate t trials: a standard normal block per member (in order), then
+    one chi-square factor shared by the group in each trial (see `draw_many`)."""
+    dof = members[0].dof
+    if any(s.dof != dof for s in members):
+        raise ValueError(f"sources of group {group!r} must share their degrees of freedom")
+    out = {src.name: rng.standard_normal(n) for src in members}
+    factor = np.sqrt(dof / rng.chisquare(dof, n))
+    for src in members:
+        x = out[src.name]
+        x *= factor
+        x *= src.u
+        x += src.value
     return out

@@ -73,7 +73,7 @@ def welch_satterthwaite(contributions: list[float], dofs: list[float], groups: l
     groups = groups or [""] * len(contributions)
     components: dict[str, list] = {}
     terms = []
-    for c, nu, g in zip(contributions, dofs, groups):
+    for c, nu, g in zip(contributions, dofs, groups, strict=True):
         if g:
             entry = components.setdefault(g, [0.0, nu])
             entry[0] += c * c

@@ -280,6 +280,7 @@ def adaptive_converged(
     _, u_pooled, trials = pooled_mean_sd(batch_stats)
     delta = numerical_tolerance(u_pooled, ndig)
     h = len(batch_stats)
+    twice: tuple[float, ...]
     if h < 2:
         twice = (math.nan,) * 4
     else:

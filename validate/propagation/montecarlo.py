@@ -110,8 +110,8 @@ def _fixed(model: Model, trials: int, rng, progress) -> dict[str, np.ndarray]:
 def _adaptive(model: Model, p: float, rng, progress) -> tuple[dict, dict]:
     """JCGM 101 7.9: batches of M trials until every output's statistics are stable."""
     m = adaptive_batch_size(p)
-    kept = {label: [] for label in model.result_labels}
-    batches = {label: [] for label in model.result_labels}
+    kept: dict[str, list[np.ndarray]] = {label: [] for label in model.result_labels}
+    batches: dict[str, list] = {label: [] for label in model.result_labels}
     checks: dict[str, AdaptiveCheck] = {}
     total = 0
     while total < MAX_ADAPTIVE_TRIALS:
@@ -142,7 +142,7 @@ def _shares(model: Model, seed: int, key: str, progress, n: int = SHARE_TRIALS) 
         groups.setdefault(getattr(src, key) or "(none)", set()).add(name)
     base = evaluate_trials(model, n, np.random.default_rng(seed))
     var0 = {k: np.nanvar(v) for k, v in base.items()}
-    shares = {label: [] for label in model.result_labels}
+    shares: dict[str, list[tuple[str, float]]] = {label: [] for label in model.result_labels}
     for group, names in groups.items():
         held = evaluate_trials(model, n, np.random.default_rng(seed), frozenset(names))
         progress(n)

@@ -16,6 +16,7 @@ from matplotlib.figure import Figure
 from matplotlib.ticker import FixedLocator, FormatStrFormatter, NullFormatter
 from scipy import stats
 
+from validate.model.line import level_sums
 from validate.validation.window import error_curve
 
 DPI = 200
@@ -59,9 +60,9 @@ def prediction_band(x, y, grid, slope: float, intercept: float, p: float = 0.95)
     n = x.size
     residuals = y - (intercept + slope * x)
     s = math.sqrt(float(np.sum(residuals**2)) / (n - 2))
-    sxx = float(np.sum((x - x.mean()) ** 2))
+    sums = level_sums([1.0] * n, x.tolist(), y.tolist())  # xbar and Sxx of the package's one line
     t = stats.t.ppf(0.5 + p / 2, n - 2)
-    return t * s * np.sqrt(1.0 + 1.0 / n + (grid - x.mean()) ** 2 / sxx), s
+    return t * s * np.sqrt(1.0 + 1.0 / n + (grid - sums.x_mean) ** 2 / sums.sxx), s
 
 
 def _samples_on_line(calibration: dict, a: float, b: float) -> list[tuple[str, float, float]]:

@@ -233,7 +233,7 @@ def _disagreements(routes) -> list[str]:
     lods = {r.route: r.lod for r in routes if math.isfinite(r.lod) and r.lod > 0}
     if len(lods) < 2:
         return []
-    lo, hi = min(lods, key=lods.get), max(lods, key=lods.get)
+    lo, hi = min(lods, key=lambda k: lods[k]), max(lods, key=lambda k: lods[k])
     if lods[hi] > 2 * lods[lo]:
         return [f"detection limits disagree by more than a factor of two: {hi} gives "
                 f"{lods[hi]:.4g}, {lo} gives {lods[lo]:.4g}; check the blank and the "

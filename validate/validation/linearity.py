@@ -333,7 +333,7 @@ def weighting_check(fit: LineFit, alpha: float = 0.05) -> SignificanceTest:
         return _not_evaluable("weighting check", alpha,
                               "needs scatter at 3 or more concentrations", WEIGHTING_SOURCE)
     rho, p = stats.spearmanr(xs, spread, alternative="greater")
-    details = {"basis": basis, "spearman_rho": float(rho)}
+    details: dict[str, object] = {"basis": basis, "spearman_rho": float(rho)}
     p_values = [float(p)]
     if len(reps) >= 2 and reps[0][2] > 0:
         (_, n_lo, s_lo), (_, n_hi, s_hi) = reps[0], reps[-1]
@@ -342,8 +342,8 @@ def weighting_check(fit: LineFit, alpha: float = 0.05) -> SignificanceTest:
         details.update({"variance_ratio_highest_lowest": f, "variance_ratio_p_value": p_f})
         p_values.append(p_f)
     sig = min(p_values) < alpha
-    details["recommendation"] = _weighting_advice(sig, reps, fit.weighted)
-    verdict = ("scatter grows with concentration: " + details["recommendation"] if sig else
+    recommendation = details["recommendation"] = _weighting_advice(sig, reps, fit.weighted)
+    verdict = ("scatter grows with concentration: " + recommendation if sig else
                "no significant trend of scatter with concentration; an unweighted fit is adequate")
     return SignificanceTest("weighting check", True, float(rho), (len(xs),), float(p_values[0]),
                             None, alpha, sig, verdict, WEIGHTING_SOURCE, details)

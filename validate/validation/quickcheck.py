@@ -110,9 +110,8 @@ def _number(cell: str, *, file, line: int, column: str, delimiter: str) -> float
     return value
 
 
-def load_table(path) -> CalibrationTable:
-    """Read and check a calibration table; raise `TableError` with the fix on bad input."""
-    path = Path(path)
+def _content_lines(path: Path) -> list[tuple[int, str]]:
+    """(line number, text) of every line that is neither blank nor a comment."""
     try:
         text = path.read_text(encoding="utf-8-sig")
     except FileNotFoundError:
@@ -125,7 +124,11 @@ def load_table(path) -> CalibrationTable:
     if not lines:
         raise TableError("the table is empty", file=path,
                          fix="add a header row 'concentration,absorbance' and one row per reading")
-    header_line, header = lines[0]
+    return lines
+
+
+def _header(path: Path, line: int, header: str) -> tuple[str, list[tuple[str, str]]]:
+    """The delimiter and the (name, unit) of every column; the required columns, once each."""
     delimiter = _delimiter(header)
     names_units = [_column_name(c) for c in next(csv.reader([header], delimiter=delimiter))]
     names = [n for n, _ in names_units]
@@ -133,34 +136,38 @@ def load_table(path) -> CalibrationTable:
     if missing:
         raise MissingColumnError(
             f"missing column(s) {', '.join(missing)}; the header has {', '.join(names) or 'nothing'}",
-            file=path, row=header_line,
+            file=path, row=line,
             fix="the first row must name the columns 'concentration' and 'absorbance' "
                 "(optionally 'u_concentration')")
     for c in REQUIRED + OPTIONAL:
         if names.count(c) > 1:
-            raise MissingColumnError(f"column '{c}' appears twice", file=path, row=header_line,
+            raise MissingColumnError(f"column '{c}' appears twice", file=path, row=line,
                                      fix="keep one column of that name")
-    wanted = [c for c in REQUIRED + OPTIONAL if c in names]
-    cols: dict[str, list[float]] = {c: [] for c in wanted}
-    line_numbers = []
-    for line, raw in lines[1:]:
-        cells = next(csv.reader([raw], delimiter=delimiter))
-        if len(cells) != len(names):
-            if len(cells) > len(names) and delimiter == ",":
-                raise DecimalCommaError(
-                    f"the row has {len(cells)} cells but the header names {len(names)} columns; "
-                    "this usually means numbers were written with a decimal comma",
-                    file=path, row=line, fix=COMMA_FIX)
-            raise CellError(f"the row has {len(cells)} cells but the header names {len(names)} "
-                            "columns", file=path, row=line, fix="give one value per column")
-        for c in wanted:
-            value = _number(cells[names.index(c)], file=path, line=line, column=c,
-                            delimiter=delimiter)
-            if c != "absorbance" and value < 0:
-                raise CellError(f"negative {c.replace('_', ' ')} {value:g}", file=path, row=line,
-                                column=c, fix="concentrations and their uncertainties are >= 0")
-            cols[c].append(value)
-        line_numbers.append(line)
+    return delimiter, names_units
+
+
+def _row(path: Path, line: int, raw: str, names: list[str], wanted: list[str], delimiter: str) -> dict:
+    """The wanted columns' values of one data row, checked."""
+    cells = next(csv.reader([raw], delimiter=delimiter))
+    if len(cells) != len(names):
+        if len(cells) > len(names) and delimiter == ",":
+            raise DecimalCommaError(
+                f"the row has {len(cells)} cells but the header names {len(names)} columns; "
+                "this usually means numbers were written with a decimal comma",
+                file=path, row=line, fix=COMMA_FIX)
+        raise CellError(f"the row has {len(cells)} cells but the header names {len(names)} "
+                        "columns", file=path, row=line, fix="give one value per column")
+    values = {}
+    for c in wanted:
+        value = _number(cells[names.index(c)], file=path, line=line, column=c, delimiter=delimiter)
+        if c != "absorbance" and value < 0:
+            raise CellError(f"negative {c.replace('_', ' ')} {value:g}", file=path, row=line,
+                            column=c, fix="concentrations and their uncertainties are >= 0")
+        values[c] = value
+    return values
+
+
+def _check_line_possible(path: Path, cols: dict[str, list[float]]) -> None:
     distinct = len(set(cols["concentration"]))
     if distinct < 3:
         raise TooFewLevelsError(
@@ -171,6 +178,23 @@ def load_table(path) -> CalibrationTable:
         raise TableError("every absorbance is the same; no calibration line can be fitted",
                          file=path, column="absorbance",
                          fix="check that the absorbance column holds the readings of the standards")
+
+
+def load_table(path) -> CalibrationTable:
+    """Read and check a calibration table; raise `TableError` with the fix on bad input."""
+    path = Path(path)
+    lines = _content_lines(path)
+    header_line, header = lines[0]
+    delimiter, names_units = _header(path, header_line, header)
+    names = [n for n, _ in names_units]
+    wanted = [c for c in REQUIRED + OPTIONAL if c in names]
+    cols: dict[str, list[float]] = {c: [] for c in wanted}
+    line_numbers = []
+    for line, raw in lines[1:]:
+        for c, value in _row(path, line, raw, names, wanted, delimiter).items():
+            cols[c].append(value)
+        line_numbers.append(line)
+    _check_line_possible(path, cols)
     return CalibrationTable(
         str(path), tuple(cols["concentration"]), tuple(cols["absorbance"]),
         tuple(cols["u_concentration"]) if "u_concentration" in cols else None,
@@ -205,6 +229,8 @@ def quick_check(path, samples: list[list[float]] | None = None) -> dict:
         notes.append(f"the largest u(concentration) is {100 * ratio:.3g} % of the residual "
                      "scatter in concentration units (s/b); the ordinary fit treats "
                      "concentrations as exact (ISO/TS 28037 treats uncertain x)")
+    ich = summary.limits.route("ich_residual_sd")
+    assert ich is not None  # every line has the residual-SD route
     result = {
         "file": table.path, "units": table.units, "n": fit.n,
         "distinct_concentrations": len(set(table.concentration)), "dof": fit.dof,
@@ -213,9 +239,7 @@ def quick_check(path, samples: list[list[float]] | None = None) -> dict:
         "intercept_standard_uncertainty": fit.intercept_u,
         "slope_intercept_covariance": fit.covariance,
         "residual_standard_deviation": fit.residual_sd, "r_squared": fit.r_squared,
-        "lod": summary.limits.route("ich_residual_sd").lod,
-        "loq": summary.limits.route("ich_residual_sd").loq,
-        "limit_source": summary.limits.route("ich_residual_sd").source,
+        "lod": ich.lod, "loq": ich.loq, "limit_source": ich.source,
         "linearity": {k: t.to_dict() for k, t in summary.tests().items()},
         "limits": summary.limits.to_dict(),
         "flagged_points": list(summary.points.flagged),

@@ -56,7 +56,7 @@ class ValidationSummary:
 
 def _max_relative_residual(points: PointDiagnostics) -> float | None:
     """Largest |e/yhat| in percent over standards above zero (a blank's relative residual is meaningless)."""
-    values = [abs(r) for x, r in zip(points.x, points.relative_residuals)
+    values = [abs(r) for x, r in zip(points.x, points.relative_residuals, strict=True)
               if x > 0 and r is not None]
     return 100.0 * max(values) if values else None
 

@@ -17,12 +17,11 @@ from validate.inputs.method_file import load_method
 from validate.inputs.schema import Method
 from validate.model.assay import Model
 from validate.model.build import build
-from validate.model.line import fit_line
 from validate.propagation.budget import budget_rows, grouped
 from validate.propagation.linear import LinearResult, propagate
 from validate.propagation.montecarlo import McResult, expected_work, new_seed, propagate_mc
 from validate.record.files import budget_csv, record_json, sha256_of, write_atomic
-from validate.validation.block import calibration_data, validation_block
+from validate.validation.block import line_summary, validation_block
 
 OUTPUT_FILES = ("results.json", "budget.csv", "report.pdf")
 
@@ -69,22 +68,7 @@ def analyse(path, trials: int | str | None = 1_000_000, seed: int | None = None,
 
 def calibration_summary(method: Method, model: Model) -> dict | None:
     """The straight line as the analyst sees it: absorbance against concentration."""
-    cal = method.calibration
-    if cal is None:
-        return None
-    xs, ys, weights = calibration_data(method, model)
-    ids = list(cal.standards) + (list(cal.blanks) if cal.blanks_in_fit else [])
-    labels = [sid for sid in ids for _ in method.readings[sid]]
-    fit = fit_line(xs, ys, weights)  # the line the model fits: weighted when the method says so
-    return {
-        "concentration_unit": cal.concentration_unit.text,
-        "points": [{"id": i, "concentration": x, "absorbance": y} for i, x, y in zip(labels, xs, ys)],
-        "slope": fit.slope, "intercept": fit.intercept,
-        "slope_standard_uncertainty": fit.slope_u, "intercept_standard_uncertainty": fit.intercept_u,
-        "residual_standard_deviation": fit.residual_sd, "r_squared": fit.r_squared, "n": fit.n,
-        "dof": fit.dof,
-        "samples": [{"id": s.id, "readings": list(method.readings[s.id])} for s in method.samples],
-    }
+    return line_summary(method, model)
 
 
 def build_record(run: Run) -> dict:

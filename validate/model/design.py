@@ -1,0 +1,187 @@
+"""The calibration design of a method, built once and read by every later stage.
+
+Which solutions make the line and in what order, which readings are repeated
+readings of one solution, whether the blanks are fitted, the weight of every
+reading, and the samples read off the line: decided here, once, from the
+method and the solutions' concentrations at the estimates. The model owns the
+design (`model.design`); the engines, the validation statistics, the advisor
+and the record take it from there instead of deriving it again from the
+method's readings table.
+
+A calibration level is a group of preparations (solutions made for that
+level), each read one or more times. Today every level is one solution read m
+times; several independent preparations of one level fit the same structure.
+The straight line is fitted through the preparations (each at its own
+concentration), counting every reading.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from dataclasses import asdict, dataclass, replace
+
+from validate.inputs.schema import Method
+from validate.model.errors import ModelError
+from validate.model.levels import Level, Preparation, ReadSolution
+from validate.model.line import fit_line
+from validate.model.weights import level_weights
+
+MIN_LEVELS = 3  # distinct concentrations for a line with a residual scatter (n - 2 >= 1)
+
+
+def _reading_points(levels: tuple[Level, ...], factor: float) -> tuple[list[float], list[float]]:
+    xs = [p.concentration / factor for lv in levels for p in lv.preparations for _ in p.readings]
+    ys = [a for lv in levels for p in lv.preparations for a in p.readings]
+    return xs, ys
+
+
+@dataclass(frozen=True)
+class CalibrationDesign:
+    """The design of an assay's calibration: fitted levels, blanks, weights and samples."""
+
+    levels: tuple[Level, ...]  # the line's levels in fit order: standards, then blanks when fitted
+    blanks: tuple[Level, ...]  # every blank, fitted or not
+    blanks_in_fit: bool
+    samples: tuple[ReadSolution, ...]
+    weights: Mapping[str, float] | None = None  # id -> weight of one reading (mean 1 over the line)
+
+    @property
+    def weighted(self) -> bool:
+        return self.weights is not None
+
+    def weight(self, ident: str) -> float:
+        """Weight of one reading of a level or sample on the line's scale (1 when unweighted)."""
+        return 1.0 if self.weights is None else self.weights[ident]
+
+    @property
+    def standards(self) -> tuple[Level, ...]:
+        return tuple(lv for lv in self.levels if lv.role == "standard")
+
+    def fitted(self) -> list[tuple[Level, Preparation]]:
+        """Every preparation on the line, in fit order, with its level."""
+        return [(lv, p) for lv in self.levels for p in lv.preparations]
+
+    def reading_points(self, factor: float = 1.0) -> tuple[list[float], list[float], list[float] | None]:
+        """Concentration (divided by `factor`), absorbance and weight (None: unweighted) of
+        every reading on the line, in fit order."""
+        xs, ys = _reading_points(self.levels, factor)
+        ws = ([self.weight(lv.id) for lv in self.levels for _ in lv.readings] if self.weighted else None)
+        return xs, ys, ws
+
+    def reading_ids(self) -> list[str]:
+        """The level id of every reading on the line, in fit order."""
+        return [lv.id for lv in self.levels for _ in lv.readings]
+
+    def sample(self, ident: str) -> ReadSolution:
+        return next(s for s in self.samples if s.id == ident)
+
+    def blank_readings(self) -> list[float]:
+        return [a for b in self.blanks for a in b.readings]
+
+    def every_reading(self) -> list[float]:
+        """Standards, blanks and samples: every absorbance the method reads."""
+        return ([a for lv in self.standards for a in lv.readings] + self.blank_readings()
+                + [a for s in self.samples for a in s.readings])
+
+    def to_dict(self) -> dict:
+        d = asdict(self)
+        d["weights"] = None if self.weights is None else dict(self.weights)
+        return d
+
+
+def _level(method: Method, ident: str, role: str, concentrations: Mapping[str, float]) -> Level:
+    prep = Preparation(ident, concentrations[ident], tuple(method.readings[ident]),
+                       method.reading_series.get(ident))
+    return Level(ident, role, (prep,))
+
+
+def _read(method: Method, ident: str) -> ReadSolution:
+    return ReadSolution(ident, tuple(method.readings[ident]), method.reading_series.get(ident))
+
+
+def calibration_design(method: Method, concentrations: Mapping[str, float]) -> CalibrationDesign:
+    """The design of a method's calibration, checked, with its weights when the method asks
+    for a weighted line. `concentrations`: every solution's concentration at the estimates (SI)."""
+    cal = method.calibration
+    if cal is None:
+        raise ValueError("the method has no [calibration]; there is no calibration design")
+    standards = tuple(_level(method, sid, "standard", concentrations) for sid in cal.standards)
+    blanks = tuple(_level(method, bid, "blank", concentrations) for bid in cal.blanks)
+    samples = tuple(_read(method, s.id) for s in method.samples)
+    design = CalibrationDesign(standards + (blanks if cal.blanks_in_fit else ()), blanks,
+                               cal.blanks_in_fit, samples)
+    check_calibration_data(method, design)
+    if cal.weighting == "inverse-variance":
+        design = replace(design, weights=level_weights(design.levels, design.samples))
+    return design
+
+
+def check_calibration_data(method: Method, design: CalibrationDesign) -> None:
+    """At least MIN_LEVELS distinct concentrations (InputError, exit 2), and a line that
+    rises with concentration (a data problem: ModelError, exit 3)."""
+    from pathlib import Path
+
+    from validate.inputs.errors import InputError
+
+    cal = method.calibration
+    assert cal is not None  # a design exists only for a method with a calibration
+    path = method.path
+    readings_path = Path(method.path).parent / cal.readings_file
+    unit = cal.concentration_unit
+    levels = sorted({float(f"{p.concentration / unit.factor:.9g}") for _, p in design.fitted()})  # 9 digits
+    if len(levels) < MIN_LEVELS:
+        shown = ", ".join(f"{x:g}" for x in levels)
+        raise InputError(f"the calibration points have only {len(levels)} distinct concentration(s) "
+                         f"({shown} {unit.text}); a line needs at least {MIN_LEVELS}", file=path,
+                         where="[calibration].standards",
+                         fix="prepare the standards at different concentrations (5 to 7 levels over the "
+                             "working range is common practice)")
+    xs, ys, _ = design.reading_points(unit.factor)
+    slope = fit_line(xs, ys).slope
+    if not slope > 0:
+        raise ModelError(
+            f"{readings_path}, readings of the standards: the absorbance falls as the concentration rises "
+            f"(fitted slope {slope:.3g} absorbance per {unit.text}); a Beer-Lambert calibration line rises, "
+            f"so no result is reported\n  what to do: check that every reading is under the right id "
+            f"(rows swapped between standards?) and that the preparation of the standards in {path} "
+            f"matches the solutions measured; methods read as a loss of absorbance are not supported")
+
+
+@dataclass(frozen=True)
+class EquilibriumDesign:
+    """The design of a complex-formation study: the standards' line and the points read off it."""
+
+    standards: tuple[Level, ...]  # concentration: the limiting reagent's total at the estimates (SI)
+    mixtures: tuple[ReadSolution, ...]
+    series_points: tuple[ReadSolution, ...]  # every addition series' points, series by series
+    limiting: str  # reagent the standards are short of: "metal" or "ligand"
+
+    @property
+    def points(self) -> tuple[ReadSolution, ...]:
+        """The solutions K is found from: the mixtures, then the addition-series points."""
+        return self.mixtures + self.series_points
+
+    def point_ids(self) -> list[str]:
+        return [p.id for p in self.points]
+
+    def reading_points(self, factor: float = 1.0) -> tuple[list[float], list[float]]:
+        """Limiting-reagent total (divided by `factor`) and absorbance of every standard's reading."""
+        return _reading_points(self.standards, factor)
+
+    def every_reading(self) -> list[float]:
+        return [a for lv in self.standards for a in lv.readings] + [a for p in self.points for a in p.readings]
+
+    def to_dict(self) -> dict:
+        return asdict(self)
+
+
+def equilibrium_design(method: Method, limiting_totals: Mapping[str, float]) -> EquilibriumDesign:
+    """The study's design; `limiting_totals`: each standard's total of the limiting reagent (SI)
+    at the estimates."""
+    study = method.equilibrium
+    if study is None:
+        raise ValueError("the method has no equilibrium study; there is no equilibrium design")
+    standards = tuple(_level(method, mix.id, "standard", limiting_totals) for mix in study.standards)
+    mixtures = tuple(_read(method, mix.id) for mix in study.mixtures)
+    series = tuple(_read(method, ident) for s in study.series for ident in s.reading_ids())
+    return EquilibriumDesign(standards, mixtures, series, study.limiting)
