@@ -21,6 +21,7 @@ from validate.inputs.schema import Method
 from validate.metrology.equipment import SourceSet, balance_terms, exact_or, value_source, volume_term
 from validate.metrology.sources import Source
 from validate.model import backend
+from validate.model.keys import ResultKey
 from validate.model.line import fit_line, inverse_prediction
 
 
@@ -50,6 +51,7 @@ class Model(SolutionInputs):
     method: Method
     sources: dict[str, Source]
     result_labels: list[str]
+    result_keys: list[ResultKey] = field(default_factory=list)  # one per label, in the same order
     assumptions: list[str] = field(default_factory=list)
     _solution_terms: dict = field(default_factory=dict, repr=False)
     _points: list = field(default_factory=list, repr=False)  # (solution id, replicates, mean-reading term)
@@ -105,7 +107,8 @@ def build_model(method: Method) -> Model:
     samples = method.samples if "c_measured" in method.result.formula.names else []
     name = method.result.name
     labels = [f"{name}, {smp.id}" for smp in samples] or [name]
-    model = Model(method, ss.sources, labels)
+    keys = [ResultKey("result", smp.id) for smp in samples] or [ResultKey("result")]
+    model = Model(method, ss.sources, labels, keys)
     observed = s.scatter == "observed"
     cal = method.calibration
     standards = set(cal.standards) if cal else set()
