@@ -183,11 +183,12 @@ def _print_equilibrium(console: Console, run, top: int) -> None:
     flagged = [p for p in e["mixtures"] if p.get("saturation_flag")]
     for p in flagged:
         console.print(f"  [yellow]note[/] {escape(p['id'])}: {escape(p['saturation_flag'])}", soft_wrap=True)
-    by_name = {r.name: (r, mc) for r, mc in zip(run.results, run.monte_carlo or [None] * len(run.results))}
-    from validate.model.equilibrium import COMBINED, LOG10
-    for label in (COMBINED, LOG10):
-        r, mc = by_name[label]
-        _print_result(console, r, mc, top if label == COMBINED else 0)
+    from validate.model.keys import ResultKey
+    by_key = dict(zip(run.model.result_keys, zip(run.results, run.monte_carlo or [None] * len(run.results),
+                                                 strict=True), strict=True))
+    for key in (ResultKey("combined K"), ResultKey("log10 K")):
+        r, mc = by_key[key]
+        _print_result(console, r, mc, top if key.kind == "combined K" else 0)
     c = e["combined"]
     if c.get("consistency"):
         k = c["consistency"]

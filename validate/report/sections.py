@@ -14,7 +14,6 @@ import io
 from reportlab.lib.utils import ImageReader
 from reportlab.platypus import Image, KeepTogether, Paragraph
 
-from validate.model.equilibrium import COMBINED as COMBINED_K
 from validate.propagation.budget import round_gum
 from validate.report import figures
 from validate.report.style import (
@@ -115,7 +114,7 @@ def result_rows(record: dict, results: list[dict] | None = None
             row.append(mc_interval_text(r))
         rows.append(row)
     eq = (record.get("equilibrium") or {}).get("combined")
-    listed = any(r.get("name") == COMBINED_K for r in every)  # never list the combined K twice
+    listed = any((r.get("key") or {}).get("kind") == "combined K" for r in every)  # never list it twice
     if eq and not listed and is_number(eq.get("K")) and is_number(eq.get("expanded_uncertainty")):
         value, big_u = rounded(eq["K"], eq["expanded_uncertainty"])
         u = eq.get("standard_uncertainty")
