@@ -141,6 +141,8 @@ def _union_from_dict(members: tuple, data: Any, where: str) -> Any:
             return from_dict(member, data, where)
         except RecordShapeError as exc:
             problems.append(exc)
+    if not problems:
+        raise RecordShapeError(where, f"expected null, got {_describe(data)}")
     # the deepest complaint says most about what is wrong (e.g. a bad number inside an object)
     raise max(problems, key=lambda e: len(e.where))
 
