@@ -1,122 +1,17 @@
-"""The record's blocks made by other stages: validation, equilibrium study and advice.
+"""The record's blocks made by the equilibrium and advice stages (validation: blocks_validation).
 
 Those stages hand their blocks over as plain dicts; the record takes them in with `from_dict`,
 which checks them against these declarations key by key. Each block is declared fully at its
-first level and deeper where its parts have one fixed shape; parts whose keys vary with the
-method (a test's details, the detection-limit routes) are kept as JSON objects (`Any`).
+first level and deeper where its parts have one fixed shape; parts whose keys vary (a test's
+details, an advice's details) are kept as JSON objects (`Any`).
 """
 
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Any
 
-from validate.record.tree import RecordPart, described, omitted_when_none
-
-Number = float | None  # null where the value is not defined (or not finite)
-JsonObject = dict[str, Any]
-
-
-@dataclass(frozen=True, kw_only=True)
-class ValidationSettingsEntry(RecordPart):
-    declared_limit: str
-    alpha: float
-    beta: float
-    absorbance_window: tuple[float, ...]
-    reference_sample: str | None
-    reference_value: Number
-    reference_standard_uncertainty: Number
-    reference_unit: str | None
-    acceptance: JsonObject = described("acceptance criteria set in the method file")
-
-
-@dataclass(frozen=True, kw_only=True)
-class LineTest(RecordPart):
-    """One hypothesis test on the calibration line."""
-
-    name: str
-    evaluable: bool
-    statistic: Number
-    dof: tuple[float, ...]
-    p_value: Number
-    critical_value: Number
-    alpha: float
-    significant: bool | None
-    verdict: str
-    source: str
-    details: JsonObject
-
-
-@dataclass(frozen=True, kw_only=True)
-class LineWeighting(RecordPart):
-    used: str
-    why: str
-
-
-@dataclass(frozen=True, kw_only=True)
-class SampleEstimate(RecordPart):
-    """A sample read off the fitted line (inverse prediction), with its range flags."""
-
-    concentration: Number
-    standard_uncertainty: Number
-    readings: tuple[float, ...]
-    flags: tuple[str, ...]
-
-
-@dataclass(frozen=True, kw_only=True)
-class Criterion(RecordPart):
-    key: str
-    name: str
-    comparison: str
-    limit: float | tuple[float, ...] | None
-    observed: Number
-    met: bool | None = described("null: not set or not evaluable")
-    unit: str
-    source: str
-    is_default: bool
-    status: str
-
-
-@dataclass(frozen=True, kw_only=True)
-class CriteriaBlock(RecordPart):
-    criteria: tuple[Criterion, ...]
-    defaults: JsonObject
-    all_met: bool | None = described("null: nothing could be evaluated")
-    caution: str
-
-
-@dataclass(frozen=True, kw_only=True)
-class ValidationBlock(RecordPart):
-    """The method's calibration judged as a method (validate.validation.block)."""
-
-    fit: JsonObject
-    points: JsonObject
-    lack_of_fit: LineTest
-    mandel: LineTest
-    runs: LineTest
-    intercept: LineTest
-    weighting: LineTest
-    sensitivity: JsonObject
-    molar_absorptivity: JsonObject | None
-    limits: JsonObject
-    window: JsonObject
-    max_abs_relative_residual_percent: Number
-    min_linearity_p_value: Number
-    lowest_standard: float
-    highest_standard: float
-    notes: tuple[str, ...]
-    settings: ValidationSettingsEntry
-    line_weighting: LineWeighting
-    concentration_unit: str
-    samples: dict[str, SampleEstimate]
-    range_flags: dict[str, tuple[str, ...]]
-    window_flags: JsonObject
-    repeatability: JsonObject | None
-    trueness: JsonObject | None
-    scatter_consistency: JsonObject | None
-    criteria: CriteriaBlock
-    intermediate_precision: dict[str, JsonObject] | None = omitted_when_none(
-        "per sample read in two or more series (ISO 5725-3); left out for an equilibrium study")
+from validate.record.blocks_validation import Unavailable
+from validate.record.tree import JsonObject, Number, RecordPart, described, omitted_when_none
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -149,6 +44,19 @@ class MixtureEntry(RecordPart):
 
 
 @dataclass(frozen=True, kw_only=True)
+class Consistency(RecordPart):
+    """Do the points' K agree within their uncertainties? (chi-square and Birge ratio)"""
+
+    chi_square: Number
+    dof: int
+    p_value: Number
+    birge_ratio: Number
+    consistent: bool
+    verdict: str
+    source: str
+
+
+@dataclass(frozen=True, kw_only=True)
 class CombinedK(RecordPart):
     K: float
     standard_uncertainty: float
@@ -159,7 +67,7 @@ class CombinedK(RecordPart):
     shortest_interval: tuple[float, ...] | None
     agrees_with_gum: bool | None
     weights: tuple[float, ...] = described("generalised least-squares weights of the points' K")
-    consistency: JsonObject | None
+    consistency: Consistency | None = described("null with a single point")
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -168,6 +76,70 @@ class Log10K(RecordPart):
     standard_uncertainty: float
     expanded_uncertainty: float
     interval: tuple[float, ...] | None
+
+
+@dataclass(frozen=True, kw_only=True)
+class ComplexationBias(RecordPart):
+    """What taking the standards as fully complexed would do to the slope and to K."""
+
+    slope: Number
+    K: Number
+    naive_K: Number
+    fraction_complexed_in_standards: tuple[Number, ...]
+    meaning: str
+    iteration_converged: bool
+    iterations: int
+
+
+@dataclass(frozen=True, kw_only=True)
+class JointFit(RecordPart):
+    """K, absorptivity and intercept fitted together (a cross-check of the iteration)."""
+
+    K: Number
+    standard_uncertainty: Number
+    log10K: Number
+    slope_bias: Number
+    K_bias: Number
+    success: bool
+    note: str
+
+
+@dataclass(frozen=True, kw_only=True)
+class TrendEntry(RecordPart):
+    """A generalised least-squares line of K against a concentration: does K drift?"""
+
+    quantity: str
+    slope: Number
+    slope_u: Number
+    intercept: Number
+    intercept_u: Number
+    statistic: Number
+    distribution: str
+    dof: int
+    p_value: Number
+    chi_square: Number
+    trend: bool
+    alpha: Number
+    message: str
+    against: str
+
+
+@dataclass(frozen=True, kw_only=True)
+class ActivityEstimate(RecordPart):
+    """The thermodynamic K estimated from the conditional K by the Davies equation; each value a
+    number, or {"value", "standard_uncertainty"} where it carries an uncertainty."""
+
+    K_thermodynamic: Number | JsonObject
+    K_conditional: Number | JsonObject
+    gamma_M: Number | JsonObject
+    gamma_L: Number | JsonObject
+    gamma_ML: Number | JsonObject
+    ionic_strength: Number | JsonObject
+    charges: tuple[int, ...]
+    temperature_C: Number
+    A: Number
+    within_range: bool
+    note: str
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -183,11 +155,11 @@ class EquilibriumBlock(RecordPart):
     mixtures: tuple[MixtureEntry, ...]
     combined: CombinedK
     log10K: Log10K
-    complete_complexation_bias: JsonObject
+    complete_complexation_bias: ComplexationBias
     covariance: tuple[tuple[float, ...], ...] = described("covariance of the points' K, in k_unit squared")
-    joint_fit: JsonObject | None = omitted_when_none("left out when not attempted")
-    trend: JsonObject | None = omitted_when_none("left out with fewer than three points")
-    activity_estimate: JsonObject | None = omitted_when_none("left out without charges and ionic strength")
+    joint_fit: JointFit | Unavailable
+    trend: TrendEntry | Unavailable | None = omitted_when_none("left out with fewer than three points")
+    activity_estimate: ActivityEstimate | None = omitted_when_none("left out without charges and ionic strength")
 
 
 @dataclass(frozen=True, kw_only=True)

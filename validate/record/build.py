@@ -21,7 +21,8 @@ from validate.model.line import fit_line
 from validate.propagation.budget import budget_rows, grouped
 from validate.propagation.linear import LinearResult
 from validate.propagation.montecarlo import McResult
-from validate.record.blocks import AdviceBlock, EquilibriumBlock, ValidationBlock
+from validate.record.blocks import AdviceBlock, EquilibriumBlock
+from validate.record.blocks_validation import ValidationBlock
 from validate.record.files import sha256_of
 from validate.record.tree import to_dict
 from validate.record.types import (

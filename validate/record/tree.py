@@ -26,6 +26,8 @@ import typing
 from typing import Any, TypeVar
 
 T = TypeVar("T")
+Number = float | None  # a number of the record; null where it is not defined (or not finite)
+JsonObject = dict[str, Any]  # a JSON object whose keys vary: its values are not checked
 _SCALARS: dict[type, str] = {str: "text", bool: "true or false", int: "a whole number", float: "a number"}
 
 

@@ -16,7 +16,8 @@ from dataclasses import dataclass
 from typing import Any
 
 from validate.model.keys import ResultKey
-from validate.record.blocks import AdviceBlock, EquilibriumBlock, ValidationBlock, ValidationSettingsEntry
+from validate.record.blocks import AdviceBlock, EquilibriumBlock
+from validate.record.blocks_validation import ValidationBlock, ValidationSettingsEntry
 from validate.record.tree import RecordPart, described, omitted_when_none
 
 SCHEMA_VERSION = "1.0"
