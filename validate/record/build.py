@@ -16,6 +16,8 @@ from validate import __version__
 from validate.equilibrium.study import equilibrium_block
 from validate.inputs.formula import Formula
 from validate.inputs.schema import Method
+from validate.model.assay import Model
+from validate.model.equilibrium import EquilibriumModel
 from validate.model.keys import ResultKey
 from validate.model.line import fit_line
 from validate.propagation.budget import budget_rows, grouped
@@ -50,7 +52,7 @@ EQUILIBRIUM_FORMULA = "K = [ML] / (([M]0 - [ML]) ([L]0 - [ML])), [ML] from the l
 MONTE_CARLO_METHOD = "JCGM 101:2008; calibration line refitted in every trial"
 
 
-def calibration_summary(method: Method, model) -> CalibrationSummary | None:
+def calibration_summary(method: Method, model: Model) -> CalibrationSummary | None:
     """The straight line as the analyst sees it: absorbance against concentration."""
     cal = method.calibration
     if cal is None:
@@ -69,9 +71,9 @@ def calibration_summary(method: Method, model) -> CalibrationSummary | None:
         samples=tuple(SampleReadings(id=s.id, readings=tuple(method.readings[s.id])) for s in method.samples))
 
 
-def build_record(method: Method, model, results: list[LinearResult], monte_carlo: Sequence[McResult] = (),
-                 *, combination: tuple | None = None, advice=None, trials: int | str | None = None,
-                 seed: int | None = None) -> Record:
+def build_record(method: Method, model: Model | EquilibriumModel, results: list[LinearResult],
+                 monte_carlo: Sequence[McResult] = (), *, combination: tuple | None = None, advice=None,
+                 trials: int | str | None = None, seed: int | None = None) -> Record:
     """The record of one run. `combination` is the equilibrium study's (GLS result, K values,
     covariance); `advice` an AdviceReport; `trials` and `seed` those of the Monte Carlo run."""
     inputs = tuple(InputFile(path=str(p), sha256=sha256_of(p)) for p in method.input_files)
@@ -92,7 +94,7 @@ def build_record(method: Method, model, results: list[LinearResult], monte_carlo
         equipment=tuple(EquipmentEntry(id=i.id, kind=i.kind, item_class=i.item_class, provenance=i.provenance)
                         for i in method.items.values()),
         sources=tuple(SourceEntry.from_dict(s.to_dict(), "sources") for s in model.sources.values()),
-        calibration=calibration_summary(method, model),
+        calibration=calibration_summary(method, model) if isinstance(model, Model) else None,
         monte_carlo_settings=(MonteCarloSettings(trials=trials, seed=seed, method=MONTE_CARLO_METHOD)
                               if monte_carlo and trials is not None and seed is not None else None),
         results=_results(results, monte_carlo, keys, validation),
@@ -121,9 +123,11 @@ def _method_info(method: Method) -> MethodInfo:
                       formula=formula, result_unit=unit)
 
 
-def _stage_blocks(method: Method, model, results, monte_carlo, combination):
+def _stage_blocks(method: Method, model: Model | EquilibriumModel, results: list[LinearResult],
+                  monte_carlo: Sequence[McResult], combination: tuple | None
+                  ) -> tuple[ValidationBlock | None, EquilibriumBlock | None]:
     """(validation, equilibrium) blocks, typed; either may be None."""
-    if method.equilibrium is not None:
+    if isinstance(model, EquilibriumModel):
         if combination is None:
             raise ValueError("an equilibrium study's record needs the combination of its K values")
         block = equilibrium_block(model, results, list(monte_carlo), *combination)
