@@ -193,3 +193,47 @@ def test_verify_refuses_a_record_without_a_layout_version(filed, tmp_path):
     (tmp_path / "rec" / "results.json").write_text(json.dumps(record), encoding="utf-8")
     with pytest.raises(InputError, match="written before versioned layouts"):
         verify_record(tmp_path / "rec")
+
+
+# ---- the declarations mirror the stages' own results (also parts the demos do not reach) ----
+
+def _mirrors():
+    from validate.advisor import advice
+    from validate.equilibrium import combine
+    from validate.metrology.sources import Source
+    from validate.model.line import LineFit
+    from validate.propagation import linear, mcstats
+    from validate.record import blocks, blocks_validation, types
+    from validate.validation import criteria, limits, linearity, precision, window
+    return [
+        (mcstats.AdaptiveCheck, types.AdaptiveCheck, set()),
+        (Source, types.SourceEntry, {"value_in_unit", "u_in_unit"}),
+        (linear.Contribution, types.BudgetRow, {"result", "key"}),
+        (LineFit, blocks_validation.LineFitEntry, set()),
+        (linearity.PointDiagnostics, blocks_validation.PointDiagnosticsEntry, set()),
+        (linearity.SignificanceTest, blocks_validation.LineTest, set()),
+        (limits.Sensitivity, blocks_validation.SensitivityEntry, set()),
+        (limits.MolarAbsorptivity, blocks_validation.MolarAbsorptivityEntry, set()),
+        (limits.LimitRoute, blocks_validation.LimitRouteEntry, set()),
+        (limits.Iso11843Result, blocks_validation.Iso11843Entry, set()),
+        (limits.DetectionLimits, blocks_validation.DetectionLimitsEntry, set()),
+        (window.WindowFlags, blocks_validation.WindowFlagsEntry, set()),
+        (precision.Repeatability, blocks_validation.RepeatabilityEntry, {"unit"}),
+        (precision.IntermediatePrecision, blocks_validation.IntermediatePrecisionEntry, {"unit"}),
+        (precision.Recovery, blocks_validation.TruenessEntry, set()),
+        (precision.ScatterConsistency, blocks_validation.ScatterConsistencyEntry, set()),
+        (criteria.Criterion, blocks_validation.Criterion, set()),
+        (criteria.CriteriaResult, blocks_validation.CriteriaBlock, set()),
+        (combine.TrendTest, blocks.TrendEntry, {"against"}),
+        (combine.ActivityCorrection, blocks.ActivityEstimate, set()),
+        (advice.ResultEffect, blocks.AdviceEffect, set()),
+        (advice.Advice, blocks.AdviceItem, set()),
+        (advice.AdviceReport, blocks.AdviceBlock, set()),
+    ]
+
+
+def test_each_declaration_has_the_keys_of_the_stage_result_it_holds():
+    for stage_type, declared, added in _mirrors():
+        stage_keys = {f.name for f in dataclasses.fields(stage_type)} | added
+        declared_keys = {f.metadata.get("key", f.name) for f in dataclasses.fields(declared)}
+        assert stage_keys == declared_keys, (stage_type.__name__, stage_keys ^ declared_keys)
