@@ -14,7 +14,7 @@ from conftest import DEMOS
 
 from validate.inputs.errors import InputError
 from validate.record import files as records
-from validate.record.verify import compare, reproducible_part, store_inputs
+from validate.record.verify import compare, reproducible_part
 from validate.report.terminal import describe_verify
 from validate.workflow import pipeline as api
 from validate.workflow.verify import verify_record
@@ -25,12 +25,10 @@ TRIALS = 20000
 
 
 def _file_record(method_path, out, trials=TRIALS, seed=SEED):
-    """What `validate run` does, with the inputs stored beside the record."""
+    """What `validate run` does: the record written with the inputs stored beside it."""
     run = api.analyse(method_path, trials=trials, seed=seed)
-    stored = store_inputs(list(run.method.input_files), out)
-    run.record["inputs"] = [{**entry, "stored": copy["stored"]}
-                            for entry, copy in zip(run.record["inputs"], stored, strict=True)]
     api.write_outputs(run, out)
+    assert [i["stored"] for i in run.record["inputs"]] == [i.stored for i in run.typed_record.inputs]
     return run
 
 
@@ -133,7 +131,7 @@ def test_a_stored_method_that_no_longer_reads_is_reported(record_dir):
 def test_same_inputs_and_seed_give_identical_results_and_budget():
     first = api.analyse(DEMO / "method.toml", trials=5000, seed=SEED)
     second = api.analyse(DEMO / "method.toml", trials=5000, seed=SEED)
-    one, two = (reproducible_part(json.loads(records.record_json(r.record))) for r in (first, second))
+    one, two = (reproducible_part(json.loads(records.record_json(r.typed_record))) for r in (first, second))
     assert one["results"] == two["results"]  # exactly equal, not merely within a tolerance
     assert one["budget"] == two["budget"]
     assert "run" not in one and first.record["run"]["record_id"]

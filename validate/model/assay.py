@@ -26,6 +26,7 @@ from validate.model import backend
 from validate.model.design import CalibrationDesign, calibration_design
 from validate.model.design import check_calibration_data as check_calibration_data  # re-exported: named so
 from validate.model.errors import ModelError as ModelError  # imported from here by the later stages
+from validate.model.keys import ResultKey
 from validate.model.line import fit_line, inverse_prediction, straight_line
 
 
@@ -51,6 +52,7 @@ class Model(SolutionInputs):
     method: Method
     sources: dict[str, Source]
     result_labels: list[str]
+    result_keys: list[ResultKey] = field(default_factory=list)  # one per label, in the same order
     assumptions: list[str] = field(default_factory=list)
     design: CalibrationDesign | None = None  # None: a method without a calibration line
     _solution_terms: dict = field(default_factory=dict, repr=False)
@@ -112,7 +114,8 @@ def build_model(method: Method) -> Model:
     samples = method.samples if "c_measured" in result_formula(method).names else []
     name = method.result.name
     labels = [f"{name}, {smp.id}" for smp in samples] or [name]
-    model = Model(method, ss.sources, labels)
+    keys = [ResultKey("result", smp.id) for smp in samples] or [ResultKey("result")]
+    model = Model(method, ss.sources, labels, keys)
     observed = s.scatter == "observed"
     cal = method.calibration
     standards = set(cal.standards) if cal else set()

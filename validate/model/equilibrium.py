@@ -26,6 +26,7 @@ from validate.model.assay import SolutionInputs, mean_reading_term, solution_ord
 from validate.model.design import EquilibriumDesign, equilibrium_design
 from validate.model.errors import ModelError
 from validate.model.ice import equilibrium_constant
+from validate.model.keys import ResultKey
 from validate.model.line import fit_line
 from validate.model.standards import iterate_standards, line_by_sums
 
@@ -68,6 +69,11 @@ class EquilibriumModel(SolutionInputs):
     def result_labels(self) -> list[str]:
         labels = [f"K, {p}" for p in self.points]
         return labels + ([COMBINED, LOG10] if self.weights is not None else [])
+
+    @property
+    def result_keys(self) -> list[ResultKey]:
+        keys = [ResultKey("K", p) for p in self.points]
+        return keys + ([ResultKey("combined K"), ResultKey("log10 K")] if self.weights is not None else [])
 
     def unit_of(self, label: str) -> str:
         return "" if label == LOG10 else self.study.k_unit.text

@@ -11,10 +11,11 @@ import csv
 import hashlib
 import io
 import json
-import math
 import os
 import tempfile
 from pathlib import Path
+
+from validate.record.tree import RecordPart
 
 
 def sha256_of(path) -> str:
@@ -23,19 +24,6 @@ def sha256_of(path) -> str:
         for block in iter(lambda: handle.read(1 << 16), b""):
             digest.update(block)
     return digest.hexdigest()
-
-
-def json_safe(value):
-    """Plain JSON types only: numpy scalars to floats, inf and nan to None."""
-    if isinstance(value, dict):
-        return {str(k): json_safe(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [json_safe(v) for v in value]
-    if hasattr(value, "item") and not isinstance(value, (str, bytes)):
-        value = value.item()
-    if isinstance(value, float) and not math.isfinite(value):
-        return None
-    return value
 
 
 def write_atomic(path: Path, data: bytes) -> None:
@@ -54,8 +42,9 @@ def write_atomic(path: Path, data: bytes) -> None:
         raise
 
 
-def record_json(record: dict) -> bytes:
-    return (json.dumps(json_safe(record), indent=2, ensure_ascii=False) + "\n").encode("utf-8")
+def record_json(record: RecordPart) -> bytes:
+    """results.json: the record's JSON form (its to_dict, which already holds only JSON values)."""
+    return (json.dumps(record.to_dict(), indent=2, ensure_ascii=False, allow_nan=False) + "\n").encode("utf-8")
 
 
 BUDGET_COLUMNS = ("result", "source", "step", "equipment", "value", "unit", "standard_uncertainty",

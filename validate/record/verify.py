@@ -20,6 +20,8 @@ from pathlib import Path
 from validate import __version__
 from validate.inputs.errors import InputError
 from validate.record.files import sha256_of, write_atomic
+from validate.record.tree import RecordShapeError
+from validate.record.types import SCHEMA_VERSION, read_record
 
 INPUTS_FOLDER = "inputs"
 RECORD_FILE = "results.json"
@@ -126,30 +128,41 @@ def compare(recorded, recomputed, path: str = "") -> tuple[list[Mismatch], int]:
     """Every difference between two JSON values, with its path, and how many numbers were
     compared. Numbers agree within RELATIVE_TOLERANCE; everything else must be equal."""
     if isinstance(recorded, dict) and isinstance(recomputed, dict):
-        found, count = [], 0
-        for key in list(recorded) + [k for k in recomputed if k not in recorded]:
-            where = f"{path}.{key}" if path else str(key)
-            if key not in recomputed or key not in recorded:
-                found.append(Mismatch(where, recorded.get(key, _ABSENT), recomputed.get(key, _ABSENT)))
-                continue
-            more, n = compare(recorded[key], recomputed[key], where)
-            found += more
-            count += n
-        return found, count
+        return _compare_objects(recorded, recomputed, path)
     if isinstance(recorded, list) and isinstance(recomputed, list):
-        found, count = [], 0
-        if len(recorded) != len(recomputed):
-            found.append(Mismatch(f"{path} (number of entries)", len(recorded), len(recomputed)))
-        for index, (a, b) in enumerate(zip(recorded, recomputed)):
-            more, n = compare(a, b, f"{path}[{index}]")
-            found += more
-            count += n
-        return found, count
+        return _compare_lists(recorded, recomputed, path)
     if _is_number(recorded) and _is_number(recomputed):
         same = math.isclose(recorded, recomputed, rel_tol=RELATIVE_TOLERANCE, abs_tol=ABSOLUTE_TOLERANCE)
         return ([] if same else [Mismatch(path, recorded, recomputed)]), 1
     return ([] if recorded == recomputed and type(recorded) is type(recomputed)
             else [Mismatch(path, recorded, recomputed)]), 0
+
+
+def _compare_objects(recorded: dict, recomputed: dict, path: str) -> tuple[list[Mismatch], int]:
+    found: list[Mismatch] = []
+    count = 0
+    for key in list(recorded) + [k for k in recomputed if k not in recorded]:
+        where = f"{path}.{key}" if path else str(key)
+        if key not in recomputed or key not in recorded:
+            found.append(Mismatch(where, recorded.get(key, _ABSENT), recomputed.get(key, _ABSENT)))
+            continue
+        more, n = compare(recorded[key], recomputed[key], where)
+        found += more
+        count += n
+    return found, count
+
+
+def _compare_lists(recorded: list, recomputed: list, path: str) -> tuple[list[Mismatch], int]:
+    found: list[Mismatch] = []
+    count = 0
+    if len(recorded) != len(recomputed):
+        found.append(Mismatch(f"{path} (number of entries)", len(recorded), len(recomputed)))
+    # lists of different lengths are reported above and compared as far as both go
+    for index, (a, b) in enumerate(zip(recorded, recomputed, strict=False)):
+        more, n = compare(a, b, f"{path}[{index}]")
+        found += more
+        count += n
+    return found, count
 
 
 def _is_number(value) -> bool:
@@ -168,7 +181,24 @@ def _read_record(folder: Path) -> dict:
     if not isinstance(record, dict) or not all(k in record for k in ("inputs", "results")):
         raise InputError("this file is not a record written by validate", file=path,
                          fix="give the folder that a `validate run --out` wrote")
+    _check_layout(record, path)
     return record
+
+
+def _check_layout(record: dict, path: Path) -> None:
+    """Refuse a record that is not of the layout this version reads (results.schema.json)."""
+    version = record.get("schema_version")
+    if not isinstance(version, str) or version.split(".")[0] != SCHEMA_VERSION.split(".")[0]:
+        raise InputError(f"the record has layout version {version or '(none: written before versioned layouts)'}; "
+                         f"this version of validate reads layout {SCHEMA_VERSION}", file=path, where="schema_version",
+                         fix=f"verify it with the version of validate that wrote it "
+                             f"({_recorded_version(record) or 'unknown'}), or run the stored method again")
+    try:
+        read_record(record)
+    except RecordShapeError as exc:
+        raise InputError(f"the record does not have the layout of version {SCHEMA_VERSION}: {exc.problem}",
+                         file=path, where=exc.where,
+                         fix="the file was damaged or edited by hand; restore it from the archive") from None
 
 
 def _check_input(folder: Path, entry: dict) -> InputCheck:

@@ -14,7 +14,6 @@ import io
 from reportlab.lib.utils import ImageReader
 from reportlab.platypus import Image, KeepTogether, Paragraph
 
-from validate.model.equilibrium import COMBINED as COMBINED_K
 from validate.report import figures
 from validate.report.numbers import DASH, dof, gum_decimals, gum_pair, interval, is_number, num, pct
 from validate.report.style import BAD, FRAME_WIDTH, GOOD, data_table, gap, heading, key_value_table, para, styles, text
@@ -112,7 +111,7 @@ def result_rows(record: dict, results: list[dict] | None = None
         widths = [44, 22, 20, 12, 11, 12, 17, 36]
     rows = [_result_row(r, with_mc) for r in results]
     eq = (record.get("equilibrium") or {}).get("combined")
-    listed = any(r.get("name") == COMBINED_K for r in every)  # never list the combined K twice
+    listed = any((r.get("key") or {}).get("kind") == "combined K" for r in every)  # never list it twice
     if eq and not listed and is_number(eq.get("K")) and is_number(eq.get("expanded_uncertainty")):
         rows.append(_combined_k_row(record, eq, with_mc))
     return header, rows, widths, set(range(1, len(header)))

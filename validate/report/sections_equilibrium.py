@@ -12,7 +12,7 @@ from __future__ import annotations
 
 import re
 
-from validate.model.equilibrium import COMBINED, LOG10
+from validate.model.equilibrium import COMBINED
 from validate.report import figures_equilibrium
 from validate.report.numbers import DASH, dof, is_number, num, pct, sig
 from validate.report.sections import coloured, figure_block, rounded
@@ -40,19 +40,21 @@ def value_of(x):
     return x if is_number(x) else None
 
 
-def results_by_name(record: dict) -> dict[str, dict]:
-    return {r.get("name"): r for r in record.get("results") or []}
+def result_by_key(record: dict, kind: str, ident: str | None = None) -> dict | None:
+    """The record's result with this key (validate.model.keys): found by what it is, not by its label."""
+    wanted = {"kind": kind, "id": ident}
+    return next((r for r in record.get("results") or [] if r.get("key") == wanted), None)
 
 
 def point_result(record: dict, point_id) -> dict | None:
-    """The record's result for one point (named "K, <id>" by the model)."""
-    return results_by_name(record).get(f"K, {point_id}")
+    """The record's result for one point (key: kind "K", id the point)."""
+    return result_by_key(record, "K", point_id)
 
 
 def is_study(record: dict) -> bool:
     """An equilibrium study with a combined K: its report is laid out around that constant."""
     eq = record.get("equilibrium")
-    return isinstance(eq, dict) and bool(eq) and COMBINED in results_by_name(record)
+    return isinstance(eq, dict) and bool(eq) and result_by_key(record, "combined K") is not None
 
 
 def point_interval(record: dict, mixture: dict):
@@ -148,7 +150,7 @@ def _figure(record: dict, eq: dict) -> list:
     if not shown:
         return []
     from_mc = all(point_interval(record, m) for m in shown)  # else K ± U for every point
-    combined = results_by_name(record).get(COMBINED) or {}
+    combined = result_by_key(record, "combined K") or {}
     comb_eq = eq.get("combined") or {}
     k = value_of(combined.get("value", comb_eq.get("K")))
     big_u = combined.get("expanded_uncertainty", comb_eq.get("expanded_uncertainty"))
@@ -161,8 +163,7 @@ def _figure(record: dict, eq: dict) -> list:
 
 
 def _combined(record: dict, eq: dict) -> list:
-    by_name = results_by_name(record)
-    result, log_result = by_name.get(COMBINED), by_name.get(LOG10)
+    result, log_result = result_by_key(record, "combined K"), result_by_key(record, "log10 K")
     comb = eq.get("combined") or {}
     unit = k_unit(eq)
     if not result and not comb:
@@ -362,7 +363,7 @@ def equilibrium(record: dict) -> list | None:
     eq = record.get("equilibrium")
     if not isinstance(eq, dict) or not eq:
         return None
-    combined = results_by_name(record).get(COMBINED) or {}
+    combined = result_by_key(record, "combined K") or {}
     comb_value = combined.get("value", (eq.get("combined") or {}).get("K"))
     return (_conditions(eq) + _ice_table(record, eq) + _figure(record, eq) + _combined(record, eq)
             + _consistency(eq) + _trend(eq) + _bias(eq)

@@ -13,10 +13,9 @@ from __future__ import annotations
 from reportlab.lib.units import mm
 from reportlab.platypus import CondPageBreak, Table, TableStyle
 
-from validate.model.equilibrium import COMBINED, LOG10
 from validate.report.numbers import DASH, dof, is_number, num, pct
 from validate.report.sections import coloured, criteria_block, monte_carlo_line, result_rows, rounded, u_decimals
-from validate.report.sections_equilibrium import k_unit, point_interval, point_result, results_by_name
+from validate.report.sections_equilibrium import k_unit, point_interval, point_result, result_by_key
 from validate.report.sections_uncertainty import (
     BUDGET_LEAD,
     budget_for_result,
@@ -32,11 +31,10 @@ SAME_SHARES = 1e-6  # log10 K's shares equal K's when they differ by less than t
 
 def _parts(record: dict) -> tuple[dict, dict | None, list[tuple[dict, dict]]]:
     """The combined K result, the log10 K result, and (mixture entry, result) per point."""
-    by_name = results_by_name(record)
     points = []
     for m in record["equilibrium"].get("mixtures") or []:
         points.append((m, point_result(record, m.get("id")) or {}))
-    return by_name[COMBINED], by_name.get(LOG10), points
+    return result_by_key(record, "combined K") or {}, result_by_key(record, "log10 K"), points
 
 
 def _verdict(result: dict):
@@ -126,10 +124,12 @@ def summary(record: dict) -> list:
 # Uncertainty budget
 
 def _same_shares(record: dict, a: str, b: str) -> bool:
+    """Do the results of kinds a and b (keys) have the same share from every source?"""
     shares: dict[str, dict] = {}
     for row in record.get("budget") or []:
-        if row.get("result") in (a, b) and is_number(row.get("share")):
-            shares.setdefault(row["result"], {})[row.get("source")] = row["share"]
+        kind = (row.get("key") or {}).get("kind")
+        if kind in (a, b) and is_number(row.get("share")):
+            shares.setdefault(kind, {})[row.get("source")] = row["share"]
     first, second = shares.get(a), shares.get(b)
     if not first or not second or set(first) != set(second):
         return False
@@ -139,7 +139,7 @@ def _same_shares(record: dict, a: str, b: str) -> bool:
 def _log10_budget(record: dict, combined: dict, log10k: dict | None) -> list:
     if not log10k:
         return []
-    if not _same_shares(record, COMBINED, LOG10):
+    if not _same_shares(record, "combined K", "log10 K"):
         return budget_for_result(record, log10k)
     value, big_u = rounded(log10k.get("value"), log10k.get("expanded_uncertainty"))
     return [heading(log10k["name"], 2),

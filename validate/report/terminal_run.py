@@ -9,7 +9,6 @@ from dataclasses import dataclass
 from rich.markup import escape
 from rich.table import Table
 
-from validate.model.equilibrium import COMBINED, LOG10
 from validate.report.numbers import MISSING, compact, decimals_of, dof, gum_pair, interval
 
 
@@ -220,10 +219,10 @@ def _cross_check_lines(e: dict) -> list[Printable]:
 def equilibrium_lines(record: dict, top: int) -> list[Printable]:
     """K per mixture, the combined K and log10 K, the checks of the combination and the bias."""
     e = record["equilibrium"]
-    by_name = {r["name"]: r for r in record["results"]}
+    by_kind = {r["key"]["kind"]: r for r in record["results"]}
     lines = _mixture_lines(e)
-    lines += result_lines(record, by_name[COMBINED], top)
-    lines += result_lines(record, by_name[LOG10], 0)
+    lines += result_lines(record, by_kind["combined K"], top)
+    lines += result_lines(record, by_kind["log10 K"], 0)
     return lines + _combination_lines(e) + _bias_lines(e) + _cross_check_lines(e)
 
 

@@ -5,23 +5,22 @@ The command line holds no computation; everything it prints comes from here.
 
 from __future__ import annotations
 
-import datetime as _dt
-import hashlib
+import dataclasses
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from validate import __version__
 from validate.equilibrium.study import build_ready_model
 from validate.inputs.errors import InputError
 from validate.inputs.method_file import load_method
 from validate.inputs.schema import Method
 from validate.model.assay import Model
 from validate.model.build import build
-from validate.propagation.budget import budget_rows, grouped
+from validate.model.equilibrium import EquilibriumModel
 from validate.propagation.linear import LinearResult, propagate
 from validate.propagation.montecarlo import McResult, expected_work, new_seed, propagate_mc
-from validate.record.files import budget_csv, record_json, sha256_of, write_atomic
-from validate.validation.block import line_summary, validation_block
+from validate.record.build import build_record
+from validate.record.files import budget_csv, record_json, write_atomic
+from validate.record.types import Record
 
 OUTPUT_FILES = ("results.json", "budget.csv", "report.pdf")
 
@@ -29,17 +28,21 @@ OUTPUT_FILES = ("results.json", "budget.csv", "report.pdf")
 @dataclass
 class Run:
     method: Method
-    model: Model
+    model: Model | EquilibriumModel
     results: list[LinearResult]
     monte_carlo: list[McResult] = field(default_factory=list)
     combination: tuple | None = None  # equilibrium studies: (GLS combination, K values, covariance)
     advice: object | None = None  # validate.advisor.advice.AdviceReport
     seed: int | None = None
     trials: int | str | None = None
-    record: dict = field(default_factory=dict)
+    typed_record: Record | None = None  # the record as a typed tree (validate.record.types)
+    record: dict = field(default_factory=dict)  # its JSON form, as written to results.json; renderers read it
+
+    def set_record(self, record: Record) -> None:
+        self.typed_record, self.record = record, record.to_dict()
 
 
-def check(path) -> tuple[Method, Model]:
+def check(path) -> tuple[Method, Model | EquilibriumModel]:
     """Read and check a method file, and build its model (no propagation)."""
     method = load_method(path)
     return method, build(method)
@@ -62,65 +65,9 @@ def analyse(path, trials: int | str | None = 1_000_000, seed: int | None = None,
         from validate.advisor.advice import advise
         run.advice = advise(method, results, seed=run.seed if run.seed is not None else 1,
                             confirm_with_mc=3 if trials else 0)
-    run.record = build_record(run)
+    run.set_record(build_record(method, model, results, run.monte_carlo, combination=combination,
+                                advice=run.advice, trials=run.trials, seed=run.seed))
     return run
-
-
-def calibration_summary(method: Method, model: Model) -> dict | None:
-    """The straight line as the analyst sees it: absorbance against concentration."""
-    return line_summary(method, model)
-
-
-def build_record(run: Run) -> dict:
-    method, results = run.method, run.results
-    inputs = [{"path": str(p), "sha256": sha256_of(p)} for p in method.input_files]
-    fingerprint = hashlib.sha256("".join(i["sha256"] for i in inputs).encode()).hexdigest()[:8]
-    now = _dt.datetime.now(_dt.UTC)
-    validation = validation_block(method, run.model, results) if method.calibration else None
-    equilibrium = None
-    if method.equilibrium is not None:
-        from validate.equilibrium.study import equilibrium_block
-        from validate.validation.block import equilibrium_validation_block
-        equilibrium = equilibrium_block(run.model, results, run.monte_carlo, *run.combination)
-        validation = equilibrium_validation_block(run.model)
-    flags = (validation or {}).get("range_flags", {})
-    labels = {label: smp.id for label, smp in zip(run.model.result_labels, method.samples)} \
-        if method.result is not None and "c_measured" in method.result.formula.names else {}
-    return {
-        "software": {"name": "validate", "version": __version__},
-        "run": {"record_id": f"VR-{now:%Y%m%d-%H%M%S}-{fingerprint}", "created": now.isoformat(timespec="seconds")},
-        "method": {"title": method.title, "measurand": method.measurand, "scope": method.scope,
-                   "file": method.path,
-                   "formula": method.result.formula.text if method.result else
-                   "K = [ML] / (([M]0 - [ML]) ([L]0 - [ML])), [ML] from the line of the standards",
-                   "result_unit": method.result.unit.text if method.result else method.equilibrium.k_unit.text},
-        "inputs": inputs,
-        "settings": {**method.settings.to_dict(), "validation": method.validation.to_dict()},
-        "defaults_applied": list(method.defaults_shown),
-        "notes": list(method.notes),
-        "assumptions": list(run.model.assumptions),
-        "registers": list(method.registers_used),
-        "equipment": [{"id": i.id, "kind": i.kind, "class": i.item_class, "provenance": i.provenance}
-                      for i in method.items.values()],
-        "sources": [s.to_dict() for s in run.model.sources.values()],
-        "calibration": calibration_summary(method, run.model),
-        "monte_carlo_settings": ({"trials": run.trials, "seed": run.seed,
-                                  "method": "JCGM 101:2008; calibration line refitted in every trial"}
-                                 if run.monte_carlo else None),
-        "results": [
-            {**r.to_dict(),
-             "budget_by_step": [g.to_dict() for g in grouped(r, "step")],
-             "budget_by_equipment": [g.to_dict() for g in grouped(r, "equipment")],
-             "sample": labels.get(r.name),
-             "flags": flags.get(labels.get(r.name), []),
-             **({"monte_carlo": mc.to_dict()} if mc else {})}
-            for r, mc in zip(results, run.monte_carlo or [None] * len(results))
-        ],
-        "validation": validation,
-        "equilibrium": equilibrium,
-        "advice": run.advice.to_dict() if run.advice is not None else None,
-        "budget": budget_rows(results),
-    }
 
 
 def check_output_folder(out_dir, overwrite: bool) -> None:
@@ -152,10 +99,8 @@ def write_outputs(run: Run, out_dir, overwrite: bool = False, pdf: bool = True) 
             from validate.report.pdf import build_report
             build_report(run.record, pending)
         stored = store_inputs(list(run.method.input_files), out)
-        # keep the SHA-256 of what was analysed: a file changed since shows up in `validate verify`
-        run.record["inputs"] = [{**entry, "stored": copy["stored"]}
-                                for entry, copy in zip(run.record["inputs"], stored)]
-        payloads = {"results.json": record_json(run.record), "budget.csv": budget_csv(run.record["budget"])}
+        record = with_stored_inputs(run.typed_record, stored)
+        payloads = {"results.json": record_json(record), "budget.csv": budget_csv(record.to_dict()["budget"])}
         written = []
         for name, data in payloads.items():
             write_atomic(out / name, data)
@@ -163,7 +108,18 @@ def write_outputs(run: Run, out_dir, overwrite: bool = False, pdf: bool = True) 
         if pdf:
             os.replace(pending, out / "report.pdf")
             written.append(out / "report.pdf")
+        run.set_record(record)
     finally:
         if pending.exists():
             pending.unlink()
     return written
+
+
+def with_stored_inputs(record: Record | None, stored: list[dict]) -> Record:
+    """The record with each input's stored copy named. The SHA-256 stays that of what was
+    analysed: a file changed since shows up in `validate verify`."""
+    if record is None:
+        raise ValueError("the run has no record yet: analyse() builds it")
+    inputs = tuple(dataclasses.replace(entry, stored=copy["stored"])
+                   for entry, copy in zip(record.inputs, stored, strict=True))
+    return dataclasses.replace(record, inputs=inputs)

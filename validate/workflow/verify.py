@@ -7,12 +7,10 @@ compares the record number by number (the comparison itself is `validate.record.
 
 from __future__ import annotations
 
-import json
 from pathlib import Path
 
 from validate.inputs.errors import InputError
 from validate.model.assay import ModelError
-from validate.record.files import record_json
 from validate.record.verify import (
     COMPARED_SECTIONS,
     INPUTS_FOLDER,
@@ -49,8 +47,7 @@ def verify_record(out_dir) -> VerifyReport:
         message = exc.message() if isinstance(exc, InputError) else str(exc)
         return VerifyReport(str(folder), _record_id(record), checks, trials, seed, message, 0, (),
                             _recorded_version(record))
-    redone = json.loads(record_json(run.record))  # the same JSON form as the filed record
-    old, new = reproducible_part(record), reproducible_part(redone)
+    old, new = reproducible_part(record), reproducible_part(run.record)  # both in their JSON form
     mismatches, count = [], 0
     for section in COMPARED_SECTIONS:
         found, n = compare(old.get(section), new.get(section), section)

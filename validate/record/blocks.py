@@ -1,0 +1,211 @@
+"""The record's blocks made by the equilibrium and advice stages (validation: blocks_validation).
+
+Those stages hand their blocks over as plain dicts; the record takes them in with `from_dict`,
+which checks them against these declarations key by key. Each block is declared fully at its
+first level and deeper where its parts have one fixed shape; parts whose keys vary (a test's
+details, an advice's details) are kept as JSON objects (`Any`).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from validate.record.blocks_validation import Unavailable
+from validate.record.tree import JsonObject, Number, RecordPart, described, omitted_when_none
+
+
+@dataclass(frozen=True, kw_only=True)
+class Conditions(RecordPart):
+    temperature_C: Number
+    ionic_strength_mol_per_L: Number
+    charges: tuple[int, ...] | None
+    note: str
+
+
+@dataclass(frozen=True, kw_only=True)
+class MixtureEntry(RecordPart):
+    """One mixture or series point: totals, ICE table and K (concentrations in concentration_unit)."""
+
+    saturation: Number = described("[ML] over the smaller total")
+    saturation_flag: str | None
+    id: str
+    M_total: float
+    L_total: float
+    ML: float
+    M_free: float
+    L_free: float
+    K: float
+    u_K: float
+    expanded_uncertainty: float
+    coverage_factor: float
+    interval: tuple[float, ...] | None
+    shortest_interval: tuple[float, ...] | None
+    invalid_trials: int | None
+
+
+@dataclass(frozen=True, kw_only=True)
+class Consistency(RecordPart):
+    """Do the points' K agree within their uncertainties? (chi-square and Birge ratio)"""
+
+    chi_square: Number
+    dof: int
+    p_value: Number
+    birge_ratio: Number
+    consistent: bool
+    verdict: str
+    source: str
+
+
+@dataclass(frozen=True, kw_only=True)
+class CombinedK(RecordPart):
+    K: float
+    standard_uncertainty: float
+    expanded_uncertainty: float
+    coverage_factor: float
+    coverage_probability: float
+    interval: tuple[float, ...] | None
+    shortest_interval: tuple[float, ...] | None
+    agrees_with_gum: bool | None
+    weights: tuple[float, ...] = described("generalised least-squares weights of the points' K")
+    consistency: Consistency | None = described("null with a single point")
+
+
+@dataclass(frozen=True, kw_only=True)
+class Log10K(RecordPart):
+    value: float
+    standard_uncertainty: float
+    expanded_uncertainty: float
+    interval: tuple[float, ...] | None
+
+
+@dataclass(frozen=True, kw_only=True)
+class ComplexationBias(RecordPart):
+    """What taking the standards as fully complexed would do to the slope and to K."""
+
+    slope: Number
+    K: Number
+    naive_K: Number
+    fraction_complexed_in_standards: tuple[Number, ...]
+    meaning: str
+    iteration_converged: bool
+    iterations: int
+
+
+@dataclass(frozen=True, kw_only=True)
+class JointFit(RecordPart):
+    """K, absorptivity and intercept fitted together (a cross-check of the iteration)."""
+
+    K: Number
+    standard_uncertainty: Number
+    log10K: Number
+    slope_bias: Number
+    K_bias: Number
+    success: bool
+    note: str
+
+
+@dataclass(frozen=True, kw_only=True)
+class TrendEntry(RecordPart):
+    """A generalised least-squares line of K against a concentration: does K drift?"""
+
+    quantity: str
+    slope: Number
+    slope_u: Number
+    intercept: Number
+    intercept_u: Number
+    statistic: Number
+    distribution: str
+    dof: int
+    p_value: Number
+    chi_square: Number
+    trend: bool
+    alpha: Number
+    message: str
+    against: str
+
+
+@dataclass(frozen=True, kw_only=True)
+class ActivityEstimate(RecordPart):
+    """The thermodynamic K estimated from the conditional K by the Davies equation; each value a
+    number, or {"value", "standard_uncertainty"} where it carries an uncertainty."""
+
+    K_thermodynamic: Number | JsonObject
+    K_conditional: Number | JsonObject
+    gamma_M: Number | JsonObject
+    gamma_L: Number | JsonObject
+    gamma_ML: Number | JsonObject
+    ionic_strength: Number | JsonObject
+    charges: tuple[int, ...]
+    temperature_C: Number
+    A: Number
+    within_range: bool
+    note: str
+
+
+@dataclass(frozen=True, kw_only=True)
+class EquilibriumBlock(RecordPart):
+    """A 1:1 complex-formation study: K per point and combined (validate.equilibrium.study)."""
+
+    conditions: Conditions
+    k_unit: str
+    unit: str
+    concentration_unit: str
+    correction: str
+    limiting_reagent_in_standards: str
+    mixtures: tuple[MixtureEntry, ...]
+    combined: CombinedK
+    log10K: Log10K
+    complete_complexation_bias: ComplexationBias
+    covariance: tuple[tuple[float, ...], ...] = described("covariance of the points' K, in k_unit squared")
+    joint_fit: JointFit | Unavailable
+    trend: TrendEntry | Unavailable | None = omitted_when_none("left out with fewer than three points")
+    activity_estimate: ActivityEstimate | None = omitted_when_none("left out without charges and ionic strength")
+
+
+@dataclass(frozen=True, kw_only=True)
+class AdviceEffect(RecordPart):
+    result: str
+    value: float
+    expanded_uncertainty_before: float
+    expanded_uncertainty_after: float
+    coverage_factor_before: float
+    coverage_factor_after: float
+    effective_dof_before: Number
+    effective_dof_after: Number
+
+
+@dataclass(frozen=True, kw_only=True)
+class AdviceItem(RecordPart):
+    change: str
+    kind: str
+    target: str
+    unit: str
+    expanded_uncertainty_before: float
+    expanded_uncertainty_after: Number = described("null: qualitative advice, not evaluated")
+    reduction: Number
+    cost: str
+    confirmed_by_monte_carlo: Number
+    assumption: str
+    monte_carlo_note: str
+    effects: tuple[AdviceEffect, ...]
+    details: JsonObject
+
+
+@dataclass(frozen=True, kw_only=True)
+class AdviceBlock(RecordPart):
+    """What-if advice: candidate changes to the method, ranked (validate.advisor)."""
+
+    method: str
+    ranking: str
+    target: str
+    unit: str
+    expanded_uncertainty_before: float
+    monte_carlo_before: Number
+    monte_carlo_trials: int
+    seed: int
+    candidates_evaluated: int
+    without_effect: tuple[str, ...]
+    skipped: tuple[str, ...]
+    sources: tuple[str, ...]
+    items: tuple[AdviceItem, ...]
+    combined: AdviceItem | None
