@@ -13,7 +13,6 @@ from rich.console import Console
 from validate import __version__
 from validate.inputs.errors import InputError
 from validate.model.assay import ModelError
-from validate.record.files import json_safe
 from validate.report import terminal
 from validate.workflow import pipeline as api
 
@@ -122,7 +121,7 @@ def _run(args, console: Console) -> int:
         if progress is not None:
             progress.stop()
     written = api.write_outputs(run, args.out, overwrite=args.overwrite, pdf=not args.no_pdf)
-    _show(console, terminal.run_lines(json_safe(run.record), args.top) + terminal.written_lines(written))
+    _show(console, terminal.run_lines(run.record, args.top) + terminal.written_lines(written))
     return 0
 
 
