@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import dataclasses
+import itertools
 import json
 import math
 from pathlib import Path
@@ -91,9 +92,12 @@ def test_tightening_an_item_never_raises_u_demo(demo, which, shrink):
     # that shrinks lowers nu_eff (Welch-Satterthwaite, GUM G.4.1) and so raises k a little, but
     # with nu >= about 5 the fall of u_c always outweighs it: U must not rise for any result.
     item = demo.items[which]
-    fields = {k: getattr(item, k) * shrink for k in ("tolerance", "repeatability", "linearity")}
+    # every tolerance-like field the item's kind carries (a balance has no tolerance, a cuvette
+    # no repeatability)
+    fields = {k: getattr(item, k) * shrink for k in ("tolerance", "repeatability", "linearity") if hasattr(item, k)}
+    assert fields, f"{which} carries none of the fields shrunk here"
     tighter = dataclasses.replace(demo, items={**demo.items, which: dataclasses.replace(item, **fields)})
-    for after, before in zip(_u(tighter), _u(demo)):
+    for after, before in zip(_u(tighter), _u(demo), strict=True):
         assert after <= before * (1 + 1e-12)
 
 
@@ -148,7 +152,7 @@ def test_halving_ranking_agrees_with_the_budget_shares(write_method, us):
     (before,) = propagate(build_model(method))
     shares = {c.source: c.share for c in before.contributions}
     ordered = sorted(shares.values())
-    assume(min(b - a for a, b in zip(ordered, ordered[1:])) > 1e-6)
+    assume(min(b - a for a, b in itertools.pairwise(ordered)) > 1e-6)
     report = advise(method, confirm_with_mc=0, combine=0)
     halved = [a for a in report.items if a.kind == "better input value"]
     assert [a.details["source"] for a in halved] == sorted(shares, key=lambda s: -shares[s])
@@ -275,7 +279,7 @@ def test_more_sample_readings_follow_the_inverse_prediction_formula(demo):
     conc = model.concentrations(model.nominal_inputs())
     ids = list(demo.calibration.standards) + list(demo.calibration.blanks)
     fit = fit_line([conc[i] * 1e3 for i in ids for _ in demo.readings[i]], [a for i in ids for a in demo.readings[i]])
-    for sample, result in zip(demo.samples, propagate(model)):
+    for sample, result in zip(demo.samples, propagate(model), strict=True):
         assert len(variant.readings[sample.id]) == 2 * len(demo.readings[sample.id])
         u_line = math.sqrt(sum(c.contribution**2 for c in result.contributions if c.step == "calibration fit"))
         pred = inverse_prediction(fit, variant.readings[sample.id])
@@ -296,7 +300,7 @@ def test_more_calibration_readings_keep_the_line_and_its_scatter(demo):
     assert new.n == 2 * old.n and new.dof == 2 * old.n - 2
     assert new.residual_sd == pytest.approx(old.residual_sd, rel=1e-9)
     assert (new.slope, new.intercept) == pytest.approx((old.slope, old.intercept), rel=1e-9)
-    for sample, result in zip(demo.samples, propagate(model)):
+    for sample, result in zip(demo.samples, propagate(model), strict=True):
         u_line = math.sqrt(sum(c.contribution**2 for c in result.contributions if c.step == "calibration fit"))
         pred = inverse_prediction(new, demo.readings[sample.id])  # ISO 8466-1, CG4 Example A5
         assert u_line == pytest.approx(pred.standard_uncertainty * 1e-3 * (50 / 20) * 30.973762, rel=1e-6)

@@ -183,7 +183,7 @@ def falling_response(folder):
     order = ["blank", "S1", "S2", "S4", "S6", "S8", "S10"]
     lines = (folder / READINGS).read_text(encoding="utf-8").splitlines()
     by_id = {i: [ln.split(",")[1] for ln in lines if ln.startswith(i + ",")] for i in order}
-    swap = dict(zip(order, reversed(order)))
+    swap = dict(zip(order, reversed(order), strict=True))
     seen: dict[str, int] = {}
     out = []
     for ln in lines:

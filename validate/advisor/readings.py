@@ -5,20 +5,21 @@ from __future__ import annotations
 
 import math
 from collections import Counter
+from collections.abc import Callable
 from dataclasses import replace
+from typing import cast
 
 from validate.advisor.candidates import READING_FACTOR, Candidate
-from validate.inputs.schema import Method
+from validate.inputs.schema import AssayMethod, Calibration, EquilibriumMethod, Method
 from validate.model.assay import build_model
 from validate.model.line import fit_line
 
 
-def _calibration_ids(method: Method) -> list[str]:
-    cal = method.calibration
+def _calibration_ids(cal: Calibration) -> list[str]:
     return list(cal.standards) + (list(cal.blanks) if cal.blanks_in_fit else [])
 
 
-def with_more_sample_readings(method: Method, factor: int = READING_FACTOR) -> Method:
+def with_more_sample_readings(method: AssayMethod, factor: int = READING_FACTOR) -> AssayMethod:
     """Each sample read `factor` times as often: its readings replaced by factor x m copies
     of its mean. The mean is kept; the per-reading scatter is assumed to stay the same
     (observed scatter: s/sqrt(m) becomes s/sqrt(factor m); bottom-up: factor m noise terms)."""
@@ -29,16 +30,17 @@ def with_more_sample_readings(method: Method, factor: int = READING_FACTOR) -> M
     return replace(method, readings=readings)
 
 
-def with_more_calibration_readings(method: Method, factor: int = READING_FACTOR) -> Method:
+def with_more_calibration_readings(method: AssayMethod, factor: int = READING_FACTOR) -> AssayMethod:
     """Each calibration solution read `factor` times as often, the scatter kept the same.
 
     The N readings are repeated `factor` times with their residuals about the line
     scaled by c = sqrt((factor N - 2) / (factor (N - 2))): the line is unchanged
     (residuals are orthogonal to 1 and x), its residual standard deviation stays
     s exactly, and its degrees of freedom grow from N - 2 to factor N - 2."""
+    assert method.calibration is not None  # offered only for methods with a calibration line
     model = build_model(method)
     conc = model.concentrations(model.nominal_inputs())
-    ids = _calibration_ids(method)
+    ids = _calibration_ids(method.calibration)
     xs = [conc[i] for i in ids for _ in method.readings[i]]
     ys = [a for i in ids for a in method.readings[i]]
     fit = fit_line(xs, ys)
@@ -55,7 +57,7 @@ def _typical_count(method: Method, ids) -> int:
     return Counter(len(method.readings[i]) for i in ids).most_common(1)[0][0]
 
 
-def with_more_point_readings(method: Method, factor: int = READING_FACTOR) -> Method:
+def with_more_point_readings(method: EquilibriumMethod, factor: int = READING_FACTOR) -> EquilibriumMethod:
     """Equilibrium study: every mixture and series point read `factor` times as often (factor x m
     copies of its mean); the scatter of one reading is assumed to stay the same."""
     readings = dict(method.readings)
@@ -66,29 +68,50 @@ def with_more_point_readings(method: Method, factor: int = READING_FACTOR) -> Me
 
 
 def reading_candidates(method: Method) -> list[Candidate]:
-    if method.equilibrium is not None:
-        points = method.equilibrium.point_ids()
-        m = _typical_count(method, points)
-        f = READING_FACTOR
-        return [Candidate(
-            "more point readings", f"read every mixture and series point {'twice' if f == 2 else f'{f} times'} as often",
-            f"{f - 1} more reading(s) for every reading now taken, on each of the {len(points)} points",
-            "the scatter of one reading stays the same; the mean reading is kept",
-            frozenset({"point readings"}), with_more_point_readings, {"reading_factor": f, "typical_readings": m})]
-    if method.calibration is None:
-        return []
-    out = []
+    match method:
+        case EquilibriumMethod():
+            return [_more_point_readings(method)]
+        case AssayMethod(calibration=None):
+            return []
+        case AssayMethod(calibration=Calibration() as cal):
+            return _more_sample_readings(method) + [_more_calibration_readings(method, cal)]
+    return []
+
+
+# Each change below is offered only for the kind of method it takes, and applied to that method.
+_POINT_READINGS = cast(Callable[[Method], Method], with_more_point_readings)
+_SAMPLE_READINGS = cast(Callable[[Method], Method], with_more_sample_readings)
+_CALIBRATION_READINGS = cast(Callable[[Method], Method], with_more_calibration_readings)
+
+
+def _more_point_readings(method: EquilibriumMethod) -> Candidate:
+    points = method.equilibrium.point_ids()
+    m = _typical_count(method, points)
     f = READING_FACTOR
+    return Candidate(
+        "more point readings", f"read every mixture and series point {'twice' if f == 2 else f'{f} times'} as often",
+        f"{f - 1} more reading(s) for every reading now taken, on each of the {len(points)} points",
+        "the scatter of one reading stays the same; the mean reading is kept",
+        frozenset({"point readings"}), _POINT_READINGS, {"reading_factor": f, "typical_readings": m})
+
+
+def _more_sample_readings(method: AssayMethod) -> list[Candidate]:
     samples = [s.id for s in method.samples]
-    if samples and "c_measured" in method.result.formula.names:
-        m = _typical_count(method, samples)
-        out.append(Candidate(
-            "more sample readings", f"read every sample {f * m} times instead of {m}",
-            f"{(f - 1) * m} more reading(s) of every sample",
-            "the scatter of one reading stays the same; the mean reading is kept",
-            frozenset({"sample readings"}), with_more_sample_readings, {"readings_per_sample": f * m}))
-    ids = _calibration_ids(method)
+    if not samples or "c_measured" not in method.result.formula.names:
+        return []
+    m = _typical_count(method, samples)
+    f = READING_FACTOR
+    return [Candidate(
+        "more sample readings", f"read every sample {f * m} times instead of {m}",
+        f"{(f - 1) * m} more reading(s) of every sample",
+        "the scatter of one reading stays the same; the mean reading is kept",
+        frozenset({"sample readings"}), _SAMPLE_READINGS, {"readings_per_sample": f * m})]
+
+
+def _more_calibration_readings(method: AssayMethod, cal: Calibration) -> Candidate:
+    ids = _calibration_ids(cal)
     m = _typical_count(method, ids)
+    f = READING_FACTOR
     if method.settings.scatter == "observed":
         assumed = ("the residual scatter of the line stays the same and the line itself is unchanged; its "
                    "degrees of freedom grow (lower k). The line's scatter is taken as reading scatter: if it "
@@ -96,12 +119,11 @@ def reading_candidates(method: Method) -> list[Candidate]:
     else:
         assumed = ("each reading carries the photometer's noise; each standard is still prepared once, "
                    "so its preparation terms stay as they are")
-    out.append(Candidate(
+    return Candidate(
         "more calibration readings",
         f"read every calibration solution {f * m} times instead of {m} "
         f"({f * sum(len(method.readings[i]) for i in ids)} readings on the line)",
         f"{(f - 1) * m} more reading(s) of each of the {len(ids)} calibration solutions",
         assumed,
-        frozenset({"calibration readings"}), with_more_calibration_readings,
-        {"readings_per_solution": f * m}))
-    return out
+        frozenset({"calibration readings"}), _CALIBRATION_READINGS,
+        {"readings_per_solution": f * m})

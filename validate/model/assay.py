@@ -17,7 +17,9 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
-from validate.inputs.schema import Method
+from validate.inputs.items import Cuvette, Photometer
+from validate.inputs.schema import AssayMethod, Method
+from validate.inputs.solutions import Blank, Certified, Diluted, Weighed, parent_of
 from validate.metrology.equipment import SourceSet, balance_terms, exact_or, value_source, volume_term
 from validate.metrology.sources import Source
 from validate.model import backend
@@ -47,7 +49,7 @@ class SolutionInputs:
 
 @dataclass
 class Model(SolutionInputs):
-    method: Method
+    method: AssayMethod
     sources: dict[str, Source]
     result_labels: list[str]
     assumptions: list[str] = field(default_factory=list)
@@ -99,7 +101,7 @@ class Model(SolutionInputs):
         return results
 
 
-def build_model(method: Method) -> Model:
+def build_model(method: AssayMethod) -> Model:
     ss = SourceSet()
     s = method.settings
     samples = method.samples if "c_measured" in method.result.formula.names else []
@@ -140,7 +142,7 @@ def build_model(method: Method) -> Model:
     return model
 
 
-def check_calibration_data(method: Method, ids: list[str], conc: dict[str, float]) -> None:
+def check_calibration_data(method: AssayMethod, ids: list[str], conc: dict[str, float]) -> None:
     """At least MIN_LEVELS distinct concentrations (InputError, exit 2), and a line that
     rises with concentration (a data problem: ModelError, exit 3)."""
     from pathlib import Path
@@ -178,8 +180,9 @@ def solution_order(solutions: dict) -> list:
     def visit(sol):
         if sol.id in done:
             return
-        if sol.made_by == "dilution":
-            visit(solutions[sol.parent])
+        parent = parent_of(sol)
+        if parent is not None:
+            visit(solutions[parent])
         done.add(sol.id)
         order.append(sol)
 
@@ -191,17 +194,22 @@ def solution_order(solutions: dict) -> list:
 def solution_term(ss: SourceSet, method: Method, sol, is_standard_observed: bool):
     """A closure (x, concentrations so far) -> this solution's concentration (SI)."""
     step = f"prepare {sol.id}"
-    if sol.made_by == "blank":
-        return lambda x, conc: 0.0
-    if sol.made_by == "certificate":
-        src = value_source(ss, f"{sol.id}: certified concentration", sol.concentration, step)
-        value = sol.concentration.value
-        return lambda x, conc: exact_or(x, src, value)
+    match sol:
+        case Blank():
+            return lambda x, conc: 0.0
+        case Certified(concentration=concentration):
+            src = value_source(ss, f"{sol.id}: certified concentration", concentration, step)
+            return lambda x, conc: exact_or(x, src, concentration.value)
+        case Diluted(parent=parent):
+            flask = volume_term(ss, method, sol.flask, step, sol.id, not is_standard_observed)
+            aliquot = volume_term(ss, method, sol.aliquot, step, sol.id, not is_standard_observed)
+            return lambda x, conc: conc[parent] * aliquot(x) / flask(x)
+        case Weighed():
+            return _weighed_term(ss, method, sol, step, is_standard_observed)
+
+
+def _weighed_term(ss: SourceSet, method: Method, sol: Weighed, step: str, is_standard_observed: bool):
     flask = volume_term(ss, method, sol.flask, step, sol.id, not is_standard_observed)
-    if sol.made_by == "dilution":
-        aliquot = volume_term(ss, method, sol.aliquot, step, sol.id, not is_standard_observed)
-        parent = sol.parent
-        return lambda x, conc: conc[parent] * aliquot(x) / flask(x)
     mass = value_source(ss, f"{sol.id}: mass", sol.mass, step)
     balance = balance_terms(ss, method, sol.balance, sol.id, step) if sol.balance else []
     purity = value_source(ss, f"{sol.id}: purity", sol.purity, step) if sol.purity else None
@@ -230,8 +238,8 @@ def mean_reading_term(ss: SourceSet, method: Method, ident: str, scatter, cuvett
     w the reading's weight on the line's scale (1 for an unweighted line)."""
     observed = scatter is not None
     readings = method.readings[ident]
-    photometer = method.items.get(photometer_id) if photometer_id else None
-    cell = method.items.get(cuvette) if cuvette else None
+    photometer = method.item_of(photometer_id, Photometer) if photometer_id else None
+    cell = method.item_of(cuvette, Cuvette) if cuvette else None
     offset = path = None
     noise = []
     if photometer is not None and photometer.offset > 0:

@@ -18,7 +18,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from validate.inputs.schema import Method
+from validate.inputs.schema import EquilibriumMethod
 from validate.metrology.equipment import SourceSet, volume_term
 from validate.metrology.sources import Source
 from validate.model import backend as mathops
@@ -41,7 +41,7 @@ def positive_or_nan(x):
 
 @dataclass
 class EquilibriumModel(SolutionInputs):
-    method: Method
+    method: EquilibriumMethod
     sources: dict[str, Source]
     points: list[str]  # ids of mixtures and series readings, in order
     weights: list[float] | None = None  # GLS weights of the combined K, set after a first pass
@@ -90,7 +90,7 @@ class EquilibriumModel(SolutionInputs):
         return out
 
 
-def build_equilibrium_model(method: Method) -> EquilibriumModel:
+def build_equilibrium_model(method: EquilibriumMethod) -> EquilibriumModel:
     study = method.equilibrium
     ss = SourceSet()
     observed = method.settings.scatter == "observed"

@@ -12,6 +12,7 @@ from __future__ import annotations
 import dataclasses
 import math
 
+from validate.inputs.items import Cuvette, Photometer
 from validate.inputs.schema import Method
 from validate.model.assay import Model, build_model
 from validate.model.line import inverse_prediction
@@ -53,7 +54,7 @@ def predicted_reading_sd(method: Method, slope_abs_per_unit: float) -> float:
         random_part = sum((d * var.std_dev) ** 2 for var, d in getattr(c, "derivatives", {}).items()
                           if model.sources[var.tag].step == f"prepare {sid}")
         variances.append((slope_abs_per_unit * math.sqrt(random_part) / factor) ** 2)
-    photometer = method.items.get(method.calibration.photometer) if method.calibration.photometer else None
+    photometer = method.item_of(method.calibration.photometer, Photometer) if method.calibration.photometer else None
     noise = photometer.noise if photometer else 0.0
     return math.sqrt(noise**2 + sum(variances) / len(variances))
 
@@ -65,7 +66,7 @@ def validation_block(method: Method, model: Model, results: list[LinearResult]) 
     v = method.validation
     xs, ys, ws = calibration_data(method, model)
     blanks = [a for b in cal.blanks for a in method.readings[b]] or None
-    cell = method.items.get(cal.cuvette) if cal.cuvette else None
+    cell = method.item_of(cal.cuvette, Cuvette) if cal.cuvette else None
     replicates = [len(method.readings[s.id]) for s in method.samples] or [1]
     summary = validate_calibration(
         xs, ys, weights=ws, blanks=blanks, alpha=v.alpha, beta=v.beta, declared_limit=v.declared_limit,
@@ -163,7 +164,7 @@ def equilibrium_validation_block(model) -> dict:
         for a in method.readings[ident]:
             xs.append(limiting / factor)
             ys.append(a)
-    cell = method.items.get(study.cuvette) if study.cuvette else None
+    cell = method.item_of(study.cuvette, Cuvette) if study.cuvette else None
     v = method.validation
     summary = validate_calibration(
         xs, ys, alpha=v.alpha, beta=v.beta, path_length_cm=cell.path * 100 if cell else None,
