@@ -15,10 +15,11 @@ Kinds offered:
   the same classes, giving the same dilution factor with a lower relative
   tolerance (checked: the new factor lies within the original pair's
   worst-case tolerance on the factor);
-- "more sample readings", "more calibration readings": twice the readings;
-- "temperature range": the laboratory's temperature range halved;
-- "better input value": a stated input (certificate, purity, a constant) with
-  half its standard uncertainty.
+- "more sample readings", "more calibration readings": twice the readings
+  (validate.advisor.readings);
+- "temperature range": the laboratory's temperature range halved, and
+  "better input value": a stated input (certificate, purity, a constant) with
+  half its standard uncertainty (both in validate.advisor.stated_inputs).
 
 Not offered: reading standards and samples in the same cell. The method file
 names one cell under [calibration] for every reading, so standards and samples
@@ -33,14 +34,25 @@ from __future__ import annotations
 import math
 from collections.abc import Callable
 from dataclasses import dataclass, field, replace
+from typing import Any
 
-from validate.inputs.items import Balance, Burette, Cuvette, Item, OneMarkPipette, Photometer, PistonPipette, Volumetric
-from validate.inputs.items import VolumetricFlask
+from validate.inputs.items import (
+    Balance,
+    Burette,
+    Cuvette,
+    Item,
+    ItemCommon,
+    OneMarkPipette,
+    Photometer,
+    PistonPipette,
+    Volumetric,
+    VolumetricFlask,
+)
 from validate.inputs.registers import RegisterEntry
 from validate.inputs.schema import AssayMethod, EquilibriumMethod, Method, NamedQuantity
-from validate.inputs.solutions import Blank, Certified, Diluted, Solution, Weighed, deliveries_of
-from validate.inputs.values import Delivery, UncertainValue
-from validate.metrology.equipment import TEMPERATURE, tolerance_scale
+from validate.inputs.solutions import Diluted, Solution, deliveries_of
+from validate.inputs.values import Delivery
+from validate.metrology.equipment import tolerance_scale
 from validate.propagation.budget import grouped
 from validate.propagation.linear import LinearResult
 
@@ -111,7 +123,7 @@ def _nominal(item: Item) -> float | None:
             return None
 
 
-def _of_entry_kind(item: Item, entry: RegisterEntry) -> bool:
+def _of_entry_kind(item: ItemCommon, entry: RegisterEntry) -> bool:
     """Whether the register entry is for items of this kind (registers name kinds by their word)."""
     return entry.kind == item.kind
 
@@ -130,8 +142,8 @@ def _repeatability_for(item: Volumetric, tolerance: float, entry: RegisterEntry)
 def item_in_class(item: Item, entry: RegisterEntry) -> Item:
     """The item as it would be in the register entry's class."""
     v = entry.values
-    common = {"item_class": entry.item_class, "provenance": f"{entry.source}; suggested by the advisor",
-              "defaults_used": ()}
+    common: dict[str, Any] = {"item_class": entry.item_class, "defaults_used": (),
+                              "provenance": f"{entry.source}; suggested by the advisor"}
     match item:
         case Burette():
             return replace(item, **common, tolerance=v["tolerance"], reading=v.get("reading", item.reading),
@@ -186,7 +198,7 @@ def class_candidates(method: Method, shares: Shares, entries: list[RegisterEntry
     return out
 
 
-def _quantities(method: Method) -> dict[str, NamedQuantity]:
+def quantities_of(method: Method) -> dict[str, NamedQuantity]:
     match method:
         case AssayMethod(quantities=quantities):
             return quantities
@@ -197,7 +209,7 @@ def _quantities(method: Method) -> dict[str, NamedQuantity]:
 def _uses(method: Method, item_id: str) -> list[Delivery]:
     """The solutions' and the assay quantities' deliveries by one item."""
     deliveries = [d for s in method.solutions.values() for d in deliveries_of(s)]
-    deliveries += [q.delivery for q in _quantities(method).values() if q.delivery is not None]
+    deliveries += [q.delivery for q in quantities_of(method).values() if q.delivery is not None]
     return [d for d in deliveries if d.item == item_id]
 
 
@@ -293,8 +305,7 @@ def _volume_pair(method: Method, sol: Diluted, shares: Shares, entries: list[Reg
     def apply(m: Method) -> Method:
         new_p = _find_or_make(m, p, pip, OneMarkPipette)
         new_q = _find_or_make(m, q, flask, VolumetricFlask)
-        s = replace(m.solutions[sol.id], aliquot=Delivery(new_p.id, new_p.nominal),
-                    flask=Delivery(new_q.id, new_q.nominal))
+        s = _with_volumes(m.solutions[sol.id], Delivery(new_p.id, new_p.nominal), Delivery(new_q.id, new_q.nominal))
         return replace(m, items={**m.items, new_p.id: new_p, new_q.id: new_q}, solutions={**m.solutions, sol.id: s})
 
     return Candidate(
@@ -309,6 +320,13 @@ def _volume_pair(method: Method, sol: Diluted, shares: Shares, entries: list[Reg
          "factor_tolerance": factor_tol, "relative_tolerance_before": rel_now,
          "relative_tolerance_after": rel, "aliquot_mL": round(p.nominal / ML, 9),
          "flask_mL": round(q.nominal / ML, 9)})
+
+
+def _with_volumes(sol: Solution, aliquot: Delivery, flask: Delivery) -> Solution:
+    match sol:
+        case Diluted():
+            return replace(sol, aliquot=aliquot, flask=flask)
+    raise TypeError(f"`{sol.id}` is not a dilution")
 
 
 def _best_pair(entries: list[RegisterEntry], pip: OneMarkPipette, flask: VolumetricFlask, va: float, vf: float,
@@ -329,76 +347,3 @@ def _best_pair(entries: list[RegisterEntry], pip: OneMarkPipette, flask: Volumet
             if rel < rel_now and (best is None or (rel, q_nominal) < best[0]):
                 best = ((rel, q_nominal), p, q)
     return None if best is None else (best[0][0], best[1], best[2])
-
-
-# ---- settings and stated inputs ----
-
-def temperature_candidates(method: Method, shares: Shares) -> list[Candidate]:
-    share = max((v for k, v in shares.source.items() if k.startswith(TEMPERATURE)), default=0.0)
-    t = method.settings.temperature_range
-    if share < MIN_SHARE or t <= 0:
-        return []
-    return [Candidate(
-        "temperature range", f"keep the laboratory within +/-{t / 2:g} K of 20 degC instead of +/-{t:g} K",
-        "temperature control (air conditioning, or solutions brought to temperature in a water bath "
-        "before making up to the mark)",
-        "the volumes' expansion coefficient and every other source unchanged",
-        frozenset({"temperature"}),
-        lambda m: replace(m, settings=replace(m.settings, temperature_range=m.settings.temperature_range / 2)),
-        {"temperature_range_before_K": t, "temperature_range_after_K": t / 2})]
-
-
-def _stated_inputs(sol: Solution) -> tuple[tuple[str, str], ...]:
-    """(field, plain name) of the stated values a solution is made from."""
-    match sol:
-        case Weighed():
-            return (("mass", "mass"), ("purity", "purity"), ("molar_mass", "molar mass"))
-        case Certified():
-            return (("concentration", "certified concentration"),)
-        case Diluted() | Blank():
-            return ()
-
-
-def _halved(value: UncertainValue) -> UncertainValue:
-    return replace(value, u=value.u / 2, trapezoid_d=value.trapezoid_d / 2)
-
-
-def _halve_solution_input(sol_id: str, attr: str) -> Callable[[Method], Method]:
-    def apply(m: Method) -> Method:
-        s = m.solutions[sol_id]
-        return replace(m, solutions={**m.solutions, sol_id: replace(s, **{attr: _halved(getattr(s, attr))})})
-    return apply
-
-
-def _halve_quantity(name: str) -> Callable[[Method], Method]:
-    def apply(m: Method) -> Method:
-        quantities = _quantities(m)
-        q = quantities[name]
-        assert q.value is not None  # only stated values are halved
-        return replace(m, quantities={**quantities, name: replace(q, value=_halved(q.value))})
-    return apply
-
-
-def input_value_candidates(method: Method, shares: Shares) -> list[Candidate]:
-    """Stated inputs with half their standard uncertainty. A source name the budget does not
-    know (a naming change elsewhere) is kept rather than silently left out."""
-    found = []
-    for sol in method.solutions.values():
-        for attr, label in _stated_inputs(sol):
-            value = getattr(sol, attr)
-            if value is not None and value.u > 0:
-                found.append((f"{sol.id}: {label}", f"the {label} of `{sol.id}`", _halve_solution_input(sol.id, attr)))
-    for q in _quantities(method).values():
-        if q.value is not None and q.value.u > 0:
-            found.append((q.name, f"`{q.name}`", _halve_quantity(q.name)))
-    out = []
-    for source, what, apply in found:
-        if shares.source.get(source, 1.0) < MIN_SHARE:
-            continue
-        out.append(Candidate(
-            "better input value", f"obtain {what} with half its present standard uncertainty",
-            "a value with a smaller uncertainty (a better certificate or reference material, "
-            "or more determinations of it)",
-            "its distribution and degrees of freedom are kept (conservative when it rests on replicates)",
-            frozenset({f"source:{source}"}), apply, {"source": source}))
-    return out

@@ -37,7 +37,13 @@ from dataclasses import dataclass
 from validate.inputs.equipment_section import item_reference
 from validate.inputs.errors import InputError
 from validate.inputs.items import FLASKS, PIPETTES, Cuvette, Photometer
-from validate.inputs.schema import AMOUNT_CONCENTRATION, AdditionSeries, EquilibriumMix, EquilibriumStudy, concentration_dims
+from validate.inputs.schema import (
+    AMOUNT_CONCENTRATION,
+    AdditionSeries,
+    EquilibriumMix,
+    EquilibriumStudy,
+    concentration_dims,
+)
 from validate.inputs.solutions import Solution, parent_of
 from validate.inputs.tables import Table, parse_delivery, parse_si, unit_of
 from validate.inputs.units import Unit, parse_unit

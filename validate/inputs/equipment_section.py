@@ -6,7 +6,19 @@ laboratory's own calibration data), or both (the file's values replace the regis
 
 from __future__ import annotations
 
-from validate.inputs.items import ITEM_KINDS, Balance, Burette, Cuvette, Item, Photometer
+from typing import NamedTuple
+
+from validate.inputs.items import (
+    Balance,
+    Burette,
+    Cuvette,
+    GraduatedPipette,
+    Item,
+    OneMarkPipette,
+    Photometer,
+    PistonPipette,
+    VolumetricFlask,
+)
 from validate.inputs.registers import RegisterEntry, classes_for, find_entry
 from validate.inputs.schema import EQUIPMENT_KINDS, VOLUMETRIC_KINDS, Settings
 from validate.inputs.tables import Table
@@ -19,7 +31,7 @@ DEFAULT_REPEATABILITY_RATIO = 0.2  # glassware: repeatability per use = 0.2 x to
 
 _ITEM_KEYS = ("kind", "class", "nominal", "tolerance", "repeatability", "distribution", "reading",
               "path", "offset", "noise", "linearity", "provenance")
-_GLASS_VALUES = {"tolerance": VOLUME, "repeatability": VOLUME}
+_GLASS_VALUES: dict[str, tuple[int, ...]] = {"tolerance": VOLUME, "repeatability": VOLUME}
 # the values a method file may give for each kind, with their dimension
 _VALUE_DIMS: dict[str, dict[str, tuple[int, ...]]] = {
     **{kind: _GLASS_VALUES for kind in VOLUMETRIC_KINDS},
@@ -47,8 +59,8 @@ def parse_item(item_id: str, t: Table, entries: list[RegisterEntry], settings: S
     values = dict(entry.values) if entry else {}
     for key in own_keys:
         values[key] = _own_value(t, key, _VALUE_DIMS[kind][key])
-    common = {"id": item_id, "item_class": item_class, "provenance": _provenance(t, entry, bool(own_keys))}
-    item = _item_of_kind(kind, t, values, nominal, settings, common)
+    head = _Head(item_id, item_class, _provenance(t, entry, bool(own_keys)))
+    item = _item_of_kind(kind, t, values, nominal, settings, head)
     defaults.extend(u for u in item.defaults_used if not u.endswith(" mL"))
     return item
 
@@ -100,43 +112,65 @@ def _provenance(t: Table, entry: RegisterEntry | None, own: bool) -> str:
     return f"{entry.source}; overridden in the method file" if own else entry.source
 
 
-def _item_of_kind(kind: str, t: Table, values: dict, nominal: float | None, settings: Settings,
-                  common: dict) -> Item:
+class _Head(NamedTuple):
+    """What every item has: its id, register class and where its values come from."""
+
+    id: str
+    item_class: str
+    provenance: str
+
+
+class _Glass(NamedTuple):
+    """What every volumetric item has besides its head."""
+
+    nominal: float
+    tolerance: float
+    repeatability: float
+    distribution: str
+    defaults_used: tuple[str, ...]
+
+
+# the volumetric kinds without fields of their own (a burette has its readings)
+_GLASS = {cls.kind: cls for cls in (OneMarkPipette, GraduatedPipette, PistonPipette, VolumetricFlask)}
+
+
+def _item_of_kind(kind: str, t: Table, values: dict[str, float], nominal: float | None, settings: Settings,
+                  head: _Head) -> Item:
     match kind:
         case "cuvette":
             if "path" not in values:
                 raise t.error("a cuvette needs its `path` length", "path", fix='e.g. path = "10 mm"')
-            return Cuvette(**common, path=values["path"], tolerance=values.get("tolerance", 0.0))
+            return Cuvette(**head._asdict(), path=values["path"], tolerance=values.get("tolerance", 0.0))
         case "photometer":
-            return Photometer(**common, offset=values.get("offset", 0.0), noise=values.get("noise", 0.0))
+            return Photometer(**head._asdict(), offset=values.get("offset", 0.0), noise=values.get("noise", 0.0))
         case "balance":
-            return Balance(**common, linearity=values.get("linearity", 0.0),
+            return Balance(**head._asdict(), linearity=values.get("linearity", 0.0),
                            repeatability=values.get("repeatability", 0.0))
     assert nominal is not None  # read for every volumetric kind
-    return _volumetric(ITEM_KINDS[kind], t, values, nominal, settings, common)
+    return _volumetric(kind, t, values, nominal, settings, head)
 
 
-def _volumetric(cls: type[Item], t: Table, values: dict, nominal: float, settings: Settings, common: dict) -> Item:
+def _volumetric(kind: str, t: Table, values: dict[str, float], nominal: float, settings: Settings,
+                head: _Head) -> Item:
     """Glassware and pipettes: a tolerance is needed; repeatability and burette readings have defaults."""
-    item_id = common["id"]
     if "tolerance" not in values:
         raise t.error("no tolerance for this item", "tolerance", fix="give `tolerance` or a `class`")
     used: list[str] = []
     if "repeatability" not in values:
         values["repeatability"] = DEFAULT_REPEATABILITY_RATIO * values["tolerance"]
-        used.append(f"{item_id} {values['repeatability'] * 1e6:.4g} mL")
-    extra = {}
-    if cls is Burette:
-        extra["reading"] = values.get("reading")
-        if extra["reading"] is None:
-            extra["reading"] = values.get("subdivision", values["tolerance"]) / 2.0
-            used.append(f"{item_id}: each burette reading within +/- half a subdivision "
-                        f"({extra['reading'] * 1e6:.3g} mL, rectangular; default of this tool)")
-    dist = t.text("distribution", settings.glassware_distribution)
-    if dist not in ("triangular", "rectangular"):
-        raise t.error(f"unknown choice {dist!r}", "distribution", fix='use "triangular" or "rectangular"')
-    return cls(**common, nominal=nominal, tolerance=values["tolerance"], repeatability=values["repeatability"],
-               distribution=dist, defaults_used=tuple(used), **extra)
+        used.append(f"{head.id} {values['repeatability'] * 1e6:.4g} mL")
+    reading = values.get("reading")
+    if kind == Burette.kind and reading is None:
+        reading = values.get("subdivision", values["tolerance"]) / 2.0
+        used.append(f"{head.id}: each burette reading within +/- half a subdivision "
+                    f"({reading * 1e6:.3g} mL, rectangular; default of this tool)")
+    dist = t.choice("distribution", settings.glassware_distribution, ("triangular", "rectangular"),
+                    'use "triangular" or "rectangular"')
+    glass = _Glass(nominal, values["tolerance"], values["repeatability"], dist, tuple(used))
+    if kind == Burette.kind:
+        assert reading is not None  # given, from the register, or the default above
+        return Burette(**head._asdict(), **glass._asdict(), reading=reading)
+    return _GLASS[kind](**head._asdict(), **glass._asdict())
 
 
 def item_reference(t: Table, key: str, items: dict[str, Item], cls: type[Item]) -> str | None:

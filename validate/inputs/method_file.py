@@ -86,7 +86,10 @@ def _assay_method(top: Table, path: Path, common: dict, extra: list[Path], defau
     quantities = {name: parse_quantity(name, Table(raw, path, f"[quantities.{name}]"), items)
                   for name, raw in top.named_tables("quantities").items()}
     check_ids(samples, solutions, quantities, path)
-    readings, series, notes, readings_path = {}, {}, [], None
+    readings: dict[str, tuple[float, ...]] = {}
+    series: dict[str, tuple[str, ...]] = {}
+    notes: list[str] = []
+    readings_path = None
     if calibration is not None:
         readings_path = path.parent / calibration.readings_file
         readings = load_readings(readings_path)

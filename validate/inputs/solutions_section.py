@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from validate.inputs.errors import InputError
 from validate.inputs.items import FLASKS, PIPETTES, Balance
-from validate.inputs.schema import MASS_CONCENTRATION, AMOUNT_CONCENTRATION, SOLUTION_ORIGINS
+from validate.inputs.schema import AMOUNT_CONCENTRATION, MASS_CONCENTRATION, SOLUTION_ORIGINS
 from validate.inputs.solutions import Blank, Certified, Diluted, Solution, Weighed, parent_of
 from validate.inputs.tables import Table, parse_delivery
 

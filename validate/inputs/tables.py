@@ -248,7 +248,7 @@ def _type_a(t: Table, dims, positive, provenance) -> UncertainValue:
 
 
 def unit_of(table: Table, key: str, dims=None) -> Unit:
-    raw = table.text(key, required=True)
+    raw = table.required_text(key)
     try:
         unit = parse_unit(raw)
     except UnitError as exc:
@@ -281,7 +281,7 @@ def _delivery_parts(raw, t: Table, key: str) -> tuple[str, float | None]:
     if isinstance(raw, dict):
         sub = Table(raw, t.file, f"{t.where}.{key}")
         sub.allow("item", "volume")
-        item_id = sub.text("item", required=True)
+        item_id = sub.required_text("item")
         return item_id, (sub.quantity("volume", (0, 3, 0, 0))[0] if sub.has("volume") else None)
     raise t.error("expected an equipment id, or {item = \"...\", volume = \"... mL\"}", key,
                   fix='e.g. aliquot = "pipette_5" or aliquot = { item = "burette_25", volume = "2.00 mL" }')
