@@ -14,7 +14,7 @@ MOLAR_MASS = (1, 0, -1, 0)
 
 
 def parse_solution(sol_id: str, t: Table, items: dict) -> Solution:
-    made_by = t.text("made_by", required=True)
+    made_by = t.required_text("made_by")
     if made_by not in SOLUTION_ORIGINS:
         raise t.error(f"unknown choice {made_by!r}", "made_by", fix=f"use one of: {', '.join(SOLUTION_ORIGINS)}")
     description = t.text("description", "") or ""
