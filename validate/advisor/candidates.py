@@ -36,6 +36,7 @@ from collections.abc import Callable
 from dataclasses import dataclass, field, replace
 from typing import Any
 
+from validate.inputs.equipment_section import DEFAULT_REPEATABILITY_RATIO  # the loader's default
 from validate.inputs.items import (
     Balance,
     Burette,
@@ -60,7 +61,6 @@ ML = 1e-6  # m^3 per mL
 MIN_SHARE = 0.005  # an item or input below 0.5 % of every result's variance is not worth a change
 MAX_FLASK_GROWTH = 10  # a new flask at most ten times the old one (reagent and waste; a choice of this tool)
 READING_FACTOR = 2  # "more readings" means twice as many
-DEFAULT_REPEATABILITY_RATIO = 0.2  # the loader's default: repeatability = 0.2 x tolerance (CG4 Example A1)
 
 
 @dataclass(frozen=True)
