@@ -91,7 +91,10 @@ def test_tightening_an_item_never_raises_u_demo(demo, which, shrink):
     # that shrinks lowers nu_eff (Welch-Satterthwaite, GUM G.4.1) and so raises k a little, but
     # with nu >= about 5 the fall of u_c always outweighs it: U must not rise for any result.
     item = demo.items[which]
-    fields = {k: getattr(item, k) * shrink for k in ("tolerance", "repeatability", "linearity")}
+    # every tolerance-like field the item's kind carries (a balance has no tolerance, a cuvette
+    # no repeatability)
+    fields = {k: getattr(item, k) * shrink for k in ("tolerance", "repeatability", "linearity") if hasattr(item, k)}
+    assert fields, f"{which} carries none of the fields shrunk here"
     tighter = dataclasses.replace(demo, items={**demo.items, which: dataclasses.replace(item, **fields)})
     for after, before in zip(_u(tighter), _u(demo), strict=True):
         assert after <= before * (1 + 1e-12)

@@ -6,7 +6,8 @@ their units kept) and writes it back with
 a small TOML writer; the readings table is mutated line by line. Reading the files, building
 the model and propagating (GUM) must then either succeed or raise `InputError` (bad input) or
 `ModelError` (data that allow no result): never any other exception, which would reach the
-user as a traceback.
+user as a traceback. The equilibrium demo's method file is mutated the same way and read into
+its model.
 """
 
 from __future__ import annotations
@@ -25,6 +26,7 @@ from hypothesis import strategies as st
 from validate.inputs.errors import InputError
 from validate.inputs.method_file import load_method
 from validate.model.assay import ModelError, build_model
+from validate.model.build import build
 from validate.propagation.linear import propagate
 
 DEMO = DEMOS / "phosphate_assay"
@@ -221,3 +223,28 @@ def test_mutated_readings_tables_give_clear_errors_only(folder, data):
     (folder / "method.toml").write_text((DEMO / "method.toml").read_text(encoding="utf-8"), encoding="utf-8")
     (folder / "readings.csv").write_text(text, encoding="utf-8")
     _pipeline(folder / "method.toml")
+
+
+# ---- the equilibrium study's file: the loader and the model ----
+
+STUDY = DEMOS / "nickel_complex"
+STUDY_BASE = tomllib.loads((STUDY / "method.toml").read_text(encoding="utf-8"))
+
+
+@pytest.fixture(scope="module")
+def study_folder(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("fuzz_study")
+    shutil.copytree(STUDY, folder, dirs_exist_ok=True)
+    return folder
+
+
+@settings(max_examples=80, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(data=st.data())
+def test_mutated_study_files_give_clear_errors_only(study_folder, data):
+    text = write_toml(mutate(STUDY_BASE, data))
+    note(text)
+    (study_folder / "method.toml").write_text(text, encoding="utf-8")
+    try:
+        build(load_method(study_folder / "method.toml"))
+    except (InputError, ModelError):
+        pass

@@ -33,16 +33,9 @@ import math
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from validate.advisor.candidates import (
-    Candidate,
-    Shares,
-    class_candidates,
-    input_value_candidates,
-    piston_candidates,
-    temperature_candidates,
-    volume_pair_candidates,
-)
+from validate.advisor.candidates import Candidate, Shares, class_candidates, piston_candidates, volume_pair_candidates
 from validate.advisor.readings import reading_candidates
+from validate.advisor.stated_inputs import input_value_candidates, temperature_candidates
 from validate.equilibrium.study import build_ready_model
 from validate.inputs.errors import InputError
 from validate.inputs.registers import RegisterEntry, load_registers
@@ -145,12 +138,12 @@ class AdviceReport:
 def figure(results: list[LinearResult], widths: list[float] | None = None) -> tuple[str, str, float]:
     """(target, unit, value) of the ranking figure; `widths` replaces the GUM U (Monte Carlo)."""
     widths = [r.expanded_uncertainty for r in results] if widths is None else widths
-    for r, w in zip(results, widths):
+    for r, w in zip(results, widths, strict=True):
         if r.name == COMBINED:  # an equilibrium study is judged by its combined K
             return r.name, r.unit, w
     if len(results) == 1:
         return results[0].name, results[0].unit, widths[0]
-    relative = [w / abs(r.value) for r, w in zip(results, widths) if r.value != 0]
+    relative = [w / abs(r.value) for r, w in zip(results, widths, strict=True) if r.value != 0]
     if not relative:  # every result is zero: compare absolute U (one unit for all results)
         return WORST, results[0].unit, max(widths)
     return WORST, RELATIVE, max(relative)
@@ -183,8 +176,11 @@ def _advice(ev: _Evaluated, before: list[LinearResult], fig_before: float) -> Ad
 
 
 def _combine(method: Method, ranked: list[_Evaluated], how_many: int) -> _Evaluated | None:
-    """The best changes that touch different things, applied one after another."""
-    chosen, touched = [], set()
+    """The best `how_many` (at least two) changes that touch different things, applied one after another."""
+    if how_many < 2:
+        return None
+    chosen: list[Candidate] = []
+    touched: set[str] = set()
     for ev in ranked:
         if len(chosen) == how_many:
             break
@@ -223,12 +219,20 @@ def _confirm(advice: Advice, ev: _Evaluated, mc_before: float, trials: int, seed
                      "monte_carlo_note": note})
 
 
+def _confirm_first(items: list[Advice], evaluated: list[_Evaluated], how_many: int, mc_before: float,
+                   trials: int, seed: int) -> list[Advice]:
+    """The first `how_many` advices with their Monte Carlo check, the others as they are."""
+    return [_confirm(advice, ev, mc_before, trials, seed) if i < how_many else advice
+            for i, (advice, ev) in enumerate(zip(items, evaluated, strict=True))]
+
+
 def window_advice(model: Model, results: list[LinearResult], fig_before: float, unit: str) -> list[Advice]:
     """Qualitative advice for samples read outside READING_WINDOW: the factor by which the net
     reading should change to reach A = 0.434 (not above the highest standard's mean reading),
     and the expected effect, from Twyman-Lothian and from this budget's constant-absorbance scatter."""
-    method, cal = model.method, model.method.calibration
-    if cal is None or method.result is None or "c_measured" not in method.result.formula.names:
+    method = model.method
+    cal = method.calibration
+    if cal is None or "c_measured" not in method.result.formula.names:
         return []
     design = model.design
     assert design is not None  # a model with a calibration owns its design
@@ -244,25 +248,26 @@ def window_advice(model: Model, results: list[LinearResult], fig_before: float, 
         factor = (goal - fit.intercept) / (mean - fit.intercept)
         if abs(factor - 1.0) < 0.05:
             continue  # the highest standard sits about here: no room to move
-        how = (f"raise the net reading about {factor:.1f}-fold (less dilution of the sample, a larger "
-               f"sample portion or a longer cell)" if factor > 1 else
-               f"dilute the sample about {1 / factor:.1f}-fold further")
-        tl = relative_error_factor(mean) / relative_error_factor(goal)
-        out.append(Advice(
-            f"read `{smp.id}` nearer A = {goal:.2f} (its mean reading is {mean:.3f}): {how}",
-            "absorbance window", result.name, unit, fig_before, None, None,
-            "a changed sample preparation or cell; check that the reading stays inside the calibrated range",
-            None,
-            f"not evaluated by the model. Expected effect: for constant transmittance noise the relative "
-            f"photometric error falls about {tl:.1f}-fold (Twyman and Lothian 1933, from memory); with this "
-            f"budget's constant absorbance scatter the reading's relative contribution falls about "
-            f"{factor:.1f}-fold" if factor > 1 else
-            f"not evaluated by the model. Expected effect: for constant transmittance noise the relative "
-            f"photometric error falls about {tl:.1f}-fold (Twyman and Lothian 1933, from memory), and stray "
-            f"light matters less at lower absorbance",
-            "", (), {"sample": smp.id, "mean_reading": mean, "goal_reading": goal, "net_reading_factor": factor,
-                     "twyman_lothian_ratio": tl}))
+        out.append(_window_advice(smp.id, result.name, mean, goal, factor, fig_before, unit))
     return out
+
+
+def _window_advice(sample: str, result: str, mean: float, goal: float, factor: float, fig_before: float,
+                   unit: str) -> Advice:
+    how = (f"raise the net reading about {factor:.1f}-fold (less dilution of the sample, a larger "
+           f"sample portion or a longer cell)" if factor > 1 else
+           f"dilute the sample about {1 / factor:.1f}-fold further")
+    tl = relative_error_factor(mean) / relative_error_factor(goal)
+    expected = (f"not evaluated by the model. Expected effect: for constant transmittance noise the relative "
+                f"photometric error falls about {tl:.1f}-fold (Twyman and Lothian 1933, from memory)")
+    expected += (f"; with this budget's constant absorbance scatter the reading's relative contribution falls "
+                 f"about {factor:.1f}-fold" if factor > 1 else ", and stray light matters less at lower absorbance")
+    return Advice(
+        f"read `{sample}` nearer A = {goal:.2f} (its mean reading is {mean:.3f}): {how}",
+        "absorbance window", result, unit, fig_before, None, None,
+        "a changed sample preparation or cell; check that the reading stays inside the calibrated range",
+        None, expected, "", (), {"sample": sample, "mean_reading": mean, "goal_reading": goal,
+                                 "net_reading_factor": factor, "twyman_lothian_ratio": tl})
 
 
 SOURCES = (
@@ -281,6 +286,35 @@ def advise(method: Method, results: list[LinearResult] | None = None, *, confirm
     baseline = build_ready_model(method)[0]
     results = propagate(baseline) if results is None else results
     target, unit, before = figure(results)
+    evaluated, skipped = _evaluate_all(method, results)
+    useful, without = _partition(evaluated, before)
+    items = [_advice(ev, results, before) for ev in useful]
+    combined_ev = _combine(method, useful, combine)
+    combined = _advice(combined_ev, results, before) if combined_ev else None
+    mc_before = None
+    if confirm_with_mc > 0 and (items or combined):
+        mc_before = _mc_figure(baseline, results, mc_trials, seed)
+        items = _confirm_first(items, useful, confirm_with_mc, mc_before, mc_trials, seed)
+        if combined and combined_ev:
+            combined = _confirm(combined, combined_ev, mc_before, mc_trials, seed)
+    match baseline:
+        case Model():  # the reading window concerns an assay's samples
+            items += window_advice(baseline, results, before, unit)
+    return AdviceReport(method.title, RANKING, target, unit, before, tuple(items), combined, mc_before,
+                        mc_trials if mc_before is not None else 0, seed, len(evaluated), without,
+                        tuple(skipped), SOURCES)
+
+
+def _partition(evaluated: list[_Evaluated], before: float) -> tuple[list[_Evaluated], tuple[str, ...]]:
+    """The changes that lower the figure by at least MIN_REDUCTION, and the others in words."""
+    useful = [ev for ev in evaluated if before > 0 and ev.value <= before * (1 - MIN_REDUCTION)]
+    without = tuple(f"{ev.candidate.change} (figure {before:.4g} -> {ev.value:.4g})"
+                    for ev in evaluated if ev not in useful)
+    return useful, without
+
+
+def _evaluate_all(method: Method, results: list[LinearResult]) -> tuple[list[_Evaluated], list[str]]:
+    """Every candidate evaluated, best first; those the model cannot evaluate, with the reason."""
     extra = [Path(method.path).parent / r for r in method.settings.registers]
     entries, _ = load_registers(extra)
     evaluated, skipped = [], []
@@ -290,20 +324,4 @@ def advise(method: Method, results: list[LinearResult] | None = None, *, confirm
         except (ModelError, InputError, ValueError, ZeroDivisionError) as exc:
             skipped.append(f"{cand.change}: {exc}")
     evaluated.sort(key=lambda ev: (ev.value, ev.candidate.change))
-    useful = [ev for ev in evaluated if before > 0 and ev.value <= before * (1 - MIN_REDUCTION)]
-    without = tuple(f"{ev.candidate.change} (figure {before:.4g} -> {ev.value:.4g})"
-                    for ev in evaluated if ev not in useful)
-    items = [_advice(ev, results, before) for ev in useful]
-    combined_ev = _combine(method, useful, combine) if combine >= 2 else None
-    combined = _advice(combined_ev, results, before) if combined_ev else None
-    mc_before = None
-    if confirm_with_mc > 0 and (items or combined):
-        mc_before = _mc_figure(baseline, results, mc_trials, seed)
-        for i in range(min(confirm_with_mc, len(items))):
-            items[i] = _confirm(items[i], useful[i], mc_before, mc_trials, seed)
-        if combined:
-            combined = _confirm(combined, combined_ev, mc_before, mc_trials, seed)
-    items += window_advice(baseline, results, before, unit)
-    return AdviceReport(method.title, RANKING, target, unit, before, tuple(items), combined, mc_before,
-                        mc_trials if mc_before is not None else 0, seed, len(evaluated), without,
-                        tuple(skipped), SOURCES)
+    return evaluated, skipped

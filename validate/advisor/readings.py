@@ -5,17 +5,19 @@ from __future__ import annotations
 
 import math
 from collections import Counter
+from collections.abc import Callable
 from dataclasses import replace
+from typing import cast
 
 from validate.advisor.candidates import READING_FACTOR, Candidate
-from validate.inputs.schema import Method
+from validate.inputs.schema import AssayMethod, Calibration, EquilibriumMethod, Method
 from validate.model.assay import build_model
 from validate.model.design import CalibrationDesign
 from validate.model.equilibrium import build_equilibrium_model
 from validate.model.line import fit_line
 
 
-def _design(method: Method) -> CalibrationDesign:
+def _design(method: AssayMethod) -> CalibrationDesign:
     """The calibration design of a method (its model's; the method has a calibration)."""
     design = build_model(method).design
     if design is None:
@@ -23,7 +25,7 @@ def _design(method: Method) -> CalibrationDesign:
     return design
 
 
-def with_more_sample_readings(method: Method, factor: int = READING_FACTOR) -> Method:
+def with_more_sample_readings(method: AssayMethod, factor: int = READING_FACTOR) -> AssayMethod:
     """Each sample read `factor` times as often: its readings replaced by factor x m copies
     of its mean. The mean is kept; the per-reading scatter is assumed to stay the same
     (observed scatter: s/sqrt(m) becomes s/sqrt(factor m); bottom-up: factor m noise terms)."""
@@ -34,7 +36,7 @@ def with_more_sample_readings(method: Method, factor: int = READING_FACTOR) -> M
     return replace(method, readings=readings)
 
 
-def with_more_calibration_readings(method: Method, factor: int = READING_FACTOR) -> Method:
+def with_more_calibration_readings(method: AssayMethod, factor: int = READING_FACTOR) -> AssayMethod:
     """Each calibration solution read `factor` times as often, the scatter kept the same.
 
     The N readings are repeated `factor` times with their residuals about the line
@@ -57,7 +59,7 @@ def _typical_count(counts) -> int:
     return Counter(counts).most_common(1)[0][0]
 
 
-def with_more_point_readings(method: Method, factor: int = READING_FACTOR) -> Method:
+def with_more_point_readings(method: EquilibriumMethod, factor: int = READING_FACTOR) -> EquilibriumMethod:
     """Equilibrium study: every mixture and series point read `factor` times as often (factor x m
     copies of its mean); the scatter of one reading is assumed to stay the same."""
     readings = dict(method.readings)
@@ -68,29 +70,50 @@ def with_more_point_readings(method: Method, factor: int = READING_FACTOR) -> Me
 
 
 def reading_candidates(method: Method) -> list[Candidate]:
-    if method.equilibrium is not None:
-        points = build_equilibrium_model(method).design.points
-        m = _typical_count(p.count for p in points)
-        f = READING_FACTOR
-        return [Candidate(
-            "more point readings", f"read every mixture and series point {'twice' if f == 2 else f'{f} times'} as often",
-            f"{f - 1} more reading(s) for every reading now taken, on each of the {len(points)} points",
-            "the scatter of one reading stays the same; the mean reading is kept",
-            frozenset({"point readings"}), with_more_point_readings, {"reading_factor": f, "typical_readings": m})]
-    if method.calibration is None:
-        return []
-    out = []
+    match method:
+        case EquilibriumMethod():
+            return [_more_point_readings(method)]
+        case AssayMethod(calibration=None):
+            return []
+        case AssayMethod(calibration=Calibration()):
+            return _more_sample_readings(method) + [_more_calibration_readings(method)]
+    return []
+
+
+# Each change below is offered only for the kind of method it takes, and applied to that method.
+_POINT_READINGS = cast(Callable[[Method], Method], with_more_point_readings)
+_SAMPLE_READINGS = cast(Callable[[Method], Method], with_more_sample_readings)
+_CALIBRATION_READINGS = cast(Callable[[Method], Method], with_more_calibration_readings)
+
+
+def _more_point_readings(method: EquilibriumMethod) -> Candidate:
+    points = build_equilibrium_model(method).design.points
+    m = _typical_count(p.count for p in points)
     f = READING_FACTOR
+    return Candidate(
+        "more point readings", f"read every mixture and series point {'twice' if f == 2 else f'{f} times'} as often",
+        f"{f - 1} more reading(s) for every reading now taken, on each of the {len(points)} points",
+        "the scatter of one reading stays the same; the mean reading is kept",
+        frozenset({"point readings"}), _POINT_READINGS, {"reading_factor": f, "typical_readings": m})
+
+
+def _more_sample_readings(method: AssayMethod) -> list[Candidate]:
     design = _design(method)
-    if design.samples and "c_measured" in method.result.formula.names:
-        m = _typical_count(s.count for s in design.samples)
-        out.append(Candidate(
-            "more sample readings", f"read every sample {f * m} times instead of {m}",
-            f"{(f - 1) * m} more reading(s) of every sample",
-            "the scatter of one reading stays the same; the mean reading is kept",
-            frozenset({"sample readings"}), with_more_sample_readings, {"readings_per_sample": f * m}))
-    solutions = [prep for _, prep in design.fitted()]
+    if not design.samples or "c_measured" not in method.result.formula.names:
+        return []
+    m = _typical_count(s.count for s in design.samples)
+    f = READING_FACTOR
+    return [Candidate(
+        "more sample readings", f"read every sample {f * m} times instead of {m}",
+        f"{(f - 1) * m} more reading(s) of every sample",
+        "the scatter of one reading stays the same; the mean reading is kept",
+        frozenset({"sample readings"}), _SAMPLE_READINGS, {"readings_per_sample": f * m})]
+
+
+def _more_calibration_readings(method: AssayMethod) -> Candidate:
+    solutions = [prep for _, prep in _design(method).fitted()]
     m = _typical_count(prep.count for prep in solutions)
+    f = READING_FACTOR
     if method.settings.scatter == "observed":
         assumed = ("the residual scatter of the line stays the same and the line itself is unchanged; its "
                    "degrees of freedom grow (lower k). The line's scatter is taken as reading scatter: if it "
@@ -98,12 +121,11 @@ def reading_candidates(method: Method) -> list[Candidate]:
     else:
         assumed = ("each reading carries the photometer's noise; each standard is still prepared once, "
                    "so its preparation terms stay as they are")
-    out.append(Candidate(
+    return Candidate(
         "more calibration readings",
         f"read every calibration solution {f * m} times instead of {m} "
         f"({f * sum(prep.count for prep in solutions)} readings on the line)",
         f"{(f - 1) * m} more reading(s) of each of the {len(solutions)} calibration solutions",
         assumed,
-        frozenset({"calibration readings"}), with_more_calibration_readings,
-        {"readings_per_solution": f * m}))
-    return out
+        frozenset({"calibration readings"}), _CALIBRATION_READINGS,
+        {"readings_per_solution": f * m})

@@ -11,11 +11,14 @@ from __future__ import annotations
 
 import ast
 import operator
+from collections.abc import Callable
 from dataclasses import dataclass
+from typing import Any
 
-_BINARY = {ast.Add: operator.add, ast.Sub: operator.sub, ast.Mult: operator.mul,
-           ast.Div: operator.truediv, ast.Pow: operator.pow}
-_UNARY = {ast.USub: operator.neg, ast.UAdd: operator.pos}
+_BINARY: dict[type[ast.operator], Callable[[Any, Any], Any]] = {
+    ast.Add: operator.add, ast.Sub: operator.sub, ast.Mult: operator.mul, ast.Div: operator.truediv,
+    ast.Pow: operator.pow}
+_UNARY: dict[type[ast.unaryop], Callable[[Any], Any]] = {ast.USub: operator.neg, ast.UAdd: operator.pos}
 # The elementary functions a formula may call; the model's numeric backend supplies them
 # for every engine (validate.model.backend.FUNCTIONS has exactly these names).
 FUNCTION_NAMES = frozenset({"sqrt", "log", "ln", "log10", "exp"})
@@ -45,43 +48,46 @@ def parse_formula(text: str) -> Formula:
     except SyntaxError as exc:
         raise FormulaError(f"cannot read the formula at column {exc.offset}: {exc.msg}") from None
     names: set[str] = set()
-    for node in ast.walk(tree):
-        if isinstance(node, (ast.Expression, ast.Load, *_BINARY, *_UNARY)):
-            continue
-        if isinstance(node, ast.BinOp) and type(node.op) in _BINARY:
-            continue
-        if isinstance(node, ast.UnaryOp) and type(node.op) in _UNARY:
-            continue
-        if isinstance(node, ast.Constant) and type(node.value) in (int, float):
-            continue
-        if isinstance(node, ast.Name):
-            if node.id not in FUNCTION_NAMES:
-                names.add(node.id)
-            continue
-        if isinstance(node, ast.Call) and isinstance(node.func, ast.Name) \
-                and node.func.id in FUNCTION_NAMES and len(node.args) == 1 and not node.keywords:
-            continue
-        allowed = ", ".join(sorted(FUNCTION_NAMES))
-        raise FormulaError(
-            f"'{ast.unparse(node) if hasattr(ast, 'unparse') else type(node).__name__}' is not allowed; "
-            f"a formula may use numbers, names, + - * / ** and the functions {allowed}")
+    for node in ast.walk(tree):  # parents before children: a refused node is named whole
+        if not _allowed(node):
+            allowed = ", ".join(sorted(FUNCTION_NAMES))
+            raise FormulaError(f"'{ast.unparse(node)}' is not allowed; "
+                               f"a formula may use numbers, names, + - * / ** and the functions {allowed}")
+        if isinstance(node, ast.Name) and node.id not in FUNCTION_NAMES:
+            names.add(node.id)
     return Formula(text.strip(), tree, frozenset(names))
 
 
-def _evaluate(node, values, functions):
-    if isinstance(node, ast.Constant):
-        return float(node.value)
-    if isinstance(node, ast.Name):
-        if node.id not in values:
-            raise FormulaError(f"the name '{node.id}' is not defined")
-        return values[node.id]
-    if isinstance(node, ast.BinOp):
-        return _BINARY[type(node.op)](_evaluate(node.left, values, functions),
-                                      _evaluate(node.right, values, functions))
-    if isinstance(node, ast.UnaryOp):
-        return _UNARY[type(node.op)](_evaluate(node.operand, values, functions))
-    if isinstance(node, ast.Call):
-        return functions[node.func.id](_evaluate(node.args[0], values, functions))
+def _allowed(node: ast.AST) -> bool:
+    """Numbers, names, the arithmetic operators and one-argument calls of the allowed functions."""
+    match node:
+        case ast.Expression() | ast.Load() | ast.Name():
+            return True
+        case ast.BinOp(op=op):
+            return type(op) in _BINARY
+        case ast.UnaryOp(op=op):
+            return type(op) in _UNARY
+        case ast.Constant(value=value):
+            return type(value) in (int, float)
+        case ast.Call(func=ast.Name(id=name), args=[_], keywords=[]):
+            return name in FUNCTION_NAMES
+    return isinstance(node, (*_BINARY, *_UNARY))
+
+
+def _evaluate(node: ast.AST, values: dict, functions: dict):
+    match node:
+        case ast.Constant(value=int() | float() as number):
+            return float(number)
+        case ast.Name(id=name):
+            if name not in values:
+                raise FormulaError(f"the name '{name}' is not defined")
+            return values[name]
+        case ast.BinOp(left=left, op=op, right=right):
+            return _BINARY[type(op)](_evaluate(left, values, functions), _evaluate(right, values, functions))
+        case ast.UnaryOp(op=op, operand=operand):
+            return _UNARY[type(op)](_evaluate(operand, values, functions))
+        case ast.Call(func=ast.Name(id=name), args=[argument]):
+            return functions[name](_evaluate(argument, values, functions))
     raise FormulaError(f"unexpected part of a formula: {type(node).__name__}")
 
 
@@ -110,13 +116,13 @@ class Dimension:
 
     def __mul__(self, other):
         other = _as_dim(other)
-        return Dimension(tuple(a + b for a, b in zip(self.dims, other.dims)))
+        return Dimension(tuple(a + b for a, b in zip(self.dims, other.dims, strict=True)))
 
     __rmul__ = __mul__
 
     def __truediv__(self, other):
         other = _as_dim(other)
-        return Dimension(tuple(a - b for a, b in zip(self.dims, other.dims)))
+        return Dimension(tuple(a - b for a, b in zip(self.dims, other.dims, strict=True)))
 
     def __rtruediv__(self, other):
         return _as_dim(other) / self

@@ -60,6 +60,20 @@ def _rows(text: str) -> list[tuple[int, list[str]]]:
 def load_readings(path: Path) -> dict[str, tuple[float, ...]]:
     text = read_text_file(path, "readings table")
     rows = _rows(text)
+    header = _header(rows, path)
+    i_id, i_a = header.index("id"), header.index("absorbance")
+    readings: dict[str, list[float]] = {}
+    for line_no, row in rows[1:]:
+        ident, value = _reading(row, line_no, i_id, i_a, len(header), path)
+        readings.setdefault(ident, []).append(value)
+    if not readings:
+        raise InputError("the readings table has no readings", file=path,
+                         fix="add one row per reading: id,absorbance")
+    return {k: tuple(v) for k, v in readings.items()}
+
+
+def _header(rows: list[tuple[int, list[str]]], path: Path) -> list[str]:
+    """The column names (lower case) of the first line that is not a comment."""
     head_line, head_cells = rows[0] if rows else (1, [])
     header = [h.strip().lower() for h in head_cells]
     missing = [c for c in ("id", "absorbance") if c not in header]
@@ -68,44 +82,46 @@ def load_readings(path: Path) -> dict[str, tuple[float, ...]]:
         raise InputError(f"missing column(s) {', '.join(missing)}{hint}", file=path,
                          where=f"line {head_line} (header)",
                          fix="the first line that is not a comment must name the columns, e.g. id,absorbance")
-    i_id, i_a = header.index("id"), header.index("absorbance")
-    readings: dict[str, list[float]] = {}
-    for line_no, row in rows[1:]:
-        if len(row) <= max(i_id, i_a):
-            raise InputError("the row has too few cells", file=path, where=f"row at line {line_no}",
-                             fix="every row needs an id and an absorbance")
-        if any(cell.strip() for cell in row[len(header):]):
-            raise InputError(f"the row has {len(row)} cells but the header names {len(header)} columns",
-                             file=path, where=f"row at line {line_no}",
-                             fix="a decimal comma splits a number into two cells: write a decimal point, "
-                                 "e.g. 0.512")
-        ident, cell = row[i_id].strip(), row[i_a].strip()
-        if not ident:
-            raise InputError("the id is empty", file=path, where=f"row at line {line_no}",
-                             fix="write the standard, blank or sample id in the first column")
-        if re.fullmatch(r"[-+]?\d+,\d+", cell):
-            raise InputError(f"the absorbance {cell!r} uses a decimal comma", file=path,
-                             where=f"row at line {line_no}", fix="write a decimal point, e.g. 0.512, and keep commas as separators")
-        try:
-            value = float(cell)
-        except ValueError:
-            raise InputError(f"the absorbance {cell!r} is not a number", file=path,
-                             where=f"row at line {line_no}, column absorbance",
-                             fix="write the reading as a plain number, e.g. 0.512") from None
-        if not math.isfinite(value):
-            raise InputError(f"the absorbance {cell!r} is not a finite number", file=path,
-                             where=f"row at line {line_no}", fix="write the reading as a plain number, e.g. 0.512")
-        if not LOWEST_READING <= value <= HIGHEST_READING:
-            raise InputError(f"the absorbance {value:g} is outside the plausible range "
-                             f"{LOWEST_READING:g} to {HIGHEST_READING:g}", file=path,
-                             where=f"row at line {line_no}",
-                             fix="check the reading; dilute a sample that reads above the range, and check "
-                                 "the blank or reference of a strongly negative reading")
-        readings.setdefault(ident, []).append(value)
-    if not readings:
-        raise InputError("the readings table has no readings", file=path,
-                         fix="add one row per reading: id,absorbance")
-    return {k: tuple(v) for k, v in readings.items()}
+    return header
+
+
+def _reading(row: list[str], line_no: int, i_id: int, i_a: int, columns: int, path: Path) -> tuple[str, float]:
+    """(id, absorbance) of one row, its cells checked."""
+    where = f"row at line {line_no}"
+    if len(row) <= max(i_id, i_a):
+        raise InputError("the row has too few cells", file=path, where=where,
+                         fix="every row needs an id and an absorbance")
+    if any(cell.strip() for cell in row[columns:]):
+        raise InputError(f"the row has {len(row)} cells but the header names {columns} columns",
+                         file=path, where=where,
+                         fix="a decimal comma splits a number into two cells: write a decimal point, "
+                             "e.g. 0.512")
+    ident = row[i_id].strip()
+    if not ident:
+        raise InputError("the id is empty", file=path, where=where,
+                         fix="write the standard, blank or sample id in the first column")
+    return ident, _absorbance(row[i_a].strip(), where, path)
+
+
+def _absorbance(cell: str, where: str, path: Path) -> float:
+    if re.fullmatch(r"[-+]?\d+,\d+", cell):
+        raise InputError(f"the absorbance {cell!r} uses a decimal comma", file=path, where=where,
+                         fix="write a decimal point, e.g. 0.512, and keep commas as separators")
+    try:
+        value = float(cell)
+    except ValueError:
+        raise InputError(f"the absorbance {cell!r} is not a number", file=path,
+                         where=f"{where}, column absorbance",
+                         fix="write the reading as a plain number, e.g. 0.512") from None
+    if not math.isfinite(value):
+        raise InputError(f"the absorbance {cell!r} is not a finite number", file=path, where=where,
+                         fix="write the reading as a plain number, e.g. 0.512")
+    if not LOWEST_READING <= value <= HIGHEST_READING:
+        raise InputError(f"the absorbance {value:g} is outside the plausible range "
+                         f"{LOWEST_READING:g} to {HIGHEST_READING:g}", file=path, where=where,
+                         fix="check the reading; dilute a sample that reads above the range, and check "
+                             "the blank or reference of a strongly negative reading")
+    return value
 
 
 def load_reading_series(path: Path) -> dict[str, tuple[str, ...]]:

@@ -1,74 +1,29 @@
-"""Validated objects read from a method file. Values are SI; units kept for display."""
+"""Validated objects read from a method file. Values are SI; units kept for display.
+
+A method is one of two kinds: an assay (`AssayMethod`: calibration, samples, quantities and a
+result formula) or a complex-formation study (`EquilibriumMethod`); the parts both share are in
+`MethodCommon`. Equipment items and solutions have a class per kind (validate.inputs.items,
+validate.inputs.solutions).
+"""
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass, field
+from typing import ClassVar, TypeVar
 
+from validate.inputs.formula import Formula
+from validate.inputs.items import ITEM_KINDS, VOLUMETRIC, Item, ItemCommon, kind_names
+from validate.inputs.solutions import SOLUTION_KINDS, Blank, Certified, Diluted, Solution, Weighed
 from validate.inputs.units import Unit
+from validate.inputs.values import Delivery, UncertainValue
 
-VOLUMETRIC_KINDS = ("one-mark pipette", "graduated pipette", "piston pipette", "burette",
-                    "volumetric flask")
-EQUIPMENT_KINDS = VOLUMETRIC_KINDS + ("cuvette", "photometer", "balance")
-SOLUTION_ORIGINS = ("weighing", "certificate", "dilution", "blank")
-DISTRIBUTIONS = ("normal", "rectangular", "triangular", "t", "trapezoid")
+VOLUMETRIC_KINDS = kind_names(VOLUMETRIC)
+EQUIPMENT_KINDS = tuple(ITEM_KINDS)
+SOLUTION_ORIGINS = tuple(SOLUTION_KINDS)
+MASS_CONCENTRATION = (1, -3, 0, 0)
+AMOUNT_CONCENTRATION = (0, -3, 1, 0)
 
-
-@dataclass(frozen=True)
-class UncertainValue:
-    """A number with its standard uncertainty and distribution, in SI."""
-
-    value: float
-    unit: Unit
-    u: float = 0.0
-    distribution: str = "normal"
-    dof: float = math.inf
-    provenance: str = ""
-    kind: str = "B"
-    trapezoid_d: float = 0.0
-
-
-@dataclass(frozen=True)
-class Item:
-    """One equipment item; tolerances resolved from a register or the method file."""
-
-    id: str
-    kind: str
-    item_class: str
-    nominal: float | None = None  # m^3 for volumetric items
-    tolerance: float = 0.0  # maximum permissible error, SI
-    repeatability: float = 0.0  # standard deviation per use, SI
-    distribution: str = "triangular"  # of the calibration offset
-    reading: float = 0.0  # burette: half-width of one reading, SI
-    path: float | None = None  # cuvette: m
-    offset: float = 0.0  # photometer: absorbance half-width
-    noise: float = 0.0  # photometer: absorbance standard deviation per reading
-    linearity: float = 0.0  # balance: kg half-width
-    provenance: str = ""
-    defaults_used: tuple[str, ...] = ()  # plain-words notes on defaults applied
-
-
-@dataclass(frozen=True)
-class Delivery:
-    """A volume delivered (or a flask filled) by one item in one step."""
-
-    item: str
-    volume: float  # selected volume, m^3
-
-
-@dataclass(frozen=True)
-class Solution:
-    id: str
-    made_by: str
-    mass: UncertainValue | None = None
-    balance: str | None = None
-    purity: UncertainValue | None = None
-    molar_mass: UncertainValue | None = None
-    concentration: UncertainValue | None = None  # certificate
-    parent: str | None = None
-    aliquot: Delivery | None = None
-    flask: Delivery | None = None
-    description: str = ""
+K = TypeVar("K", bound=ItemCommon)
 
 
 @dataclass(frozen=True)
@@ -101,7 +56,7 @@ class NamedQuantity:
 class ResultSpec:
     name: str
     unit: Unit
-    formula: object  # validate.inputs.formula.Formula
+    formula: Formula
 
 
 @dataclass(frozen=True)
@@ -199,8 +154,11 @@ class EquilibriumStudy:
         return [m.id for m in self.mixtures] + [r for s in self.series for r in s.reading_ids()]
 
 
-@dataclass(frozen=True)
-class Method:
+@dataclass(frozen=True, kw_only=True)
+class MethodCommon:
+    """What every method file holds, whichever its kind."""
+
+    kind: ClassVar[str]
     path: str
     title: str
     measurand: str
@@ -208,10 +166,6 @@ class Method:
     settings: Settings
     items: dict[str, Item]
     solutions: dict[str, Solution]
-    calibration: Calibration | None
-    samples: tuple[Sample, ...]
-    quantities: dict[str, NamedQuantity]
-    result: ResultSpec
     readings: dict[str, tuple[float, ...]] = field(default_factory=dict)
     reading_series: dict[str, tuple[str, ...]] = field(default_factory=dict)  # optional day/analyst labels
     input_files: tuple[str, ...] = ()
@@ -219,15 +173,79 @@ class Method:
     notes: tuple[str, ...] = ()  # warnings about the input that do not stop the run
     registers_used: tuple[str, ...] = ()
     validation: ValidationSettings = field(default_factory=ValidationSettings)
-    equilibrium: EquilibriumStudy | None = None
 
     def concentration_dims(self, solution_id: str) -> tuple[int, ...]:
         """Dimension of a solution's concentration (mass or amount per volume)."""
-        sol = self.solutions[solution_id]
-        if sol.made_by == "weighing":
-            return (0, -3, 1, 0) if sol.molar_mass is not None else (1, -3, 0, 0)
-        if sol.made_by == "certificate":
-            return sol.concentration.unit.dims
-        if sol.made_by == "dilution":
-            return self.concentration_dims(sol.parent)
-        return self.calibration.concentration_unit.dims if self.calibration else (0, -3, 1, 0)
+        return concentration_dims(self.solutions, solution_id, self.blank_dims())
+
+    def blank_dims(self) -> tuple[int, ...]:
+        """A blank's concentration is zero; its dimension is that of the solutions read with it."""
+        return AMOUNT_CONCENTRATION
+
+    def item_of(self, item_id: str, kind: type[K]) -> K:
+        """The item named, of the kind the loader checked it to be."""
+        item = self.items[item_id]
+        if not isinstance(item, kind):
+            raise TypeError(f"`{item_id}` is a {item.kind}, not a {kind.kind}")
+        return item
+
+
+@dataclass(frozen=True, kw_only=True)
+class AssayMethod(MethodCommon):
+    """An assay: solutions read against a calibration line (or made up alone), a result formula."""
+
+    kind: ClassVar[str] = "assay"
+    calibration: Calibration | None  # None: a result from the preparation and quantities alone
+    samples: tuple[Sample, ...]
+    quantities: dict[str, NamedQuantity]
+    result: ResultSpec
+
+    def blank_dims(self) -> tuple[int, ...]:
+        return self.calibration.concentration_unit.dims if self.calibration else AMOUNT_CONCENTRATION
+
+    @property
+    def equilibrium(self) -> None:
+        """An assay has no equilibrium study (read by the record and the command line)."""
+        return None
+
+
+@dataclass(frozen=True, kw_only=True)
+class EquilibriumMethod(MethodCommon):
+    """A 1:1 complex-formation study."""
+
+    kind: ClassVar[str] = "equilibrium study"
+    equilibrium: EquilibriumStudy
+
+    @property
+    def calibration(self) -> None:
+        """A study has no assay calibration (read by the record): its standards are in the study."""
+        return None
+
+    @property
+    def result(self) -> None:
+        """A study has no result formula (read by the record): it reports K."""
+        return None
+
+    @property
+    def samples(self) -> tuple[Sample, ...]:
+        """A study reads no assay samples (read by the record): its points are in the study."""
+        return ()
+
+
+Method = AssayMethod | EquilibriumMethod
+
+
+def concentration_dims(solutions: dict[str, Solution], solution_id: str,
+                       blank: tuple[int, ...] = AMOUNT_CONCENTRATION) -> tuple[int, ...]:
+    """Dimension of a solution's concentration, followed back through its dilutions."""
+    match solutions[solution_id]:
+        case Weighed(molar_mass=None):
+            return MASS_CONCENTRATION
+        case Weighed():
+            return AMOUNT_CONCENTRATION
+        case Certified(concentration=concentration):
+            return concentration.unit.dims
+        case Diluted(parent=parent):
+            return concentration_dims(solutions, parent, blank)
+        case Blank():
+            return blank

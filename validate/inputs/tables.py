@@ -4,10 +4,12 @@ from __future__ import annotations
 
 import difflib
 import math
+from typing import overload
 
 from validate.inputs.errors import InputError
-from validate.inputs.schema import DISTRIBUTIONS, Delivery, UncertainValue
+from validate.inputs.items import OneMarkPipette, Volumetric, VolumetricFlask, kind_names
 from validate.inputs.units import Unit, UnitError, describe_dims, parse_quantity, parse_unit
+from validate.inputs.values import DISTRIBUTIONS, Delivery, UncertainValue
 
 
 class Table:
@@ -49,6 +51,25 @@ class Table:
             raise self.error(f"expected text in quotes, got {value!r}", key,
                              fix=f'write it in quotes, e.g. {key} = "..."')
         return value
+
+    def required_text(self, key: str) -> str:
+        """Text that must be given: a clear error when it is missing or not text."""
+        value = self.text(key, required=True)
+        assert value is not None  # text(required=True) raises when the key is missing
+        return value
+
+    def choice(self, key: str, default: str, choices: tuple[str, ...], fix: str) -> str:
+        """Text that must be one of `choices`; `default` when the key is absent."""
+        value = self.text(key, default)
+        if value is None or value not in choices:
+            raise self.error(f"unknown choice {value!r}", key, fix=fix)
+        return value
+
+    @overload
+    def number(self, key: str, default: float, low=None, high=None) -> float: ...
+
+    @overload
+    def number(self, key: str, default: None = None, low=None, high=None) -> float | None: ...
 
     def number(self, key: str, default: float | None = None, low=None, high=None) -> float | None:
         if key not in self.data:
@@ -129,17 +150,50 @@ def parse_uncertain(raw, parent: Table, key: str, dims=None, positive=True) -> U
     provenance = t.text("provenance", "") or ""
     if t.has("readings"):
         return _type_a(t, dims, positive, provenance)
+    return _type_b(t, dims, positive, provenance)
+
+
+def _type_b(t: Table, dims, positive, provenance: str) -> UncertainValue:
+    """A stated value with a stated spread (GUM 4.3): u, a half-width or an expanded uncertainty."""
     value, unit = parse_si(t.require("value"), t, "value", dims, positive)
+    dist = _distribution_named(t)
+    spread_key = _spread_key(t)
+    if spread_key is None:
+        return UncertainValue(value, unit, provenance=provenance or "stated value, no uncertainty given")
+    spread = _spread(t, spread_key, unit)
+    dof = t.number("dof", math.inf, low=0)
+    if spread_key == "half_width":
+        return _from_half_width(t, value, unit, spread, dist or "rectangular", dof, provenance)
+    if spread_key == "expanded_uncertainty":
+        u, dist = spread / _coverage_factor(t), dist or "normal"
+    else:
+        u, dist = spread, dist or ("t" if math.isfinite(dof) else "normal")
+    if dist == "t" and not math.isfinite(dof):
+        raise t.error("a t distribution needs `dof` (degrees of freedom)", "dof", fix="add dof = n - 1 for n readings")
+    if dist in ("rectangular", "triangular", "trapezoid"):
+        raise t.error(f"give a {dist} distribution by its `half_width`", spread_key,
+                      fix=f"write half_width = ... instead of {spread_key}")
+    return UncertainValue(value, unit, u, dist, dof, provenance, "B")
+
+
+def _distribution_named(t: Table) -> str | None:
     dist = t.text("distribution")
     if dist is not None and dist not in DISTRIBUTIONS:
         raise t.error(f"unknown distribution {dist!r}", "distribution",
                       fix=f"use one of: {', '.join(DISTRIBUTIONS)}")
+    return dist
+
+
+def _spread_key(t: Table) -> str | None:
+    """Which of u, half_width and expanded_uncertainty is given (at most one)."""
     spread_keys = [k for k in ("u", "half_width", "expanded_uncertainty") if t.has(k)]
     if len(spread_keys) > 1:
         raise t.error(f"give only one of {', '.join(spread_keys)}", fix="keep the one your source states")
-    if not spread_keys:
-        return UncertainValue(value, unit, provenance=provenance or "stated value, no uncertainty given")
-    spread_key = spread_keys[0]
+    return spread_keys[0] if spread_keys else None
+
+
+def _spread(t: Table, spread_key: str, unit: Unit) -> float:
+    """The spread in SI, in a unit of the value's kind, zero or more."""
     spread, spread_unit = parse_si(t.get(spread_key), t, spread_key, None, positive=False)
     if spread_unit.dims != unit.dims:
         raise t.error(f"the unit of `{spread_key}` ({spread_unit.text}) does not match the value's "
@@ -147,35 +201,33 @@ def parse_uncertain(raw, parent: Table, key: str, dims=None, positive=True) -> U
                       f"like the value")
     if spread < 0:
         raise t.error("an uncertainty cannot be negative", spread_key, fix="give its size, zero or more")
-    dof = t.number("dof", math.inf, low=0)
-    if spread_key == "half_width":
-        dist = dist or "rectangular"
-        if dist == "rectangular":
-            u = spread / math.sqrt(3.0)
-        elif dist == "triangular":
-            u = spread / math.sqrt(6.0)
-        elif dist == "trapezoid":
-            d, _ = parse_si(t.require("limit_uncertainty"), t, "limit_uncertainty", unit.dims, False)
-            u = math.sqrt(spread**2 / 3.0 + d * d / 9.0)
-            return UncertainValue(value, unit, u, dist, dof, provenance, "B", d)
-        else:
-            raise t.error(f"a half-width goes with a rectangular, triangular or trapezoid "
-                          f"distribution, not {dist!r}", "distribution",
-                          fix="give `u` (a standard uncertainty) for this distribution")
-    elif spread_key == "expanded_uncertainty":
-        k = t.number("coverage_factor", low=0)
-        if k is None:
-            raise t.error("an expanded uncertainty needs its `coverage_factor`",
-                          fix="add coverage_factor = 2 (or the k stated on the certificate)")
-        u, dist = spread / k, dist or "normal"
-    else:
-        u, dist = spread, dist or ("t" if math.isfinite(dof) else "normal")
-    if dist == "t" and not math.isfinite(dof):
-        raise t.error("a t distribution needs `dof` (degrees of freedom)", "dof", fix="add dof = n - 1 for n readings")
-    if dist in ("rectangular", "triangular", "trapezoid") and spread_key != "half_width":
-        raise t.error(f"give a {dist} distribution by its `half_width`", spread_key,
-                      fix=f"write half_width = ... instead of {spread_key}")
-    return UncertainValue(value, unit, u, dist, dof, provenance, "B")
+    return spread
+
+
+def _from_half_width(t: Table, value: float, unit: Unit, half_width: float, dist: str, dof: float,
+                     provenance: str) -> UncertainValue:
+    """u of a bounded distribution from its half-width a: a/sqrt(3) rectangular (GUM 4.3.7),
+    a/sqrt(6) triangular (GUM 4.3.9), sqrt(a^2/3 + d^2/9) for the curvilinear trapezoid, a
+    rectangular whose limits are known only to +/- d (JCGM 101:2008 6.4.3)."""
+    if dist == "rectangular":
+        return UncertainValue(value, unit, half_width / math.sqrt(3.0), dist, dof, provenance, "B")
+    if dist == "triangular":
+        return UncertainValue(value, unit, half_width / math.sqrt(6.0), dist, dof, provenance, "B")
+    if dist == "trapezoid":
+        d, _ = parse_si(t.require("limit_uncertainty"), t, "limit_uncertainty", unit.dims, False)
+        u = math.sqrt(half_width**2 / 3.0 + d * d / 9.0)
+        return UncertainValue(value, unit, u, dist, dof, provenance, "B", d)
+    raise t.error(f"a half-width goes with a rectangular, triangular or trapezoid "
+                  f"distribution, not {dist!r}", "distribution",
+                  fix="give `u` (a standard uncertainty) for this distribution")
+
+
+def _coverage_factor(t: Table) -> float:
+    k = t.number("coverage_factor", low=0)
+    if k is None:
+        raise t.error("an expanded uncertainty needs its `coverage_factor`",
+                      fix="add coverage_factor = 2 (or the k stated on the certificate)")
+    return k
 
 
 def _type_a(t: Table, dims, positive, provenance) -> UncertainValue:
@@ -196,7 +248,7 @@ def _type_a(t: Table, dims, positive, provenance) -> UncertainValue:
 
 
 def unit_of(table: Table, key: str, dims=None) -> Unit:
-    raw = table.text(key, required=True)
+    raw = table.required_text(key)
     try:
         unit = parse_unit(raw)
     except UnitError as exc:
@@ -208,31 +260,42 @@ def unit_of(table: Table, key: str, dims=None) -> Unit:
     return unit
 
 
-def parse_delivery(raw, t: Table, key: str, items, kinds) -> Delivery:
+def parse_delivery(raw, t: Table, key: str, items, kinds: tuple[type[Volumetric], ...]) -> Delivery:
     """An item named alone (its nominal volume) or {item, volume}: checked against the item's kind."""
-    if isinstance(raw, str):
-        item_id, volume = raw, None
-    elif isinstance(raw, dict):
-        sub = Table(raw, t.file, f"{t.where}.{key}")
-        sub.allow("item", "volume")
-        item_id = sub.text("item", required=True)
-        volume = sub.quantity("volume", (0, 3, 0, 0))[0] if sub.has("volume") else None
-    else:
-        raise t.error("expected an equipment id, or {item = \"...\", volume = \"... mL\"}", key,
-                      fix='e.g. aliquot = "pipette_5" or aliquot = { item = "burette_25", volume = "2.00 mL" }')
+    item_id, volume = _delivery_parts(raw, t, key)
     if item_id not in items:
         raise t.error(f"unknown equipment `{item_id}`", key,
                       fix=f"define [equipment.{item_id}] or use one of: {', '.join(items) or '(none defined)'}")
     item = items[item_id]
-    if item.kind not in kinds:
-        raise t.error(f"`{item_id}` is a {item.kind}; here a {' or '.join(kinds)} is needed", key,
-                      fix=f"name a {' or '.join(kinds)} defined under [equipment]")
+    if not isinstance(item, kinds):
+        wanted = " or ".join(kind_names(kinds))
+        raise t.error(f"`{item_id}` is a {item.kind}; here a {wanted} is needed", key,
+                      fix=f"name a {wanted} defined under [equipment]")
+    return Delivery(item_id, _volume_within(item, volume, t, key))
+
+
+def _delivery_parts(raw, t: Table, key: str) -> tuple[str, float | None]:
+    """(item id, selected volume or None for the nominal) of a delivery as written."""
+    if isinstance(raw, str):
+        return raw, None
+    if isinstance(raw, dict):
+        sub = Table(raw, t.file, f"{t.where}.{key}")
+        sub.allow("item", "volume")
+        item_id = sub.required_text("item")
+        return item_id, (sub.quantity("volume", (0, 3, 0, 0))[0] if sub.has("volume") else None)
+    raise t.error("expected an equipment id, or {item = \"...\", volume = \"... mL\"}", key,
+                  fix='e.g. aliquot = "pipette_5" or aliquot = { item = "burette_25", volume = "2.00 mL" }')
+
+
+def _volume_within(item: Volumetric, volume: float | None, t: Table, key: str) -> float:
+    """The selected volume, checked against what the item can deliver."""
     if volume is None:
-        volume = item.nominal
+        return item.nominal
     if volume > item.nominal * (1 + 1e-9):
         raise t.error(f"the volume is larger than the {item.kind}'s nominal volume", key,
                       fix="give the volume delivered, within the nominal volume, or name a larger item")
-    if item.kind in ("one-mark pipette", "volumetric flask") and abs(volume - item.nominal) > 1e-9 * item.nominal:
-        raise t.error(f"a {item.kind} delivers only its nominal volume", key,
-                      fix="leave out `volume`, or use a graduated or piston pipette or a burette")
-    return Delivery(item_id, volume)
+    match item:
+        case OneMarkPipette() | VolumetricFlask() if abs(volume - item.nominal) > 1e-9 * item.nominal:
+            raise t.error(f"a {item.kind} delivers only its nominal volume", key,
+                          fix="leave out `volume`, or use a graduated or piston pipette or a burette")
+    return volume

@@ -45,7 +45,7 @@ class UnitError(ValueError):
 class Unit:
     text: str
     factor: float  # SI value = number * factor
-    dims: tuple[int, int, int, int]
+    dims: tuple[int, ...]  # exponents of (kg, m, mol, K)
 
     @property
     def dimensionless(self) -> bool:
@@ -93,20 +93,21 @@ def parse_unit(text: str) -> Unit:
                 continue
             f, d = _symbol(token)
             factor *= f**sign
-            dims = [a + sign * b for a, b in zip(dims, d)]
+            dims = [a + sign * b for a, b in zip(dims, d, strict=True)]
     return Unit(raw, factor, tuple(dims))
 
 
 def describe_dims(dims: tuple[int, ...]) -> str:
     """Plain words for a dimension vector, for error messages."""
-    names = {_MASS: "mass", _VOLUME: "volume", _LENGTH: "length", _AMOUNT: "amount of substance",
+    names: dict[tuple[int, ...], str] = {
+             _MASS: "mass", _VOLUME: "volume", _LENGTH: "length", _AMOUNT: "amount of substance",
              (0, -3, 1, 0): "amount concentration", (1, -3, 0, 0): "mass concentration",
              (1, 0, -1, 0): "molar mass", _TEMP: "temperature", _NONE: "dimensionless",
              (0, 2, -1, 0): "molar absorptivity (area per amount)"}
     if tuple(dims) in names:
         return names[tuple(dims)]
     labels = ("kg", "m", "mol", "K")
-    return " ".join(f"{lab}^{p}" for lab, p in zip(labels, dims) if p) or "dimensionless"
+    return " ".join(f"{lab}^{p}" for lab, p in zip(labels, dims, strict=True) if p) or "dimensionless"
 
 
 _QUANTITY = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)\s*$")
@@ -121,7 +122,8 @@ def parse_quantity(text) -> tuple[float, Unit]:
     if not isinstance(text, str):
         raise UnitError(f"expected a number with its unit such as \"10 mL\", got {text!r}")
     if re.match(r"^\s*[-+]?\d+,\d", text):  # checked first: "68,05 mg" would read as 68 ",05 mg"
-        raise UnitError(f"{text!r} uses a decimal comma (or a thousands separator); write a decimal point, e.g. \"10.5 mL\"")
+        raise UnitError(f"{text!r} uses a decimal comma (or a thousands separator); write a decimal point, "
+                        f"e.g. \"10.5 mL\"")
     match = _QUANTITY.match(text)
     if not match:
         raise UnitError(f"{text!r} is not a number followed by a unit, e.g. \"10 mL\"")

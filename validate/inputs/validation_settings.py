@@ -4,8 +4,9 @@ from __future__ import annotations
 
 import math
 
-from validate.inputs import schema as S
+from validate.inputs.schema import ResultSpec, ValidationSettings
 from validate.inputs.tables import Table
+from validate.inputs.values import UncertainValue
 
 COMMON = "common practice; set it from the requirements that apply to the method"
 
@@ -39,32 +40,22 @@ DEFAULTS = {key: spec[3] for key, spec in CRITERIA.items()}
 ROUTES = ("ich_residual_sd", "ich_intercept_sd", "ich_blank_sd", "iso11843_2")
 
 
-def parse_validation(top: Table, method: S.Method, result: S.ResultSpec, defaults: list[str]) -> S.ValidationSettings:
+def parse_validation(top: Table, parts, result: ResultSpec, defaults: list[str]) -> ValidationSettings:
+    """`parts` gives the assay's samples and calibration (validate.inputs.assay_sections.AssayParts)."""
     t = Table(top.get("validation", {}), top.file, "[validation]")
     t.allow("declared_limit", "alpha", "beta", "absorbance_window", "reference_sample", "reference_value")
-    base = S.ValidationSettings()
+    base = ValidationSettings()
     route = t.text("declared_limit", base.declared_limit)
-    if route not in ROUTES:
+    if route is None or route not in ROUTES:
         raise t.error(f"unknown route {route!r}", "declared_limit", fix=f"use one of: {', '.join(ROUTES)}")
     # error probabilities below 1e-5 are never used, and at ~1e-17 the t quantiles become infinite
     alpha = t.number("alpha", base.alpha, low=1e-5, high=0.5)
     beta = t.number("beta", base.beta, low=1e-5, high=0.5)
     window = t.get("absorbance_window", list(base.window))
-    if (not isinstance(window, list) or len(window) != 2 or
-            not all(isinstance(w, (int, float)) and not isinstance(w, bool) and math.isfinite(w) for w in window)
-            or not window[0] < window[1]):
+    if not _is_range(window):
         raise t.error("expected two absorbances, low and high", "absorbance_window", fix="e.g. [0.1, 1.0]")
-    sample = t.text("reference_sample")
-    ref = None
-    if sample is not None:
-        if sample not in {s.id for s in method.samples}:
-            raise t.error(f"`{sample}` is not one of the [samples]", "reference_sample",
-                          fix=f"use one of: {', '.join(s.id for s in method.samples) or '(no samples defined)'}")
-        ref = t.uncertain("reference_value", result.unit.dims, positive=False)
-    elif t.has("reference_value"):
-        raise t.error("a reference value needs `reference_sample`, the sample it belongs to", "reference_value",
-                      fix="add reference_sample = \"...\" naming one of the [samples]")
-    if method.calibration is not None:
+    sample, ref = _reference(t, parts.samples, result)
+    if parts.calibration is not None:
         for key, text in (("declared_limit", f"declared detection-limit route: {route}"),
                           ("alpha", f"false-positive probability alpha = {alpha:g} (ISO 11843-2)"),
                           ("beta", f"false-negative probability beta = {beta:g} (ISO 11843-2)"),
@@ -72,23 +63,46 @@ def parse_validation(top: Table, method: S.Method, result: S.ResultSpec, default
                            f"(common practice)")):
             if not t.has(key):
                 defaults.append(f"default: {text}")
-    a = Table(top.get("acceptance", {}), top.file, "[acceptance]")
+    acceptance = _acceptance(Table(top.get("acceptance", {}), top.file, "[acceptance]"))
+    unset = [k for k in CRITERIA if k not in acceptance and DEFAULTS[k] is not None]
+    if parts.calibration is not None and unset:
+        defaults.append("default acceptance criteria (common practice, set yours under [acceptance]): " +
+                        ", ".join(f"{k} = {DEFAULTS[k]}" for k in unset))
+    return ValidationSettings(route, alpha, beta, (float(window[0]), float(window[1])), sample, ref,
+                              acceptance)
+
+
+def _is_range(value) -> bool:
+    """Two finite plain numbers, the first below the second."""
+    return (isinstance(value, list) and len(value) == 2 and
+            all(isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v) for v in value)
+            and value[0] < value[1])
+
+
+def _reference(t: Table, samples, result: ResultSpec) -> tuple[str | None, UncertainValue | None]:
+    """The reference sample for trueness and its reference value, in the result's unit."""
+    sample = t.text("reference_sample")
+    if sample is None:
+        if t.has("reference_value"):
+            raise t.error("a reference value needs `reference_sample`, the sample it belongs to", "reference_value",
+                          fix="add reference_sample = \"...\" naming one of the [samples]")
+        return None, None
+    if sample not in {s.id for s in samples}:
+        raise t.error(f"`{sample}` is not one of the [samples]", "reference_sample",
+                      fix=f"use one of: {', '.join(s.id for s in samples) or '(no samples defined)'}")
+    return sample, t.uncertain("reference_value", result.unit.dims, positive=False)
+
+
+def _acceptance(a: Table) -> dict:
     a.allow(*CRITERIA)
-    acceptance = {}
+    acceptance: dict = {}
     for key in a.data:
-        value = a.get(key)
         if key == "recovery_range":
-            if (not isinstance(value, list) or len(value) != 2 or
-                    not all(isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v)
-                            for v in value) or not value[0] < value[1]):
+            value = a.get(key)
+            if not _is_range(value):
                 raise a.error("expected [low, high] in percent, low below high", key,
                               fix="e.g. recovery_range = [95, 105]")
             acceptance[key] = (float(value[0]), float(value[1]))
         else:
             acceptance[key] = a.number(key)
-    unset = [k for k in CRITERIA if k not in acceptance and DEFAULTS[k] is not None]
-    if method.calibration is not None and unset:
-        defaults.append("default acceptance criteria (common practice, set yours under [acceptance]): " +
-                        ", ".join(f"{k} = {DEFAULTS[k]}" for k in unset))
-    return S.ValidationSettings(route, alpha, beta, (float(window[0]), float(window[1])), sample, ref,
-                                acceptance)
+    return acceptance

@@ -8,7 +8,9 @@ burette delivery is the difference of two readings.
 
 from __future__ import annotations
 
-from validate.inputs.schema import Delivery, Item, Method
+from validate.inputs.items import Balance, Burette, GraduatedPipette, Volumetric
+from validate.inputs.schema import Method
+from validate.inputs.values import Delivery
 from validate.metrology.sources import Source, rectangular, triangular
 
 ML = 1e-6  # m^3 per mL, for display
@@ -27,7 +29,7 @@ class SourceSet:
         return source.name
 
 
-def _offset(item: Item) -> Source:
+def _offset(item: Volumetric) -> Source:
     make = triangular if item.distribution == "triangular" else rectangular
     return make(f"{item.id}: calibration", 0.0, item.tolerance, step="equipment calibration",
                 equipment=item.id, provenance=f"tolerance +/-{item.tolerance / ML:.4g} mL, "
@@ -42,6 +44,18 @@ def temperature_source(method: Method, step: str) -> Source:
                        f"volume expansion {s.expansion_coefficient:g} per K", unit="K")
 
 
+def tolerance_scale(item: Volumetric, volume: float) -> float:
+    """How much of the item's tolerance applies to a delivery of `volume`: volume / nominal for
+    burettes and graduated pipettes (their tolerance applies to the full scale), 1 otherwise (a
+    piston pipette's maximum permissible error applies in microlitres at every selected volume,
+    ISO 8655-2; a one-mark item only delivers its nominal)."""
+    match item:
+        case Burette() | GraduatedPipette():
+            return volume / item.nominal
+        case _:
+            return 1.0
+
+
 def volume_term(ss: SourceSet, method: Method, delivery: Delivery, step: str, use: str,
                 with_repeatability: bool = True):
     """A closure x -> delivered volume (m^3) for one use of an item in one step.
@@ -49,46 +63,47 @@ def volume_term(ss: SourceSet, method: Method, delivery: Delivery, step: str, us
     `with_repeatability=False` leaves out the per-use random terms (repeatability,
     burette readings) where the calibration line's observed scatter covers them.
 
-    V = V_selected + scale * offset + repeatability + V_selected * alpha * dT,
-    where scale is V_selected / nominal for burettes and graduated pipettes
-    (their tolerance applies to the full scale) and 1 otherwise (a piston
-    pipette's maximum permissible error applies in microlitres at every
-    selected volume, ISO 8655-2; a one-mark item only delivers its nominal).
+    V = V_selected + scale * offset + random terms of the use + V_selected * alpha * dT,
+    scale from `tolerance_scale`.
     """
-    item = method.items[delivery.item]
+    item = method.item_of(delivery.item, Volumetric)
     volume = delivery.volume
-    scale = volume / item.nominal if item.kind in ("burette", "graduated pipette") else 1.0
+    scale = tolerance_scale(item, volume)
     cal = ss.add(_offset(item))
     temp = ss.add(temperature_source(method, step))
     alpha = method.settings.expansion_coefficient
-    terms = []
-    if item.kind == "burette" and with_repeatability:
-        for end in ("start", "end"):
-            terms.append(ss.add(rectangular(
-                f"{item.id}: reading at {end} ({use})", 0.0, item.reading, step=step, equipment=item.id,
-                provenance=f"one reading within +/-{item.reading / ML:.3g} mL", unit="mL", display_factor=ML)))
-        signs = (-1.0, 1.0)
-    elif with_repeatability and item.repeatability > 0:
-        terms.append(ss.add(Source(
-            f"{item.id}: repeatability ({use})", 0.0, item.repeatability, "normal", step=step,
-            equipment=item.id, provenance=f"standard deviation {item.repeatability / ML:.3g} mL per use; "
-            f"{item.provenance}", unit="mL", display_factor=ML)))
-        signs = (1.0,)
-    else:
-        signs = ()
+    terms = _per_use_terms(ss, item, step, use) if with_repeatability else []
 
     def term(x):
         v = volume + scale * x[cal] + volume * alpha * x[temp]
-        for sign, name in zip(signs, terms):
+        for sign, name in terms:
             v = v + sign * x[name]
         return v
 
     return term
 
 
+def _per_use_terms(ss: SourceSet, item: Volumetric, step: str, use: str) -> list[tuple[float, str]]:
+    """(sign, source name) of the random terms of one use: a burette delivery is the difference
+    of two readings of its scale; any other item carries its repeatability per use."""
+    match item:
+        case Burette():
+            return [(sign, ss.add(rectangular(
+                f"{item.id}: reading at {end} ({use})", 0.0, item.reading, step=step, equipment=item.id,
+                provenance=f"one reading within +/-{item.reading / ML:.3g} mL", unit="mL", display_factor=ML)))
+                for sign, end in ((-1.0, "start"), (1.0, "end"))]
+        case _ if item.repeatability > 0:
+            return [(1.0, ss.add(Source(
+                f"{item.id}: repeatability ({use})", 0.0, item.repeatability, "normal", step=step,
+                equipment=item.id, provenance=f"standard deviation {item.repeatability / ML:.3g} mL per use; "
+                f"{item.provenance}", unit="mL", display_factor=ML)))]
+        case _:
+            return []
+
+
 def balance_terms(ss: SourceSet, method: Method, balance_id: str, use: str, step: str) -> list[str]:
     """Sources of one weighing: the balance's linearity (shared) and repeatability (per use)."""
-    item = method.items[balance_id]
+    item = method.item_of(balance_id, Balance)
     names = []
     if item.linearity > 0:
         names.append(ss.add(rectangular(f"{item.id}: linearity", 0.0, item.linearity,

@@ -16,7 +16,7 @@ from __future__ import annotations
 import math
 from dataclasses import asdict, dataclass
 
-from validate.inputs.schema import DISTRIBUTIONS
+from validate.inputs.values import DISTRIBUTIONS
 
 
 @dataclass(frozen=True)

@@ -19,7 +19,9 @@ from dataclasses import dataclass, field
 from typing import Any
 
 from validate.inputs.formula import Formula
-from validate.inputs.schema import Method
+from validate.inputs.items import Cuvette, Photometer
+from validate.inputs.schema import AssayMethod, Method
+from validate.inputs.solutions import Blank, Certified, Diluted, Weighed, parent_of
 from validate.metrology.equipment import SourceSet, balance_terms, exact_or, value_source, volume_term
 from validate.metrology.sources import Source
 from validate.model import backend
@@ -49,7 +51,7 @@ class SolutionInputs:
 
 @dataclass
 class Model(SolutionInputs):
-    method: Method
+    method: AssayMethod
     sources: dict[str, Source]
     result_labels: list[str]
     result_keys: list[ResultKey] = field(default_factory=list)  # one per label, in the same order
@@ -108,7 +110,7 @@ def result_formula(method: Method) -> Formula:
     return formula
 
 
-def build_model(method: Method) -> Model:
+def build_model(method: AssayMethod) -> Model:
     ss = SourceSet()
     s = method.settings
     samples = method.samples if "c_measured" in result_formula(method).names else []
@@ -155,8 +157,9 @@ def solution_order(solutions: dict) -> list:
     def visit(sol):
         if sol.id in done:
             return
-        if sol.made_by == "dilution":
-            visit(solutions[sol.parent])
+        parent = parent_of(sol)
+        if parent is not None:
+            visit(solutions[parent])
         done.add(sol.id)
         order.append(sol)
 
@@ -168,17 +171,22 @@ def solution_order(solutions: dict) -> list:
 def solution_term(ss: SourceSet, method: Method, sol, is_standard_observed: bool):
     """A closure (x, concentrations so far) -> this solution's concentration (SI)."""
     step = f"prepare {sol.id}"
-    if sol.made_by == "blank":
-        return lambda x, conc: 0.0
-    if sol.made_by == "certificate":
-        src = value_source(ss, f"{sol.id}: certified concentration", sol.concentration, step)
-        value = sol.concentration.value
-        return lambda x, conc: exact_or(x, src, value)
+    match sol:
+        case Blank():
+            return lambda x, conc: 0.0
+        case Certified(concentration=concentration):
+            src = value_source(ss, f"{sol.id}: certified concentration", concentration, step)
+            return lambda x, conc: exact_or(x, src, concentration.value)
+        case Diluted(parent=parent):
+            flask = volume_term(ss, method, sol.flask, step, sol.id, not is_standard_observed)
+            aliquot = volume_term(ss, method, sol.aliquot, step, sol.id, not is_standard_observed)
+            return lambda x, conc: conc[parent] * aliquot(x) / flask(x)
+        case Weighed():
+            return _weighed_term(ss, method, sol, step, is_standard_observed)
+
+
+def _weighed_term(ss: SourceSet, method: Method, sol: Weighed, step: str, is_standard_observed: bool):
     flask = volume_term(ss, method, sol.flask, step, sol.id, not is_standard_observed)
-    if sol.made_by == "dilution":
-        aliquot = volume_term(ss, method, sol.aliquot, step, sol.id, not is_standard_observed)
-        parent = sol.parent
-        return lambda x, conc: conc[parent] * aliquot(x) / flask(x)
     mass = value_source(ss, f"{sol.id}: mass", sol.mass, step)
     balance = balance_terms(ss, method, sol.balance, sol.id, step) if sol.balance else []
     purity = value_source(ss, f"{sol.id}: purity", sol.purity, step) if sol.purity else None
@@ -206,8 +214,8 @@ def mean_reading_term(ss: SourceSet, method: Method, ident: str, readings: tuple
     the mean of m readings then carries a term of standard uncertainty s/sqrt(m w),
     w the reading's weight on the line's scale (1 for an unweighted line)."""
     observed = scatter is not None
-    photometer = method.items.get(photometer_id) if photometer_id else None
-    cell = method.items.get(cuvette) if cuvette else None
+    photometer = method.item_of(photometer_id, Photometer) if photometer_id else None
+    cell = method.item_of(cuvette, Cuvette) if cuvette else None
     offset = path = None
     noise = []
     if photometer is not None and photometer.offset > 0:

@@ -2,13 +2,15 @@
 
 from __future__ import annotations
 
-from validate.inputs.schema import Method
+from validate.inputs.schema import AssayMethod, EquilibriumMethod, Method
 from validate.model.assay import Model, build_model
 from validate.model.equilibrium import EquilibriumModel, build_equilibrium_model
 
 
 def build(method: Method) -> Model | EquilibriumModel:
     """The model of a method file: an assay's, or an equilibrium study's (weights not yet set)."""
-    if method.equilibrium is None:
-        return build_model(method)
-    return build_equilibrium_model(method)
+    match method:
+        case AssayMethod():
+            return build_model(method)
+        case EquilibriumMethod():
+            return build_equilibrium_model(method)

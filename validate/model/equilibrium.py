@@ -18,7 +18,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from validate.inputs.schema import EquilibriumStudy, Method
+from validate.inputs.schema import EquilibriumMethod, EquilibriumStudy
 from validate.metrology.equipment import SourceSet, volume_term
 from validate.metrology.sources import Source
 from validate.model import backend as mathops
@@ -44,7 +44,7 @@ def positive_or_nan(x):
 
 @dataclass
 class EquilibriumModel(SolutionInputs):
-    method: Method
+    method: EquilibriumMethod
     sources: dict[str, Source]
     weights: list[float] | None = None  # GLS weights of the combined K, set after a first pass
     assumptions: list[str] = field(default_factory=list)
@@ -110,7 +110,7 @@ class EquilibriumModel(SolutionInputs):
         return out
 
 
-def build_equilibrium_model(method: Method) -> EquilibriumModel:
+def build_equilibrium_model(method: EquilibriumMethod) -> EquilibriumModel:
     ss = SourceSet()
     observed = method.settings.scatter == "observed"
     model = EquilibriumModel(method, ss.sources)
@@ -141,7 +141,7 @@ def build_equilibrium_model(method: Method) -> EquilibriumModel:
     return model
 
 
-def _mix_totals(ss: SourceSet, method: Method, mix, observed_standard: bool):
+def _mix_totals(ss: SourceSet, method: EquilibriumMethod, mix, observed_standard: bool):
     """A closure (x, concentrations) -> (total M, total L) of a standard or mixture made up in a flask."""
     step = f"prepare {mix.id}"
     flask = volume_term(ss, method, mix.flask, step, mix.id, not observed_standard)

@@ -12,6 +12,7 @@ from __future__ import annotations
 import dataclasses
 import math
 
+from validate.inputs.items import Cuvette, Photometer
 from validate.inputs.schema import Calibration, Method
 from validate.model.assay import Model, build_model
 from validate.model.design import CalibrationDesign
@@ -84,7 +85,7 @@ def predicted_reading_sd(method: Method, slope_abs_per_unit: float) -> float:
             random_part = sum((d * var.std_dev) ** 2 for var, d in getattr(c, "derivatives", {}).items()
                               if model.sources[var.tag].step == f"prepare {prep.solution}")
             variances.append((slope_abs_per_unit * math.sqrt(random_part) / factor) ** 2)
-    photometer = method.items.get(cal.photometer) if cal.photometer else None
+    photometer = method.item_of(cal.photometer, Photometer) if cal.photometer else None
     noise = photometer.noise if photometer else 0.0
     return math.sqrt(noise**2 + sum(variances) / len(variances))
 
@@ -93,7 +94,7 @@ def _summary(method: Method, cal: Calibration, design: CalibrationDesign) -> Val
     """Every validation statistic of the line the model fits."""
     v = method.validation
     xs, ys, ws = design.reading_points(cal.concentration_unit.factor)
-    cell = method.items.get(cal.cuvette) if cal.cuvette else None
+    cell = method.item_of(cal.cuvette, Cuvette) if cal.cuvette else None
     path = cell.path if cell is not None else None
     replicates = [s.count for s in design.samples] or [1]
     return validate_calibration(
@@ -206,7 +207,7 @@ def equilibrium_validation_block(model: EquilibriumModel) -> dict:
     against the limiting reagent's total, before any correction for incomplete complexation."""
     method, study = model.method, model.study
     xs, ys = model.design.reading_points(study.concentration_unit.factor)
-    cell = method.items.get(study.cuvette) if study.cuvette else None
+    cell = method.item_of(study.cuvette, Cuvette) if study.cuvette else None
     path = cell.path if cell is not None else None
     v = method.validation
     summary = validate_calibration(

@@ -1,0 +1,92 @@
+"""Equipment items, one class per kind, each with only the fields of its kind. Values are SI.
+
+The kind's name (`kind`, e.g. "burette") is the word the method file, the registers and
+the record use; code tells the kinds apart by class (`match item: case Burette(): ...`).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import ClassVar
+
+
+@dataclass(frozen=True, kw_only=True)
+class ItemCommon:
+    """What every item has: its id, register class and where its values come from."""
+
+    kind: ClassVar[str]
+    id: str
+    item_class: str
+    provenance: str = ""
+    defaults_used: tuple[str, ...] = ()  # plain-words notes on defaults applied
+
+
+@dataclass(frozen=True, kw_only=True)
+class Volumetric(ItemCommon):
+    """Glassware or a pipette that delivers (or, a flask, holds) a volume."""
+
+    nominal: float  # m^3
+    tolerance: float  # maximum permissible error, m^3
+    repeatability: float  # standard deviation per use, m^3
+    distribution: str = "triangular"  # of the calibration offset
+
+
+@dataclass(frozen=True, kw_only=True)
+class OneMarkPipette(Volumetric):
+    kind: ClassVar[str] = "one-mark pipette"
+
+
+@dataclass(frozen=True, kw_only=True)
+class GraduatedPipette(Volumetric):
+    kind: ClassVar[str] = "graduated pipette"
+
+
+@dataclass(frozen=True, kw_only=True)
+class PistonPipette(Volumetric):
+    kind: ClassVar[str] = "piston pipette"
+
+
+@dataclass(frozen=True, kw_only=True)
+class Burette(Volumetric):
+    kind: ClassVar[str] = "burette"
+    reading: float  # half-width of one reading of the scale, m^3
+
+
+@dataclass(frozen=True, kw_only=True)
+class VolumetricFlask(Volumetric):
+    kind: ClassVar[str] = "volumetric flask"
+
+
+@dataclass(frozen=True, kw_only=True)
+class Cuvette(ItemCommon):
+    kind: ClassVar[str] = "cuvette"
+    path: float  # optical path length, m
+    tolerance: float  # half-width of the path length, m
+
+
+@dataclass(frozen=True, kw_only=True)
+class Photometer(ItemCommon):
+    kind: ClassVar[str] = "photometer"
+    offset: float = 0.0  # absorbance half-width, shared by every reading
+    noise: float = 0.0  # absorbance standard deviation per reading
+
+
+@dataclass(frozen=True, kw_only=True)
+class Balance(ItemCommon):
+    kind: ClassVar[str] = "balance"
+    linearity: float = 0.0  # kg half-width
+    repeatability: float = 0.0  # kg standard deviation per weighing
+
+
+Item = OneMarkPipette | GraduatedPipette | PistonPipette | Burette | VolumetricFlask | Cuvette | Photometer | Balance
+
+# the order of the method file's documentation and of the messages that list the kinds
+PIPETTES: tuple[type[Volumetric], ...] = (OneMarkPipette, GraduatedPipette, PistonPipette, Burette)
+FLASKS: tuple[type[Volumetric], ...] = (VolumetricFlask,)
+VOLUMETRIC: tuple[type[Volumetric], ...] = PIPETTES + FLASKS
+ITEM_KINDS: dict[str, type[Item]] = {cls.kind: cls for cls in (OneMarkPipette, GraduatedPipette, PistonPipette,
+                                                               Burette, VolumetricFlask, Cuvette, Photometer, Balance)}
+
+
+def kind_names(kinds: tuple[type[ItemCommon], ...]) -> tuple[str, ...]:
+    return tuple(cls.kind for cls in kinds)
