@@ -18,9 +18,8 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Any
 
-from validate.inputs.formula import Formula
 from validate.inputs.items import Cuvette, Photometer
-from validate.inputs.schema import AssayMethod, Method
+from validate.inputs.schema import AssayMethod, Calibration, Method
 from validate.inputs.solutions import Blank, Certified, Diluted, Weighed, parent_of
 from validate.metrology.equipment import SourceSet, balance_terms, exact_or, value_source, volume_term
 from validate.metrology.sources import Source
@@ -83,7 +82,7 @@ class Model(SolutionInputs):
         """Results (in their display units) from source values of any backend."""
         conc = self.concentrations(x)
         values = dict(conc)
-        formula = result_formula(self.method)
+        formula = self.method.result.formula
         factor = self.method.result.unit.factor
         read = self._read_off_line(x, conc) if "c_measured" in formula.names else [("", None)]
         results = {}
@@ -102,18 +101,10 @@ class Model(SolutionInputs):
         return [(smp.id, (self._reading_terms[smp.id](x) - intercept) / slope) for smp in self._design().samples]
 
 
-def result_formula(method: Method) -> Formula:
-    """The method's parsed result formula."""
-    formula = method.result.formula
-    if not isinstance(formula, Formula):
-        raise TypeError("the method's result formula has not been parsed")
-    return formula
-
-
 def build_model(method: AssayMethod) -> Model:
     ss = SourceSet()
     s = method.settings
-    samples = method.samples if "c_measured" in result_formula(method).names else []
+    samples = method.samples if "c_measured" in method.result.formula.names else []
     name = method.result.name
     labels = [f"{name}, {smp.id}" for smp in samples] or [name]
     keys = [ResultKey("result", smp.id) for smp in samples] or [ResultKey("result")]
@@ -124,21 +115,28 @@ def build_model(method: AssayMethod) -> Model:
     for sol in solution_order(method.solutions):
         model._solution_terms[sol.id] = solution_term(ss, method, sol, observed and sol.id in standards)
     if cal:
-        model.assumptions.append(_scatter_assumption(observed))
-        design = model.design = calibration_design(method, model.concentrations(model.nominal_inputs()))
-        if design.weighted:
-            model.assumptions.append(
-                "weighted calibration line: each level weighted by 1/s^2 of its replicate readings, a sample "
-                "by 1/s^2 interpolated linearly in concentration (Miller and Miller, section 5.10)")
-        scatter = _observed_scatter(design, samples) if observed else None
-        read = [(p.solution, p.readings, design.weight(lv.id)) for lv, p in design.fitted()]
-        read += [(smp.id, design.sample(smp.id).readings, design.weight(smp.id)) for smp in samples]
-        for ident, readings, weight in read:
-            model._reading_terms[ident] = mean_reading_term(ss, method, ident, readings, scatter, cal.cuvette,
-                                                            cal.photometer, weight)
+        _calibration_terms(model, ss, cal, samples, observed)
     for q in method.quantities.values():
         model._quantity_terms[q.name] = _quantity_term(ss, method, q, samples)
     return model
+
+
+def _calibration_terms(model: Model, ss: SourceSet, cal: Calibration, samples, observed: bool) -> None:
+    """The calibration design, and the mean corrected reading of every point on the line and
+    every sample read off it."""
+    method = model.method
+    model.assumptions.append(_scatter_assumption(observed))
+    design = model.design = calibration_design(method, model.concentrations(model.nominal_inputs()))
+    if design.weighted:
+        model.assumptions.append(
+            "weighted calibration line: each level weighted by 1/s^2 of its replicate readings, a sample "
+            "by 1/s^2 interpolated linearly in concentration (Miller and Miller, section 5.10)")
+    scatter = _observed_scatter(design, samples) if observed else None
+    read = [(p.solution, p.readings, design.weight(lv.id)) for lv, p in design.fitted()]
+    read += [(smp.id, design.sample(smp.id).readings, design.weight(smp.id)) for smp in samples]
+    for ident, readings, weight in read:
+        model._reading_terms[ident] = mean_reading_term(ss, method, ident, readings, scatter, cal.cuvette,
+                                                        cal.photometer, weight)
 
 
 def _scatter_assumption(observed: bool) -> str:

@@ -10,12 +10,10 @@ from __future__ import annotations
 import datetime as _dt
 import hashlib
 from collections.abc import Sequence
-from typing import cast
 
 from validate import __version__
 from validate.equilibrium.study import equilibrium_block
-from validate.inputs.formula import Formula
-from validate.inputs.schema import Method
+from validate.inputs.schema import AssayMethod, EquilibriumMethod, Method
 from validate.model.assay import Model
 from validate.model.equilibrium import EquilibriumModel
 from validate.model.keys import ResultKey
@@ -98,11 +96,11 @@ def _run_info(inputs: tuple[InputFile, ...]) -> RunInfo:
 
 
 def _method_info(method: Method) -> MethodInfo:
-    if method.result is not None:
-        formula, unit = cast(Formula, method.result.formula).text, method.result.unit.text
-    else:
-        assert method.equilibrium is not None  # a method file has a result or an equilibrium study
-        formula, unit = EQUILIBRIUM_FORMULA, method.equilibrium.k_unit.text
+    match method:
+        case AssayMethod():
+            formula, unit = method.result.formula.text, method.result.unit.text
+        case EquilibriumMethod():
+            formula, unit = EQUILIBRIUM_FORMULA, method.equilibrium.k_unit.text
     return MethodInfo(title=method.title, measurand=method.measurand, scope=method.scope, file=method.path,
                       formula=formula, result_unit=unit)
 
@@ -117,9 +115,9 @@ def _stage_blocks(method: Method, model: Model | EquilibriumModel, results: list
         block = equilibrium_block(model, results, list(monte_carlo), *combination)
         return (ValidationBlock.from_dict(equilibrium_validation_block(model), "validation"),
                 EquilibriumBlock.from_dict(block, "equilibrium"))
-    if method.calibration is None:
+    if model.method.calibration is None:
         return None, None
-    return ValidationBlock.from_dict(validation_block(method, model, results), "validation"), None
+    return ValidationBlock.from_dict(validation_block(model.method, model, results), "validation"), None
 
 
 def _results(results: list[LinearResult], monte_carlo: Sequence[McResult], keys: dict[str, ResultKey],

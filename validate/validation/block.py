@@ -13,7 +13,7 @@ import dataclasses
 import math
 
 from validate.inputs.items import Cuvette, Photometer
-from validate.inputs.schema import Calibration, Method
+from validate.inputs.schema import AssayMethod, Calibration, Method
 from validate.model.assay import Model, build_model
 from validate.model.design import CalibrationDesign
 from validate.model.equilibrium import EquilibriumModel
@@ -66,7 +66,7 @@ def line_summary(method: Method, model: Model) -> dict | None:
     }
 
 
-def predicted_reading_sd(method: Method, slope_abs_per_unit: float) -> float:
+def predicted_reading_sd(method: AssayMethod, slope_abs_per_unit: float) -> float:
     """Scatter of single readings about the line that the bottom-up sources predict:
     photometer noise and the per-use random terms of each standard's preparation
     (repeatability, burette readings), averaged over the standards."""
@@ -136,7 +136,7 @@ def _in_concentration(fit: LineFit, readings) -> list[float]:
     return [(a - fit.intercept) / fit.slope for a in readings]
 
 
-def validation_block(method: Method, model: Model, results: list[LinearResult]) -> dict | None:
+def validation_block(method: AssayMethod, model: Model, results: list[LinearResult]) -> dict | None:
     cal = method.calibration
     if cal is None:
         return None
@@ -190,7 +190,7 @@ def _intermediate(design: CalibrationDesign, fit: LineFit, unit: str) -> dict:
     return out
 
 
-def _trueness(method: Method, results: list[LinearResult]):
+def _trueness(method: AssayMethod, results: list[LinearResult]):
     v = method.validation
     ref = v.reference_value
     if v.reference_sample is None or ref is None:
