@@ -6,18 +6,10 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 
-def _mean(readings: tuple[float, ...]) -> float:
-    return sum(readings) / len(readings)
+class RepeatedReadings:
+    """The count and mean of the repeated readings of one solution (a dataclass with `readings`)."""
 
-
-@dataclass(frozen=True)
-class Preparation:
-    """One solution made for a calibration level, and its repeated readings."""
-
-    solution: str  # id of the solution read
-    concentration: float  # SI, at the estimates of the inputs
     readings: tuple[float, ...]
-    series: tuple[str, ...] | None = None  # series label (day, analyst) of each reading
 
     @property
     def count(self) -> int:
@@ -25,7 +17,17 @@ class Preparation:
 
     @property
     def mean(self) -> float:
-        return _mean(self.readings)
+        return sum(self.readings) / len(self.readings)
+
+
+@dataclass(frozen=True)
+class Preparation(RepeatedReadings):
+    """One solution made for a calibration level, and its repeated readings."""
+
+    solution: str  # id of the solution read
+    concentration: float  # SI, at the estimates of the inputs
+    readings: tuple[float, ...]
+    series: tuple[str, ...] | None = None  # series label (day, analyst) of each reading
 
 
 @dataclass(frozen=True)
@@ -51,17 +53,9 @@ class Level:
 
 
 @dataclass(frozen=True)
-class ReadSolution:
+class ReadSolution(RepeatedReadings):
     """A solution read off the line (a sample, a mixture, a series point) and its readings."""
 
     id: str
     readings: tuple[float, ...]
     series: tuple[str, ...] | None = None
-
-    @property
-    def count(self) -> int:
-        return len(self.readings)
-
-    @property
-    def mean(self) -> float:
-        return _mean(self.readings)
