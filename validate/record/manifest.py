@@ -101,14 +101,15 @@ class FileCheck:
 
 
 def check_files(folder: Path, manifest: Manifest) -> tuple[FileCheck, ...]:
-    """Every listed file against its SHA-256, and every file present but not listed."""
+    """Every listed file against its size and SHA-256, and every file present but not listed."""
     checks = []
     for entry in manifest.files:
         target = folder / entry.path
         if not target.is_file():
             checks.append(FileCheck(entry.path, "missing"))
             continue
-        checks.append(FileCheck(entry.path, "unchanged" if sha256_of(target) == entry.sha256 else "changed"))
+        same = target.stat().st_size == entry.size and sha256_of(target) == entry.sha256
+        checks.append(FileCheck(entry.path, "unchanged" if same else "changed"))
     listed = {entry.path for entry in manifest.files}
     checks += [FileCheck(name, "not listed") for name in files_of(folder) if name not in listed]
     return tuple(checks)
