@@ -269,3 +269,30 @@ def test_a_folder_that_cannot_be_written_is_refused(tmp_path):
             api.open_output(locked / "record")
     finally:
         locked.chmod(0o755)
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("step, replaced", [("budget.csv", False), ("remove old record", True)])
+def test_ctrl_c_while_writing_says_what_the_folder_holds(runs, tmp_path, monkeypatch, capsys, step, replaced):
+    old, _ = runs
+    out = tmp_path / "record"
+    api.write_outputs(old, out, pdf=False)
+    before = (out / "results.json").read_bytes()
+
+    def press_ctrl_c(name):
+        if name == step:
+            raise KeyboardInterrupt
+
+    monkeypatch.setattr(record_folder, "checkpoint", press_ctrl_c)
+    code = cli.main(["run", old.method.path, "--out", str(out), "--overwrite", "--trials", "0", "--no-advice",
+                     "--no-pdf"])
+    assert code == 130
+    err = capsys.readouterr().err
+    expected = "after the new record was complete and in place" if replaced else "no record was written or changed"
+    assert expected in err
+    monkeypatch.setattr(record_folder, "checkpoint", lambda name: None)
+    # a complete record, every file as its manifest says (old and new have the same content here:
+    # the method did not change)
+    assert _state(out, old, old) != "mixed"
+    assert ((out / "results.json").read_bytes() != before) == replaced  # the new record has its own id and date
+    assert verify_record(out).passed and _no_hidden_siblings(out) == []
