@@ -296,3 +296,22 @@ def test_ctrl_c_while_writing_says_what_the_folder_holds(runs, tmp_path, monkeyp
     assert _state(out, old, old) != "mixed"
     assert ((out / "results.json").read_bytes() != before) == replaced  # the new record has its own id and date
     assert verify_record(out).passed and _no_hidden_siblings(out) == []
+
+
+def test_without_an_atomic_exchange_a_failed_second_rename_puts_the_old_record_back(runs, tmp_path, monkeypatch):
+    old, new = runs
+    out = tmp_path / "record"
+    api.write_outputs(old, out, pdf=False)
+    monkeypatch.setattr(record_folder, "_exchange", lambda a, b: False)
+
+    def fail_between(name):
+        if name == "swap, second rename":
+            raise OSError("no space left on device (simulated)")
+
+    monkeypatch.setattr(record_folder, "checkpoint", fail_between)
+    with pytest.raises(OSError, match="simulated"):
+        api.write_outputs(new, out, overwrite=True, pdf=False)
+    monkeypatch.setattr(record_folder, "checkpoint", lambda name: None)
+    assert _state(out, old, new) == "old" and _no_hidden_siblings(out) == []
+    api.write_outputs(new, out, overwrite=True, pdf=False)  # and without the fault the swap works
+    assert _state(out, old, new) == "new" and _no_hidden_siblings(out) == []

@@ -260,8 +260,12 @@ def _swap(staging: Path, out: Path) -> Path | None:
     aside = Path(tempfile.mkdtemp(dir=out.parent, prefix=f".{out.name}.old-"))
     os.rmdir(aside)
     os.rename(out, aside)
-    checkpoint("swap, second rename")
-    os.rename(staging, out)
+    try:
+        checkpoint("swap, second rename")
+        os.rename(staging, out)
+    except BaseException:
+        os.rename(aside, out)  # the old record back in place at once
+        raise
     return aside
 
 
