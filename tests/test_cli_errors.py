@@ -6,6 +6,7 @@ import json
 import shutil
 import subprocess
 import sys
+from pathlib import Path
 
 import pytest
 from conftest import DEMOS
@@ -82,7 +83,9 @@ def test_demo_run_writes_the_record(tmp_path):
     assert proc.returncode == 0, proc.stderr
     record = json.loads((out / "results.json").read_text())
     assert record["software"]["name"] == "validate"
-    assert {i["path"].split("/")[-1] for i in record["inputs"]} == {"method.toml", "readings.csv"}
+    # the method, its readings and the built-in registers it was read with (budgets/)
+    builtin = {p.name for p in (Path(__file__).resolve().parents[1] / "budgets").glob("*.toml")}
+    assert {i["path"].split("/")[-1] for i in record["inputs"]} == {"method.toml", "readings.csv"} | builtin
     assert all(len(i["sha256"]) == 64 for i in record["inputs"])
     for result in record["results"]:
         for key in ("name", "unit", "value", "standard_uncertainty", "expanded_uncertainty",

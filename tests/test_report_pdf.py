@@ -475,3 +475,15 @@ def _tiny_png() -> bytes:
     buffer = io.BytesIO()
     fig.savefig(buffer, format="png")
     return buffer.getvalue()
+
+
+def test_the_content_hash_is_on_page_one_only_when_given(tmp_path):
+    from validate.record.manifest import content_hash
+
+    record = synthetic_record(3)
+    digest = content_hash(record)
+    build_report(record, tmp_path / "with.pdf", content_hash=digest)
+    build_report(record, tmp_path / "without.pdf")
+    first = pages_text(tmp_path / "with.pdf")[0].replace("\n", "")
+    assert "content hash" in first and digest in first.replace(" ", "")
+    assert "content hash" not in pages_text(tmp_path / "without.pdf")[0]

@@ -136,16 +136,25 @@ def test_verify_lines_name_each_input_and_the_mismatches():
                          {"stored": "inputs/readings.csv", "matches": False, "stored_sha256": "b"},
                          {"stored": "inputs/extra.csv", "matches": False, "stored_sha256": None}],
               "trials": 1000, "seed": 7, "rerun_error": None, "numbers_compared": 120,
-              "relative_tolerance": 1e-9, "passed": False,
+              "relative_tolerance": 1e-9, "passed": False, "identical": False,
+              "has_manifest": True, "files": [{"path": "results.json", "state": "unchanged"},
+                                              {"path": "report.pdf", "state": "changed"}],
+              "content_hash": "c" * 64, "recorded_content_hash": "c" * 64, "budget_file_matches": False,
               "mismatches": [{"path": f"results[0].value{i}", "recorded": 1.0, "recomputed": 1.1} for i in range(3)]}
     lines = terminal.describe_verify(report, limit=2)
     assert lines[0] == "record VR-1 in out, written by validate 0.1.0, re-run with 0.2.0"
+    assert lines[1:4] == ["  files: 1 of 2 match manifest.json", "    report.pdf: CHANGED",
+                          f"  content hash {'c' * 64}: matches manifest.json"]
+    assert "  budget.csv: DIFFERS from the record's budget (or is missing)" in lines
     assert "  input inputs/readings.csv: CHANGED (SHA-256 differs from the record)" in lines
     assert "  input inputs/extra.csv: MISSING" in lines
-    assert "3 of the record's values differ (120 numbers compared, relative tolerance 1e-09)" in lines[4]
+    assert "3 of the record's values differ (120 numbers compared, relative tolerance 1e-09)" in lines[8]
     assert lines[-2] == "    ... and 1 more" and lines[-1] == "NOT verified: see above"
     failed = terminal.describe_verify({**report, "rerun_error": "bad file", "mismatches": []})
-    assert "  re-run (1000 Monte Carlo trials, seed 7) failed: bad file" in failed
+    assert "  re-run from the stored copies (1000 Monte Carlo trials, seed 7) failed: bad file" in failed
+    unlisted = terminal.describe_verify({**report, "has_manifest": False, "recorded_content_hash": None})
+    assert unlisted[1] == "  manifest.json: MISSING (the files of the folder cannot be checked)"
+    assert unlisted[2] == f"  content hash {'c' * 64}: DIFFERS from manifest.json (none)"
 
 
 def test_check_and_error_lines_escape_record_text():

@@ -20,6 +20,7 @@ from validate.workflow import pipeline as api
 from validate.workflow.verify import verify_record
 
 DEMO = DEMOS / "phosphate_assay"
+BUILTIN = Path(__file__).resolve().parents[1] / "budgets"  # the registers shipped with the package
 SEED = 20240611
 TRIALS = 20000
 
@@ -55,9 +56,13 @@ def _record(folder):
 @pytest.mark.slow
 def test_inputs_are_stored_beside_the_record_with_their_hashes(record_dir):
     record = _record(record_dir)
-    assert [i["stored"] for i in record["inputs"]] == ["inputs/method.toml", "inputs/readings.csv"]
+    registers = sorted(p.name for p in BUILTIN.glob("*.toml"))
+    assert [i["stored"] for i in record["inputs"]] == ["inputs/method.toml", "inputs/readings.csv",
+                                                       *(f"registers/{name}" for name in registers)]
+    assert [i["role"] for i in record["inputs"]] == ["method file", "readings table"] + ["built-in register"] * 3
     for entry in record["inputs"]:
-        assert (record_dir / entry["stored"]).read_bytes() == (DEMO / entry["stored"].split("/")[-1]).read_bytes()
+        original = (DEMO if entry["stored"].startswith("inputs/") else BUILTIN) / entry["stored"].split("/")[-1]
+        assert (record_dir / entry["stored"]).read_bytes() == original.read_bytes()
         assert records.sha256_of(record_dir / entry["stored"]) == entry["sha256"]
 
 
@@ -80,8 +85,9 @@ def test_an_edited_readings_table_is_caught(record_dir):
     stored.write_text(stored.read_text().replace("river_upstream,0.1329", "river_upstream,0.1429"))
     report = verify_record(record_dir)
     assert not report.passed and not report.inputs_unchanged and not report.reproduced
-    assert {c.stored: c.matches for c in report.inputs} == {"inputs/method.toml": True,
-                                                            "inputs/readings.csv": False}
+    assert {c.stored: c.matches for c in report.inputs if c.stored.startswith("inputs/")} == {
+        "inputs/method.toml": True, "inputs/readings.csv": False}
+    assert all(c.matches for c in report.inputs if c.stored.startswith("registers/"))
     by_path = {m.path: m for m in report.mismatches}
     record = _record(record_dir)
     assert record["results"][0]["sample"] == "river_upstream"
@@ -99,7 +105,7 @@ def test_an_edited_method_file_is_caught(record_dir):
     stored = record_dir / "inputs" / "method.toml"
     stored.write_text(stored.read_text().replace('mass = "68.05 mg"', 'mass = "68.10 mg"'))
     report = verify_record(record_dir)
-    assert [c.matches for c in report.inputs] == [False, True]
+    assert [c.matches for c in report.inputs] == [False, True, True, True, True]
     values = {m.path: m for m in report.mismatches if m.path.endswith("].value") and m.path.startswith("results")}
     assert len(values) == 4  # every result rests on the stock solution's mass
     for m in values.values():

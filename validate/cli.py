@@ -112,17 +112,29 @@ def _check(args, console: Console) -> int:
 
 
 def _run(args, console: Console) -> int:
-    api.check_output_folder(args.out, args.overwrite)
+    # --out is checked, locked and staged before any computation; the record is swapped into
+    # place whole at the end, so --out holds the old or the new record at every instant
+    target = api.open_output(args.out, args.overwrite, args.method)
+    try:
+        run = _analyse(args, console)
+        written = api.write_record(run, target, pdf=not args.no_pdf)
+    except KeyboardInterrupt:
+        _show(Console(stderr=True, highlight=False), [terminal.interrupted_line(replaced=target.committed)])
+        return 130
+    finally:
+        target.close()
+    _show(console, terminal.run_lines(run.record, args.top) + terminal.written_lines(written))
+    return 0
+
+
+def _analyse(args, console: Console) -> api.Run:
     progress = terminal.ProgressBars(console) if console.is_terminal else None  # not into a file or pipe
     try:
-        run = api.analyse(args.method, trials=args.trials or None, seed=args.seed,
-                          progress_factory=progress, advice=not args.no_advice)
+        return api.analyse(args.method, trials=args.trials or None, seed=args.seed,
+                           progress_factory=progress, advice=not args.no_advice)
     finally:
         if progress is not None:
             progress.stop()
-    written = api.write_outputs(run, args.out, overwrite=args.overwrite, pdf=not args.no_pdf)
-    _show(console, terminal.run_lines(run.record, args.top) + terminal.written_lines(written))
-    return 0
 
 
 def _verify(args, console: Console) -> int:

@@ -38,7 +38,7 @@ from validate.advisor.readings import reading_candidates
 from validate.advisor.stated_inputs import input_value_candidates, temperature_candidates
 from validate.equilibrium.study import build_ready_model
 from validate.inputs.errors import InputError
-from validate.inputs.registers import RegisterEntry, load_registers
+from validate.inputs.registers import RegisterEntry, merge_registers
 from validate.inputs.schema import Method
 from validate.model.assay import Model, ModelError
 from validate.model.equilibrium import COMBINED
@@ -315,8 +315,7 @@ def _partition(evaluated: list[_Evaluated], before: float) -> tuple[list[_Evalua
 
 def _evaluate_all(method: Method, results: list[LinearResult]) -> tuple[list[_Evaluated], list[str]]:
     """Every candidate evaluated, best first; those the model cannot evaluate, with the reason."""
-    extra = [Path(method.path).parent / r for r in method.settings.registers]
-    entries, _ = load_registers(extra)
+    entries, _ = merge_registers([Path(r) for r in method.registers_used])  # the files the method was read with
     evaluated, skipped = [], []
     for cand in generate(method, Shares.of(results), entries):
         try:

@@ -10,13 +10,14 @@ from __future__ import annotations
 
 import math
 
-from uncertainties import covariance_matrix, ufloat
+from uncertainties import ufloat
 
 from validate.equilibrium.combine import combine_correlated, davies_activity_correction, trend_test
 from validate.inputs.schema import EquilibriumStudy
 from validate.model.build import build
 from validate.model.equilibrium import COMBINED, LOG10, EquilibriumModel
 from validate.model.standards import fit_joint, iterate_standards
+from validate.propagation.linear import covariance
 
 # A point constrains K best when the complex holds between about 20 % and 80 % of the
 # reagent in deficit (D. A. Deranleau, J. Am. Chem. Soc. 91 (1969) 4044; from memory).
@@ -29,7 +30,7 @@ def prepare_combination(model: EquilibriumModel):
     variables = {n: ufloat(s.value, s.u, tag=n) for n, s in model.sources.items()}
     outputs = model.evaluate(variables)
     ks = [outputs[f"K, {p}"] for p in model.points]
-    cov = covariance_matrix(ks)
+    cov = covariance(ks)  # summed in source-name order: the same bits in every run
     values = [k.nominal_value for k in ks]
     combined = combine_correlated(values, cov) if len(values) > 1 else None
     model.weights = list(combined.weights) if combined else [1.0]

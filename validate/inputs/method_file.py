@@ -16,6 +16,7 @@ from validate.inputs.equilibrium_file import check_equilibrium_readings, parse_e
 from validate.inputs.equipment_section import parse_item
 from validate.inputs.errors import InputError
 from validate.inputs.readings import load_reading_series, load_readings, read_text_file
+from validate.inputs.redirect import Redirect
 from validate.inputs.registers import load_registers
 from validate.inputs.schema import AssayMethod, EquilibriumMethod, Method, Sample, Settings
 from validate.inputs.solutions_section import check_solution_graph, parse_solution
@@ -27,14 +28,19 @@ TOP_KEYS = ("method", "settings", "equipment", "solutions", "calibration", "samp
 ASSAY_ONLY = ("samples", "quantities", "validation", "acceptance")  # sections a study does not read
 
 
-def load_method(path) -> Method:
+def load_method(path, redirect: Redirect | None = None) -> Method:
+    """`redirect`: where to read the files the method names (a filed record's own copies)."""
     path = Path(path)
     top = _top_table(path)
     defaults: list[str] = []
-    common, extra = _common_parts(top, path, defaults)
+    common, extra = _common_parts(top, path, defaults, redirect)
     if top.has("equilibrium"):
-        return _equilibrium_method(top, path, common, extra, defaults)
-    return _assay_method(top, path, common, extra, defaults)
+        return _equilibrium_method(top, path, common, extra, defaults, redirect)
+    return _assay_method(top, path, common, extra, defaults, redirect)
+
+
+def _located(path: Path, what: str, redirect: Redirect | None) -> Path:
+    return path if redirect is None else redirect.locate(path, what)
 
 
 def _top_table(path: Path) -> Table:
@@ -50,13 +56,14 @@ def _top_table(path: Path) -> Table:
     return top
 
 
-def _common_parts(top: Table, path: Path, defaults: list[str]) -> tuple[dict, list[Path]]:
+def _common_parts(top: Table, path: Path, defaults: list[str],
+                  redirect: Redirect | None) -> tuple[dict, list[Path]]:
     """The fields every kind of method has, and the laboratory's register files."""
     info = Table(top.get("method", {}), path, "[method]")
     info.allow("title", "measurand", "scope")
     settings = _settings(Table(top.get("settings", {}), path, "[settings]"), defaults)
-    extra = [(path.parent / r) for r in settings.registers]
-    entries, register_files = load_registers(extra)
+    extra = [_located(path.parent / r, "register", redirect) for r in settings.registers]
+    entries, register_files = load_registers(extra, None if redirect is None else redirect.builtin_registers)
     items = {item_id: parse_item(item_id, Table(raw, path, f"[equipment.{item_id}]"), entries, settings, defaults)
              for item_id, raw in top.named_tables("equipment").items()}
     repeat = [u for item in items.values() for u in item.defaults_used if u.endswith(" mL")]
@@ -78,7 +85,8 @@ def _input_files(*paths: Path | None) -> tuple[str, ...]:
     return tuple(dict.fromkeys(str(p) for p in paths if p is not None))
 
 
-def _assay_method(top: Table, path: Path, common: dict, extra: list[Path], defaults: list[str]) -> AssayMethod:
+def _assay_method(top: Table, path: Path, common: dict, extra: list[Path], defaults: list[str],
+                  redirect: Redirect | None) -> AssayMethod:
     items, solutions = common["items"], common["solutions"]
     calibration = parse_calibration(top.sub("calibration"), items, solutions, defaults) \
         if top.has("calibration") else None
@@ -91,7 +99,7 @@ def _assay_method(top: Table, path: Path, common: dict, extra: list[Path], defau
     notes: list[str] = []
     readings_path = None
     if calibration is not None:
-        readings_path = path.parent / calibration.readings_file
+        readings_path = _located(path.parent / calibration.readings_file, "readings table", redirect)
         readings = load_readings(readings_path)
         series = load_reading_series(readings_path)
         check_readings(readings, calibration, samples, readings_path, notes)
@@ -114,7 +122,7 @@ def _samples(top: Table, path: Path) -> tuple[Sample, ...]:
 
 
 def _equilibrium_method(top: Table, path: Path, common: dict, extra: list[Path],
-                        defaults: list[str]) -> EquilibriumMethod:
+                        defaults: list[str], redirect: Redirect | None) -> EquilibriumMethod:
     if top.has("result") or top.has("calibration"):
         raise InputError("a method file holds either an assay ([calibration] and [result]) or an "
                          "equilibrium study ([equilibrium]), not both", file=path,
@@ -124,7 +132,7 @@ def _equilibrium_method(top: Table, path: Path, common: dict, extra: list[Path],
             raise top.error(f"[{key}] belongs to an assay; an equilibrium study does not read it", key,
                             fix=f"leave out [{key}], or put the assay in a method file of its own")
     study = parse_equilibrium(top.sub("equilibrium"), common["items"], common["solutions"], defaults)
-    readings_path = path.parent / study.readings_file
+    readings_path = _located(path.parent / study.readings_file, "readings table", redirect)
     readings = load_readings(readings_path)
     check_equilibrium_readings(study, readings, readings_path)
     return EquilibriumMethod(**common, equilibrium=study, readings=readings,

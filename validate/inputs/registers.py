@@ -74,9 +74,15 @@ def load_register(path: Path) -> list[RegisterEntry]:
     return entries
 
 
-def load_registers(extra: list[Path]) -> tuple[list[RegisterEntry], list[str]]:
-    """Default registers, then the laboratory's, later entries replacing earlier ones."""
-    files = default_register_files() + list(extra)
+def load_registers(extra: list[Path], builtin: tuple[Path, ...] | None = None
+                   ) -> tuple[list[RegisterEntry], list[str]]:
+    """Default registers (the package's, or `builtin` in their place), then the laboratory's,
+    later entries replacing earlier ones."""
+    return merge_registers((default_register_files() if builtin is None else list(builtin)) + list(extra))
+
+
+def merge_registers(files: list[Path]) -> tuple[list[RegisterEntry], list[str]]:
+    """The entries of these register files in order, later entries replacing earlier ones."""
     merged: dict[tuple, RegisterEntry] = {}
     for path in files:
         for entry in load_register(path):

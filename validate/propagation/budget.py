@@ -25,10 +25,11 @@ class GroupShare:
 
 def grouped(result: LinearResult, key: str) -> list[GroupShare]:
     """Variance shares summed by `step` or `equipment` (sources without one: "(none)")."""
-    totals: dict[str, float] = {}
+    members: dict[str, list[float]] = {}
     for row in result.contributions:
-        name = getattr(row, key) or "(none)"
-        totals[name] = totals.get(name, 0.0) + row.contribution**2
+        members.setdefault(getattr(row, key) or "(none)", []).append(row.contribution**2)
+    # fsum rounds the exact sum once: a group's variance does not depend on the order of its members
+    totals = {name: math.fsum(squares) for name, squares in members.items()}
     variance = result.standard_uncertainty**2
     groups = [GroupShare(g, math.sqrt(v), v / variance if variance > 0 else 0.0) for g, v in totals.items()]
     return sorted(groups, key=lambda g: (-round(g.share, 12), g.group))  # round-off must not reorder

@@ -10,6 +10,7 @@ t quantile at the coverage probability (GUM G.3, G.4).
 from __future__ import annotations
 
 import math
+from collections.abc import Sequence
 from dataclasses import asdict, dataclass
 
 from scipy import stats
@@ -125,3 +126,30 @@ def propagate(model: Model) -> list[LinearResult]:
         k = coverage_factor(p, dof)
         results.append(LinearResult(label, unit, y.nominal_value, u, dof, k, p, k * u, tuple(contribs)))
     return results
+
+
+def _terms_by_source(y) -> dict[str, tuple[float, float]]:
+    """{source name: (derivative, standard uncertainty)} of a linear-engine number."""
+    if not isinstance(y, AffineScalarFunc):
+        return {}
+    return {str(var.tag): (d, var.std_dev) for var, d in y.derivatives.items()}
+
+
+def covariance(outputs: Sequence) -> list[list[float]]:
+    """Covariance matrix of outputs of the linear engine (GUM 5.2.2, uncorrelated inputs:
+    u(y_i, y_j) = sum over sources of c_i c_j u(x)^2).
+
+    Each sum is formed by math.fsum, which rounds the exact sum once, so its bits do not depend
+    on the order of the terms: the same inputs give the same matrix in every run. (The
+    `uncertainties` package's own covariance_matrix sums over a set of its variables, whose
+    order follows their memory addresses, so its last digits change from run to run.)
+    """
+    terms = [_terms_by_source(y) for y in outputs]
+    n = len(terms)
+    matrix = [[0.0] * n for _ in range(n)]
+    for i in range(n):
+        for j in range(i + 1):
+            shared = terms[i].keys() & terms[j].keys()
+            value = math.fsum(terms[i][s][0] * terms[j][s][0] * terms[i][s][1] ** 2 for s in shared)
+            matrix[i][j] = matrix[j][i] = value
+    return matrix

@@ -58,7 +58,7 @@ def build_record(method: Method, model: Model | EquilibriumModel, results: list[
                  trials: int | str | None = None, seed: int | None = None) -> Record:
     """The record of one run. `combination` is the equilibrium study's (GLS result, K values,
     covariance); `advice` an AdviceReport; `trials` and `seed` those of the Monte Carlo run."""
-    inputs = tuple(InputFile(path=str(p), sha256=sha256_of(p)) for p in method.input_files)
+    inputs = input_entries(method)
     validation, equilibrium = _stage_blocks(method, model, results, monte_carlo, combination)
     keys = dict(zip(model.result_labels, model.result_keys, strict=True))
     return Record(
@@ -87,6 +87,23 @@ def build_record(method: Method, model: Model | EquilibriumModel, results: list[
                                           **{k: v for k, v in row.items() if k != "result"}}, "budget")
                      for row in budget_rows(results)),
     )
+
+
+METHOD_FILE, READINGS, REGISTER, BUILTIN_REGISTER = "method file", "readings table", "register", "built-in register"
+
+
+def input_entries(method: Method) -> tuple[InputFile, ...]:
+    """Every file the run read, with its SHA-256: the method file, its readings table, the
+    laboratory's registers, and the built-in registers that were loaded with them."""
+    given = [str(p) for p in method.input_files]
+    registers = [str(p) for p in method.registers_used]
+
+    def role(path: str) -> str:
+        return METHOD_FILE if path == str(method.path) else REGISTER if path in registers else READINGS
+
+    entries = [InputFile(path=p, sha256=sha256_of(p), role=role(p)) for p in given]
+    entries += [InputFile(path=p, sha256=sha256_of(p), role=BUILTIN_REGISTER) for p in registers if p not in given]
+    return tuple(entries)
 
 
 def _run_info(inputs: tuple[InputFile, ...]) -> RunInfo:

@@ -1,4 +1,4 @@
-"""The quality record: results.json and budget.csv, written atomically.
+"""The quality record's files: results.json and budget.csv as bytes, and single files written atomically.
 
 results.json is a contract other programs rely on (see README, "The record").
 Files are written to a temporary name in the same folder and moved into place
@@ -42,9 +42,14 @@ def write_atomic(path: Path, data: bytes) -> None:
         raise
 
 
+def json_bytes(data: dict) -> bytes:
+    """The one way the record's JSON files are written: the same data give the same bytes."""
+    return (json.dumps(data, indent=2, ensure_ascii=False, allow_nan=False) + "\n").encode("utf-8")
+
+
 def record_json(record: RecordPart) -> bytes:
     """results.json: the record's JSON form (its to_dict, which already holds only JSON values)."""
-    return (json.dumps(record.to_dict(), indent=2, ensure_ascii=False, allow_nan=False) + "\n").encode("utf-8")
+    return json_bytes(record.to_dict())
 
 
 BUDGET_COLUMNS = ("result", "source", "step", "equipment", "value", "unit", "standard_uncertainty",

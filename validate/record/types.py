@@ -20,7 +20,7 @@ from validate.record.blocks import AdviceBlock, EquilibriumBlock
 from validate.record.blocks_validation import ValidationBlock, ValidationSettingsEntry
 from validate.record.tree import RecordPart, described, omitted_when_none
 
-SCHEMA_VERSION = "1.0"
+SCHEMA_VERSION = "1.1"
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -52,6 +52,8 @@ class InputFile(RecordPart):
     path: str = described("where the file was read from")
     sha256: str = described("SHA-256 of the bytes analysed")
     stored: str | None = omitted_when_none("the copy kept beside the record, relative to its folder")
+    role: str | None = omitted_when_none("method file, readings table, register (the laboratory's) or "
+                                         "built-in register (shipped with the software)")
 
 
 @dataclass(frozen=True, kw_only=True)

@@ -85,9 +85,9 @@ class ReportInfo:
         return {"page_count": self.page_count, "sections": list(self.sections)}
 
 
-def _story(record: dict) -> tuple[list, list[str]]:
+def _story(record: dict, content_hash: str | None = None) -> tuple[list, list[str]]:
     """All flowables in order, and the titles of the sections that were rendered."""
-    story, titles = list(sections.title_block(record)), list[str]()
+    story, titles = list(sections.title_block(record, content_hash)), list[str]()
     for title, builder, new_page in SECTIONS:
         body = builder(record)
         if body is None and title not in FIXED:
@@ -196,15 +196,16 @@ def _check_record(record) -> None:
                          "validate.workflow.pipeline.build_record returns")
 
 
-def build_report(record: dict, path: Path) -> ReportInfo:
-    """Write the PDF report of `record` to `path` atomically; return its page count and sections."""
+def build_report(record: dict, path: Path, content_hash: str | None = None) -> ReportInfo:
+    """Write the PDF report of `record` to `path` atomically; return its page count and sections.
+    `content_hash` (validate.record.manifest.content_hash of the record) is shown on page 1."""
     _check_record(record)
     register_fonts()
     path = Path(path)
     handle, temp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".part")
     os.close(handle)
     try:
-        story, titles = _story(record)
+        story, titles = _story(record, content_hash)
         method = record.get("method") or {}
         doc = SimpleDocTemplate(
             temp, pagesize=PAGE_SIZE, leftMargin=MARGIN_X, rightMargin=MARGIN_X,

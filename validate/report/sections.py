@@ -60,12 +60,14 @@ def coloured(status: str, good: bool | None) -> Paragraph:
 # --------------------------------------------------------------------------
 # Summary (first page)
 
-def title_block(record: dict) -> list:
+def title_block(record: dict, content_hash: str | None = None) -> list:
     method, run, software = record.get("method", {}), record.get("run", {}), record.get("software", {})
     facts = [("record id", run.get("record_id", DASH)),
              ("created", run.get("created", DASH)),
              ("measurand", method.get("measurand") or DASH),
              ("software", f"{software.get('name', 'validate')} {software.get('version', '')}".strip())]
+    if content_hash:  # SHA-256 of results.json without its run block; `validate verify` prints it too
+        facts.append(("content hash", content_hash))
     return [para(method.get("title") or "Untitled method", "title"),
             para("Method validation and measurement uncertainty report", "subtitle"),
             gap(2), key_value_table(facts, (32, 142)), gap(3)]

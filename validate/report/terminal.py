@@ -106,8 +106,11 @@ def error_line(kind: str, message: str) -> Line:
     return Line(f"[bold red]{escape(kind)}[/] {escape(message)}", soft_wrap=True)
 
 
-def interrupted_line() -> Line:
-    return Line("interrupted: no record was written or changed (files are moved into place only when complete)")
+def interrupted_line(replaced: bool = False) -> Line:
+    """`replaced`: the interruption came after the new record was swapped into place."""
+    if replaced:
+        return Line("interrupted after the new record was complete and in place")
+    return Line("interrupted: no record was written or changed (a record is moved into place only when complete)")
 
 
 # --------------------------------------------------------------------------
@@ -125,11 +128,12 @@ def _rerun_lines(report: dict, limit: int) -> list[str]:
     tolerance = f"relative tolerance {report['relative_tolerance']:g}"
     mismatches = report["mismatches"]
     if report["rerun_error"]:
-        return [f"  re-run ({how}) failed: {report['rerun_error']}"]
+        return [f"  re-run from the stored copies ({how}) failed: {report['rerun_error']}"]
     if not mismatches:
-        return [f"  re-run ({how}): results and budget reproduced ({report['numbers_compared']} numbers, "
-                f"{tolerance})"]
-    lines = [f"  re-run ({how}): {len(mismatches)} of the record's values differ "
+        exact = "bit for bit" if report["identical"] else tolerance
+        return [f"  re-run from the stored copies ({how}): the whole record reproduced "
+                f"({report['numbers_compared']} numbers, {exact})"]
+    lines = [f"  re-run from the stored copies ({how}): {len(mismatches)} of the record's values differ "
              f"({report['numbers_compared']} numbers compared, {tolerance})"]
     lines += [f"    {m['path']}: recorded {m['recorded']!r}, now {m['recomputed']!r}" for m in mismatches[:limit]]
     if len(mismatches) > limit:
@@ -137,15 +141,33 @@ def _rerun_lines(report: dict, limit: int) -> list[str]:
     return lines
 
 
+def _file_lines(report: dict, limit: int) -> list[str]:
+    """The folder's files against manifest.json, the content hash and budget.csv."""
+    if not report["has_manifest"]:
+        lines = ["  manifest.json: MISSING (the files of the folder cannot be checked)"]
+    else:
+        files = report["files"]
+        odd = [f for f in files if f["state"] != "unchanged"]
+        lines = [f"  files: {len(files) - len(odd)} of {len(files)} match manifest.json"]
+        lines += [f"    {f['path']}: {f['state'].upper()}" for f in odd[:limit]]
+    recorded, now = report["recorded_content_hash"], report["content_hash"]
+    state = "matches manifest.json" if recorded == now else f"DIFFERS from manifest.json ({recorded or 'none'})"
+    lines.append(f"  content hash {now}: {state}")
+    lines.append("  budget.csv: " + ("as the record's budget gives it" if report["budget_file_matches"] else
+                                     "DIFFERS from the record's budget (or is missing)"))
+    return lines
+
+
 def describe_verify(report: dict, limit: int = 20) -> list[str]:
-    """Plain-words lines of a verification (VerifyReport.to_dict()): each input, the re-run,
-    the first `limit` mismatches, the verdict."""
+    """Plain-words lines of a verification (VerifyReport.to_dict()): the folder's files, each input,
+    the re-run, the first `limit` mismatches, the verdict."""
     lines = [f"record {report['record_id'] or '(no id)'} in {report['folder']}, written by validate "
              f"{report['recorded_version'] or '(unknown version)'}, re-run with {report['current_version']}"]
+    lines += _file_lines(report, limit)
     lines += [f"  input {check['stored']}: {_input_state(check)}" for check in report["inputs"]]
     lines += _rerun_lines(report, limit)
-    lines.append("verified: the record reproduces from its stored inputs" if report["passed"] else
-                 "NOT verified: see above")
+    lines.append("verified: every file as written and the record reproduces from its stored inputs"
+                 if report["passed"] else "NOT verified: see above")
     return lines
 
 

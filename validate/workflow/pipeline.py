@@ -5,13 +5,13 @@ The command line holds no computation; everything it prints comes from here.
 
 from __future__ import annotations
 
-import dataclasses
 from dataclasses import dataclass, field
 from pathlib import Path
 
 from validate.equilibrium.study import build_ready_model
-from validate.inputs.errors import InputError
 from validate.inputs.method_file import load_method
+from validate.inputs.redirect import Redirect
+from validate.inputs.registers import default_register_files
 from validate.inputs.schema import Method
 from validate.model.assay import Model
 from validate.model.build import build
@@ -19,10 +19,13 @@ from validate.model.equilibrium import EquilibriumModel
 from validate.propagation.linear import LinearResult, propagate
 from validate.propagation.montecarlo import McResult, expected_work, new_seed, propagate_mc
 from validate.record.build import build_record
-from validate.record.files import budget_csv, record_json, write_atomic
+from validate.record.files import budget_csv, record_json
+from validate.record.folder import RECORD_ALLOWANCE, OutputFolder, check_space, check_target
+from validate.record.manifest import MANIFEST_FILE, content_hash, make_manifest
+from validate.record.stored import copy_bytes, with_stored_names
 from validate.record.types import Record
 
-OUTPUT_FILES = ("results.json", "budget.csv", "report.pdf")
+OUTPUT_FILES = ("results.json", "budget.csv", "report.pdf", MANIFEST_FILE)
 
 
 @dataclass
@@ -49,10 +52,11 @@ def check(path) -> tuple[Method, Model | EquilibriumModel]:
 
 
 def analyse(path, trials: int | str | None = 1_000_000, seed: int | None = None,
-            progress_factory=None, advice: bool = True) -> Run:
+            progress_factory=None, advice: bool = True, redirect: Redirect | None = None) -> Run:
     """Both engines on one method file. `trials=None` runs the linear engine only;
-    `progress_factory(total)` may return a callable advanced by trials done."""
-    method = load_method(path)
+    `progress_factory(total)` may return a callable advanced by trials done; `redirect` says
+    where to read the files the method names (a filed record's own copies)."""
+    method = load_method(path, redirect)
     model, combination = build_ready_model(method)
     results = propagate(model)
     run = Run(method, model, results, trials=trials)
@@ -65,61 +69,56 @@ def analyse(path, trials: int | str | None = 1_000_000, seed: int | None = None,
         from validate.advisor.advice import advise
         run.advice = advise(method, results, seed=run.seed if run.seed is not None else 1,
                             confirm_with_mc=3 if trials else 0)
-    run.set_record(build_record(method, model, results, run.monte_carlo, combination=combination,
-                                advice=run.advice, trials=run.trials, seed=run.seed))
+    record = build_record(method, model, results, run.monte_carlo, combination=combination,
+                          advice=run.advice, trials=run.trials, seed=run.seed)
+    run.set_record(with_stored_names(record))
     return run
 
 
+def expected_size(method_path) -> int:
+    """What a record of this method will take on disk, as far as it can be told before the run:
+    the method file, the built-in registers and room for the record's own files."""
+    files = [Path(method_path), *default_register_files()]
+    return sum(p.stat().st_size for p in files if p.is_file()) + RECORD_ALLOWANCE
+
+
 def check_output_folder(out_dir, overwrite: bool) -> None:
-    """Refuse early (before any computation) to write where a record already is."""
-    out = Path(out_dir)
-    if out.exists() and not out.is_dir():
-        raise InputError("the output path exists and is not a folder", file=out,
-                         fix="choose a folder name with --out")
-    existing = [out / name for name in OUTPUT_FILES if (out / name).exists()]
-    if existing and not overwrite:
-        raise InputError("this folder already holds a record; it is not overwritten", file=out,
-                         fix="choose another folder with --out, or add --overwrite to replace it")
+    """Refuse early (before any computation) to write where a record cannot or may not go."""
+    check_target(Path(out_dir).absolute(), overwrite)
+
+
+def open_output(out_dir, overwrite: bool = False, method_path=None) -> OutputFolder:
+    """`--out` checked, locked and staged before any computation (validate.record.folder)."""
+    expected = expected_size(method_path) if method_path is not None else RECORD_ALLOWANCE
+    target = OutputFolder(out_dir, overwrite, expected)
+    target.open()
+    return target
+
+
+def write_record(run: Run, target: OutputFolder, pdf: bool = True) -> list[Path]:
+    """Stage the whole record in `target` (copies of the inputs and registers, results.json,
+    budget.csv, report.pdf, manifest.json) and swap it into place."""
+    if run.typed_record is None:
+        raise ValueError("the run has no record yet: analyse() builds it")
+    record = run.typed_record
+    payloads = {entry.stored or "": copy_bytes(entry) for entry in record.inputs}
+    payloads["results.json"] = record_json(record)
+    payloads["budget.csv"] = budget_csv(run.record["budget"])
+    check_space(target.out.parent, sum(len(d) for d in payloads.values()) + (RECORD_ALLOWANCE if pdf else 0))
+    for name, data in payloads.items():
+        target.write(name, data)
+    if pdf:
+        from validate.report.pdf import build_report
+        build_report(run.record, target.reserve("report.pdf"), content_hash=content_hash(run.record))
+    target.write(MANIFEST_FILE, make_manifest(target.staged, run.record).to_json())
+    target.commit()
+    return [target.out / name for name in OUTPUT_FILES if (target.out / name).exists()]
 
 
 def write_outputs(run: Run, out_dir, overwrite: bool = False, pdf: bool = True) -> list[Path]:
-    """results.json, budget.csv, report.pdf and a copy of the inputs (DIR/inputs/, for
-    `validate verify`). The PDF is built first into a hidden temporary file and every file is
-    written whole and moved into place, so a failure never leaves a half-written record."""
-    import os
-
-    from validate.record.verify import store_inputs
-
-    out = Path(out_dir)
-    check_output_folder(out, overwrite)
-    out.mkdir(parents=True, exist_ok=True)
-    pending = out / ".report.pdf.new"
+    """Open `out_dir`, write the run's record and swap it into place, in one call."""
+    target = open_output(out_dir, overwrite, run.method.path)
     try:
-        if pdf:
-            from validate.report.pdf import build_report
-            build_report(run.record, pending)
-        stored = store_inputs(list(run.method.input_files), out)
-        record = with_stored_inputs(run.typed_record, stored)
-        payloads = {"results.json": record_json(record), "budget.csv": budget_csv(record.to_dict()["budget"])}
-        written = []
-        for name, data in payloads.items():
-            write_atomic(out / name, data)
-            written.append(out / name)
-        if pdf:
-            os.replace(pending, out / "report.pdf")
-            written.append(out / "report.pdf")
-        run.set_record(record)
+        return write_record(run, target, pdf)
     finally:
-        if pending.exists():
-            pending.unlink()
-    return written
-
-
-def with_stored_inputs(record: Record | None, stored: list[dict]) -> Record:
-    """The record with each input's stored copy named. The SHA-256 stays that of what was
-    analysed: a file changed since shows up in `validate verify`."""
-    if record is None:
-        raise ValueError("the run has no record yet: analyse() builds it")
-    inputs = tuple(dataclasses.replace(entry, stored=copy["stored"])
-                   for entry, copy in zip(record.inputs, stored, strict=True))
-    return dataclasses.replace(record, inputs=inputs)
+        target.close()

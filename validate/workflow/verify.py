@@ -1,57 +1,64 @@
-"""Check a filed quality record: are its inputs unchanged, and does it still reproduce?
+"""Check a filed quality record: are its files as written, and does it still reproduce?
 
-`verify_record` checks each stored copy of the inputs against the SHA-256 the record holds,
-re-runs the stored method with the recorded seed and number of Monte Carlo trials, and
-compares the record number by number (the comparison itself is `validate.record.verify`).
+`verify_record` checks every file of the folder against manifest.json and the record's content
+hash, each stored input against the SHA-256 the record holds, and budget.csv against the
+record's budget (regenerated); then it re-runs the stored method from the record's own copies
+(inputs and registers; never a file outside the folder) with the recorded seed, number of
+Monte Carlo trials and advice setting, and compares the whole record number by number
+(the comparison itself is `validate.record.verify`).
 """
 
 from __future__ import annotations
 
+from dataclasses import replace
 from pathlib import Path
 
 from validate.inputs.errors import InputError
 from validate.model.assay import ModelError
+from validate.record.manifest import check_files, content_hash, read_manifest
+from validate.record.stored import INPUTS_FOLDER, RECORD_FILE, StoredCopies
+from validate.record.types import read_record
 from validate.record.verify import (
-    COMPARED_SECTIONS,
-    INPUTS_FOLDER,
-    RECORD_FILE,
     VerifyReport,
-    _check_input,
-    _method_entry,
-    _read_record,
-    _record_id,
-    _recorded_version,
+    budget_file_matches,
+    check_input,
+    comparable_part,
     compare,
-    reproducible_part,
+    read_filed_record,
+    record_id,
+    recorded_version,
 )
 from validate.workflow.pipeline import analyse
 
+EXACT = (0.0, 0.0)
+
 
 def verify_record(out_dir) -> VerifyReport:
-    """Check the stored inputs against their SHA-256 and re-run the stored method."""
+    """Check the folder's files and re-run the stored method; InputError when it is not a record."""
     folder = Path(out_dir)
-    record = _read_record(folder)
+    record = read_filed_record(folder)
     entries = record.get("inputs") or []
-    checks = tuple(_check_input(folder, entry) for entry in entries)
-    if not checks or not any(c.stored_sha256 for c in checks):
+    if not entries or not all(e.get("stored") for e in entries):
         raise InputError("this record has no stored copies of its input files, so it cannot be re-run",
                          file=folder / RECORD_FILE, where="inputs",
                          fix=f"records keep their inputs in {folder / INPUTS_FOLDER}; run the method again "
                              f"to make a record that can be verified")
+    copies = StoredCopies(folder, read_record(record).inputs)  # refuses stored names that leave the folder
+    manifest = read_manifest(folder)
     mc = record.get("monte_carlo_settings") or {}
     trials, seed = mc.get("trials"), mc.get("seed")
-    method_file = folder / _method_entry(record, checks).stored
+    checked = VerifyReport(
+        str(folder), record_id(record), tuple(check_input(folder, entry) for entry in entries), trials, seed,
+        None, 0, (), recorded_version(record), files=check_files(folder, manifest) if manifest else (),
+        has_manifest=manifest is not None, content_hash=content_hash(record),
+        recorded_content_hash=manifest.content_hash if manifest else None,
+        budget_file_matches=budget_file_matches(folder, record))
     try:
-        run = analyse(method_file, trials=trials, seed=seed, advice=False)
+        run = analyse(copies.method_file, trials=trials, seed=seed, advice=record.get("advice") is not None,
+                      redirect=copies)
     except (InputError, ModelError) as exc:
-        message = exc.message() if isinstance(exc, InputError) else str(exc)
-        return VerifyReport(str(folder), _record_id(record), checks, trials, seed, message, 0, (),
-                            _recorded_version(record))
-    old, new = reproducible_part(record), reproducible_part(run.record)  # both in their JSON form
-    mismatches, count = [], 0
-    for section in COMPARED_SECTIONS:
-        found, n = compare(old.get(section), new.get(section), section)
-        mismatches += found
-        count += n
-    return VerifyReport(str(folder), _record_id(record), checks, trials, seed, None, count, tuple(mismatches),
-                        _recorded_version(record))
+        return replace(checked, rerun_error=exc.message() if isinstance(exc, InputError) else str(exc))
+    old, new = comparable_part(record), comparable_part(run.record)
+    mismatches, count = compare(old, new)
+    return replace(checked, numbers_compared=count, mismatches=tuple(mismatches),
+                   identical=not compare(old, new, tolerance=EXACT)[0])
