@@ -102,7 +102,8 @@ def combine(u_rw: float, dof_rw: float, u_bias: float, coverage_probability: flo
     if u_rw < 0 or u_bias < 0 or not dof_rw > 0:
         raise ValueError("standard uncertainties must be >= 0 and the degrees of freedom > 0")
     u_c = math.hypot(u_rw, u_bias)
-    dof = math.inf if u_rw == 0 else u_c**4 / (u_rw**4 / dof_rw)
+    share = (u_rw / u_c) ** 4 if u_c > 0 else 1.0  # written as a ratio: no overflow or underflow
+    dof = dof_rw / share if share > 0 else math.inf
     k = float(stats.t.ppf(0.5 + coverage_probability / 2, dof)) if math.isfinite(dof) else \
         float(stats.norm.ppf(0.5 + coverage_probability / 2))
     return Combined(u_rw, u_bias, u_c, dof, k, k * u_c)

@@ -1,0 +1,123 @@
+"""The [routine_uncertainty] section of a method file: the data for the method's uncertainty
+for routine use (top-down), beside the within-run budget (bottom-up).
+
+    [routine_uncertainty]
+    controls = ["control_water"]     # samples read in two or more series (the readings' series column)
+    bias_treatment = "included"      # or "corrected"
+    readings_per_result = 3          # optional: readings averaged into one routine result
+
+    [routine_uncertainty.reference_materials.low_reference]   # a sample of [samples]
+    value = "0.080 mg/L"
+    expanded_uncertainty = "0.004 mg/L"
+    coverage_factor = 2
+    provenance = "certificate ..."
+
+The reference sample of [validation] counts as a reference material too, unless listed here.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from pathlib import Path
+
+from validate.inputs.errors import InputError
+from validate.inputs.tables import Table, parse_uncertain
+from validate.inputs.values import UncertainValue
+
+SECTION = "routine_uncertainty"
+TREATMENTS = ("included", "corrected")
+
+
+@dataclass(frozen=True)
+class ReferenceMaterial:
+    sample: str
+    value: UncertainValue  # in the result's unit dimension, SI inside
+
+
+@dataclass(frozen=True)
+class RoutineSettings:
+    """What the method file says about the method's uncertainty for routine use."""
+
+    controls: tuple[str, ...]
+    reference_materials: tuple[ReferenceMaterial, ...]
+    bias_treatment: str = "included"
+    readings_per_result: float | None = None  # None: the readings of one series (n0)
+
+    def to_dict(self) -> dict:
+        return {"controls": list(self.controls), "bias_treatment": self.bias_treatment,
+                "readings_per_result": self.readings_per_result,
+                "reference_materials": [{"sample": r.sample, "value": r.value.value / r.value.unit.factor,
+                                         "standard_uncertainty": r.value.u / r.value.unit.factor,
+                                         "unit": r.value.unit.text, "provenance": r.value.provenance}
+                                        for r in self.reference_materials]}
+
+
+def parse_routine(top: Table, sample_ids: list[str], series: dict[str, tuple[str, ...]],
+                  readings_path: Path | None, result_dims, defaults: list[str]) -> RoutineSettings | None:
+    """The section checked against the samples and the readings table's series labels."""
+    if not top.has(SECTION):
+        return None
+    t = top.sub(SECTION)
+    t.allow("controls", "bias_treatment", "readings_per_result", "reference_materials")
+    controls = _controls(t, sample_ids)
+    for control in controls:
+        check_control_series(control, series.get(control, ()), readings_path)
+    treatment = t.choice("bias_treatment", "included", TREATMENTS,
+                         'use "included" (the bias counts in U) or "corrected" (results are corrected for it)')
+    if not t.has("bias_treatment"):
+        defaults.append("default: the bias found against reference materials is included in the routine U "
+                        "(bias_treatment = \"included\")")
+    m = t.number("readings_per_result", None, low=0, high=1001)
+    if m is not None and m < 1:
+        raise t.error(f"{m:g} readings cannot make a result", "readings_per_result",
+                      fix="give the number of readings averaged into one routine result, 1 or more")
+    names = list(t.named_tables("reference_materials"))
+    refs = t.sub("reference_materials") if names else t
+    references = tuple(_reference(name, refs, sample_ids, result_dims) for name in names)
+    return RoutineSettings(controls, references, treatment, m)
+
+
+def _controls(t: Table, sample_ids: list[str]) -> tuple[str, ...]:
+    raw = t.get("controls")
+    if not isinstance(raw, list) or not raw or not all(isinstance(c, str) for c in raw):
+        raise t.error("expected a list of sample ids read in two or more series", "controls",
+                      fix='e.g. controls = ["control_water"], naming samples of [samples]')
+    unknown = [c for c in raw if c not in sample_ids]
+    if unknown:
+        raise t.error(f"{', '.join(unknown)} is not one of the [samples]", "controls",
+                      fix=f"use one of: {', '.join(sample_ids) or '(no samples defined)'}")
+    return tuple(dict.fromkeys(raw))
+
+
+def check_control_series(control: str, labels: tuple[str, ...], path: Path | None) -> None:
+    """A control needs series labels, two or more series, and two or more readings in each."""
+    fix_read = "read the control at least twice in each series, on two or more series (days, analysts)"
+    if not labels:
+        raise InputError(f"the control `{control}` has no series labels", file=path,
+                         where=f"rows of `{control}`",
+                         fix="add a `series` column to the readings table naming the day, analyst or "
+                             "reagent lot of every reading")
+    counts = {label: labels.count(label) for label in dict.fromkeys(labels)}
+    if len(counts) < 2:
+        raise InputError(f"the control `{control}` was read in one series only ({next(iter(counts))})",
+                         file=path, where=f"rows of `{control}`", fix=fix_read)
+    single = [label for label, n in counts.items() if n < 2]
+    if single:
+        raise InputError(f"series {', '.join(repr(s) for s in single)} of the control `{control}` has one "
+                         "reading only", file=path, where=f"rows of `{control}`",
+                         fix="check the label for a typing error (it must match the other rows of that "
+                             "series exactly), or " + fix_read)
+
+
+def _reference(name: str, refs: Table, sample_ids: list[str], result_dims) -> ReferenceMaterial:
+    if name not in sample_ids:
+        raise refs.error(f"`{name}` is not one of the [samples]", name,
+                         fix="name each reference material after the sample that holds its readings")
+    value = parse_uncertain(refs.get(name), refs, name, result_dims, True)
+    if not value.u > 0:
+        raise refs.error("the reference value has no uncertainty", name,
+                         fix="give the certificate's expanded_uncertainty and coverage_factor (or u)")
+    if not value.provenance:
+        raise refs.error("the reference value has no provenance", name,
+                         fix='say where it comes from, e.g. provenance = "certificate, lot 123"')
+    return ReferenceMaterial(name, value)

@@ -1,0 +1,200 @@
+"""The record's method_uncertainty block: the method's uncertainty for routine use.
+
+Top-down (validation data): reproducibility of the control samples over their series, bias
+against reference materials, combined u_c = sqrt(u(Rw)^2 + u(bias)^2) (Nordtest TR 537, from
+memory) at each concentration of the working range. Bottom-up: the within-run budget of the
+routine results. The two are compared (validate.validation.method_uncertainty.reconcile) and
+the record says which U it reports for routine use and why.
+
+Concentrations here are in the result's unit. A single reading is put into the result's unit
+with the factor result / c_measured of its sample, so the result formula is taken as
+proportional to c_measured (stated in the block's assumptions).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from validate.inputs.routine_section import ReferenceMaterial, RoutineSettings
+from validate.inputs.schema import AssayMethod
+from validate.model.assay import Model
+from validate.model.keys import ResultKey
+from validate.model.line import fit_line
+from validate.propagation.linear import LinearResult
+from validate.validation.block import calibration_data
+from validate.validation.linearity import plain
+from validate.validation.method_uncertainty import (
+    BIAS_SOURCE,
+    ReferenceBias,
+    bias_estimate,
+    combine,
+    reconcile,
+)
+from validate.validation.reproducibility import SOURCE as ANOVA_SOURCE
+from validate.validation.reproducibility import Reproducibility, reproducibility, series_groups
+from validate.validation.rw_model import RwModel, choose_rw_model
+
+RULE = "the larger expanded uncertainty of the two routes at the control level is reported for routine use"
+
+
+class _Readings:
+    """Every sample's single readings in the result's unit, and its bottom-up result."""
+
+    def __init__(self, method: AssayMethod, model: Model, results: list[LinearResult]):
+        xs, ys, ws = calibration_data(method, model)
+        self.fit = fit_line(xs, ys, ws)
+        self.method = method
+        self.results = {key.id: r for key, r in zip(model.result_keys, results, strict=True) if key.kind == "result"}
+        self.cal_levels = [x for x in xs if x > 0]
+
+    def scale(self, sample: str) -> float:
+        """result / c_measured of the sample (result unit per calibration unit)."""
+        readings = self.method.readings[sample]
+        c = (float(np.mean(readings)) - self.fit.intercept) / self.fit.slope
+        if c == 0:
+            raise ValueError(f"the sample `{sample}` reads as zero: its readings cannot be scaled to the result")
+        return self.results[sample].value / c
+
+    def values(self, sample: str) -> list[float]:
+        factor = self.scale(sample)
+        return [factor * (a - self.fit.intercept) / self.fit.slope for a in self.method.readings[sample]]
+
+    def routine_samples(self, excluded: set[str]) -> list[LinearResult]:
+        return sorted((r for s, r in self.results.items() if s not in excluded), key=lambda r: r.value)
+
+
+def _level_entry(sample: str, rep: Reproducibility, unit: str) -> dict:
+    return {"sample": sample, "concentration": rep.grand_mean, "s_r": rep.s_r, "s_between": rep.s_between,
+            "s_Rw": rep.s_Rw, "dof": rep.dof, "series": rep.series, "readings": rep.n,
+            "readings_per_result": rep.readings_per_result, "result_standard_deviation": rep.result_sd,
+            "result_dof": rep.result_dof, "weak": rep.weak, "unit": unit}
+
+
+def _references(method: AssayMethod, routine: RoutineSettings) -> list[ReferenceMaterial]:
+    """The section's reference materials, and [validation]'s reference sample unless listed there."""
+    refs = list(routine.reference_materials)
+    v = method.validation
+    if v.reference_sample and v.reference_value and v.reference_sample not in {r.sample for r in refs}:
+        refs.append(ReferenceMaterial(v.reference_sample, v.reference_value))
+    return refs
+
+
+def _reference_bias(ref: ReferenceMaterial, data: _Readings, method: AssayMethod) -> ReferenceBias:
+    """Mean result against the reference value; the spread of its series results (or, read in
+    one series, of its single readings)."""
+    factor = method.result.unit.factor
+    values = data.values(ref.sample)
+    labels = method.reading_series.get(ref.sample) or ("one series",) * len(values)
+    groups = series_groups(values, labels)
+    results = [float(g.mean()) for g in groups] if len(groups) >= 2 else values
+    sd = float(np.std(results, ddof=1)) if len(results) >= 2 else 0.0
+    return ReferenceBias(ref.sample, data.results[ref.sample].value, ref.value.value / factor,
+                         ref.value.u / factor, sd, len(results))
+
+
+def _bias_block(method: AssayMethod, routine: RoutineSettings, data: _Readings, at: float):
+    refs = [_reference_bias(r, data, method) for r in _references(method, routine)]
+    if not refs:
+        return None, None
+    est = bias_estimate(refs, routine.bias_treatment)
+    block = {
+        "value": est.relative * at, "standard_uncertainty": est.u_relative * at,
+        "relative_value_percent": 100 * est.relative, "relative_standard_uncertainty_percent": 100 * est.u_relative,
+        "rms_relative_percent": 100 * est.rms_relative,
+        "reference_relative_uncertainty_percent": 100 * est.u_reference_relative,
+        "significant": est.significant, "treatment": est.treatment,
+        "correction_factor": 1 / (1 + est.relative) if est.treatment == "corrected" else None,
+        "source": BIAS_SOURCE,
+        "reference_materials": [{"sample": r.id, "measured": r.measured, "reference": r.reference,
+                                 "reference_standard_uncertainty": r.u_reference, "series_results": r.results,
+                                 "relative_bias_percent": 100 * r.relative, "significant": r.significant}
+                                for r in refs]}
+    return est, block
+
+
+def _bottom_up_at(routine_results: list[LinearResult], c: float) -> tuple[float, float, float]:
+    """(u, dof, U) the budget gives a routine result at concentration c: interpolated between the
+    routine samples' results (each the mean of its readings in one run), held constant beyond them."""
+    xs = [r.value for r in routine_results]
+    u = float(np.interp(c, xs, [r.standard_uncertainty for r in routine_results]))
+    big_u = float(np.interp(c, xs, [r.expanded_uncertainty for r in routine_results]))
+    nearest = min(routine_results, key=lambda r: abs(r.value - c))
+    return u, nearest.effective_dof, big_u
+
+
+def _by_concentration(points: list[tuple[float, str | None, LinearResult | None]], rw: RwModel,
+                      u_bias_rel: float, p: float) -> list[dict]:
+    out = []
+    for c, sample, bottom_up in sorted(points, key=lambda t: t[0]):
+        comb = combine(rw.u_at(c), rw.dof, abs(u_bias_rel * c), p)
+        out.append({"concentration": c, "sample": sample, "combined_standard_uncertainty": comb.u_c,
+                    "coverage_factor": comb.k, "expanded_uncertainty": comb.expanded,
+                    "bottom_up_expanded_uncertainty": bottom_up.expanded_uncertainty if bottom_up else None})
+    return out
+
+
+def method_uncertainty_block(method: AssayMethod, model: Model, results: list[LinearResult]) -> dict | None:
+    """The block, or None when the method file has no [routine_uncertainty] section."""
+    routine = method.routine
+    if routine is None or method.calibration is None:
+        return None
+    data = _Readings(method, model, results)
+    unit = method.result.unit.text
+    levels = []
+    for control in routine.controls:
+        rep = reproducibility(series_groups(data.values(control), method.reading_series[control]),
+                              routine.readings_per_result)
+        levels.append((control, rep))
+    rw = choose_rw_model([(rep.grand_mean, rep.result_sd, rep.result_dof) for _, rep in levels])
+    main_sample, main = levels[0]
+    at = main.grand_mean
+    est, bias = _bias_block(method, routine, data, at)
+    u_bias_rel = est.u_relative if est else 0.0
+    p = method.settings.coverage_probability
+    top = combine(rw.u_at(at), rw.dof, abs(u_bias_rel * at), p)
+    excluded = set(routine.controls) | {r.sample for r in _references(method, routine)}
+    routine_results = data.routine_samples(excluded) or [data.results[main_sample]]
+    u_bu, dof_bu, big_u_bu = _bottom_up_at(routine_results, at)
+    rec = reconcile(main.result_sd, main.result_dof, u_bu, dof_bu)
+    scale = data.scale(main_sample)
+    points = [(x * scale, None, None) for x in (min(data.cal_levels), max(data.cal_levels))] + \
+             [(r.value, s, r) for s, r in data.results.items() if s not in excluded]
+    reported = "top-down" if top.expanded >= big_u_bu else "bottom-up"
+    return plain({
+        "unit": unit,
+        "reproducibility": _level_entry(main_sample, main, unit) | {"source": ANOVA_SOURCE},
+        "levels": [_level_entry(s, r, unit) for s, r in levels],
+        "rw_model": rw.to_dict(),
+        "bias": bias,
+        "concentration": at,
+        "combined_standard_uncertainty": top.u_c, "effective_dof": top.dof,
+        "coverage_factor": top.k, "coverage_probability": p, "expanded_uncertainty": top.expanded,
+        "bottom_up": {"standard_uncertainty": u_bu, "effective_dof": dof_bu, "expanded_uncertainty": big_u_bu,
+                      "from": [r.name for r in routine_results]},
+        "by_concentration": _by_concentration(points, rw, u_bias_rel, p),
+        "reconciliation": {"statistic": rec.statistic, "dof_observed": rec.dof_observed,
+                           "dof_predicted": rec.dof_predicted, "p_value": rec.p_value, "verdict": rec.verdict,
+                           "explanation": rec.explanation,
+                           "test": "F = s_obs^2 / u_pred^2 against F(nu_obs, nu_pred); chi-square form when "
+                                   "nu_pred is infinite (NIST/SEMATECH e-Handbook 1.3.5.8-9, from memory)"},
+        "reported": reported,
+        "reason": f"{RULE}: top-down U = {top.expanded:.3g} {unit}, bottom-up U = {big_u_bu:.3g} {unit} "
+                  f"at {at:.3g} {unit}",
+        "limitations": _limitations(levels, est),
+        "assumptions": ["single readings are put into the result's unit with the factor result / c_measured of "
+                        "their sample: the result formula is taken as proportional to c_measured",
+                        "u(bias) is taken as Type B (infinite degrees of freedom) in the Welch-Satterthwaite formula",
+                        "the bottom-up prediction for a routine result is interpolated between the routine samples' "
+                        "results of this run"],
+    })
+
+
+def _limitations(levels: list[tuple[str, Reproducibility]], est) -> list[str]:
+    out = [f"s_Rw of `{s}` rests on {rep.result_dof:.1f} degrees of freedom: weak; read the control in more series"
+           for s, rep in levels if rep.weak]
+    if est is None:
+        out.append("no reference material: the bias is not assessed and u(bias) is left out of u_c")
+    if len(levels) == 1:
+        out.append("one control level: how s_Rw changes with concentration is not known from the data "
+                   "(see rw_model for the cautious rule applied)")
+    return out
