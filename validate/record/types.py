@@ -17,10 +17,11 @@ from typing import Any
 
 from validate.model.keys import ResultKey
 from validate.record.blocks import AdviceBlock, EquilibriumBlock
+from validate.record.blocks_routine import MethodUncertaintyBlock
 from validate.record.blocks_validation import ValidationBlock, ValidationSettingsEntry
 from validate.record.tree import RecordPart, described, omitted_when_none
 
-SCHEMA_VERSION = "1.0"
+SCHEMA_VERSION = "1.1"
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -258,6 +259,8 @@ class Record(RecordPart):
     equilibrium: EquilibriumBlock | None
     advice: AdviceBlock | None
     budget: tuple[BudgetRow, ...]
+    method_uncertainty: MethodUncertaintyBlock | None = omitted_when_none(
+        "the method's uncertainty for routine use (top-down) beside the budget; left out without [routine_uncertainty]")
 
     def result(self, key: ResultKey) -> ResultEntry:
         """The result with this key (KeyError when the record has none)."""
