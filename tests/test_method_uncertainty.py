@@ -7,13 +7,23 @@ by hand in the comments. The combination rule is Nordtest TR 537's (from memory)
 from __future__ import annotations
 
 import math
+import shutil
+import subprocess
+import sys
+from pathlib import Path
 
+import pandas as pd
 import pytest
+import statsmodels.formula.api as smf
 from hypothesis import given
 from hypothesis import strategies as st
 from scipy import stats
+from statsmodels.stats.anova import anova_lm
 
+from validate.inputs.errors import InputError
+from validate.inputs.method_file import load_method
 from validate.validation.method_uncertainty import ReferenceBias, bias_estimate, combine, reconcile
+from validate.workflow.pipeline import analyse
 
 # Two invented reference materials:
 # A: reference 2.00 (u 0.02, i.e. 1 %), measured 2.04: relative bias +2 %
@@ -102,3 +112,126 @@ def test_reconciliation_flags_thin_data():
     assert "few" in r.explanation
     with pytest.raises(ValueError, match="positive predicted"):
         reconcile(1.0, 2.0, 0.0, 5.0)
+
+
+# ---- the [routine_uncertainty] section and the record block on the phosphate demo ----------
+
+DEMO = Path(__file__).resolve().parent.parent / "example_inputs" / "phosphate_assay"
+
+
+@pytest.fixture
+def demo_copy(tmp_path):
+    folder = tmp_path / "demo"
+    shutil.copytree(DEMO, folder)
+    return folder
+
+
+def _edit(folder, old, new, name="method.toml"):
+    path = folder / name
+    text = path.read_text(encoding="utf-8")
+    assert old in text, f"test set-up: {old!r} not in {name}"
+    path.write_text(text.replace(old, new), encoding="utf-8")
+    return folder / "method.toml"
+
+
+BAD = [
+    ("series label once", ("control_water,0.1716,day 2", "control_water,0.1716,Day 2"),
+     "readings.csv", ["readings.csv", "'Day 2'", "one reading only", "typing error"]),
+    ("unknown control", ('controls = ["control_water"]', 'controls = ["control_waters"]'), "method.toml",
+     ["method.toml", "[routine_uncertainty].controls", "not one of the [samples]"]),
+    ("reference without uncertainty",
+     ('{ value = "0.080 mg/L", expanded_uncertainty = "0.003 mg/L", coverage_factor = 2, provenance',
+      '{ value = "0.080 mg/L", provenance'), "method.toml",
+     ["method.toml", "reference_materials.low_reference", "no uncertainty"]),
+    ("unknown treatment", ('bias_treatment = "included"', 'bias_treatment = "ignored"'), "method.toml",
+     ["method.toml", "bias_treatment", "included"]),
+]
+
+
+@pytest.mark.parametrize("label, change, name, expected", BAD, ids=[b[0] for b in BAD])
+def test_bad_routine_input_is_named(demo_copy, label, change, name, expected):
+    method = _edit(demo_copy, *change, name=name)
+    with pytest.raises(InputError) as info:
+        load_method(method)
+    for text in expected:
+        assert text in str(info.value), (label, str(info.value))
+
+
+def test_one_series_only_is_refused(demo_copy):
+    text = (demo_copy / "readings.csv").read_text(encoding="utf-8")
+    for day in range(2, 7):
+        text = "\n".join(line.replace(f",day {day}", ",day 1") if line.startswith("control_water") else line
+                         for line in text.splitlines()) + "\n"
+    (demo_copy / "readings.csv").write_text(text, encoding="utf-8")
+    with pytest.raises(InputError, match="one series only"):
+        load_method(demo_copy / "method.toml")
+
+
+def test_control_without_series_labels_is_refused(demo_copy):
+    lines = (demo_copy / "readings.csv").read_text(encoding="utf-8").splitlines()
+    kept = [line if line.startswith("#") else line.rsplit(",", 1)[0] for line in lines]
+    (demo_copy / "readings.csv").write_text("\n".join(kept) + "\n", encoding="utf-8")
+    with pytest.raises(InputError, match="no series labels"):
+        load_method(demo_copy / "method.toml")
+
+
+def test_bad_routine_input_exits_with_2(demo_copy):
+    method = _edit(demo_copy, 'bias_treatment = "included"', 'bias_treatment = "ignored"')
+    done = subprocess.run([sys.executable, "-m", "validate.cli", "check", str(method)], capture_output=True, text=True)
+    assert done.returncode == 2 and "Traceback" not in done.stderr
+
+
+def _phosphate_block(folder=DEMO) -> dict:
+    run = analyse(folder / "method.toml", trials=None, advice=False)
+    return run.record["method_uncertainty"]
+
+
+def test_phosphate_demo_block_follows_the_contract():
+    m = _phosphate_block()
+    assert {"s_r", "s_between", "s_Rw", "dof", "series", "unit"} <= set(m["reproducibility"])
+    assert {"value", "standard_uncertainty", "significant", "treatment", "source"} <= set(m["bias"])
+    assert {"statistic", "p_value", "verdict", "explanation"} <= set(m["reconciliation"])
+    assert m["reported"] in ("top-down", "bottom-up") and m["reason"]
+    rep = m["reproducibility"]
+    assert rep["series"] == 6 and rep["readings"] == 18 and rep["s_Rw"] >= rep["s_r"]
+    # the top-level figures are the combination at the control level, by the Nordtest rule
+    c = combine(m["levels"][0]["result_standard_deviation"], m["rw_model"]["dof"],
+                m["bias"]["relative_standard_uncertainty_percent"] / 100 * m["concentration"])
+    assert m["expanded_uncertainty"] == pytest.approx(c.expanded)
+    assert m["reported"] == ("top-down" if m["expanded_uncertainty"] >= m["bottom_up"]["expanded_uncertainty"]
+                             else "bottom-up")
+    # U grows with concentration (cautious model above the control level, proportional bias)
+    us = [e["expanded_uncertainty"] for e in m["by_concentration"]]
+    assert us == sorted(us)
+
+
+def test_control_anova_matches_statsmodels_on_the_demo():
+    # Reference: statsmodels anova_lm of the control's readings (in absorbance) by day; mean squares
+    # scale with the square of the factor from absorbance to the result's unit, which cancels in F.
+    m = _phosphate_block()
+    rows = [line.split(",") for line in (DEMO / "readings.csv").read_text(encoding="utf-8").splitlines()
+            if line.startswith("control_water,")]
+    frame = pd.DataFrame({"a": [float(r[1]) for r in rows], "day": [r[2] for r in rows]})
+    table = anova_lm(smf.ols("a ~ C(day)", frame).fit())
+    f_ref = table["mean_sq"].iloc[0] / table["mean_sq"].iloc[1]
+    rep = m["reproducibility"]
+    n0 = 3.0
+    ms_w = rep["s_r"] ** 2
+    ms_b = rep["s_between"] ** 2 * n0 + ms_w
+    assert ms_b / ms_w == pytest.approx(f_ref, rel=1e-9)
+
+
+def test_corrected_treatment_is_recorded(demo_copy):
+    _edit(demo_copy, 'bias_treatment = "included"', 'bias_treatment = "corrected"')
+    m = _phosphate_block(demo_copy)
+    assert m["bias"]["treatment"] == "corrected"
+    assert m["bias"]["correction_factor"] == pytest.approx(1 / (1 + m["bias"]["relative_value_percent"] / 100))
+
+
+def test_no_section_no_block(demo_copy):
+    text = (demo_copy / "method.toml").read_text(encoding="utf-8")
+    start = text.index("[routine_uncertainty]")
+    end = text.index("[acceptance]")
+    (demo_copy / "method.toml").write_text(text[:start] + text[end:], encoding="utf-8")
+    run = analyse(demo_copy / "method.toml", trials=None, advice=False)
+    assert "method_uncertainty" not in run.record
