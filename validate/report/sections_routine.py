@@ -45,7 +45,8 @@ def _summary_rows(m: dict) -> list:
         ("s_r, s_between, s_Rw", f"{num(rep['s_r'], 3)}, {num(rep['s_between'], 3)}, {num(rep['s_Rw'], 3)} {unit} "
                                  f"(ν = {num(rep['dof'], 3)})"),
         ("u(Rw) of a routine result", f"{num(rep['result_standard_deviation'], 3)} {unit} (mean of "
-                                      f"{num(rep['readings_per_result'], 3)} readings, ν = {num(rep['result_dof'], 3)})"),
+                                      f"{num(rep['readings_per_result'], 3)} readings, "
+                                      f"ν = {num(rep['result_dof'], 3)})"),
         ("how u(Rw) changes with concentration", f"{m['rw_model']['kind']}: {m['rw_model']['why']}"),
         ("top-down U at the control level", f"{big_u} {unit} at {conc} {unit} (k = {num(m['coverage_factor'], 3)}, "
                                             f"ν = {num(m['effective_dof'], 3)})"),

@@ -112,13 +112,15 @@ def method_uncertainty_lines(m: dict | None) -> list[Printable]:
              soft_wrap=True)]
     bias = m.get("bias")
     if bias:
+        found = "significant" if bias["significant"] else "not significant"
         lines.append(Line(f"  bias {bias['relative_value_percent']:+.2f} %, u(bias) "
-                          f"{bias['relative_standard_uncertainty_percent']:.2f} % "
-                          f"({'significant' if bias['significant'] else 'not significant'}; {escape(bias['treatment'])})"))
+                          f"{bias['relative_standard_uncertainty_percent']:.2f} % ({found}; "
+                          f"{escape(bias['treatment'])})"))
     lines += [Line(f"  at {conc} {unit}: top-down U = [bold]{big_u} {unit}[/] (k = {m['coverage_factor']:.2f}), "
                    f"bottom-up U = {bottom_up} {unit}", soft_wrap=True),
-              Line(f"  reconciliation: {escape(rec['verdict'])} (F = {rec['statistic']:.2f}, p = {rec['p_value']:.2g}); "
-                   f"reported for routine use: [bold]{escape(m['reported'])}[/]", soft_wrap=True)]
+              Line(f"  reconciliation: {escape(rec['verdict'])} (F = {rec['statistic']:.2f}, "
+                   f"p = {rec['p_value']:.2g}); reported for routine use: [bold]{escape(m['reported'])}[/]",
+                   soft_wrap=True)]
     lines += [Line(f"  [yellow]note[/] {escape(text)}", soft_wrap=True) for text in m.get("limitations") or []]
     return lines
 

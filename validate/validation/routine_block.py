@@ -18,7 +18,6 @@ import numpy as np
 from validate.inputs.routine_section import ReferenceMaterial, RoutineSettings
 from validate.inputs.schema import AssayMethod
 from validate.model.assay import Model
-from validate.model.keys import ResultKey
 from validate.model.line import fit_line
 from validate.propagation.linear import LinearResult
 from validate.validation.block import calibration_data
@@ -34,6 +33,14 @@ from validate.validation.reproducibility import SOURCE as ANOVA_SOURCE
 from validate.validation.reproducibility import Reproducibility, reproducibility, series_groups
 from validate.validation.rw_model import RwModel, choose_rw_model
 
+Point = tuple[float, str | None, LinearResult | None]  # concentration, sample (None: a range end), its result
+TEST = ("F = s_obs^2 / u_pred^2 against F(nu_obs, nu_pred); chi-square form when nu_pred is infinite "
+        "(NIST/SEMATECH e-Handbook 1.3.5.8-9, from memory)")
+ASSUMPTIONS = ["single readings are put into the result's unit with the factor result / c_measured of their "
+               "sample: the result formula is taken as proportional to c_measured",
+               "u(bias) is taken as Type B (infinite degrees of freedom) in the Welch-Satterthwaite formula",
+               "the bottom-up prediction for a routine result is interpolated between the routine samples' "
+               "results of this run"]
 RULE = "the larger expanded uncertainty of the two routes at the control level is reported for routine use"
 
 
@@ -122,7 +129,7 @@ def _bottom_up_at(routine_results: list[LinearResult], c: float) -> tuple[float,
     return u, nearest.effective_dof, big_u
 
 
-def _by_concentration(points: list[tuple[float, str | None, LinearResult | None]], rw: RwModel,
+def _by_concentration(points: list[Point], rw: RwModel,
                       u_bias_rel: float, p: float) -> list[dict]:
     out = []
     for c, sample, bottom_up in sorted(points, key=lambda t: t[0]):
@@ -133,6 +140,28 @@ def _by_concentration(points: list[tuple[float, str | None, LinearResult | None]
     return out
 
 
+def _control_levels(method: AssayMethod, routine: RoutineSettings,
+                    data: _Readings) -> list[tuple[str, Reproducibility]]:
+    return [(control, reproducibility(series_groups(data.values(control), method.reading_series[control]),
+                                      routine.readings_per_result))
+            for control in routine.controls]
+
+
+def _working_points(data: _Readings, sample: str, excluded: set[str]) -> list[Point]:
+    """The ends of the working range (the outer standards, in the result's unit) and every routine result."""
+    scale = data.scale(sample)
+    ends: list[Point] = [(x * scale, None, None) for x in (min(data.cal_levels), max(data.cal_levels))]
+    return ends + [(r.value, s, r) for s, r in data.results.items() if s not in excluded]
+
+
+def _reconciliation(main: Reproducibility, routine_results: list[LinearResult]) -> tuple[dict, tuple]:
+    u_bu, dof_bu, big_u_bu = _bottom_up_at(routine_results, main.grand_mean)
+    rec = reconcile(main.result_sd, main.result_dof, u_bu, dof_bu)
+    entry = {"statistic": rec.statistic, "dof_observed": rec.dof_observed, "dof_predicted": rec.dof_predicted,
+             "p_value": rec.p_value, "verdict": rec.verdict, "explanation": rec.explanation, "test": TEST}
+    return entry, (u_bu, dof_bu, big_u_bu)
+
+
 def method_uncertainty_block(method: AssayMethod, model: Model, results: list[LinearResult]) -> dict | None:
     """The block, or None when the method file has no [routine_uncertainty] section."""
     routine = method.routine
@@ -140,11 +169,7 @@ def method_uncertainty_block(method: AssayMethod, model: Model, results: list[Li
         return None
     data = _Readings(method, model, results)
     unit = method.result.unit.text
-    levels = []
-    for control in routine.controls:
-        rep = reproducibility(series_groups(data.values(control), method.reading_series[control]),
-                              routine.readings_per_result)
-        levels.append((control, rep))
+    levels = _control_levels(method, routine, data)
     rw = choose_rw_model([(rep.grand_mean, rep.result_sd, rep.result_dof) for _, rep in levels])
     main_sample, main = levels[0]
     at = main.grand_mean
@@ -154,11 +179,7 @@ def method_uncertainty_block(method: AssayMethod, model: Model, results: list[Li
     top = combine(rw.u_at(at), rw.dof, abs(u_bias_rel * at), p)
     excluded = set(routine.controls) | {r.sample for r in _references(method, routine)}
     routine_results = data.routine_samples(excluded) or [data.results[main_sample]]
-    u_bu, dof_bu, big_u_bu = _bottom_up_at(routine_results, at)
-    rec = reconcile(main.result_sd, main.result_dof, u_bu, dof_bu)
-    scale = data.scale(main_sample)
-    points = [(x * scale, None, None) for x in (min(data.cal_levels), max(data.cal_levels))] + \
-             [(r.value, s, r) for s, r in data.results.items() if s not in excluded]
+    reconciliation, (u_bu, dof_bu, big_u_bu) = _reconciliation(main, routine_results)
     reported = "top-down" if top.expanded >= big_u_bu else "bottom-up"
     return plain({
         "unit": unit,
@@ -171,21 +192,13 @@ def method_uncertainty_block(method: AssayMethod, model: Model, results: list[Li
         "coverage_factor": top.k, "coverage_probability": p, "expanded_uncertainty": top.expanded,
         "bottom_up": {"standard_uncertainty": u_bu, "effective_dof": dof_bu, "expanded_uncertainty": big_u_bu,
                       "from": [r.name for r in routine_results]},
-        "by_concentration": _by_concentration(points, rw, u_bias_rel, p),
-        "reconciliation": {"statistic": rec.statistic, "dof_observed": rec.dof_observed,
-                           "dof_predicted": rec.dof_predicted, "p_value": rec.p_value, "verdict": rec.verdict,
-                           "explanation": rec.explanation,
-                           "test": "F = s_obs^2 / u_pred^2 against F(nu_obs, nu_pred); chi-square form when "
-                                   "nu_pred is infinite (NIST/SEMATECH e-Handbook 1.3.5.8-9, from memory)"},
+        "by_concentration": _by_concentration(_working_points(data, main_sample, excluded), rw, u_bias_rel, p),
+        "reconciliation": reconciliation,
         "reported": reported,
         "reason": f"{RULE}: top-down U = {top.expanded:.3g} {unit}, bottom-up U = {big_u_bu:.3g} {unit} "
                   f"at {at:.3g} {unit}",
         "limitations": _limitations(levels, est),
-        "assumptions": ["single readings are put into the result's unit with the factor result / c_measured of "
-                        "their sample: the result formula is taken as proportional to c_measured",
-                        "u(bias) is taken as Type B (infinite degrees of freedom) in the Welch-Satterthwaite formula",
-                        "the bottom-up prediction for a routine result is interpolated between the routine samples' "
-                        "results of this run"],
+        "assumptions": ASSUMPTIONS,
     })
 
 
