@@ -235,3 +235,31 @@ def test_no_section_no_block(demo_copy):
     (demo_copy / "method.toml").write_text(text[:start] + text[end:], encoding="utf-8")
     run = analyse(demo_copy / "method.toml", trials=None, advice=False)
     assert "method_uncertainty" not in run.record
+
+
+def test_spike_added_amount_by_hand():
+    # the demo's spike: 2.00 mL of the intermediate standard made up to 50 mL, in a result with the
+    # sample dilution 20 mL -> 50 mL and M(P) = 30.973762 g/mol (invented demo values, worked by hand):
+    # stock 68.05 mg x 0.998 / 136.086 g/mol / 0.500 L = 0.998102 mmol/L; intermediate x 5/100;
+    # spike x 2/50 -> 1.99620 umol/L in the measured solution; x 50/20 x 30.973762 -> 0.154575 mg/L
+    m = _phosphate_block()
+    spike = next(r for r in m["bias"]["reference_materials"] if r["kind"] == "spike")
+    added = 68.05e-3 * 0.998 / 136.086 / 0.500 * (5 / 100) * (2 / 50) * (50 / 20) * 30.973762e3
+    assert spike["reference"] == pytest.approx(added, rel=1e-9)
+    # its uncertainty carries the burette's two readings (start and end, rectangular, GUM 4.3.7):
+    # at least sqrt(2) x reading / sqrt(3) on 2.00 mL, relative
+    method = load_method(DEMO / "method.toml")
+    reading_ml = method.items["burette_25"].reading * 1e6
+    assert spike["reference_standard_uncertainty"] / added >= math.sqrt(2) * reading_ml / math.sqrt(3) / 2.00
+    # recovered = spiked result minus the unspiked sample's result
+    results = {r["key"]["id"]: r["value"] for r in analyse(DEMO / "method.toml", trials=None, advice=False)
+               .record["results"]}
+    assert spike["measured"] == pytest.approx(results["river_spiked"] - results["river_upstream"])
+
+
+def test_spike_without_an_added_amount_is_refused(demo_copy):
+    line = 'aliquot = { item = "burette_25", volume = "2.00 mL" }   # the added amount, through an item\n'
+    _edit(demo_copy, line, "")
+    with pytest.raises(InputError) as info:
+        load_method(demo_copy / "method.toml")
+    assert "spikes.river_spiked" in str(info.value) and "aliquot" in str(info.value)

@@ -102,7 +102,8 @@ def _assay_method(top: Table, path: Path, common: dict, extra: list[Path], defau
     result = parse_result(top, parts)
     validation = parse_validation(top, parts, result, defaults)
     routine = parse_routine(top, [smp.id for smp in samples], series, readings_path, result.unit.dims,
-                            defaults)
+                            defaults, items=items, solutions=solutions,
+                            reads_samples="c_measured" in result.formula.names)
     return AssayMethod(**common, calibration=calibration, samples=samples, quantities=quantities, result=result,
                        readings=readings, reading_series=series, validation=validation, routine=routine,
                        input_files=_input_files(path, readings_path, *extra),

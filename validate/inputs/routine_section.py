@@ -12,6 +12,12 @@ for routine use (top-down), beside the within-run budget (bottom-up).
     coverage_factor = 2
     provenance = "certificate ..."
 
+    [routine_uncertainty.spikes.river_spiked]   # a sample of [samples]: the base sample plus a spike
+    base = "river_upstream"                     # the same sample, unspiked
+    solution = "intermediate"                   # the spike solution, one of [solutions]
+    aliquot = { item = "burette_25", volume = "1.00 mL" }   # the added amount, through an item
+    made_up_to = "flask_50"                     # the volume the spike ends up in (the measured solution)
+
 The reference sample of [validation] counts as a reference material too, unless listed here.
 """
 
@@ -21,8 +27,9 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from validate.inputs.errors import InputError
-from validate.inputs.tables import Table, parse_uncertain
-from validate.inputs.values import UncertainValue
+from validate.inputs.items import FLASKS, VOLUMETRIC
+from validate.inputs.tables import Table, parse_delivery, parse_uncertain
+from validate.inputs.values import Delivery, UncertainValue
 
 SECTION = "routine_uncertainty"
 TREATMENTS = ("included", "corrected")
@@ -35,6 +42,17 @@ class ReferenceMaterial:
 
 
 @dataclass(frozen=True)
+class Spike:
+    """A sample spiked with a known amount: `sample` is the spiked one, `base` the same unspiked."""
+
+    sample: str
+    base: str
+    solution: str
+    aliquot: Delivery
+    made_up_to: Delivery
+
+
+@dataclass(frozen=True)
 class RoutineSettings:
     """What the method file says about the method's uncertainty for routine use."""
 
@@ -42,6 +60,7 @@ class RoutineSettings:
     reference_materials: tuple[ReferenceMaterial, ...]
     bias_treatment: str = "included"
     readings_per_result: float | None = None  # None: the readings of one series (n0)
+    spikes: tuple[Spike, ...] = ()
 
     def to_dict(self) -> dict:
         return {"controls": list(self.controls), "bias_treatment": self.bias_treatment,
@@ -49,16 +68,23 @@ class RoutineSettings:
                 "reference_materials": [{"sample": r.sample, "value": r.value.value / r.value.unit.factor,
                                          "standard_uncertainty": r.value.u / r.value.unit.factor,
                                          "unit": r.value.unit.text, "provenance": r.value.provenance}
-                                        for r in self.reference_materials]}
+                                        for r in self.reference_materials],
+                "spikes": [{"sample": k.sample, "base": k.base, "solution": k.solution} for k in self.spikes]}
 
 
 def parse_routine(top: Table, sample_ids: list[str], series: dict[str, tuple[str, ...]],
-                  readings_path: Path | None, result_dims, defaults: list[str]) -> RoutineSettings | None:
-    """The section checked against the samples and the readings table's series labels."""
+                  readings_path: Path | None, result_dims, defaults: list[str], *, items=None,
+                  solutions=None, reads_samples: bool = True) -> RoutineSettings | None:
+    """The section checked against the samples, equipment, solutions and the readings table's
+    series labels. `reads_samples`: the result formula reads samples off the line (c_measured)."""
     if not top.has(SECTION):
         return None
     t = top.sub(SECTION)
-    t.allow("controls", "bias_treatment", "readings_per_result", "reference_materials")
+    t.allow("controls", "bias_treatment", "readings_per_result", "reference_materials", "spikes")
+    if not reads_samples:
+        raise t.error("the result formula reads no sample off the line (it has no c_measured)", None,
+                      fix="the method's uncertainty for routine use needs a result per sample: use c_measured "
+                          "in [result] formula, or leave out [routine_uncertainty]")
     controls = _controls(t, sample_ids)
     for control in controls:
         check_control_series(control, series.get(control, ()), readings_path)
@@ -74,7 +100,30 @@ def parse_routine(top: Table, sample_ids: list[str], series: dict[str, tuple[str
     names = list(t.named_tables("reference_materials"))
     refs = t.sub("reference_materials") if names else t
     references = tuple(_reference(name, refs, sample_ids, result_dims) for name in names)
-    return RoutineSettings(controls, references, treatment, m)
+    spikes = tuple(_spike(name, Table(raw, t.file, f"[{SECTION}.spikes.{name}]"), sample_ids, items or {},
+                          solutions or {})
+                   for name, raw in t.named_tables("spikes").items())
+    return RoutineSettings(controls, references, treatment, m, spikes)
+
+
+def _spike(name: str, t: Table, sample_ids: list[str], items: dict, solutions: dict) -> Spike:
+    t.allow("base", "solution", "aliquot", "made_up_to")
+    if name not in sample_ids:
+        raise t.error(f"`{name}` is not one of the [samples]", None,
+                      fix="name each spike after the [samples] entry that holds the spiked sample's readings")
+    base = t.required_text("base")
+    if base not in sample_ids or base == name:
+        raise t.error(f"`{base}` is not another of the [samples]", "base",
+                      fix="name the same sample, unspiked, as read in the readings table")
+    solution = t.required_text("solution")
+    if solution not in solutions:
+        raise t.error(f"`{solution}` is not one of the [solutions]", "solution",
+                      fix=f"use one of: {', '.join(solutions) or '(no solutions defined)'}")
+    fix = 'e.g. aliquot = { item = "burette_25", volume = "1.00 mL" }: the added amount, through an item'
+    aliquot = parse_delivery(t.require("aliquot", fix=fix), t, "aliquot", items, VOLUMETRIC)
+    made_up_to = parse_delivery(t.require("made_up_to", fix='e.g. made_up_to = "flask_50"'), t, "made_up_to",
+                                items, FLASKS)
+    return Spike(name, base, solution, aliquot, made_up_to)
 
 
 def _controls(t: Table, sample_ids: list[str]) -> tuple[str, ...]:

@@ -49,7 +49,10 @@ class RwModel(RecordPart):
 
 @dataclass(frozen=True, kw_only=True)
 class ReferenceMaterialBias(RecordPart):
+    """A reference material (reference: its certified value) or a spike (reference: the amount added)."""
+
     sample: str
+    kind: str = described('"reference material" or "spike"')
     measured: Number
     reference: Number
     reference_standard_uncertainty: Number

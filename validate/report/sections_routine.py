@@ -60,11 +60,12 @@ def _summary_rows(m: dict) -> list:
 def _bias(m: dict) -> list:
     bias = m.get("bias")
     if not bias:
-        return [para("No reference material: the bias is not assessed.", "note")]
-    rows = [[r["sample"], num(r["reference"], 4), num(r["measured"], 4), num(r["relative_bias_percent"], 3),
-             "yes" if r["significant"] else "no"] for r in bias["reference_materials"]]
-    return [heading("Bias against reference materials", 2),
-            data_table(["reference material", f"reference ({m['unit']})", f"measured ({m['unit']})", "bias (%)",
+        return [para("No reference material or spike: the bias is not assessed.", "note")]
+    rows = [[f"{r['sample']} ({r.get('kind', 'reference material')})", num(r["reference"], 4),
+             num(r["measured"], 4), num(r["relative_bias_percent"], 3), "yes" if r["significant"] else "no"]
+            for r in bias["reference_materials"]]
+    return [heading("Bias against reference materials and spikes", 2),
+            data_table(["sample", f"reference or added ({m['unit']})", f"found ({m['unit']})", "bias (%)",
                         "significant"], rows, (54, 32, 32, 28, 28), numeric={1, 2, 3}),
             para(f"Bias {num(bias['relative_value_percent'], 3)} %, u(bias) "
                  f"{num(bias['relative_standard_uncertainty_percent'], 3)} % ({bias['treatment']}). {bias['source']}",

@@ -31,6 +31,7 @@ class ReferenceBias:
     u_reference: float
     sd_series: float  # standard deviation of its series results (0 with one series)
     results: int  # number of series results averaged
+    kind: str = "reference material"  # or "spike": reference = the amount added
 
     @property
     def relative(self) -> float:

@@ -18,9 +18,8 @@ import numpy as np
 from validate.inputs.routine_section import ReferenceMaterial, RoutineSettings
 from validate.inputs.schema import AssayMethod
 from validate.model.assay import Model
-from validate.model.line import fit_line
 from validate.propagation.linear import LinearResult
-from validate.validation.block import calibration_data
+from validate.validation.control_readings import ControlReadings, series_results
 from validate.validation.linearity import plain
 from validate.validation.method_uncertainty import (
     BIAS_SOURCE,
@@ -32,6 +31,7 @@ from validate.validation.method_uncertainty import (
 from validate.validation.reproducibility import SOURCE as ANOVA_SOURCE
 from validate.validation.reproducibility import Reproducibility, reproducibility, series_groups
 from validate.validation.rw_model import RwModel, choose_rw_model
+from validate.validation.spikes import spike_bias
 
 Point = tuple[float, str | None, LinearResult | None]  # concentration, sample (None: a range end), its result
 TEST = ("F = s_obs^2 / u_pred^2 against F(nu_obs, nu_pred); chi-square form when nu_pred is infinite "
@@ -42,32 +42,6 @@ ASSUMPTIONS = ["single readings are put into the result's unit with the factor r
                "the bottom-up prediction for a routine result is interpolated between the routine samples' "
                "results of this run"]
 RULE = "the larger expanded uncertainty of the two routes at the control level is reported for routine use"
-
-
-class _Readings:
-    """Every sample's single readings in the result's unit, and its bottom-up result."""
-
-    def __init__(self, method: AssayMethod, model: Model, results: list[LinearResult]):
-        xs, ys, ws = calibration_data(method, model)
-        self.fit = fit_line(xs, ys, ws)
-        self.method = method
-        self.results = {key.id: r for key, r in zip(model.result_keys, results, strict=True) if key.kind == "result"}
-        self.cal_levels = [x for x in xs if x > 0]
-
-    def scale(self, sample: str) -> float:
-        """result / c_measured of the sample (result unit per calibration unit)."""
-        readings = self.method.readings[sample]
-        c = (float(np.mean(readings)) - self.fit.intercept) / self.fit.slope
-        if c == 0:
-            raise ValueError(f"the sample `{sample}` reads as zero: its readings cannot be scaled to the result")
-        return self.results[sample].value / c
-
-    def values(self, sample: str) -> list[float]:
-        factor = self.scale(sample)
-        return [factor * (a - self.fit.intercept) / self.fit.slope for a in self.method.readings[sample]]
-
-    def routine_samples(self, excluded: set[str]) -> list[LinearResult]:
-        return sorted((r for s, r in self.results.items() if s not in excluded), key=lambda r: r.value)
 
 
 def _level_entry(sample: str, rep: Reproducibility, unit: str) -> dict:
@@ -86,21 +60,17 @@ def _references(method: AssayMethod, routine: RoutineSettings) -> list[Reference
     return refs
 
 
-def _reference_bias(ref: ReferenceMaterial, data: _Readings, method: AssayMethod) -> ReferenceBias:
-    """Mean result against the reference value; the spread of its series results (or, read in
-    one series, of its single readings)."""
+def _reference_bias(ref: ReferenceMaterial, data: ControlReadings, method: AssayMethod) -> ReferenceBias:
+    """Mean result against the reference value, with the spread of its series results."""
     factor = method.result.unit.factor
-    values = data.values(ref.sample)
-    labels = method.reading_series.get(ref.sample) or ("one series",) * len(values)
-    groups = series_groups(values, labels)
-    results = [float(g.mean()) for g in groups] if len(groups) >= 2 else values
-    sd = float(np.std(results, ddof=1)) if len(results) >= 2 else 0.0
+    sd, count = series_results(data.values(ref.sample), method.reading_series.get(ref.sample))
     return ReferenceBias(ref.sample, data.results[ref.sample].value, ref.value.value / factor,
-                         ref.value.u / factor, sd, len(results))
+                         ref.value.u / factor, sd, count)
 
 
-def _bias_block(method: AssayMethod, routine: RoutineSettings, data: _Readings, at: float):
+def _bias_block(method: AssayMethod, routine: RoutineSettings, data: ControlReadings, at: float):
     refs = [_reference_bias(r, data, method) for r in _references(method, routine)]
+    refs += [spike_bias(spike, method, data) for spike in routine.spikes]
     if not refs:
         return None, None
     est = bias_estimate(refs, routine.bias_treatment)
@@ -112,7 +82,7 @@ def _bias_block(method: AssayMethod, routine: RoutineSettings, data: _Readings, 
         "significant": est.significant, "treatment": est.treatment,
         "correction_factor": 1 / (1 + est.relative) if est.treatment == "corrected" else None,
         "source": BIAS_SOURCE,
-        "reference_materials": [{"sample": r.id, "measured": r.measured, "reference": r.reference,
+        "reference_materials": [{"sample": r.id, "kind": r.kind, "measured": r.measured, "reference": r.reference,
                                  "reference_standard_uncertainty": r.u_reference, "series_results": r.results,
                                  "relative_bias_percent": 100 * r.relative, "significant": r.significant}
                                 for r in refs]}
@@ -141,13 +111,13 @@ def _by_concentration(points: list[Point], rw: RwModel,
 
 
 def _control_levels(method: AssayMethod, routine: RoutineSettings,
-                    data: _Readings) -> list[tuple[str, Reproducibility]]:
+                    data: ControlReadings) -> list[tuple[str, Reproducibility]]:
     return [(control, reproducibility(series_groups(data.values(control), method.reading_series[control]),
                                       routine.readings_per_result))
             for control in routine.controls]
 
 
-def _working_points(data: _Readings, sample: str, excluded: set[str]) -> list[Point]:
+def _working_points(data: ControlReadings, sample: str, excluded: set[str]) -> list[Point]:
     """The ends of the working range (the outer standards, in the result's unit) and every routine result."""
     scale = data.scale(sample)
     ends: list[Point] = [(x * scale, None, None) for x in (min(data.cal_levels), max(data.cal_levels))]
@@ -167,7 +137,7 @@ def method_uncertainty_block(method: AssayMethod, model: Model, results: list[Li
     routine = method.routine
     if routine is None or method.calibration is None:
         return None
-    data = _Readings(method, model, results)
+    data = ControlReadings(method, model, results)
     unit = method.result.unit.text
     levels = _control_levels(method, routine, data)
     rw = choose_rw_model([(rep.grand_mean, rep.result_sd, rep.result_dof) for _, rep in levels])
@@ -177,7 +147,8 @@ def method_uncertainty_block(method: AssayMethod, model: Model, results: list[Li
     u_bias_rel = est.u_relative if est else 0.0
     p = method.settings.coverage_probability
     top = combine(rw.u_at(at), rw.dof, abs(u_bias_rel * at), p)
-    excluded = set(routine.controls) | {r.sample for r in _references(method, routine)}
+    excluded = set(routine.controls) | {r.sample for r in _references(method, routine)} | \
+        {k.sample for k in routine.spikes}
     routine_results = data.routine_samples(excluded) or [data.results[main_sample]]
     reconciliation, (u_bu, dof_bu, big_u_bu) = _reconciliation(main, routine_results)
     reported = "top-down" if top.expanded >= big_u_bu else "bottom-up"
