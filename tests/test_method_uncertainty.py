@@ -263,3 +263,25 @@ def test_spike_without_an_added_amount_is_refused(demo_copy):
     with pytest.raises(InputError) as info:
         load_method(demo_copy / "method.toml")
     assert "spikes.river_spiked" in str(info.value) and "aliquot" in str(info.value)
+
+
+def test_interlaboratory_round_enters_the_bias():
+    # the demo's invented round: our 0.246 mg/L against the assigned 0.250 mg/L (u 0.004 mg/L):
+    # relative bias -0.004/0.250 = -1.6 %, u(C_ref) 1.6 %; not significant (1.6 % < 2 x 1.6 %)
+    m = _phosphate_block()
+    entry = next(r for r in m["bias"]["reference_materials"] if r["kind"] == "interlaboratory")
+    assert entry["sample"] == "round_3"
+    assert entry["relative_bias_percent"] == pytest.approx(-1.6)
+    assert entry["reference_standard_uncertainty"] == pytest.approx(0.004)
+    assert not entry["significant"]
+    # Nordtest TR 537 (from memory) over all four entries, recomputed here from the record's rows
+    rows = m["bias"]["reference_materials"]
+    rms = math.sqrt(sum(r["relative_bias_percent"] ** 2 for r in rows) / len(rows))
+    u_ref = sum(100 * r["reference_standard_uncertainty"] / r["reference"] for r in rows) / len(rows)
+    assert m["bias"]["relative_standard_uncertainty_percent"] == pytest.approx(math.hypot(rms, u_ref))
+
+
+def test_interlaboratory_round_without_uncertainty_is_refused(demo_copy):
+    _edit(demo_copy, 'u = "0.004 mg/L", provenance = "scheme report', 'provenance = "scheme report')
+    with pytest.raises(InputError, match="assigned value has no uncertainty"):
+        load_method(demo_copy / "method.toml")

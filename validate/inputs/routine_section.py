@@ -18,6 +18,10 @@ for routine use (top-down), beside the within-run budget (bottom-up).
     aliquot = { item = "burette_25", volume = "1.00 mL" }   # the added amount, through an item
     made_up_to = "flask_50"                     # the volume the spike ends up in (the measured solution)
 
+    [routine_uncertainty.interlaboratory.round_3]   # a proficiency-test round
+    assigned_value = { value = "0.250 mg/L", u = "0.004 mg/L", provenance = "scheme report ..." }
+    our_result = "0.246 mg/L"
+
 The reference sample of [validation] counts as a reference material too, unless listed here.
 """
 
@@ -53,6 +57,15 @@ class Spike:
 
 
 @dataclass(frozen=True)
+class InterlabResult:
+    """Our result in an interlaboratory comparison against the round's assigned value (SI)."""
+
+    name: str
+    assigned: UncertainValue
+    ours: float
+
+
+@dataclass(frozen=True)
 class RoutineSettings:
     """What the method file says about the method's uncertainty for routine use."""
 
@@ -61,6 +74,7 @@ class RoutineSettings:
     bias_treatment: str = "included"
     readings_per_result: float | None = None  # None: the readings of one series (n0)
     spikes: tuple[Spike, ...] = ()
+    interlaboratory: tuple[InterlabResult, ...] = ()
 
     def to_dict(self) -> dict:
         return {"controls": list(self.controls), "bias_treatment": self.bias_treatment,
@@ -69,7 +83,8 @@ class RoutineSettings:
                                          "standard_uncertainty": r.value.u / r.value.unit.factor,
                                          "unit": r.value.unit.text, "provenance": r.value.provenance}
                                         for r in self.reference_materials],
-                "spikes": [{"sample": k.sample, "base": k.base, "solution": k.solution} for k in self.spikes]}
+                "spikes": [{"sample": k.sample, "base": k.base, "solution": k.solution} for k in self.spikes],
+                "interlaboratory": [r.name for r in self.interlaboratory]}
 
 
 def parse_routine(top: Table, sample_ids: list[str], series: dict[str, tuple[str, ...]],
@@ -80,7 +95,8 @@ def parse_routine(top: Table, sample_ids: list[str], series: dict[str, tuple[str
     if not top.has(SECTION):
         return None
     t = top.sub(SECTION)
-    t.allow("controls", "bias_treatment", "readings_per_result", "reference_materials", "spikes")
+    t.allow("controls", "bias_treatment", "readings_per_result", "reference_materials", "spikes",
+            "interlaboratory")
     if not reads_samples:
         raise t.error("the result formula reads no sample off the line (it has no c_measured)", None,
                       fix="the method's uncertainty for routine use needs a result per sample: use c_measured "
@@ -103,7 +119,22 @@ def parse_routine(top: Table, sample_ids: list[str], series: dict[str, tuple[str
     spikes = tuple(_spike(name, Table(raw, t.file, f"[{SECTION}.spikes.{name}]"), sample_ids, items or {},
                           solutions or {})
                    for name, raw in t.named_tables("spikes").items())
-    return RoutineSettings(controls, references, treatment, m, spikes)
+    rounds = tuple(_interlab(name, Table(raw, t.file, f"[{SECTION}.interlaboratory.{name}]"), result_dims)
+                   for name, raw in t.named_tables("interlaboratory").items())
+    return RoutineSettings(controls, references, treatment, m, spikes, rounds)
+
+
+def _interlab(name: str, t: Table, result_dims) -> InterlabResult:
+    t.allow("assigned_value", "our_result")
+    assigned = t.uncertain("assigned_value", result_dims)
+    if not assigned.u > 0:
+        raise t.error("the assigned value has no uncertainty", "assigned_value",
+                      fix='give its standard uncertainty from the scheme\'s report, e.g. u = "0.004 mg/L"')
+    if not assigned.provenance:
+        raise t.error("the assigned value has no provenance", "assigned_value",
+                      fix='say which scheme and round, e.g. provenance = "scheme X, round 3"')
+    ours, _ = t.quantity("our_result", result_dims)
+    return InterlabResult(name, assigned, ours)
 
 
 def _spike(name: str, t: Table, sample_ids: list[str], items: dict, solutions: dict) -> Spike:

@@ -49,10 +49,11 @@ class RwModel(RecordPart):
 
 @dataclass(frozen=True, kw_only=True)
 class ReferenceMaterialBias(RecordPart):
-    """A reference material (reference: its certified value) or a spike (reference: the amount added)."""
+    """A reference material (reference: its certified value), a spike (reference: the amount added) or an
+    interlaboratory round (reference: the assigned value; measured: our result)."""
 
     sample: str
-    kind: str = described('"reference material" or "spike"')
+    kind: str = described('"reference material", "spike" or "interlaboratory" (sample: the round\'s name)')
     measured: Number
     reference: Number
     reference_standard_uncertainty: Number

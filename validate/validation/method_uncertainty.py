@@ -31,7 +31,7 @@ class ReferenceBias:
     u_reference: float
     sd_series: float  # standard deviation of its series results (0 with one series)
     results: int  # number of series results averaged
-    kind: str = "reference material"  # or "spike": reference = the amount added
+    kind: str = "reference material"  # "spike": reference = the amount added; "interlaboratory": assigned value
 
     @property
     def relative(self) -> float:

@@ -71,6 +71,9 @@ def _reference_bias(ref: ReferenceMaterial, data: ControlReadings, method: Assay
 def _bias_block(method: AssayMethod, routine: RoutineSettings, data: ControlReadings, at: float):
     refs = [_reference_bias(r, data, method) for r in _references(method, routine)]
     refs += [spike_bias(spike, method, data) for spike in routine.spikes]
+    factor = method.result.unit.factor
+    refs += [ReferenceBias(r.name, r.ours / factor, r.assigned.value / factor, r.assigned.u / factor, 0.0, 1,
+                           kind="interlaboratory") for r in routine.interlaboratory]
     if not refs:
         return None, None
     est = bias_estimate(refs, routine.bias_treatment)
