@@ -285,3 +285,27 @@ def test_interlaboratory_round_without_uncertainty_is_refused(demo_copy):
     _edit(demo_copy, 'u = "0.004 mg/L", provenance = "scheme report', 'provenance = "scheme report')
     with pytest.raises(InputError, match="assigned value has no uncertainty"):
         load_method(demo_copy / "method.toml")
+
+
+def test_the_init_example_reads_when_uncommented(tmp_path):
+    # the commented example `validate init` writes must be a valid section once its "# " is removed
+    templates = Path(__file__).resolve().parent.parent / "validate" / "templates"
+    text = (templates / "method.toml").read_text(encoding="utf-8")
+    head, example = text.split("# ---- optional: the method's uncertainty for routine use (top-down) ----")
+    body = "\n".join(line[2:] if line.startswith("# [") or line.startswith("# ") and "=" in line else ""
+                     for line in example.splitlines())
+    (tmp_path / "method.toml").write_text(head + body, encoding="utf-8")
+    rows = [line for line in (templates / "readings.csv").read_text(encoding="utf-8").splitlines()
+            if line and not line.startswith("#")]
+    table = ["id,absorbance,series"] + [f"{r},day 1" for r in rows[1:]]
+    table += [f"control,{a},day {d}" for d in (1, 2) for a in (0.300, 0.302)]
+    table += [f"reference,{a},day 1" for a in (0.40, 0.41)] + [f"sample_1_spiked,{a},day 1" for a in (0.50, 0.51)]
+    (tmp_path / "readings.csv").write_text("\n".join(table) + "\n", encoding="utf-8")
+    method = load_method(tmp_path / "method.toml")
+    assert method.routine is not None
+    assert method.routine.controls == ("control",)
+    assert [k.sample for k in method.routine.spikes] == ["sample_1_spiked"]
+    assert [r.name for r in method.routine.interlaboratory] == ["round_1"]
+    block = analyse(tmp_path / "method.toml", trials=None, advice=False).record["method_uncertainty"]
+    assert [r["kind"] for r in block["bias"]["reference_materials"]] == ["reference material", "spike",
+                                                                         "interlaboratory"]
