@@ -309,3 +309,16 @@ def test_the_init_example_reads_when_uncommented(tmp_path):
     block = analyse(tmp_path / "method.toml", trials=None, advice=False).record["method_uncertainty"]
     assert [r["kind"] for r in block["bias"]["reference_materials"]] == ["reference material", "spike",
                                                                          "interlaboratory"]
+
+
+def test_terminal_and_report_show_both_routes():
+    from validate.report.sections_routine import method_uncertainty, u_figure
+    from validate.report.terminal_run import method_uncertainty_lines
+
+    record = analyse(DEMO / "method.toml", trials=None, advice=False).record
+    m = record["method_uncertainty"]
+    text = "\n".join(line.text for line in method_uncertainty_lines(m))
+    assert "top-down U" in text and "bottom-up U" in text and f"reported for routine use: [bold]{m['reported']}" in text
+    assert method_uncertainty_lines(None) == []
+    assert method_uncertainty(record) and method_uncertainty({"results": []}) is None
+    assert u_figure(m["by_concentration"], m["unit"]).startswith(b"\x89PNG")
