@@ -322,3 +322,21 @@ def test_terminal_and_report_show_both_routes():
     assert method_uncertainty_lines(None) == []
     assert method_uncertainty(record) and method_uncertainty({"results": []}) is None
     assert u_figure(m["by_concentration"], m["unit"]).startswith(b"\x89PNG")
+
+
+def test_rw_model_choices_by_hand():
+    from validate.validation.rw_model import choose_rw_model
+
+    # one level (0.2, u 0.004): constant 0.004 below, proportional 0.02 c above (cautious rule, common practice)
+    one = choose_rw_model([(0.2, 0.004, 10.0)])
+    assert one.u_at(0.1) == pytest.approx(0.004) and one.u_at(0.4) == pytest.approx(0.008)
+    # two levels on u = 0.001 + 0.01 c: the line itself; dof the smaller of the two
+    two = choose_rw_model([(0.1, 0.002, 8.0), (0.5, 0.006, 12.0)])
+    assert two.kind == "a + b c" and two.u_at(0.3) == pytest.approx(0.004) and two.dof == 8.0
+    # falling u: constant at the mean; a line through negative a: proportional through the origin,
+    # b = sum(c u)/sum(c^2) = (0.1*0.0005 + 0.5*0.0065)/(0.01 + 0.25) = 0.0033/0.26 (by hand)
+    assert choose_rw_model([(0.1, 0.006, 5.0), (0.5, 0.002, 5.0)]).u_at(0.3) == pytest.approx(0.004)
+    prop = choose_rw_model([(0.1, 0.0005, 5.0), (0.5, 0.0065, 5.0)])
+    assert prop.kind == "proportional" and prop.b == pytest.approx(0.0033 / 0.26)
+    with pytest.raises(ValueError, match="at least one control level"):
+        choose_rw_model([])

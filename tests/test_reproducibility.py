@@ -117,3 +117,11 @@ def test_identical_series_give_no_between_series_sd(one_series, copies):
     r = reproducibility([list(one_series) for _ in range(copies)])
     assert r.s_between == 0.0
     assert r.s_Rw == pytest.approx(r.s_r)
+
+
+def test_a_result_of_one_reading_has_the_reproducibility_of_a_reading():
+    # m = 1: u(Rw)^2 = s_between^2 + s_r^2 = s_Rw^2, on the same Satterthwaite dof (by hand, ISO 5725-3)
+    r = reproducibility([[1, 2, 3], [4, 5, 6]], readings_per_result=1)
+    assert r.result_sd == pytest.approx(r.s_Rw) and r.result_dof == pytest.approx(r.dof)
+    with pytest.raises(ValueError, match="at least 1 reading"):
+        reproducibility([[1, 2, 3], [4, 5, 6]], readings_per_result=0.5)
