@@ -340,3 +340,12 @@ def test_rw_model_choices_by_hand():
     assert prop.kind == "proportional" and prop.b == pytest.approx(0.0033 / 0.26)
     with pytest.raises(ValueError, match="at least one control level"):
         choose_rw_model([])
+
+
+def test_validation_reference_without_uncertainty_is_refused_for_the_bias(demo_copy):
+    _edit(demo_copy, 'reference_value = { value = "0.200 mg/L", expanded_uncertainty = "0.006 mg/L", '
+                     'coverage_factor = 2, provenance = "certificate of the reference water (invented)" }',
+          'reference_value = "0.200 mg/L"')
+    with pytest.raises(InputError, match=r"no uncertainty") as info:
+        analyse(demo_copy / "method.toml", trials=None, advice=False)
+    assert "[validation].reference_value" in str(info.value)

@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from validate.inputs.errors import InputError
 from validate.inputs.routine_section import ReferenceMaterial, RoutineSettings
 from validate.inputs.schema import AssayMethod
 from validate.model.assay import Model
@@ -56,6 +57,10 @@ def _references(method: AssayMethod, routine: RoutineSettings) -> list[Reference
     refs = list(routine.reference_materials)
     v = method.validation
     if v.reference_sample and v.reference_value and v.reference_sample not in {r.sample for r in refs}:
+        if not v.reference_value.u > 0:
+            raise InputError("the reference value has no uncertainty, so it cannot serve for the bias of the "
+                             "method's routine uncertainty", file=method.path, where="[validation].reference_value",
+                             fix="give the certificate's expanded_uncertainty and coverage_factor (or u)")
         refs.append(ReferenceMaterial(v.reference_sample, v.reference_value))
     return refs
 
