@@ -308,7 +308,8 @@ def test_more_calibration_readings_keep_the_line_and_its_scatter(demo):
 def test_readings_outside_the_window_get_qualitative_advice(demo, demo_report):
     # Window 0.2 to 0.8: common practice; optimum A = 0.434 (Twyman and Lothian 1933, from memory).
     window = [a for a in demo_report.items if a.kind == "absorbance window"]
-    assert [a.details["sample"] for a in window] == ["river_upstream"]  # mean reading 0.132
+    # mean readings 0.132, 0.170 (the control) and 0.107 (the low reference material)
+    assert [a.details["sample"] for a in window] == ["river_upstream", "control_water", "low_reference"]
     assert window[0].expanded_uncertainty_after is None and window[0].reduction is None
     assert window[0].details["net_reading_factor"] > 1  # read higher: less dilution
     high = dataclasses.replace(demo, readings={**demo.readings, "outfall": (0.90, 0.91, 0.90)})

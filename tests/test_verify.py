@@ -107,7 +107,7 @@ def test_an_edited_method_file_is_caught(record_dir):
     report = verify_record(record_dir)
     assert [c.matches for c in report.inputs] == [False, True, True, True, True]
     values = {m.path: m for m in report.mismatches if m.path.endswith("].value") and m.path.startswith("results")}
-    assert len(values) == 4  # every result rests on the stock solution's mass
+    assert len(values) == 7  # every result (seven samples) rests on the stock solution's mass
     for m in values.values():
         # a heavier weighing means more concentrated standards, a flatter line per unit of
         # concentration and so every sample reads higher, in proportion to the mass

@@ -18,14 +18,17 @@ from validate.inputs.errors import InputError
 from validate.inputs.readings import load_reading_series, load_readings, read_text_file
 from validate.inputs.redirect import Redirect
 from validate.inputs.registers import load_registers
+from validate.inputs.routine_section import parse_routine
 from validate.inputs.schema import AssayMethod, EquilibriumMethod, Method, Sample, Settings
 from validate.inputs.solutions_section import check_solution_graph, parse_solution
 from validate.inputs.tables import Table, parse_uncertain
 from validate.inputs.validation_settings import parse_validation
 
 TOP_KEYS = ("method", "settings", "equipment", "solutions", "calibration", "samples",
-            "quantities", "result", "validation", "acceptance", "equilibrium")
-ASSAY_ONLY = ("samples", "quantities", "validation", "acceptance")  # sections a study does not read
+            "quantities", "result", "validation", "acceptance", "equilibrium",
+            "routine_uncertainty")
+# sections a study does not read
+ASSAY_ONLY = ("samples", "quantities", "validation", "acceptance", "routine_uncertainty")
 
 
 def load_method(path, redirect: Redirect | None = None) -> Method:
@@ -106,8 +109,11 @@ def _assay_method(top: Table, path: Path, common: dict, extra: list[Path], defau
     parts = AssayParts(str(path), solutions, calibration, samples, quantities)
     result = parse_result(top, parts)
     validation = parse_validation(top, parts, result, defaults)
+    routine = parse_routine(top, [smp.id for smp in samples], series, readings_path, result.unit.dims,
+                            defaults, items=items, solutions=solutions,
+                            reads_samples="c_measured" in result.formula.names)
     return AssayMethod(**common, calibration=calibration, samples=samples, quantities=quantities, result=result,
-                       readings=readings, reading_series=series, validation=validation,
+                       readings=readings, reading_series=series, validation=validation, routine=routine,
                        input_files=_input_files(path, readings_path, *extra),
                        defaults_shown=tuple(defaults), notes=tuple(notes))
 

@@ -13,6 +13,7 @@ from typing import ClassVar, TypeVar
 
 from validate.inputs.formula import Formula
 from validate.inputs.items import ITEM_KINDS, VOLUMETRIC, Item, ItemCommon, kind_names
+from validate.inputs.routine_section import RoutineSettings
 from validate.inputs.solutions import SOLUTION_KINDS, Blank, Certified, Diluted, Solution, Weighed
 from validate.inputs.units import Unit
 from validate.inputs.values import Delivery, UncertainValue
@@ -199,6 +200,7 @@ class AssayMethod(MethodCommon):
     samples: tuple[Sample, ...]
     quantities: dict[str, NamedQuantity]
     result: ResultSpec
+    routine: RoutineSettings | None = None  # [routine_uncertainty]: data for the top-down route
 
     def blank_dims(self) -> tuple[int, ...]:
         return self.calibration.concentration_unit.dims if self.calibration else AMOUNT_CONCENTRATION

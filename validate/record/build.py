@@ -21,6 +21,7 @@ from validate.propagation.budget import budget_rows, grouped
 from validate.propagation.linear import LinearResult
 from validate.propagation.montecarlo import McResult
 from validate.record.blocks import AdviceBlock, EquilibriumBlock
+from validate.record.blocks_routine import MethodUncertaintyBlock
 from validate.record.blocks_validation import ValidationBlock
 from validate.record.files import sha256_of
 from validate.record.tree import from_dict, to_dict
@@ -42,6 +43,7 @@ from validate.record.types import (
     SourceEntry,
 )
 from validate.validation.block import equilibrium_validation_block, line_summary, validation_block
+from validate.validation.routine_block import method_uncertainty_block
 
 EQUILIBRIUM_FORMULA = "K = [ML] / (([M]0 - [ML]) ([L]0 - [ML])), [ML] from the line of the standards"
 MONTE_CARLO_METHOD = "JCGM 101:2008; calibration line refitted in every trial"
@@ -86,6 +88,7 @@ def build_record(method: Method, model: Model | EquilibriumModel, results: list[
         budget=tuple(BudgetRow.from_dict({"result": row["result"], "key": to_dict(keys[row["result"]]),
                                           **{k: v for k, v in row.items() if k != "result"}}, "budget")
                      for row in budget_rows(results)),
+        method_uncertainty=_method_uncertainty(method, model, results),
     )
 
 
@@ -104,6 +107,13 @@ def input_entries(method: Method) -> tuple[InputFile, ...]:
     entries = [InputFile(path=p, sha256=sha256_of(p), role=role(p)) for p in given]
     entries += [InputFile(path=p, sha256=sha256_of(p), role=BUILTIN_REGISTER) for p in registers if p not in given]
     return tuple(entries)
+
+
+def _method_uncertainty(method: Method, model: Model | EquilibriumModel,
+                        results: list[LinearResult]) -> MethodUncertaintyBlock | None:
+    block = method_uncertainty_block(method, model, results) \
+        if isinstance(method, AssayMethod) and isinstance(model, Model) else None
+    return None if block is None else MethodUncertaintyBlock.from_dict(block, "method_uncertainty")
 
 
 def _run_info(inputs: tuple[InputFile, ...]) -> RunInfo:

@@ -17,6 +17,7 @@ from typing import Any
 
 from validate.model.keys import ResultKey
 from validate.record.blocks import AdviceBlock, EquilibriumBlock
+from validate.record.blocks_routine import MethodUncertaintyBlock
 from validate.record.blocks_validation import ValidationBlock, ValidationSettingsEntry
 from validate.record.tree import RecordPart, described, omitted_when_none
 
@@ -260,6 +261,8 @@ class Record(RecordPart):
     equilibrium: EquilibriumBlock | None
     advice: AdviceBlock | None
     budget: tuple[BudgetRow, ...]
+    method_uncertainty: MethodUncertaintyBlock | None = omitted_when_none(
+        "the method's uncertainty for routine use (top-down) beside the budget; left out without [routine_uncertainty]")
 
     def result(self, key: ResultKey) -> ResultEntry:
         """The result with this key (KeyError when the record has none)."""

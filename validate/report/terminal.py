@@ -22,6 +22,7 @@ from validate.report.terminal_run import (
     advice_lines,
     criteria_lines,
     equilibrium_lines,
+    method_uncertainty_lines,
     result_lines,
     validation_lines,
 )
@@ -88,6 +89,7 @@ def run_lines(record: dict, top: int) -> list[Printable]:
         lines += result_lines(record, result, top)
     if validation:
         lines += criteria_lines(validation["criteria"])
+    lines += method_uncertainty_lines(record.get("method_uncertainty"))
     return lines + advice_lines(record.get("advice"))
 
 

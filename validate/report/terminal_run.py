@@ -98,6 +98,33 @@ def validation_lines(v: dict) -> list[Printable]:
             + _precision_and_trueness(v))
 
 
+def method_uncertainty_lines(m: dict | None) -> list[Printable]:
+    """The method's uncertainty for routine use (top-down) beside the budget, and which U is reported."""
+    if not m:
+        return []
+    rep, unit, rec = m["reproducibility"], escape(m["unit"]), m["reconciliation"]
+    conc, big_u = gum_pair(m["concentration"], m["expanded_uncertainty"], missing=MISSING)
+    _, bottom_up = gum_pair(m["concentration"], m["bottom_up"]["expanded_uncertainty"], missing=MISSING)
+    lines: list[Printable] = [
+        BLANK, Line("[bold]Method uncertainty for routine use[/] (validation data, top-down)"),
+        Line(f"  control {escape(rep['sample'])}, {rep['series']} series: s_r {compact(rep['s_r'], 3)}, s_between "
+             f"{compact(rep['s_between'], 3)}, s_Rw {compact(rep['s_Rw'], 3)} {unit} (nu {dof(rep['dof'])})",
+             soft_wrap=True)]
+    bias = m.get("bias")
+    if bias:
+        found = "significant" if bias["significant"] else "not significant"
+        lines.append(Line(f"  bias {bias['relative_value_percent']:+.2f} %, u(bias) "
+                          f"{bias['relative_standard_uncertainty_percent']:.2f} % ({found}; "
+                          f"{escape(bias['treatment'])})"))
+    lines += [Line(f"  at {conc} {unit}: top-down U = [bold]{big_u} {unit}[/] (k = {m['coverage_factor']:.2f}), "
+                   f"bottom-up U = {bottom_up} {unit}", soft_wrap=True),
+              Line(f"  reconciliation: {escape(rec['verdict'])} (F = {rec['statistic']:.2f}, "
+                   f"p = {rec['p_value']:.2g}); reported for routine use: [bold]{escape(m['reported'])}[/]",
+                   soft_wrap=True)]
+    lines += [Line(f"  [yellow]note[/] {escape(text)}", soft_wrap=True) for text in m.get("limitations") or []]
+    return lines
+
+
 # --------------------------------------------------------------------------
 # one result
 
