@@ -28,7 +28,6 @@ from typing import Any
 
 import numpy as np
 from scipy import optimize
-from uncertainties.core import AffineScalarFunc
 
 from validate.model import backend as mathops
 from validate.model.ice import (
@@ -93,18 +92,6 @@ def _check_lengths(kind, *columns, minimum):
         raise ValueError(f"{kind}: {n} given, at least {minimum} needed")
 
 
-def _settle(x):
-    """Expand a ufloat's derivatives now; other backends pass through.
-
-    Performance only, values unchanged: `uncertainties` expands a nested
-    expression by walking every path to the inputs, which grows
-    exponentially over the iterations unless each step is flattened.
-    """
-    if isinstance(x, AffineScalarFunc):
-        x.derivatives  # noqa: B018  (the property expands and caches)
-    return x
-
-
 def _largest_abs(x) -> float:
     """Largest |x| over the finite trials (nan when none is finite)."""
     v = np.abs(np.atleast_1d(np.asarray(mathops.nominal(x), dtype=float)))
@@ -113,8 +100,12 @@ def _largest_abs(x) -> float:
 
 
 def _mixture_states(slope, intercept, mixtures_M, mixtures_L, mixtures_A):
-    return tuple(equilibrium_constant((a - intercept) / slope, m, l_)
-                 for m, l_, a in zip(mixtures_M, mixtures_L, mixtures_A, strict=True))
+    """The ICE table of every mixture read off the line. The line and K are collapsed
+    (`backend.collapse`): K enters every later step and every result."""
+    slope, intercept = mathops.collapse(slope), mathops.collapse(intercept)
+    states = (equilibrium_constant((a - intercept) / slope, m, l_)
+              for m, l_, a in zip(mixtures_M, mixtures_L, mixtures_A, strict=True))
+    return tuple(replace(s, K=mathops.collapse(s.K)) for s in states)
 
 
 def _combined(states: tuple[IceTable, ...], weights):
@@ -166,11 +157,11 @@ def _iterate(start: _State, standards, standard_weights, mixtures, mw, iteration
     change: Any = math.nan
     for _ in range(iterations):  # a fixed count of vectorised steps, no test on values
         try:
-            x_std = [_settle(complex_concentration(now.K, m, l_))
+            x_std = [mathops.collapse(complex_concentration(now.K, m, l_))
                      for m, l_ in zip(standards_M, standards_L, strict=True)]
-            now.slope, now.intercept = (_settle(v) for v in line_by_sums(x_std, standards_A, standard_weights))
+            now.slope, now.intercept = (mathops.collapse(v) for v in line_by_sums(x_std, standards_A, standard_weights))
             now.states = _mixture_states(now.slope, now.intercept, *mixtures)
-            K_new = _settle(now.K + damping * (_combined(now.states, mw) - now.K))
+            K_new = mathops.collapse(now.K + damping * (_combined(now.states, mw) - now.K))
         except (ValueError, ZeroDivisionError, OverflowError):
             # Only scalars raise (numpy gives nan per trial): the iteration left the
             # domain (K <= 0 or a zero slope). Report it as undefined, not converged.
