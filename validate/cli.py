@@ -12,9 +12,11 @@ from rich.console import Console
 
 from validate import __version__
 from validate.inputs.errors import InputError
-from validate.model.assay import ModelError
+from validate.model.errors import ModelError  # the small module: no numerics for --help
 from validate.report import terminal
-from validate.workflow import pipeline as api
+
+# validate.workflow.pipeline (and with it numpy, scipy and the engines) is imported by the
+# commands that need it, when they run: `validate --help` and `validate init` stay fast.
 
 EXIT_INPUT = 2
 EXIT_DATA = 3
@@ -106,12 +108,19 @@ def _show(console: Console, lines: list[terminal.Printable]) -> None:
 
 
 def _check(args, console: Console) -> int:
-    method, model = api.check(args.method)
+    # what `pipeline.check` does, without importing the engines and the record for it
+    from validate.inputs.method_file import load_method
+    from validate.model.build import build
+
+    method = load_method(args.method)
+    model = build(method)
     _show(console, terminal.check_lines(terminal.check_facts(method, model)))
     return 0
 
 
 def _run(args, console: Console) -> int:
+    from validate.workflow import pipeline as api  # imported when needed (see the top)
+
     api.check_output_folder(args.out, args.overwrite)
     progress = terminal.ProgressBars(console) if console.is_terminal else None  # not into a file or pipe
     try:

@@ -27,7 +27,6 @@ from dataclasses import dataclass, replace
 from typing import Any
 
 import numpy as np
-from scipy import optimize
 
 from validate.model import backend as mathops
 from validate.model.ice import (
@@ -272,6 +271,8 @@ def fit_joint(standards_M, standards_L, standards_A, mixtures_M, mixtures_L, mix
     Analysis and Its Applications, 1988, section 2.3; Press et al.,
     Numerical Recipes 3rd ed., section 15.5). u(K) = K ln10 u(log10 K).
     """
+    from scipy import optimize  # imported when a joint fit runs: scipy.optimize is slow to import
+
     _check_lengths("standards", standards_M, standards_L, standards_A, minimum=2)
     _check_lengths("mixtures", mixtures_M, mixtures_L, mixtures_A, minimum=1)
     M = np.concatenate([_float_column("M totals", standards_M), _float_column("M totals", mixtures_M)])
