@@ -99,11 +99,16 @@ def _largest_abs(x) -> float:
 
 
 def _mixture_states(slope, intercept, mixtures_M, mixtures_L, mixtures_A):
-    """The ICE table of every mixture read off the line. The line and K are collapsed
-    (`backend.collapse`): K enters every later step and every result."""
+    """The ICE table of every mixture read off the line. The line is collapsed
+    (`backend.collapse`) once for all mixtures; each K is collapsed by its user
+    (the next step's combined K, or `_collapsed_K` for the results)."""
     slope, intercept = mathops.collapse(slope), mathops.collapse(intercept)
-    states = (equilibrium_constant((a - intercept) / slope, m, l_)
-              for m, l_, a in zip(mixtures_M, mixtures_L, mixtures_A, strict=True))
+    return tuple(equilibrium_constant((a - intercept) / slope, m, l_)
+                 for m, l_, a in zip(mixtures_M, mixtures_L, mixtures_A, strict=True))
+
+
+def _collapsed_K(states: tuple[IceTable, ...]) -> tuple[IceTable, ...]:
+    """The states with K collapsed: each K is a result and enters the combined K."""
     return tuple(replace(s, K=mathops.collapse(s.K)) for s in states)
 
 
@@ -140,7 +145,7 @@ def _naive(limiting_totals, standards_A, standard_weights, mixtures, mw) -> _Sta
     try:
         slope, intercept = line_by_sums(limiting_totals, standards_A, standard_weights)
         states = _mixture_states(slope, intercept, *mixtures)
-        return _State(slope, intercept, states, _combined(states, mw))
+        return _State(slope, intercept, states, mathops.collapse(_combined(states, mw)))
     except ZeroDivisionError:
         raise ValueError("the standards give no line: their limiting-reagent totals are all equal, "
                          "or the slope is zero, or a mixture has a free concentration of exactly "
@@ -156,7 +161,7 @@ def _iterate(start: _State, standards, standard_weights, mixtures, mw, iteration
     change: Any = math.nan
     for _ in range(iterations):  # a fixed count of vectorised steps, no test on values
         try:
-            x_std = [mathops.collapse(complex_concentration(now.K, m, l_))
+            x_std = [complex_concentration(now.K, m, l_)
                      for m, l_ in zip(standards_M, standards_L, strict=True)]
             now.slope, now.intercept = (mathops.collapse(v) for v in line_by_sums(x_std, standards_A, standard_weights))
             now.states = _mixture_states(now.slope, now.intercept, *mixtures)
@@ -212,7 +217,7 @@ def iterate_standards(standards_M, standards_L, standards_A, mixtures_M, mixture
         undefined = count_undefined(K, *[q for s in now.states for q in (s.complex_conc, s.free_M, s.free_L)])
     return StandardsCorrection(
         K=K, slope=slope, intercept=now.intercept, molar_absorptivity=slope / path_length,
-        mixtures=now.states, fraction_standards=fractions, naive_K=naive.K, naive_slope=naive.slope,
+        mixtures=_collapsed_K(now.states), fraction_standards=fractions, naive_K=naive.K, naive_slope=naive.slope,
         naive_intercept=naive.intercept, slope_bias=naive.slope / slope - 1.0,
         K_bias=naive.K / K - 1.0, iterations=len(history),
         change_history=tuple(history), converged=bool(history[-1] <= tolerance),
