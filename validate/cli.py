@@ -7,14 +7,20 @@ import argparse
 import shutil
 import sys
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 from rich.console import Console
 
 from validate import __version__
 from validate.inputs.errors import InputError
-from validate.model.assay import ModelError
+from validate.model.errors import ModelError  # the small module: no numerics for --help
 from validate.report import terminal
-from validate.workflow import pipeline as api
+
+if TYPE_CHECKING:
+    from validate.workflow.pipeline import Run
+
+# validate.workflow.pipeline (and with it numpy, scipy and the engines) is imported by the
+# commands that need it, when they run: `validate --help` and `validate init` stay fast.
 
 EXIT_INPUT = 2
 EXIT_DATA = 3
@@ -106,12 +112,19 @@ def _show(console: Console, lines: list[terminal.Printable]) -> None:
 
 
 def _check(args, console: Console) -> int:
-    method, model = api.check(args.method)
+    # what `pipeline.check` does, without importing the engines and the record for it
+    from validate.inputs.method_file import load_method
+    from validate.model.build import build
+
+    method = load_method(args.method)
+    model = build(method)
     _show(console, terminal.check_lines(terminal.check_facts(method, model)))
     return 0
 
 
 def _run(args, console: Console) -> int:
+    from validate.workflow import pipeline as api  # imported when needed (see the top)
+
     # --out is checked, locked and staged before any computation; the record is swapped into
     # place whole at the end, so --out holds the old or the new record at every instant
     target = api.open_output(args.out, args.overwrite, args.method)
@@ -127,7 +140,9 @@ def _run(args, console: Console) -> int:
     return 0
 
 
-def _analyse(args, console: Console) -> api.Run:
+def _analyse(args, console: Console) -> Run:
+    from validate.workflow import pipeline as api
+
     progress = terminal.ProgressBars(console) if console.is_terminal else None  # not into a file or pipe
     try:
         return api.analyse(args.method, trials=args.trials or None, seed=args.seed,

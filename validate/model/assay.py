@@ -44,7 +44,8 @@ class SolutionInputs:
     def concentrations(self, x) -> dict:
         conc: dict = {}
         for sol_id, term in self._solution_terms.items():
-            conc[sol_id] = term(x, conc)
+            # collapsed: each concentration is shared by its dilutions and by every result
+            conc[sol_id] = backend.collapse(term(x, conc))
         return conc
 
 
@@ -69,9 +70,11 @@ class Model(SolutionInputs):
         conc = self.concentrations(x) if conc is None else conc
         design = self._design()
         fitted = design.fitted()
-        return straight_line([p.count for _, p in fitted], [conc[p.solution] for _, p in fitted],
-                             [self._reading_terms[p.solution](x) for _, p in fitted],
-                             [design.weight(lv.id) for lv, _ in fitted] if design.weighted else None)
+        intercept, slope = straight_line(
+            [p.count for _, p in fitted], [conc[p.solution] for _, p in fitted],
+            [self._reading_terms[p.solution](x) for _, p in fitted],
+            [design.weight(lv.id) for lv, _ in fitted] if design.weighted else None)
+        return backend.collapse(intercept), backend.collapse(slope)  # shared by every sample's result
 
     def _design(self) -> CalibrationDesign:
         if self.design is None:

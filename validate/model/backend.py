@@ -12,7 +12,7 @@ import math
 
 import numpy as np
 from uncertainties import umath
-from uncertainties.core import AffineScalarFunc
+from uncertainties.core import AffineScalarFunc, LinearCombination, Variable
 
 
 def _pick(x, np_func, u_func, m_func):
@@ -44,6 +44,70 @@ def nominal(x):
     if isinstance(x, AffineScalarFunc):
         return x.nominal_value
     return x
+
+
+def collapse(x):
+    """x as a fresh, flat linear combination of the input variables; the identity on
+    floats, arrays and the inputs themselves.
+
+    Performance only: the value and the derivatives are those of x (summed in
+    another order, so equal to round-off). `uncertainties` keeps an expression
+    as a tree and expands it into derivatives with respect to the inputs by
+    walking every path to them, again for every result that uses it. A shared
+    intermediate result (a standard's concentration, the fitted line, an
+    iteration's state) would then be walked once per result and per path through
+    it, which grows faster than the square of the method's size. Collapsed once
+    where it is made, it costs one pass over its own inputs wherever it is used.
+    """
+    if isinstance(x, AffineScalarFunc) and not isinstance(x, Variable):
+        return AffineScalarFunc(x.nominal_value, LinearCombination(_flat_derivatives(x)))
+    return x
+
+
+def _flat_derivatives(x: AffineScalarFunc) -> dict:
+    """{Variable: dx/dVariable}, visiting every node of x's expression once.
+
+    Reverse accumulation over the expression graph (parents before children, each
+    node's weight the sum over the paths that reach it), so a sub-expression used
+    many times (the line's means in every residual) is expanded once, where the
+    package's own expansion walks it once per path. Reads the package's
+    `LinearCombination` form (uncertainties 3.x, pinned in pyproject.toml): a node
+    holds either an expanded {Variable: coefficient} dict or (coefficient, node) pairs.
+    """
+    root = x._linear_part
+    if root.expanded():
+        return dict(root.linear_combo)
+    weight = {id(root): 1.0}
+    flat: dict = {}
+    for node in _parents_first(root):
+        w = weight[id(node)]
+        if node.expanded():
+            for var, d in node.linear_combo.items():
+                flat[var] = flat.get(var, 0.0) + w * d
+        else:
+            for factor, child in node.linear_combo:
+                weight[id(child)] = weight.get(id(child), 0.0) + w * factor
+    return flat
+
+
+def _parents_first(root) -> list:
+    """The nodes of an expression graph, each once, every node before its children
+    (reversed depth-first post-order, a topological order of a graph without cycles)."""
+    order, seen = [], set()
+    stack = [(root, False)]
+    while stack:
+        node, finished = stack.pop()
+        if finished:
+            order.append(node)
+            continue
+        if id(node) in seen:
+            continue
+        seen.add(id(node))
+        stack.append((node, True))
+        if not node.expanded():
+            stack.extend((child, False) for _, child in node.linear_combo if id(child) not in seen)
+    order.reverse()
+    return order
 
 
 FUNCTIONS = {"sqrt": sqrt, "log": log, "ln": log, "log10": log10, "exp": exp}

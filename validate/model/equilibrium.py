@@ -14,7 +14,7 @@ Outputs are in the display units of the study (K in `k_unit`).
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -92,9 +92,11 @@ class EquilibriumModel(SolutionInputs):
         study = self.study
         if study.correction == "none":
             limiting = sl if study.limiting == "ligand" else sm
-            slope, intercept = line_by_sums(limiting, sa, reps)
-            return [equilibrium_constant((a - intercept) / slope, m, l_)
-                    for m, l_, a in zip(pm, pl, pa, strict=True)]
+            # collapsed (`backend.collapse`): the line and each K are shared by later results
+            slope, intercept = (mathops.collapse(v) for v in line_by_sums(limiting, sa, reps))
+            states = [equilibrium_constant((a - intercept) / slope, m, l_)
+                      for m, l_, a in zip(pm, pl, pa, strict=True)]
+            return [replace(s, K=mathops.collapse(s.K)) for s in states]
         corrected = iterate_standards(sm, sl, sa, pm, pl, pa, limiting="L" if study.limiting == "ligand" else "M",
                                       iterations=study.iterations, standard_weights=reps)
         return list(corrected.mixtures)

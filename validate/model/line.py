@@ -23,7 +23,7 @@ from dataclasses import asdict, dataclass
 from typing import Any
 
 import numpy as np
-from scipy import stats
+from scipy import special  # the t quantile only: scipy.stats costs half a second to import
 
 
 @dataclass(frozen=True)
@@ -185,7 +185,7 @@ def inverse_prediction(fit: LineFit, readings, sample_weight: float = 1.0,
         raise ValueError("an inverse prediction needs at least one reading")
     y0 = float(r.mean())
     b = fit.slope
-    t = stats.t.ppf(0.5 + confidence / 2.0, fit.dof)
+    t = special.stdtrit(fit.dof, 0.5 + confidence / 2.0)  # what scipy.stats.t.ppf computes
     g = (t * fit.slope_u / b) ** 2 if b != 0 else math.inf
     finite = g < 1.0
     if b == 0:

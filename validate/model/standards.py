@@ -27,8 +27,6 @@ from dataclasses import dataclass, replace
 from typing import Any
 
 import numpy as np
-from scipy import optimize
-from uncertainties.core import AffineScalarFunc
 
 from validate.model import backend as mathops
 from validate.model.ice import (
@@ -93,18 +91,6 @@ def _check_lengths(kind, *columns, minimum):
         raise ValueError(f"{kind}: {n} given, at least {minimum} needed")
 
 
-def _settle(x):
-    """Expand a ufloat's derivatives now; other backends pass through.
-
-    Performance only, values unchanged: `uncertainties` expands a nested
-    expression by walking every path to the inputs, which grows
-    exponentially over the iterations unless each step is flattened.
-    """
-    if isinstance(x, AffineScalarFunc):
-        x.derivatives  # noqa: B018  (the property expands and caches)
-    return x
-
-
 def _largest_abs(x) -> float:
     """Largest |x| over the finite trials (nan when none is finite)."""
     v = np.abs(np.atleast_1d(np.asarray(mathops.nominal(x), dtype=float)))
@@ -113,8 +99,17 @@ def _largest_abs(x) -> float:
 
 
 def _mixture_states(slope, intercept, mixtures_M, mixtures_L, mixtures_A):
+    """The ICE table of every mixture read off the line. The line is collapsed
+    (`backend.collapse`) once for all mixtures; each K is collapsed by its user
+    (the next step's combined K, or `_collapsed_K` for the results)."""
+    slope, intercept = mathops.collapse(slope), mathops.collapse(intercept)
     return tuple(equilibrium_constant((a - intercept) / slope, m, l_)
                  for m, l_, a in zip(mixtures_M, mixtures_L, mixtures_A, strict=True))
+
+
+def _collapsed_K(states: tuple[IceTable, ...]) -> tuple[IceTable, ...]:
+    """The states with K collapsed: each K is a result and enters the combined K."""
+    return tuple(replace(s, K=mathops.collapse(s.K)) for s in states)
 
 
 def _combined(states: tuple[IceTable, ...], weights):
@@ -150,7 +145,7 @@ def _naive(limiting_totals, standards_A, standard_weights, mixtures, mw) -> _Sta
     try:
         slope, intercept = line_by_sums(limiting_totals, standards_A, standard_weights)
         states = _mixture_states(slope, intercept, *mixtures)
-        return _State(slope, intercept, states, _combined(states, mw))
+        return _State(slope, intercept, states, mathops.collapse(_combined(states, mw)))
     except ZeroDivisionError:
         raise ValueError("the standards give no line: their limiting-reagent totals are all equal, "
                          "or the slope is zero, or a mixture has a free concentration of exactly "
@@ -166,11 +161,11 @@ def _iterate(start: _State, standards, standard_weights, mixtures, mw, iteration
     change: Any = math.nan
     for _ in range(iterations):  # a fixed count of vectorised steps, no test on values
         try:
-            x_std = [_settle(complex_concentration(now.K, m, l_))
+            x_std = [complex_concentration(now.K, m, l_)
                      for m, l_ in zip(standards_M, standards_L, strict=True)]
-            now.slope, now.intercept = (_settle(v) for v in line_by_sums(x_std, standards_A, standard_weights))
+            now.slope, now.intercept = (mathops.collapse(v) for v in line_by_sums(x_std, standards_A, standard_weights))
             now.states = _mixture_states(now.slope, now.intercept, *mixtures)
-            K_new = _settle(now.K + damping * (_combined(now.states, mw) - now.K))
+            K_new = mathops.collapse(now.K + damping * (_combined(now.states, mw) - now.K))
         except (ValueError, ZeroDivisionError, OverflowError):
             # Only scalars raise (numpy gives nan per trial): the iteration left the
             # domain (K <= 0 or a zero slope). Report it as undefined, not converged.
@@ -222,7 +217,7 @@ def iterate_standards(standards_M, standards_L, standards_A, mixtures_M, mixture
         undefined = count_undefined(K, *[q for s in now.states for q in (s.complex_conc, s.free_M, s.free_L)])
     return StandardsCorrection(
         K=K, slope=slope, intercept=now.intercept, molar_absorptivity=slope / path_length,
-        mixtures=now.states, fraction_standards=fractions, naive_K=naive.K, naive_slope=naive.slope,
+        mixtures=_collapsed_K(now.states), fraction_standards=fractions, naive_K=naive.K, naive_slope=naive.slope,
         naive_intercept=naive.intercept, slope_bias=naive.slope / slope - 1.0,
         K_bias=naive.K / K - 1.0, iterations=len(history),
         change_history=tuple(history), converged=bool(history[-1] <= tolerance),
@@ -281,6 +276,8 @@ def fit_joint(standards_M, standards_L, standards_A, mixtures_M, mixtures_L, mix
     Analysis and Its Applications, 1988, section 2.3; Press et al.,
     Numerical Recipes 3rd ed., section 15.5). u(K) = K ln10 u(log10 K).
     """
+    from scipy import optimize  # imported when a joint fit runs: scipy.optimize is slow to import
+
     _check_lengths("standards", standards_M, standards_L, standards_A, minimum=2)
     _check_lengths("mixtures", mixtures_M, mixtures_L, mixtures_A, minimum=1)
     M = np.concatenate([_float_column("M totals", standards_M), _float_column("M totals", mixtures_M)])

@@ -13,7 +13,7 @@ import math
 from collections.abc import Sequence
 from dataclasses import asdict, dataclass
 
-from scipy import stats
+from scipy import special  # the quantiles only: scipy.stats costs half a second to import
 from uncertainties import ufloat
 from uncertainties.core import AffineScalarFunc
 
@@ -91,8 +91,8 @@ def welch_satterthwaite(contributions: list[float], dofs: list[float], groups: l
 def coverage_factor(p: float, dof: float) -> float:
     """k = t_{(1+p)/2, nu}; the normal quantile when nu is infinite (GUM G.3.4)."""
     if math.isinf(dof) or dof > 1e7:
-        return float(stats.norm.ppf(0.5 + p / 2.0))
-    return float(stats.t.ppf(0.5 + p / 2.0, dof))
+        return float(special.ndtri(0.5 + p / 2.0))  # what scipy.stats.norm.ppf computes
+    return float(special.stdtrit(dof, 0.5 + p / 2.0))  # what scipy.stats.t.ppf computes
 
 
 def propagate(model: Model) -> list[LinearResult]:

@@ -1,19 +1,24 @@
 """The report's figures, drawn with matplotlib's Agg canvas (no pyplot, no global state).
 
-Each function takes plain values from the record and returns PNG bytes
-(200 dpi), ready for the PDF. Sizes are in inches, sized for the 174 mm
-text width of an A4 page.
+Each function takes plain values from the record and returns a `Raster`: the
+figure's RGB pixels, drawn at 200 dpi for the size it is printed at (174 mm text
+width of an A4 page, about 1370 pixels across: sharp on paper at normal reading
+distance; common practice puts line art for print at 150 to 300 dpi). The pixels
+go to the PDF as they are: no PNG is encoded here and decoded again by the PDF
+writer, which compresses them once.
 """
 
 from __future__ import annotations
 
 import io
 import math
+from dataclasses import dataclass
 
 import numpy as np
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 from matplotlib.ticker import FixedLocator, FormatStrFormatter, NullFormatter
+from PIL import Image
 from scipy import stats
 
 from validate.model.line import level_sums
@@ -35,10 +40,31 @@ def _figure(height_in: float) -> Figure:
     return fig
 
 
-def _png(fig: Figure) -> bytes:
-    buffer = io.BytesIO()
-    fig.savefig(buffer, format="png", dpi=DPI)
-    return buffer.getvalue()
+@dataclass(frozen=True)
+class Raster:
+    """A drawn figure: RGB pixels at DPI dots per inch of its printed size."""
+
+    pixels: Image.Image
+
+    @property
+    def size(self) -> tuple[int, int]:
+        return self.pixels.size
+
+    def png(self) -> bytes:
+        """The figure as a PNG file, for a reader that wants one."""
+        buffer = io.BytesIO()
+        self.pixels.save(buffer, format="PNG", dpi=(DPI, DPI))
+        return buffer.getvalue()
+
+
+def _raster(fig: Figure) -> Raster:
+    """Draw the figure once on its Agg canvas and keep the pixels (white, opaque background)."""
+    canvas = fig.canvas
+    assert isinstance(canvas, FigureCanvasAgg)  # every figure here is made by _figure
+    canvas.draw()
+    width, height = canvas.get_width_height()
+    rgba = Image.frombuffer("RGBA", (width, height), canvas.buffer_rgba(), "raw", "RGBA", 0, 1)
+    return Raster(rgba.convert("RGB"))
 
 
 def _tidy(ax) -> None:
@@ -114,7 +140,7 @@ def _residual_panel(ax, points: dict, grid, line: tuple[float, float], half, uni
     _tidy(ax)
 
 
-def calibration_figure(calibration: dict) -> bytes:
+def calibration_figure(calibration: dict) -> Raster:
     """The line with its standards, a 95 % prediction band and the samples; residuals beneath."""
     pts = calibration["points"]
     x = np.array([p["concentration"] for p in pts], dtype=float)
@@ -136,7 +162,7 @@ def calibration_figure(calibration: dict) -> bytes:
     low = fig.add_subplot(gs[1], sharex=top)
     _line_panel(top, points, samples, grid, (a, b), half)
     _residual_panel(low, points, grid, (a, b), half, calibration.get("concentration_unit", ""))
-    return _png(fig)
+    return _raster(fig)
 
 
 def _short(label: str, width: int = 46) -> str:
@@ -166,7 +192,7 @@ def _bars(ax, labels, shares, title: str) -> None:
 
 
 def share_chart(by_source: list[tuple[str, float]], by_step: list[tuple[str, float]],
-                top: int = 12) -> bytes:
+                top: int = 12) -> Raster:
     """Ranked horizontal bars: the largest sources (rest summed as 'all others') and the steps."""
     ranked = sorted(by_source, key=lambda item: -item[1])
     shown = ranked[:top]
@@ -183,10 +209,10 @@ def share_chart(by_source: list[tuple[str, float]], by_step: list[tuple[str, flo
     _bars(fig.add_subplot(gs[0]), [label for label, _ in shown], [s for _, s in shown],
           f"by source (largest {min(top, len(ranked))})")
     _bars(fig.add_subplot(gs[1]), [label for label, _ in steps], [s for _, s in steps], "by step")
-    return _png(fig)
+    return _raster(fig)
 
 
-def monte_carlo_figure(mc: dict, value: float, u: float, nu_eff, unit: str) -> bytes:
+def monte_carlo_figure(mc: dict, value: float, u: float, nu_eff, unit: str) -> Raster:
     """Histogram of the Monte Carlo trials with the GUM distribution and both intervals."""
     hist = mc["histogram"]
     edges = np.asarray(hist["edges"], dtype=float)
@@ -217,10 +243,10 @@ def monte_carlo_figure(mc: dict, value: float, u: float, nu_eff, unit: str) -> b
     ax.set_ylabel("probability density", fontsize=9)
     fig.legend(fontsize=7, frameon=False, loc="lower center", ncol=3)
     _tidy(ax)
-    return _png(fig)
+    return _raster(fig)
 
 
-def window_figure(standards: list[float], samples: list[float], low: float, high: float) -> bytes:
+def window_figure(standards: list[float], samples: list[float], low: float, high: float) -> Raster:
     """The photometric error curve with the recommended window and where the readings lie."""
     readings = [a for a in list(standards) + list(samples) if a is not None and a > 0]
     a_max = max([2.0] + [a * 1.1 for a in readings])
@@ -248,4 +274,4 @@ def window_figure(standards: list[float], samples: list[float], low: float, high
     ax.set_ylabel("error factor", fontsize=9)
     fig.legend(fontsize=7, frameon=False, loc="upper center", ncol=3)
     _tidy(ax)
-    return _png(fig)
+    return _raster(fig)

@@ -1,7 +1,7 @@
 """The figure of an equilibrium study: K of every point against the combined K.
 
 Drawn with matplotlib's Agg canvas like the other figures (figures.py);
-takes plain values from the record and returns PNG bytes.
+takes plain values from the record and returns the figure's pixels (`figures.Raster`).
 """
 
 from __future__ import annotations
@@ -10,7 +10,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from validate.report.figures import BAND, LINE, POINT, WARM, _figure, _png, _tidy
+from validate.report.figures import BAND, LINE, POINT, WARM, Raster, _figure, _raster, _tidy
 
 
 @dataclass(frozen=True)
@@ -25,7 +25,7 @@ class PointK:
 
 
 def k_per_point_figure(points: list[PointK], combined: float | None, expanded: float | None,
-                       mc_interval: tuple[float, float] | None, unit: str, bar_label: str) -> bytes:
+                       mc_interval: tuple[float, float] | None, unit: str, bar_label: str) -> Raster:
     """K of each point with its error bar; the combined K as a line, its GUM band and MC interval."""
     fig = _figure(3.6)
     ax = fig.add_axes((0.11, 0.3, 0.86, 0.66))
@@ -57,4 +57,4 @@ def k_per_point_figure(points: list[PointK], combined: float | None, expanded: f
     fig.legend(fontsize=7, frameon=False, loc="lower center", ncol=2)
     _tidy(ax)
     ax.grid(False, axis="x")
-    return _png(fig)
+    return _raster(fig)

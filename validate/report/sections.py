@@ -12,21 +12,39 @@ from __future__ import annotations
 import io
 
 from reportlab.lib.utils import ImageReader
-from reportlab.platypus import Image, KeepTogether, Paragraph
+from reportlab.platypus import Flowable, Image, KeepTogether, Paragraph
 
 from validate.report import figures
 from validate.report.numbers import DASH, dof, gum_decimals, gum_pair, interval, is_number, num, pct
 from validate.report.style import BAD, FRAME_WIDTH, GOOD, data_table, gap, heading, key_value_table, para, styles, text
 
 
-def png_image(data: bytes, width: float = FRAME_WIDTH) -> Image:
-    """A PNG at the given width, height from its aspect ratio."""
+class RasterImage(Flowable):
+    """A figure's pixels (`figures.Raster`) at a given width, height from the aspect ratio;
+    handed to the PDF writer as pixels, so they are compressed once."""
+
+    def __init__(self, raster: figures.Raster, width: float) -> None:
+        super().__init__()
+        pixels_w, pixels_h = raster.size
+        self.raster, self.width, self.height = raster, width, width * pixels_h / pixels_w
+
+    def wrap(self, availWidth, availHeight):  # reportlab calls it with these names
+        return self.width, self.height
+
+    def draw(self) -> None:
+        self.canv.drawImage(ImageReader(self.raster.pixels), 0, 0, self.width, self.height)
+
+
+def png_image(data: bytes | figures.Raster, width: float = FRAME_WIDTH) -> Flowable:
+    """A figure (pixels, or a PNG file's bytes) at the given width, height from its aspect ratio."""
+    if isinstance(data, figures.Raster):
+        return RasterImage(data, width)
     reader = ImageReader(io.BytesIO(data))
     w, h = reader.getSize()
     return Image(io.BytesIO(data), width=width, height=width * h / w)
 
 
-def figure_block(data: bytes, caption: str, width: float = FRAME_WIDTH) -> KeepTogether:
+def figure_block(data: bytes | figures.Raster, caption: str, width: float = FRAME_WIDTH) -> KeepTogether:
     """A figure and its caption, never parted by a page break."""
     return KeepTogether([gap(2), png_image(data, width), para(caption, "note")])
 

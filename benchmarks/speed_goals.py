@@ -1,0 +1,170 @@
+"""Speed goals of the linear engine, the advisor, start-up, whole runs and the PDF (a script, not a test).
+
+Every figure is CPU time (time.process_time in the measuring process, or the child's user +
+system time for a command), the median of --runs runs, on one core (the process and its
+children are pinned to one core and numerical libraries to one thread). Each measure runs
+in a fresh process. With --before CHECKOUT the same measures run on that checkout too
+(for example an export of an earlier commit: `git archive COMMIT | tar -x -C FOLDER`), and
+the ratio before/after is printed beside each figure; the slowest before-measures (whole
+runs of the generated method) are skipped unless --before-all is given.
+
+Methods: the two demos in example_inputs/ and a generated copy of the phosphate demo with
+40 standards and 50 samples (benchmarks/scaled_method.py; invented readings).
+
+Usage: python benchmarks/speed_goals.py [--runs 3] [--before CHECKOUT [--before-all]]
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import resource
+import statistics
+import subprocess
+import sys
+import tempfile
+from dataclasses import dataclass
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parents[1]
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+
+from scaled_method import write_scaled_method  # noqa: E402
+
+PROBE = Path(__file__).resolve().parent / "speed_probe.py"
+DEMOS = {"phosphate": ROOT / "example_inputs" / "phosphate_assay" / "method.toml",
+         "nickel": ROOT / "example_inputs" / "nickel_complex" / "method.toml"}
+ONE_THREAD = {k: "1" for k in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS")}
+
+
+@dataclass(frozen=True)
+class Goal:
+    label: str
+    limit: float | None  # the goal: at most this many seconds (or bytes); None: shown for context
+    unit: str = "s"
+
+
+def pin_to_one_core() -> str:
+    try:
+        os.sched_setaffinity(0, {sorted(os.sched_getaffinity(0))[0]})
+        return "pinned to one core"
+    except (AttributeError, OSError):
+        return "could not pin to one core (figures are CPU time all the same)"
+
+
+def _env(checkout: Path) -> dict:
+    return {**os.environ, **ONE_THREAD, "PYTHONPATH": str(checkout), "MPLBACKEND": "Agg"}
+
+
+def probe(checkout: Path, measure: str, method: Path, runs: int) -> dict:
+    """A measurement of speed_probe.py in a fresh process on `checkout`."""
+    done = subprocess.run([sys.executable, str(PROBE), str(checkout), measure, str(method), str(runs)],
+                          capture_output=True, text=True, env=_env(checkout), check=False)
+    if done.returncode != 0:
+        raise RuntimeError(f"{measure} on {method} failed in {checkout}:\n{done.stderr[-2000:]}")
+    return json.loads(done.stdout.strip().splitlines()[-1])
+
+
+def command_cpu(checkout: Path, args: list[str], runs: int) -> list[float]:
+    """CPU seconds (user + system) of `python -m validate.cli ARGS` in a child process, per run."""
+    times = []
+    for _ in range(runs):
+        before = resource.getrusage(resource.RUSAGE_CHILDREN)
+        done = subprocess.run([sys.executable, "-m", "validate.cli", *args], capture_output=True,
+                              text=True, env=_env(checkout), cwd=checkout, check=False)
+        after = resource.getrusage(resource.RUSAGE_CHILDREN)
+        if done.returncode != 0:
+            raise RuntimeError(f"validate {' '.join(args)} failed in {checkout}:\n{done.stderr[-2000:]}")
+        times.append(after.ru_utime + after.ru_stime - before.ru_utime - before.ru_stime)
+    return times
+
+
+def whole_run(checkout: Path, method: Path, runs: int, out: Path) -> list[float]:
+    """A default run: 10^6 Monte Carlo trials with the shares, the advisor and the PDF."""
+    return command_cpu(checkout, ["run", str(method), "--out", str(out), "--overwrite", "--seed", "1"], runs)
+
+
+def show(goal: Goal, after: float, before: float | None) -> None:
+    scale, unit = (1024.0, "kB") if goal.unit == "bytes" else (1.0, "s")
+    ratio = f"{before / after:7.1f}x" if before is not None and after > 0 else "       -"
+    was = f"{before / scale:9.3f}" if before is not None else "        -"
+    if goal.limit is None:
+        print(f"{goal.label:58s} {was} {after / scale:9.3f} {ratio}   (no goal; for context)")
+        return
+    met = "met" if after <= goal.limit else "NOT MET"
+    print(f"{goal.label:58s} {was} {after / scale:9.3f} {ratio}   <= {goal.limit / scale:g} {unit}  {met}")
+
+
+def _median(values: list[float]) -> float:
+    return statistics.median(values)
+
+
+class Bench:
+    def __init__(self, runs: int, before: Path | None, before_all: bool, scratch: Path) -> None:
+        self.runs, self.before, self.before_all, self.scratch = runs, before, before_all, scratch
+
+    def both(self, goal: Goal, measure, slow: bool = False) -> None:
+        """Run `measure(checkout)` here and, when asked, on the before-checkout; print the pair."""
+        after = measure(ROOT)
+        before = measure(self.before) if self.before and (self.before_all or not slow) else None
+        show(goal, after, before)
+
+    def gum(self, method: Path, label: str, limit: float) -> None:
+        self.both(Goal(f"linear engine (GUM), {label}", limit),
+                  lambda c: _median(probe(c, "gum", method, self.runs)["cpu"]))
+
+    def advisor(self, method: Path, label: str) -> None:
+        self.both(Goal(f"advisor, {label} (with its Monte Carlo check)", 1.0),
+                  lambda c: _median(probe(c, "advisor", method, self.runs)["cpu"]))
+        self.both(Goal(f"advisor, {label}, linear engine part only", 1.0),
+                  lambda c: _median(probe(c, "advisor-linear", method, self.runs)["cpu"]))
+
+    def whole(self, method: Path, label: str, limit: float, slow: bool = False) -> None:
+        out = self.scratch / label.replace(" ", "_")
+        runs = 1 if slow else self.runs
+        self.both(Goal(f"whole run with defaults, {label}", limit),
+                  lambda c: _median(whole_run(c, method, runs, out)), slow)
+
+    def pdf(self, method: Path, label: str) -> None:
+        results = {}
+
+        def measured(c: Path) -> dict:
+            if c not in results:
+                results[c] = probe(c, "pdf", method, self.runs)
+            return results[c]
+
+        self.both(Goal(f"PDF report, {label}", None), lambda c: _median(measured(c)["cpu"]))
+        self.both(Goal(f"PDF figures, {label}", 1.0), lambda c: _median(measured(c)["figures_cpu"]))
+        self.both(Goal(f"PDF size, {label}", 600 * 1024, "bytes"), lambda c: float(measured(c)["bytes"]))
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
+    parser.add_argument("--runs", type=int, default=3)
+    parser.add_argument("--before", type=Path, default=None, help="another checkout to time side by side")
+    parser.add_argument("--before-all", action="store_true", help="also the slow before-measures")
+    args = parser.parse_args()
+    print(pin_to_one_core(), f"; CPU seconds, median of {args.runs} runs; before = {args.before or '-'}")
+    print(f"{'measure':58s} {'before':>9s} {'after':>9s} {'ratio':>8s}   goal")
+    with tempfile.TemporaryDirectory() as folder:
+        scratch = Path(folder)
+        scaled = write_scaled_method(scratch / "scaled", standards=40, samples=50)
+        bench = Bench(args.runs, args.before.resolve() if args.before else None, args.before_all, scratch)
+        for label, method in DEMOS.items():
+            bench.gum(method, f"{label} demo", 1.0)
+        bench.gum(scaled, "generated 40 standards x 50 samples", 1.0)
+        for label, method in DEMOS.items():
+            bench.advisor(method, f"{label} demo")
+        bench.both(Goal("validate --help", 0.5), lambda c: _median(command_cpu(c, ["--help"], args.runs)))
+        for label, method in DEMOS.items():
+            bench.both(Goal(f"validate check, {label} demo", 0.5),
+                       lambda c, m=method: _median(command_cpu(c, ["check", str(m)], args.runs)))
+        bench.pdf(DEMOS["phosphate"], "phosphate demo")
+        for label, method in DEMOS.items():
+            bench.whole(method, f"{label} demo", 4.0)
+        bench.whole(scaled, "generated 40 x 50", 15.0, slow=True)
+
+
+if __name__ == "__main__":
+    main()

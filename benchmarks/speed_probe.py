@@ -1,0 +1,105 @@
+"""One timed measurement in a fresh process, for benchmarks/speed_goals.py (not a test).
+
+Usage: python benchmarks/speed_probe.py CHECKOUT MEASURE METHOD RUNS
+Puts CHECKOUT first on the path (so the same probe times another checkout side by side),
+runs MEASURE RUNS times and prints one JSON object: CPU seconds per run (time.process_time)
+and, for the PDF, its size. MEASURE is one of:
+  gum      build the model (with an equilibrium study's combination) and run the linear engine
+  advisor  the what-if advisor as a default run calls it (candidates by the linear engine,
+           the best three checked by Monte Carlo at 50,000 trials)
+  advisor-linear  the same without the Monte Carlo check
+  pdf      the report from a finished run (10^6 trials, seed 1); also the CPU time inside the
+           figure functions and the file size
+"""
+
+from __future__ import annotations
+
+import json
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+
+def _cpu(work) -> float:
+    start = time.process_time()
+    work()
+    return time.process_time() - start
+
+
+def gum(method: str, runs: int) -> dict:
+    from validate.equilibrium.study import build_ready_model
+    from validate.inputs.method_file import load_method
+    from validate.propagation.linear import propagate
+
+    loaded = load_method(method)
+    return {"cpu": [_cpu(lambda: propagate(build_ready_model(loaded)[0])) for _ in range(runs)]}
+
+
+def advisor(method: str, runs: int, confirm: int) -> dict:
+    from validate.advisor.advice import advise
+    from validate.equilibrium.study import build_ready_model
+    from validate.inputs.method_file import load_method
+    from validate.propagation.linear import propagate
+
+    loaded = load_method(method)
+    results = propagate(build_ready_model(loaded)[0])
+    return {"cpu": [_cpu(lambda: advise(loaded, results, seed=1, confirm_with_mc=confirm))
+                    for _ in range(runs)]}
+
+
+def _timed_figures(spent: list[float]) -> None:
+    """Wrap every public figure function so the time spent drawing is summed in `spent`."""
+    import importlib
+
+    for name in ("validate.report.figures", "validate.report.figures_equilibrium"):
+        try:
+            module = importlib.import_module(name)
+        except ImportError:
+            continue
+        for attr, func in list(vars(module).items()):
+            if callable(func) and attr.endswith(("_figure", "_chart")) and not attr.startswith("_"):
+                setattr(module, attr, _wrapped(func, spent))  # the sections call module.attr
+
+
+def _wrapped(func, spent: list[float]):
+    def timed(*args, **kwargs):
+        start = time.process_time()
+        try:
+            return func(*args, **kwargs)
+        finally:
+            spent[0] += time.process_time() - start
+    timed.__wrapped__ = func  # type: ignore[attr-defined]
+    return timed
+
+
+def pdf(method: str, runs: int) -> dict:
+    from validate.report import pdf as report
+    from validate.workflow import pipeline
+
+    run = pipeline.analyse(method, trials=1_000_000, seed=1)
+    spent = [0.0]
+    _timed_figures(spent)
+    total, figures, size = [], [], 0
+    with tempfile.TemporaryDirectory() as folder:
+        target = Path(folder) / "report.pdf"
+        for _ in range(runs):
+            spent[0] = 0.0
+            total.append(_cpu(lambda: report.build_report(run.record, target)))
+            figures.append(spent[0])
+        size = target.stat().st_size
+    return {"cpu": total, "figures_cpu": figures, "bytes": size}
+
+
+def main() -> None:
+    checkout, measure, method, runs = sys.argv[1], sys.argv[2], sys.argv[3], int(sys.argv[4])
+    sys.path.insert(0, checkout)
+    probes = {"gum": lambda: gum(method, runs), "advisor": lambda: advisor(method, runs, 3),
+              "advisor-linear": lambda: advisor(method, runs, 0), "pdf": lambda: pdf(method, runs)}
+    if measure not in probes:
+        raise SystemExit(f"unknown measure {measure!r}; choose one of {', '.join(probes)}")
+    print(json.dumps(probes[measure]()))
+
+
+if __name__ == "__main__":
+    main()
