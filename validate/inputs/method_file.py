@@ -20,6 +20,7 @@ from validate.inputs.registers import load_registers
 from validate.inputs.schema import AssayMethod, EquilibriumMethod, Method, Sample, Settings
 from validate.inputs.solutions_section import check_solution_graph, parse_solution
 from validate.inputs.tables import Table, parse_uncertain
+from validate.inputs.text import MAX_NESTING, clean_document
 from validate.inputs.validation_settings import parse_validation
 
 TOP_KEYS = ("method", "settings", "equipment", "solutions", "calibration", "samples",
@@ -45,7 +46,10 @@ def _top_table(path: Path) -> Table:
         raise InputError(f"TOML syntax error: {exc}", file=path,
                          fix="correct the line and column named (quotes around text and units, "
                              "one key = value per line)") from None
-    top = Table(data, path, "top level")
+    except RecursionError:  # the parser recurses once per level of nesting
+        raise InputError(f"tables and lists are nested more than {MAX_NESTING} deep", file=path,
+                         fix="write the method file as its template shows") from None
+    top = Table(clean_document(data, path), path, "top level")
     top.allow(*TOP_KEYS)
     return top
 
