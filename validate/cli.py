@@ -110,7 +110,17 @@ def _whole_number(text: str, name: str, fix: str) -> int:
     return int(number) if abs(number) < 2**53 else int(text) if text.lstrip("+-").isdigit() else int(number)
 
 
+def _tolerant_streams() -> None:
+    """A terminal or pipe that cannot show a character (an ASCII locale and a "µ") gets a
+    replacement mark instead of a traceback after the record was written."""
+    for stream in (sys.stdout, sys.stderr):
+        reconfigure = getattr(stream, "reconfigure", None)
+        if reconfigure is not None:
+            reconfigure(errors="replace")
+
+
 def main(argv=None) -> int:
+    _tolerant_streams()
     args = _parser().parse_args(argv)
     console = Console(highlight=False)
     errors = Console(stderr=True, highlight=False)

@@ -140,7 +140,9 @@ def _settings(t: Table, defaults: list[str]) -> Settings:
     t.allow("coverage_probability", "scatter", "glassware_distribution", "temperature_range",
             "expansion_coefficient", "shared_temperature", "registers")
     base = Settings()
-    p = t.number("coverage_probability", base.coverage_probability, low=0, high=1)
+    # a coverage probability below 50 % covers less than it leaves out, and one within 1e-4 of 1
+    # asks for an interval that 10^6 Monte Carlo trials cannot place (JCGM 101 7.2.2)
+    p = t.number("coverage_probability", base.coverage_probability, low=0.5, high=0.9999)
     scatter = t.choice("scatter", base.scatter, ("observed", "bottom-up"), 'use "observed" or "bottom-up"')
     dist = t.choice("glassware_distribution", base.glassware_distribution, ("triangular", "rectangular"),
                    'use "triangular" (EURACHEM/CITAC CG4) or "rectangular" (GUM 4.3.7)')

@@ -27,10 +27,11 @@ _ALLOWED_IN_TEXT = frozenset("\t\n")
 
 def escaped(text: str) -> str:
     """The text with every invisible or control character written as a \\u escape."""
-    return "".join(f"\\u{ord(c):04x}" if _is_invisible(c) else c for c in text)
+    return "".join(f"\\u{ord(c):04x}" if is_invisible(c) else c for c in text)
 
 
-def _is_invisible(char: str) -> bool:
+def is_invisible(char: str) -> bool:
+    """A control, format, private-use, unassigned or line/paragraph-separator character."""
     return unicodedata.category(char) in _INVISIBLE
 
 
@@ -42,7 +43,7 @@ def normal_id(text: str) -> str:
 def clean_id(text: str, *, file=None, where: str | None = None, what: str = "id") -> str:
     """An id or key normalised (NFKC), or InputError when it holds an invisible character or
     is longer than MAX_ID_LENGTH."""
-    bad = [c for c in text if _is_invisible(c)]
+    bad = [c for c in text if is_invisible(c)]
     if bad:
         raise InputError(f"the {what} '{escaped(text)}' holds an invisible or control character "
                          f"({', '.join(dict.fromkeys(f'U+{ord(c):04X}' for c in bad))})", file=file, where=where,
@@ -57,7 +58,7 @@ def clean_id(text: str, *, file=None, where: str | None = None, what: str = "id"
 def clean_text(text: str, *, file=None, where: str | None = None) -> str:
     """A free text as written, or InputError when it holds an invisible or control character
     (a tab and a line break are allowed) or is longer than MAX_TEXT_LENGTH."""
-    bad = [c for c in text if _is_invisible(c) and c not in _ALLOWED_IN_TEXT]
+    bad = [c for c in text if is_invisible(c) and c not in _ALLOWED_IN_TEXT]
     if bad:
         raise InputError(f"the text '{escaped(text)[:80]}' holds an invisible or control character "
                          f"({', '.join(dict.fromkeys(f'U+{ord(c):04X}' for c in bad))})", file=file, where=where,

@@ -95,6 +95,21 @@ def text(value) -> str:
     return escape(str(value))
 
 
+# Longest text shown whole in one table cell: a row taller than the page stops reportlab's
+# layout, so a longer text (a provenance, an id from the inputs) is cut with a note; results.json
+# keeps it whole.
+MAX_CELL_CHARACTERS = 600
+
+
+def cell_text(value) -> str:
+    """text() for a table cell, cut with a note when too long to lay out."""
+    shown = str(value)
+    if len(shown) > MAX_CELL_CHARACTERS:
+        cut = len(shown) - MAX_CELL_CHARACTERS
+        shown = f"{shown[:MAX_CELL_CHARACTERS]} ... [{cut} more characters; the whole text is in results.json]"
+    return escape(shown)
+
+
 def para(value, style: str = "body", markup: bool = False) -> Paragraph:
     return Paragraph(str(value) if markup else text(value), styles()[style])
 
@@ -133,7 +148,7 @@ def data_table(header: list[str], rows: list[list], widths_mm: Sequence[float],
             if isinstance(value, Paragraph):
                 cells.append(value)
             else:
-                cells.append(Paragraph(text(value), s["cell_right" if i in numeric else "cell"]))
+                cells.append(Paragraph(cell_text(value), s["cell_right" if i in numeric else "cell"]))
         body.append(cells)
     table = Table([head] + body, colWidths=[w * mm for w in widths_mm], repeatRows=1,
                   hAlign="LEFT")
@@ -157,7 +172,7 @@ def key_value_table(pairs: Sequence[tuple[str, object]], widths_mm=(52, 122)) ->
     """Two columns, label and value, for short facts (no header row)."""
     s = styles()
     rows = [[Paragraph(text(k), s["cell_head"]),
-             v if isinstance(v, Paragraph) else Paragraph(text(v), s["cell"])] for k, v in pairs]
+             v if isinstance(v, Paragraph) else Paragraph(cell_text(v), s["cell"])] for k, v in pairs]
     table = Table(rows, colWidths=[w * mm for w in widths_mm], hAlign="LEFT")
     table.setStyle(TableStyle([
         ("VALIGN", (0, 0), (-1, -1), "TOP"),

@@ -15,7 +15,6 @@ from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
-
 from scipy.stats import t as student_t
 
 from validate.inputs.errors import InputError
