@@ -24,6 +24,8 @@ def evaluate_formula(formula: Formula, values: dict, sample: str):
     except (ArithmeticError, ValueError) as exc:
         raise _not_computable(formula, values, sample, _reason(exc)) from None
     estimate = backend.nominal(result)
+    if isinstance(estimate, complex):  # Python's power of a negative number to a fraction
+        raise _not_computable(formula, values, sample, "a fractional power of a negative number")
     if isinstance(estimate, float) and not math.isfinite(estimate):
         raise _not_computable(formula, values, sample, f"the result is {estimate}")
     return result
