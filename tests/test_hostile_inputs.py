@@ -271,3 +271,24 @@ def test_a_study_with_no_possible_point_stops_with_exit_3(tmp_path, capsys):
     _refused(capsys, ["run", str(folder / "method.toml"), "--out", str(tmp_path / "out"), "--trials", "0",
                       "--no-pdf", "--no-advice"], 3, "no point of the study gives a physically possible K")
     assert not (tmp_path / "out").exists()
+
+
+@pytest.mark.parametrize("old, new, fragments", [
+    ('ionic_strength = "0.10 mol/L"', 'ionic_strength = "1e6 mol/L"', ["[equilibrium].ionic_strength", "10 mol/L"]),
+    ("charges = [2, -1]", "charges = [2000000000, -1]", ["[equilibrium].charges", "+/-6"]),
+    ("additions = 6", "additions = 1000000000", ["[equilibrium.series.T].additions", "below 201"]),
+    # below absolute zero (-273.15 degC) and outside liquid water at ordinary pressure
+    ('temperature = "25 degC"', 'temperature = "-300 degC"', ["[equilibrium].temperature", "0 to 100 degC"]),
+])
+def test_impossible_study_conditions_are_refused(tmp_path, capsys, old, new, fragments):
+    folder = _copy(tmp_path, STUDY)
+    _edit(folder, old, new)
+    _refused(capsys, ["check", str(folder / "method.toml")], 2, "method.toml", *fragments)
+
+
+@pytest.mark.skipif(not hasattr(os, "mkfifo"), reason="named pipes need a POSIX system")
+def test_a_named_pipe_as_a_register_file_is_refused(tmp_path, capsys):
+    folder = _copy(tmp_path)
+    os.mkfifo(folder / "our_lab.toml")
+    _edit(folder, "[settings]\n", '[settings]\nregisters = ["our_lab.toml"]\n')
+    _refused(capsys, ["check", str(folder / "method.toml")], 2, "our_lab.toml", "not a regular file")
