@@ -112,6 +112,45 @@ def test_a_formula_gives_a_finite_number_or_a_model_error(text, a, b):
     assert math.isfinite(value)
 
 
+# ---- units ----
+
+UNIT_TEXT = st.one_of(st.text(max_size=16),
+                      st.builds(lambda n, u: f"{n} {u}", st.floats().map(repr),
+                                st.sampled_from(["mL", "µL", "μL", "ｍL", "mg/L", "mol/L", "L/(mol cm)", "%", "K", "",
+                                                 "mL/", "(mL", "m L", "mL\u200b"])))
+
+
+@settings(max_examples=300, deadline=None)
+@given(UNIT_TEXT)
+def test_a_value_with_a_unit_is_read_or_refused_clearly(text):
+    from validate.inputs.tables import LARGEST_SI, SMALLEST_SI, Table, parse_si
+    table = Table({"v": text}, "method.toml", "[x]")
+    try:
+        value, _ = parse_si(table.get("v"), table, "v", None, False)
+    except InputError as exc:
+        assert "[x].v" in exc.message()
+        return
+    assert math.isfinite(value) and (value == 0 or SMALLEST_SI <= abs(value) <= LARGEST_SI)
+
+
+# ---- calibration data ----
+
+@settings(max_examples=80, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(st.lists(st.tuples(st.sampled_from([0.0, 1.0, 2.0, 3.0, 4.0, 5.0]),
+                          st.floats(-0.1, 2.0, allow_nan=False)), min_size=1, max_size=12))
+def test_calibrate_reports_only_rising_lines(tmp_path_factory, rows):
+    """Any table: a clear refusal, or a line that rises significantly (ISO 8466-1 reads the
+    slope by its t-test; a Beer-Lambert line rises)."""
+    from validate.validation.quickcheck import quick_check
+    table = tmp_path_factory.mktemp("table") / "t.csv"
+    table.write_text("concentration,absorbance\n" + "".join(f"{c},{a!r}\n" for c, a in rows), encoding="utf-8")
+    try:
+        result = quick_check(table, [[0.5]])
+    except (InputError, ModelError):
+        return
+    assert result["slope"] > 0 and result["slope"] > 2 * result["slope_standard_uncertainty"]
+
+
 # ---- equilibrium points ----
 
 STUDY = DEMOS / "nickel_complex"
