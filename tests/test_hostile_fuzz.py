@@ -21,7 +21,7 @@ from validate.inputs.formula import FormulaError, parse_formula
 from validate.inputs.method_file import load_method
 from validate.inputs.text import MAX_ID_LENGTH, clean_document, clean_id, is_invisible
 from validate.model.errors import ModelError, evaluate_formula
-from validate.report.style import MAX_CELL_CHARACTERS, cell_text
+from validate.report.style import cell_limit, cell_text
 from validate.report.terminal_run import Line, terminal_safe
 
 ANY_TEXT = st.text(alphabet=st.characters(codec="utf-8"), max_size=80)
@@ -64,13 +64,13 @@ def test_terminal_text_holds_no_control_character(text):
 
 
 @settings(max_examples=100, deadline=None)
-@given(st.text(max_size=3000))
-def test_a_pdf_cell_is_bounded(text):
-    shown = cell_text(text)
-    if len(text) <= MAX_CELL_CHARACTERS:
-        assert "more characters" not in shown or "more characters" in text
+@given(st.text(max_size=3000), st.floats(5, 174))
+def test_a_pdf_cell_is_bounded(text, width_mm):
+    shown, limit = cell_text(text, width_mm), cell_limit(width_mm)
+    if len(text) > limit:
+        assert f"[{len(text) - limit} more characters" in shown
     else:
-        assert f"[{len(text) - MAX_CELL_CHARACTERS} more characters" in shown
+        assert len(shown) >= len(text)  # shown whole (escaping only lengthens)
 
 
 # ---- arguments ----
