@@ -69,6 +69,12 @@ def test_an_invisible_character_in_a_reading_id_stops_the_check(tmp_path, capsys
     _refused(capsys, ["check", str(folder / "method.toml")], 2, "readings.csv", shown, "retype")
 
 
+def test_a_control_character_in_a_series_label_is_refused(tmp_path, capsys):
+    folder = _copy(tmp_path)
+    _edit(folder, "S4,0.3406,day 1", "S4,0.3406,day\x1b[8m 1", name="readings.csv")
+    _refused(capsys, ["check", str(folder / "method.toml")], 2, "readings.csv", "\\u001b")
+
+
 def test_a_fullwidth_id_in_the_readings_matches_its_standard(tmp_path, capsys):
     folder = _copy(tmp_path)
     _edit(folder, "S4,0.3406", "Ｓ4,0.3406", name="readings.csv")

@@ -13,7 +13,7 @@ import re
 from pathlib import Path
 
 from validate.inputs.errors import InputError
-from validate.inputs.text import clean_id
+from validate.inputs.text import clean_id, clean_text
 
 
 def read_text_file(path: Path, what: str) -> str:
@@ -159,9 +159,10 @@ def load_reading_series(path: Path) -> dict[str, tuple[str, ...]]:
     i_id, i_s = header.index("id"), header.index("series")
     series: dict[str, list[str]] = {}
     for line_no, row in rows[1:]:
-        label = row[i_s].strip() if len(row) > i_s else ""
+        where = f"row at line {line_no}"
+        label = clean_text(row[i_s].strip(), file=path, where=where) if len(row) > i_s else ""
         if not label:
-            raise InputError("the series is empty", file=path, where=f"row at line {line_no}",
+            raise InputError("the series is empty", file=path, where=where,
                              fix="give every reading its series (e.g. the day or analyst), or drop the column")
         series.setdefault(clean_id(row[i_id].strip(), file=path), []).append(label)
     return {k: tuple(v) for k, v in series.items()}
