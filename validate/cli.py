@@ -4,6 +4,7 @@ what is printed is rendered by validate.report.terminal."""
 from __future__ import annotations
 
 import argparse
+import math
 import shutil
 import sys
 from pathlib import Path
@@ -48,13 +49,13 @@ def _parser() -> argparse.ArgumentParser:
     run.add_argument("method", help="the method file (TOML)")
     run.add_argument("--out", required=True, help="folder for results.json and budget.csv")
     run.add_argument("--overwrite", action="store_true", help="replace a record already in --out")
-    run.add_argument("--top", type=int, default=5, help="how many budget lines to print (default 5)")
+    run.add_argument("--top", type=_top, default=5, help="how many budget lines to print (default 5)")
     run.add_argument("--trials", default="1000000", type=_trials,
                      help="Monte Carlo trials: a number, 'auto' (JCGM 101 7.9 adaptive) or 0 to skip "
                           "(default 1000000)")
     run.add_argument("--no-advice", action="store_true", help="skip the what-if advisor")
     run.add_argument("--no-pdf", action="store_true", help="do not write report.pdf")
-    run.add_argument("--seed", type=int, default=None,
+    run.add_argument("--seed", type=_seed, default=None,
                      help="random seed for Monte Carlo (default: a new one, recorded in the results)")
     chk = sub.add_parser("check", help="read and check a method file only")
     chk.add_argument("method")
@@ -70,19 +71,62 @@ def _parser() -> argparse.ArgumentParser:
     return p
 
 
+# Bounds of the numeric arguments. A run keeps a few arrays of one number per trial and result
+# (README, Performance: about 0.5 GiB at 10^7 trials), so 10^8 trials is the most one machine
+# holds; numpy's seed is a non-negative integer, and 2^63 - 1 keeps it within a signed 64-bit
+# integer in the record.
+MAX_TRIALS = 100_000_000
+MIN_TRIALS = 1000
+MAX_SEED = 2**63 - 1
+MAX_TOP = 1000
+
+
 def _trials(text: str):
     if text == "auto":
         return "auto"
-    try:
-        value = int(float(text))
-    except ValueError:
-        raise argparse.ArgumentTypeError("give a whole number of trials or 'auto'") from None
-    if value < 0 or (0 < value < 1000):
-        raise argparse.ArgumentTypeError("give 0 (no Monte Carlo), at least 1000 trials, or 'auto'")
+    value = _whole_number(text, "trials", "give a whole number of trials or 'auto'")
+    if value < 0 or (0 < value < MIN_TRIALS) or value > MAX_TRIALS:
+        raise argparse.ArgumentTypeError(f"give 0 (no Monte Carlo), {MIN_TRIALS} to {MAX_TRIALS:.0e} trials, "
+                                         f"or 'auto' (got {text})")
     return value
 
 
+def _seed(text: str) -> int:
+    value = _whole_number(text, "seed", "give a whole number as the seed")
+    if not 0 <= value <= MAX_SEED:
+        raise argparse.ArgumentTypeError(f"the seed must lie between 0 and {MAX_SEED} (got {text})")
+    return value
+
+
+def _top(text: str) -> int:
+    value = _whole_number(text, "top", "give a whole number of budget lines")
+    if not 0 <= value <= MAX_TOP:
+        raise argparse.ArgumentTypeError(f"give 0 to {MAX_TOP} budget lines (got {text})")
+    return value
+
+
+def _whole_number(text: str, name: str, fix: str) -> int:
+    """An integer written as 1000, 1e6 or 1_000; refused when not finite or not whole."""
+    try:
+        number = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{fix} (got {text!r})") from None
+    if not math.isfinite(number) or number != int(number):
+        raise argparse.ArgumentTypeError(f"{fix} (got {text!r})")
+    return int(number) if abs(number) < 2**53 else int(text) if text.lstrip("+-").isdigit() else int(number)
+
+
+def _tolerant_streams() -> None:
+    """A terminal or pipe that cannot show a character (an ASCII locale and a "µ") gets a
+    replacement mark instead of a traceback after the record was written."""
+    for stream in (sys.stdout, sys.stderr):
+        reconfigure = getattr(stream, "reconfigure", None)
+        if reconfigure is not None:
+            reconfigure(errors="replace")
+
+
 def main(argv=None) -> int:
+    _tolerant_streams()
     args = _parser().parse_args(argv)
     console = Console(highlight=False)
     errors = Console(stderr=True, highlight=False)

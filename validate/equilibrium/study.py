@@ -15,7 +15,8 @@ from uncertainties import ufloat
 from validate.equilibrium.combine import combine_correlated, davies_activity_correction, trend_test
 from validate.inputs.schema import EquilibriumStudy
 from validate.model.build import build
-from validate.model.equilibrium import COMBINED, LOG10, EquilibriumModel
+from validate.model.equilibrium import COMBINED, LOG10, EquilibriumModel, impossible_reason
+from validate.model.errors import ModelError
 from validate.model.standards import fit_joint, iterate_standards
 from validate.propagation.linear import covariance
 
@@ -25,16 +26,43 @@ SATURATION_WINDOW = (0.2, 0.8)
 
 
 def prepare_combination(model: EquilibriumModel):
-    """Covariance of the per-point K (linear engine) and the GLS combination; sets model.weights."""
+    """Covariance of the per-point K (linear engine) and the GLS combination of the points whose
+    K is physically possible; sets model.excluded and model.weights (0 for a point left out).
+    ModelError (exit 3) when no point is left."""
     model.weights = None
+    model.excluded = impossible_points(model)
     variables = {n: ufloat(s.value, s.u, tag=n) for n, s in model.sources.items()}
     outputs = model.evaluate(variables)
     ks = [outputs[f"K, {p}"] for p in model.points]
     cov = covariance(ks)  # summed in source-name order: the same bits in every run
     values = [k.nominal_value for k in ks]
-    combined = combine_correlated(values, cov) if len(values) > 1 else None
-    model.weights = list(combined.weights) if combined else [1.0]
+    kept = [i for i, p in enumerate(model.points) if p not in model.excluded]
+    if not kept:
+        listed = "; ".join(f"{p}: {why}" for p, why in model.excluded.items())
+        raise ModelError(f"no point of the study gives a physically possible K ({listed})\n"
+                         "  what to do: check the readings and the totals of the mixtures; a point needs a "
+                         "reading above the blank and below full complexation")
+    kept_values = [values[i] for i in kept]
+    kept_cov = [[cov[i][j] for j in kept] for i in kept]
+    combined = combine_correlated(kept_values, kept_cov) if len(kept) > 1 else None
+    kept_weights = list(combined.weights) if combined else [1.0]
+    weights = [0.0] * len(values)
+    for i, w in zip(kept, kept_weights, strict=True):
+        weights[i] = float(w)
+    model.weights = weights
     return combined, values, cov
+
+
+def impossible_points(model: EquilibriumModel) -> dict[str, str]:
+    """Points whose ICE table at the estimates is physically impossible, with the reason."""
+    columns = model.columns(model.nominal_inputs())
+    states = model.ice_tables(model.nominal_inputs())
+    out = {}
+    for p, state, m, l_ in zip(model.points, states, columns[4], columns[5], strict=True):
+        reason = impossible_reason(state, float(m), float(l_))
+        if reason is not None:
+            out[p] = reason
+    return out
 
 
 def build_ready_model(method):
@@ -64,6 +92,12 @@ def _saturation_flag(saturation: float) -> str | None:
             f"well determined (Deranleau 1969, from memory)")
 
 
+def _point_flag(model: EquilibriumModel, point: str, saturation: float) -> str | None:
+    if point in model.excluded:
+        return f"left out of the combined K: {model.excluded[point]}"
+    return _saturation_flag(saturation)
+
+
 def _point_rows(model: EquilibriumModel, by_name: dict, mc_by_name: dict, pm, pl) -> list[dict]:
     """One row per mixture or series point: totals, ICE table, K and its uncertainty."""
     states = model.ice_tables(model.nominal_inputs())
@@ -74,7 +108,7 @@ def _point_rows(model: EquilibriumModel, by_name: dict, mc_by_name: dict, pm, pl
         saturation = float(state.complex_conc / min(m, l_)) if min(m, l_) > 0 else math.nan
         rows.append({
             "saturation": saturation,
-            "saturation_flag": _saturation_flag(saturation),
+            "saturation_flag": _point_flag(model, p, saturation),
             "id": p, "M_total": m / cu, "L_total": l_ / cu, "ML": state.complex_conc / cu,
             "M_free": state.free_M / cu, "L_free": state.free_L / cu,
             "K": r.value, "u_K": r.standard_uncertainty, "expanded_uncertainty": r.expanded_uncertainty,
@@ -105,6 +139,7 @@ def _combined_part(model: EquilibriumModel, comb, mc_comb, combined) -> dict:
         "interval": _interval(mc_comb), "shortest_interval": _interval(mc_comb, "shortest"),
         "agrees_with_gum": mc_comb.validation.agrees if mc_comb else None,
         "weights": list(model.weights or []),
+        "excluded": [{"id": p, "reason": why} for p, why in model.excluded.items()],
         "consistency": _consistency(combined),
     }
 
@@ -181,7 +216,9 @@ def equilibrium_block(model: EquilibriumModel, results, monte_carlo, combined, v
         "covariance": [list(row) for row in cov],
         "joint_fit": _joint_fit_part(study, columns, limiting),
     }
-    block.update(_optional_parts(study, comb, values, cov, pm))
+    kept = [i for i, p in enumerate(model.points) if p not in model.excluded]  # the trend of possible K only
+    block.update(_optional_parts(study, comb, [values[i] for i in kept], [[cov[i][j] for j in kept] for i in kept],
+                                 [pm[i] for i in kept]))
     return block
 
 

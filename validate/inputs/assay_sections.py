@@ -51,6 +51,10 @@ def parse_calibration(t: Table, items: dict, solutions: dict[str, Solution], def
     weighting = _weighting(t, defaults)
     standards = _solution_ids(t, "standards", t.require("standards"), solutions)
     blanks = _solution_ids(t, "blanks", t.get("blanks", []), solutions)
+    both = [sid for sid in blanks if sid in standards]
+    if both:  # its readings would enter the line twice
+        raise t.error(f"`{both[0]}` is listed both as a standard and as a blank", "blanks",
+                      fix="give each solution one role: a blank under `blanks`, a standard under `standards`")
     for sid in blanks:
         if not isinstance(solutions[sid], Blank):
             raise t.error(f"`{sid}` is listed as a blank but is made by {solutions[sid].made_by}", "blanks",

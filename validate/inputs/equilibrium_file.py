@@ -72,17 +72,16 @@ def parse_equilibrium(t: Table, items: dict, solutions: dict[str, Solution], def
                           'use "iterate" (correct the standards) or "none" (assume full complexation)')
     iterations = int(t.number("iterations", 12, low=0, high=1001))
     temperature = _temperature(t)
-    ionic = parse_si(t.get("ionic_strength"), t, "ionic_strength", AMOUNT_CONCENTRATION, False)[0] \
-        if t.has("ionic_strength") else None
+    ionic = _ionic_strength(t)
     charges = _charges(t)
     k_unit = _unit_or_default(t, "k_unit", (0, 3, -1, 0), "L/mol", "default: K reported in L/mol", defaults)
     conc_unit = _unit_or_default(t, "concentration_unit", AMOUNT_CONCENTRATION, "mmol/L",
                                  "default: equilibrium concentrations shown in mmol/L", defaults)
     if not t.has("correction"):
         defaults.append("default: standards corrected for incomplete complexation by iteration")
-    standards = tuple(_mix(t, "standards", k, v, parts) for k, v in (t.get("standards") or {}).items())
-    mixtures = tuple(_mix(t, "mixtures", k, v, parts) for k, v in (t.get("mixtures") or {}).items())
-    series = tuple(_series(t, k, v, parts) for k, v in (t.get("series") or {}).items())
+    standards = tuple(_mix(t, "standards", k, v, parts) for k, v in t.named_tables("standards").items())
+    mixtures = tuple(_mix(t, "mixtures", k, v, parts) for k, v in t.named_tables("mixtures").items())
+    series = tuple(_series(t, k, v, parts) for k, v in t.named_tables("series").items())
     _check_contents(t, standards, mixtures, series)
     cuvette = item_reference(t, "cuvette", items, Cuvette)
     photometer = item_reference(t, "photometer", items, Photometer)
@@ -113,7 +112,28 @@ def _temperature(t: Table) -> float | None:
     match = re.fullmatch(r"\s*([-+]?\d+(?:\.\d*)?)\s*(degC|°C|C)\s*", raw) if isinstance(raw, str) else None
     if not match:
         raise t.error(f"cannot read {raw!r}", "temperature", fix='write it as "25 degC"')
-    return float(match.group(1))
+    value = float(match.group(1))
+    if not 0 <= value <= 100:  # liquid water at ordinary pressure, and the range of the activity estimate
+        raise t.error(f"{value:g} degC is outside 0 to 100 degC, where an aqueous study is made",
+                      "temperature", fix='give the temperature of the solutions, e.g. "25 degC"')
+    return value
+
+
+# An aqueous medium holds at most a few mol/L of salt (saturated NaClO4 is near 10 mol/L,
+# from memory); a larger ionic strength is a wrong unit or a typing error.
+MAX_IONIC_STRENGTH = 10_000.0  # mol/m3 (10 mol/L)
+MAX_CHARGE = 6  # |z| of a metal ion or ligand in a 1:1 study (Th4+, EDTA4- lie well inside)
+MAX_ADDITIONS = 200  # readings of one addition series
+
+
+def _ionic_strength(t: Table) -> float | None:
+    if not t.has("ionic_strength"):
+        return None
+    ionic = parse_si(t.get("ionic_strength"), t, "ionic_strength", AMOUNT_CONCENTRATION, False)[0]
+    if not 0 <= ionic <= MAX_IONIC_STRENGTH:
+        raise t.error(f"an ionic strength of {ionic / 1e3:g} mol/L is not an aqueous medium's", "ionic_strength",
+                      fix=f"give it in mol/L, between 0 and {MAX_IONIC_STRENGTH / 1e3:g} mol/L")
+    return ionic
 
 
 def _charges(t: Table) -> tuple[int, int] | None:
@@ -122,6 +142,9 @@ def _charges(t: Table) -> tuple[int, int] | None:
         return None
     if not (isinstance(charges, list) and len(charges) == 2 and all(isinstance(c, int) for c in charges)):
         raise t.error("expected two whole numbers, the charges of M and L", "charges", fix="e.g. [2, -1]")
+    if any(abs(c) > MAX_CHARGE for c in charges):
+        raise t.error(f"a charge of {max(charges, key=abs)} is beyond +/-{MAX_CHARGE}", "charges",
+                      fix="give the charges of the metal ion and the ligand, e.g. [2, -1]")
     return charges[0], charges[1]
 
 
@@ -172,7 +195,7 @@ def _series(t: Table, series_id: str, raw, parts: _Parts) -> AdditionSeries:
     added = st.required_text("add")
     if added not in REAGENTS:
         raise st.error(f"unknown reagent {added!r}", "add", fix='use "metal" or "ligand"')
-    additions = st.number("additions", low=0)
+    additions = st.number("additions", low=0, high=MAX_ADDITIONS + 1)
     if additions is None or additions != int(additions):
         raise st.error("give the number of additions as a whole number", "additions")
     aliquot = parse_delivery(st.require("aliquot"), st, "aliquot", parts.items, PIPETTES)

@@ -22,6 +22,7 @@ from validate.inputs.routine_section import parse_routine
 from validate.inputs.schema import AssayMethod, EquilibriumMethod, Method, Sample, Settings
 from validate.inputs.solutions_section import check_solution_graph, parse_solution
 from validate.inputs.tables import Table, parse_uncertain
+from validate.inputs.text import MAX_NESTING, clean_document
 from validate.inputs.validation_settings import parse_validation
 
 TOP_KEYS = ("method", "settings", "equipment", "solutions", "calibration", "samples",
@@ -54,7 +55,10 @@ def _top_table(path: Path) -> Table:
         raise InputError(f"TOML syntax error: {exc}", file=path,
                          fix="correct the line and column named (quotes around text and units, "
                              "one key = value per line)") from None
-    top = Table(data, path, "top level")
+    except RecursionError:  # the parser recurses once per level of nesting
+        raise InputError(f"tables and lists are nested more than {MAX_NESTING} deep", file=path,
+                         fix="write the method file as its template shows") from None
+    top = Table(clean_document(data, path), path, "top level")
     top.allow(*TOP_KEYS)
     return top
 
@@ -150,7 +154,9 @@ def _settings(t: Table, defaults: list[str]) -> Settings:
     t.allow("coverage_probability", "scatter", "glassware_distribution", "temperature_range",
             "expansion_coefficient", "shared_temperature", "registers")
     base = Settings()
-    p = t.number("coverage_probability", base.coverage_probability, low=0, high=1)
+    # a coverage probability below 50 % covers less than it leaves out, and one within 1e-4 of 1
+    # asks for an interval that 10^6 Monte Carlo trials cannot place (JCGM 101 7.2.2)
+    p = t.number("coverage_probability", base.coverage_probability, low=0.5, high=0.9999)
     scatter = t.choice("scatter", base.scatter, ("observed", "bottom-up"), 'use "observed" or "bottom-up"')
     dist = t.choice("glassware_distribution", base.glassware_distribution, ("triangular", "rectangular"),
                    'use "triangular" (EURACHEM/CITAC CG4) or "rectangular" (GUM 4.3.7)')

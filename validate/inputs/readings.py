@@ -13,6 +13,7 @@ import re
 from pathlib import Path
 
 from validate.inputs.errors import InputError
+from validate.inputs.text import clean_id, clean_text
 
 
 def read_text_file(path: Path, what: str) -> str:
@@ -23,7 +24,7 @@ def read_text_file(path: Path, what: str) -> str:
                          fix="check the file name and the folder it is in")
     if path.is_dir():
         raise InputError(f"{what} is a folder, not a file", file=path, fix="name the file inside it")
-    data = path.read_bytes()
+    data = _bounded_bytes(path, what)
     if not data.strip():
         raise InputError(f"{what} is empty", file=path,
                          fix="check that the right file is named and that it was saved with its content")
@@ -36,6 +37,26 @@ def read_text_file(path: Path, what: str) -> str:
         line = data[: exc.start].count(b"\n") + 1
         raise InputError(f"{what} is not UTF-8 text (bad byte at line {line})", file=path,
                          fix="save the file with UTF-8 encoding") from None
+
+
+# An input file is a page or a few thousand readings; far larger means a wrong file was named
+# (a device, an image, a database dump) and reading it whole could exhaust the memory.
+MAX_FILE_BYTES = 10_000_000
+MAX_READINGS = 100_000
+
+
+def _bounded_bytes(path: Path, what: str) -> bytes:
+    """The file's bytes, refused when it is not a regular file (a pipe or device would hang
+    the reading or never end) or larger than MAX_FILE_BYTES."""
+    if not path.is_file():
+        raise InputError(f"{what} is not a regular file (a pipe, device or socket)", file=path,
+                         fix="name a file saved on disk")
+    with path.open("rb") as handle:
+        data = handle.read(MAX_FILE_BYTES + 1)
+    if len(data) > MAX_FILE_BYTES:
+        raise InputError(f"{what} is larger than the limit of {MAX_FILE_BYTES // 1_000_000} MB", file=path,
+                         fix="check that the right file is named")
+    return data
 
 
 # Plausible absorbance readings (common practice): a reading below -0.05 means the
@@ -60,6 +81,9 @@ def _rows(text: str) -> list[tuple[int, list[str]]]:
 def load_readings(path: Path) -> dict[str, tuple[float, ...]]:
     text = read_text_file(path, "readings table")
     rows = _rows(text)
+    if len(rows) > MAX_READINGS + 1:
+        raise InputError(f"the table has {len(rows) - 1} rows; the limit is {MAX_READINGS}", file=path,
+                         fix="check that the right file is named")
     header = _header(rows, path)
     i_id, i_a = header.index("id"), header.index("absorbance")
     readings: dict[str, list[float]] = {}
@@ -96,7 +120,7 @@ def _reading(row: list[str], line_no: int, i_id: int, i_a: int, columns: int, pa
                          file=path, where=where,
                          fix="a decimal comma splits a number into two cells: write a decimal point, "
                              "e.g. 0.512")
-    ident = row[i_id].strip()
+    ident = clean_id(row[i_id].strip(), file=path, where=where)
     if not ident:
         raise InputError("the id is empty", file=path, where=where,
                          fix="write the standard, blank or sample id in the first column")
@@ -135,9 +159,10 @@ def load_reading_series(path: Path) -> dict[str, tuple[str, ...]]:
     i_id, i_s = header.index("id"), header.index("series")
     series: dict[str, list[str]] = {}
     for line_no, row in rows[1:]:
-        label = row[i_s].strip() if len(row) > i_s else ""
+        where = f"row at line {line_no}"
+        label = clean_text(row[i_s].strip(), file=path, where=where) if len(row) > i_s else ""
         if not label:
-            raise InputError("the series is empty", file=path, where=f"row at line {line_no}",
+            raise InputError("the series is empty", file=path, where=where,
                              fix="give every reading its series (e.g. the day or analyst), or drop the column")
-        series.setdefault(row[i_id].strip(), []).append(label)
+        series.setdefault(clean_id(row[i_id].strip(), file=path), []).append(label)
     return {k: tuple(v) for k, v in series.items()}

@@ -14,6 +14,8 @@ from importlib import resources
 from pathlib import Path
 
 from validate.inputs.errors import InputError
+from validate.inputs.readings import read_text_file
+from validate.inputs.text import MAX_NESTING, clean_document
 from validate.inputs.units import UnitError, parse_quantity
 
 
@@ -43,14 +45,17 @@ _SIZED_KEYS = ("tolerance", "repeatability", "subdivision", "path", "offset", "n
 
 
 def load_register(path: Path) -> list[RegisterEntry]:
+    if not Path(path).exists():
+        raise InputError("register file not found", file=path, fix="check the path in `registers` of the settings")
+    text = read_text_file(Path(path), "register file")  # the one reader: no pipe, device, binary or huge file
     try:
-        data = tomllib.loads(Path(path).read_text(encoding="utf-8"))
-    except FileNotFoundError:
-        raise InputError("register file not found", file=path,
-                         fix="check the path in `registers` of the settings") from None
-    except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
+        data = clean_document(tomllib.loads(text), path)
+    except tomllib.TOMLDecodeError as exc:
         raise InputError(f"cannot read the register: {exc}", file=path,
                          fix="fix the TOML syntax at the place named") from None
+    except RecursionError:
+        raise InputError(f"tables and lists are nested more than {MAX_NESTING} deep", file=path,
+                         fix="write the register as the shipped registers show") from None
     title = data.get("register", {}).get("title", Path(path).stem)
     entries = []
     for index, raw in enumerate(data.get("item", []), start=1):

@@ -162,6 +162,9 @@ def _type_b(t: Table, dims, positive, provenance: str) -> UncertainValue:
         return UncertainValue(value, unit, provenance=provenance or "stated value, no uncertainty given")
     spread = _spread(t, spread_key, unit)
     dof = t.number("dof", math.inf, low=0)
+    if dof < 1:  # degrees of freedom count readings beyond the first (GUM G.3); below 1 no t quantile is usable
+        raise t.error(f"{dof:g} degrees of freedom is fewer than one", "dof",
+                      fix="give dof = n - 1 for n readings, or the degrees of freedom the certificate states")
     if spread_key == "half_width":
         return _from_half_width(t, value, unit, spread, dist or "rectangular", dof, provenance)
     if spread_key == "expanded_uncertainty":
@@ -223,7 +226,9 @@ def _from_half_width(t: Table, value: float, unit: Unit, half_width: float, dist
 
 
 def _coverage_factor(t: Table) -> float:
-    k = t.number("coverage_factor", low=0)
+    # a stated k lies between 1 (about 68 %) and t(0.995, 1) = 63.7 (from memory); wider bounds
+    # leave room for odd certificates and keep u = U / k clear of overflow
+    k = t.number("coverage_factor", low=0.5, high=100)
     if k is None:
         raise t.error("an expanded uncertainty needs its `coverage_factor`",
                       fix="add coverage_factor = 2 (or the k stated on the certificate)")

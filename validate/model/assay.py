@@ -23,10 +23,10 @@ from validate.inputs.schema import AssayMethod, Calibration, Method
 from validate.inputs.solutions import Blank, Certified, Diluted, Weighed, parent_of
 from validate.metrology.equipment import SourceSet, balance_terms, exact_or, value_source, volume_term
 from validate.metrology.sources import Source
-from validate.model import backend
 from validate.model.design import CalibrationDesign, calibration_design
 from validate.model.design import check_calibration_data as check_calibration_data  # re-exported: named so
 from validate.model.errors import ModelError as ModelError  # imported from here by the later stages
+from validate.model.errors import evaluate_formula
 from validate.model.keys import ResultKey
 from validate.model.line import fit_line, inverse_prediction, straight_line
 
@@ -94,7 +94,7 @@ class Model(SolutionInputs):
                 values[name] = term(x, sample_id)
             if c_measured is not None:  # a result without a sample reads nothing off the line
                 values["c_measured"] = c_measured
-            results[label] = formula.evaluate(values, backend.FUNCTIONS) / factor
+            results[label] = evaluate_formula(formula, values, sample_id) / factor
         return results
 
     def _read_off_line(self, x, conc) -> list[tuple[str, Any]]:
@@ -121,6 +121,7 @@ def build_model(method: AssayMethod) -> Model:
         _calibration_terms(model, ss, cal, samples, observed)
     for q in method.quantities.values():
         model._quantity_terms[q.name] = _quantity_term(ss, method, q, samples)
+    model.evaluate(model.nominal_inputs())  # a formula that cannot be computed stops at `check`
     return model
 
 

@@ -47,6 +47,9 @@ class EquilibriumModel(SolutionInputs):
     method: EquilibriumMethod
     sources: dict[str, Source]
     weights: list[float] | None = None  # GLS weights of the combined K, set after a first pass
+    # points whose K is physically impossible at the estimates (id -> reason): weight 0 and left
+    # out of the combined K, so a nan trial of theirs cannot reach it
+    excluded: dict[str, str] = field(default_factory=dict)
     assumptions: list[str] = field(default_factory=list)
     design: EquilibriumDesign = field(init=False, repr=False)  # set once by build_equilibrium_model
     _solution_terms: dict = field(default_factory=dict, repr=False)
@@ -106,7 +109,8 @@ class EquilibriumModel(SolutionInputs):
         ks = [positive_or_nan(state.K) for state in self.ice_tables(x)]
         out = {f"K, {p}": k / factor for p, k in zip(self.points, ks, strict=True)}
         if self.weights is not None:
-            combined = sum(w * k for w, k in zip(self.weights, ks, strict=True)) / factor
+            kept = [(w, k) for p, w, k in zip(self.points, self.weights, ks, strict=True) if p not in self.excluded]
+            combined = sum(w * k for w, k in kept) / factor
             out[COMBINED] = combined
             out[LOG10] = mathops.log10(combined)
         return out
@@ -141,6 +145,23 @@ def build_equilibrium_model(method: EquilibriumMethod) -> EquilibriumModel:
                                   reading(next(series_points))))
     model.assumptions.extend(_assumptions(study, observed))
     return model
+
+
+def impossible_reason(state, m_total, l_total) -> str | None:
+    """Why the ICE table of one point at the estimates is physically impossible, or None: a
+    complex at or below zero (reading at or below the blank), more complex than the reagent in
+    deficit (saturation above 1), or K not positive."""
+    complex_conc, free_m, free_l, k = (float(mathops.nominal(v)) for v in
+                                       (state.complex_conc, state.free_M, state.free_L, state.K))
+    if not complex_conc > 0:
+        return "no complex: the reading is at or below the line's intercept (the blank)"
+    if not (free_m > 0 and free_l > 0):
+        smaller = min(m_total, l_total)
+        share = f"{complex_conc / smaller:.0%}" if smaller > 0 else "more"
+        return f"more complex than the reagent in deficit ([ML] is {share} of the smaller total)"
+    if not (math.isfinite(k) and k > 0):
+        return f"K = {k:g} is not a positive number"
+    return None
 
 
 def _mix_totals(ss: SourceSet, method: EquilibriumMethod, mix, observed_standard: bool):

@@ -57,6 +57,15 @@ class Consistency(RecordPart):
 
 
 @dataclass(frozen=True, kw_only=True)
+class ExcludedPoint(RecordPart):
+    """A point left out of the combined K: K at or below zero, or more complex than the reagent
+    in deficit."""
+
+    id: str
+    reason: str
+
+
+@dataclass(frozen=True, kw_only=True)
 class CombinedK(RecordPart):
     K: float
     standard_uncertainty: float
@@ -66,7 +75,10 @@ class CombinedK(RecordPart):
     interval: tuple[float, ...] | None
     shortest_interval: tuple[float, ...] | None
     agrees_with_gum: bool | None
-    weights: tuple[float, ...] = described("generalised least-squares weights of the points' K")
+    weights: tuple[float, ...] = described("generalised least-squares weights of the points' K "
+                                           "(0 for a point left out)")
+    excluded: tuple[ExcludedPoint, ...] = described(
+        "points left out of the combination because their K is physically impossible, with the reason")
     consistency: Consistency | None = described("null with a single point")
 
 

@@ -16,7 +16,19 @@ from reportlab.platypus import Flowable, Image, KeepTogether, Paragraph
 
 from validate.report import figures
 from validate.report.numbers import DASH, dof, gum_decimals, gum_pair, interval, is_number, num, pct
-from validate.report.style import BAD, FRAME_WIDTH, GOOD, data_table, gap, heading, key_value_table, para, styles, text
+from validate.report.style import (
+    BAD,
+    FRAME_WIDTH,
+    GOOD,
+    cell_text,
+    data_table,
+    gap,
+    heading,
+    key_value_table,
+    para,
+    styles,
+    text,
+)
 
 
 class RasterImage(Flowable):
@@ -304,7 +316,7 @@ def equation_inputs(record: dict) -> list:
         u = src.get("u_in_unit", src.get("u"))
         rows.append([Paragraph(name, s["cell"]), num(value, 6), num(u, 3), src.get("unit") or DASH,
                      src.get("distribution") or DASH, dof(src.get("dof")), src.get("kind") or DASH,
-                     Paragraph(text(src.get("provenance") or DASH), s["cell"])])
+                     Paragraph(cell_text(src.get("provenance") or DASH, 53), s["cell"])])  # cut when too tall
     if not rows:
         out.append(para("The record lists no input quantities.", "body"))
         return out

@@ -14,7 +14,7 @@ from validate.report.sections import coloured, figure_block
 from validate.report.style import bullets, data_table, heading, key_value_table, para
 
 
-def u_figure(by_concentration: list[dict], unit: str) -> bytes:
+def u_figure(by_concentration: list[dict], unit: str) -> figures.Raster:
     """Top-down U against concentration (a curve) with each result's bottom-up U (points)."""
     fig = Figure(figsize=(figures.WIDTH_IN, 2.6), dpi=figures.DPI)
     FigureCanvasAgg(fig)
@@ -33,7 +33,7 @@ def u_figure(by_concentration: list[dict], unit: str) -> bytes:
     ax.set_ylim(bottom=0)
     fig.legend(fontsize=7, frameon=False, loc="upper center", ncol=2)
     figures._tidy(ax)
-    return figures._png(fig)
+    return figures._raster(fig)
 
 
 def _summary_rows(m: dict) -> list:

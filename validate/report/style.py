@@ -95,6 +95,26 @@ def text(value) -> str:
     return escape(str(value))
 
 
+# A table row taller than the page stops reportlab's layout, so a cell shows at most
+# CELL_LINES lines of its column's width (about 1.8 mm per character at the cell's 8 pt);
+# a longer text (a provenance, an id from the inputs) is cut with a note, results.json keeps it.
+CELL_LINES = 25
+MM_PER_CHARACTER = 1.8
+
+
+def cell_limit(width_mm: float) -> int:
+    """Characters a cell of this width shows before its text is cut."""
+    return max(40, int(width_mm / MM_PER_CHARACTER) * CELL_LINES)
+
+
+def cell_text(value, width_mm: float = 174.0) -> str:
+    """text() for a table cell, cut with a note when too long to lay out."""
+    shown, limit = str(value), cell_limit(width_mm)
+    if len(shown) > limit:
+        shown = f"{shown[:limit]} ... [{len(shown) - limit} more characters; the whole text is in results.json]"
+    return escape(shown)
+
+
 def para(value, style: str = "body", markup: bool = False) -> Paragraph:
     return Paragraph(str(value) if markup else text(value), styles()[style])
 
@@ -129,11 +149,11 @@ def data_table(header: list[str], rows: list[list], widths_mm: Sequence[float],
     body = []
     for row in rows:
         cells = []
-        for i, value in enumerate(row):
+        for i, (value, width) in enumerate(zip(row, widths_mm, strict=False)):
             if isinstance(value, Paragraph):
                 cells.append(value)
             else:
-                cells.append(Paragraph(text(value), s["cell_right" if i in numeric else "cell"]))
+                cells.append(Paragraph(cell_text(value, width), s["cell_right" if i in numeric else "cell"]))
         body.append(cells)
     table = Table([head] + body, colWidths=[w * mm for w in widths_mm], repeatRows=1,
                   hAlign="LEFT")
@@ -157,7 +177,7 @@ def key_value_table(pairs: Sequence[tuple[str, object]], widths_mm=(52, 122)) ->
     """Two columns, label and value, for short facts (no header row)."""
     s = styles()
     rows = [[Paragraph(text(k), s["cell_head"]),
-             v if isinstance(v, Paragraph) else Paragraph(text(v), s["cell"])] for k, v in pairs]
+             v if isinstance(v, Paragraph) else Paragraph(cell_text(v, widths_mm[1]), s["cell"])] for k, v in pairs]
     table = Table(rows, colWidths=[w * mm for w in widths_mm], hAlign="LEFT")
     table.setStyle(TableStyle([
         ("VALIGN", (0, 0), (-1, -1), "TOP"),

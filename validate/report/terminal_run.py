@@ -9,17 +9,29 @@ from dataclasses import dataclass
 from rich.markup import escape
 from rich.table import Table
 
+from validate.inputs.text import is_invisible
 from validate.report.numbers import MISSING, compact, decimals_of, dof, gum_pair, interval
+
+
+def terminal_safe(text: str) -> str:
+    """Text with every control or invisible character but the line break written as a \\u
+    escape: an escape sequence (ECMA-48) or a bidirectional override from an input or a record
+    could otherwise recolour, move or hide what the terminal shows."""
+    return "".join(f"\\u{ord(c):04x}" if c != "\n" and is_invisible(c) else c for c in text)
 
 
 @dataclass(frozen=True)
 class Line:
     """One print: rich console markup (record text already escaped). `soft_wrap` lets a long
-    line run on instead of being broken at the console's width; `style` applies to all of it."""
+    line run on instead of being broken at the console's width; `style` applies to all of it.
+    Every Line is made terminal-safe when it is made: the one place text leaves for the terminal."""
 
     text: str = ""
     soft_wrap: bool = False
     style: str | None = None
+
+    def __post_init__(self):
+        object.__setattr__(self, "text", terminal_safe(self.text))
 
 
 BLANK = Line()
@@ -183,7 +195,8 @@ def _mixture_table(e: dict) -> Table:
     for p in e["mixtures"]:
         value, big_u = gum_pair(p["K"], p["expanded_uncertainty"], missing=MISSING)
         ends = f"[{p['interval'][0]:.4g}, {p['interval'][1]:.4g}]" if p["interval"] else "-"
-        table.add_row(p["id"], f"{p['M_total']:.4g}", f"{p['L_total']:.4g}", value, big_u, ends)
+        point = terminal_safe(escape(str(p["id"])))
+        table.add_row(point, f"{p['M_total']:.4g}", f"{p['L_total']:.4g}", value, big_u, ends)
     return table
 
 

@@ -15,8 +15,11 @@ from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
+from scipy.stats import t as student_t
 
 from validate.inputs.errors import InputError
+from validate.inputs.readings import read_text_file
+from validate.model.errors import ModelError
 from validate.model.line import inverse_prediction
 from validate.validation.limits import range_flags
 from validate.validation.linearity import plain
@@ -112,13 +115,9 @@ def _number(cell: str, *, file, line: int, column: str, delimiter: str) -> float
 
 def _content_lines(path: Path) -> list[tuple[int, str]]:
     """(line number, text) of every line that is neither blank nor a comment."""
-    try:
-        text = path.read_text(encoding="utf-8-sig")
-    except FileNotFoundError:
-        raise TableError("file not found", file=path, fix="check the path") from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise TableError(f"cannot read the file ({exc})", file=path,
-                         fix="save the table as a UTF-8 CSV text file") from None
+    if not path.exists():  # the one reader below also refuses pipes, devices, binary and huge files
+        raise TableError("file not found", file=path, fix="check the path")
+    text = read_text_file(path, "calibration table")
     lines = [(i, ln) for i, ln in enumerate(text.splitlines(), start=1)
              if ln.strip() and not ln.lstrip().startswith("#")]
     if not lines:
@@ -218,11 +217,30 @@ def _sample_entry(fit, summary, index: int, readings) -> dict:
                       "EURACHEM/CITAC CG4 Example A5)"}
 
 
+def _check_line_rises(path: str, fit) -> None:
+    """A Beer-Lambert line rises: a falling line, or one whose slope does not differ from zero
+    (two-sided t-test at 5 %, ISO 8466-1 reads the slope the same way), gives no concentration
+    (ModelError, exit 3)."""
+    t_value = fit.slope / fit.slope_u if fit.slope_u > 0 else math.inf
+    critical = float(student_t.ppf(0.975, fit.dof)) if fit.dof > 0 else math.inf
+    if not fit.slope > 0:
+        raise ModelError(f"{path}: the absorbance falls as the concentration rises (slope {fit.slope:.3g}); "
+                         "a Beer-Lambert calibration line rises, so no concentration is reported\n"
+                         "  what to do: check that the columns are not swapped and that every reading "
+                         "belongs to its concentration")
+    if not t_value > critical:
+        raise ModelError(f"{path}: the slope {fit.slope:.3g} does not differ significantly from zero "
+                         f"(t = {t_value:.3g}, critical value {critical:.3g} at 95 %), so no concentration "
+                         "is reported\n  what to do: extend the range of the standards or reduce the "
+                         "scatter of the readings")
+
+
 def quick_check(path, samples: list[list[float]] | None = None) -> dict:
     """Fit, linearity tests, ICH limits (sigma from residuals) and optional samples, as plain data."""
     table = load_table(path)
     summary = validate_calibration(table.concentration, table.absorbance)
     fit = summary.fit
+    _check_line_rises(table.path, fit)
     notes = list(summary.notes)
     if table.u_concentration is not None and fit.slope != 0:
         ratio = max(table.u_concentration) / (fit.residual_sd / abs(fit.slope))
