@@ -23,6 +23,7 @@ from validate.inputs.schema import AssayMethod, Calibration, Method
 from validate.inputs.solutions import Blank, Certified, Diluted, Weighed, parent_of
 from validate.metrology.equipment import SourceSet, balance_terms, exact_or, value_source, volume_term
 from validate.metrology.sources import Source
+from validate.model import backend
 from validate.model.design import CalibrationDesign, calibration_design
 from validate.model.design import check_calibration_data as check_calibration_data  # re-exported: named so
 from validate.model.errors import ModelError as ModelError  # imported from here by the later stages
