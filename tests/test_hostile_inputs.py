@@ -162,8 +162,13 @@ def _log_formula(folder, sample_reading):
     text = text.replace("[quantities.M_P]", '[quantities.c_ref]\nvalue = "1 µmol/L"\nu = "0.01 µmol/L"\n'
                                             'provenance = "invented"\n\n[quantities.M_P]')
     keep = ("reference_sample", "reference_value", "max_loq")
-    (folder / "method.toml").write_text("\n".join(ln for ln in text.splitlines() if not ln.startswith(keep)),
-                                        encoding="utf-8")
+    lines, routine = [], False
+    for ln in text.splitlines():  # the routine-use section is in mg/L, which a log result is not
+        if ln.startswith("["):
+            routine = ln.startswith("[routine_uncertainty")
+        if not routine and not ln.startswith(keep):
+            lines.append(ln)
+    (folder / "method.toml").write_text("\n".join(lines), encoding="utf-8")
     readings = (folder / "readings.csv").read_text(encoding="utf-8")
     for old in ("river_upstream,0.1329", "river_upstream,0.1332", "river_upstream,0.1304"):
         readings = readings.replace(old, f"river_upstream,{sample_reading}")
