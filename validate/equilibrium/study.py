@@ -54,13 +54,32 @@ def prepare_combination(model: EquilibriumModel):
 
 
 def impossible_points(model: EquilibriumModel) -> dict[str, str]:
-    """Points whose ICE table at the estimates is physically impossible, with the reason."""
-    columns = model.columns(model.nominal_inputs())
-    states = model.ice_tables(model.nominal_inputs())
+    """Points whose ICE table at the estimates is physically impossible, with the reason: first
+    as read off the uncorrected line, then after the correction of the standards made from the
+    points left (which may move a point over the edge), until no more points drop out."""
+    x0 = model.nominal_inputs()
+    model.excluded = {}
+    model.excluded.update(_impossible(model, model.uncorrected_ice_tables(x0), x0))
+    while len(model.excluded) < len(model.points):
+        try:
+            states = model.ice_tables(x0)
+        except (ValueError, ZeroDivisionError, OverflowError) as exc:
+            raise ModelError(f"the correction of the standards cannot be computed from the points of the study "
+                             f"({exc})\n  what to do: check the readings and the totals of the standards and "
+                             f"mixtures") from None
+        new = _impossible(model, states, x0)
+        if not new:
+            break
+        model.excluded.update(new)
+    return dict(model.excluded)
+
+
+def _impossible(model: EquilibriumModel, states, x0) -> dict[str, str]:
+    columns = model.columns(x0)
     out = {}
     for p, state, m, l_ in zip(model.points, states, columns[4], columns[5], strict=True):
         reason = impossible_reason(state, float(m), float(l_))
-        if reason is not None:
+        if reason is not None and p not in model.excluded:
             out[p] = reason
     return out
 

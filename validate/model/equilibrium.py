@@ -91,18 +91,30 @@ class EquilibriumModel(SolutionInputs):
                 [t[0] for t, _ in pts], [t[1] for t, _ in pts], [a for _, a in pts])
 
     def ice_tables(self, x):
+        """The ICE table of every point. The correction of the standards combines only the points
+        not excluded as physically impossible (weight 0 for those), so an impossible point is
+        never averaged into it."""
         sm, sl, sa, reps, pm, pl, pa = self.columns(x)
         study = self.study
         if study.correction == "none":
-            limiting = sl if study.limiting == "ligand" else sm
-            # collapsed (`backend.collapse`): the line and each K are shared by later results
-            slope, intercept = (mathops.collapse(v) for v in line_by_sums(limiting, sa, reps))
-            states = [equilibrium_constant((a - intercept) / slope, m, l_)
-                      for m, l_, a in zip(pm, pl, pa, strict=True)]
-            return [replace(s, K=mathops.collapse(s.K)) for s in states]
+            return self._uncorrected(sm, sl, sa, reps, pm, pl, pa)
+        weights = [0.0 if p in self.excluded else 1.0 for p in self.points]
         corrected = iterate_standards(sm, sl, sa, pm, pl, pa, limiting="L" if study.limiting == "ligand" else "M",
-                                      iterations=study.iterations, standard_weights=reps)
+                                      iterations=study.iterations, standard_weights=reps, mixture_weights=weights)
         return list(corrected.mixtures)
+
+    def uncorrected_ice_tables(self, x):
+        """The ICE table of every point read off the line of the standards taken as fully
+        complexed (no correction): what a point's reading says before any combination."""
+        return self._uncorrected(*self.columns(x))
+
+    def _uncorrected(self, sm, sl, sa, reps, pm, pl, pa):
+        limiting = sl if self.study.limiting == "ligand" else sm
+        # collapsed (`backend.collapse`): the line and each K are shared by later results
+        slope, intercept = (mathops.collapse(v) for v in line_by_sums(limiting, sa, reps))
+        states = [equilibrium_constant((a - intercept) / slope, m, l_)
+                  for m, l_, a in zip(pm, pl, pa, strict=True)]
+        return [replace(s, K=mathops.collapse(s.K)) for s in states]
 
     def evaluate(self, x) -> dict:
         factor = self.study.k_unit.factor
