@@ -18,6 +18,7 @@ from validate.workflow import pipeline as api
 
 EXIT_INPUT = 2
 EXIT_DATA = 3
+EXIT_NOT_FIT = 4  # `run --strict`: the record was written, but the verdict is not "fit"
 
 
 class _ShowVersion(argparse.Action):
@@ -48,6 +49,9 @@ def _parser() -> argparse.ArgumentParser:
                           "(default 1000000)")
     run.add_argument("--no-advice", action="store_true", help="skip the what-if advisor")
     run.add_argument("--no-pdf", action="store_true", help="do not write report.pdf")
+    run.add_argument("--strict", action="store_true",
+                     help="exit with 4 when the verdict is not 'fit for the stated purpose' (the record is "
+                          "still written)")
     run.add_argument("--seed", type=int, default=None,
                      help="random seed for Monte Carlo (default: a new one, recorded in the results)")
     chk = sub.add_parser("check", help="read and check a method file only")
@@ -121,7 +125,16 @@ def _run(args, console: Console) -> int:
         if progress is not None:
             progress.stop()
     written = api.write_outputs(run, args.out, overwrite=args.overwrite, pdf=not args.no_pdf)
-    _show(console, terminal.run_lines(run.record, args.top) + terminal.written_lines(written))
+    verdict = run.record.get("verdict")
+    _show(console, terminal.run_lines(run.record, args.top) + terminal.written_lines(written)
+          + terminal.verdict_lines(verdict))
+    return _run_exit_code(verdict, args.strict)
+
+
+def _run_exit_code(verdict: dict | None, strict: bool) -> int:
+    """0 for a completed evaluation; with --strict, EXIT_NOT_FIT unless the verdict is "fit"."""
+    if strict and (verdict is None or verdict["status"] != "fit"):
+        return EXIT_NOT_FIT
     return 0
 
 

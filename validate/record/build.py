@@ -41,6 +41,8 @@ from validate.record.types import (
     Software,
     SourceEntry,
 )
+from validate.record.verdict import judge
+from validate.record.verdict_warnings import stated_exact
 from validate.validation.block import equilibrium_validation_block, line_summary, validation_block
 
 EQUILIBRIUM_FORMULA = "K = [ML] / (([M]0 - [ML]) ([L]0 - [ML])), [ML] from the line of the standards"
@@ -61,11 +63,16 @@ def build_record(method: Method, model: Model | EquilibriumModel, results: list[
     inputs = tuple(InputFile(path=str(p), sha256=sha256_of(p)) for p in method.input_files)
     validation, equilibrium = _stage_blocks(method, model, results, monte_carlo, combination)
     keys = dict(zip(model.result_labels, model.result_keys, strict=True))
+    entries = _results(results, monte_carlo, keys, validation)
+    equipment = tuple(EquipmentEntry(id=i.id, kind=i.kind, item_class=i.item_class, provenance=i.provenance)
+                      for i in method.items.values())
     return Record(
         schema_version=SCHEMA_VERSION,
         software=Software(name="validate", version=__version__),
         run=_run_info(inputs),
         method=_method_info(method),
+        verdict=judge(results=entries, validation=validation, equilibrium=equilibrium, equipment=equipment,
+                      exact=stated_exact(method), monte_carlo_ran=bool(monte_carlo)),
         inputs=inputs,
         settings=Settings.from_dict({**method.settings.to_dict(), "validation": method.validation.to_dict()},
                                     "settings"),
@@ -73,13 +80,12 @@ def build_record(method: Method, model: Model | EquilibriumModel, results: list[
         notes=tuple(method.notes),
         assumptions=tuple(model.assumptions),
         registers=tuple(method.registers_used),
-        equipment=tuple(EquipmentEntry(id=i.id, kind=i.kind, item_class=i.item_class, provenance=i.provenance)
-                        for i in method.items.values()),
+        equipment=equipment,
         sources=tuple(SourceEntry.from_dict(s.to_dict(), "sources") for s in model.sources.values()),
         calibration=calibration_summary(method, model) if isinstance(model, Model) else None,
         monte_carlo_settings=(MonteCarloSettings(trials=trials, seed=seed, method=MONTE_CARLO_METHOD)
                               if monte_carlo and trials is not None and seed is not None else None),
-        results=_results(results, monte_carlo, keys, validation),
+        results=entries,
         validation=validation,
         equilibrium=equilibrium,
         advice=AdviceBlock.from_dict(advice.to_dict(), "advice") if advice is not None else None,

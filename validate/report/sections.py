@@ -16,6 +16,7 @@ from reportlab.platypus import Image, KeepTogether, Paragraph
 
 from validate.report import figures
 from validate.report.numbers import DASH, dof, gum_decimals, gum_pair, interval, is_number, num, pct
+from validate.report.sections_verdict import verdict_block
 from validate.report.style import BAD, FRAME_WIDTH, GOOD, data_table, gap, heading, key_value_table, para, styles, text
 
 
@@ -144,6 +145,10 @@ def pretty(name: str) -> str:
 def _overall(crit: dict, shown: list[dict]) -> Paragraph:
     """One coloured line: every criterion met, how many not met, or none evaluable."""
     failed = [c for c in shown if c.get("met") is False]
+    unevaluable = sum(1 for c in shown if c.get("status") == "not evaluable")
+    if crit.get("all_met") is True and unevaluable:
+        return coloured(f"Every evaluated acceptance criterion is met; {unevaluable} could not be evaluated "
+                        "(see the verdict).", None)
     if crit.get("all_met") is True:
         return coloured("Every evaluated acceptance criterion is met.", True)
     if crit.get("all_met") is False:
@@ -195,14 +200,14 @@ def monte_carlo_line(record: dict, results: list[dict] | None = None) -> list:
     else:
         names = "; ".join(r["name"] for r in results if r not in agree)  # names may hold commas
         line = (f"Monte Carlo (JCGM 101, clause 8) does not validate the GUM interval of "
-                f"{len(results) - len(agree)} of {len(results)} results ({names}). For these, "
-                "report the Monte Carlo interval.")
+                f"{len(results) - len(agree)} of {len(results)} results ({names}): their Monte Carlo "
+                "interval is reported (see Reported results).")
     return [para(line, "body")]
 
 
 def summary(record: dict) -> list:
     header, rows, widths, numeric = result_rows(record)
-    out = [heading("Results", 2),
+    out = [*verdict_block(record), heading("Results", 2),
             data_table(header, rows, widths, numeric=numeric),
             para("U: expanded uncertainty, U = k u(y), with coverage factor k from the t "
                  "distribution at the effective degrees of freedom ν_eff (Welch-Satterthwaite, "

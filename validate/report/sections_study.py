@@ -24,6 +24,7 @@ from validate.report.sections_uncertainty import (
     monte_carlo_for_result,
     monte_carlo_intro,
 )
+from validate.report.sections_verdict import verdict_block
 from validate.report.style import BAD, data_table, heading, key_value_table, para, text
 
 SAME_SHARES = 1e-6  # log10 K's shares equal K's when they differ by less than this
@@ -98,7 +99,8 @@ def summary(record: dict) -> list:
     eq, unit = record["equilibrium"], k_unit(record["equilibrium"])
     headline = [r for r in (combined, log10k) if r]
     header, rows, widths, numeric = result_rows(record, headline)
-    out = [heading("Results", 2), data_table(header, rows, widths, numeric=numeric),
+    out = [*verdict_block(record, study=True), heading("Results", 2),
+           data_table(header, rows, widths, numeric=numeric),
            para("K: combined formation constant of all points; log10 K of K in "
                 f"{unit}. U: expanded uncertainty, U = k u(y), with coverage factor k from the t "
                 "distribution at the effective degrees of freedom ν_eff (Welch-Satterthwaite, "

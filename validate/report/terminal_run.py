@@ -10,6 +10,7 @@ from rich.markup import escape
 from rich.table import Table
 
 from validate.report.numbers import MISSING, compact, decimals_of, dof, gum_pair, interval
+from validate.report.verdict_text import TONE, basis_text, headline, listed, reported_text
 
 
 @dataclass(frozen=True)
@@ -135,6 +136,7 @@ def result_lines(record: dict, result: dict, top: int) -> list[Printable]:
     lines: list[Printable] = [BLANK, Line(f"[bold]{escape(result['name'])}[/]")]
     lines += [Line(f"  [bold yellow]FLAG[/] {escape(flag)}: report with this flag, not as a plain number")
               for flag in result.get("flags") or []]
+    lines += reported_lines(record, result)
     lines.append(Line(f"  GUM          [bold]{value} ± {big_u} {escape(result['unit'])}[/]  "
                       f"(k = {result['coverage_factor']:.2f}, p = {result['coverage_probability']:g}, "
                       f"nu_eff = {nu})"))
@@ -272,4 +274,40 @@ def advice_lines(advice: dict | None) -> list[Printable]:
         c = advice["combined"]
         after = _advice_figure(advice, c["expanded_uncertainty_after"])
         lines.append(Line(f"  together: -{c['reduction']:.0%} -> {after}", soft_wrap=True))
+    return lines
+
+
+# --------------------------------------------------------------------------
+# the verdict (validate.record.verdict) and each result as reported
+
+def reported_lines(record: dict, result: dict) -> list[Printable]:
+    """The result as reported by the record's interval rule, and on what basis."""
+    reported = next((r for r in (record.get("verdict") or {}).get("reported", []) if r["key"] == result["key"]),
+                    None)
+    if reported is None:
+        return []
+    return [Line(f"  reported     [bold]{escape(reported_text(reported))}[/]  "
+                 f"[dim]({escape(basis_text(reported))})[/]", soft_wrap=True)]
+
+
+def _tone(verdict: dict) -> str:
+    return {True: "green", None: "yellow", False: "red"}[TONE[verdict["status"]]]
+
+
+def verdict_headline(verdict: dict | None) -> list[Printable]:
+    """The verdict in one line (the first line `validate run` prints)."""
+    if not verdict:
+        return []
+    return [Line(f"[bold {_tone(verdict)}]{escape(headline(verdict))}[/]", soft_wrap=True)]
+
+
+def verdict_lines(verdict: dict | None) -> list[Printable]:
+    """The verdict with every criterion not met, not evaluable and every warning (the last lines)."""
+    if not verdict:
+        return []
+    lines: list[Printable] = [BLANK, *verdict_headline(verdict)]
+    for title, items in listed(verdict):
+        lines.append(Line(f"  {title}:"))
+        lines += [Line(f"    - {escape(text)}", soft_wrap=True) for text in items]
+    lines.append(Line(f"  [dim]{escape(verdict['interval_rule'])}[/]", soft_wrap=True))
     return lines
