@@ -50,8 +50,9 @@ def check(path) -> tuple[Method, Model | EquilibriumModel]:
 
 def analyse(path, trials: int | str | None = 1_000_000, seed: int | None = None,
             progress_factory=None, advice: bool = True) -> Run:
-    """Both engines on one method file. `trials=None` runs the linear engine only;
-    `progress_factory(total)` may return a callable advanced by trials done."""
+    """Both engines on one method file. `trials=None` or 0 runs the linear engine only (as
+    `--trials 0`); `progress_factory(total)` may return a callable advanced by trials done."""
+    trials = None if trials == 0 else trials
     method = load_method(path)
     model, combination = build_ready_model(method)
     results = propagate(model)
