@@ -58,6 +58,8 @@ def _parser() -> argparse.ArgumentParser:
     chk.add_argument("method")
     init = sub.add_parser("init", help="write a commented starter method file and readings table")
     init.add_argument("folder")
+    init.add_argument("--equilibrium", action="store_true",
+                      help="a starter for a 1:1 complex-formation study instead of an assay")
     ver = sub.add_parser("verify", help="re-check a record: inputs unchanged and every number reproduced")
     ver.add_argument("folder", help="the folder a `validate run --out` wrote")
     cal = sub.add_parser("calibrate", help="quick check of a calibration table (CSV: concentration,absorbance)")
@@ -159,10 +161,17 @@ def _calibrate(args, console: Console) -> int:
     return 0
 
 
+def _starter_files(folder: Path, equilibrium: bool) -> dict[Path, Path]:
+    """What `validate init` writes (target -> template): an assay, or with --equilibrium a study."""
+    templates = Path(__file__).parent / "templates"
+    method, readings = ("equilibrium.toml", "equilibrium_readings.csv") if equilibrium else \
+        ("method.toml", "readings.csv")
+    return {folder / "method.toml": templates / method, folder / "readings.csv": templates / readings}
+
+
 def _init(args, console: Console) -> int:
     folder = Path(args.folder)
-    templates = Path(__file__).parent / "templates"
-    targets = {folder / "method.toml": templates / "method.toml", folder / "readings.csv": templates / "readings.csv"}
+    targets = _starter_files(folder, args.equilibrium)
     clashes = [str(t) for t in targets if t.exists()]
     if clashes:
         raise InputError(f"would overwrite {', '.join(clashes)}", file=folder,
