@@ -27,9 +27,8 @@ from validate.record.types import EquipmentEntry, ResultEntry
 
 STATEMENTS: dict[str, str] = {"fit": "fit for the stated purpose", "fit with reservations": "fit with reservations",
                               "not shown fit": "not shown fit"}
-INTERVAL_RULE = ("Where the Monte Carlo method validates the GUM interval (JCGM 101, clause 8), a result is "
-                 "reported as y ± U; where it does not, its Monte Carlo coverage interval is the result and "
-                 "y ± U is shown beside it, labelled GUM. Without a Monte Carlo run, y ± U is reported unchecked.")
+INTERVAL_RULE = ("y ± U where Monte Carlo validates the GUM interval (JCGM 101, clause 8); else the Monte Carlo "
+                 "interval (MC), with y ± U beside it labelled GUM; without Monte Carlo, y ± U unchecked.")
 
 
 def _number(x: float | None) -> str:

@@ -70,9 +70,16 @@ def top_down(v: ValidationBlock, results: Sequence[ResultEntry]) -> list[Verdict
             items.append(VerdictItem(
                 what=f"top-down against bottom-up: {sample}",
                 why=f"intermediate precision over {ip.groups} series, relative SD {ip.intermediate_rsd_percent:.2g} %, "
-                    f"exceeds the budget's relative standard uncertainty of the result, {relative_u:.2g} % "
-                    f"({ip.verdict}); the budget may miss a series-to-series effect"))
+                    f"exceeds the result's relative standard uncertainty, {relative_u:.2g} %: the budget may miss "
+                    "a series-to-series effect"))
     return items
+
+
+def _names(results: Sequence[ResultEntry]) -> str:
+    """The results' labels; an equilibrium study's points gathered as "K of points X1, X2"."""
+    points = [str(r.key.id) for r in results if r.key.kind == "K"]
+    names = [r.name for r in results if r.key.kind != "K"]
+    return "; ".join(([f"K of points {', '.join(points)}"] if points else []) + names)
 
 
 def monte_carlo(results: Sequence[ResultEntry], ran: bool) -> list[VerdictItem]:
@@ -82,13 +89,13 @@ def monte_carlo(results: Sequence[ResultEntry], ran: bool) -> list[VerdictItem]:
                             why="Monte Carlo was not run (0 trials): no GUM interval is validated by JCGM 101 "
                                 "clause 8")]
     checked = [r for r in results if r.monte_carlo is not None]
-    differ = [r.name for r in checked if r.monte_carlo is not None and not r.monte_carlo.agrees_with_gum]
+    differ = [r for r in checked if r.monte_carlo is not None and not r.monte_carlo.agrees_with_gum]
     items = []
     if differ:
         items.append(VerdictItem(
             what="Monte Carlo against the GUM interval",
             why=f"JCGM 101 clause 8 does not validate the GUM interval of {len(differ)} of {len(checked)} results "
-                f"({'; '.join(differ)}): their Monte Carlo interval is reported"))
+                f"({_names(differ)}): their Monte Carlo interval is reported"))
     items += [VerdictItem(what=f"Monte Carlo: {r.name}", why=r.monte_carlo.warning)
               for r in checked if r.monte_carlo is not None and r.monte_carlo.warning]
     return items
@@ -105,14 +112,14 @@ def limits(v: ValidationBlock) -> list[VerdictItem]:
 
 def registers(equipment: Sequence[EquipmentEntry]) -> list[VerdictItem]:
     """Equipment figures recalled from memory or typical of the trade, not the items' own."""
-    items = []
-    for marker, why in (("from memory", "register figures recalled from memory"),
-                        ("typical", "typical specifications, not the items' own certificates")):
+    parts = []
+    for marker, label in (("from memory", "recalled from memory"), ("typical", "typical specifications")):
         ids = [e.id for e in equipment if marker in e.provenance.lower()]
         if ids:
-            items.append(VerdictItem(what=f"equipment figures: {', '.join(ids)}",
-                                     why=f"{why}; replace them with your own certificates before the record is used"))
-    return items
+            parts.append(f"{label} ({', '.join(ids)})")
+    if not parts:
+        return []
+    return [VerdictItem(what="equipment figures", why="; ".join(parts) + ": use your own certificates")]
 
 
 def equilibrium(e: EquilibriumBlock) -> list[VerdictItem]:

@@ -16,7 +16,13 @@ from reportlab.platypus import Image, KeepTogether, Paragraph
 
 from validate.report import figures
 from validate.report.numbers import DASH, dof, gum_decimals, gum_pair, interval, is_number, num, pct
-from validate.report.sections_verdict import verdict_block
+from validate.report.sections_verdict import (
+    REPORTED_WIDTH,
+    interval_rule_note,
+    reported_bases,
+    reported_column,
+    verdict_block,
+)
 from validate.report.style import BAD, FRAME_WIDTH, GOOD, data_table, gap, heading, key_value_table, para, styles, text
 
 
@@ -77,13 +83,14 @@ def _relative(value, expanded) -> float | None:
     return expanded / abs(value) if is_number(value) and value and is_number(expanded) else None
 
 
-def _result_row(r: dict, with_mc: bool) -> list:
+def _result_row(r: dict, with_mc: bool, basis: dict) -> list:
     value, big_u = rounded(r.get("value"), r.get("expanded_uncertainty"))
     unit = r.get("unit", "")
     row = [r.get("name", DASH), f"{value} {unit}", f"{big_u} {unit}", num(r.get("coverage_factor"), 3),
            pct(r.get("coverage_probability"), 0), dof(r.get("effective_dof")),
            pct(_relative(r.get("value"), r.get("expanded_uncertainty")))]
-    return row + [mc_interval_text(r)] if with_mc else row
+    row += [mc_interval_text(r)] if with_mc else []
+    return row + [reported_column(basis, r)] if basis else row
 
 
 def _combined_k_row(record: dict, eq: dict, with_mc: bool) -> list:
@@ -105,16 +112,20 @@ def result_rows(record: dict, results: list[dict] | None = None
     every = record.get("results") or []
     results = every if results is None else results
     with_mc = any(r.get("monte_carlo") for r in results)
+    basis = reported_bases(record)
     header = ["result", "value", "U", "k", "p", "ν_eff", "U / value"]
     widths: list[float] = [58, 26, 24, 13, 12, 13, 18]
     if with_mc:
         header.append("Monte Carlo interval")
         widths = [44, 22, 20, 12, 11, 12, 17, 36]
-    rows = [_result_row(r, with_mc) for r in results]
+    if basis:  # the result's name gives way to the column saying which interval is reported
+        header.append("reported")
+        widths = [widths[0] - REPORTED_WIDTH, *widths[1:], REPORTED_WIDTH]
+    rows = [_result_row(r, with_mc, basis) for r in results]
     eq = (record.get("equilibrium") or {}).get("combined")
     listed = any((r.get("key") or {}).get("kind") == "combined K" for r in every)  # never list it twice
     if eq and not listed and is_number(eq.get("K")) and is_number(eq.get("expanded_uncertainty")):
-        rows.append(_combined_k_row(record, eq, with_mc))
+        rows.append(_combined_k_row(record, eq, with_mc) + ([DASH] if basis else []))
     return header, rows, widths, set(range(1, len(header)))
 
 
@@ -180,7 +191,7 @@ def criteria_block(record: dict) -> list:
     out = [heading("Acceptance criteria", 2), _overall(crit, shown), gap(1.5)]
     if rows:
         out.append(data_table(["criterion", "limit", "observed", "verdict", "limit from"], rows,
-                              [52, 24, 26, 26, 46], numeric={2}))
+                              [72, 24, 26, 20, 32], numeric={2}))
     if not_set:
         out.append(para("Not set (no general default): " + "; ".join(not_set) + ".", "small"))
     out.append(para(crit.get("caution") or "Acceptance criteria come from the applicable "
@@ -188,37 +199,19 @@ def criteria_block(record: dict) -> list:
     return out
 
 
-def monte_carlo_line(record: dict, results: list[dict] | None = None) -> list:
-    results = [r for r in (record.get("results") or [] if results is None else results)
-               if r.get("monte_carlo")]
-    if not results:
-        return []
-    agree = [r for r in results if r["monte_carlo"].get("agrees_with_gum")]
-    if len(agree) == len(results):
-        line = ("Monte Carlo (JCGM 101) validates the GUM interval of every result "
-                "(JCGM 101, clause 8).")
-    else:
-        names = "; ".join(r["name"] for r in results if r not in agree)  # names may hold commas
-        line = (f"Monte Carlo (JCGM 101, clause 8) does not validate the GUM interval of "
-                f"{len(results) - len(agree)} of {len(results)} results ({names}): their Monte Carlo "
-                "interval is reported (see Reported results).")
-    return [para(line, "body")]
-
-
 def summary(record: dict) -> list:
     header, rows, widths, numeric = result_rows(record)
     out = [*verdict_block(record), heading("Results", 2),
             data_table(header, rows, widths, numeric=numeric),
-            para("U: expanded uncertainty, U = k u(y), with coverage factor k from the t "
-                 "distribution at the effective degrees of freedom ν_eff (Welch-Satterthwaite, "
-                 "GUM G.4.1) and coverage probability p. U is rounded to two significant digits "
-                 "and the value to the same decimal place (GUM 7.2.6).", "note")]
+            para("U = k u(y), k from the t distribution at the effective degrees of freedom ν_eff "
+                 "(Welch-Satterthwaite, GUM G.4.1) for coverage probability p; U rounded to two "
+                 "significant digits, the value to the same decimal place (GUM 7.2.6).", "note"),
+            *interval_rule_note(record)]
     for r in record.get("results") or []:
         if r.get("flags"):  # e.g. below the LOQ, extrapolated: the reader must see it here
             out.append(para(f'<font color="#{BAD.hexval()[2:]}"><b>flag</b></font> '
                             f"{text(r['name'])}: {text('; '.join(map(str, r['flags'])))}",
                             "body", markup=True))
-    out += monte_carlo_line(record)
     out += criteria_block(record)
     return out
 

@@ -1,4 +1,5 @@
-"""Page 1: the verdict with everything listed under it, and each result as reported.
+"""Page 1: the verdict with everything listed under it, and which interval each result is
+reported with (the results table's last column).
 
 Read from the record's verdict block (validate.record.verdict); the wording is shared with
 the terminal (validate.report.verdict_text), so both say the same.
@@ -7,42 +8,54 @@ the terminal (validate.report.verdict_text), so both say the same.
 from __future__ import annotations
 
 from reportlab.lib import colors
-from reportlab.platypus import Paragraph
 
-from validate.report.style import BAD, GOOD, bullets, data_table, heading, para, styles, text
-from validate.report.verdict_text import TONE, basis_text, headline, listed, reported_text
+from validate.report.numbers import DASH
+from validate.report.style import BAD, GOOD, para, text
+from validate.report.verdict_text import TONE, headline, listed
 
 CAUTION = colors.HexColor("#8a5a00")  # amber: fit with reservations
-STUDY_HEADLINE = ("combined K", "log10 K")
+REPORTED_WIDTH = 16.0  # mm, the results table's "reported" column
+COLUMN_TEXT = {"GUM": "y ± U", "Monte Carlo": "MC"}
 
 
-def _statement(verdict: dict) -> Paragraph:
+def _statement(verdict: dict):
     colour = {True: GOOD, None: CAUTION, False: BAD}[TONE[verdict["status"]]]
     return para(f'<font color="#{colour.hexval()[2:]}"><b>{text(headline(verdict))}</b></font>', "body",
                 markup=True)
 
 
 def _lists(verdict: dict) -> list:
+    """Each list under a small heading, one compact line per item (what in bold, then why)."""
     out: list = []
     for title, lines in listed(verdict):
-        out += [para(f"<b>{text(title.capitalize())}</b>", "small", markup=True), *bullets(lines, "bullet")]
+        out.append(para(f"<b>{text(title.capitalize())}</b>", "small", markup=True))
+        for line in lines:
+            what, _, why = line.partition(": ")
+            out.append(para(f"•&nbsp;<b>{text(what)}</b>: {text(why)}", "small", markup=True))
     return out
 
 
-def _reported_table(reported: list[dict]) -> list:
-    cell = styles()["cell"]
-    rows = [[Paragraph(text(r["name"]), cell), Paragraph(f"<b>{text(reported_text(r))}</b>", cell),
-             Paragraph(text(basis_text(r)), cell)] for r in reported]
-    return [heading("Reported results", 2), data_table(["result", "reported", "basis"], rows, [44, 52, 78])]
-
-
 def verdict_block(record: dict, study: bool = False) -> list:
-    """The verdict, its lists, and the reported results (for a study, the combined K and log10 K)."""
+    """The verdict and its lists (the same for an assay and a study)."""
     verdict = record.get("verdict")
     if not verdict:
         return []
-    reported = [r for r in verdict["reported"] if not study or r["key"]["kind"] in STUDY_HEADLINE]
-    out = [heading("Verdict", 2), _statement(verdict), *_lists(verdict)]
-    if reported:
-        out += _reported_table(reported)
-    return out + [para(verdict["interval_rule"], "note")]
+    return [_statement(verdict), *_lists(verdict)]  # the statement starts "Verdict:": no heading of its own
+
+
+def reported_bases(record: dict) -> dict:
+    """(kind, id) of each result's key -> its reported entry; empty for a record without a verdict."""
+    reported = (record.get("verdict") or {}).get("reported") or []
+    return {(r["key"]["kind"], r["key"]["id"]): r for r in reported}
+
+
+def reported_column(bases: dict, result: dict) -> str:
+    key = result.get("key") or {}
+    entry = bases.get((key.get("kind"), key.get("id")))
+    return COLUMN_TEXT[entry["basis"]] if entry else DASH
+
+
+def interval_rule_note(record: dict) -> list:
+    """The one rule for the reported interval, under the results table."""
+    verdict = record.get("verdict")
+    return [para(f"Reported: {verdict['interval_rule']}", "note")] if verdict else []
