@@ -192,6 +192,8 @@ def _same_everywhere(run, folder):
     lines = _terminal(run, written)
     top = headline(on_file)
     assert lines[0] == top
+    # the same acceptance block for an assay and an equilibrium study
+    assert any(line.startswith("Acceptance criteria: ") for line in lines)
     tail = _flat(" ".join(lines[max(i for i, line in enumerate(lines) if line == top):]))
     page_one = _flat(PdfReader(str(folder / "report.pdf")).pages[0].extract_text() or "")
     assert _flat(top) in page_one
@@ -226,3 +228,14 @@ def test_a_method_whose_criterion_fails_says_the_same_everywhere(tmp_path):
     verdict = _same_everywhere(run, tmp_path / "out")
     assert verdict["status"] == "not shown fit"
     assert [i["what"] for i in verdict["not_met"]] == ["coefficient of determination r^2"]
+
+
+def test_input_notes_and_defaults_from_memory_are_warnings(phosphate_linear):
+    record = phosphate_linear.typed_record
+    verdict = _verdict(record, validation=_quiet(record.validation),
+                       defaults_applied=("a default of this tool", "a register value, from memory"),
+                       notes=("readings not used by the method: S9",))
+    assert verdict.status == "fit with reservations"
+    assert [(i.what, i.why) for i in verdict.warnings] == [
+        ("default from memory", "a register value, from memory"),
+        ("input note", "readings not used by the method: S9")]

@@ -87,7 +87,8 @@ def criteria_items(validation: ValidationBlock | None, study: bool) -> tuple[lis
 
 def warning_items(results: Sequence[ResultEntry], validation: ValidationBlock | None,
                   equilibrium: EquilibriumBlock | None, equipment: Sequence[EquipmentEntry],
-                  exact: Sequence[VerdictItem], monte_carlo_ran: bool) -> list[VerdictItem]:
+                  exact: Sequence[VerdictItem], monte_carlo_ran: bool,
+                  inputs: tuple[Sequence[str], Sequence[str]] = ((), ())) -> list[VerdictItem]:
     """Every warning that bears on the results, in the order the report treats them."""
     items: list[VerdictItem] = []
     if validation is not None:
@@ -96,7 +97,7 @@ def warning_items(results: Sequence[ResultEntry], validation: ValidationBlock | 
     if equilibrium is not None:
         items += warn.equilibrium(equilibrium)
     items += warn.range_flags(results) + warn.monte_carlo(results, monte_carlo_ran)
-    return items + list(exact) + warn.registers(equipment)
+    return items + list(exact) + warn.input_notes(*inputs) + warn.registers(equipment)
 
 
 def _status(not_met: list, not_evaluable: list, warnings: list, evaluated: int) -> Status:
@@ -136,11 +137,13 @@ def reported_result(r: ResultEntry) -> ReportedResult:
 
 def judge(*, results: Sequence[ResultEntry], validation: ValidationBlock | None,
           equilibrium: EquilibriumBlock | None, equipment: Sequence[EquipmentEntry] = (),
-          exact: Sequence[VerdictItem] = (), monte_carlo_ran: bool) -> Verdict:
+          exact: Sequence[VerdictItem] = (), monte_carlo_ran: bool, defaults_applied: Sequence[str] = (),
+          notes: Sequence[str] = ()) -> Verdict:
     """The verdict of a run from its record's parts; `exact` lists the inputs stated without
     an uncertainty (verdict_warnings.stated_exact of the method)."""
     not_met, not_evaluable = criteria_items(validation, equilibrium is not None)
-    warnings = warning_items(results, validation, equilibrium, equipment, exact, monte_carlo_ran)
+    warnings = warning_items(results, validation, equilibrium, equipment, exact, monte_carlo_ran,
+                             (defaults_applied, notes))
     rows = validation.criteria.criteria if validation is not None else ()
     met = sum(1 for c in rows if c.status == "met")
     status = _status(not_met, not_evaluable, warnings, met + len(not_met))

@@ -122,6 +122,12 @@ def registers(equipment: Sequence[EquipmentEntry]) -> list[VerdictItem]:
     return [VerdictItem(what="equipment figures", why="; ".join(parts) + ": use your own certificates")]
 
 
+def input_notes(defaults: Sequence[str], notes: Sequence[str]) -> list[VerdictItem]:
+    """Defaults whose figures are recalled from memory, and the notes on the input (kept, not fatal)."""
+    items = [VerdictItem(what="default from memory", why=d) for d in defaults if "from memory" in d.lower()]
+    return items + [VerdictItem(what="input note", why=n) for n in notes]
+
+
 def equilibrium(e: EquilibriumBlock) -> list[VerdictItem]:
     """Inconsistent K values, a trend of K, a correction that did not converge, points off 20-80 %."""
     items = []
