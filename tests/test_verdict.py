@@ -88,7 +88,7 @@ def test_warnings_are_reservations(phosphate_linear):
     whats = [i.what for i in verdict.warnings]
     assert verdict.status == "fit with reservations"
     assert "detection and quantitation limits" in whats
-    assert "top-down against bottom-up: reference_water" in whats
+    assert "top-down against bottom-up, reference_water" in whats
     assert "Monte Carlo check of the GUM interval" in whats
 
 

@@ -24,7 +24,7 @@ def _p(value: float | None) -> str:
 
 def linearity(v: ValidationBlock) -> list[VerdictItem]:
     """Lack of fit, Mandel's test or the runs test significant: the straight line is in doubt."""
-    return [VerdictItem(what=f"linearity: {t.name}", why=t.verdict + _p(t.p_value))
+    return [VerdictItem(what=f"linearity, {t.name}", why=t.verdict + _p(t.p_value))
             for t in (v.lack_of_fit, v.mandel, v.runs) if t.significant is True]
 
 
@@ -68,7 +68,7 @@ def top_down(v: ValidationBlock, results: Sequence[ResultEntry]) -> list[Verdict
         relative_u = 100 * result.standard_uncertainty / abs(result.value)
         if ip.intermediate_rsd_percent > relative_u:
             items.append(VerdictItem(
-                what=f"top-down against bottom-up: {sample}",
+                what=f"top-down against bottom-up, {sample}",
                 why=f"intermediate precision over {ip.groups} series, relative SD {ip.intermediate_rsd_percent:.2g} %, "
                     f"exceeds the result's relative standard uncertainty, {relative_u:.2g} %: the budget may miss "
                     "a series-to-series effect"))
@@ -96,14 +96,14 @@ def monte_carlo(results: Sequence[ResultEntry], ran: bool) -> list[VerdictItem]:
             what="Monte Carlo against the GUM interval",
             why=f"JCGM 101 clause 8 does not validate the GUM interval of {len(differ)} of {len(checked)} results "
                 f"({_names(differ)}): their Monte Carlo interval is reported"))
-    items += [VerdictItem(what=f"Monte Carlo: {r.name}", why=r.monte_carlo.warning)
+    items += [VerdictItem(what=f"Monte Carlo, {r.name}", why=r.monte_carlo.warning)
               for r in checked if r.monte_carlo is not None and r.monte_carlo.warning]
     return items
 
 
 def range_flags(results: Sequence[ResultEntry]) -> list[VerdictItem]:
     """Below the LOD or LOQ, outside the calibrated range: each result's flags."""
-    return [VerdictItem(what=f"range: {r.name}", why=flag) for r in results for flag in r.flags]
+    return [VerdictItem(what=f"range, {r.name}", why=flag) for r in results for flag in r.flags]
 
 
 def limits(v: ValidationBlock) -> list[VerdictItem]:

@@ -118,9 +118,9 @@ def result_rows(record: dict, results: list[dict] | None = None
     if with_mc:
         header.append("Monte Carlo interval")
         widths = [44, 22, 20, 12, 11, 12, 17, 36]
-    if basis:  # the result's name gives way to the column saying which interval is reported
+    if basis:  # the name and the narrow columns give way to the column saying what is reported
         header.append("reported")
-        widths = [widths[0] - REPORTED_WIDTH, *widths[1:], REPORTED_WIDTH]
+        widths = ([30, 22, 20, 11, 10, 11, 15, 36] if with_mc else [39, 26, 24, 13, 12, 13, 18]) + [REPORTED_WIDTH]
     rows = [_result_row(r, with_mc, basis) for r in results]
     eq = (record.get("equilibrium") or {}).get("combined")
     listed = any((r.get("key") or {}).get("kind") == "combined K" for r in every)  # never list it twice

@@ -11,10 +11,10 @@ from reportlab.lib import colors
 
 from validate.report.numbers import DASH
 from validate.report.style import BAD, GOOD, para, text
-from validate.report.verdict_text import TONE, headline, listed
+from validate.report.verdict_text import HEADINGS, TONE, headline
 
 CAUTION = colors.HexColor("#8a5a00")  # amber: fit with reservations
-REPORTED_WIDTH = 16.0  # mm, the results table's "reported" column
+REPORTED_WIDTH = 19.0  # mm, the results table's "reported" column
 COLUMN_TEXT = {"GUM": "y ± U", "Monte Carlo": "MC"}
 
 
@@ -27,11 +27,11 @@ def _statement(verdict: dict):
 def _lists(verdict: dict) -> list:
     """Each list under a small heading, one compact line per item (what in bold, then why)."""
     out: list = []
-    for title, lines in listed(verdict):
-        out.append(para(f"<b>{text(title.capitalize())}</b>", "small", markup=True))
-        for line in lines:
-            what, _, why = line.partition(": ")
-            out.append(para(f"•&nbsp;<b>{text(what)}</b>: {text(why)}", "small", markup=True))
+    for key, title in HEADINGS:
+        if verdict[key]:
+            out.append(para(f"<b>{text(title.capitalize())}</b>", "small", markup=True))
+            out += [para(f"•&nbsp;<b>{text(i['what'])}</b>: {text(i['why'])}", "small", markup=True)
+                    for i in verdict[key]]
     return out
 
 
