@@ -106,6 +106,20 @@ def _combined_k_row(record: dict, eq: dict, with_mc: bool) -> list:
     return row + [DASH] if with_mc else row
 
 
+def _results_columns(with_mc: bool, with_basis: bool) -> tuple[list[str], list[float]]:
+    """Header and widths (mm) of the results table: a Monte Carlo column when Monte Carlo ran,
+    and a 'reported' column (y ± U or MC) when the record holds a verdict."""
+    header = ["result", "value", "U", "k", "p", "ν_eff", "U / value"]
+    widths: list[float] = [58, 26, 24, 13, 12, 13, 18]
+    if with_mc:
+        header.append("Monte Carlo interval")
+        widths = [44, 22, 20, 12, 11, 12, 17, 36]
+    if with_basis:  # the name and the narrow columns give way to the column saying what is reported
+        header.append("reported")
+        widths = ([30, 22, 20, 11, 10, 11, 15, 36] if with_mc else [39, 26, 24, 13, 12, 13, 18]) + [REPORTED_WIDTH]
+    return header, widths
+
+
 def result_rows(record: dict, results: list[dict] | None = None
                 ) -> tuple[list[str], list[list], list[float], set[int]]:
     """Header, rows, column widths and numeric columns of the results table (all results by default)."""
@@ -113,14 +127,7 @@ def result_rows(record: dict, results: list[dict] | None = None
     results = every if results is None else results
     with_mc = any(r.get("monte_carlo") for r in results)
     basis = reported_bases(record)
-    header = ["result", "value", "U", "k", "p", "ν_eff", "U / value"]
-    widths: list[float] = [58, 26, 24, 13, 12, 13, 18]
-    if with_mc:
-        header.append("Monte Carlo interval")
-        widths = [44, 22, 20, 12, 11, 12, 17, 36]
-    if basis:  # the name and the narrow columns give way to the column saying what is reported
-        header.append("reported")
-        widths = ([30, 22, 20, 11, 10, 11, 15, 36] if with_mc else [39, 26, 24, 13, 12, 13, 18]) + [REPORTED_WIDTH]
+    header, widths = _results_columns(with_mc, bool(basis))
     rows = [_result_row(r, with_mc, basis) for r in results]
     eq = (record.get("equilibrium") or {}).get("combined")
     listed = any((r.get("key") or {}).get("kind") == "combined K" for r in every)  # never list it twice
