@@ -91,7 +91,7 @@ def run_lines(record: dict, top: int) -> list[Printable]:
         for result in record["results"]:
             lines += result_lines(record, result, top)
     if validation:
-        lines += criteria_lines(validation["criteria"])
+        lines += criteria_lines(validation["criteria"], validation.get("concentration_unit") or "")
     return lines + advice_lines(record.get("advice"))
 
 

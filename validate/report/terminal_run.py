@@ -231,22 +231,26 @@ def equilibrium_lines(record: dict, top: int) -> list[Printable]:
 # --------------------------------------------------------------------------
 # acceptance criteria and advice
 
-def _criterion_line(c: dict) -> Line:
+def _criterion_line(c: dict, concentration_unit: str) -> Line:
     mark = "[green]met[/]" if c["met"] else "[red]NOT MET[/]"
     limit = c["limit"] if not isinstance(c["limit"], list) else f"{c['limit'][0]:g} to {c['limit'][1]:g}"
     default = " (default)" if c["is_default"] else ""
-    return Line(f"  {mark}  {escape(c['name'])}: {compact(c['observed'])} {escape(c['comparison'])} "
-                f"{limit}{default}", soft_wrap=True)
+    unit = c.get("unit") or ""
+    unit = escape(f" {concentration_unit if unit == 'concentration unit' else unit}" if unit else "")
+    observed = c["observed"]  # r^2 close to 1 needs its digits (as on page 1)
+    shown = compact(observed, 6) if isinstance(observed, float) and 0.9 < observed < 1 else compact(observed)
+    return Line(f"  {mark}  {escape(c['name'])}: {shown}{unit} {escape(c['comparison'])} "
+                f"{limit}{unit}{default}", soft_wrap=True)
 
 
-def criteria_lines(criteria: dict) -> list[Printable]:
-    """How many criteria are met, each evaluated one, and the caution."""
+def criteria_lines(criteria: dict, concentration_unit: str = "") -> list[Printable]:
+    """How many criteria are met, each evaluated one with its unit, and the caution."""
     rows = criteria["criteria"]
     counts = {status: sum(1 for c in rows if c["status"] == status)
               for status in ("met", "not met", "not set", "not evaluable")}
     head = ", ".join(f"{n} {status}" for status, n in counts.items() if n)
     lines: list[Printable] = [BLANK, Line(f"[bold]Acceptance criteria[/]: {head}")]
-    lines += [_criterion_line(c) for c in rows if c["status"] in ("met", "not met")]
+    lines += [_criterion_line(c, concentration_unit) for c in rows if c["status"] in ("met", "not met")]
     lines.append(Line(f"  [dim]{escape(criteria['caution'])}[/]", soft_wrap=True))
     return lines
 
