@@ -116,6 +116,17 @@ def test_criteria_counts_and_unmet_criteria():
     assert "LOQ" not in text
 
 
+def test_criteria_show_their_units():
+    criteria = {"caution": "", "criteria": [
+        {"status": "met", "met": True, "name": "relative U", "observed": 2.331, "comparison": "<=", "limit": 5.0,
+         "is_default": False, "unit": "%"},
+        {"status": "met", "met": True, "name": "LOQ", "observed": 0.2467, "comparison": "<=", "limit": 0.5,
+         "is_default": False, "unit": "concentration unit"}]}
+    text = _text(terminal.criteria_lines(criteria, "µmol/L"))
+    assert "relative U: 2.331 % <= 5.0 %" in text
+    assert "LOQ: 0.2467 µmol/L <= 0.5 µmol/L" in text
+
+
 def test_advice_in_relative_and_absolute_units():
     items = [{"change": "read six times", "expanded_uncertainty_after": 0.0184, "reduction": 0.21, "cost": "time"},
              {"change": "no effect", "expanded_uncertainty_after": None, "reduction": 0.0, "cost": "-"}]

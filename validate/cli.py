@@ -25,6 +25,7 @@ if TYPE_CHECKING:
 
 EXIT_INPUT = 2
 EXIT_DATA = 3
+EXIT_NOT_FIT = 4  # `run --strict`: the record was written, but the verdict is not "fit"
 
 
 class _ShowVersion(argparse.Action):
@@ -55,12 +56,17 @@ def _parser() -> argparse.ArgumentParser:
                           "(default 1000000)")
     run.add_argument("--no-advice", action="store_true", help="skip the what-if advisor")
     run.add_argument("--no-pdf", action="store_true", help="do not write report.pdf")
+    run.add_argument("--strict", action="store_true",
+                     help="exit with 4 when the verdict is not 'fit for the stated purpose' (the record is "
+                          "still written)")
     run.add_argument("--seed", type=_seed, default=None,
                      help="random seed for Monte Carlo (default: a new one, recorded in the results)")
     chk = sub.add_parser("check", help="read and check a method file only")
     chk.add_argument("method")
     init = sub.add_parser("init", help="write a commented starter method file and readings table")
     init.add_argument("folder")
+    init.add_argument("--equilibrium", action="store_true",
+                      help="a starter for a 1:1 complex-formation study instead of an assay")
     ver = sub.add_parser("verify", help="re-check a record: inputs unchanged and every number reproduced")
     ver.add_argument("folder", help="the folder a `validate run --out` wrote")
     cal = sub.add_parser("calibrate", help="quick check of a calibration table (CSV: concentration,absorbance)")
@@ -180,8 +186,10 @@ def _run(args, console: Console) -> int:
         return 130
     finally:
         target.close()
-    _show(console, terminal.run_lines(run.record, args.top) + terminal.written_lines(written))
-    return 0
+    verdict = run.record.get("verdict")
+    _show(console, terminal.run_lines(run.record, args.top) + terminal.written_lines(written)
+          + terminal.verdict_lines(verdict))
+    return _run_exit_code(verdict, args.strict)
 
 
 def _analyse(args, console: Console) -> Run:
@@ -194,6 +202,13 @@ def _analyse(args, console: Console) -> Run:
     finally:
         if progress is not None:
             progress.stop()
+
+
+def _run_exit_code(verdict: dict | None, strict: bool) -> int:
+    """0 for a completed evaluation; with --strict, EXIT_NOT_FIT unless the verdict is "fit"."""
+    if strict and (verdict is None or verdict["status"] != "fit"):
+        return EXIT_NOT_FIT
+    return 0
 
 
 def _verify(args, console: Console) -> int:
@@ -217,10 +232,17 @@ def _calibrate(args, console: Console) -> int:
     return 0
 
 
+def _starter_files(folder: Path, equilibrium: bool) -> dict[Path, Path]:
+    """What `validate init` writes (target -> template): an assay, or with --equilibrium a study."""
+    templates = Path(__file__).parent / "templates"
+    method, readings = ("equilibrium.toml", "equilibrium_readings.csv") if equilibrium else \
+        ("method.toml", "readings.csv")
+    return {folder / "method.toml": templates / method, folder / "readings.csv": templates / readings}
+
+
 def _init(args, console: Console) -> int:
     folder = Path(args.folder)
-    templates = Path(__file__).parent / "templates"
-    targets = {folder / "method.toml": templates / "method.toml", folder / "readings.csv": templates / "readings.csv"}
+    targets = _starter_files(folder, args.equilibrium)
     clashes = [str(t) for t in targets if t.exists()]
     if clashes:
         raise InputError(f"would overwrite {', '.join(clashes)}", file=folder,

@@ -42,6 +42,8 @@ from validate.record.types import (
     Software,
     SourceEntry,
 )
+from validate.record.verdict import judge
+from validate.record.verdict_warnings import stated_exact
 from validate.validation.block import equilibrium_validation_block, line_summary, validation_block
 from validate.validation.routine_block import method_uncertainty_block
 
@@ -63,11 +65,17 @@ def build_record(method: Method, model: Model | EquilibriumModel, results: list[
     inputs = input_entries(method)
     validation, equilibrium = _stage_blocks(method, model, results, monte_carlo, combination)
     keys = dict(zip(model.result_labels, model.result_keys, strict=True))
+    entries = _results(results, monte_carlo, keys, validation)
+    equipment = tuple(EquipmentEntry(id=i.id, kind=i.kind, item_class=i.item_class, provenance=i.provenance)
+                      for i in method.items.values())
     return Record(
         schema_version=SCHEMA_VERSION,
         software=Software(name="validate", version=__version__),
         run=_run_info(inputs),
         method=_method_info(method),
+        verdict=judge(results=entries, validation=validation, equilibrium=equilibrium, equipment=equipment,
+                      exact=stated_exact(method), monte_carlo_ran=bool(monte_carlo),
+                      defaults_applied=method.defaults_shown, notes=method.notes),
         inputs=inputs,
         settings=Settings.from_dict({**method.settings.to_dict(), "validation": method.validation.to_dict()},
                                     "settings"),
@@ -75,13 +83,12 @@ def build_record(method: Method, model: Model | EquilibriumModel, results: list[
         notes=tuple(method.notes),
         assumptions=tuple(model.assumptions),
         registers=tuple(method.registers_used),
-        equipment=tuple(EquipmentEntry(id=i.id, kind=i.kind, item_class=i.item_class, provenance=i.provenance)
-                        for i in method.items.values()),
+        equipment=equipment,
         sources=tuple(SourceEntry.from_dict(s.to_dict(), "sources") for s in model.sources.values()),
         calibration=calibration_summary(method, model) if isinstance(model, Model) else None,
         monte_carlo_settings=(MonteCarloSettings(trials=trials, seed=seed, method=MONTE_CARLO_METHOD)
                               if monte_carlo and trials is not None and seed is not None else None),
-        results=_results(results, monte_carlo, keys, validation),
+        results=entries,
         validation=validation,
         equilibrium=equilibrium,
         advice=AdviceBlock.from_dict(advice.to_dict(), "advice") if advice is not None else None,

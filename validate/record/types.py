@@ -19,6 +19,7 @@ from validate.model.keys import ResultKey
 from validate.record.blocks import AdviceBlock, EquilibriumBlock
 from validate.record.blocks_routine import MethodUncertaintyBlock
 from validate.record.blocks_validation import ValidationBlock, ValidationSettingsEntry
+from validate.record.blocks_verdict import Verdict
 from validate.record.tree import RecordPart, described, omitted_when_none
 
 SCHEMA_VERSION = "1.1"
@@ -246,6 +247,8 @@ class Record(RecordPart):
     software: Software
     run: RunInfo
     method: MethodInfo
+    verdict: Verdict | None = omitted_when_none("the one verdict on the run and how each result is reported "
+                                                "(validate.record.verdict); absent only in layout 1.0")
     inputs: tuple[InputFile, ...]
     settings: Settings
     defaults_applied: tuple[str, ...]

@@ -16,6 +16,13 @@ from reportlab.platypus import Flowable, Image, KeepTogether, Paragraph
 
 from validate.report import figures
 from validate.report.numbers import DASH, dof, gum_decimals, gum_pair, interval, is_number, num, pct
+from validate.report.sections_verdict import (
+    REPORTED_WIDTH,
+    interval_rule_note,
+    reported_bases,
+    reported_column,
+    verdict_block,
+)
 from validate.report.style import (
     BAD,
     FRAME_WIDTH,
@@ -108,13 +115,14 @@ def _relative(value, expanded) -> float | None:
     return expanded / abs(value) if is_number(value) and value and is_number(expanded) else None
 
 
-def _result_row(r: dict, with_mc: bool) -> list:
+def _result_row(r: dict, with_mc: bool, basis: dict) -> list:
     value, big_u = rounded(r.get("value"), r.get("expanded_uncertainty"))
     unit = r.get("unit", "")
     row = [r.get("name", DASH), f"{value} {unit}", f"{big_u} {unit}", num(r.get("coverage_factor"), 3),
            pct(r.get("coverage_probability"), 0), dof(r.get("effective_dof")),
            pct(_relative(r.get("value"), r.get("expanded_uncertainty")))]
-    return row + [mc_interval_text(r)] if with_mc else row
+    row += [mc_interval_text(r)] if with_mc else []
+    return row + [reported_column(basis, r)] if basis else row
 
 
 def _combined_k_row(record: dict, eq: dict, with_mc: bool) -> list:
@@ -130,22 +138,33 @@ def _combined_k_row(record: dict, eq: dict, with_mc: bool) -> list:
     return row + [DASH] if with_mc else row
 
 
+def _results_columns(with_mc: bool, with_basis: bool) -> tuple[list[str], list[float]]:
+    """Header and widths (mm) of the results table: a Monte Carlo column when Monte Carlo ran,
+    and a 'reported' column (y ± U or MC) when the record holds a verdict."""
+    header = ["result", "value", "U", "k", "p", "ν_eff", "U / value"]
+    widths: list[float] = [58, 26, 24, 13, 12, 13, 18]
+    if with_mc:
+        header.append("Monte Carlo interval")
+        widths = [44, 22, 20, 12, 11, 12, 17, 36]
+    if with_basis:  # the name and the narrow columns give way to the column saying what is reported
+        header.append("reported")
+        widths = ([30, 22, 20, 11, 10, 11, 15, 36] if with_mc else [39, 26, 24, 13, 12, 13, 18]) + [REPORTED_WIDTH]
+    return header, widths
+
+
 def result_rows(record: dict, results: list[dict] | None = None
                 ) -> tuple[list[str], list[list], list[float], set[int]]:
     """Header, rows, column widths and numeric columns of the results table (all results by default)."""
     every = record.get("results") or []
     results = every if results is None else results
     with_mc = any(r.get("monte_carlo") for r in results)
-    header = ["result", "value", "U", "k", "p", "ν_eff", "U / value"]
-    widths: list[float] = [58, 26, 24, 13, 12, 13, 18]
-    if with_mc:
-        header.append("Monte Carlo interval")
-        widths = [44, 22, 20, 12, 11, 12, 17, 36]
-    rows = [_result_row(r, with_mc) for r in results]
+    basis = reported_bases(record)
+    header, widths = _results_columns(with_mc, bool(basis))
+    rows = [_result_row(r, with_mc, basis) for r in results]
     eq = (record.get("equilibrium") or {}).get("combined")
     listed = any((r.get("key") or {}).get("kind") == "combined K" for r in every)  # never list it twice
     if eq and not listed and is_number(eq.get("K")) and is_number(eq.get("expanded_uncertainty")):
-        rows.append(_combined_k_row(record, eq, with_mc))
+        rows.append(_combined_k_row(record, eq, with_mc) + ([DASH] if basis else []))
     return header, rows, widths, set(range(1, len(header)))
 
 
@@ -176,6 +195,10 @@ def pretty(name: str) -> str:
 def _overall(crit: dict, shown: list[dict]) -> Paragraph:
     """One coloured line: every criterion met, how many not met, or none evaluable."""
     failed = [c for c in shown if c.get("met") is False]
+    unevaluable = sum(1 for c in shown if c.get("status") == "not evaluable")
+    if crit.get("all_met") is True and unevaluable:
+        return coloured(f"Every evaluated acceptance criterion is met; {unevaluable} could not be evaluated "
+                        "(see the verdict).", None)
     if crit.get("all_met") is True:
         return coloured("Every evaluated acceptance criterion is met.", True)
     if crit.get("all_met") is False:
@@ -207,7 +230,7 @@ def criteria_block(record: dict) -> list:
     out = [heading("Acceptance criteria", 2), _overall(crit, shown), gap(1.5)]
     if rows:
         out.append(data_table(["criterion", "limit", "observed", "verdict", "limit from"], rows,
-                              [52, 24, 26, 26, 46], numeric={2}))
+                              [72, 24, 26, 20, 32], numeric={2}))
     if not_set:
         out.append(para("Not set (no general default): " + "; ".join(not_set) + ".", "small"))
     out.append(para(crit.get("caution") or "Acceptance criteria come from the applicable "
@@ -215,37 +238,19 @@ def criteria_block(record: dict) -> list:
     return out
 
 
-def monte_carlo_line(record: dict, results: list[dict] | None = None) -> list:
-    results = [r for r in (record.get("results") or [] if results is None else results)
-               if r.get("monte_carlo")]
-    if not results:
-        return []
-    agree = [r for r in results if r["monte_carlo"].get("agrees_with_gum")]
-    if len(agree) == len(results):
-        line = ("Monte Carlo (JCGM 101) validates the GUM interval of every result "
-                "(JCGM 101, clause 8).")
-    else:
-        names = "; ".join(r["name"] for r in results if r not in agree)  # names may hold commas
-        line = (f"Monte Carlo (JCGM 101, clause 8) does not validate the GUM interval of "
-                f"{len(results) - len(agree)} of {len(results)} results ({names}). For these, "
-                "report the Monte Carlo interval.")
-    return [para(line, "body")]
-
-
 def summary(record: dict) -> list:
     header, rows, widths, numeric = result_rows(record)
-    out = [heading("Results", 2),
+    out = [*verdict_block(record), heading("Results", 2),
             data_table(header, rows, widths, numeric=numeric),
-            para("U: expanded uncertainty, U = k u(y), with coverage factor k from the t "
-                 "distribution at the effective degrees of freedom ν_eff (Welch-Satterthwaite, "
-                 "GUM G.4.1) and coverage probability p. U is rounded to two significant digits "
-                 "and the value to the same decimal place (GUM 7.2.6).", "note")]
+            para("U = k u(y), k from the t distribution at the effective degrees of freedom ν_eff "
+                 "(Welch-Satterthwaite, GUM G.4.1) for coverage probability p; U rounded to two "
+                 "significant digits, the value to the same decimal place (GUM 7.2.6).", "note"),
+            *interval_rule_note(record)]
     for r in record.get("results") or []:
         if r.get("flags"):  # e.g. below the LOQ, extrapolated: the reader must see it here
             out.append(para(f'<font color="#{BAD.hexval()[2:]}"><b>flag</b></font> '
                             f"{text(r['name'])}: {text('; '.join(map(str, r['flags'])))}",
                             "body", markup=True))
-    out += monte_carlo_line(record)
     out += criteria_block(record)
     return out
 

@@ -14,7 +14,7 @@ from reportlab.lib.units import mm
 from reportlab.platypus import CondPageBreak, Table, TableStyle
 
 from validate.report.numbers import DASH, dof, is_number, num, pct
-from validate.report.sections import coloured, criteria_block, monte_carlo_line, result_rows, rounded, u_decimals
+from validate.report.sections import coloured, criteria_block, result_rows, rounded, u_decimals
 from validate.report.sections_equilibrium import k_unit, point_interval, point_result, result_by_key
 from validate.report.sections_uncertainty import (
     BUDGET_LEAD,
@@ -24,6 +24,7 @@ from validate.report.sections_uncertainty import (
     monte_carlo_for_result,
     monte_carlo_intro,
 )
+from validate.report.sections_verdict import interval_rule_note, verdict_block
 from validate.report.style import BAD, data_table, heading, key_value_table, para, text
 
 SAME_SHARES = 1e-6  # log10 K's shares equal K's when they differ by less than this
@@ -98,19 +99,20 @@ def summary(record: dict) -> list:
     eq, unit = record["equilibrium"], k_unit(record["equilibrium"])
     headline = [r for r in (combined, log10k) if r]
     header, rows, widths, numeric = result_rows(record, headline)
-    out = [heading("Results", 2), data_table(header, rows, widths, numeric=numeric),
+    out = [*verdict_block(record, study=True), heading("Results", 2),
+           data_table(header, rows, widths, numeric=numeric),
            para("K: combined formation constant of all points; log10 K of K in "
                 f"{unit}. U: expanded uncertainty, U = k u(y), with coverage factor k from the t "
                 "distribution at the effective degrees of freedom ν_eff (Welch-Satterthwaite, "
                 "GUM G.4.1) and coverage probability p. U is rounded to two significant digits "
-                "and the value to the same decimal place (GUM 7.2.6).", "note")]
+                "and the value to the same decimal place (GUM 7.2.6).", "note"), *interval_rule_note(record)]
     out += _consistency_line(eq, len(points))
     for r in headline + [r for _, r in points]:
         if r.get("flags"):
             out.append(para(f'<font color="#{BAD.hexval()[2:]}"><b>flag</b></font> '
                             f"{text(r['name'])}: {text('; '.join(map(str, r['flags'])))}",
                             "body", markup=True))
-    out += monte_carlo_line(record, headline) + _points_mc_line(points)
+    out += _points_mc_line(points)
     if points:
         out += [heading("K of each point", 2), _side_by_side(_summary_point_rows(record, points), unit),
                 para("Series points are named series.reading (T.1 is the first reading of series "

@@ -25,11 +25,13 @@ from validate.report.terminal_run import (
     method_uncertainty_lines,
     result_lines,
     validation_lines,
+    verdict_headline,
+    verdict_lines,
 )
 
 __all__ = ["BLANK", "Line", "Printable", "ProgressBars", "check_facts", "check_lines", "describe_verify",
            "error_line", "format_quick_check", "init_lines", "interrupted_line", "quick_check_lines",
-           "run_lines", "written_lines"]
+           "run_lines", "verdict_lines", "written_lines"]
 
 
 # --------------------------------------------------------------------------
@@ -77,18 +79,20 @@ def _seed_lines(record: dict) -> list[Printable]:
 
 def run_lines(record: dict, top: int) -> list[Printable]:
     """Everything `validate run` prints about a record, `top` budget lines per result."""
-    lines = [Line(f"[bold]{escape(record['method']['title'])}[/]"),
+    lines = [*verdict_headline(record.get("verdict")),
+             Line(f"[bold]{escape(record['method']['title'])}[/]"),
              *_defaults_lines(record.get("defaults_applied") or [], record.get("notes") or []),
              *_seed_lines(record)]
     validation = record.get("validation")
     if validation:
         lines += validation_lines(validation)
     if record.get("equilibrium"):
-        return lines + equilibrium_lines(record, top) + advice_lines(record.get("advice"))
-    for result in record["results"]:
-        lines += result_lines(record, result, top)
+        lines += equilibrium_lines(record, top)
+    else:
+        for result in record["results"]:
+            lines += result_lines(record, result, top)
     if validation:
-        lines += criteria_lines(validation["criteria"])
+        lines += criteria_lines(validation["criteria"], validation.get("concentration_unit") or "")
     lines += method_uncertainty_lines(record.get("method_uncertainty"))
     return lines + advice_lines(record.get("advice"))
 

@@ -11,6 +11,7 @@ from rich.table import Table
 
 from validate.inputs.text import is_invisible
 from validate.report.numbers import MISSING, compact, decimals_of, dof, gum_pair, interval
+from validate.report.verdict_text import TONE, basis_text, headline, listed, reported_text
 
 
 def terminal_safe(text: str) -> str:
@@ -174,6 +175,7 @@ def result_lines(record: dict, result: dict, top: int) -> list[Printable]:
     lines: list[Printable] = [BLANK, Line(f"[bold]{escape(result['name'])}[/]")]
     lines += [Line(f"  [bold yellow]FLAG[/] {escape(flag)}: report with this flag, not as a plain number")
               for flag in result.get("flags") or []]
+    lines += reported_lines(record, result)
     lines.append(Line(f"  GUM          [bold]{value} ± {big_u} {escape(result['unit'])}[/]  "
                       f"(k = {result['coverage_factor']:.2f}, p = {result['coverage_probability']:g}, "
                       f"nu_eff = {nu})"))
@@ -269,22 +271,26 @@ def equilibrium_lines(record: dict, top: int) -> list[Printable]:
 # --------------------------------------------------------------------------
 # acceptance criteria and advice
 
-def _criterion_line(c: dict) -> Line:
+def _criterion_line(c: dict, concentration_unit: str) -> Line:
     mark = "[green]met[/]" if c["met"] else "[red]NOT MET[/]"
     limit = c["limit"] if not isinstance(c["limit"], list) else f"{c['limit'][0]:g} to {c['limit'][1]:g}"
     default = " (default)" if c["is_default"] else ""
-    return Line(f"  {mark}  {escape(c['name'])}: {compact(c['observed'])} {escape(c['comparison'])} "
-                f"{limit}{default}", soft_wrap=True)
+    unit = c.get("unit") or ""
+    unit = escape(f" {concentration_unit if unit == 'concentration unit' else unit}" if unit else "")
+    observed = c["observed"]  # r^2 close to 1 needs its digits (as on page 1)
+    shown = compact(observed, 6) if isinstance(observed, float) and 0.9 < observed < 1 else compact(observed)
+    return Line(f"  {mark}  {escape(c['name'])}: {shown}{unit} {escape(c['comparison'])} "
+                f"{limit}{unit}{default}", soft_wrap=True)
 
 
-def criteria_lines(criteria: dict) -> list[Printable]:
-    """How many criteria are met, each evaluated one, and the caution."""
+def criteria_lines(criteria: dict, concentration_unit: str = "") -> list[Printable]:
+    """How many criteria are met, each evaluated one with its unit, and the caution."""
     rows = criteria["criteria"]
     counts = {status: sum(1 for c in rows if c["status"] == status)
               for status in ("met", "not met", "not set", "not evaluable")}
     head = ", ".join(f"{n} {status}" for status, n in counts.items() if n)
     lines: list[Printable] = [BLANK, Line(f"[bold]Acceptance criteria[/]: {head}")]
-    lines += [_criterion_line(c) for c in rows if c["status"] in ("met", "not met")]
+    lines += [_criterion_line(c, concentration_unit) for c in rows if c["status"] in ("met", "not met")]
     lines.append(Line(f"  [dim]{escape(criteria['caution'])}[/]", soft_wrap=True))
     return lines
 
@@ -312,4 +318,40 @@ def advice_lines(advice: dict | None) -> list[Printable]:
         c = advice["combined"]
         after = _advice_figure(advice, c["expanded_uncertainty_after"])
         lines.append(Line(f"  together: -{c['reduction']:.0%} -> {after}", soft_wrap=True))
+    return lines
+
+
+# --------------------------------------------------------------------------
+# the verdict (validate.record.verdict) and each result as reported
+
+def reported_lines(record: dict, result: dict) -> list[Printable]:
+    """The result as reported by the record's interval rule, and on what basis."""
+    reported = next((r for r in (record.get("verdict") or {}).get("reported", []) if r["key"] == result["key"]),
+                    None)
+    if reported is None:
+        return []
+    return [Line(f"  reported     [bold]{escape(reported_text(reported))}[/]  "
+                 f"[dim]({escape(basis_text(reported))})[/]", soft_wrap=True)]
+
+
+def _tone(verdict: dict) -> str:
+    return {True: "green", None: "yellow", False: "red"}[TONE[verdict["status"]]]
+
+
+def verdict_headline(verdict: dict | None) -> list[Printable]:
+    """The verdict in one line (the first line `validate run` prints)."""
+    if not verdict:
+        return []
+    return [Line(f"[bold {_tone(verdict)}]{escape(headline(verdict))}[/]", soft_wrap=True)]
+
+
+def verdict_lines(verdict: dict | None) -> list[Printable]:
+    """The verdict with every criterion not met, not evaluable and every warning (the last lines)."""
+    if not verdict:
+        return []
+    lines: list[Printable] = [BLANK, *verdict_headline(verdict)]
+    for title, items in listed(verdict):
+        lines.append(Line(f"  {title}:"))
+        lines += [Line(f"    - {escape(text)}", soft_wrap=True) for text in items]
+    lines.append(Line(f"  [dim]{escape(verdict['interval_rule'])}[/]", soft_wrap=True))
     return lines

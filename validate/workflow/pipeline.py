@@ -55,7 +55,9 @@ def analyse(path, trials: int | str | None = 1_000_000, seed: int | None = None,
             progress_factory=None, advice: bool = True, redirect: Redirect | None = None) -> Run:
     """Both engines on one method file. `trials=None` runs the linear engine only;
     `progress_factory(total)` may return a callable advanced by trials done; `redirect` says
-    where to read the files the method names (a filed record's own copies)."""
+    where to read the files the method names (a filed record's own copies). `trials=0` is the
+    linear engine only, as `--trials 0`."""
+    trials = None if trials == 0 else trials
     method = load_method(path, redirect)
     model, combination = build_ready_model(method)
     results = propagate(model)

@@ -1,0 +1,186 @@
+"""The warnings that bear on a run's results, each as a VerdictItem (what, why).
+
+Every function reads typed parts of the record and returns the items it finds; none
+computes a statistic anew: the tests were run by the validation and equilibrium stages and
+their outcomes are in the record. validate.record.verdict.judge collects them.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+
+from validate.inputs.schema import AssayMethod, Method
+from validate.inputs.solutions import Certified, Weighed
+from validate.inputs.values import UncertainValue
+from validate.record.blocks import EquilibriumBlock, TrendEntry
+from validate.record.blocks_validation import IntermediatePrecisionEntry, ValidationBlock
+from validate.record.blocks_verdict import VerdictItem
+from validate.record.types import EquipmentEntry, ResultEntry
+
+
+def _p(value: float | None) -> str:
+    return "" if value is None else f" (p = {value:.2g})"
+
+
+def linearity(v: ValidationBlock) -> list[VerdictItem]:
+    """Lack of fit, Mandel's test or the runs test significant: the straight line is in doubt."""
+    return [VerdictItem(what=f"linearity, {t.name}", why=t.verdict + _p(t.p_value))
+            for t in (v.lack_of_fit, v.mandel, v.runs) if t.significant is True]
+
+
+def weighting(v: ValidationBlock) -> list[VerdictItem]:
+    """The scatter grows with concentration but the line was fitted unweighted."""
+    t = v.weighting
+    if t.significant is True and not v.fit.weighted:
+        return [VerdictItem(what="weighting of the calibration line", why=t.verdict + _p(t.p_value))]
+    return []
+
+
+def scatter(v: ValidationBlock) -> list[VerdictItem]:
+    """The line's observed scatter against the scatter the bottom-up budget predicts."""
+    sc = v.scatter_consistency
+    if sc is None or sc.observed_sd is None or sc.predicted_sd is None or sc.alpha is None:
+        return []
+    figures = f"observed SD {sc.observed_sd:.3g}, predicted {sc.predicted_sd:.3g} (absorbance)"
+    if sc.p_excess is not None and sc.p_excess < sc.alpha:
+        return [VerdictItem(what="scatter against the bottom-up budget",
+                            why=f"{sc.verdict}: {figures}{_p(sc.p_excess)}; an effect is missing from the budget")]
+    if sc.p_deficit is not None and sc.p_deficit < sc.alpha:
+        return [VerdictItem(what="scatter against the bottom-up budget",
+                            why=f"{sc.verdict}: {figures}{_p(sc.p_deficit)}; the budget may overstate the scatter")]
+    return []
+
+
+def _sample_result(results: Sequence[ResultEntry], sample: str) -> ResultEntry | None:
+    return next((r for r in results if r.key.kind == "result" and r.key.id == sample), None)
+
+
+def top_down(v: ValidationBlock, results: Sequence[ResultEntry]) -> list[VerdictItem]:
+    """Intermediate precision over series (top-down) wider than the result's bottom-up standard
+    uncertainty, compared as relative values (the result is proportional to the concentration
+    read off the line for the formulas of this tool's demos; common practice to compare RSDs)."""
+    items = []
+    for sample, ip in (v.intermediate_precision or {}).items():
+        result = _sample_result(results, sample)
+        if not isinstance(ip, IntermediatePrecisionEntry) or result is None or ip.intermediate_rsd_percent is None \
+                or not result.value:
+            continue
+        relative_u = 100 * result.standard_uncertainty / abs(result.value)
+        if ip.intermediate_rsd_percent > relative_u:
+            items.append(VerdictItem(
+                what=f"top-down against bottom-up, {sample}",
+                why=f"intermediate precision over {ip.groups} series, relative SD {ip.intermediate_rsd_percent:.2g} %, "
+                    f"exceeds the result's relative standard uncertainty, {relative_u:.2g} %: the budget may miss "
+                    "a series-to-series effect"))
+    return items
+
+
+def _names(results: Sequence[ResultEntry]) -> str:
+    """The results' labels; an equilibrium study's points gathered as "K of points X1, X2"."""
+    points = [str(r.key.id) for r in results if r.key.kind == "K"]
+    names = [r.name for r in results if r.key.kind != "K"]
+    return "; ".join(([f"K of points {', '.join(points)}"] if points else []) + names)
+
+
+def monte_carlo(results: Sequence[ResultEntry], ran: bool) -> list[VerdictItem]:
+    """Monte Carlo not run, or not validating the GUM interval (JCGM 101 clause 8), or warning."""
+    if not ran:
+        return [VerdictItem(what="Monte Carlo check of the GUM interval",
+                            why="Monte Carlo was not run (0 trials): no GUM interval is validated by JCGM 101 "
+                                "clause 8")]
+    checked = [r for r in results if r.monte_carlo is not None]
+    differ = [r for r in checked if r.monte_carlo is not None and not r.monte_carlo.agrees_with_gum]
+    items = []
+    if differ:
+        items.append(VerdictItem(
+            what="Monte Carlo against the GUM interval",
+            why=f"JCGM 101 clause 8 does not validate the GUM interval of {len(differ)} of {len(checked)} results "
+                f"({_names(differ)}): their Monte Carlo interval is reported"))
+    items += [VerdictItem(what=f"Monte Carlo, {r.name}", why=r.monte_carlo.warning)
+              for r in checked if r.monte_carlo is not None and r.monte_carlo.warning]
+    return items
+
+
+def range_flags(results: Sequence[ResultEntry]) -> list[VerdictItem]:
+    """Below the LOD or LOQ, outside the calibrated range: each result's flags."""
+    return [VerdictItem(what=f"range, {r.name}", why=flag) for r in results for flag in r.flags]
+
+
+def limits(v: ValidationBlock) -> list[VerdictItem]:
+    return [VerdictItem(what="detection and quantitation limits", why=w) for w in v.limits.warnings]
+
+
+def registers(equipment: Sequence[EquipmentEntry]) -> list[VerdictItem]:
+    """Equipment figures recalled from memory or typical of the trade, not the items' own."""
+    parts = []
+    for marker, label in (("from memory", "recalled from memory"), ("typical", "typical specifications")):
+        ids = [e.id for e in equipment if marker in e.provenance.lower()]
+        if ids:
+            parts.append(f"{label} ({', '.join(ids)})")
+    if not parts:
+        return []
+    return [VerdictItem(what="equipment figures", why="; ".join(parts) + ": use your own certificates")]
+
+
+def input_notes(defaults: Sequence[str], notes: Sequence[str]) -> list[VerdictItem]:
+    """Defaults whose figures are recalled from memory, and the notes on the input (kept, not fatal)."""
+    items = [VerdictItem(what="default from memory", why=d) for d in defaults if "from memory" in d.lower()]
+    return items + [VerdictItem(what="input note", why=n) for n in notes]
+
+
+def equilibrium(e: EquilibriumBlock) -> list[VerdictItem]:
+    """Inconsistent K values, a trend of K, a correction that did not converge, points off 20-80 %."""
+    items = []
+    cons = e.combined.consistency
+    if cons is not None and not cons.consistent:
+        items.append(VerdictItem(what="consistency of the K values", why=cons.verdict + _p(cons.p_value)))
+    if isinstance(e.trend, TrendEntry) and e.trend.trend:
+        items.append(VerdictItem(what=f"trend of K with {e.trend.against}", why=e.trend.message + _p(e.trend.p_value)))
+    if not e.complete_complexation_bias.iteration_converged:
+        items.append(VerdictItem(what="correction of the standards",
+                                 why="the iteration for incomplete complexation did not converge"))
+    flagged = [m for m in e.mixtures if m.saturation_flag]
+    if flagged:
+        items.append(VerdictItem(what=f"saturation of points {', '.join(m.id for m in flagged)}",
+                                 why="; ".join(f"{m.id}: {m.saturation_flag}" for m in flagged)))
+    return items
+
+
+# --------------------------------------------------------------------------
+# inputs the method file states without an uncertainty
+
+def _exact(value: UncertainValue | None) -> bool:
+    return value is not None and value.u == 0
+
+
+def _solution_exact(method: Method) -> list[VerdictItem]:
+    items = []
+    for sol in method.solutions.values():
+        match sol:
+            case Weighed():
+                if sol.purity is None:
+                    items.append(VerdictItem(what=f"purity of {sol.id}", why="no purity given: taken as 100 %, exact"))
+                for label, value in (("purity", sol.purity), ("molar mass", sol.molar_mass)):
+                    if _exact(value):
+                        items.append(VerdictItem(what=f"{label} of {sol.id}", why="stated without an uncertainty: "
+                                                 "taken as exact"))
+                if sol.balance is None and _exact(sol.mass):
+                    items.append(VerdictItem(what=f"mass of {sol.id}", why="no balance and no uncertainty: taken as "
+                                             "exact"))
+            case Certified():
+                if _exact(sol.concentration):
+                    items.append(VerdictItem(what=f"concentration of {sol.id}", why="stated without an uncertainty: "
+                                             "taken as exact"))
+    return items
+
+
+def stated_exact(method: Method) -> list[VerdictItem]:
+    """Inputs the method file gives without an uncertainty: they enter the result as exact."""
+    items = _solution_exact(method)
+    if isinstance(method, AssayMethod):
+        items += [VerdictItem(what=f"{name} in [quantities]", why="stated without an uncertainty: taken as exact")
+                  for name, q in method.quantities.items() if q.delivery is None and _exact(q.value)]
+        if _exact(method.validation.reference_value):
+            items.append(VerdictItem(what="reference value", why="stated without an uncertainty: taken as exact "
+                                     "in E_n"))
+    return items
