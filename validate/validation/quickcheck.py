@@ -20,7 +20,7 @@ from scipy.stats import t as student_t
 from validate.inputs.errors import InputError
 from validate.inputs.readings import read_text_file
 from validate.model.errors import ModelError
-from validate.model.line import inverse_prediction
+from validate.model.line import fit_line, inverse_prediction
 from validate.validation.limits import range_flags
 from validate.validation.linearity import plain
 from validate.validation.summary import validate_calibration
@@ -238,9 +238,9 @@ def _check_line_rises(path: str, fit) -> None:
 def quick_check(path, samples: list[list[float]] | None = None) -> dict:
     """Fit, linearity tests, ICH limits (sigma from residuals) and optional samples, as plain data."""
     table = load_table(path)
+    _check_line_rises(table.path, fit_line(table.concentration, table.absorbance))  # before any statistic of it
     summary = validate_calibration(table.concentration, table.absorbance)
     fit = summary.fit
-    _check_line_rises(table.path, fit)
     notes = list(summary.notes)
     if table.u_concentration is not None and fit.slope != 0:
         ratio = max(table.u_concentration) / (fit.residual_sd / abs(fit.slope))
