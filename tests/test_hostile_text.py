@@ -24,9 +24,9 @@ def _printed(lines) -> str:
 
 
 def test_a_forged_record_id_cannot_erase_or_recolour_the_verdict():
-    report = {"record_id": FORGED_ID, "folder": "rec", "recorded_version": "x", "current_version": "y",
-              "inputs": [], "trials": 0, "seed": None, "relative_tolerance": 1e-9, "mismatches": [],
-              "rerun_error": "boom", "numbers_compared": 0, "passed": False}
+    from validate.record.verify import VerifyReport
+    report = VerifyReport(folder="rec", record_id=FORGED_ID, inputs=(), trials=0, seed=None, rerun_error="boom",
+                          numbers_compared=0, mismatches=(), recorded_version="x", current_version="y").to_dict()
     lines = terminal.verify_lines(report)
     assert all("\x1b" not in line.text and "\r" not in line.text for line in lines)
     shown = _printed(lines)

@@ -321,7 +321,8 @@ def test_terminal_and_report_show_both_routes():
     assert "top-down U" in text and "bottom-up U" in text and f"reported for routine use: [bold]{m['reported']}" in text
     assert method_uncertainty_lines(None) == []
     assert method_uncertainty(record) and method_uncertainty({"results": []}) is None
-    assert u_figure(m["by_concentration"], m["unit"]).startswith(b"\x89PNG")
+    figure = u_figure(m["by_concentration"], m["unit"])  # pixels, handed to the PDF as they are
+    assert figure.size[0] > 100 and figure.size[1] > 100 and figure.png().startswith(b"\x89PNG")
 
 
 def test_rw_model_choices_by_hand():

@@ -152,7 +152,8 @@ def full_report(demo_record, tmp_path_factory):
 @pytest.mark.slow
 def test_first_page_shows_each_acceptance_verdict(full_report):
     record, _, pages = full_report
-    first = pages[0]
+    # the summary (section 1): page 1, and the top of page 2 when many results and warnings fill page 1
+    first = " ".join(pages[:2]).split("2 Inputs")[0]
     criteria = record["validation"]["criteria"]["criteria"]
     evaluated = [c for c in criteria if c["status"] in ("met", "not met")]
     assert evaluated

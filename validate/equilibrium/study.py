@@ -31,17 +31,17 @@ def prepare_combination(model: EquilibriumModel):
     ModelError (exit 3) when no point is left."""
     model.weights = None
     model.excluded = impossible_points(model)
-    variables = {n: ufloat(s.value, s.u, tag=n) for n, s in model.sources.items()}
-    outputs = model.evaluate(variables)
-    ks = [outputs[f"K, {p}"] for p in model.points]
-    cov = covariance(ks)  # summed in source-name order: the same bits in every run
-    values = [k.nominal_value for k in ks]
     kept = [i for i, p in enumerate(model.points) if p not in model.excluded]
     if not kept:
         listed = "; ".join(f"{p}: {why}" for p, why in model.excluded.items())
         raise ModelError(f"no point of the study gives a physically possible K ({listed})\n"
                          "  what to do: check the readings and the totals of the mixtures; a point needs a "
                          "reading above the blank and below full complexation")
+    variables = {n: ufloat(s.value, s.u, tag=n) for n, s in model.sources.items()}
+    outputs = model.evaluate(variables)
+    ks = [outputs[f"K, {p}"] for p in model.points]
+    cov = covariance(ks)  # summed in source-name order: the same bits in every run
+    values = [k.nominal_value for k in ks]
     kept_values = [values[i] for i in kept]
     kept_cov = [[cov[i][j] for j in kept] for i in kept]
     combined = combine_correlated(kept_values, kept_cov) if len(kept) > 1 else None
