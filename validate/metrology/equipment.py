@@ -8,7 +8,7 @@ burette delivery is the difference of two readings.
 
 from __future__ import annotations
 
-from validate.inputs.items import Balance, Burette, GraduatedPipette, Volumetric
+from validate.inputs.items import Balance, Burette, Volumetric
 from validate.inputs.schema import Method
 from validate.inputs.values import Delivery
 from validate.metrology.sources import Source, rectangular, triangular
@@ -44,18 +44,6 @@ def temperature_source(method: Method, step: str) -> Source:
                        f"volume expansion {s.expansion_coefficient:g} per K", unit="K")
 
 
-def tolerance_scale(item: Volumetric, volume: float) -> float:
-    """How much of the item's tolerance applies to a delivery of `volume`: volume / nominal for
-    burettes and graduated pipettes (their tolerance applies to the full scale), 1 otherwise (a
-    piston pipette's maximum permissible error applies in microlitres at every selected volume,
-    ISO 8655-2; a one-mark item only delivers its nominal)."""
-    match item:
-        case Burette() | GraduatedPipette():
-            return volume / item.nominal
-        case _:
-            return 1.0
-
-
 def volume_term(ss: SourceSet, method: Method, delivery: Delivery, step: str, use: str,
                 with_repeatability: bool = True):
     """A closure x -> delivered volume (m^3) for one use of an item in one step.
@@ -63,19 +51,26 @@ def volume_term(ss: SourceSet, method: Method, delivery: Delivery, step: str, us
     `with_repeatability=False` leaves out the per-use random terms (repeatability,
     burette readings) where the calibration line's observed scatter covers them.
 
-    V = V_selected + scale * offset + random terms of the use + V_selected * alpha * dT,
-    scale from `tolerance_scale`.
+    V = V_selected + offset + random terms of the use + V_selected * alpha * dT.
+
+    The offset is the item's one calibration source at its full tolerance, for every kind:
+    a one-mark item delivers only its nominal; a piston pipette's maximum permissible error
+    applies at every selected volume (ISO 8655-2, as the register states it); a burette's
+    or graduated pipette's maximum permissible error applies to any volume delivered on its
+    scale, not to the full scale alone (ISO 385, ISO 835; from memory), so a 1 mL delivery
+    from a 25 mL burette carries the whole tolerance (CG4's titration examples take the
+    burette tolerance as it is, from memory). Every delivery of one item shares the offset:
+    see docs/design.md, "Burette deliveries as two readings", for why.
     """
     item = method.item_of(delivery.item, Volumetric)
     volume = delivery.volume
-    scale = tolerance_scale(item, volume)
     cal = ss.add(_offset(item))
     temp = ss.add(temperature_source(method, step))
     alpha = method.settings.expansion_coefficient
     terms = _per_use_terms(ss, item, step, use) if with_repeatability else []
 
     def term(x):
-        v = volume + scale * x[cal] + volume * alpha * x[temp]
+        v = volume + x[cal] + volume * alpha * x[temp]
         for sign, name in terms:
             v = v + sign * x[name]
         return v
