@@ -20,7 +20,7 @@ from validate.record.blocks import AdviceBlock, EquilibriumBlock
 from validate.record.blocks_validation import ValidationBlock, ValidationSettingsEntry
 from validate.record.tree import RecordPart, described, omitted_when_none
 
-SCHEMA_VERSION = "1.0"
+SCHEMA_VERSION = "1.1"
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -174,20 +174,32 @@ class MonteCarloResult(RecordPart):
     """One result by the Monte Carlo method (JCGM 101), checked against the GUM interval (clause 8)."""
 
     trials: int
-    mean: float
-    standard_uncertainty: float
+    mean: float | None = described("estimate (JCGM 101 7.6); null where the output has no mean (a t input "
+                                   "with nu <= 1)")
+    standard_uncertainty: float | None = described("JCGM 101 7.6; null where the output has no finite "
+                                                   "variance (a t input with nu <= 2): see moments_note")
     interval: tuple[float, ...] = described("probabilistically symmetric coverage interval [low, high]")
     shortest_interval: tuple[float, ...] = described("shortest coverage interval [low, high]")
     coverage_probability: float
-    agrees_with_gum: bool = described("the GUM interval agrees within the numerical tolerance")
+    agrees_with_gum: bool | None = described("JCGM 101 8.2 decided beyond Monte Carlo noise; null: undecided "
+                                             "within the trial budget (see gum_check)")
+    gum_check: str = described("agrees, differs or undecided (JCGM 101 8.2 with the numerical spread of the "
+                               "Monte Carlo interval's ends)")
+    gum_check_note: str
     invalid_trials: int
     seed: int
     gum_interval: tuple[float, ...]
-    tolerance: float
+    tolerance: float = described("delta, the numerical tolerance of the GUM u(y) (JCGM 101 7.9.2)")
     d_low: float
     d_high: float
+    numerical_tolerance: float = described("Monte Carlo numerical tolerance reached: the larger 95 % "
+                                           "half-width of the interval's ends")
+    tolerance_target: float = described("delta/5, the numerical tolerance the validating run should reach "
+                                        "(JCGM 101 8.2, from memory)")
     adaptive: AdaptiveCheck | None
     warning: str | None
+    moments_note: str | None = described("why the standard uncertainty or shares are left out or unreliable "
+                                         "(a t input with nu <= 4)")
     histogram: Histogram
     shares_by_step: tuple[MonteCarloShare, ...]
     shares_by_equipment: tuple[MonteCarloShare, ...]

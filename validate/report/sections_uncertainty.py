@@ -130,9 +130,12 @@ def monte_carlo_for_result(result: dict) -> list:
     mc, unit = result["monte_carlo"], result.get("unit", "")
     d = mc_decimals(mc, result)
     agrees = mc.get("agrees_with_gum")
-    verdict = {True: "the GUM interval is validated: both end-point differences are within δ",
-               False: "the GUM interval is not validated: report the Monte Carlo interval",
-               None: "not evaluated"}[agrees if isinstance(agrees, bool) else None]
+    verdict = {"agrees": "the GUM interval is validated: both end-point differences are within δ, "
+                         "beyond Monte Carlo noise",
+               "differs": "the GUM interval is not validated: report the Monte Carlo interval",
+               "undecided": "undecided: an end-point difference lies within Monte Carlo noise of δ "
+                            "and the trial budget ran out; report the Monte Carlo interval"
+               }.get(str(mc.get("gum_check")), "not evaluated")
     p = pct(result.get("coverage_probability"), 0)
 
     def fixed(x):
@@ -141,17 +144,20 @@ def monte_carlo_for_result(result: dict) -> list:
     facts = [("trials (undefined results)", f"{num(mc.get('trials'))} ({mc.get('invalid_trials', 0)} "
               "undefined, counted and left out)"),
              ("random seed", mc.get("seed", DASH) if mc.get("seed") is not None else DASH),
-             ("mean, standard uncertainty", f"{fixed(mc.get('mean'))}, "
-              f"{num(mc.get('standard_uncertainty'), 3)} {unit}"),
+             ("mean, standard uncertainty", _mean_and_u(mc, fixed, unit)),
              (f"{p} interval, probabilistically symmetric", interval_text(mc.get("interval"), d, unit)),
              (f"{p} interval, shortest", interval_text(mc.get("shortest_interval"), d, unit)),
              (f"{p} GUM interval y ± U", interval_text(mc.get("gum_interval"), d, unit)),
              ("differences d_low, d_high; tolerance δ",
               f"{num(mc.get('d_low'), 2)} {unit}, {num(mc.get('d_high'), 2)} {unit}; "
               f"δ = {num(mc.get('tolerance'), 2)} {unit}"),
+             ("Monte Carlo numerical tolerance (target δ/5)",
+              f"± {num(mc.get('numerical_tolerance'), 2)} {unit} (target {num(mc.get('tolerance_target'), 2)} "
+              f"{unit}, JCGM 101 8.2)"),
              ("verdict (JCGM 101 clause 8)", coloured(verdict, agrees if isinstance(agrees, bool) else None))]
-    if mc.get("warning"):
-        facts.append(("warning", coloured(str(mc["warning"]), False)))
+    for key in ("warning", "moments_note"):
+        if mc.get(key):
+            facts.append(("warning" if key == "warning" else "moments", coloured(str(mc[key]), False)))
     adaptive = mc.get("adaptive")
     if isinstance(adaptive, dict) and adaptive:
         facts.append(("adaptive procedure (JCGM 101 7.9)",
@@ -168,6 +174,14 @@ def monte_carlo_for_result(result: dict) -> list:
                                 "the coverage intervals."))
     out += _mc_shares(mc, result)
     return out
+
+
+def _mean_and_u(mc: dict, fixed, unit: str) -> str:
+    """Mean and u, or why they are not given (no finite mean or variance: see moments_note)."""
+    if mc.get("standard_uncertainty") is None:
+        mean = fixed(mc.get("mean")) if mc.get("mean") is not None else "no mean"
+        return f"{mean}; no standard uncertainty (the output has no finite variance)"
+    return f"{fixed(mc.get('mean'))}, {num(mc.get('standard_uncertainty'), 3)} {unit}"
 
 
 SMALL_GROUP = 1e-3  # groups below 0.1 % by both evaluations are summed in one line

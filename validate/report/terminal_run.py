@@ -105,12 +105,19 @@ def _monte_carlo_lines(mc: dict, decimals: int) -> list[Printable]:
     def ends(pair) -> str:
         return interval(pair, decimals, missing=MISSING)
 
-    verdict = (f"[green]agrees[/] with Monte Carlo (ends within {mc['tolerance']:.1g})" if mc["agrees_with_gum"]
-               else f"[yellow]differs[/] from Monte Carlo (an end off by more than {mc['tolerance']:.1g})")
+    verdict = {"agrees": f"[green]agrees[/] with Monte Carlo (ends within {mc['tolerance']:.1g})",
+               "differs": f"[yellow]differs[/] from Monte Carlo (an end off by more than {mc['tolerance']:.1g})",
+               }.get(mc["gum_check"], f"[yellow]undecided[/] against Monte Carlo (an end within noise of "
+                                      f"{mc['tolerance']:.1g})")
     lines: list[Printable] = [
         Line(f"  Monte Carlo  {ends(mc['interval'])}, shortest {ends(mc['shortest_interval'])}, "
              f"{mc['trials']:,} trials"),
         Line(f"  GUM interval {ends(mc['gum_interval'])} {verdict}, JCGM 101 clause 8")]
+    lines.append(Line(f"  d_low {mc['d_low']:.2g}, d_high {mc['d_high']:.2g}, delta {mc['tolerance']:.2g}; "
+                      f"Monte Carlo ends to +/-{mc['numerical_tolerance']:.2g} (target delta/5 = "
+                      f"{mc['tolerance_target']:.2g})"))
+    if mc.get("moments_note"):
+        lines.append(Line(f"  [yellow]note[/] {escape(mc['moments_note'])}", soft_wrap=True))
     if mc.get("warning"):
         lines.append(Line(f"  [yellow]warning[/] {escape(mc['warning'])}", soft_wrap=True))
     elif mc.get("invalid_trials"):
