@@ -8,6 +8,8 @@ burette delivery is the difference of two readings.
 
 from __future__ import annotations
 
+from dataclasses import replace
+
 from validate.inputs.items import Balance, Burette, Volumetric
 from validate.inputs.schema import Method
 from validate.inputs.values import Delivery
@@ -18,14 +20,23 @@ TEMPERATURE = "laboratory temperature"
 
 
 class SourceSet:
-    """The model's sources by name. Adding a name twice returns the first object:
-    that identity is what correlates every use of one item or solution."""
+    """The model's sources by name. Adding a name twice keeps the first source:
+    that identity is what correlates every use of one item or solution.
+
+    `quantity` names the input quantity the source acts through (default: the source itself).
+    A source added for two different quantities becomes a quantity of its own: it is an input
+    shared by them, and ranking it under one of them would hide the correlation."""
 
     def __init__(self):
         self.sources: dict[str, Source] = {}
 
-    def add(self, source: Source) -> str:
-        self.sources.setdefault(source.name, source)
+    def add(self, source: Source, quantity: str = "") -> str:
+        label = quantity or source.name
+        existing = self.sources.get(source.name)
+        if existing is None:
+            self.sources[source.name] = replace(source, quantity=label)
+        elif existing.quantity != label:
+            self.sources[source.name] = replace(existing, quantity=source.name)
         return source.name
 
 
@@ -64,10 +75,11 @@ def volume_term(ss: SourceSet, method: Method, delivery: Delivery, step: str, us
     """
     item = method.item_of(delivery.item, Volumetric)
     volume = delivery.volume
-    cal = ss.add(_offset(item))
-    temp = ss.add(temperature_source(method, step))
+    quantity = f"{item.id}: volume ({use})"
+    cal = ss.add(_offset(item), quantity)
+    temp = ss.add(temperature_source(method, step), quantity)
     alpha = method.settings.expansion_coefficient
-    terms = _per_use_terms(ss, item, step, use) if with_repeatability else []
+    terms = _per_use_terms(ss, item, step, use, quantity) if with_repeatability else []
 
     def term(x):
         v = volume + x[cal] + volume * alpha * x[temp]
@@ -78,38 +90,41 @@ def volume_term(ss: SourceSet, method: Method, delivery: Delivery, step: str, us
     return term
 
 
-def _per_use_terms(ss: SourceSet, item: Volumetric, step: str, use: str) -> list[tuple[float, str]]:
+def _per_use_terms(ss: SourceSet, item: Volumetric, step: str, use: str,
+                   quantity: str) -> list[tuple[float, str]]:
     """(sign, source name) of the random terms of one use: a burette delivery is the difference
     of two readings of its scale; any other item carries its repeatability per use."""
     match item:
         case Burette():
             return [(sign, ss.add(rectangular(
                 f"{item.id}: reading at {end} ({use})", 0.0, item.reading, step=step, equipment=item.id,
-                provenance=f"one reading within +/-{item.reading / ML:.3g} mL", unit="mL", display_factor=ML)))
-                for sign, end in ((-1.0, "start"), (1.0, "end"))]
+                provenance=f"one reading within +/-{item.reading / ML:.3g} mL", unit="mL", display_factor=ML),
+                quantity)) for sign, end in ((-1.0, "start"), (1.0, "end"))]
         case _ if item.repeatability > 0:
             return [(1.0, ss.add(Source(
                 f"{item.id}: repeatability ({use})", 0.0, item.repeatability, "normal", step=step,
                 equipment=item.id, provenance=f"standard deviation {item.repeatability / ML:.3g} mL per use; "
-                f"{item.provenance}", unit="mL", display_factor=ML)))]
+                f"{item.provenance}", unit="mL", display_factor=ML), quantity))]
         case _:
             return []
 
 
 def balance_terms(ss: SourceSet, method: Method, balance_id: str, use: str, step: str) -> list[str]:
-    """Sources of one weighing: the balance's linearity (shared) and repeatability (per use)."""
+    """Sources of one weighing: the balance's linearity (shared) and repeatability (per use),
+    both of the quantity `USE: mass` (the name the weighed mass's own source carries)."""
     item = method.item_of(balance_id, Balance)
+    quantity = f"{use}: mass"
     names = []
     if item.linearity > 0:
         names.append(ss.add(rectangular(f"{item.id}: linearity", 0.0, item.linearity,
                                         step="equipment calibration", equipment=item.id,
                                         provenance=f"+/-{item.linearity * 1e6:.3g} mg; {item.provenance}",
-                                        unit="mg", display_factor=1e-6)))
+                                        unit="mg", display_factor=1e-6), quantity))
     if item.repeatability > 0:
         names.append(ss.add(Source(f"{item.id}: repeatability ({use})", 0.0, item.repeatability, "normal",
                                    step=step, equipment=item.id,
                                    provenance=f"standard deviation {item.repeatability * 1e6:.3g} mg; "
-                                   f"{item.provenance}", unit="mg", display_factor=1e-6)))
+                                   f"{item.provenance}", unit="mg", display_factor=1e-6), quantity))
     return names
 
 

@@ -91,6 +91,8 @@ class SourceEntry(RecordPart):
     display_factor: float
     trapezoid_d: float
     dof_group: str
+    quantity: str = described("the input quantity the source belongs to (a delivered volume, a mass); a "
+                              "source shared by several quantities is a quantity of its own")
     value_in_unit: float
     u_in_unit: float
 
@@ -207,7 +209,7 @@ class MonteCarloResult(RecordPart):
 
 @dataclass(frozen=True, kw_only=True)
 class ResultEntry(RecordPart):
-    """One result with its GUM uncertainty, its budget by step and by equipment, and Monte Carlo."""
+    """One result with its GUM uncertainty, its budget by step, equipment and input quantity, and Monte Carlo."""
 
     key: ResultKey = described("what the result is (kind) and its sample or point (id); find results by it")
     name: str = described("label for people; may change with the wording, do not match on it")
@@ -220,6 +222,8 @@ class ResultEntry(RecordPart):
     effective_dof: float | None = described("Welch-Satterthwaite (GUM G.4.1); null: infinite")
     budget_by_step: tuple[GroupShare, ...]
     budget_by_equipment: tuple[GroupShare, ...]
+    budget_by_quantity: tuple[GroupShare, ...] = described("by input quantity of the measurement equation, "
+                                                           "its terms combined first (CG4's presentation)")
     sample: str | None
     flags: tuple[str, ...]
     monte_carlo: MonteCarloResult | None = omitted_when_none("left out when Monte Carlo was not run")

@@ -89,11 +89,24 @@ def _group_tables(result: dict, unit: str) -> list:
     return [pair]
 
 
+def _quantity_table(result: dict, unit: str) -> list:
+    """The budget by input quantity, each quantity's terms combined first (CG4's presentation)."""
+    quantities = result.get("budget_by_quantity") or []
+    if not quantities:
+        return []
+    rows = [[g.get("group", DASH), num(g.get("contribution"), 3), pct(g.get("share"))] for g in quantities]
+    return [data_table(["input quantity", f"u / {unit}", "share"], rows, [110, 30, 30], numeric={1, 2}),
+            para("By input quantity of the measurement equation: each quantity's terms (a volume's "
+                 "calibration, repeatability and temperature) combined first, as EURACHEM/CITAC CG4 "
+                 "presents a budget. A source shared by several quantities (one temperature, one "
+                 "item's calibration used twice) stands as a quantity of its own.", "note")]
+
+
 def budget_for_result(record: dict, result: dict) -> list:
     unit = result.get("unit", "")
     rows = _budget_rows(record, result["name"])
     return (_result_lead(result) + _source_table(rows, unit) + _share_figure(rows, result)
-            + _group_tables(result, unit))
+            + _quantity_table(result, unit) + _group_tables(result, unit))
 
 
 BUDGET_LEAD = ("Each source's standard uncertainty u(x_i), its sensitivity coefficient "

@@ -130,6 +130,10 @@ def _budget_lines(record: dict, result: dict, top: int) -> list[Printable]:
     lines: list[Printable] = [Line("  largest sources of uncertainty:")]
     lines += [Line(f"    {row['share']:6.1%}  {escape(row['source'])}  [dim]({escape(row.get('step') or '-')})[/]")
               for row in rows[:top]]
+    quantities = result.get("budget_by_quantity") or []
+    if quantities:
+        lines.append(Line("  by input quantity: " + ", ".join(f"{escape(g['group'])} {g['share']:.0%}"
+                                                              for g in quantities[:3]), soft_wrap=True))
     steps = result.get("budget_by_step") or []
     lines.append(Line("  by step: " + ", ".join(f"{escape(g['group'])} {g['share']:.0%}" for g in steps[:3])))
     return lines
