@@ -20,7 +20,7 @@ from validate.record.blocks import AdviceBlock, EquilibriumBlock
 from validate.record.blocks_validation import ValidationBlock, ValidationSettingsEntry
 from validate.record.tree import RecordPart, described, omitted_when_none
 
-SCHEMA_VERSION = "1.1"
+SCHEMA_VERSION = "2.0"
 
 
 @dataclass(frozen=True, kw_only=True)

@@ -168,14 +168,7 @@ def monte_carlo_for_result(result: dict) -> list:
               f"± {num(mc.get('numerical_tolerance'), 2)} {unit} (target {num(mc.get('tolerance_target'), 2)} "
               f"{unit}, JCGM 101 8.2)"),
              ("verdict (JCGM 101 clause 8)", coloured(verdict, agrees if isinstance(agrees, bool) else None))]
-    for key in ("warning", "moments_note"):
-        if mc.get(key):
-            facts.append(("warning" if key == "warning" else "moments", coloured(str(mc[key]), False)))
-    adaptive = mc.get("adaptive")
-    if isinstance(adaptive, dict) and adaptive:
-        facts.append(("adaptive procedure (JCGM 101 7.9)",
-                      "; ".join(f"{k.replace('_', ' ')} {num(v) if is_number(v) else v}"
-                                for k, v in adaptive.items() if not isinstance(v, (dict, list)))))
+    facts += _mc_notes(mc)
     out = [CondPageBreak(110 * mm), heading(result["name"], 2), key_value_table(facts, (62, 112))]
     hist = mc.get("histogram") or {}
     if (hist.get("edges") and hist.get("counts") and is_number(result.get("value"))
@@ -187,6 +180,20 @@ def monte_carlo_for_result(result: dict) -> list:
                                 "the coverage intervals."))
     out += _mc_shares(mc, result)
     return out
+
+
+def _mc_notes(mc: dict) -> list[tuple[str, object]]:
+    """Warnings, the note on moments that do not exist, and the adaptive procedure's test."""
+    facts: list[tuple[str, object]] = []
+    for key in ("warning", "moments_note"):
+        if mc.get(key):
+            facts.append(("warning" if key == "warning" else "moments", coloured(str(mc[key]), False)))
+    adaptive = mc.get("adaptive")
+    if isinstance(adaptive, dict) and adaptive:
+        facts.append(("adaptive procedure (JCGM 101 7.9)",
+                      "; ".join(f"{k.replace('_', ' ')} {num(v) if is_number(v) else v}"
+                                for k, v in adaptive.items() if not isinstance(v, (dict, list)))))
+    return facts
 
 
 def _mean_and_u(mc: dict, fixed, unit: str) -> str:
