@@ -18,7 +18,13 @@ from statsmodels.stats.anova import anova_lm
 from uncertainties import ufloat
 
 from validate.validation.criteria import DEFAULTS, evaluate_criteria
-from validate.validation.precision import intermediate_precision, recovery, repeatability, scatter_consistency
+from validate.validation.precision import (
+    intermediate_precision,
+    recovery,
+    repeatability,
+    scatter_consistency,
+    within_series_groups,
+)
 from validate.validation.window import OPTIMUM_ABSORBANCE, absorbance_window_flags, error_curve, relative_error_factor
 
 # ---- repeatability and intermediate precision ---------------------------------------------
@@ -61,6 +67,23 @@ def test_intermediate_precision_anova_matches_statsmodels():
     assert 2 <= ip.intermediate_dof <= ip.n - 1
 
 
+def test_repeatability_is_pooled_within_series():
+    # ISO 5725-3:1994 (from memory): s_r^2 is the within-series mean square of the one-way
+    # analysis of variance, MS_within; readings of one sample on different days are not one group.
+    values = [v for vs in DAYS.values() for v in vs]
+    labels = [d for d, vs in DAYS.items() for _ in vs]
+    rep = repeatability(within_series_groups(values, labels))
+    ip = intermediate_precision(values, labels)
+    assert rep.sd == pytest.approx(ip.repeatability_sd, rel=1e-12)
+    assert rep.dof == len(values) - len(DAYS) and rep.groups == len(DAYS)
+    pooled_as_one = repeatability(values)  # the day effect counted as repeatability
+    assert pooled_as_one.sd > 1.3 * rep.sd
+    # without series labels the readings form one group
+    assert within_series_groups([1.0, 2.0, 3.0]) == [[1.0, 2.0, 3.0]]
+    with pytest.raises(ValueError, match="series labels"):
+        within_series_groups([1.0, 2.0], ["a"])
+
+
 def test_intermediate_precision_unbalanced_n0_and_no_day_effect():
     # n_i = 2, 3, 4: n0 = (9 - (4 + 9 + 16)/9)/2 = (9 - 3.2222)/2 = 2.8889 (ISO 5725-2)
     ip = intermediate_precision([[1.0, 1.2], [1.1, 0.9, 1.0], [1.05, 0.95, 1.0, 1.1]])
@@ -70,17 +93,28 @@ def test_intermediate_precision_unbalanced_n0_and_no_day_effect():
 
 
 def test_recovery_and_en_by_hand():
-    # x = 10.2 (u 0.10), X = 10.0 (u 0.05), k = 2:
-    # U = 2 sqrt(0.01 + 0.0025) = 0.22361; E_n = 0.2 / 0.22361 = 0.8944 (ISO 13528)
-    r = recovery(10.2, 0.10, 10.0, 0.05)
+    # x = 10.2 (U 0.20), X = 10.0 (U 0.10), both at k = 2:
+    # sqrt(0.04 + 0.01) = 0.22361; E_n = 0.2 / 0.22361 = 0.8944 (ISO 13528)
+    r = recovery(10.2, 0.10, 10.0, 0.05, expanded_measured=0.20, expanded_reference=0.10)
     assert r.en_number == pytest.approx(0.2 / (2 * math.sqrt(0.0125)), rel=1e-12)
     assert r.en_number == pytest.approx(0.8944, abs=1e-4)
     assert r.satisfactory and r.recovery_percent == pytest.approx(102.0)
     # u(R) against the `uncertainties` package (first-order GUM propagation)
     ref = 100 * ufloat(10.2, 0.10) / ufloat(10.0, 0.05)
     assert r.recovery_u_percent == pytest.approx(ref.std_dev, rel=1e-12)
-    bad = recovery(10.6, 0.10, 10.0, 0.05)
+    bad = recovery(10.6, 0.10, 10.0, 0.05, expanded_measured=0.20, expanded_reference=0.10)
     assert not bad.satisfactory and "|E_n| > 1" in bad.verdict
+
+
+def test_en_takes_each_expanded_uncertainty_as_stated():
+    # ISO 13528:2015, 9.7 and ISO/IEC 17043:2010, B.3.1.3 (from memory):
+    # E_n = (x - X)/sqrt(U_x^2 + U_ref^2). A result with few degrees of freedom has k = 2.57
+    # (t, nu = 5): U_x = 2.57 x 0.10 = 0.257; the reference's certificate states U = 0.10 (k = 2).
+    # E_n = 0.2/sqrt(0.257^2 + 0.10^2) = 0.7252, not 0.2/(2.57 sqrt(0.01 + 0.0025)) = 0.6961.
+    r = recovery(10.2, 0.10, 10.0, 0.05, expanded_measured=0.257, expanded_reference=0.10)
+    assert r.en_number == pytest.approx(0.2 / math.hypot(0.257, 0.10), rel=1e-12)
+    assert r.en_number == pytest.approx(0.7252, abs=1e-4)
+    assert r.reference_coverage_factor == pytest.approx(2.0)
 
 
 def test_scatter_consistency():

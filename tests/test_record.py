@@ -46,7 +46,7 @@ def test_the_file_written_is_exactly_the_tree_in_json_form(filed, name):
     run, folder = filed[name]
     written = _written(folder)
     assert written == run.typed_record.to_dict() == run.record
-    assert written["schema_version"] == SCHEMA_VERSION == "1.1"  # 1.1: inputs[].role, method_uncertainty, verdict added
+    assert written["schema_version"] == SCHEMA_VERSION == "2.0"
 
 
 @pytest.mark.parametrize("name", DEMO_NAMES)
@@ -160,7 +160,7 @@ def test_both_demo_records_are_valid_against_the_schema(filed, name):
     lambda r: r["results"][0].update(value="0.25"),  # wrong type
     lambda r: r["results"][0].pop("key"),  # missing key
     lambda r: r.pop("schema_version"),
-    lambda r: r.update(schema_version="2.0"),  # a layout this version cannot read
+    lambda r: r.update(schema_version="3.0"),  # a layout this version cannot read
     lambda r: r["budget"][0].update(share=None),  # a number that must be there
     lambda r: r["results"][0]["key"].update(id=3),
 ])

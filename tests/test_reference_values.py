@@ -35,6 +35,21 @@ def test_cg4_example_a1_through_the_method_file():
     assert volume_rel == pytest.approx(6.6e-4, rel=0.01)
 
 
+def test_cg4_example_a1_ranks_the_volume_first_by_input_quantity():
+    # EURACHEM/CITAC CG4 (3rd ed.), Example A1 (from memory): the budget by input quantity,
+    # u(V)/V = 0.00066 (calibration, filling repeatability and temperature combined first)
+    # ahead of u(m)/m = 0.0005 and u(P)/P = 0.000058; the volume is the dominant quantity.
+    run = api.analyse(REFERENCE / "cg4_a1" / "method.toml", trials=None, advice=False)
+    (result,) = run.record["results"]
+    quantities = result["budget_by_quantity"]
+    assert [g["group"] for g in quantities] == ["flask_100: volume (cadmium)", "cadmium: mass", "cadmium: purity"]
+    relative = [g["contribution"] / result["value"] for g in quantities]
+    assert relative == pytest.approx([6.6e-4, 5.0e-4, 5.8e-5], rel=0.02)
+    assert sum(g["share"] for g in quantities) == pytest.approx(1.0, rel=1e-12)
+    # by single source the mass ranks first: the grouping is what puts the volume ahead
+    assert run.results[0].contributions[0].source == "cadmium: mass"
+
+
 NORRIS_CERTIFIED = {  # NIST StRD, linear regression dataset "Norris", certified values
     "B0": -0.262323073774029, "sd_B0": 0.232818234301152, "B1": 1.00211681802045,
     "sd_B1": 0.429796848199937e-03, "residual_sd": 0.884796396144373,

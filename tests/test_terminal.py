@@ -83,7 +83,8 @@ def _invented_result(**changes) -> dict:
 
 def test_a_result_with_flags_and_a_failed_monte_carlo_check():
     mc = {"interval": [0.12071, 0.12612], "shortest_interval": [0.12070, 0.12611], "trials": 100000,
-          "tolerance": 5e-6, "agrees_with_gum": False, "gum_interval": [0.12080, 0.12611],
+          "tolerance": 5e-6, "agrees_with_gum": False, "gum_check": "differs", "gum_interval": [0.12080, 0.12611],
+          "d_low": 9e-5, "d_high": 1e-5, "numerical_tolerance": 2e-6, "tolerance_target": 1e-6,
           "warning": "12 of 100000 trials (0.01%) gave no defined result", "invalid_trials": 12}
     result = _invented_result(flags=["below the LOQ"], monte_carlo=mc)
     record = {"results": [result], "budget": [
@@ -97,6 +98,8 @@ def test_a_result_with_flags_and_a_failed_monte_carlo_check():
     assert "differs from Monte Carlo (an end off by more than 5e-06)" in text
     assert "Monte Carlo  [0.12071, 0.12612], shortest [0.12070, 0.12611], 100,000 trials" in text
     assert "warning 12 of 100000 trials" in text
+    # JCGM 101 8.2 (from memory): d_low, d_high, delta and the Monte Carlo numerical tolerance shown
+    assert "d_low 9e-05, d_high 1e-05, delta 5e-06; Monte Carlo ends to +/-2e-06 (target delta/5 = 1e-06)" in text
     assert "balance [readability]" in text  # record text is escaped, not read as markup
     assert "not this one" not in text and "(-)" in text
     assert "by step: weighing 80%, dilution 20%" in text
@@ -176,3 +179,17 @@ def test_check_and_error_lines_escape_record_text():
     assert "read m.toml: 2 equipment items, 3 solutions, 4 samples, 9 uncertainty sources" in text
     assert "  - default: x" in text and "note n" in text
     assert _text([terminal.error_line("input error", "bad [key]")]).strip() == "input error bad [key]"
+
+
+def test_an_undecided_check_and_a_missing_variance_are_said_so():
+    # JCGM 101 8.2: a difference within Monte Carlo noise of delta is neither agreement nor
+    # disagreement; a t input with nu <= 2 leaves the output without a finite variance.
+    mc = {"interval": [0.12071, 0.12612], "shortest_interval": [0.12070, 0.12611], "trials": 100000,
+          "tolerance": 5e-6, "agrees_with_gum": None, "gum_check": "undecided", "gum_interval": [0.12071, 0.12611],
+          "d_low": 4.9e-6, "d_high": 1e-6, "numerical_tolerance": 2e-6, "tolerance_target": 1e-6,
+          "warning": None, "invalid_trials": 0, "standard_uncertainty": None,
+          "moments_note": "an input drawn from a t distribution with 1 degrees of freedom has no finite variance"}
+    text = _text(terminal.result_lines({"results": [], "budget": []}, _invented_result(monte_carlo=mc), 0))
+    assert "undecided against Monte Carlo" in text
+    assert "agrees with Monte Carlo" not in text and "differs from Monte Carlo" not in text
+    assert "no finite variance" in text

@@ -53,7 +53,6 @@ from validate.inputs.registers import RegisterEntry
 from validate.inputs.schema import AssayMethod, EquilibriumMethod, Method, NamedQuantity
 from validate.inputs.solutions import Diluted, Solution, deliveries_of
 from validate.inputs.values import Delivery
-from validate.metrology.equipment import tolerance_scale
 from validate.propagation.budget import grouped
 from validate.propagation.linear import LinearResult
 
@@ -247,8 +246,9 @@ def piston_candidates(method: Method, shares: Shares, entries: list[RegisterEntr
 
 
 def _relative_tolerance(item: Volumetric, volume: float) -> float:
-    """Maximum permissible error of one delivery relative to the volume (see volume_term)."""
-    return tolerance_scale(item, volume) * item.tolerance / volume
+    """Maximum permissible error of one delivery relative to the volume: the item's full
+    tolerance applies to every delivery (see validate.metrology.equipment.volume_term)."""
+    return item.tolerance / volume
 
 
 def _glass(entries: list[RegisterEntry], kind: type[Volumetric], item_class: str) -> list[RegisterEntry]:

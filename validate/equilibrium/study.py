@@ -156,7 +156,7 @@ def _combined_part(model: EquilibriumModel, comb, mc_comb, combined) -> dict:
         "expanded_uncertainty": comb.expanded_uncertainty, "coverage_factor": comb.coverage_factor,
         "coverage_probability": comb.coverage_probability,
         "interval": _interval(mc_comb), "shortest_interval": _interval(mc_comb, "shortest"),
-        "agrees_with_gum": mc_comb.validation.agrees if mc_comb else None,
+        "agrees_with_gum": mc_comb.check.agrees if mc_comb else None,
         "weights": list(model.weights or []),
         "excluded": [{"id": p, "reason": why} for p, why in model.excluded.items()],
         "consistency": _consistency(combined),

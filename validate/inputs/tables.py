@@ -167,8 +167,10 @@ def _type_b(t: Table, dims, positive, provenance: str) -> UncertainValue:
                       fix="give dof = n - 1 for n readings, or the degrees of freedom the certificate states")
     if spread_key == "half_width":
         return _from_half_width(t, value, unit, spread, dist or "rectangular", dof, provenance)
+    k = None
     if spread_key == "expanded_uncertainty":
-        u, dist = spread / _coverage_factor(t), dist or "normal"
+        k = _coverage_factor(t)
+        u, dist = spread / k, dist or "normal"
     else:
         u, dist = spread, dist or ("t" if math.isfinite(dof) else "normal")
     if dist == "t" and not math.isfinite(dof):
@@ -176,7 +178,7 @@ def _type_b(t: Table, dims, positive, provenance: str) -> UncertainValue:
     if dist in ("rectangular", "triangular", "trapezoid"):
         raise t.error(f"give a {dist} distribution by its `half_width`", spread_key,
                       fix=f"write half_width = ... instead of {spread_key}")
-    return UncertainValue(value, unit, u, dist, dof, provenance, "B")
+    return UncertainValue(value, unit, u, dist, dof, provenance, "B", coverage_factor=k)
 
 
 def _distribution_named(t: Table) -> str | None:

@@ -22,6 +22,7 @@ class UncertainValue:
     provenance: str = ""
     kind: str = "B"
     trapezoid_d: float = 0.0
+    coverage_factor: float | None = None  # k where the value was stated as U with k (U = k u)
 
 
 @dataclass(frozen=True)

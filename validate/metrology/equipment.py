@@ -8,7 +8,9 @@ burette delivery is the difference of two readings.
 
 from __future__ import annotations
 
-from validate.inputs.items import Balance, Burette, GraduatedPipette, Volumetric
+from dataclasses import replace
+
+from validate.inputs.items import Balance, Burette, Volumetric
 from validate.inputs.schema import Method
 from validate.inputs.values import Delivery
 from validate.metrology.sources import Source, rectangular, triangular
@@ -18,14 +20,23 @@ TEMPERATURE = "laboratory temperature"
 
 
 class SourceSet:
-    """The model's sources by name. Adding a name twice returns the first object:
-    that identity is what correlates every use of one item or solution."""
+    """The model's sources by name. Adding a name twice keeps the first source:
+    that identity is what correlates every use of one item or solution.
+
+    `quantity` names the input quantity the source acts through (default: the source itself).
+    A source added for two different quantities becomes a quantity of its own: it is an input
+    shared by them, and ranking it under one of them would hide the correlation."""
 
     def __init__(self):
         self.sources: dict[str, Source] = {}
 
-    def add(self, source: Source) -> str:
-        self.sources.setdefault(source.name, source)
+    def add(self, source: Source, quantity: str = "") -> str:
+        label = quantity or source.name
+        existing = self.sources.get(source.name)
+        if existing is None:
+            self.sources[source.name] = replace(source, quantity=label)
+        elif existing.quantity != label:
+            self.sources[source.name] = replace(existing, quantity=source.name)
         return source.name
 
 
@@ -44,18 +55,6 @@ def temperature_source(method: Method, step: str) -> Source:
                        f"volume expansion {s.expansion_coefficient:g} per K", unit="K")
 
 
-def tolerance_scale(item: Volumetric, volume: float) -> float:
-    """How much of the item's tolerance applies to a delivery of `volume`: volume / nominal for
-    burettes and graduated pipettes (their tolerance applies to the full scale), 1 otherwise (a
-    piston pipette's maximum permissible error applies in microlitres at every selected volume,
-    ISO 8655-2; a one-mark item only delivers its nominal)."""
-    match item:
-        case Burette() | GraduatedPipette():
-            return volume / item.nominal
-        case _:
-            return 1.0
-
-
 def volume_term(ss: SourceSet, method: Method, delivery: Delivery, step: str, use: str,
                 with_repeatability: bool = True):
     """A closure x -> delivered volume (m^3) for one use of an item in one step.
@@ -63,19 +62,27 @@ def volume_term(ss: SourceSet, method: Method, delivery: Delivery, step: str, us
     `with_repeatability=False` leaves out the per-use random terms (repeatability,
     burette readings) where the calibration line's observed scatter covers them.
 
-    V = V_selected + scale * offset + random terms of the use + V_selected * alpha * dT,
-    scale from `tolerance_scale`.
+    V = V_selected + offset + random terms of the use + V_selected * alpha * dT.
+
+    The offset is the item's one calibration source at its full tolerance, for every kind:
+    a one-mark item delivers only its nominal; a piston pipette's maximum permissible error
+    applies at every selected volume (ISO 8655-2, as the register states it); a burette's
+    or graduated pipette's maximum permissible error applies to any volume delivered on its
+    scale, not to the full scale alone (ISO 385, ISO 835; from memory), so a 1 mL delivery
+    from a 25 mL burette carries the whole tolerance (CG4's titration examples take the
+    burette tolerance as it is, from memory). Every delivery of one item shares the offset:
+    see docs/design.md, "Burette deliveries as two readings", for why.
     """
     item = method.item_of(delivery.item, Volumetric)
     volume = delivery.volume
-    scale = tolerance_scale(item, volume)
-    cal = ss.add(_offset(item))
-    temp = ss.add(temperature_source(method, step))
+    quantity = f"{item.id}: volume ({use})"
+    cal = ss.add(_offset(item), quantity)
+    temp = ss.add(temperature_source(method, step), quantity)
     alpha = method.settings.expansion_coefficient
-    terms = _per_use_terms(ss, item, step, use) if with_repeatability else []
+    terms = _per_use_terms(ss, item, step, use, quantity) if with_repeatability else []
 
     def term(x):
-        v = volume + scale * x[cal] + volume * alpha * x[temp]
+        v = volume + x[cal] + volume * alpha * x[temp]
         for sign, name in terms:
             v = v + sign * x[name]
         return v
@@ -83,38 +90,41 @@ def volume_term(ss: SourceSet, method: Method, delivery: Delivery, step: str, us
     return term
 
 
-def _per_use_terms(ss: SourceSet, item: Volumetric, step: str, use: str) -> list[tuple[float, str]]:
+def _per_use_terms(ss: SourceSet, item: Volumetric, step: str, use: str,
+                   quantity: str) -> list[tuple[float, str]]:
     """(sign, source name) of the random terms of one use: a burette delivery is the difference
     of two readings of its scale; any other item carries its repeatability per use."""
     match item:
         case Burette():
             return [(sign, ss.add(rectangular(
                 f"{item.id}: reading at {end} ({use})", 0.0, item.reading, step=step, equipment=item.id,
-                provenance=f"one reading within +/-{item.reading / ML:.3g} mL", unit="mL", display_factor=ML)))
-                for sign, end in ((-1.0, "start"), (1.0, "end"))]
+                provenance=f"one reading within +/-{item.reading / ML:.3g} mL", unit="mL", display_factor=ML),
+                quantity)) for sign, end in ((-1.0, "start"), (1.0, "end"))]
         case _ if item.repeatability > 0:
             return [(1.0, ss.add(Source(
                 f"{item.id}: repeatability ({use})", 0.0, item.repeatability, "normal", step=step,
                 equipment=item.id, provenance=f"standard deviation {item.repeatability / ML:.3g} mL per use; "
-                f"{item.provenance}", unit="mL", display_factor=ML)))]
+                f"{item.provenance}", unit="mL", display_factor=ML), quantity))]
         case _:
             return []
 
 
 def balance_terms(ss: SourceSet, method: Method, balance_id: str, use: str, step: str) -> list[str]:
-    """Sources of one weighing: the balance's linearity (shared) and repeatability (per use)."""
+    """Sources of one weighing: the balance's linearity (shared) and repeatability (per use),
+    both of the quantity `USE: mass` (the name the weighed mass's own source carries)."""
     item = method.item_of(balance_id, Balance)
+    quantity = f"{use}: mass"
     names = []
     if item.linearity > 0:
         names.append(ss.add(rectangular(f"{item.id}: linearity", 0.0, item.linearity,
                                         step="equipment calibration", equipment=item.id,
                                         provenance=f"+/-{item.linearity * 1e6:.3g} mg; {item.provenance}",
-                                        unit="mg", display_factor=1e-6)))
+                                        unit="mg", display_factor=1e-6), quantity))
     if item.repeatability > 0:
         names.append(ss.add(Source(f"{item.id}: repeatability ({use})", 0.0, item.repeatability, "normal",
                                    step=step, equipment=item.id,
                                    provenance=f"standard deviation {item.repeatability * 1e6:.3g} mg; "
-                                   f"{item.provenance}", unit="mg", display_factor=1e-6)))
+                                   f"{item.provenance}", unit="mg", display_factor=1e-6), quantity))
     return names
 
 

@@ -47,6 +47,11 @@ class Source:
     # count once (Welch-Satterthwaite on the group's sum) and Monte Carlo draws them from
     # one multivariate t distribution (a shared chi-square factor per trial).
     dof_group: str = ""
+    # The input quantity of the measurement equation the source belongs to (a delivered volume,
+    # a mass): its terms are combined first and ranked as that quantity (CG4's presentation).
+    # A source acting through several quantities (one temperature, one pipette's calibration)
+    # is a quantity of its own. Set by SourceSet.add.
+    quantity: str = ""
 
     def __post_init__(self):
         if self.distribution not in DISTRIBUTIONS:

@@ -1,4 +1,4 @@
-"""Uncertainty budgets: ranked by source, and grouped by step and by equipment item.
+"""Uncertainty budgets: ranked by source, and grouped by step, equipment item and input quantity.
 
 Sources are independent by construction (correlation comes from sharing one
 source), so a group's variance is the sum of its members' squared
@@ -33,6 +33,21 @@ def grouped(result: LinearResult, key: str) -> list[GroupShare]:
     variance = result.standard_uncertainty**2
     groups = [GroupShare(g, math.sqrt(v), v / variance if variance > 0 else 0.0) for g, v in totals.items()]
     return sorted(groups, key=lambda g: (-round(g.share, 12), g.group))  # round-off must not reorder
+
+
+def grouped_by_quantity(result: LinearResult, quantity_of: dict[str, str]) -> list[GroupShare]:
+    """Variance shares summed by input quantity of the measurement equation (a flask volume:
+    calibration, repeatability, temperature), as CG4 presents a budget (EURACHEM/CITAC CG4,
+    3rd ed., Example A1, from memory). `quantity_of` maps a source to its quantity; a source
+    shared by several quantities is a quantity of its own, so the groups stay independent
+    and their shares add up to one."""
+    totals: dict[str, float] = {}
+    for row in result.contributions:
+        name = quantity_of.get(row.source) or row.source
+        totals[name] = totals.get(name, 0.0) + row.contribution**2
+    variance = result.standard_uncertainty**2
+    groups = [GroupShare(g, math.sqrt(v), v / variance if variance > 0 else 0.0) for g, v in totals.items()]
+    return sorted(groups, key=lambda g: (-round(g.share, 12), g.group))
 
 
 def budget_rows(results: list[LinearResult]) -> list[dict]:

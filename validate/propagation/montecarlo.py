@@ -12,6 +12,7 @@ counted and reported, never dropped silently (docs/design.md, "Monte Carlo").
 
 from __future__ import annotations
 
+import math
 import secrets
 from dataclasses import dataclass
 
@@ -19,24 +20,24 @@ import numpy as np
 
 from validate.model.assay import Model
 from validate.propagation.distributions import draw_many
+from validate.propagation.gumcheck import GumCheck, check_gum
 from validate.propagation.linear import LinearResult
 from validate.propagation.mcstats import (
     AdaptiveCheck,
-    GumValidation,
     HistogramData,
     McSummary,
     adaptive_batch_size,
     adaptive_converged,
     histogram_data,
-    numerical_tolerance,
     summarise,
-    validate_gum,
 )
 
 CHUNK = 100_000  # trials evaluated together: large enough for numpy, small enough for memory
 MAX_ADAPTIVE_TRIALS = 10_000_000
 SHARE_TRIALS = 50_000  # trials per held-group run for the Monte Carlo shares (common random numbers)
 INVALID_WARNING = 0.001  # share of undefined trials above which a warning is shown
+MAX_CHECK_TRIALS = 10_000_000  # trial budget of the JCGM 101 8.2 comparison per output
+MAX_KEPT_VALUES = 40_000_000  # values kept over all outputs still being compared (320 MB)
 
 
 @dataclass(frozen=True)
@@ -44,11 +45,21 @@ class McResult:
     name: str
     seed: int
     summary: McSummary
-    validation: GumValidation
+    check: GumCheck  # JCGM 101 8.2, decided beyond Monte Carlo noise
     adaptive: AdaptiveCheck | None
     histogram: HistogramData
     shares_by_step: tuple[tuple[str, float], ...]
     shares_by_equipment: tuple[tuple[str, float], ...]
+    smallest_dof: float = math.inf  # least degrees of freedom of a t input that reaches the result
+
+    @property
+    def variance_exists(self) -> bool:
+        """A t input with nu <= 2 has no finite variance, so neither has the output (JCGM 101 6.4.9)."""
+        return self.smallest_dof > 2
+
+    @property
+    def mean_exists(self) -> bool:
+        return self.smallest_dof > 1
 
     @property
     def warning(self) -> str | None:
@@ -58,21 +69,41 @@ class McResult:
                     f"gave no defined result and are left out of the statistics")
         return None
 
+    @property
+    def moments_note(self) -> str | None:
+        """Why the standard uncertainty and the shares are left out, or why to distrust them."""
+        nu = self.smallest_dof
+        if nu <= 2:
+            return (f"an input drawn from a t distribution with {nu:g} degrees of freedom has no finite "
+                    "variance, so the output has none: the Monte Carlo standard uncertainty and the "
+                    "variance shares do not exist and are not reported; the coverage intervals stand")
+        if nu <= 4:
+            return (f"an input drawn from a t distribution with {nu:g} degrees of freedom (at most 4) has "
+                    "no finite fourth moment: the Monte Carlo standard uncertainty and the variance "
+                    "shares vary strongly between runs; rely on the coverage intervals")
+        return None
+
     def to_dict(self) -> dict:
-        s, v = self.summary, self.validation
+        s, c = self.summary, self.check
+        v = c.validation
+        shares = self.variance_exists
         return {
-            "trials": s.total_trials, "mean": s.mean, "standard_uncertainty": s.standard_deviation,
+            "trials": s.total_trials, "mean": s.mean if self.mean_exists else None,
+            "standard_uncertainty": s.standard_deviation if shares else None,
             "interval": [s.symmetric.low, s.symmetric.high],
             "shortest_interval": [s.shortest.low, s.shortest.high],
             "coverage_probability": s.p,
-            "agrees_with_gum": v.agrees, "invalid_trials": s.invalid_trials, "seed": self.seed,
+            "agrees_with_gum": c.agrees, "gum_check": c.verdict, "gum_check_note": c.explanation(),
+            "invalid_trials": s.invalid_trials, "seed": self.seed,
             "gum_interval": [v.gum_low, v.gum_high], "tolerance": v.delta,
             "d_low": v.d_low, "d_high": v.d_high,
+            "numerical_tolerance": c.numerical_tolerance, "tolerance_target": c.target,
             "adaptive": self.adaptive.to_dict() if self.adaptive else None,
-            "warning": self.warning,
+            "warning": self.warning, "moments_note": self.moments_note,
             "histogram": {"edges": list(self.histogram.edges), "counts": list(self.histogram.counts)},
-            "shares_by_step": [{"group": g, "share": x} for g, x in self.shares_by_step],
-            "shares_by_equipment": [{"group": g, "share": x} for g, x in self.shares_by_equipment],
+            "shares_by_step": [{"group": g, "share": x} for g, x in self.shares_by_step] if shares else [],
+            "shares_by_equipment": ([{"group": g, "share": x} for g, x in self.shares_by_equipment]
+                                    if shares else []),
         }
 
 
@@ -95,13 +126,16 @@ def evaluate_trials(model: Model, n: int, rng: np.random.Generator, hold: frozen
     return {k: np.broadcast_to(np.asarray(v, dtype=float), (n,)) for k, v in out.items()}
 
 
-def _fixed(model: Model, trials: int, rng, progress) -> dict[str, np.ndarray]:
-    values = {label: np.empty(trials) for label in model.result_labels}
+def _fixed(model: Model, trials: int, rng, progress, labels=None) -> dict[str, np.ndarray]:
+    """Output values of `trials` trials, kept for `labels` (every output when None)."""
+    labels = model.result_labels if labels is None else labels
+    values = {label: np.empty(trials) for label in labels}
     done = 0
     while done < trials:
         n = min(CHUNK, trials - done)
-        for label, arr in evaluate_trials(model, n, rng).items():
-            values[label][done:done + n] = arr
+        out = evaluate_trials(model, n, rng)
+        for label in labels:
+            values[label][done:done + n] = out[label]
         done += n
         progress(n)
     return values
@@ -163,6 +197,8 @@ def propagate_mc(model: Model, linear: list[LinearResult], trials: int | str = 1
         values, checks = _adaptive(model, p, rng, progress)
     else:
         values, checks = _fixed(model, int(trials), rng, progress), {}
+    gums = {gum.name: gum for gum in linear}
+    values, gum_checks = _checked(model, gums, values, p, rng, progress)
     n_shares = share_trials(trials)
     by_step = _shares(model, seed + 1, "step", progress, n_shares) if shares else {}
     by_item = _shares(model, seed + 1, "equipment", progress, n_shares) if shares else {}
@@ -170,17 +206,45 @@ def propagate_mc(model: Model, linear: list[LinearResult], trials: int | str = 1
     for gum in linear:
         arr = values[gum.name]
         summary = summarise(arr, p)
-        low, high = gum.value - gum.expanded_uncertainty, gum.value + gum.expanded_uncertainty
-        delta = numerical_tolerance(gum.standard_uncertainty, 2) if gum.standard_uncertainty > 0 else 0.0
-        check = validate_gum(gum.value, (low, high), (summary.symmetric.low, summary.symmetric.high), delta)
         # the histogram shows the central part: the 95 % interval widened by 60 % on each side
         low95, high95 = summary.symmetric.low, summary.symmetric.high
         spread = 0.6 * (high95 - low95)
         window = (low95 - spread, high95 + spread) if high95 > low95 else None
         histogram = histogram_data(arr, bins=80, value_range=window)
-        results.append(McResult(gum.name, seed, summary, check, checks.get(gum.name), histogram,
-                                tuple(by_step.get(gum.name, ())), tuple(by_item.get(gum.name, ()))))
+        results.append(McResult(gum.name, seed, summary, gum_checks[gum.name], checks.get(gum.name), histogram,
+                                tuple(by_step.get(gum.name, ())), tuple(by_item.get(gum.name, ())),
+                                smallest_t_dof(model, gum)))
     return results
+
+
+def smallest_t_dof(model: Model, gum: LinearResult) -> float:
+    """The least degrees of freedom of a t-distributed input that reaches the result."""
+    dofs = [model.sources[row.source].dof for row in gum.contributions
+            if row.contribution != 0 and model.sources[row.source].distribution == "t"]
+    return min(dofs, default=math.inf)
+
+
+def _check(gum: LinearResult, arr: np.ndarray, p: float) -> GumCheck:
+    finite = np.sort(arr[np.isfinite(arr)])
+    return check_gum(gum.value, gum.expanded_uncertainty, gum.standard_uncertainty, finite, p)
+
+
+def _checked(model: Model, gums: dict[str, LinearResult], values: dict[str, np.ndarray], p: float, rng,
+             progress) -> tuple[dict[str, np.ndarray], dict[str, GumCheck]]:
+    """JCGM 101 8.2 for every output; more trials (kept only for the outputs still open) while a
+    verdict is undecided or the Monte Carlo ends are not yet known to delta/5, within the budget."""
+    checks = {name: _check(gum, values[name], p) for name, gum in gums.items()}
+    total = min(arr.size for arr in values.values()) if values else 0
+    while True:
+        open_ = [name for name, c in checks.items() if not c.settled]
+        more = min(total, MAX_CHECK_TRIALS - total)
+        if not open_ or more <= 0 or len(open_) * (total + more) > MAX_KEPT_VALUES:
+            return values, checks
+        extra = _fixed(model, more, rng, progress, open_)
+        total += more
+        for name in open_:
+            values[name] = np.concatenate([values[name], extra[name]])
+            checks[name] = _check(gums[name], values[name], p)
 
 
 def expected_work(trials: int | str, model: Model, shares: bool = True) -> int:

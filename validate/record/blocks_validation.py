@@ -209,7 +209,10 @@ class TruenessEntry(RecordPart):
     u_measured: Number
     reference: Number
     u_reference: Number
-    coverage_factor: Number
+    expanded_measured: Number = described("U_x, the result's expanded uncertainty as stated")
+    expanded_reference: Number = described("U_ref, the reference's expanded uncertainty as stated")
+    reference_coverage_factor: Number = described("k of the reference: its certificate's, or 2 where "
+                                                  "it gives a standard uncertainty")
     recovery_percent: Number
     recovery_u_percent: Number
     en_number: Number

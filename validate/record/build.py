@@ -17,7 +17,7 @@ from validate.inputs.schema import AssayMethod, EquilibriumMethod, Method
 from validate.model.assay import Model
 from validate.model.equilibrium import EquilibriumModel
 from validate.model.keys import ResultKey
-from validate.propagation.budget import budget_rows, grouped
+from validate.propagation.budget import budget_rows, grouped, grouped_by_quantity
 from validate.propagation.linear import LinearResult
 from validate.propagation.montecarlo import McResult
 from validate.record.blocks import AdviceBlock, EquilibriumBlock
@@ -64,8 +64,9 @@ def build_record(method: Method, model: Model | EquilibriumModel, results: list[
     covariance); `advice` an AdviceReport; `trials` and `seed` those of the Monte Carlo run."""
     inputs = input_entries(method)
     validation, equilibrium = _stage_blocks(method, model, results, monte_carlo, combination)
+    quantity_of = {name: src.quantity for name, src in model.sources.items()}
     keys = dict(zip(model.result_labels, model.result_keys, strict=True))
-    entries = _results(results, monte_carlo, keys, validation)
+    entries = _results(results, monte_carlo, keys, validation, quantity_of)
     equipment = tuple(EquipmentEntry(id=i.id, kind=i.kind, item_class=i.item_class, provenance=i.provenance)
                       for i in method.items.values())
     return Record(
@@ -155,7 +156,7 @@ def _stage_blocks(method: Method, model: Model | EquilibriumModel, results: list
 
 
 def _results(results: list[LinearResult], monte_carlo: Sequence[McResult], keys: dict[str, ResultKey],
-             validation: ValidationBlock | None) -> tuple[ResultEntry, ...]:
+             validation: ValidationBlock | None, quantity_of: dict[str, str]) -> tuple[ResultEntry, ...]:
     flags = validation.range_flags if validation is not None else {}
     entries = []
     mc_by_name = {mc.name: mc for mc in monte_carlo}
@@ -167,6 +168,8 @@ def _results(results: list[LinearResult], monte_carlo: Sequence[McResult], keys:
             key=key, **r.to_dict(),
             budget_by_step=tuple(_group_shares(r, "step")),
             budget_by_equipment=tuple(_group_shares(r, "equipment")),
+            budget_by_quantity=tuple(GroupShare(group=g.group, contribution=g.contribution, share=g.share)
+                                     for g in grouped_by_quantity(r, quantity_of)),
             sample=sample,
             flags=tuple(flags.get(sample, ())) if sample is not None else (),
             monte_carlo=MonteCarloResult.from_dict(mc.to_dict(), f"results.{r.name}.monte_carlo") if mc else None))

@@ -22,7 +22,7 @@ from validate.record.blocks_validation import ValidationBlock, ValidationSetting
 from validate.record.blocks_verdict import Verdict
 from validate.record.tree import RecordPart, described, omitted_when_none
 
-SCHEMA_VERSION = "1.1"
+SCHEMA_VERSION = "2.0"
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -95,6 +95,8 @@ class SourceEntry(RecordPart):
     display_factor: float
     trapezoid_d: float
     dof_group: str
+    quantity: str = described("the input quantity the source belongs to (a delivered volume, a mass); a "
+                              "source shared by several quantities is a quantity of its own")
     value_in_unit: float
     u_in_unit: float
 
@@ -178,20 +180,32 @@ class MonteCarloResult(RecordPart):
     """One result by the Monte Carlo method (JCGM 101), checked against the GUM interval (clause 8)."""
 
     trials: int
-    mean: float
-    standard_uncertainty: float
+    mean: float | None = described("estimate (JCGM 101 7.6); null where the output has no mean (a t input "
+                                   "with nu <= 1)")
+    standard_uncertainty: float | None = described("JCGM 101 7.6; null where the output has no finite "
+                                                   "variance (a t input with nu <= 2): see moments_note")
     interval: tuple[float, ...] = described("probabilistically symmetric coverage interval [low, high]")
     shortest_interval: tuple[float, ...] = described("shortest coverage interval [low, high]")
     coverage_probability: float
-    agrees_with_gum: bool = described("the GUM interval agrees within the numerical tolerance")
+    agrees_with_gum: bool | None = described("JCGM 101 8.2 decided beyond Monte Carlo noise; null: undecided "
+                                             "within the trial budget (see gum_check)")
+    gum_check: str = described("agrees, differs or undecided (JCGM 101 8.2 with the numerical spread of the "
+                               "Monte Carlo interval's ends)")
+    gum_check_note: str
     invalid_trials: int
     seed: int
     gum_interval: tuple[float, ...]
-    tolerance: float
+    tolerance: float = described("delta, the numerical tolerance of the GUM u(y) (JCGM 101 7.9.2)")
     d_low: float
     d_high: float
+    numerical_tolerance: float = described("Monte Carlo numerical tolerance reached: the larger 95 % "
+                                           "half-width of the interval's ends")
+    tolerance_target: float = described("delta/5, the numerical tolerance the validating run should reach "
+                                        "(JCGM 101 8.2, from memory)")
     adaptive: AdaptiveCheck | None
     warning: str | None
+    moments_note: str | None = described("why the standard uncertainty or shares are left out or unreliable "
+                                         "(a t input with nu <= 4)")
     histogram: Histogram
     shares_by_step: tuple[MonteCarloShare, ...]
     shares_by_equipment: tuple[MonteCarloShare, ...]
@@ -199,7 +213,7 @@ class MonteCarloResult(RecordPart):
 
 @dataclass(frozen=True, kw_only=True)
 class ResultEntry(RecordPart):
-    """One result with its GUM uncertainty, its budget by step and by equipment, and Monte Carlo."""
+    """One result with its GUM uncertainty, its budget by step, equipment and input quantity, and Monte Carlo."""
 
     key: ResultKey = described("what the result is (kind) and its sample or point (id); find results by it")
     name: str = described("label for people; may change with the wording, do not match on it")
@@ -212,6 +226,8 @@ class ResultEntry(RecordPart):
     effective_dof: float | None = described("Welch-Satterthwaite (GUM G.4.1); null: infinite")
     budget_by_step: tuple[GroupShare, ...]
     budget_by_equipment: tuple[GroupShare, ...]
+    budget_by_quantity: tuple[GroupShare, ...] = described("by input quantity of the measurement equation, "
+                                                           "its terms combined first (CG4's presentation)")
     sample: str | None
     flags: tuple[str, ...]
     monte_carlo: MonteCarloResult | None = omitted_when_none("left out when Monte Carlo was not run")

@@ -89,11 +89,24 @@ def _group_tables(result: dict, unit: str) -> list:
     return [pair]
 
 
+def _quantity_table(result: dict, unit: str) -> list:
+    """The budget by input quantity, each quantity's terms combined first (CG4's presentation)."""
+    quantities = result.get("budget_by_quantity") or []
+    if not quantities:
+        return []
+    rows = [[g.get("group", DASH), num(g.get("contribution"), 3), pct(g.get("share"))] for g in quantities]
+    return [data_table(["input quantity", f"u / {unit}", "share"], rows, [110, 30, 30], numeric={1, 2}),
+            para("By input quantity of the measurement equation: each quantity's terms (a volume's "
+                 "calibration, repeatability and temperature) combined first, as EURACHEM/CITAC CG4 "
+                 "presents a budget. A source shared by several quantities (one temperature, one "
+                 "item's calibration used twice) stands as a quantity of its own.", "note")]
+
+
 def budget_for_result(record: dict, result: dict) -> list:
     unit = result.get("unit", "")
     rows = _budget_rows(record, result["name"])
     return (_result_lead(result) + _source_table(rows, unit) + _share_figure(rows, result)
-            + _group_tables(result, unit))
+            + _quantity_table(result, unit) + _group_tables(result, unit))
 
 
 BUDGET_LEAD = ("Each source's standard uncertainty u(x_i), its sensitivity coefficient "
@@ -130,9 +143,12 @@ def monte_carlo_for_result(result: dict) -> list:
     mc, unit = result["monte_carlo"], result.get("unit", "")
     d = mc_decimals(mc, result)
     agrees = mc.get("agrees_with_gum")
-    verdict = {True: "the GUM interval is validated: both end-point differences are within δ",
-               False: "the GUM interval is not validated: report the Monte Carlo interval",
-               None: "not evaluated"}[agrees if isinstance(agrees, bool) else None]
+    verdict = {"agrees": "the GUM interval is validated: both end-point differences are within δ, "
+                         "beyond Monte Carlo noise",
+               "differs": "the GUM interval is not validated: report the Monte Carlo interval",
+               "undecided": "undecided: an end-point difference lies within Monte Carlo noise of δ "
+                            "and the trial budget ran out; report the Monte Carlo interval"
+               }.get(str(mc.get("gum_check")), "not evaluated")
     p = pct(result.get("coverage_probability"), 0)
 
     def fixed(x):
@@ -141,22 +157,18 @@ def monte_carlo_for_result(result: dict) -> list:
     facts = [("trials (undefined results)", f"{num(mc.get('trials'))} ({mc.get('invalid_trials', 0)} "
               "undefined, counted and left out)"),
              ("random seed", mc.get("seed", DASH) if mc.get("seed") is not None else DASH),
-             ("mean, standard uncertainty", f"{fixed(mc.get('mean'))}, "
-              f"{num(mc.get('standard_uncertainty'), 3)} {unit}"),
+             ("mean, standard uncertainty", _mean_and_u(mc, fixed, unit)),
              (f"{p} interval, probabilistically symmetric", interval_text(mc.get("interval"), d, unit)),
              (f"{p} interval, shortest", interval_text(mc.get("shortest_interval"), d, unit)),
              (f"{p} GUM interval y ± U", interval_text(mc.get("gum_interval"), d, unit)),
              ("differences d_low, d_high; tolerance δ",
               f"{num(mc.get('d_low'), 2)} {unit}, {num(mc.get('d_high'), 2)} {unit}; "
               f"δ = {num(mc.get('tolerance'), 2)} {unit}"),
+             ("Monte Carlo numerical tolerance (target δ/5)",
+              f"± {num(mc.get('numerical_tolerance'), 2)} {unit} (target {num(mc.get('tolerance_target'), 2)} "
+              f"{unit}, JCGM 101 8.2)"),
              ("verdict (JCGM 101 clause 8)", coloured(verdict, agrees if isinstance(agrees, bool) else None))]
-    if mc.get("warning"):
-        facts.append(("warning", coloured(str(mc["warning"]), False)))
-    adaptive = mc.get("adaptive")
-    if isinstance(adaptive, dict) and adaptive:
-        facts.append(("adaptive procedure (JCGM 101 7.9)",
-                      "; ".join(f"{k.replace('_', ' ')} {num(v) if is_number(v) else v}"
-                                for k, v in adaptive.items() if not isinstance(v, (dict, list)))))
+    facts += _mc_notes(mc)
     out = [CondPageBreak(110 * mm), heading(result["name"], 2), key_value_table(facts, (62, 112))]
     hist = mc.get("histogram") or {}
     if (hist.get("edges") and hist.get("counts") and is_number(result.get("value"))
@@ -168,6 +180,28 @@ def monte_carlo_for_result(result: dict) -> list:
                                 "the coverage intervals."))
     out += _mc_shares(mc, result)
     return out
+
+
+def _mc_notes(mc: dict) -> list[tuple[str, object]]:
+    """Warnings, the note on moments that do not exist, and the adaptive procedure's test."""
+    facts: list[tuple[str, object]] = []
+    for key in ("warning", "moments_note"):
+        if mc.get(key):
+            facts.append(("warning" if key == "warning" else "moments", coloured(str(mc[key]), False)))
+    adaptive = mc.get("adaptive")
+    if isinstance(adaptive, dict) and adaptive:
+        facts.append(("adaptive procedure (JCGM 101 7.9)",
+                      "; ".join(f"{k.replace('_', ' ')} {num(v) if is_number(v) else v}"
+                                for k, v in adaptive.items() if not isinstance(v, (dict, list)))))
+    return facts
+
+
+def _mean_and_u(mc: dict, fixed, unit: str) -> str:
+    """Mean and u, or why they are not given (no finite mean or variance: see moments_note)."""
+    if mc.get("standard_uncertainty") is None:
+        mean = fixed(mc.get("mean")) if mc.get("mean") is not None else "no mean"
+        return f"{mean}; no standard uncertainty (the output has no finite variance)"
+    return f"{fixed(mc.get('mean'))}, {num(mc.get('standard_uncertainty'), 3)} {unit}"
 
 
 SMALL_GROUP = 1e-3  # groups below 0.1 % by both evaluations are summed in one line

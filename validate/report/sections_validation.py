@@ -275,7 +275,9 @@ def _trueness(v: dict) -> list:
         ("measured, u", f"{num(rec.get('measured'), 5)} {tu}, u = {num(rec.get('u_measured'), 3)} {tu}"),
         ("reference value, u",
          f"{num(rec.get('reference'), 5)} {tu}, u = {num(rec.get('u_reference'), 3)} {tu}"),
-        ("coverage factor k for E_n", num(rec.get("coverage_factor"), 3)),
+        ("expanded uncertainties for E_n",
+         f"U_x = {num(rec.get('expanded_measured'), 3)} {tu}, U_ref = {num(rec.get('expanded_reference'), 3)} "
+         f"{tu} (k_ref = {num(rec.get('reference_coverage_factor'), 3)}), each as stated"),
         ("recovery", f"{num(rec.get('recovery_percent'), 4)} % "
                      f"(u = {num(rec.get('recovery_u_percent'), 3)} %)"),
         ("E_n", num(rec.get("en_number"), 3)),

@@ -145,12 +145,19 @@ def _monte_carlo_lines(mc: dict, decimals: int) -> list[Printable]:
     def ends(pair) -> str:
         return interval(pair, decimals, missing=MISSING)
 
-    verdict = (f"[green]agrees[/] with Monte Carlo (ends within {mc['tolerance']:.1g})" if mc["agrees_with_gum"]
-               else f"[yellow]differs[/] from Monte Carlo (an end off by more than {mc['tolerance']:.1g})")
+    verdict = {"agrees": f"[green]agrees[/] with Monte Carlo (ends within {mc['tolerance']:.1g})",
+               "differs": f"[yellow]differs[/] from Monte Carlo (an end off by more than {mc['tolerance']:.1g})",
+               }.get(mc["gum_check"], f"[yellow]undecided[/] against Monte Carlo (an end within noise of "
+                                      f"{mc['tolerance']:.1g})")
     lines: list[Printable] = [
         Line(f"  Monte Carlo  {ends(mc['interval'])}, shortest {ends(mc['shortest_interval'])}, "
              f"{mc['trials']:,} trials"),
         Line(f"  GUM interval {ends(mc['gum_interval'])} {verdict}, JCGM 101 clause 8")]
+    lines.append(Line(f"  d_low {mc['d_low']:.2g}, d_high {mc['d_high']:.2g}, delta {mc['tolerance']:.2g}; "
+                      f"Monte Carlo ends to +/-{mc['numerical_tolerance']:.2g} (target delta/5 = "
+                      f"{mc['tolerance_target']:.2g})"))
+    if mc.get("moments_note"):
+        lines.append(Line(f"  [yellow]note[/] {escape(mc['moments_note'])}", soft_wrap=True))
     if mc.get("warning"):
         lines.append(Line(f"  [yellow]warning[/] {escape(mc['warning'])}", soft_wrap=True))
     elif mc.get("invalid_trials"):
@@ -163,6 +170,10 @@ def _budget_lines(record: dict, result: dict, top: int) -> list[Printable]:
     lines: list[Printable] = [Line("  largest sources of uncertainty:")]
     lines += [Line(f"    {row['share']:6.1%}  {escape(row['source'])}  [dim]({escape(row.get('step') or '-')})[/]")
               for row in rows[:top]]
+    quantities = result.get("budget_by_quantity") or []
+    if quantities:
+        lines.append(Line("  by input quantity: " + ", ".join(f"{escape(g['group'])} {g['share']:.0%}"
+                                                              for g in quantities[:3]), soft_wrap=True))
     steps = result.get("budget_by_step") or []
     lines.append(Line("  by step: " + ", ".join(f"{escape(g['group'])} {g['share']:.0%}" for g in steps[:3])))
     return lines

@@ -22,7 +22,13 @@ from validate.propagation.linear import LinearResult
 from validate.validation.criteria import evaluate_criteria
 from validate.validation.limits import range_flags
 from validate.validation.linearity import plain
-from validate.validation.precision import intermediate_precision, recovery, repeatability, scatter_consistency
+from validate.validation.precision import (
+    intermediate_precision,
+    recovery,
+    repeatability,
+    scatter_consistency,
+    within_series_groups,
+)
 from validate.validation.summary import ValidationSummary, validate_calibration
 from validate.validation.window import absorbance_window_flags
 
@@ -146,7 +152,8 @@ def validation_block(method: AssayMethod, model: Model, results: list[LinearResu
     fit = summary.fit
     samples, flags = _sample_entries(design, summary)
     window = absorbance_window_flags(design.every_reading(), *v.window)
-    rep_groups = [_in_concentration(fit, s.readings) for s in design.samples if s.count >= 2]
+    rep_groups = [group for s in design.samples
+                  for group in within_series_groups(_in_concentration(fit, s.readings), s.series) if len(group) >= 2]
     precision = repeatability(rep_groups) if rep_groups else None
     between_series = _intermediate(design, fit, cal.concentration_unit.text)
     consistency = scatter_consistency(fit.residual_sd, fit.dof, predicted_reading_sd(method, fit.slope))
@@ -198,8 +205,14 @@ def _trueness(method: AssayMethod, results: list[LinearResult]):
     index = [s.id for s in method.samples].index(v.reference_sample)
     result = results[index]
     factor = method.result.unit.factor
+    # each expanded uncertainty as stated (ISO 13528): the result's own U, the reference's U with
+    # its certificate's k; a reference given as a standard uncertainty is taken at k = 2 (common practice)
+    k_ref = ref.coverage_factor if ref.coverage_factor is not None else REFERENCE_K
     return recovery(result.value, result.standard_uncertainty, ref.value / factor, ref.u / factor,
-                    coverage_factor=result.coverage_factor)
+                    expanded_measured=result.expanded_uncertainty, expanded_reference=k_ref * ref.u / factor)
+
+
+REFERENCE_K = 2.0  # k for a reference value stated with a standard uncertainty only (common practice)
 
 
 def equilibrium_validation_block(model: EquilibriumModel) -> dict:

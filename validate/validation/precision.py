@@ -34,6 +34,18 @@ def _groups(values, groups=None) -> list[np.ndarray]:
     return out
 
 
+def within_series_groups(values, series=None) -> list[list[float]]:
+    """One sample's readings split into one group per series (day, analyst): repeatability is
+    the scatter within a series, so readings of different series never share a group (ISO
+    5725-3:1994, from memory; pooling across series would count the series effect in s_r).
+    Without series labels the readings form one group."""
+    values = [float(v) for v in values]
+    labels = list(series) if series else [""] * len(values)
+    if len(labels) != len(values):
+        raise ValueError(f"{len(values)} readings but {len(labels)} series labels; give one label per reading")
+    return [[v for v, lab in zip(values, labels, strict=True) if lab == key] for key in dict.fromkeys(labels)]
+
+
 @dataclass(frozen=True)
 class Repeatability:
     mean: float
@@ -69,8 +81,10 @@ def repeatability(values, groups=None) -> Repeatability:
     rsd = 100.0 * sd / abs(mean) if mean != 0 else None
     return Repeatability(mean, sd, rsd, dof, len(usable), int(allv.size),
                          "Pooled within-group (repeatability) variance, degrees of freedom "
-                         "sum(n_i - 1) (ISO 5725-2:1994, clause 7.4); RSD relative to the grand "
-                         "mean. Comparing results within a group presumes one level per group.")
+                         "sum(n_i - 1) (ISO 5725-2:1994, clause 7.4); a group is one sample's "
+                         "readings within one series, so a series (day) effect stays out of s_r "
+                         "(ISO 5725-3:1994); RSD relative to the grand mean. Comparing results "
+                         "within a group presumes one level per group.")
 
 
 @dataclass(frozen=True)
@@ -141,7 +155,9 @@ class Recovery:
     u_measured: float
     reference: float
     u_reference: float
-    coverage_factor: float
+    expanded_measured: float  # U_x as the result states it
+    expanded_reference: float  # U_ref as the reference states it
+    reference_coverage_factor: float
     recovery_percent: float
     recovery_u_percent: float
     en_number: float
@@ -153,33 +169,35 @@ class Recovery:
         return plain(self)
 
 
-def recovery(measured: float, u_measured: float, reference: float, u_reference: float,
-             coverage_factor: float = 2.0) -> Recovery:
+def recovery(measured: float, u_measured: float, reference: float, u_reference: float, *,
+             expanded_measured: float, expanded_reference: float) -> Recovery:
     """Recovery R = x/X with u(R) from relative uncertainties in quadrature (GUM 5.1.6), and
 
-    E_n = (x - X) / sqrt(U_x^2 + U_ref^2) with U = k u (ISO/IEC 17043:2010 B.3.1.3;
-    ISO 13528:2015, 9.7); |E_n| <= 1 is satisfactory.
+    E_n = (x - X) / sqrt(U_x^2 + U_ref^2), each expanded uncertainty as stated: U_x the
+    result's own (its t-based k), U_ref the reference's own (its certificate's k) (ISO/IEC
+    17043:2010 B.3.1.3; ISO 13528:2015, 9.7); |E_n| <= 1 is satisfactory.
     """
     if reference == 0:
         raise ValueError("the reference value is zero; a recovery cannot be computed")
-    if u_measured < 0 or u_reference < 0 or coverage_factor <= 0:
-        raise ValueError("uncertainties must be >= 0 and the coverage factor > 0")
+    if min(u_measured, u_reference, expanded_measured, expanded_reference) < 0:
+        raise ValueError("uncertainties must be >= 0")
     r = measured / reference
     # u(R)^2 = (u_x/X)^2 + (x u_X/X^2)^2: the quadrature of relative terms, safe at x = 0
     u_r = math.hypot(u_measured / reference, measured * u_reference / reference**2)
-    big_u = coverage_factor * math.hypot(u_measured, u_reference)
+    big_u = math.hypot(expanded_measured, expanded_reference)
     en = (measured - reference) / big_u if big_u > 0 else math.copysign(math.inf, measured - reference)
     ok = abs(en) <= 1.0
     verdict = ("|E_n| <= 1: the result agrees with the reference value within the expanded "
                "uncertainties" if ok else
                "|E_n| > 1: the result differs from the reference value by more than the "
                "expanded uncertainties explain (bias, or an uncertainty stated too small)")
-    return Recovery(measured, u_measured, reference, u_reference, coverage_factor, 100 * r,
-                    100 * u_r, en, ok, verdict,
+    k_ref = expanded_reference / u_reference if u_reference > 0 else math.nan
+    return Recovery(measured, u_measured, reference, u_reference, expanded_measured, expanded_reference,
+                    k_ref, 100 * r, 100 * u_r, en, ok, verdict,
                     "Recovery x/X with relative standard uncertainties in quadrature (GUM "
-                    "JCGM 100:2008, 5.1.6); E_n = (x - X)/sqrt(U_x^2 + U_ref^2), |E_n| <= 1 "
-                    "satisfactory (ISO/IEC 17043:2010, B.3.1.3; ISO 13528:2015, 9.7; clause "
-                    "numbers from memory).")
+                    "JCGM 100:2008, 5.1.6); E_n = (x - X)/sqrt(U_x^2 + U_ref^2) with each expanded "
+                    "uncertainty as stated, |E_n| <= 1 satisfactory (ISO/IEC 17043:2010, B.3.1.3; "
+                    "ISO 13528:2015, 9.7; clause numbers from memory).")
 
 
 @dataclass(frozen=True)
