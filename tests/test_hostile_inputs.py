@@ -265,7 +265,10 @@ def test_an_impossible_point_is_left_out_of_the_combined_k(tmp_path, capsys):
                      "--no-pdf", "--no-advice"]) == 0, capsys.readouterr().err
     eq = json.loads((out / "results.json").read_text(encoding="utf-8"))["equilibrium"]
     valid = [m["K"] for m in eq["mixtures"] if m["id"] != "X2"]
-    assert min(valid) <= eq["combined"]["K"] <= max(valid)
+    # a generalised-least-squares mean of correlated values may fall a little outside their range
+    # (negative weights), but not by more than its own expanded uncertainty
+    big_u = eq["combined"]["expanded_uncertainty"]
+    assert min(valid) - big_u <= eq["combined"]["K"] <= max(valid) + big_u
     assert [e["id"] for e in eq["combined"]["excluded"]] == ["X2"]
     ids = [m["id"] for m in eq["mixtures"]]
     assert eq["combined"]["weights"][ids.index("X2")] == 0.0
