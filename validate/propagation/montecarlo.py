@@ -37,6 +37,7 @@ MAX_ADAPTIVE_TRIALS = 10_000_000
 SHARE_TRIALS = 50_000  # trials per held-group run for the Monte Carlo shares (common random numbers)
 INVALID_WARNING = 0.001  # share of undefined trials above which a warning is shown
 MAX_CHECK_TRIALS = 10_000_000  # trial budget of the JCGM 101 8.2 comparison per output
+CHECK_GROWTH = 10  # ... and at most this many times the trials asked for (a small run stays small)
 MAX_KEPT_VALUES = 40_000_000  # values kept over all outputs still being compared (320 MB)
 
 
@@ -235,9 +236,10 @@ def _checked(model: Model, gums: dict[str, LinearResult], values: dict[str, np.n
     verdict is undecided or the Monte Carlo ends are not yet known to delta/5, within the budget."""
     checks = {name: _check(gum, values[name], p) for name, gum in gums.items()}
     total = min(arr.size for arr in values.values()) if values else 0
+    budget = min(MAX_CHECK_TRIALS, CHECK_GROWTH * total)
     while True:
         open_ = [name for name, c in checks.items() if not c.settled]
-        more = min(total, MAX_CHECK_TRIALS - total)
+        more = min(total, budget - total)
         if not open_ or more <= 0 or len(open_) * (total + more) > MAX_KEPT_VALUES:
             return values, checks
         extra = _fixed(model, more, rng, progress, open_)
