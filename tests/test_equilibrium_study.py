@@ -106,3 +106,12 @@ def test_points_carry_their_saturation(nickel_demo):
     for p in run.record["equilibrium"]["mixtures"]:
         assert p["saturation"] == pytest.approx(p["ML"] / min(p["M_total"], p["L_total"]), rel=1e-12)
         assert (p["saturation_flag"] is None) == (0.2 <= p["saturation"] <= 0.8)
+
+
+def test_the_record_says_between_day_effects_are_not_in_U_of_K(nickel_demo):
+    # A study run once observes no day-to-day variation, so its U(K) is within-run (within-laboratory
+    # reproducibility needs series: ISO 5725-3); the record must say so rather than let U(K) stand
+    # for the method's uncertainty in routine use.
+    said = [a for a in nickel_demo.record["assumptions"] if a.startswith("U(K) is a within-run uncertainty")]
+    assert len(said) == 1 and "not in it" in said[0] and "other days" in said[0]
+    assert nickel_demo.record.get("method_uncertainty") is None  # no top-down route claimed for a study

@@ -215,6 +215,11 @@ def _assumptions(study: EquilibriumStudy, observed: bool) -> list[str]:
     if observed:
         out.append("calibration scatter treated as observed: the standards' residual scatter stands for the "
                    "random effects of preparing and reading standards and mixtures")
+    # the study is one run: what varies between runs is not observed, so it is not in U(K)
+    out.append("U(K) is a within-run uncertainty: it holds this study's preparations, its line of standards and "
+               "its readings; effects that change between days (reagent lots, the laboratory temperature on "
+               "another day, photometer drift between sessions, another analyst) are not in it, since the "
+               "study is not repeated over series; repeat the study on other days to estimate them")
     return out
 
 
