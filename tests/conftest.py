@@ -4,6 +4,7 @@ demo run once per session for the tests that only read its results."""
 from __future__ import annotations
 
 import json
+import shutil
 from pathlib import Path
 
 import pytest
@@ -42,3 +43,24 @@ def nickel_demo():
     before = _snapshot(run.record)
     yield run
     assert _snapshot(run.record) == before, "a test changed the shared nickel demo record; work on a copy"
+
+
+def copy_demo(tmp_path: Path, demo: Path = DEMOS / "phosphate_assay") -> Path:
+    """A demo's folder copied under tmp_path/demo, to be edited by a test."""
+    folder = tmp_path / "demo"
+    shutil.copytree(demo, folder)
+    return folder
+
+
+@pytest.fixture
+def demo_copy(tmp_path):
+    return copy_demo(tmp_path)
+
+
+def edit_text(folder: Path, old: str, new: str, name: str = "method.toml", count: int = -1) -> Path:
+    """Replace `old` (which must be there) by `new` in one file of a copied demo; the method file's path."""
+    path = folder / name
+    text = path.read_text(encoding="utf-8")
+    assert old in text, f"test set-up: {old!r} not in {name}"
+    path.write_text(text.replace(old, new, count), encoding="utf-8")
+    return folder / "method.toml"

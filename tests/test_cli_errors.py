@@ -3,13 +3,12 @@
 from __future__ import annotations
 
 import json
-import shutil
 import subprocess
 import sys
 from pathlib import Path
 
 import pytest
-from conftest import DEMOS
+from conftest import DEMOS, edit_text
 
 DEMO = DEMOS / "phosphate_assay"
 
@@ -19,19 +18,8 @@ def _run(*args, cwd=None):
                           cwd=cwd)
 
 
-@pytest.fixture
-def demo_copy(tmp_path):
-    folder = tmp_path / "demo"
-    shutil.copytree(DEMO, folder)
-    return folder
-
-
 def _edit(folder, old, new, name="method.toml"):
-    path = folder / name
-    text = path.read_text(encoding="utf-8")
-    assert old in text, f"test set-up: {old!r} not in {name}"
-    path.write_text(text.replace(old, new, 1), encoding="utf-8")
-    return folder / "method.toml"
+    return edit_text(folder, old, new, name, count=1)
 
 
 CASES = [

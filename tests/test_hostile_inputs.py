@@ -8,10 +8,9 @@ from __future__ import annotations
 
 import json
 import os
-import shutil
 
 import pytest
-from conftest import DEMOS
+from conftest import DEMOS, copy_demo, edit_text
 
 from validate import cli
 from validate.inputs.errors import InputError
@@ -20,17 +19,7 @@ from validate.inputs.text import MAX_ID_LENGTH, MAX_NESTING, clean_id, normal_id
 ASSAY, STUDY = DEMOS / "phosphate_assay", DEMOS / "nickel_complex"
 
 
-def _copy(tmp_path, demo=ASSAY):
-    folder = tmp_path / "demo"
-    shutil.copytree(demo, folder)
-    return folder
-
-
-def _edit(folder, old, new, name="method.toml"):
-    path = folder / name
-    text = path.read_text(encoding="utf-8")
-    assert old in text, f"test set-up: {old!r} not in {name}"
-    path.write_text(text.replace(old, new), encoding="utf-8")
+_copy, _edit = copy_demo, edit_text
 
 
 def _refused(capsys, argv, code, *fragments):

@@ -7,7 +7,6 @@ by hand in the comments. The combination rule is Nordtest TR 537's (from memory)
 from __future__ import annotations
 
 import math
-import shutil
 import subprocess
 import sys
 from pathlib import Path
@@ -15,6 +14,7 @@ from pathlib import Path
 import pandas as pd
 import pytest
 import statsmodels.formula.api as smf
+from conftest import edit_text
 from hypothesis import given
 from hypothesis import strategies as st
 from scipy import stats
@@ -119,19 +119,7 @@ def test_reconciliation_flags_thin_data():
 DEMO = Path(__file__).resolve().parent.parent / "example_inputs" / "phosphate_assay"
 
 
-@pytest.fixture
-def demo_copy(tmp_path):
-    folder = tmp_path / "demo"
-    shutil.copytree(DEMO, folder)
-    return folder
-
-
-def _edit(folder, old, new, name="method.toml"):
-    path = folder / name
-    text = path.read_text(encoding="utf-8")
-    assert old in text, f"test set-up: {old!r} not in {name}"
-    path.write_text(text.replace(old, new), encoding="utf-8")
-    return folder / "method.toml"
+_edit = edit_text
 
 
 BAD = [
