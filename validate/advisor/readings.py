@@ -76,7 +76,8 @@ def reading_candidates(method: Method) -> list[Candidate]:
         case AssayMethod(calibration=None):
             return []
         case AssayMethod(calibration=Calibration()):
-            return _more_sample_readings(method) + [_more_calibration_readings(method)]
+            design = _design(method)  # one model build for both candidates
+            return _more_sample_readings(method, design) + [_more_calibration_readings(method, design)]
     return []
 
 
@@ -97,8 +98,7 @@ def _more_point_readings(method: EquilibriumMethod) -> Candidate:
         frozenset({"point readings"}), _POINT_READINGS, {"reading_factor": f, "typical_readings": m})
 
 
-def _more_sample_readings(method: AssayMethod) -> list[Candidate]:
-    design = _design(method)
+def _more_sample_readings(method: AssayMethod, design: CalibrationDesign) -> list[Candidate]:
     if not design.samples or "c_measured" not in method.result.formula.names:
         return []
     m = _typical_count(s.count for s in design.samples)
@@ -110,8 +110,8 @@ def _more_sample_readings(method: AssayMethod) -> list[Candidate]:
         frozenset({"sample readings"}), _SAMPLE_READINGS, {"readings_per_sample": f * m})]
 
 
-def _more_calibration_readings(method: AssayMethod) -> Candidate:
-    solutions = [prep for _, prep in _design(method).fitted()]
+def _more_calibration_readings(method: AssayMethod, design: CalibrationDesign) -> Candidate:
+    solutions = [prep for _, prep in design.fitted()]
     m = _typical_count(prep.count for prep in solutions)
     f = READING_FACTOR
     if method.settings.scatter == "observed":
