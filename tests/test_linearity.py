@@ -106,7 +106,7 @@ def test_straight_line_passes_both_tests():
 def test_lack_of_fit_without_replicates_is_not_evaluable():
     fit = fit_line([1, 2, 3, 4, 5], [0.1, 0.21, 0.29, 0.41, 0.5])
     res = lack_of_fit_test(fit)
-    assert res.evaluable is False and res.p_value is None and "replicate" in res.verdict
+    assert res.evaluable is False and res.p_value is None and "independent points" in res.verdict
 
 
 # ---- residual diagnostics against statsmodels ---------------------------------------------

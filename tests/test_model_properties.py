@@ -106,37 +106,67 @@ def test_shared_temperature_cancels_in_a_dilution_ratio(write_method):
     assert row.contribution == pytest.approx(0.0, abs=1e-12)
 
 
-def test_observed_scatter_reproduces_the_inverse_prediction_formula():
-    # ISO 8466-1 / EURACHEM/CITAC CG4 Example A5: u(x0) = s/b sqrt(1/m + 1/n + (y0-ybar)^2/(b^2 Sxx)).
-    # The model carries the line's scatter as s/sqrt(m) on each mean reading; propagated through
-    # the refitted line, the calibration-fit part of the budget must equal that formula.
-    from conftest import DEMOS
+def _pooled_within(groups):
+    """Pooled SD and degrees of freedom of groups of repeated readings (ISO 5725-2, 7.4)."""
+    groups = [g for g in groups if len(g) >= 2]
+    ss = sum(sum((a - sum(g) / len(g)) ** 2 for a in g) for g in groups)
+    dof = sum(len(g) - 1 for g in groups)
+    return math.sqrt(ss / dof), dof
 
-    from validate.model.line import fit_line, inverse_prediction
+
+def _demo_groups(method, ids):
+    """Every solution's readings split by series (repeated readings of one solution, one day)."""
+    out = []
+    for i in ids:
+        labels = method.reading_series.get(i) or [""] * len(method.readings[i])
+        for lab in dict.fromkeys(labels):
+            out.append([a for a, b in zip(method.readings[i], labels, strict=True) if b == lab])
+    return out
+
+
+def test_observed_scatter_reproduces_the_inverse_prediction_formula():
+    # ISO 8466-1 / EURACHEM/CITAC CG4 Example A5 on preparation means, with two variance
+    # components (Searle, Casella and McCulloch, Variance Components, one-way random model, from
+    # memory): u(x0)^2 = [u_p^2 + s_r^2/m0 + s_m^2 (1/N + (y0-ybar)^2/(b^2 Sxx))] / b^2, where s_m is
+    # the residual SD of the N preparation means about the line, s_r the pooled SD of repeated
+    # readings of one solution and u_p^2 = s_m^2 - s_r^2/m. Computed here by hand with numpy; the
+    # calibration-fit part of the model's budget, propagated through the refitted line, must equal it.
+    import numpy as np
+    from conftest import DEMOS
 
     run = api.analyse(DEMOS / "phosphate_assay" / "method.toml", trials=None, advice=False)
     method, model = run.method, run.model
     conc = model.concentrations(model.nominal_inputs())
     ids = list(method.calibration.standards) + list(method.calibration.blanks)
-    xs = [conc[i] * 1e3 for i in ids for _ in method.readings[i]]  # mol/m^3 -> µmol/L
-    ys = [a for i in ids for a in method.readings[i]]
-    fit = fit_line(xs, ys)
+    xs = np.array([conc[i] * 1e3 for i in ids])  # mol/m^3 -> µmol/L, one point per solution
+    ys = np.array([np.mean(method.readings[i]) for i in ids])
+    b, a = np.polyfit(xs, ys, 1)
+    s_m2 = float(np.sum((ys - a - b * xs) ** 2)) / (len(xs) - 2)
+    sample_ids = [s.id for s in method.samples]
+    s_r, _ = _pooled_within(_demo_groups(method, ids + sample_ids))
+    m = len(method.readings["S1"])
+    assert all(len(method.readings[i]) == m for i in ids)
+    u_p2 = max(0.0, s_m2 - s_r**2 / m)
+    sxx = float(np.sum((xs - xs.mean()) ** 2))
     for sample, result in zip(method.samples, run.results, strict=True):
         u_line = math.sqrt(sum(r.contribution**2 for r in result.contributions if r.step == "calibration fit"))
-        pred = inverse_prediction(fit, method.readings[sample.id])
+        r0 = method.readings[sample.id]
+        y0 = float(np.mean(r0))
+        u_x0 = math.sqrt(u_p2 + s_r**2 / len(r0) + s_m2 * (1 / len(xs) + (y0 - ys.mean()) ** 2 / (b**2 * sxx))) / b
         # result = c * V_flask / V_sample * M_P: 50/20 dilution, 30.973762 g/mol, µmol/L -> mg/L
-        expected = pred.standard_uncertainty * 1e-3 * (50 / 20) * 30.973762
+        expected = u_x0 * 1e-3 * (50 / 20) * 30.973762
         assert u_line == pytest.approx(expected, rel=1e-6)
 
 
 def test_weighted_line_reproduces_the_weighted_inverse_prediction(tmp_path):
-    # Miller and Miller, section 5.10: weighted line with w = 1/s_j^2 and the weighted
-    # inverse-prediction uncertainty s_w/b sqrt(1/(w0 m) + 1/n + (y0 - ybar_w)^2/(b^2 Sxx_w)).
+    # Miller and Miller, section 5.10: weighted line with w = 1/s_j^2 (normalised to a mean of one
+    # over the points) and the weighted inverse prediction, here on preparation means with the two
+    # variance components on the weighted scale:
+    # u(x0)^2 = [(u_p^2 + s_r^2/m0)/w0 + s_w^2 (1/N + (y0 - ybar_w)^2/(b^2 Sxx_w))] / b^2.
     import shutil
 
+    import numpy as np
     from conftest import DEMOS
-
-    from validate.model.line import fit_line, inverse_prediction
 
     folder = tmp_path / "weighted"
     shutil.copytree(DEMOS / "phosphate_assay", folder)
@@ -148,15 +178,29 @@ def test_weighted_line_reproduces_the_weighted_inverse_prediction(tmp_path):
     assert run.record["validation"]["line_weighting"]["used"] == "inverse-variance"
     conc = model.concentrations(model.nominal_inputs())
     ids = list(method.calibration.standards) + list(method.calibration.blanks)
-    xs = [conc[i] * 1e3 for i in ids for _ in method.readings[i]]
-    ys = [a for i in ids for a in method.readings[i]]
-    ws = [model.design.weight(i) for i in ids for _ in method.readings[i]]
-    fit = fit_line(xs, ys, ws)
+    weight = model.design.weight
+    xs = np.array([conc[i] * 1e3 for i in ids])
+    ys = np.array([np.mean(method.readings[i]) for i in ids])
+    w = np.array([weight(i) for i in ids])
+    assert w.mean() == pytest.approx(1.0, rel=1e-12)
+    xbar, ybar = np.sum(w * xs) / w.sum(), np.sum(w * ys) / w.sum()
+    sxx = float(np.sum(w * (xs - xbar) ** 2))
+    b = float(np.sum(w * (xs - xbar) * (ys - ybar))) / sxx
+    a = ybar - b * xbar
     intercept, slope = model.line(model.nominal_inputs())
     path = method.items["cell_40"].path
-    assert slope * path * 1e-3 == pytest.approx(fit.slope, rel=1e-9)  # per mol/m^3 -> per µmol/L
-    assert intercept * path == pytest.approx(fit.intercept, rel=1e-9)
+    assert slope * path * 1e-3 == pytest.approx(b, rel=1e-9)  # per mol/m^3 -> per µmol/L
+    assert intercept * path == pytest.approx(a, rel=1e-9)
+    s_m2 = float(np.sum(w * (ys - a - b * xs) ** 2)) / (len(xs) - 2)
+    groups = _demo_groups(method, ids + [s.id for s in method.samples])
+    owners = [i for i in ids + [s.id for s in method.samples]
+              for _ in dict.fromkeys(method.reading_series.get(i) or [""])]
+    ss = sum(weight(o) * sum((v - np.mean(g)) ** 2 for v in g) for o, g in zip(owners, groups, strict=True))
+    s_r2 = ss / sum(len(g) - 1 for g in groups if len(g) >= 2)
+    u_p2 = max(0.0, s_m2 - s_r2 / 3)
     for sample, result in zip(method.samples, run.results, strict=True):
         u_line = math.sqrt(sum(r.contribution**2 for r in result.contributions if r.step == "calibration fit"))
-        pred = inverse_prediction(fit, method.readings[sample.id], sample_weight=model.design.weight(sample.id))
-        assert u_line == pytest.approx(pred.standard_uncertainty * 1e-3 * 2.5 * 30.973762, rel=1e-6)
+        r0 = method.readings[sample.id]
+        y0, w0 = float(np.mean(r0)), weight(sample.id)
+        u_x0 = math.sqrt((u_p2 + s_r2 / len(r0)) / w0 + s_m2 * (1 / len(xs) + (y0 - ybar) ** 2 / (b**2 * sxx))) / b
+        assert u_line == pytest.approx(u_x0 * 1e-3 * 2.5 * 30.973762, rel=1e-6)

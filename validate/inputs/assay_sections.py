@@ -72,8 +72,9 @@ def parse_calibration(t: Table, items: dict, solutions: dict[str, Solution], def
 
 
 def _weighting(t: Table, defaults: list[str]) -> str:
-    weighting = t.choice("weighting", "none", ("none", "inverse-variance"),
-                         'use "none" (ordinary least squares) or "inverse-variance" (weights 1/s^2 from '
+    weighting = t.choice("weighting", "none", ("none", "variance-function", "inverse-variance"),
+                         'use "none" (ordinary least squares), "variance-function" (weights 1/s(c)^2 with '
+                         's = a + b c fitted over every level) or "inverse-variance" (weights 1/s^2 from '
                          'the replicate readings of each level)')
     if not t.has("weighting"):
         defaults.append("default: unweighted (ordinary least-squares) calibration line")

@@ -36,7 +36,7 @@ class Calibration:
     cuvette: str | None
     photometer: str | None
     concentration_unit: Unit
-    weighting: str = "none"  # "none" or "inverse-variance" (1/s^2 of each level's replicates)
+    weighting: str = "none"  # "none", "variance-function" (s = a + b c) or "inverse-variance" (1/s_j^2)
 
 
 @dataclass(frozen=True)

@@ -30,6 +30,7 @@ from validate.model.errors import ModelError as ModelError  # imported from here
 from validate.model.errors import evaluate_formula
 from validate.model.keys import ResultKey
 from validate.model.line import fit_line, inverse_prediction, straight_line
+from validate.model.scatter import LINE_GROUP, ScatterComponents, ScatterTerm
 
 
 class SolutionInputs:
@@ -67,12 +68,14 @@ class Model(SolutionInputs):
 
     def line(self, x, conc=None):
         """Intercept and slope refitted from this evaluation's standards and readings: the
-        weighted least-squares line through the design's preparations (`straight_line`)."""
+        (weighted) least-squares line through the mean readings of the design's preparations,
+        one point per preparation (`straight_line`; docs/design.md, "Repeated readings and
+        independent preparations")."""
         conc = self.concentrations(x) if conc is None else conc
         design = self._design()
         fitted = design.fitted()
         intercept, slope = straight_line(
-            [p.count for _, p in fitted], [conc[p.solution] for _, p in fitted],
+            [1] * len(fitted), [conc[p.solution] for _, p in fitted],
             [self._reading_terms[p.solution](x) for _, p in fitted],
             [design.weight(lv.id) for lv, _ in fitted] if design.weighted else None)
         return backend.collapse(intercept), backend.collapse(slope)  # shared by every sample's result
@@ -120,8 +123,9 @@ def build_model(method: AssayMethod) -> Model:
         model._solution_terms[sol.id] = solution_term(ss, method, sol, observed and sol.id in standards)
     if cal:
         _calibration_terms(model, ss, cal, samples, observed)
+    covered = model.design is not None and model.design.covers("sample preparation")
     for q in method.quantities.values():
-        model._quantity_terms[q.name] = _quantity_term(ss, method, q, samples)
+        model._quantity_terms[q.name] = _quantity_term(ss, method, q, samples, covered)
     model.evaluate(model.nominal_inputs())  # a formula that cannot be computed stops at `check`
     return model
 
@@ -130,27 +134,44 @@ def _calibration_terms(model: Model, ss: SourceSet, cal: Calibration, samples, o
     """The calibration design, and the mean corrected reading of every point on the line and
     every sample read off it."""
     method = model.method
-    model.assumptions.append(_scatter_assumption(observed))
     design = model.design = calibration_design(method, model.concentrations(model.nominal_inputs()))
+    model.assumptions.append(_scatter_assumption(design))
     if design.weighted:
-        model.assumptions.append(
-            "weighted calibration line: each level weighted by 1/s^2 of its replicate readings, a sample "
-            "by 1/s^2 interpolated linearly in concentration (Miller and Miller, section 5.10)")
+        model.assumptions.append(WEIGHTING_ASSUMPTION[design.weighting])
+    model.assumptions.extend(design.notes)
     scatter = _observed_scatter(design, samples) if observed else None
-    read = [(p.solution, p.readings, design.weight(lv.id)) for lv, p in design.fitted()]
-    read += [(smp.id, design.sample(smp.id).readings, design.weight(smp.id)) for smp in samples]
-    for ident, readings, weight in read:
-        model._reading_terms[ident] = mean_reading_term(ss, method, ident, readings, scatter, cal.cuvette,
-                                                        cal.photometer, weight)
+    for lv, p in design.fitted():
+        terms = [scatter.point_term(p.solution, p.count, design.weight(lv.id))] if scatter else None
+        model._reading_terms[p.solution] = mean_reading_term(ss, method, p.solution, p.readings, terms,
+                                                             cal.cuvette, cal.photometer)
+    for smp in samples:
+        read = design.sample(smp.id)
+        terms = scatter.sample_terms(smp.id, read.count, design.weight(smp.id)) if scatter else None
+        model._reading_terms[smp.id] = mean_reading_term(ss, method, smp.id, read.readings, terms,
+                                                         cal.cuvette, cal.photometer)
 
 
-def _scatter_assumption(observed: bool) -> str:
-    if observed:
-        return ("calibration scatter treated as observed: the residual scatter of the line stands for "
-                "the random effects of preparing and reading the standards and samples "
-                "(EURACHEM/CITAC CG4, Example A5), so their per-use repeatability terms are not added")
-    return ("calibration scatter built bottom-up: every reading and every use of glassware "
-            "carries its own random term; no term for the line's observed scatter is added")
+WEIGHTING_ASSUMPTION = {
+    "inverse-variance": "weighted calibration line: each level weighted by 1/s^2 of its replicate readings, a "
+                        "sample by 1/s^2 interpolated linearly in concentration (Miller and Miller, section 5.10)",
+    "variance-function": "weighted calibration line: every level and sample weighted by 1/s(c)^2 with "
+                         "s(c) = a + b c fitted to the levels' standard deviations (ISO 11095 and ISO 8466-1, "
+                         "linear model of the standard deviation, from memory)",
+}
+
+
+def _scatter_assumption(design: CalibrationDesign) -> str:
+    units = ("the line is fitted to the mean reading of each preparation (repeated readings of one solution "
+             "are not independent points)")
+    covered = design.covered_terms()
+    if covered:
+        return (f"calibration scatter treated as observed: {units}; the scatter of the preparations' means "
+                f"about the line stands for preparing and reading (EURACHEM/CITAC CG4, Example A5), split "
+                f"into reading scatter (repeated readings of one solution) and preparation scatter; a sample "
+                f"carries u^2 = u_prep^2 + s_read^2/m. Covered by the observed scatter and not added again: "
+                + "; ".join(covered))
+    return (f"calibration scatter built bottom-up: {units}; every reading and every use of glassware "
+            f"carries its own random term; no term for the line's observed scatter is added")
 
 
 def solution_order(solutions: dict) -> list:
@@ -208,15 +229,27 @@ def _weighed_term(ss: SourceSet, method: Method, sol: Weighed, step: str, is_sta
     return term
 
 
+def _as_terms(scatter, ident: str, count: int, weight: float) -> list[ScatterTerm] | None:
+    """Observed-scatter terms of one mean reading: given as terms, or as (s, dof) of the line's
+    residuals, which gives the one term s/sqrt(m w) of ISO 8466-1 (w: the weight on the line's
+    scale, 1 unweighted)."""
+    if scatter is None or isinstance(scatter, list):
+        return scatter
+    s_abs, dof = scatter
+    return [ScatterTerm("calibration scatter", s_abs / (count * weight) ** 0.5, dof, LINE_GROUP,
+                        f"residual standard deviation of the line {s_abs:.3g} (absorbance), {count} reading(s), "
+                        f"{dof} degrees of freedom (observed scatter; ISO 8466-1, CG4 A5)")]
+
+
 def mean_reading_term(ss: SourceSet, method: Method, ident: str, readings: tuple[float, ...], scatter,
                       cuvette: str | None, photometer_id: str | None, weight: float = 1.0):
     """A closure x -> mean corrected reading of one standard, blank or sample:
     (mean absorbance + reading noise or observed scatter - photometer offset) / path length.
 
-    `scatter` (observed treatment) is (s, dof) of the line's residuals in absorbance:
-    the mean of m readings then carries a term of standard uncertainty s/sqrt(m w),
-    w the reading's weight on the line's scale (1 for an unweighted line)."""
-    observed = scatter is not None
+    `scatter` (observed treatment): a list of `ScatterTerm` (validate.model.scatter), or
+    (s, dof) of the line's residuals in absorbance, for one term s/sqrt(m w)."""
+    terms = _as_terms(scatter, ident, len(readings), weight)
+    observed = terms is not None
     photometer = method.item_of(photometer_id, Photometer) if photometer_id else None
     cell = method.item_of(cuvette, Cuvette) if cuvette else None
     offset = path = None
@@ -232,13 +265,9 @@ def mean_reading_term(ss: SourceSet, method: Method, ident: str, readings: tuple
                                "normal", step="photometric reading", equipment=photometer.id, unit="AU",
                                provenance=f"standard deviation {photometer.noise:g} absorbance per reading; "
                                f"{photometer.provenance}")) for j in range(len(readings))]
-    if observed:
-        s_abs, dof = scatter
-        noise = [ss.add(Source(
-            f"calibration scatter, {ident}", 0.0, s_abs / (len(readings) * weight) ** 0.5, "t", dof=dof,
-            step="calibration fit", kind="A", dof_group="calibration line", unit="AU",
-            provenance=f"residual standard deviation of the line {s_abs:.3g} (absorbance), "
-            f"{len(readings)} reading(s), {dof} degrees of freedom (observed scatter; ISO 8466-1, CG4 A5)"))]
+    if terms is not None:
+        noise = [ss.add(Source(f"{t.label}, {ident}", 0.0, t.u, "t", dof=t.dof, step="calibration fit", kind="A",
+                               dof_group=t.group, unit="AU", provenance=t.provenance)) for t in terms]
     path0 = _path_of(cell) if cell is not None else 1.0
     if cell is not None:
         path = ss.add(Source(f"{cell.id}: path length", path0, cell.tolerance / 3**0.5, "rectangular",
@@ -250,7 +279,7 @@ def mean_reading_term(ss: SourceSet, method: Method, ident: str, readings: tuple
     def term(x):
         a = mean
         if observed:
-            a = a + x[noise[0]]
+            a = a + sum(x[name] for name in noise)
         elif noise:
             a = a + sum(x[name] for name in noise) / len(noise)
         if offset is not None:
@@ -267,36 +296,42 @@ def _path_of(cell) -> float:
     return cell.path
 
 
-def _quantity_term(ss: SourceSet, method: Method, q, samples):
+def _quantity_term(ss: SourceSet, method: Method, q, samples, covered: bool = False):
+    """A quantity of the result formula. A volume delivered once per sample: the item's
+    calibration offset shared by every sample, and a fresh repeatability term for each use,
+    unless the observed scatter covers preparing the sample (`covered`, decided by the design)."""
     if q.delivery is not None:
-        # one use of the item per sample: a fresh repeatability term each time,
-        # the item's calibration offset shared by all of them
         keys = [smp.id for smp in samples] or [""]
-        uses = {k: volume_term(ss, method, q.delivery, q.step, f"{q.name}, {k}" if k else q.name)
-                for k in keys}
+        with_repeatability = not (covered and samples)
+        uses = {k: volume_term(ss, method, q.delivery, q.step, f"{q.name}, {k}" if k else q.name,
+                               with_repeatability) for k in keys}
         return lambda x, sample_id: uses[sample_id](x)
     src = value_source(ss, q.name, q.value, q.step)
     value = q.value.value
     return lambda x, sample_id: exact_or(x, src, value)
 
 
-def _observed_scatter(design: CalibrationDesign, samples) -> tuple[float, int]:
-    """Residual standard deviation (absorbance) and n-2 of the line at the estimates.
+def _observed_scatter(design: CalibrationDesign, samples) -> ScatterComponents:
+    """The observed scatter's two components at the estimates (validate.model.scatter).
 
-    With the observed treatment each mean reading carries s/sqrt(m); propagated
-    through the refitted line this gives exactly the inverse-prediction uncertainty
-    u(x0) = s/b sqrt(1/m + 1/n + (y0 - ybar)^2 / (b^2 Sxx)) of ISO 8466-1 and
-    EURACHEM/CITAC CG4 Example A5, and it correlates samples read off one line.
+    Each preparation's mean on the line carries s_m (the residual SD of the means, N - 2
+    degrees of freedom), each sample's mean u_p and s_r/sqrt(m); propagated through the
+    refitted line this gives the inverse-prediction uncertainty
+    u(x0) = 1/b sqrt(u_p^2 + s_r^2/m + s_m^2 (1/N + (y0 - ybar)^2 / (b^2 Sxx))), ISO 8466-1 and
+    EURACHEM/CITAC CG4 Example A5 on preparation means, and it correlates samples read off one line.
     """
     try:
-        fit = fit_line(*design.reading_points())
+        scatter = design.scatter_components()
+        fit = fit_line(*design.point_data())
     except ValueError as exc:
         raise ModelError(f"calibration: {exc}") from None
     for smp in samples:
-        pred = inverse_prediction(fit, design.sample(smp.id).readings, sample_weight=design.weight(smp.id))
+        read = design.sample(smp.id)
+        pred = inverse_prediction(fit, read.readings, sample_weight=design.weight(smp.id),
+                                  response_variance=scatter.sample_variance(read.count, design.weight(smp.id)))
         if not pred.finite:
             raise ModelError(
                 f"sample {smp.id}: the slope of the line is not significantly different from zero "
                 f"(Fieller's g = {pred.g:.2f} >= 1), so the concentration read off the line has no finite "
                 f"confidence interval; no result is reported")
-    return fit.residual_sd, fit.dof
+    return scatter

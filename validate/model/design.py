@@ -9,10 +9,16 @@ and the record take it from there instead of deriving it again from the
 method's readings table.
 
 A calibration level is a group of preparations (solutions made for that
-level), each read one or more times. Today every level is one solution read m
-times; several independent preparations of one level fit the same structure.
-The straight line is fitted through the preparations (each at its own
-concentration), counting every reading.
+level), each read one or more times. Readings that share a solution id are
+repeated readings of one solution; independent preparations at one level are
+separate solutions of one concentration (docs/design.md, "Repeated readings and
+independent preparations"). The statistical unit of the line is the
+preparation: the line is fitted through the mean reading of every preparation,
+and the observed scatter is split into two variance components, the reading
+scatter (repeated readings of one solution) and the preparation scatter (what
+the preparations' means show beyond it). Which effects the observed scatter
+covers, and which are carried bottom-up, is decided here once, per term
+(`SCATTER_COVERED`).
 """
 
 from __future__ import annotations
@@ -24,9 +30,23 @@ from validate.inputs.schema import Method
 from validate.model.errors import ModelError
 from validate.model.levels import Level, Preparation, ReadSolution
 from validate.model.line import fit_line
-from validate.model.weights import level_weights
+from validate.model.scatter import ScatterComponents, scatter_components
+from validate.model.weights import WEIGHTING_FUNCTIONS, level_weights, weight_notes
 
 MIN_LEVELS = 3  # distinct concentrations for a line with a residual scatter (n - 2 >= 1)
+
+# Per term, once: the random effects the observed scatter of independently prepared standards
+# stands for (observed treatment). They are left out bottom-up where the observed scatter is
+# used, and every one of them is carried bottom-up in the bottom-up treatment (docs/design.md,
+# "Never count an effect twice"). Systematic effects (calibration offsets of items, the shared
+# temperature, the stock, the photometer offset) are never covered: the scatter cannot show them.
+SCATTER_COVERED = {
+    "standard preparation": "per-use repeatability (and burette readings) of the glassware used to "
+                            "prepare each standard and blank",
+    "sample preparation": "per-use repeatability of the volumes that make a sample's measured solution "
+                          "(sample dilution)",
+    "reading": "the photometer's reading noise of every reading",
+}
 
 
 def _reading_points(levels: tuple[Level, ...], factor: float) -> tuple[list[float], list[float]]:
@@ -43,7 +63,21 @@ class CalibrationDesign:
     blanks: tuple[Level, ...]  # every blank, fitted or not
     blanks_in_fit: bool
     samples: tuple[ReadSolution, ...]
-    weights: Mapping[str, float] | None = None  # id -> weight of one reading (mean 1 over the line)
+    weights: Mapping[str, float] | None = None  # id -> weight of one point (mean 1 over the line's points)
+    weighting: str = "none"  # how the weights were found: "none", "inverse-variance", "variance-function"
+    scatter: str = "observed"  # the method's treatment: "observed" or "bottom-up"
+    notes: tuple[str, ...] = ()  # warnings about the design (weights on few readings)
+
+    def covers(self, term: str) -> bool:
+        """Whether the observed scatter stands for this random effect (a key of SCATTER_COVERED),
+        so its bottom-up term is left out."""
+        if term not in SCATTER_COVERED:
+            raise KeyError(f"unknown scatter term {term!r}")
+        return self.scatter == "observed"
+
+    def covered_terms(self) -> list[str]:
+        """What the observed scatter stands for, in words, for the record (empty bottom-up)."""
+        return [SCATTER_COVERED[t] for t in SCATTER_COVERED if self.covers(t)]
 
     @property
     def weighted(self) -> bool:
@@ -72,6 +106,23 @@ class CalibrationDesign:
         """The level id of every reading on the line, in fit order."""
         return [lv.id for lv in self.levels for _ in lv.readings]
 
+    def point_data(self, factor: float = 1.0) -> tuple[list[float], list[float], list[float] | None]:
+        """The line's statistical units: concentration (divided by `factor`), mean absorbance and
+        weight (None: unweighted) of every preparation, in fit order."""
+        fitted = self.fitted()
+        xs = [p.concentration / factor for _, p in fitted]
+        ys = [p.mean for _, p in fitted]
+        ws = [self.weight(lv.id) for lv, _ in fitted] if self.weighted else None
+        return xs, ys, ws
+
+    def point_ids(self) -> list[str]:
+        """The solution id of every preparation on the line, in fit order."""
+        return [p.solution for _, p in self.fitted()]
+
+    def scatter_components(self) -> ScatterComponents:
+        """Reading and preparation scatter of the line at the estimates (see validate.model.scatter)."""
+        return scatter_components(self)
+
     def sample(self, ident: str) -> ReadSolution:
         return next(s for s in self.samples if s.id == ident)
 
@@ -95,6 +146,18 @@ def _level(method: Method, ident: str, role: str, concentrations: Mapping[str, f
     return Level(ident, role, (prep,))
 
 
+def _levels(method: Method, idents, role: str, concentrations: Mapping[str, float]) -> tuple[Level, ...]:
+    """One level per concentration: solutions of equal concentration at the estimates (to 9
+    digits) are independent preparations of one level, in the order first named."""
+    groups: dict[str, list[Preparation]] = {}
+    first: dict[str, str] = {}
+    for ident in idents:
+        key = f"{concentrations[ident]:.9g}"
+        first.setdefault(key, ident)
+        groups.setdefault(key, []).extend(_level(method, ident, role, concentrations).preparations)
+    return tuple(Level(first[key], role, tuple(preps)) for key, preps in groups.items())
+
+
 def _read(method: Method, ident: str) -> ReadSolution:
     return ReadSolution(ident, tuple(method.readings[ident]), method.reading_series.get(ident))
 
@@ -105,14 +168,15 @@ def calibration_design(method: Method, concentrations: Mapping[str, float]) -> C
     cal = method.calibration
     if cal is None:
         raise ValueError("the method has no [calibration]; there is no calibration design")
-    standards = tuple(_level(method, sid, "standard", concentrations) for sid in cal.standards)
-    blanks = tuple(_level(method, bid, "blank", concentrations) for bid in cal.blanks)
+    standards = _levels(method, cal.standards, "standard", concentrations)
+    blanks = _levels(method, cal.blanks, "blank", concentrations)
     samples = tuple(_read(method, s.id) for s in method.samples)
     design = CalibrationDesign(standards + (blanks if cal.blanks_in_fit else ()), blanks,
-                               cal.blanks_in_fit, samples)
+                               cal.blanks_in_fit, samples, scatter=method.settings.scatter)
     check_calibration_data(method, design)
-    if cal.weighting == "inverse-variance":
-        design = replace(design, weights=level_weights(design.levels, design.samples))
+    if cal.weighting in WEIGHTING_FUNCTIONS:
+        design = replace(design, weights=level_weights(design.levels, design.samples, cal.weighting),
+                         weighting=cal.weighting, notes=weight_notes(design.levels, cal.weighting))
     return design
 
 
@@ -136,7 +200,7 @@ def check_calibration_data(method: Method, design: CalibrationDesign) -> None:
                          where="[calibration].standards",
                          fix="prepare the standards at different concentrations (5 to 7 levels over the "
                              "working range is common practice)")
-    xs, ys, _ = design.reading_points(unit.factor)
+    xs, ys, _ = design.point_data(unit.factor)
     slope = fit_line(xs, ys).slope
     if not slope > 0:
         raise ModelError(

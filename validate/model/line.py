@@ -171,13 +171,16 @@ class InversePrediction:
 
 
 def inverse_prediction(fit: LineFit, readings, sample_weight: float = 1.0,
-                       confidence: float = 0.95) -> InversePrediction:
+                       confidence: float = 0.95, response_variance: float | None = None) -> InversePrediction:
     """x0 = (y0 - a) / b with the observed-scatter standard uncertainty.
 
     u(x0) = s/b * sqrt(1/(w0 m) + 1/n + (y0 - ybar)^2 / (b^2 Sxx))
     (ISO 8466-1; EURACHEM/CITAC CG4 Example A5, equation for c0; weighted form
     after Miller and Miller). `sample_weight` is w0 on the same normalised
-    scale as the fit's weights.
+    scale as the fit's weights. `response_variance`, when given, replaces the
+    sample's own term s^2/(w0 m): with the line fitted to preparation means it is
+    u_p^2 + s_r^2/m (validate.model.scatter), so preparation scatter does not
+    average away with more readings.
     """
     r = np.asarray(readings, dtype=float).ravel()
     m = len(r)
@@ -191,7 +194,7 @@ def inverse_prediction(fit: LineFit, readings, sample_weight: float = 1.0,
     if b == 0:
         return InversePrediction(y0, m, math.nan, math.inf, fit.dof, False, g)
     x0 = (y0 - fit.intercept) / b
-    u = (fit.residual_sd / abs(b)) * math.sqrt(
-        1.0 / (sample_weight * m) + 1.0 / fit.n + (y0 - fit.y_mean) ** 2 / (b**2 * fit.sxx)
-    )
+    s2 = fit.residual_sd**2
+    own = s2 / (sample_weight * m) if response_variance is None else response_variance
+    u = math.sqrt(own + s2 * (1.0 / fit.n + (y0 - fit.y_mean) ** 2 / (b**2 * fit.sxx))) / abs(b)
     return InversePrediction(y0, m, x0, u if finite else math.inf, fit.dof, finite, g)

@@ -234,6 +234,28 @@ class ScatterConsistencyEntry(RecordPart):
     alpha: Number
     verdict: str
     source: str
+    compared: str = described("which observed scatter is compared with which prediction",
+                              default="observed scatter against the bottom-up prediction")
+
+
+@dataclass(frozen=True, kw_only=True)
+class FitUnitsEntry(RecordPart):
+    """What the line was fitted to (one point per preparation), the observed scatter's two
+    components, and the random effects the observed scatter stands for."""
+
+    points: str
+    preparations: int
+    readings: int
+    levels: int
+    means_sd: Number = described("residual SD of the preparations' mean readings about the line (absorbance)")
+    means_dof: int
+    reading_sd: Number = described("pooled SD of repeated readings of one solution (absorbance); null: "
+                                   "no solution read twice")
+    reading_dof: int
+    preparation_sd: Number = described("preparation scatter sqrt(max(0, means_sd^2 - reading_sd^2 mean(1/m)))")
+    covered_by_observed_scatter: tuple[str, ...] = described(
+        "random effects the observed scatter stands for, left out bottom-up; empty in the bottom-up treatment")
+    why: str
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -295,5 +317,10 @@ class ValidationBlock(RecordPart):
     trueness: TruenessEntry | None
     scatter_consistency: ScatterConsistencyEntry | None
     criteria: CriteriaBlock
+    reading_noise_consistency: ScatterConsistencyEntry | None = omitted_when_none(
+        "the pure error of repeated readings against the photometer's reading noise; left out where no "
+        "solution was read twice, no noise is stated, or for an equilibrium study")
+    fit_units: FitUnitsEntry | None = omitted_when_none(
+        "the line's statistical units and scatter components; left out for an equilibrium study")
     intermediate_precision: dict[str, IntermediatePrecisionEntry | Unavailable] | None = omitted_when_none(
         "per sample read in two or more series (ISO 5725-3); left out for an equilibrium study")

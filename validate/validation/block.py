@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import dataclasses
 import math
+import statistics
 
 from validate.inputs.items import Cuvette, Photometer
 from validate.inputs.schema import AssayMethod, Calibration, Method
@@ -23,6 +24,7 @@ from validate.validation.criteria import evaluate_criteria
 from validate.validation.limits import range_flags
 from validate.validation.linearity import plain
 from validate.validation.precision import (
+    READING_SCATTER,
     intermediate_precision,
     recovery,
     repeatability,
@@ -52,14 +54,15 @@ def calibration_data(method: Method, model: Model):
 
 
 def line_summary(method: Method, model: Model) -> dict | None:
-    """The straight line as the analyst sees it: absorbance against concentration, fitted as the
-    model fits it (weighted when the method says so), with the samples' readings."""
+    """The straight line as the analyst sees it: every reading against concentration, and the
+    line as the model fits it (through the preparations' means, weighted when the method says
+    so), with the samples' readings."""
     cal = method.calibration
     if cal is None:
         return None
     design = _design(model)
-    xs, ys, weights = design.reading_points(cal.concentration_unit.factor)
-    fit = fit_line(xs, ys, weights)
+    xs, ys, _ = design.reading_points(cal.concentration_unit.factor)
+    fit = fit_line(*design.point_data(cal.concentration_unit.factor))
     return {
         "concentration_unit": cal.concentration_unit.text,
         "points": [{"id": i, "concentration": x, "absorbance": y}
@@ -72,10 +75,10 @@ def line_summary(method: Method, model: Model) -> dict | None:
     }
 
 
-def predicted_reading_sd(method: AssayMethod, slope_abs_per_unit: float) -> float:
-    """Scatter of single readings about the line that the bottom-up sources predict:
-    photometer noise and the per-use random terms of each standard's preparation
-    (repeatability, burette readings), averaged over the standards."""
+def predicted_scatter(method: AssayMethod, slope_abs_per_unit: float) -> tuple[float, float]:
+    """(preparation SD, reading SD) in absorbance that the bottom-up sources predict: the
+    per-use random terms of each standard's preparation (repeatability, burette readings),
+    as a root mean square over the standards, and the photometer's noise of one reading."""
     from uncertainties import ufloat
 
     cal = _calibration(method)
@@ -93,31 +96,52 @@ def predicted_reading_sd(method: AssayMethod, slope_abs_per_unit: float) -> floa
             variances.append((slope_abs_per_unit * math.sqrt(random_part) / factor) ** 2)
     photometer = method.item_of(cal.photometer, Photometer) if cal.photometer else None
     noise = photometer.noise if photometer else 0.0
-    return math.sqrt(noise**2 + sum(variances) / len(variances))
+    return math.sqrt(sum(variances) / len(variances)), noise
+
+
+def scatter_checks(method: AssayMethod, design: CalibrationDesign, fit: LineFit):
+    """The two consistency checks of item "Validation statistics" in docs/design.md: the pure
+    error against the reading noise (None where no solution was read twice or no noise is
+    stated), and the scatter of the preparation means about the line against preparation plus
+    reading noise for a mean of m readings (None where nothing is predicted)."""
+    prep, noise = predicted_scatter(method, fit.slope)
+    sc = design.scatter_components()
+    reading = (scatter_consistency(sc.reading_sd, sc.reading_dof, noise, compared=READING_SCATTER)
+               if sc.reading_sd is not None and noise > 0 else None)
+    predicted = math.sqrt(prep**2 + noise**2 * sc.mean_inverse_count)
+    line = scatter_consistency(fit.residual_sd, fit.dof, predicted) if predicted > 0 and fit.dof >= 1 else None
+    return line, reading
 
 
 def _summary(method: Method, cal: Calibration, design: CalibrationDesign) -> ValidationSummary:
     """Every validation statistic of the line the model fits."""
     v = method.validation
-    xs, ys, ws = design.reading_points(cal.concentration_unit.factor)
+    factor = cal.concentration_unit.factor
+    xs, ys, ws = design.point_data(factor)
     cell = method.item_of(cal.cuvette, Cuvette) if cal.cuvette else None
     path = cell.path if cell is not None else None
-    replicates = [s.count for s in design.samples] or [1]
+    reps = [(lv.concentration / factor, lv.count, statistics.stdev(lv.readings)) for lv in design.levels
+            if lv.count >= 2]
+    # the points are preparation means: a sample's mean reading is one such point (K = 1)
     return validate_calibration(
         xs, ys, weights=ws, blanks=design.blank_readings() or None, alpha=v.alpha, beta=v.beta,
         declared_limit=v.declared_limit,
         path_length_cm=path * 100 if cell is not None and path is not None else None,
         path_length_u=cell.tolerance / math.sqrt(3) * 100 if cell else None,
-        sample_replicates=min(replicates))
+        sample_replicates=1, replicate_sds=reps)
 
 
 def _sample_entries(design: CalibrationDesign, summary: ValidationSummary) -> tuple[dict, dict]:
-    """Each sample read off the line (observed-scatter uncertainty) with its range flags."""
+    """Each sample read off the line (observed-scatter uncertainty: u_p^2 + s_r^2/m for its own
+    mean reading) with its range flags."""
     fit = summary.fit
+    scatter = design.scatter_components()
     nonzero = [x for x in fit.x if x > 0] or list(fit.x)
     samples, flags = {}, {}
     for smp in design.samples:
-        pred = inverse_prediction(fit, smp.readings, sample_weight=design.weight(smp.id))
+        w0 = design.weight(smp.id)
+        pred = inverse_prediction(fit, smp.readings, sample_weight=w0,
+                                  response_variance=scatter.sample_variance(smp.count, w0))
         f = range_flags(pred.value, min(nonzero), max(fit.x), summary.limits.loq, summary.limits.lod)
         flags[smp.id] = f
         samples[smp.id] = {"concentration": pred.value, "standard_uncertainty": pred.standard_uncertainty,
@@ -156,7 +180,7 @@ def validation_block(method: AssayMethod, model: Model, results: list[LinearResu
                   for group in within_series_groups(_in_concentration(fit, s.readings), s.series) if len(group) >= 2]
     precision = repeatability(rep_groups) if rep_groups else None
     between_series = _intermediate(design, fit, cal.concentration_unit.text)
-    consistency = scatter_consistency(fit.residual_sd, fit.dof, predicted_reading_sd(method, fit.slope))
+    consistency, reading_consistency = scatter_checks(method, design, fit)
     trueness = _trueness(method, results)
     criteria = evaluate_criteria(v.acceptance, _observed(summary, results, precision, trueness))
     block = plain(summary)
@@ -172,10 +196,32 @@ def validation_block(method: AssayMethod, model: Model, results: list[LinearResu
         "repeatability": {**plain(precision), "unit": cal.concentration_unit.text} if precision else None,
         "trueness": plain(trueness) if trueness else None,
         "intermediate_precision": between_series,
-        "scatter_consistency": plain(consistency),
+        "scatter_consistency": plain(consistency) if consistency else None,
+        "reading_noise_consistency": plain(reading_consistency) if reading_consistency else None,
+        "fit_units": _fit_units(design),
         "criteria": plain(criteria),
     })
     return block
+
+
+def _fit_units(design: CalibrationDesign) -> dict:
+    """What the line and its tests were fitted to, the two scatter components, and which random
+    effects the observed scatter stands for (docs/design.md, "Never count an effect twice")."""
+    sc = design.scatter_components()
+    fitted = design.fitted()
+    return {
+        "points": "preparation means",
+        "preparations": len(fitted), "readings": sum(p.count for _, p in fitted),
+        "levels": len(design.levels),
+        "means_sd": sc.means_sd, "means_dof": sc.means_dof,
+        "reading_sd": sc.reading_sd, "reading_dof": sc.reading_dof, "preparation_sd": sc.preparation_sd,
+        "covered_by_observed_scatter": design.covered_terms(),
+        "why": ("readings that share a solution id are repeated readings of one solution: they show reading "
+                "noise only, so the line, its residual scatter and the linearity tests use one point per "
+                "preparation (its mean reading), and pure error comes from independent preparations at one "
+                "level; a sample carries u^2 = u_prep^2 + s_read^2/m (ISO 8466-1, CG4 Example A5, on "
+                "preparation means)"),
+    }
 
 
 def _intermediate(design: CalibrationDesign, fit: LineFit, unit: str) -> dict:

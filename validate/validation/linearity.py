@@ -139,10 +139,13 @@ def _not_evaluable(name, alpha, why, source) -> SignificanceTest:
                       f"not evaluable: {why}", source, {})
 
 
-LOF_SOURCE = ("Lack-of-fit F test against pure error from replicate readings: "
-              "F = [(RSS - SS_pe)/(m - 2)] / [SS_pe/(n - m)], m distinct concentrations "
+LOF_SOURCE = ("Lack-of-fit F test against pure error from independent points at one concentration: "
+              "F = [(RSS - SS_pe)/(m - 2)] / [SS_pe/(n - m)], n points, m distinct concentrations "
               "(Draper and Smith, Applied Regression Analysis, 3rd ed. (1998), section 2.1; "
-              "the same partition is used in ISO 11095).")
+              "the same partition is used in ISO 11095). Pure error must hold every random effect "
+              "the points carry: on a method's line the points are preparation means, so pure error "
+              "comes from independent preparations at one level, never from repeated readings of one "
+              "solution (which show reading noise only).")
 
 
 def lack_of_fit_test(fit: LineFit, alpha: float = 0.05) -> SignificanceTest:
@@ -151,7 +154,8 @@ def lack_of_fit_test(fit: LineFit, alpha: float = 0.05) -> SignificanceTest:
     levels, idx = _levels(x)
     m, n = len(levels), fit.n
     if m < 3 or n <= m:
-        why = ("needs replicate readings of at least one standard" if n <= m
+        why = ("needs two or more independent points (preparations) at one concentration; repeated "
+               "readings of one solution are not pure error" if n <= m
                else "needs at least 3 distinct concentrations")
         return _not_evaluable("lack-of-fit F test", alpha, why, LOF_SOURCE)
     wsum = np.bincount(idx, weights=w)
@@ -314,14 +318,15 @@ def _replicate_sds(x, y, w):
     return out
 
 
-def weighting_check(fit: LineFit, alpha: float = 0.05) -> SignificanceTest:
+def weighting_check(fit: LineFit, alpha: float = 0.05, replicate_sds=None) -> SignificanceTest:
     """Does the scatter grow with concentration (heteroscedasticity)?
 
     Reported statistic and p are Spearman's; the verdict is "grows" when either
-    Spearman or the highest/lowest variance ratio is significant.
+    Spearman or the highest/lowest variance ratio is significant. `replicate_sds`:
+    (x, n, sd) per level from the repeated readings, where the fit's points are means.
     """
     x, y, w = np.asarray(fit.x), np.asarray(fit.y), np.asarray(fit.weights)
-    reps = _replicate_sds(x, y, w)
+    reps = list(replicate_sds) if replicate_sds is not None else _replicate_sds(x, y, w)
     if len(reps) >= 3:
         basis = "replicate SD per standard"
         xs = np.array([r[0] for r in reps])
@@ -369,12 +374,13 @@ def _weighting_advice(significant: bool, reps, already_weighted: bool) -> str:
             f"w = 1/x^2 if the relative SD is about constant: {why}")
 
 
-def linearity_tests(fit: LineFit, alpha: float = 0.05) -> dict[str, SignificanceTest]:
-    """All tests of the straight-line model, keyed by plain names."""
+def linearity_tests(fit: LineFit, alpha: float = 0.05, replicate_sds=None) -> dict[str, SignificanceTest]:
+    """All tests of the straight-line model, keyed by plain names. The tests run on the fit's
+    points: preparation means on a method's line, every row of a bare table."""
     return {
         "lack_of_fit": lack_of_fit_test(fit, alpha),
         "mandel": mandel_test(fit, alpha),
         "runs": runs_test(fit, alpha),
         "intercept": intercept_test(fit, alpha),
-        "weighting": weighting_check(fit, alpha),
+        "weighting": weighting_check(fit, alpha, replicate_sds),
     }

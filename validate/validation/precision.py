@@ -211,14 +211,25 @@ class ScatterConsistency:
     alpha: float
     verdict: str
     source: str
+    compared: str = "observed scatter against the bottom-up prediction"
 
     def to_dict(self) -> dict:
         return plain(self)
 
 
+LINE_SCATTER = ("the residual scatter of the preparations' mean readings about the line against the "
+                "preparation and reading noise the budget predicts for such a mean")
+READING_SCATTER = ("the pure error (pooled scatter of repeated readings of one solution) against the "
+                   "photometer's stated reading noise")
+
+
 def scatter_consistency(residual_sd: float, dof: int, predicted_sd: float,
-                        alpha: float = 0.05) -> ScatterConsistency:
-    """chi^2 = dof s^2 / sigma^2 against chi-square(dof) (NIST/SEMATECH e-Handbook 1.3.5.8)."""
+                        alpha: float = 0.05, compared: str = LINE_SCATTER) -> ScatterConsistency:
+    """chi^2 = dof s^2 / sigma^2 against chi-square(dof) (NIST/SEMATECH e-Handbook 1.3.5.8).
+
+    Each observed scatter is compared with the prediction of the same effects: the pure error
+    of repeated readings with the reading noise alone, the scatter of preparation means about
+    the line with preparation plus reading noise (docs/design.md, "Validation statistics")."""
     if dof < 1:
         raise ValueError("the scatter check needs at least one degree of freedom")
     if not (predicted_sd > 0 and math.isfinite(predicted_sd)):
@@ -236,4 +247,4 @@ def scatter_consistency(residual_sd: float, dof: int, predicted_sd: float,
     return ScatterConsistency(residual_sd, predicted_sd, dof, chi2, p_hi, p_lo, alpha, verdict,
                               "Chi-square test of a standard deviation against a stated value, "
                               "T = nu s^2/sigma0^2 (NIST/SEMATECH e-Handbook of Statistical "
-                              "Methods, section 1.3.5.8); one-sided for excess scatter.")
+                              "Methods, section 1.3.5.8); one-sided for excess scatter.", compared)

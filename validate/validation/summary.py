@@ -64,19 +64,21 @@ def _max_relative_residual(points: PointDiagnostics) -> float | None:
 def validate_calibration(x, y, *, weights=None, blanks=None, path_length_cm=None,
                          path_length_u=None, alpha: float = 0.05, beta: float = 0.05,
                          declared_limit: str = "ich_residual_sd", test_alpha: float = 0.05,
-                         sample_replicates: int = 1) -> ValidationSummary:
+                         sample_replicates: int = 1, replicate_sds=None) -> ValidationSummary:
     """Fit the line and run every validation statistic on it.
 
-    `alpha`/`beta` are the error probabilities of ISO 11843-2 detection;
-    `test_alpha` is the significance level of the linearity tests;
-    `sample_replicates` is K, the readings averaged per sample.
+    `x`, `y` are the line's points: preparation means on a method's line (repeated readings
+    averaged first), every row of a bare table. `alpha`/`beta` are the error probabilities of
+    ISO 11843-2 detection; `test_alpha` is the significance level of the linearity tests;
+    `sample_replicates` is K, the points averaged per sample (1 when the points are means);
+    `replicate_sds`: (x, n, sd) of each level's repeated readings for the weighting check.
     """
     fit = fit_line(x, y, weights)
     notes = []
     if len(np.unique(np.asarray(fit.x))) < 5:
         notes.append("fewer than 5 distinct concentrations: ICH Q2(R1) recommends a minimum "
                      "of 5 for linearity")
-    tests = linearity_tests(fit, test_alpha)
+    tests = linearity_tests(fit, test_alpha, replicate_sds)
     points = point_diagnostics(fit)
     eps = None
     if path_length_cm is not None:

@@ -1,0 +1,134 @@
+"""The observed scatter of a calibration as two variance components: reading and preparation.
+
+Repeated readings of one solution show the reading scatter only; the means of independently
+prepared standards scatter about the line by preparation and reading together. With m_i
+readings of preparation i (Searle, Casella and McCulloch, Variance Components (1992), the
+one-way random model, from memory; the same split as ISO 5725-2's repeatability and
+between-laboratory terms):
+
+    s_r^2 = sum_i sum_k (y_ik - ybar_i)^2 / sum_i (m_i - 1)    (pooled within solutions and series)
+    s_m^2 = residual variance of the preparations' means about the line, N - 2 degrees of freedom
+    u_p^2 = max(0, s_m^2 - s_r^2 mean(1/m_i))                  (preparation scatter)
+
+A sample read m0 times then has u^2(y0) = u_p^2 + s_r^2/m0: more readings lower the reading
+part only, and the preparation scatter never averages away. On a weighted line every sum
+carries the solution's weight, so the components are on the line's weighted scale.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import asdict, dataclass
+from typing import TYPE_CHECKING
+
+from validate.model.line import fit_line
+
+if TYPE_CHECKING:  # the design imports this module
+    from validate.model.design import CalibrationDesign
+
+LINE_GROUP = "calibration line"  # terms resting on s_m (one shared chi-square factor in Monte Carlo)
+READING_GROUP = "reading repeatability"  # terms resting on s_r
+
+
+@dataclass(frozen=True)
+class ScatterTerm:
+    """One observed-scatter term of a mean reading (absorbance, on the line's weighted scale)."""
+
+    label: str  # "calibration scatter", "preparation scatter" or "reading scatter"
+    u: float
+    dof: int
+    group: str
+    provenance: str
+
+
+@dataclass(frozen=True)
+class ScatterComponents:
+    """The line's observed scatter split into reading and preparation scatter."""
+
+    means_sd: float  # s_m
+    means_dof: int  # N - 2
+    reading_sd: float | None  # s_r; None: no solution was read twice
+    reading_dof: int
+    preparation_sd: float | None  # u_p; None without s_r
+    mean_inverse_count: float  # mean of 1/m_i over the line's preparations
+
+    def to_dict(self) -> dict:
+        return asdict(self)
+
+    def _expected_means_variance(self, count: float) -> float:
+        """u_p^2 + s_r^2/m, relative scale of a mean of `count` readings."""
+        assert self.reading_sd is not None and self.preparation_sd is not None
+        return self.preparation_sd**2 + self.reading_sd**2 / count
+
+    def point_term(self, ident: str, count: int, weight: float) -> ScatterTerm:
+        """The scatter of a preparation's mean on the line: s_m, scaled for its reading count
+        (u_p^2 + s_r^2/m_i relative to the line's average) and its weight."""
+        rel = 1.0
+        if self.reading_sd is not None and self.preparation_sd is not None:
+            average = self.preparation_sd**2 + self.reading_sd**2 * self.mean_inverse_count
+            rel = self._expected_means_variance(count) / average if average > 0 else 1.0
+        u = self.means_sd * math.sqrt(rel / weight)
+        return ScatterTerm("calibration scatter", u, self.means_dof, LINE_GROUP,
+                           f"residual standard deviation of the preparations' mean readings about the line "
+                           f"{self.means_sd:.3g} (absorbance), {self.means_dof} degrees of freedom; {ident} "
+                           f"read {count} time(s) (observed scatter; ISO 8466-1, CG4 A5, on preparation means)")
+
+    def sample_terms(self, ident: str, count: int, weight: float) -> list[ScatterTerm]:
+        """The scatter of a sample's mean reading: preparation scatter u_p plus reading scatter
+        s_r/sqrt(m0); s_m itself where no solution was read twice (nothing to split)."""
+        if self.reading_sd is None or self.preparation_sd is None:
+            return [ScatterTerm("calibration scatter", self.means_sd / math.sqrt(weight), self.means_dof,
+                                LINE_GROUP,
+                                f"residual standard deviation of the line {self.means_sd:.3g} (absorbance), "
+                                f"{self.means_dof} degrees of freedom; no solution read twice, so preparation "
+                                f"and reading scatter are not told apart and nothing averages")]
+        terms = [ScatterTerm("reading scatter", self.reading_sd / math.sqrt(count * weight), self.reading_dof,
+                             READING_GROUP,
+                             f"pooled standard deviation of repeated readings of one solution "
+                             f"{self.reading_sd:.3g} (absorbance), {self.reading_dof} degrees of freedom; "
+                             f"{ident} read {count} time(s)")]
+        if self.preparation_sd > 0:
+            terms.append(ScatterTerm(
+                "preparation scatter", self.preparation_sd / math.sqrt(weight), self.means_dof, LINE_GROUP,
+                f"scatter of independently prepared standards beyond their reading scatter, "
+                f"sqrt(s_m^2 - s_r^2 mean(1/m)) = {self.preparation_sd:.3g} (absorbance), taken with the "
+                f"{self.means_dof} degrees of freedom of s_m; it stands for preparing {ident}'s measured "
+                f"solution and does not average with more readings"))
+        return terms
+
+    def sample_variance(self, count: int, weight: float) -> float:
+        """u^2 of a sample's mean reading (absorbance^2): the sum of its terms."""
+        return sum(t.u**2 for t in self.sample_terms("", count, weight))
+
+
+def pooled_reading_sd(groups: list[tuple[list[float], float]]) -> tuple[float | None, int]:
+    """(s_r, dof) pooled over groups of repeated readings (readings, weight); (None, 0) when no
+    group has two readings (ISO 5725-2:1994, 7.4, pooled within cells, from memory)."""
+    ss, dof = 0.0, 0
+    for readings, weight in groups:
+        if len(readings) >= 2:
+            mean = sum(readings) / len(readings)
+            ss += weight * sum((a - mean) ** 2 for a in readings)
+            dof += len(readings) - 1
+    return (math.sqrt(ss / dof), dof) if dof else (None, 0)
+
+
+def _within_series(readings, series) -> list[list[float]]:
+    """A solution's readings split by series (day): a series effect is not reading scatter."""
+    labels = list(series) if series else [""] * len(readings)
+    return [[a for a, lab in zip(readings, labels, strict=True) if lab == key] for key in dict.fromkeys(labels)]
+
+
+def scatter_components(design: CalibrationDesign) -> ScatterComponents:
+    """The two components of a design at the estimates (every solution of the line and every
+    sample gives its repeated readings to s_r; the line's preparations give s_m)."""
+    xs, ys, ws = design.point_data()
+    fit = fit_line(xs, ys, ws)
+    solutions = [(p.readings, p.series, design.weight(lv.id)) for lv, p in design.fitted()]
+    solutions += [(s.readings, s.series, design.weight(s.id)) for s in design.samples]
+    groups = [(g, w) for readings, series, w in solutions for g in _within_series(readings, series)]
+    s_r, dof_r = pooled_reading_sd(groups)
+    counts = [p.count for _, p in design.fitted()]
+    inv = sum(1.0 / m for m in counts) / len(counts)
+    u_p = math.sqrt(max(0.0, fit.residual_sd**2 - s_r**2 * inv)) if s_r is not None else None
+    return ScatterComponents(fit.residual_sd, fit.dof, s_r, dof_r, u_p, inv)
