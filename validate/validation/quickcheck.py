@@ -235,13 +235,22 @@ def _check_line_rises(path: str, fit) -> None:
                          "scatter of the readings")
 
 
+# A bare table states no structure (which rows are repeated readings of one solution), so every
+# row is fitted as an independent point, as EURACHEM/CITAC CG4 Example A5 does (from memory).
+EVERY_ROW_NOTE = ("every row is fitted as an independent point: a bare table does not say which rows are "
+                  "repeated readings of one solution (as EURACHEM/CITAC CG4 Example A5 fits it). If rows are "
+                  "repeated readings of one standard, the lack-of-fit and Mandel tests take reading noise for "
+                  "the whole scatter and reject a straight line too often; a method file (`validate run`) "
+                  "fits one point per prepared solution")
+
+
 def quick_check(path, samples: list[list[float]] | None = None) -> dict:
     """Fit, linearity tests, ICH limits (sigma from residuals) and optional samples, as plain data."""
     table = load_table(path)
     _check_line_rises(table.path, fit_line(table.concentration, table.absorbance))  # before any statistic of it
     summary = validate_calibration(table.concentration, table.absorbance)
     fit = summary.fit
-    notes = list(summary.notes)
+    notes = [EVERY_ROW_NOTE] + list(summary.notes)
     if table.u_concentration is not None and fit.slope != 0:
         ratio = max(table.u_concentration) / (fit.residual_sd / abs(fit.slope))
         notes.append(f"the largest u(concentration) is {100 * ratio:.3g} % of the residual "
@@ -250,7 +259,7 @@ def quick_check(path, samples: list[list[float]] | None = None) -> dict:
     ich = summary.limits.route("ich_residual_sd")
     assert ich is not None  # every line has the residual-SD route
     result = {
-        "file": table.path, "units": table.units, "n": fit.n,
+        "file": table.path, "units": table.units, "n": fit.n, "points": "every row",
         "distinct_concentrations": len(set(table.concentration)), "dof": fit.dof,
         "slope": fit.slope, "intercept": fit.intercept,
         "slope_standard_uncertainty": fit.slope_u,
