@@ -270,39 +270,42 @@ def test_demo_best_change_lowers_u_and_monte_carlo_confirms_it(demo, demo_report
     json.dumps(r.to_dict(), allow_nan=False)
 
 
-def test_more_sample_readings_follow_the_inverse_prediction_formula(demo):
-    # ISO 8466-1 / EURACHEM/CITAC CG4 Example A5: u(x0) = s/b sqrt(1/m + 1/n + (y0-ybar)^2/(b^2 Sxx)),
-    # here with m doubled; the line (s, b, n, Sxx) is unchanged.
+def _line_part(results) -> list[float]:
+    return [math.sqrt(sum(c.contribution**2 for c in r.contributions if c.step == "calibration fit"))
+            for r in results]
+
+
+def test_more_sample_readings_lower_the_reading_noise_only(demo):
+    # Two variance components (ISO 8466-1 / CG4 Example A5 on preparation means): a sample's mean
+    # reading carries u_p^2 + s_r^2/m. Reading every sample twice as often keeps s_r and u_p (and the
+    # line), so u^2 falls by exactly s_r^2/(2m) (in concentration: divided by b^2), nothing more.
     variant = with_more_sample_readings(demo)
-    model = build_model(variant)
-    conc = model.concentrations(model.nominal_inputs())
-    ids = list(demo.calibration.standards) + list(demo.calibration.blanks)
-    fit = fit_line([conc[i] * 1e3 for i in ids for _ in demo.readings[i]], [a for i in ids for a in demo.readings[i]])
-    for sample, result in zip(demo.samples, propagate(model), strict=True):
-        assert len(variant.readings[sample.id]) == 2 * len(demo.readings[sample.id])
-        u_line = math.sqrt(sum(c.contribution**2 for c in result.contributions if c.step == "calibration fit"))
-        pred = inverse_prediction(fit, variant.readings[sample.id])
-        assert u_line == pytest.approx(pred.standard_uncertainty * 1e-3 * (50 / 20) * 30.973762, rel=1e-6)
+    before, after = build_model(demo), build_model(variant)
+    sc_before, sc_after = before.design.scatter_components(), after.design.scatter_components()
+    assert sc_after.reading_sd == pytest.approx(sc_before.reading_sd, rel=1e-12)
+    assert sc_after.preparation_sd == pytest.approx(sc_before.preparation_sd, rel=1e-12)
+    slope = fit_line(*before.design.point_data(1e-3)[:2]).slope  # absorbance per µmol/L
+    scale = 1e-3 * (50 / 20) * 30.973762  # µmol/L -> mg/L of P in the sample
+    for sample, u_old, u_new in zip(demo.samples, _line_part(propagate(before)), _line_part(propagate(after)),
+                                    strict=True):
+        m = len(demo.readings[sample.id])
+        assert len(variant.readings[sample.id]) == 2 * m
+        drop = sc_before.reading_sd**2 * (1 / m - 1 / (2 * m)) * (scale / slope) ** 2
+        assert u_old**2 - u_new**2 == pytest.approx(drop, rel=1e-6)
 
 
-def test_more_calibration_readings_keep_the_line_and_its_scatter(demo):
+def test_more_calibration_readings_keep_the_line_and_the_preparation_scatter(demo):
     variant = with_more_calibration_readings(demo)
-    model = build_model(variant)
-    conc = model.concentrations(model.nominal_inputs())
-    ids = list(demo.calibration.standards) + list(demo.calibration.blanks)
-
-    def line(method):
-        return fit_line([conc[i] * 1e3 for i in ids for _ in method.readings[i]],
-                        [a for i in ids for a in method.readings[i]])
-
-    old, new = line(demo), line(variant)
-    assert new.n == 2 * old.n and new.dof == 2 * old.n - 2
-    assert new.residual_sd == pytest.approx(old.residual_sd, rel=1e-9)
+    old_d, new_d = build_model(demo).design, build_model(variant).design
+    old, new = fit_line(*old_d.point_data()[:2]), fit_line(*new_d.point_data()[:2])
+    assert new.n == old.n and new.dof == old.dof  # one point per prepared solution
     assert (new.slope, new.intercept) == pytest.approx((old.slope, old.intercept), rel=1e-9)
-    for sample, result in zip(demo.samples, propagate(model), strict=True):
-        u_line = math.sqrt(sum(c.contribution**2 for c in result.contributions if c.step == "calibration fit"))
-        pred = inverse_prediction(new, demo.readings[sample.id])  # ISO 8466-1, CG4 Example A5
-        assert u_line == pytest.approx(pred.standard_uncertainty * 1e-3 * (50 / 20) * 30.973762, rel=1e-6)
+    sc_old, sc_new = old_d.scatter_components(), new_d.scatter_components()
+    m = len(demo.readings["S1"])
+    assert sc_new.reading_sd == pytest.approx(sc_old.reading_sd, rel=1e-12)
+    assert sc_new.reading_dof > sc_old.reading_dof
+    assert sc_new.preparation_sd == pytest.approx(sc_old.preparation_sd, rel=1e-9)
+    assert sc_new.means_sd**2 == pytest.approx(sc_old.preparation_sd**2 + sc_old.reading_sd**2 / (2 * m), rel=1e-9)
 
 
 def test_readings_outside_the_window_get_qualitative_advice(demo, demo_report):

@@ -25,34 +25,78 @@ def _design(method: AssayMethod) -> CalibrationDesign:
     return design
 
 
+def more_readings_alike(readings: tuple[float, ...], series: tuple[str, ...] | None, factor: int,
+                        reading_sd: float | None) -> tuple[tuple[float, ...], tuple[str, ...] | None]:
+    """One solution read `factor` times as often, each series keeping its mean, and the pooled
+    reading SD of the method (`reading_sd`, s_r) kept: a series of n readings becomes f n readings
+    whose sum of squares is its old one plus s_r^2 (f n - n), so the pooled s_r (sum of squares
+    over degrees of freedom) stays exactly the same while its degrees of freedom grow. The
+    readings are repeated f times, their deviations scaled (or, for a single reading, spread as
+    a symmetric pattern). The series labels are repeated alongside."""
+    labels = series if series else ("",) * len(readings)
+    size = len(readings)
+    out = [0.0] * (size * factor)
+    for key in dict.fromkeys(labels):
+        idx = [i for i, lab in enumerate(labels) if lab == key]
+        n = len(idx)
+        mean = sum(readings[i] for i in idx) / n
+        dev = [readings[i] - mean for i in idx] * factor
+        ss_old = sum(d * d for d in dev) / factor
+        ss_new = ss_old + (reading_sd**2 * (factor - 1) * n if reading_sd is not None else 0.0)
+        if ss_old == 0 and ss_new > 0:  # nothing to scale: a zero-mean pattern -k..k
+            dev = [j - (factor * n - 1) / 2 for j in range(factor * n)]
+            ss_old = sum(d * d for d in dev) / factor
+        c = math.sqrt(ss_new / (factor * ss_old)) if ss_old > 0 else 0.0
+        positions = [i + k * size for k in range(factor) for i in idx]
+        for pos, d in zip(positions, dev, strict=True):
+            out[pos] = mean + c * d
+    return tuple(out), (tuple(series) * factor if series else None)
+
+
+def _with_readings(method: AssayMethod, changed: dict[str, tuple[float, ...]], factor: int,
+                   reading_sd: float | None) -> AssayMethod:
+    """The method with new readings for some solutions (and their series labels repeated)."""
+    readings, series = dict(method.readings), dict(method.reading_series)
+    for ident, values in changed.items():
+        readings[ident], labels = more_readings_alike(values, series.get(ident), factor, reading_sd)
+        if labels is not None:
+            series[ident] = labels
+    return replace(method, readings=readings, reading_series=series)
+
+
 def with_more_sample_readings(method: AssayMethod, factor: int = READING_FACTOR) -> AssayMethod:
-    """Each sample read `factor` times as often: its readings replaced by factor x m copies
-    of its mean. The mean is kept; the per-reading scatter is assumed to stay the same
-    (observed scatter: s/sqrt(m) becomes s/sqrt(factor m); bottom-up: factor m noise terms)."""
-    readings = dict(method.readings)
-    for smp in method.samples:
-        r = readings[smp.id]
-        readings[smp.id] = (sum(r) / len(r),) * (factor * len(r))
-    return replace(method, readings=readings)
+    """Each sample read `factor` times as often, its mean and the reading scatter kept
+    (`more_readings_alike`). Observed scatter: only the sample's reading term s_r/sqrt(m) falls,
+    to s_r/sqrt(factor m); its preparation scatter stays (validate.model.scatter). Bottom-up:
+    factor x m noise terms."""
+    reading_sd = _design(method).scatter_components().reading_sd
+    return _with_readings(method, {smp.id: method.readings[smp.id] for smp in method.samples}, factor, reading_sd)
 
 
 def with_more_calibration_readings(method: AssayMethod, factor: int = READING_FACTOR) -> AssayMethod:
-    """Each calibration solution read `factor` times as often, the scatter kept the same.
+    """Each calibration solution read `factor` times as often, its mean's reading part shrunk.
 
-    The N readings are repeated `factor` times with their residuals about the line
-    scaled by c = sqrt((factor N - 2) / (factor (N - 2))): the line is unchanged
-    (residuals are orthogonal to 1 and x), its residual standard deviation stays
-    s exactly, and its degrees of freedom grow from N - 2 to factor N - 2."""
+    The line is fitted through the preparations' means. With each solution read factor times as
+    often, a mean's expected variance falls from u_p^2 + s_r^2/m to u_p^2 + s_r^2/(factor m):
+    the means' residuals about the line are scaled by that ratio's square root (the line stays,
+    its degrees of freedom N - 2 stay), and each solution's readings are repeated with their
+    scatter kept (`more_readings_alike`), so s_r keeps its value and gains degrees of freedom.
+    Preparation scatter does not fall: more readings lower the reading noise only."""
     design = _design(method)
-    xs, ys, _ = design.reading_points()
-    fit = fit_line(xs, ys)
-    n = len(xs)
-    c = math.sqrt((factor * n - 2) / (factor * (n - 2)))
-    readings = dict(method.readings)
+    xs, ys, ws = design.point_data()
+    fit = fit_line(xs, ys, ws)
+    sc = design.scatter_components()
+    shrink = 1.0
+    if sc.reading_sd is not None and sc.preparation_sd is not None:
+        now = sc.preparation_sd**2 + sc.reading_sd**2 * sc.mean_inverse_count
+        then = sc.preparation_sd**2 + sc.reading_sd**2 * sc.mean_inverse_count / factor
+        shrink = math.sqrt(then / now) if now > 0 else 1.0
+    changed = {}
     for _, prep in design.fitted():
         line = fit.intercept + fit.slope * prep.concentration
-        readings[prep.solution] = tuple(line + c * (a - line) for a in prep.readings) * factor
-    return replace(method, readings=readings)
+        shift = (line + shrink * (prep.mean - line)) - prep.mean
+        changed[prep.solution] = tuple(a + shift for a in prep.readings)
+    return _with_readings(method, changed, factor, sc.reading_sd)
 
 
 def _typical_count(counts) -> int:
@@ -106,7 +150,9 @@ def _more_sample_readings(method: AssayMethod, design: CalibrationDesign) -> lis
     return [Candidate(
         "more sample readings", f"read every sample {f * m} times instead of {m}",
         f"{(f - 1) * m} more reading(s) of every sample",
-        "the scatter of one reading stays the same; the mean reading is kept",
+        "the scatter of one reading stays the same; the mean reading is kept. Only the reading noise of the "
+        "sample's mean falls: the scatter of preparing its measured solution does not average away with more "
+        "readings (to lower that, prepare the sample twice and average the two results)",
         frozenset({"sample readings"}), _SAMPLE_READINGS, {"readings_per_sample": f * m})]
 
 
@@ -115,9 +161,10 @@ def _more_calibration_readings(method: AssayMethod, design: CalibrationDesign) -
     m = _typical_count(prep.count for prep in solutions)
     f = READING_FACTOR
     if method.settings.scatter == "observed":
-        assumed = ("the residual scatter of the line stays the same and the line itself is unchanged; its "
-                   "degrees of freedom grow (lower k). The line's scatter is taken as reading scatter: if it "
-                   "comes from preparing the standards, prepare each standard twice instead")
+        assumed = ("the line itself is unchanged; the reading scatter stays the same, so only the reading part "
+                   "of each standard's mean falls (u_prep^2 + s_read^2/m becomes u_prep^2 + s_read^2/(2m)); the "
+                   "preparation scatter stays, and the line keeps its degrees of freedom (one per prepared "
+                   "solution): to lower it, prepare more standards")
     else:
         assumed = ("each reading carries the photometer's noise; each standard is still prepared once, "
                    "so its preparation terms stay as they are")
