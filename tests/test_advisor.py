@@ -18,7 +18,7 @@ from validate.advisor.readings import with_more_calibration_readings, with_more_
 from validate.inputs.method_file import load_method
 from validate.inputs.registers import find_entry, load_registers
 from validate.model.assay import build_model
-from validate.model.line import fit_line, inverse_prediction
+from validate.model.line import fit_line
 from validate.propagation.linear import propagate
 
 DEMO = DEMOS / "phosphate_assay" / "method.toml"

@@ -38,19 +38,26 @@ def more_readings_alike(readings: tuple[float, ...], series: tuple[str, ...] | N
     out = [0.0] * (size * factor)
     for key in dict.fromkeys(labels):
         idx = [i for i, lab in enumerate(labels) if lab == key]
-        n = len(idx)
-        mean = sum(readings[i] for i in idx) / n
-        dev = [readings[i] - mean for i in idx] * factor
-        ss_old = sum(d * d for d in dev) / factor
-        ss_new = ss_old + (reading_sd**2 * (factor - 1) * n if reading_sd is not None else 0.0)
-        if ss_old == 0 and ss_new > 0:  # nothing to scale: a zero-mean pattern -k..k
-            dev = [j - (factor * n - 1) / 2 for j in range(factor * n)]
-            ss_old = sum(d * d for d in dev) / factor
-        c = math.sqrt(ss_new / (factor * ss_old)) if ss_old > 0 else 0.0
+        values = _series_alike([readings[i] for i in idx], factor, reading_sd)
         positions = [i + k * size for k in range(factor) for i in idx]
-        for pos, d in zip(positions, dev, strict=True):
-            out[pos] = mean + c * d
+        for pos, value in zip(positions, values, strict=True):
+            out[pos] = value
     return tuple(out), (tuple(series) * factor if series else None)
+
+
+def _series_alike(values: list[float], factor: int, reading_sd: float | None) -> list[float]:
+    """One series' n readings as f n readings (the n repeated f times): the mean kept, the sum of
+    squares raised by s_r^2 (f n - n) (see `more_readings_alike`)."""
+    n = len(values)
+    mean = sum(values) / n
+    dev = [v - mean for v in values] * factor
+    ss_old = sum(d * d for d in dev) / factor
+    ss_new = ss_old + (reading_sd**2 * (factor - 1) * n if reading_sd is not None else 0.0)
+    if ss_old == 0 and ss_new > 0:  # nothing to scale: a zero-mean pattern -k..k
+        dev = [j - (factor * n - 1) / 2 for j in range(factor * n)]
+        ss_old = sum(d * d for d in dev) / factor
+    c = math.sqrt(ss_new / (factor * ss_old)) if ss_old > 0 else 0.0
+    return [mean + c * d for d in dev]
 
 
 def _with_readings(method: AssayMethod, changed: dict[str, tuple[float, ...]], factor: int,

@@ -23,6 +23,7 @@ covers, and which are carried bottom-up, is decided here once, per term
 
 from __future__ import annotations
 
+import math
 from collections.abc import Mapping
 from dataclasses import asdict, dataclass, replace
 
@@ -30,7 +31,7 @@ from validate.inputs.schema import Method
 from validate.model.errors import ModelError
 from validate.model.levels import Level, Preparation, ReadSolution
 from validate.model.line import fit_line
-from validate.model.scatter import ScatterComponents, scatter_components
+from validate.model.scatter import ScatterComponents, pooled_reading_sd
 from validate.model.weights import WEIGHTING_FUNCTIONS, level_weights, weight_notes
 
 MIN_LEVELS = 3  # distinct concentrations for a line with a residual scatter (n - 2 >= 1)
@@ -121,7 +122,7 @@ class CalibrationDesign:
 
     def scatter_components(self) -> ScatterComponents:
         """Reading and preparation scatter of the line at the estimates (see validate.model.scatter)."""
-        return scatter_components(self)
+        return _scatter_components(self)
 
     def sample(self, ident: str) -> ReadSolution:
         return next(s for s in self.samples if s.id == ident)
@@ -138,6 +139,27 @@ class CalibrationDesign:
         d = asdict(self)
         d["weights"] = None if self.weights is None else dict(self.weights)
         return d
+
+
+def _within_series(readings, series) -> list[list[float]]:
+    """A solution's readings split by series (day): a series effect is not reading scatter."""
+    labels = list(series) if series else [""] * len(readings)
+    return [[a for a, lab in zip(readings, labels, strict=True) if lab == key] for key in dict.fromkeys(labels)]
+
+
+def _scatter_components(design: CalibrationDesign) -> ScatterComponents:
+    """The two components of a design at the estimates (every solution of the line and every
+    sample gives its repeated readings to s_r; the line's preparations give s_m)."""
+    xs, ys, ws = design.point_data()
+    fit = fit_line(xs, ys, ws)
+    solutions = [(p.readings, p.series, design.weight(lv.id)) for lv, p in design.fitted()]
+    solutions += [(s.readings, s.series, design.weight(s.id)) for s in design.samples]
+    groups = [(g, w) for readings, series, w in solutions for g in _within_series(readings, series)]
+    s_r, dof_r = pooled_reading_sd(groups)
+    counts = [p.count for _, p in design.fitted()]
+    inv = sum(1.0 / m for m in counts) / len(counts)
+    u_p = math.sqrt(max(0.0, fit.residual_sd**2 - s_r**2 * inv)) if s_r is not None else None
+    return ScatterComponents(fit.residual_sd, fit.dof, s_r, dof_r, u_p, inv)
 
 
 def _level(method: Method, ident: str, role: str, concentrations: Mapping[str, float]) -> Level:

@@ -19,12 +19,6 @@ from __future__ import annotations
 
 import math
 from dataclasses import asdict, dataclass
-from typing import TYPE_CHECKING
-
-from validate.model.line import fit_line
-
-if TYPE_CHECKING:  # the design imports this module
-    from validate.model.design import CalibrationDesign
 
 LINE_GROUP = "calibration line"  # terms resting on s_m (one shared chi-square factor in Monte Carlo)
 READING_GROUP = "reading repeatability"  # terms resting on s_r
@@ -111,24 +105,3 @@ def pooled_reading_sd(groups: list[tuple[list[float], float]]) -> tuple[float | 
             ss += weight * sum((a - mean) ** 2 for a in readings)
             dof += len(readings) - 1
     return (math.sqrt(ss / dof), dof) if dof else (None, 0)
-
-
-def _within_series(readings, series) -> list[list[float]]:
-    """A solution's readings split by series (day): a series effect is not reading scatter."""
-    labels = list(series) if series else [""] * len(readings)
-    return [[a for a, lab in zip(readings, labels, strict=True) if lab == key] for key in dict.fromkeys(labels)]
-
-
-def scatter_components(design: CalibrationDesign) -> ScatterComponents:
-    """The two components of a design at the estimates (every solution of the line and every
-    sample gives its repeated readings to s_r; the line's preparations give s_m)."""
-    xs, ys, ws = design.point_data()
-    fit = fit_line(xs, ys, ws)
-    solutions = [(p.readings, p.series, design.weight(lv.id)) for lv, p in design.fitted()]
-    solutions += [(s.readings, s.series, design.weight(s.id)) for s in design.samples]
-    groups = [(g, w) for readings, series, w in solutions for g in _within_series(readings, series)]
-    s_r, dof_r = pooled_reading_sd(groups)
-    counts = [p.count for _, p in design.fitted()]
-    inv = sum(1.0 / m for m in counts) / len(counts)
-    u_p = math.sqrt(max(0.0, fit.residual_sd**2 - s_r**2 * inv)) if s_r is not None else None
-    return ScatterComponents(fit.residual_sd, fit.dof, s_r, dof_r, u_p, inv)

@@ -80,29 +80,27 @@ def variance_function(levels: Sequence[Level]) -> tuple[float, float, float]:
     return fit.intercept, fit.slope, 0.1 * pooled
 
 
+def _sd_function(levels: Sequence[Level], how: str):
+    """c -> s(c): the fitted variance function, or the trend of the levels' own SDs (for samples)."""
+    if how == "variance-function":
+        a, b, floor = variance_function(levels)
+        return lambda x0: max(a + b * x0, floor)
+    sds = [level_sd(lv) for lv in levels]
+    trend = _sd_trend([lv.concentration for lv in levels], sds)
+    line = (trend.intercept, trend.slope) if trend else None
+    return lambda x0: _at(line, x0, sds)
+
+
 def level_weights(levels: Sequence[Level], samples: Sequence[ReadSolution],
                   how: str = "inverse-variance") -> dict[str, float]:
     """Weight of one point of every level and sample (id -> weight), mean one over the points."""
     unweighted = fit_line([p.concentration for lv in levels for p in lv.preparations],
                           [p.mean for lv in levels for p in lv.preparations])
-    if how == "variance-function":
-        a, b, floor = variance_function(levels)
-
-        def s_at(x0: float) -> float:
-            return max(a + b * x0, floor)
-
-        raw = {lv.id: 1.0 / s_at(lv.concentration) ** 2 for lv in levels}
-    elif how == "inverse-variance":
-        sds = [level_sd(lv) for lv in levels]
-        trend = _sd_trend([lv.concentration for lv in levels], sds)
-        line = (trend.intercept, trend.slope) if trend else None
-
-        def s_at(x0: float) -> float:
-            return _at(line, x0, sds)
-
-        raw = {lv.id: 1.0 / sd**2 for lv, sd in zip(levels, sds, strict=True)}
-    else:
+    if how not in WEIGHTING_FUNCTIONS:
         raise ValueError(f"unknown weighting {how!r}")
+    s_at = _sd_function(levels, how)
+    raw = {lv.id: 1.0 / (s_at(lv.concentration) if how == "variance-function" else level_sd(lv)) ** 2
+           for lv in levels}
     for smp in samples:
         raw[smp.id] = 1.0 / s_at(inverse_prediction(unweighted, smp.readings).value) ** 2
     points = sum(len(lv.preparations) for lv in levels)
