@@ -161,3 +161,30 @@ def test_weights_warn_on_few_readings_and_the_variance_function_is_offered(tmp_p
         first = design.weight(design.levels[0].id) * max(a + b * design.levels[0].concentration, floor) ** 2
         assert ratio == pytest.approx(first, rel=1e-9)
     assert np.mean([design.weight(lv.id) for lv in design.levels]) == pytest.approx(1.0, rel=1e-12)
+
+
+def test_preparations_recorded_under_one_id(tmp_path):
+    # The readings table's `preparation` column: a second, independent preparation of S4 recorded
+    # under the id S4 gives the same level of two preparations as a separate solution entry does,
+    # and the same lack-of-fit test (Draper and Smith, 2.1). Invented readings.
+    from conftest import copy_demo
+
+    folder = copy_demo(tmp_path)
+    edit_text(folder, "id,absorbance,series", "id,absorbance,series,preparation", name="readings.csv", count=1)
+    for old in ("S4,0.3406,day 1", "S4,0.3388,day 1", "S4,0.3456,day 1"):
+        edit_text(folder, old, old + ",1", name="readings.csv", count=1)
+    edit_text(folder, "S6,0.5054,day 1", "S4,0.3441,day 1,2\nS4,0.3452,day 1,2\nS4,0.3430,day 1,2\nS6,0.5054,day 1",
+              name="readings.csv", count=1)
+    run = api.analyse(folder / "method.toml", trials=None, advice=False)
+    s4 = next(lv for lv in run.model.design.levels if lv.id == "S4")
+    assert [p.key for p in s4.preparations] == ["S4 (preparation 1)", "S4 (preparation 2)"]
+    assert [p.readings for p in s4.preparations] == [(0.3406, 0.3388, 0.3456), (0.3441, 0.3452, 0.3430)]
+    lof = run.record["validation"]["lack_of_fit"]
+    assert lof["evaluable"] and tuple(lof["dof"]) == (5, 1)
+    assert "calibration scatter, S4 (preparation 2)" in run.model.sources
+    # bottom-up, the two preparations would share one set of preparation terms: refused
+    from validate.inputs.errors import InputError
+
+    path = edit_text(folder, 'scatter = "observed"', 'scatter = "bottom-up"', count=1)
+    with pytest.raises(InputError, match="own solution entry"):
+        api.check(path)

@@ -62,13 +62,20 @@ def _series_alike(values: list[float], factor: int, reading_sd: float | None) ->
 
 def _with_readings(method: AssayMethod, changed: dict[str, tuple[float, ...]], factor: int,
                    reading_sd: float | None) -> AssayMethod:
-    """The method with new readings for some solutions (and their series labels repeated)."""
+    """The method with new readings for some solutions, grouped by series and preparation label
+    (repeated readings of one solution on one day), the labels repeated alongside."""
     readings, series = dict(method.readings), dict(method.reading_series)
+    preparations = dict(method.reading_preparations)
     for ident, values in changed.items():
-        readings[ident], labels = more_readings_alike(values, series.get(ident), factor, reading_sd)
-        if labels is not None:
-            series[ident] = labels
-    return replace(method, readings=readings, reading_series=series)
+        day, prep = series.get(ident), preparations.get(ident)
+        groups = tuple(zip(day or ("",) * len(values), prep or ("",) * len(values), strict=True))
+        readings[ident], _ = more_readings_alike(values, tuple(f"{d}\x00{p}" for d, p in groups), factor,
+                                                 reading_sd)
+        if day:
+            series[ident] = tuple(day) * factor
+        if prep:
+            preparations[ident] = tuple(prep) * factor
+    return replace(method, readings=readings, reading_series=series, reading_preparations=preparations)
 
 
 def with_more_sample_readings(method: AssayMethod, factor: int = READING_FACTOR) -> AssayMethod:
@@ -98,11 +105,17 @@ def with_more_calibration_readings(method: AssayMethod, factor: int = READING_FA
         now = sc.preparation_sd**2 + sc.reading_sd**2 * sc.mean_inverse_count
         then = sc.preparation_sd**2 + sc.reading_sd**2 * sc.mean_inverse_count / factor
         shrink = math.sqrt(then / now) if now > 0 else 1.0
-    changed = {}
+    shifts: dict[tuple[str, str | None], float] = {}
     for _, prep in design.fitted():
         line = fit.intercept + fit.slope * prep.concentration
-        shift = (line + shrink * (prep.mean - line)) - prep.mean
-        changed[prep.solution] = tuple(a + shift for a in prep.readings)
+        shifts[(prep.solution, prep.label)] = (line + shrink * (prep.mean - line)) - prep.mean
+    changed = {}
+    for ident in dict.fromkeys(ident for ident, _ in shifts):
+        labels = method.reading_preparations.get(ident)
+        values = method.readings[ident]
+        keys = [(ident, lab if labels and len(set(labels)) > 1 else None)
+                for lab in (labels or (None,) * len(values))]
+        changed[ident] = tuple(a + shifts[k] for a, k in zip(values, keys, strict=True))
     return _with_readings(method, changed, factor, sc.reading_sd)
 
 

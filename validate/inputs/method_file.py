@@ -15,7 +15,12 @@ from validate.inputs.consistency import check_ids
 from validate.inputs.equilibrium_file import check_equilibrium_readings, parse_equilibrium
 from validate.inputs.equipment_section import parse_item
 from validate.inputs.errors import InputError
-from validate.inputs.readings import load_reading_series, load_readings, read_text_file
+from validate.inputs.readings import (
+    load_reading_preparations,
+    load_reading_series,
+    load_readings,
+    read_text_file,
+)
 from validate.inputs.redirect import Redirect
 from validate.inputs.registers import load_registers
 from validate.inputs.routine_section import parse_routine
@@ -103,12 +108,14 @@ def _assay_method(top: Table, path: Path, common: dict, extra: list[Path], defau
     check_ids(samples, solutions, quantities, path)
     readings: dict[str, tuple[float, ...]] = {}
     series: dict[str, tuple[str, ...]] = {}
+    preparations: dict[str, tuple[str, ...]] = {}
     notes: list[str] = []
     readings_path = None
     if calibration is not None:
         readings_path = _located(path.parent / calibration.readings_file, "readings table", redirect)
         readings = load_readings(readings_path)
         series = load_reading_series(readings_path)
+        preparations = load_reading_preparations(readings_path)
         check_readings(readings, calibration, samples, readings_path, notes)
     parts = AssayParts(str(path), solutions, calibration, samples, quantities)
     result = parse_result(top, parts)
@@ -117,7 +124,8 @@ def _assay_method(top: Table, path: Path, common: dict, extra: list[Path], defau
                             defaults, items=items, solutions=solutions,
                             reads_samples="c_measured" in result.formula.names)
     return AssayMethod(**common, calibration=calibration, samples=samples, quantities=quantities, result=result,
-                       readings=readings, reading_series=series, validation=validation, routine=routine,
+                       readings=readings, reading_series=series, reading_preparations=preparations,
+                       validation=validation, routine=routine,
                        input_files=_input_files(path, readings_path, *extra),
                        defaults_shown=tuple(defaults), notes=tuple(notes))
 

@@ -152,17 +152,29 @@ def load_reading_series(path: Path) -> dict[str, tuple[str, ...]]:
     """The optional `series` column (a day, analyst or instrument label per reading), by id,
     in the order of the readings; {} when the table has no such column. Call after
     `load_readings`, which has checked the table."""
+    return _label_column(path, "series", "give every reading its series (e.g. the day or analyst), or drop the column")
+
+
+def load_reading_preparations(path: Path) -> dict[str, tuple[str, ...]]:
+    """The optional `preparation` column, by id: readings of one id with one label are repeated
+    readings of one solution; different labels under one id are independent preparations of
+    that solution's recipe (for a laboratory that records them under one id)."""
+    return _label_column(path, "preparation", None)
+
+
+def _label_column(path: Path, column: str, fix: str | None) -> dict[str, tuple[str, ...]]:
+    """One label per reading from an optional column, by id; an empty cell is refused where
+    `fix` says how to fill it, and is the label "" otherwise."""
     rows = _rows(read_text_file(path, "readings table"))
     header = [h.strip().lower() for h in rows[0][1]]
-    if "series" not in header:
+    if column not in header:
         return {}
-    i_id, i_s = header.index("id"), header.index("series")
-    series: dict[str, list[str]] = {}
+    i_id, i_s = header.index("id"), header.index(column)
+    labels: dict[str, list[str]] = {}
     for line_no, row in rows[1:]:
         where = f"row at line {line_no}"
         label = clean_text(row[i_s].strip(), file=path, where=where) if len(row) > i_s else ""
-        if not label:
-            raise InputError("the series is empty", file=path, where=where,
-                             fix="give every reading its series (e.g. the day or analyst), or drop the column")
-        series.setdefault(clean_id(row[i_id].strip(), file=path), []).append(label)
-    return {k: tuple(v) for k, v in series.items()}
+        if not label and fix is not None:
+            raise InputError(f"the {column} is empty", file=path, where=where, fix=fix)
+        labels.setdefault(clean_id(row[i_id].strip(), file=path), []).append(label)
+    return {k: tuple(v) for k, v in labels.items()}

@@ -169,6 +169,8 @@ class MethodCommon:
     solutions: dict[str, Solution]
     readings: dict[str, tuple[float, ...]] = field(default_factory=dict)
     reading_series: dict[str, tuple[str, ...]] = field(default_factory=dict)  # optional day/analyst labels
+    # optional preparation labels: independent preparations recorded under one solution id
+    reading_preparations: dict[str, tuple[str, ...]] = field(default_factory=dict)
     input_files: tuple[str, ...] = ()
     defaults_shown: tuple[str, ...] = ()  # every default the loader applied, in plain words
     notes: tuple[str, ...] = ()  # warnings about the input that do not stop the run

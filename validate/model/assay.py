@@ -76,7 +76,7 @@ class Model(SolutionInputs):
         fitted = design.fitted()
         intercept, slope = straight_line(
             [1] * len(fitted), [conc[p.solution] for _, p in fitted],
-            [self._reading_terms[p.solution](x) for _, p in fitted],
+            [self._reading_terms[p.key](x) for _, p in fitted],
             [design.weight(lv.id) for lv, _ in fitted] if design.weighted else None)
         return backend.collapse(intercept), backend.collapse(slope)  # shared by every sample's result
 
@@ -141,9 +141,9 @@ def _calibration_terms(model: Model, ss: SourceSet, cal: Calibration, samples, o
     model.assumptions.extend(design.notes)
     scatter = _observed_scatter(design, samples) if observed else None
     for lv, p in design.fitted():
-        terms = [scatter.point_term(p.solution, p.count, design.weight(lv.id))] if scatter else None
-        model._reading_terms[p.solution] = mean_reading_term(ss, method, p.solution, p.readings, terms,
-                                                             cal.cuvette, cal.photometer)
+        terms = [scatter.point_term(p.key, p.count, design.weight(lv.id))] if scatter else None
+        model._reading_terms[p.key] = mean_reading_term(ss, method, p.key, p.readings, terms,
+                                                        cal.cuvette, cal.photometer)
     for smp in samples:
         read = design.sample(smp.id)
         terms = scatter.sample_terms(smp.id, read.count, design.weight(smp.id)) if scatter else None

@@ -26,6 +26,7 @@ from __future__ import annotations
 import math
 from collections.abc import Mapping
 from dataclasses import asdict, dataclass, replace
+from pathlib import Path
 
 from validate.inputs.schema import Method
 from validate.model.errors import ModelError
@@ -117,8 +118,8 @@ class CalibrationDesign:
         return xs, ys, ws
 
     def point_ids(self) -> list[str]:
-        """The solution id of every preparation on the line, in fit order."""
-        return [p.solution for _, p in self.fitted()]
+        """The name of every preparation on the line (`Preparation.key`), in fit order."""
+        return [p.key for _, p in self.fitted()]
 
     def scatter_components(self) -> ScatterComponents:
         """Reading and preparation scatter of the line at the estimates (see validate.model.scatter)."""
@@ -163,9 +164,34 @@ def _scatter_components(design: CalibrationDesign) -> ScatterComponents:
 
 
 def _level(method: Method, ident: str, role: str, concentrations: Mapping[str, float]) -> Level:
-    prep = Preparation(ident, concentrations[ident], tuple(method.readings[ident]),
-                       method.reading_series.get(ident))
-    return Level(ident, role, (prep,))
+    """A solution's level: one preparation, or one per label of the readings table's
+    `preparation` column (independent preparations recorded under one id)."""
+    readings, series = tuple(method.readings[ident]), method.reading_series.get(ident)
+    labels = method.reading_preparations.get(ident)
+    if not labels or len(set(labels)) == 1:
+        return Level(ident, role, (Preparation(ident, concentrations[ident], readings, series),))
+    _check_split(method, ident)
+    preps = []
+    for label in dict.fromkeys(labels):
+        idx = [i for i, lab in enumerate(labels) if lab == label]
+        preps.append(Preparation(ident, concentrations[ident], tuple(readings[i] for i in idx),
+                                 tuple(series[i] for i in idx) if series else None, label))
+    return Level(ident, role, tuple(preps))
+
+
+def _check_split(method: Method, ident: str) -> None:
+    """Independent preparations under one id share the solution's recipe, and so its terms:
+    right where the observed scatter covers their random effects, wrong bottom-up."""
+    if method.settings.scatter != "observed":
+        from validate.inputs.errors import InputError
+
+        cal = method.calibration
+        raise InputError(f"`{ident}` has readings of several preparations (the readings table's preparation "
+                         f"column); bottom-up, each preparation needs its own preparation terms",
+                         file=Path(method.path).parent / cal.readings_file if cal else method.path,
+                         where=f"readings of {ident}",
+                         fix="give each independent preparation its own solution entry (e.g. S4a, S4b) in the "
+                             "method file, or use scatter = \"observed\"")
 
 
 def _levels(method: Method, idents, role: str, concentrations: Mapping[str, float]) -> tuple[Level, ...]:
@@ -193,6 +219,7 @@ def calibration_design(method: Method, concentrations: Mapping[str, float]) -> C
     standards = _levels(method, cal.standards, "standard", concentrations)
     blanks = _levels(method, cal.blanks, "blank", concentrations)
     samples = tuple(_read(method, s.id) for s in method.samples)
+    _check_sample_preparations(method)
     design = CalibrationDesign(standards + (blanks if cal.blanks_in_fit else ()), blanks,
                                cal.blanks_in_fit, samples, scatter=method.settings.scatter)
     check_calibration_data(method, design)
@@ -202,11 +229,24 @@ def calibration_design(method: Method, concentrations: Mapping[str, float]) -> C
     return design
 
 
+def _check_sample_preparations(method: Method) -> None:
+    """A sample is one measured solution here; several preparations of one sample under one id are
+    not averaged silently."""
+    from validate.inputs.errors import InputError
+
+    cal = method.calibration
+    for smp in method.samples:
+        if len(set(method.reading_preparations.get(smp.id, ()))) > 1:
+            raise InputError(f"sample `{smp.id}` has readings of several preparations (the readings table's "
+                             f"preparation column); a sample is read off the line as one measured solution",
+                             file=Path(method.path).parent / cal.readings_file if cal else method.path,
+                             where=f"readings of {smp.id}",
+                             fix="give each preparation of the sample its own sample id, or one preparation label")
+
+
 def check_calibration_data(method: Method, design: CalibrationDesign) -> None:
     """At least MIN_LEVELS distinct concentrations (InputError, exit 2), and a line that
     rises with concentration (a data problem: ModelError, exit 3)."""
-    from pathlib import Path
-
     from validate.inputs.errors import InputError
 
     cal = method.calibration

@@ -24,10 +24,16 @@ class RepeatedReadings:
 class Preparation(RepeatedReadings):
     """One solution made for a calibration level, and its repeated readings."""
 
-    solution: str  # id of the solution read
+    solution: str  # id of the solution read (its recipe: one concentration at the estimates)
     concentration: float  # SI, at the estimates of the inputs
     readings: tuple[float, ...]
     series: tuple[str, ...] | None = None  # series label (day, analyst) of each reading
+    label: str | None = None  # the readings table's preparation label, where one id holds several
+
+    @property
+    def key(self) -> str:
+        """The preparation's own name: the solution id, with its preparation label if any."""
+        return self.solution if self.label is None else f"{self.solution} (preparation {self.label or '-'})"
 
 
 @dataclass(frozen=True)

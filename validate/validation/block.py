@@ -82,7 +82,9 @@ def predicted_scatter(method: AssayMethod, slope_abs_per_unit: float) -> tuple[f
     from uncertainties import ufloat
 
     cal = _calibration(method)
-    bottom_up = dataclasses.replace(method, settings=dataclasses.replace(method.settings, scatter="bottom-up"))
+    # the prediction is per recipe: preparations recorded under one id are one solution here
+    bottom_up = dataclasses.replace(method, settings=dataclasses.replace(method.settings, scatter="bottom-up"),
+                                    reading_preparations={})
     model = build_model(bottom_up)
     variables = {n: ufloat(s.value, s.u, tag=n) for n, s in model.sources.items()}
     conc = model.concentrations(variables)
