@@ -286,17 +286,24 @@ def _trueness(v: dict) -> list:
 
 
 def _scatter(record: dict, v: dict) -> list:
-    sc = v.get("scatter_consistency") or record.get("scatter_consistency")
+    out = []
+    for sc in (v.get("scatter_consistency") or record.get("scatter_consistency"), v.get("reading_noise_consistency")):
+        out += _scatter_check(sc)
+    return out
+
+
+def _scatter_check(sc) -> list:
+    """One chi-square check of an observed scatter against its bottom-up prediction."""
     if not isinstance(sc, dict):
         return []
     ok = "consistent" in (sc.get("verdict") or "")
-    return [heading("Observed scatter against the bottom-up budget", 2), key_value_table([
-        ("observed residual SD", f"{num(sc.get('observed_sd'), 3)} (absorbance)"),
-        ("SD predicted by the budget", f"{num(sc.get('predicted_sd'), 3)} (absorbance)"),
-        ("χ², degrees of freedom", f"{num(sc.get('chi_square'), 4)}, {sc.get('dof', DASH)}"),
-        ("p (excess), p (deficit)", f"{num(sc.get('p_excess'), 3)}, {num(sc.get('p_deficit'), 3)}"),
-        ("verdict", coloured(sc.get("verdict", DASH), ok))]),
-        para(sc.get("source", ""), "note")]
+    rows = [("observed SD", f"{num(sc.get('observed_sd'), 3)} (absorbance)"),
+            ("SD predicted by the budget", f"{num(sc.get('predicted_sd'), 3)} (absorbance)"),
+            ("χ², degrees of freedom", f"{num(sc.get('chi_square'), 4)}, {sc.get('dof', DASH)}"),
+            ("p (excess), p (deficit)", f"{num(sc.get('p_excess'), 3)}, {num(sc.get('p_deficit'), 3)}"),
+            ("verdict", coloured(sc.get("verdict", DASH), ok))]
+    return [heading("Observed scatter against the bottom-up budget", 2), para(sc.get("compared", ""), "note"),
+            key_value_table(rows), para(sc.get("source", ""), "note")]
 
 
 def precision_trueness(record: dict) -> list | None:

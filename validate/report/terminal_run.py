@@ -78,11 +78,12 @@ def _limit_lines(v: dict) -> list[Printable]:
 
 def _scatter_and_window(v: dict) -> list[Printable]:
     lines: list[Printable] = []
-    sc = v.get("scatter_consistency")
-    if sc:
-        lines.append(Line(f"  scatter against the bottom-up budget: {escape(sc['verdict'])} (observed SD "
-                          f"{compact(sc['observed_sd'], 3)}, predicted {compact(sc['predicted_sd'], 3)})",
-                          soft_wrap=True))
+    for key, what in (("scatter_consistency", "scatter of the preparation means against the budget"),
+                      ("reading_noise_consistency", "pure error against the photometer's reading noise")):
+        sc = v.get(key)
+        if sc:
+            lines.append(Line(f"  {what}: {escape(sc['verdict'])} (observed SD {compact(sc['observed_sd'], 3)}, "
+                              f"predicted {compact(sc['predicted_sd'], 3)})", soft_wrap=True))
     window = v["window_flags"]
     if window.get("outside"):
         lines.append(Line(f"  [yellow]note[/] {window['outside']} reading(s) outside the absorbance window "
