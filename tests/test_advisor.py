@@ -305,7 +305,10 @@ def test_more_calibration_readings_keep_the_line_and_the_preparation_scatter(dem
     assert sc_new.reading_sd == pytest.approx(sc_old.reading_sd, rel=1e-12)
     assert sc_new.reading_dof > sc_old.reading_dof
     assert sc_new.preparation_sd == pytest.approx(sc_old.preparation_sd, rel=1e-9)
-    assert sc_new.means_sd**2 == pytest.approx(sc_old.preparation_sd**2 + sc_old.reading_sd**2 / (2 * m), rel=1e-9)
+    # the means' expected variance u_p^2 + s_r^2/m becomes u_p^2 + s_r^2/(2m); s_m follows that ratio
+    ratio = ((sc_old.preparation_sd**2 + sc_old.reading_sd**2 / (2 * m))
+             / (sc_old.preparation_sd**2 + sc_old.reading_sd**2 / m))
+    assert sc_new.means_sd**2 == pytest.approx(sc_old.means_sd**2 * ratio, rel=1e-9)
 
 
 def test_readings_outside_the_window_get_qualitative_advice(demo, demo_report):

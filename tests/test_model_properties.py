@@ -142,8 +142,7 @@ def test_observed_scatter_reproduces_the_inverse_prediction_formula():
     ys = np.array([np.mean(method.readings[i]) for i in ids])
     b, a = np.polyfit(xs, ys, 1)
     s_m2 = float(np.sum((ys - a - b * xs) ** 2)) / (len(xs) - 2)
-    sample_ids = [s.id for s in method.samples]
-    s_r, _ = _pooled_within(_demo_groups(method, ids + sample_ids))
+    s_r, _ = _pooled_within(_demo_groups(method, ids))  # repeated readings of the line's solutions
     m = len(method.readings["S1"])
     assert all(len(method.readings[i]) == m for i in ids)
     u_p2 = max(0.0, s_m2 - s_r**2 / m)
@@ -192,8 +191,8 @@ def test_weighted_line_reproduces_the_weighted_inverse_prediction(tmp_path):
     assert slope * path * 1e-3 == pytest.approx(b, rel=1e-9)  # per mol/m^3 -> per µmol/L
     assert intercept * path == pytest.approx(a, rel=1e-9)
     s_m2 = float(np.sum(w * (ys - a - b * xs) ** 2)) / (len(xs) - 2)
-    groups = _demo_groups(method, ids + [s.id for s in method.samples])
-    owners = [i for i in ids + [s.id for s in method.samples]
+    groups = _demo_groups(method, ids)
+    owners = [i for i in ids
               for _ in dict.fromkeys(method.reading_series.get(i) or [""])]
     ss = sum(weight(o) * sum((v - np.mean(g)) ** 2 for v in g) for o, g in zip(owners, groups, strict=True))
     s_r2 = ss / sum(len(g) - 1 for g in groups if len(g) >= 2)

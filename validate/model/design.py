@@ -149,12 +149,12 @@ def _within_series(readings, series) -> list[list[float]]:
 
 
 def _scatter_components(design: CalibrationDesign) -> ScatterComponents:
-    """The two components of a design at the estimates (every solution of the line and every
-    sample gives its repeated readings to s_r; the line's preparations give s_m)."""
+    """The two components of a design at the estimates: the repeated readings of the line's
+    solutions give s_r (the pure error of ISO 8466-1), the preparations' means give s_m."""
     xs, ys, ws = design.point_data()
     fit = fit_line(xs, ys, ws)
+    # the line's own solutions only: a sample's readings never change another sample's uncertainty
     solutions = [(p.readings, p.series, design.weight(lv.id)) for lv, p in design.fitted()]
-    solutions += [(s.readings, s.series, design.weight(s.id)) for s in design.samples]
     groups = [(g, w) for readings, series, w in solutions for g in _within_series(readings, series)]
     s_r, dof_r = pooled_reading_sd(groups)
     counts = [p.count for _, p in design.fitted()]

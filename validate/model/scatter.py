@@ -6,7 +6,7 @@ readings of preparation i (Searle, Casella and McCulloch, Variance Components (1
 one-way random model, from memory; the same split as ISO 5725-2's repeatability and
 between-laboratory terms):
 
-    s_r^2 = sum_i sum_k (y_ik - ybar_i)^2 / sum_i (m_i - 1)    (pooled within solutions and series)
+    s_r^2 = sum_i sum_k (y_ik - ybar_i)^2 / sum_i (m_i - 1)    (pooled within the line's solutions and series)
     s_m^2 = residual variance of the preparations' means about the line, N - 2 degrees of freedom
     u_p^2 = max(0, s_m^2 - s_r^2 mean(1/m_i))                  (preparation scatter)
 
