@@ -369,9 +369,11 @@ def _weighting_advice(significant: bool, reps, already_weighted: bool) -> str:
         if np.std(rsds) / np.mean(rsds) < np.std(sds) / np.mean(sds):
             return ("use a weighted fit with w = 1/x^2 (relative SD about constant; not "
                     f"defined for a blank standard at x = 0): {why}")
-        return f"use a weighted fit with w = 1/s_i^2 from the replicate SDs: {why}"
-    return ("use a weighted fit, w = 1/s_i^2 from replicate readings of each standard, or "
-            f"w = 1/x^2 if the relative SD is about constant: {why}")
+        return (f"use a weighted fit with a variance function s = a + b c fitted over every level "
+                f"(weighting = \"variance-function\"; 1/s_i^2 of each level's own replicates is noisy below "
+                f"5 readings per level): {why}")
+    return ("use a weighted fit, w = 1/s(c)^2 from a variance function s = a + b c fitted over the "
+            f"levels' replicate SDs, or w = 1/x^2 if the relative SD is about constant: {why}")
 
 
 def linearity_tests(fit: LineFit, alpha: float = 0.05, replicate_sds=None) -> dict[str, SignificanceTest]:
