@@ -188,3 +188,16 @@ def test_preparations_recorded_under_one_id(tmp_path):
     path = edit_text(folder, 'scatter = "observed"', 'scatter = "bottom-up"', count=1)
     with pytest.raises(InputError, match="own solution entry"):
         api.check(path)
+
+
+def test_an_equilibrium_study_line_is_judged_on_its_prepared_standards():
+    # The standards' line of a study is judged on one point per prepared standard (their mean
+    # readings), as a method's line is: five standards read three times are five points, n - 2 = 3.
+    method, model = api.check(DEMOS / "nickel_complex" / "method.toml")
+    from validate.validation.block import equilibrium_validation_block
+
+    block = equilibrium_validation_block(model)
+    standards = method.equilibrium.standards
+    assert block["fit"]["n"] == len(standards) and block["fit"]["dof"] == len(standards) - 2
+    assert block["fit"]["y"] == pytest.approx([statistics.fmean(method.readings[s.id]) for s in standards])
+    assert not block["lack_of_fit"]["evaluable"]  # one preparation per level: no pure error

@@ -294,6 +294,12 @@ class EquilibriumDesign:
         """Limiting-reagent total (divided by `factor`) and absorbance of every standard's reading."""
         return _reading_points(self.standards, factor)
 
+    def point_data(self, factor: float = 1.0) -> tuple[list[float], list[float]]:
+        """Limiting-reagent total (divided by `factor`) and mean absorbance of every prepared
+        standard: the line's statistical units (repeated readings of one solution averaged)."""
+        preps = [p for lv in self.standards for p in lv.preparations]
+        return [p.concentration / factor for p in preps], [p.mean for p in preps]
+
     def every_reading(self) -> list[float]:
         return [a for lv in self.standards for a in lv.readings] + [a for p in self.points for a in p.readings]
 

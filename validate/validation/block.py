@@ -267,14 +267,17 @@ def equilibrium_validation_block(model: EquilibriumModel) -> dict:
     """The line of an equilibrium study's standards, judged as a calibration: absorbance
     against the limiting reagent's total, before any correction for incomplete complexation."""
     method, study = model.method, model.study
-    xs, ys = model.design.reading_points(study.concentration_unit.factor)
+    factor = study.concentration_unit.factor
+    xs, ys = model.design.point_data(factor)  # one point per prepared standard
+    reps = [(lv.concentration / factor, lv.count, statistics.stdev(lv.readings)) for lv in model.design.standards
+            if lv.count >= 2]
     cell = method.item_of(study.cuvette, Cuvette) if study.cuvette else None
     path = cell.path if cell is not None else None
     v = method.validation
     summary = validate_calibration(
         xs, ys, alpha=v.alpha, beta=v.beta,
         path_length_cm=path * 100 if cell is not None and path is not None else None,
-        path_length_u=cell.tolerance / math.sqrt(3) * 100 if cell else None)
+        path_length_u=cell.tolerance / math.sqrt(3) * 100 if cell else None, replicate_sds=reps)
     criteria = evaluate_criteria(v.acceptance, summary.observed_for_criteria())
     block = plain(summary)
     block.update({
