@@ -126,3 +126,17 @@ def test_two_preparations_per_level_read_three_times():
     assert abs(after_lof - ALPHA) <= 0.02 and abs(after_mandel - ALPHA) <= 0.02, (after_lof, after_mandel)
     print(f"\n5 x 2 x 3: before lack-of-fit {before_lof:.3f}; after lack-of-fit {after_lof:.3f}, "
           f"Mandel {after_mandel:.3f}")
+
+
+def test_a_bare_table_is_fitted_row_by_row_and_says_so():
+    # A bare table states no structure: every row is a point (as EURACHEM/CITAC CG4 Example A5
+    # fits its calibration, from memory), and the output says what that means for the tests.
+    from conftest import DEMOS
+
+    from validate.validation.quickcheck import quick_check
+
+    table = DEMOS / "quick_table" / "standards.csv"
+    result = quick_check(table)
+    rows = [ln for ln in table.read_text().splitlines() if ln.strip() and not ln.startswith("#")][1:]  # no header
+    assert result["points"] == "every row" and result["n"] == len(rows)
+    assert any("every row is fitted as an independent point" in note for note in result["notes"])
