@@ -11,6 +11,8 @@ import statistics
 import numpy as np
 import pytest
 from conftest import DEMOS, edit_text
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from scipy import stats
 
 from validate.model.assay import build_model
@@ -201,3 +203,28 @@ def test_an_equilibrium_study_line_is_judged_on_its_prepared_standards():
     assert block["fit"]["n"] == len(standards) and block["fit"]["dof"] == len(standards) - 2
     assert block["fit"]["y"] == pytest.approx([statistics.fmean(method.readings[s.id]) for s in standards])
     assert not block["lack_of_fit"]["evaluable"]  # one preparation per level: no pure error
+
+
+@given(st.lists(st.lists(st.floats(-0.01, 0.01), min_size=2, max_size=5), min_size=4, max_size=7),
+       st.integers(1, 12))
+@settings(max_examples=60, deadline=None)
+def test_components_add_up_to_the_means_scatter(noise, m0):
+    # Property of the split (one-way random model): where u_p is not truncated at zero, a sample
+    # read as often as the standards carries exactly the means' scatter s_m^2, and in general
+    # u^2 = u_p^2 + s_r^2/m0 never falls below u_p^2. Invented readings about a true line.
+    from validate.model.design import CalibrationDesign
+
+    levels = tuple(Level(f"L{i}", "standard", (Preparation(f"L{i}", float(i), tuple(0.1 * i + 0.05 + d for d in r)),))
+                   for i, r in enumerate(noise))
+    design = CalibrationDesign(levels, (), False, ())
+    sc = design.scatter_components()
+    if sc.reading_sd is None or sc.reading_sd == 0 or sc.means_sd == 0:
+        return
+    var = sc.sample_variance(m0, 1.0)
+    assert var == pytest.approx(sc.preparation_sd**2 + sc.reading_sd**2 / m0, rel=1e-9, abs=1e-18)
+    assert var >= sc.preparation_sd**2
+    counts = {lv.count for lv in levels}
+    if len(counts) == 1 and sc.preparation_sd > 0:
+        (m,) = counts
+        assert sc.sample_variance(m, 1.0) == pytest.approx(sc.means_sd**2, rel=1e-9)
+        assert all(sc.point_term(lv.id, m, 1.0).u == pytest.approx(sc.means_sd, rel=1e-12) for lv in levels)
