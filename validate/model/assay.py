@@ -191,7 +191,7 @@ def solution_term(ss: SourceSet, method: Method, sol, is_standard_observed: bool
 def _weighed_term(ss: SourceSet, method: Method, sol: Weighed, step: str, is_standard_observed: bool):
     flask = volume_term(ss, method, sol.flask, step, sol.id, not is_standard_observed)
     mass = value_source(ss, f"{sol.id}: mass", sol.mass, step)
-    balance = balance_terms(ss, method, sol.balance, sol.id, step) if sol.balance else []
+    balance = balance_terms(ss, method, sol, step) if sol.balance else []
     purity = value_source(ss, f"{sol.id}: purity", sol.purity, step) if sol.purity else None
     molar = value_source(ss, f"{sol.id}: molar mass", sol.molar_mass, step) if sol.molar_mass else None
     m0 = sol.mass.value
@@ -200,8 +200,8 @@ def _weighed_term(ss: SourceSet, method: Method, sol: Weighed, step: str, is_sta
 
     def term(x, conc):
         m = exact_or(x, mass, m0)
-        for b in balance:
-            m = m + x[b]
+        for sign, b in balance:
+            m = m + sign * x[b]
         c = m * exact_or(x, purity, p0) / flask(x)
         return c / exact_or(x, molar, mm0) if mm0 is not None else c
 
