@@ -167,7 +167,7 @@ def parse_uncertain(raw, parent: Table, key: str, dims=None, positive=True, bare
 def _no_uncertainty(error, key: str, raw, where_key: str | None = "") -> InputError:
     """The refusal of a value without an uncertainty; `error` is the table's error method."""
     shown = raw if isinstance(raw, str) else "..."
-    return error(f"`{key}` is given without an uncertainty; it would enter the result as exact",
+    return error(f"`{key}` has no uncertainty; a number without one would enter the result as exact",
                  key if where_key == "" else where_key,
                  fix=f'give its uncertainty, e.g. {key} = {{ value = "{shown}", u = "..." }} (or half_width, '
                      f'or expanded_uncertainty with coverage_factor, as your certificate states it), or '

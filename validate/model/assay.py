@@ -30,6 +30,7 @@ from validate.model.errors import ModelError as ModelError  # imported from here
 from validate.model.errors import evaluate_formula
 from validate.model.keys import ResultKey
 from validate.model.line import fit_line, inverse_prediction, straight_line
+from validate.model.photometry import reading_correction
 
 
 class SolutionInputs:
@@ -246,6 +247,7 @@ def mean_reading_term(ss: SourceSet, method: Method, ident: str, readings: tuple
                              provenance=f"{path0 * 1e3:g} mm +/-{cell.tolerance * 1e3:g} mm, one cell for "
                              f"every reading; {cell.provenance}", unit="mm", display_factor=1e-3))
     mean = sum(readings) / len(readings)
+    correct = reading_correction(ss, method, photometer, ident)  # gain, drift, stray light
 
     def term(x):
         a = mean
@@ -255,7 +257,7 @@ def mean_reading_term(ss: SourceSet, method: Method, ident: str, readings: tuple
             a = a + sum(x[name] for name in noise) / len(noise)
         if offset is not None:
             a = a - x[offset]
-        return a / exact_or(x, path, path0)
+        return correct(x, a) / exact_or(x, path, path0)
 
     return term
 
