@@ -330,6 +330,43 @@ CASES = [
     ("reversed_recovery_range", edit("recovery_range = [95, 105]", "recovery_range = [105, 95]",
          [METHOD, "[acceptance].recovery_range", "low below high", "[95, 105]"]), 2, "check"),
     ("section_that_is_not_a_table", section_that_is_not_a_table, 2, "run"),
+    # inputs without an uncertainty would enter the result as exact: refused unless `exact = true`
+    ("purity_as_a_bare_number", edit('purity = { value = "99.8 %", half_width = "0.2 %", provenance = '
+                                     '"supplier\'s certificate of analysis (invented)" }', 'purity = "99.9 %"',
+         [METHOD, "[solutions.stock].purity", "has no uncertainty", "exact = true", 'value = "99.9 %"']), 2, "check"),
+    ("molar_mass_table_without_uncertainty", edit('u = "0.002 g/mol", ', '',
+         [METHOD, "[solutions.stock].molar_mass", "has no uncertainty", "half_width"]), 2, "run"),
+    ("quantity_as_a_bare_value", edit('value = "30.973762 g/mol"\nu = "0.000002 g/mol"', 'value = "30.973762 g/mol"',
+         [METHOD, "[quantities].M_P", "has no uncertainty", "exact = true"]), 2, "check"),
+    ("zero_uncertainty_instead_of_exact", edit('u = "0.000002 g/mol"', 'u = "0 g/mol"',
+         [METHOD, "M_P.u", "zero uncertainty", "exact = true"]), 2, "check"),
+    ("exact_and_an_uncertainty", edit('u = "0.002 g/mol", ', 'u = "0.002 g/mol", exact = true, ',
+         [METHOD, "[solutions.stock].molar_mass.exact", "contradict"]), 2, "check"),
+    ("exact_written_as_text", edit('u = "0.002 g/mol", ', 'exact = "yes", ',
+         [METHOD, "[solutions.stock].molar_mass.exact", "true or false"]), 2, "check"),
+    ("mass_without_balance_or_uncertainty", edit('balance = "balance"\npurity', 'purity',
+         [METHOD, "[solutions.stock].mass", "has no uncertainty"]), 2, "check"),
+    ("exact_mass_on_a_balance", edit('mass = "68.05 mg"', 'mass = { value = "68.05 mg", exact = true }',
+         [METHOD, "[solutions.stock].mass", "not exact", "balance"]), 2, "check"),
+    # weighings and balances
+    ("unknown_weighing", edit('balance = "balance"\n', 'balance = "balance"\nweighing = "twice"\n',
+         [METHOD, "[solutions.stock].weighing", "by difference", "single reading"]), 2, "check"),
+    ("weighing_without_balance", edit('balance = "balance"\n', 'weighing = "by difference"\n',
+         [METHOD, "[solutions.stock].weighing", "no `balance`"]), 2, "check"),
+    ("unknown_linearity_correlation", edit('class = "analytical 0.1 mg"',
+                                           'class = "analytical 0.1 mg"\nlinearity_correlation = "both"',
+         [METHOD, "[equipment.balance].linearity_correlation", "independent", "shared"]), 2, "check"),
+    ("linearity_correlation_on_a_flask", edit('nominal = "500 mL"', 'nominal = "500 mL"\nlinearity_correlation = "shared"',
+         [METHOD, "[equipment.flask_500].linearity_correlation", "has no `linearity_correlation`"]), 2, "check"),
+    # photometer sources
+    ("stray_light_as_a_whole_number", edit('class = "typical double-beam"', 'class = "typical double-beam"\n'
+                                           'stray_light = "5"',
+         [METHOD, "[equipment.photometer].stray_light", "not a working photometer"]), 2, "check"),
+    ("drift_check_without_after", edit('class = "typical double-beam"', 'class = "typical double-beam"\n'
+                                       'drift = { before = "0.512" }',
+         [METHOD, "[equipment.photometer].drift", "missing key `after`"]), 2, "check"),
+    ("drift_on_a_cuvette", edit('class = "standard 40 mm"', 'class = "standard 40 mm"\ndrift = "0.002"',
+         [METHOD, "[equipment.cell_40].drift", "a cuvette has no `drift`"]), 2, "check"),
 ]
 
 

@@ -46,11 +46,12 @@ def _weighed(sol_id: str, t: Table, items: dict, description: str) -> Weighed:
     if balance is not None and not isinstance(items.get(balance), Balance):
         raise t.error(f"`{balance}` is not a balance defined under [equipment]", "balance",
                       fix=f'define [equipment.{balance}] with kind = "balance", or name another')
+    weighing = _weighing(t, balance)
     purity = t.uncertain("purity", NONE) if t.has("purity") else None
     if purity is not None and purity.value > 1.0 + 1e-12:
         raise t.error("a purity cannot exceed 100 %", "purity", fix="give the purity stated on the certificate")
     molar = t.uncertain("molar_mass", MOLAR_MASS) if t.has("molar_mass") else None
-    return Weighed(id=sol_id, mass=_mass(t, balance), balance=balance, weighing=_weighing(t, balance),
+    return Weighed(id=sol_id, mass=_mass(t, balance), balance=balance, weighing=weighing,
                    purity=purity, molar_mass=molar, flask=flask, description=description)
 
 
