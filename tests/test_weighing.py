@@ -109,8 +109,8 @@ def test_independent_linearity_does_not_correlate_weighings_of_different_loads(t
     assert "balance: linearity" in model.sources
     assert model.sources["balance: linearity"].quantity == "balance: linearity"  # acts through both masses
     # shared: one linearity term per net mass, plus two repeatability readings
-    assert sorted(s.name for s in model.sources.values() if s.name.startswith("balance: repeatability")) == [
-        f"balance: repeatability, {r} ({sol})" for sol in ("ligand_stock", "nickel_stock") for r in ("gross", "tare")]
+    assert sorted(s.name for s in model.sources.values() if s.name.startswith("balance: repeatability")) == sorted(
+        f"balance: repeatability, {r} ({sol})" for sol in ("ligand_stock", "nickel_stock") for r in ("gross", "tare"))
 
 
 def test_a_register_states_the_linearity_correlation(write_method, tmp_path):
