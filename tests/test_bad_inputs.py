@@ -356,7 +356,8 @@ CASES = [
     ("unknown_linearity_correlation", edit('class = "analytical 0.1 mg"',
                                            'class = "analytical 0.1 mg"\nlinearity_correlation = "both"',
          [METHOD, "[equipment.balance].linearity_correlation", "independent", "shared"]), 2, "check"),
-    ("linearity_correlation_on_a_flask", edit('nominal = "500 mL"', 'nominal = "500 mL"\nlinearity_correlation = "shared"',
+    ("linearity_correlation_on_a_flask", edit('nominal = "500 mL"',
+                                              'nominal = "500 mL"\nlinearity_correlation = "shared"',
          [METHOD, "[equipment.flask_500].linearity_correlation", "has no `linearity_correlation`"]), 2, "check"),
     # photometer sources
     ("stray_light_as_a_whole_number", edit('class = "typical double-beam"', 'class = "typical double-beam"\n'
