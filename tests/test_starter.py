@@ -71,7 +71,8 @@ def test_the_optional_photometer_and_balance_keys_of_the_starters_are_read(tmp_p
                     encoding="utf-8")
     method = load_method(path)
     assert method.items["balance"].linearity_correlation == "independent"
-    assert abs(method.items["photometer"].drift - 0.003) < 1e-12 and "check standard" in method.items["photometer"].drift_basis
+    photometer = method.items["photometer"]
+    assert abs(photometer.drift - 0.003) < 1e-12 and "check standard" in photometer.drift_basis
     assert method.solutions["metal_stock"].weighing == "by difference"
     capsys.readouterr()
 
