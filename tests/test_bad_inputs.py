@@ -360,11 +360,11 @@ CASES = [
                                               'nominal = "500 mL"\nlinearity_correlation = "shared"',
          [METHOD, "[equipment.flask_500].linearity_correlation", "has no `linearity_correlation`"]), 2, "check"),
     # photometer sources
-    ("stray_light_as_a_whole_number", edit('class = "typical double-beam"', 'class = "typical double-beam"\n'
-                                           'stray_light = "5"',
-         [METHOD, "[equipment.photometer].stray_light", "not a working photometer"]), 2, "check"),
-    ("drift_check_without_after", edit('class = "typical double-beam"', 'class = "typical double-beam"\n'
-                                       'drift = { before = "0.512" }',
+    ("stray_light_meant_in_percent", edit('class = "typical double-beam"\nstray_light = "0.05 %"',
+                                          'class = "typical double-beam"\nstray_light = "0.05"',
+         [METHOD, "[equipment.photometer].stray_light", "5 % is not a working photometer", '"0.05 %"']), 2, "check"),
+    ("drift_check_without_after", edit('drift = { before = "0.5056", after = "0.5066" }',
+                                       'drift = { before = "0.5056" }',
          [METHOD, "[equipment.photometer].drift", "missing key `after`"]), 2, "check"),
     ("drift_on_a_cuvette", edit('class = "standard 40 mm"', 'class = "standard 40 mm"\ndrift = "0.002"',
          [METHOD, "[equipment.cell_40].drift", "a cuvette has no `drift`"]), 2, "check"),

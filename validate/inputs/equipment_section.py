@@ -27,6 +27,9 @@ VOLUME = (0, 3, 0, 0)
 MASS = (1, 0, 0, 0)
 LENGTH = (0, 1, 0, 0)
 NONE = (0, 0, 0, 0)
+# UV-Vis specifications state stray light well below 1 % (typically 0.01 to 0.1 %, common practice);
+# above it a number was most likely meant in percent ("0.05" for 0.05 %)
+MAX_STRAY_LIGHT = 0.01
 DEFAULT_REPEATABILITY_RATIO = 0.2  # glassware: repeatability per use = 0.2 x tolerance (CG4 Example A1)
 
 _ITEM_KEYS = ("kind", "class", "nominal", "tolerance", "repeatability", "distribution", "reading",
@@ -180,9 +183,9 @@ def _item_of_kind(kind: str, t: Table, values: dict[str, float], nominal: float 
 
 def _photometer(t: Table, values: dict[str, float], head: _Head) -> Photometer:
     stray = values.get("stray_light", 0.0)
-    if stray >= 0.1:  # a photometer with 10 % stray light reads no absorbance above about 1
-        raise t.error(f"a stray-light ratio of {stray:.3g} (as a fraction) is not a working photometer's",
-                      "stray_light", fix='give the ratio as the specification states it, e.g. stray_light = "0.05 %"')
+    if stray > MAX_STRAY_LIGHT:
+        raise t.error(f"a stray-light ratio of {100 * stray:.3g} % is not a working photometer's", "stray_light",
+                      fix='give the ratio with its unit as the specification states it, e.g. stray_light = "0.05 %"')
     drift = values.get("drift", 0.0)
     return Photometer(**head._asdict(), offset=values.get("offset", 0.0), noise=values.get("noise", 0.0),
                       gain=values.get("gain", 0.0), drift=drift, drift_basis=_drift_basis(t, drift),
