@@ -156,3 +156,24 @@ def test_the_demos_take_nothing_as_exact_by_default():
         assert stated_exact(method) == []
         assert not any("taken as exact" in d for d in method.defaults_shown)
         assert any("weighed by difference" in d for d in method.defaults_shown)
+
+
+def test_check_prints_the_exact_inputs_among_the_defaults(demo_copy, capsys):
+    from validate import cli
+
+    path = edit_text(demo_copy, 'value = "30.973762 g/mol"\nu = "0.000002 g/mol"',
+                     'value = "30.973762 g/mol"\nexact = true')
+    assert cli.main(["check", str(path)]) == 0
+    shown = " ".join(capsys.readouterr().out.split())  # a terminal may wrap long lines
+    assert "Defaults applied" in shown and "taken as exact: M_P in [quantities]" in shown
+
+
+def test_the_record_lists_the_exact_inputs_in_its_defaults_and_verdict(demo_copy):
+    from validate.workflow import pipeline
+
+    path = edit_text(demo_copy, 'value = "30.973762 g/mol"\nu = "0.000002 g/mol"',
+                     'value = "30.973762 g/mol"\nexact = true')
+    record = pipeline.analyse(path, trials=0, advice=False).record
+    assert any("taken as exact: M_P in [quantities]" in d for d in record["defaults_applied"])
+    assert {"what": "M_P in [quantities]", "why": "stated as exact: no uncertainty enters the result"} \
+        in record["verdict"]["warnings"]
