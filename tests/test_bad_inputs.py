@@ -360,8 +360,8 @@ CASES = [
                                               'nominal = "500 mL"\nlinearity_correlation = "shared"',
          [METHOD, "[equipment.flask_500].linearity_correlation", "has no `linearity_correlation`"]), 2, "check"),
     # photometer sources
-    ("stray_light_meant_in_percent", edit('class = "typical double-beam"\nstray_light = "0.05 %"',
-                                          'class = "typical double-beam"\nstray_light = "0.05"',
+    ("stray_light_meant_in_percent", edit('class = "typical double-beam"\n',
+                                          'class = "typical double-beam"\nstray_light = "0.05"\n',
          [METHOD, "[equipment.photometer].stray_light", "5 % is not a working photometer", '"0.05 %"']), 2, "check"),
     ("drift_check_without_after", edit('drift = { before = "0.5056", after = "0.5066" }',
                                        'drift = { before = "0.5056" }',
