@@ -47,13 +47,7 @@ def exact_inputs(solutions: dict[str, Solution], quantities: Mapping[str, NamedQ
     for sol in solutions.values():
         match sol:
             case Weighed():
-                if sol.purity is None:
-                    found.append((f"purity of {sol.id}", "no purity given: taken as 100 %, exact"))
-                for label, value in (("purity", sol.purity), ("molar mass", sol.molar_mass)):
-                    if _exact(value):
-                        found.append((f"{label} of {sol.id}", "stated as exact: no uncertainty enters the result"))
-                if sol.balance is None and _exact(sol.mass):
-                    found.append((f"mass of {sol.id}", "no balance and stated as exact"))
+                found += _weighed_exact(sol)
             case Certified():
                 if _exact(sol.concentration):
                     found.append((f"concentration of {sol.id}", "stated as exact: no uncertainty enters the result"))
@@ -62,6 +56,18 @@ def exact_inputs(solutions: dict[str, Solution], quantities: Mapping[str, NamedQ
             found.append((f"{name} in [quantities]", "stated as exact: no uncertainty enters the result"))
     if _exact(reference_value):
         found.append(("reference value", "stated as exact: E_n compares with the result's uncertainty alone"))
+    return found
+
+
+def _weighed_exact(sol: Weighed) -> list[tuple[str, str]]:
+    found = []
+    if sol.purity is None:
+        found.append((f"purity of {sol.id}", "no purity given: taken as 100 %, exact"))
+    for label, value in (("purity", sol.purity), ("molar mass", sol.molar_mass)):
+        if _exact(value):
+            found.append((f"{label} of {sol.id}", "stated as exact: no uncertainty enters the result"))
+    if sol.balance is None and _exact(sol.mass):
+        found.append((f"mass of {sol.id}", "no balance and stated as exact"))
     return found
 
 

@@ -188,18 +188,8 @@ def _type_b(t: Table, dims, positive, provenance: str, exact: bool, key: str) ->
     dist = _distribution_named(t)
     spread_key = _spread_key(t)
     if spread_key is None:
-        if not exact:
-            raise _no_uncertainty(t.error, key, t.get("value"), where_key=None)
-        stated = STATED_EXACT if t.get("exact") else "stated value, no uncertainty given"
-        return UncertainValue(value, unit, provenance=provenance or stated)
-    if t.get("exact"):
-        raise t.error(f"an uncertainty (`{spread_key}`) and `exact = true` contradict each other", "exact",
-                      fix="keep the one your source states")
-    spread = _spread(t, spread_key, unit)
-    if spread == 0 and not exact:
-        raise t.error("a zero uncertainty makes the value exact", spread_key,
-                      fix=f"write exact = true instead of {spread_key} = 0 if the value is exact on purpose, "
-                          f"or give its uncertainty")
+        return _without_spread(t, value, unit, provenance, exact, key)
+    spread = _stated_spread(t, spread_key, unit, exact)
     dof = t.number("dof", math.inf, low=0)
     if dof < 1:  # degrees of freedom count readings beyond the first (GUM G.3); below 1 no t quantile is usable
         raise t.error(f"{dof:g} degrees of freedom is fewer than one", "dof",
@@ -218,6 +208,27 @@ def _type_b(t: Table, dims, positive, provenance: str, exact: bool, key: str) ->
         raise t.error(f"give a {dist} distribution by its `half_width`", spread_key,
                       fix=f"write half_width = ... instead of {spread_key}")
     return UncertainValue(value, unit, u, dist, dof, provenance, "B", coverage_factor=k)
+
+
+def _without_spread(t: Table, value: float, unit: Unit, provenance: str, exact: bool, key: str) -> UncertainValue:
+    """A value with no spread: exact on purpose (`exact = true`), or where a bare value is accepted."""
+    if not exact:
+        raise _no_uncertainty(t.error, key, t.get("value"), where_key=None)
+    stated = STATED_EXACT if t.get("exact") else "stated value, no uncertainty given"
+    return UncertainValue(value, unit, provenance=provenance or stated)
+
+
+def _stated_spread(t: Table, spread_key: str, unit: Unit, bare_ok: bool) -> float:
+    """The spread in SI; never beside `exact = true`, and zero only where a bare value is accepted."""
+    if t.get("exact"):
+        raise t.error(f"an uncertainty (`{spread_key}`) and `exact = true` contradict each other", "exact",
+                      fix="keep the one your source states")
+    spread = _spread(t, spread_key, unit)
+    if spread == 0 and not bare_ok:
+        raise t.error("a zero uncertainty makes the value exact", spread_key,
+                      fix=f"write exact = true instead of {spread_key} = 0 if the value is exact on purpose, "
+                          f"or give its uncertainty")
+    return spread
 
 
 def _distribution_named(t: Table) -> str | None:
