@@ -7,6 +7,7 @@ from validate.inputs.items import FLASKS, PIPETTES, Balance
 from validate.inputs.schema import AMOUNT_CONCENTRATION, MASS_CONCENTRATION, SOLUTION_ORIGINS
 from validate.inputs.solutions import WEIGHINGS, Blank, Certified, Diluted, Solution, Weighed, parent_of
 from validate.inputs.tables import Table, parse_delivery
+from validate.inputs.values import UncertainValue
 
 MASS = (1, 0, 0, 0)
 NONE = (0, 0, 0, 0)
@@ -55,7 +56,7 @@ def _weighed(sol_id: str, t: Table, items: dict, description: str) -> Weighed:
                    purity=purity, molar_mass=molar, flask=flask, description=description)
 
 
-def _mass(t: Table, balance: str | None):
+def _mass(t: Table, balance: str | None) -> UncertainValue:
     """The net mass: a bare number when a balance is named (its readings carry the uncertainty),
     else with its own uncertainty or `exact = true`."""
     mass = t.uncertain("mass", MASS, bare_ok=balance is not None)
