@@ -47,3 +47,38 @@ def test_every_equilibrium_key_of_the_starter_is_documented_in_the_readme():
     section = readme.split("#### The [equilibrium] section, key by key", 1)[1].split("\n### ", 1)[0]
     documented = set(re.findall(r"^\| `([a-z_]+)`", section, flags=re.MULTILINE))
     assert _equilibrium_keys(template["equilibrium"]) <= documented
+
+
+def _uncommented(text: str, *starts: str) -> str:
+    """The starter with the commented lines that begin with one of `starts` made active."""
+    lines = []
+    for line in text.splitlines():
+        bare = line.lstrip("# ")
+        lines.append(bare if line.startswith("# ") and bare.startswith(starts) else line)
+    return "\n".join(lines) + "\n"
+
+
+def test_the_optional_photometer_and_balance_keys_of_the_starters_are_read(tmp_path, capsys):
+    assert cli.main(["init", str(tmp_path / "assay")]) == 0
+    path = tmp_path / "assay" / "method.toml"
+    path.write_text(_uncommented(path.read_text(encoding="utf-8"), "stray_light =", 'drift = "', "gain ="),
+                    encoding="utf-8")
+    photometer = load_method(path).items["photometer"]
+    assert (photometer.stray_light, photometer.drift, photometer.gain) == (0.0005, 0.002, 0.005)
+    assert cli.main(["init", str(tmp_path / "study"), "--equilibrium"]) == 0
+    path = tmp_path / "study" / "method.toml"
+    path.write_text(_uncommented(path.read_text(encoding="utf-8"), "linearity_correlation =", "drift = {"),
+                    encoding="utf-8")
+    method = load_method(path)
+    assert method.items["balance"].linearity_correlation == "independent"
+    photometer = method.items["photometer"]
+    assert abs(photometer.drift - 0.003) < 1e-12 and "check standard" in photometer.drift_basis
+    assert method.solutions["metal_stock"].weighing == "by difference"
+    capsys.readouterr()
+
+
+def test_the_new_method_file_keys_are_documented_in_the_readme():
+    readme = (ROOT / "README.md").read_text(encoding="utf-8")
+    section = readme.split("### The method file", 1)[1].split("\n### ", 1)[0]
+    for key in ("`linearity_correlation`", "`stray_light`", "`drift`", "`gain`", "`weighing`", "exact = true }`"):
+        assert key in section, key

@@ -36,6 +36,7 @@ from pathlib import Path
 from validate.advisor.candidates import Candidate, Shares, class_candidates, piston_candidates, volume_pair_candidates
 from validate.advisor.readings import reading_candidates
 from validate.advisor.stated_inputs import input_value_candidates, temperature_candidates
+from validate.advisor.weighing import weighing_candidates
 from validate.equilibrium.study import build_ready_model
 from validate.inputs.errors import InputError
 from validate.inputs.registers import RegisterEntry, merge_registers
@@ -64,6 +65,7 @@ def generate(method: Method, shares: Shares, entries: list[RegisterEntry]) -> li
     out += reading_candidates(method)
     out += temperature_candidates(method, shares)
     out += input_value_candidates(method, shares)
+    out += weighing_candidates(method, shares, entries)
     return out
 
 

@@ -19,7 +19,7 @@ from validate.inputs.items import (
     PistonPipette,
     VolumetricFlask,
 )
-from validate.inputs.registers import RegisterEntry, classes_for, find_entry
+from validate.inputs.registers import CHOICE_KEYS, RegisterEntry, classes_for, find_entry
 from validate.inputs.schema import EQUIPMENT_KINDS, VOLUMETRIC_KINDS, Settings
 from validate.inputs.tables import Table
 
@@ -27,19 +27,25 @@ VOLUME = (0, 3, 0, 0)
 MASS = (1, 0, 0, 0)
 LENGTH = (0, 1, 0, 0)
 NONE = (0, 0, 0, 0)
+# UV-Vis specifications state stray light well below 1 % (typically 0.01 to 0.1 %, common practice);
+# above it a number was most likely meant in percent ("0.05" for 0.05 %)
+MAX_STRAY_LIGHT = 0.01
 DEFAULT_REPEATABILITY_RATIO = 0.2  # glassware: repeatability per use = 0.2 x tolerance (CG4 Example A1)
 
 _ITEM_KEYS = ("kind", "class", "nominal", "tolerance", "repeatability", "distribution", "reading",
-              "path", "offset", "noise", "linearity", "provenance")
+              "path", "offset", "noise", "gain", "drift", "stray_light", "linearity", "linearity_correlation",
+              "provenance")
 _GLASS_VALUES: dict[str, tuple[int, ...]] = {"tolerance": VOLUME, "repeatability": VOLUME}
 # the values a method file may give for each kind, with their dimension
 _VALUE_DIMS: dict[str, dict[str, tuple[int, ...]]] = {
     **{kind: _GLASS_VALUES for kind in VOLUMETRIC_KINDS},
     "burette": {**_GLASS_VALUES, "reading": VOLUME},
     "cuvette": {"path": LENGTH, "tolerance": LENGTH},
-    "photometer": {"offset": NONE, "noise": NONE},
+    "photometer": {"offset": NONE, "noise": NONE, "gain": NONE, "drift": NONE, "stray_light": NONE},
     "balance": {"linearity": MASS, "repeatability": MASS},
 }
+# the words a method file may give for each kind (checked against registers.CHOICE_KEYS)
+_CHOICES: dict[str, tuple[str, ...]] = {"balance": ("linearity_correlation",)}
 
 
 def parse_item(item_id: str, t: Table, entries: list[RegisterEntry], settings: Settings,
@@ -59,8 +65,9 @@ def parse_item(item_id: str, t: Table, entries: list[RegisterEntry], settings: S
     values = dict(entry.values) if entry else {}
     for key in own_keys:
         values[key] = _own_value(t, key, _VALUE_DIMS[kind][key])
+    words = {**(entry.choices if entry else {}), **_own_choices(t, kind)}
     head = _Head(item_id, item_class, _provenance(t, entry, bool(own_keys)))
-    item = _item_of_kind(kind, t, values, nominal, settings, head)
+    item = _item_of_kind(kind, t, values, nominal, settings, head, words)
     defaults.extend(u for u in item.defaults_used if not u.endswith(" mL"))
     return item
 
@@ -75,7 +82,7 @@ def _kind(t: Table) -> str:
 def _refuse_keys_of_other_kinds(t: Table, kind: str) -> None:
     """A value the item's kind does not carry would be read by nothing: refused, not dropped."""
     glass = ("nominal", "distribution") if kind in VOLUMETRIC_KINDS else ()
-    accepted = ("kind", "class", *glass, *_VALUE_DIMS[kind], "provenance")
+    accepted = ("kind", "class", *glass, *_VALUE_DIMS[kind], *_CHOICES.get(kind, ()), "provenance")
     for key in t.data:
         if key not in accepted:
             raise t.error(f"a {kind} has no `{key}`", key, fix=f"leave it out; a {kind} takes: {', '.join(accepted)}")
@@ -96,11 +103,34 @@ def _register_entry(t: Table, entries, kind: str, item_class: str, nominal: floa
     return entry
 
 
+def _own_choices(t: Table, kind: str) -> dict[str, str]:
+    return {key: t.choice(key, "", CHOICE_KEYS[key], f"use one of: {', '.join(CHOICE_KEYS[key])}")
+            for key in _CHOICES.get(kind, ()) if t.has(key)}
+
+
 def _own_value(t: Table, key: str, dims: tuple[int, ...]) -> float:
+    if key == "drift" and isinstance(t.get(key), dict):
+        return _drift_from_check(t)
     value = t.quantity(key, dims, positive=key == "path")[0]
     if value < 0:
         raise t.error("the value cannot be negative", key, fix="give its size, zero or more")
     return value
+
+
+def _drift_from_check(t: Table) -> float:
+    """drift = { before = "0.512", after = "0.515" }: a check standard read before the standards
+    and after the samples; the change between the two bounds the drift (half-width |after - before|)."""
+    sub = t.sub("drift")
+    sub.allow("before", "after")
+    before, after = (sub.quantity(end, NONE, positive=False)[0] for end in ("before", "after"))
+    return abs(after - before)
+
+
+def _drift_basis(t: Table, drift: float) -> str:
+    if isinstance(t.get("drift"), dict):
+        return (f"a check standard read before the standards and after the samples changed by {drift:.3g} "
+                f"absorbance")
+    return f"stated drift within +/-{drift:.3g} absorbance" if drift > 0 else ""
 
 
 def _provenance(t: Table, entry: RegisterEntry | None, own: bool) -> str:
@@ -135,19 +165,31 @@ _GLASS = {cls.kind: cls for cls in (OneMarkPipette, GraduatedPipette, PistonPipe
 
 
 def _item_of_kind(kind: str, t: Table, values: dict[str, float], nominal: float | None, settings: Settings,
-                  head: _Head) -> Item:
+                  head: _Head, words: dict[str, str]) -> Item:
     match kind:
         case "cuvette":
             if "path" not in values:
                 raise t.error("a cuvette needs its `path` length", "path", fix='e.g. path = "10 mm"')
             return Cuvette(**head._asdict(), path=values["path"], tolerance=values.get("tolerance", 0.0))
         case "photometer":
-            return Photometer(**head._asdict(), offset=values.get("offset", 0.0), noise=values.get("noise", 0.0))
+            return _photometer(t, values, head)
         case "balance":
             return Balance(**head._asdict(), linearity=values.get("linearity", 0.0),
-                           repeatability=values.get("repeatability", 0.0))
+                           repeatability=values.get("repeatability", 0.0),
+                           linearity_correlation=words.get("linearity_correlation", "independent"))
     assert nominal is not None  # read for every volumetric kind
     return _volumetric(kind, t, values, nominal, settings, head)
+
+
+def _photometer(t: Table, values: dict[str, float], head: _Head) -> Photometer:
+    stray = values.get("stray_light", 0.0)
+    if stray > MAX_STRAY_LIGHT:
+        raise t.error(f"a stray-light ratio of {100 * stray:.3g} % is not a working photometer's", "stray_light",
+                      fix='give the ratio with its unit as the specification states it, e.g. stray_light = "0.05 %"')
+    drift = values.get("drift", 0.0)
+    return Photometer(**head._asdict(), offset=values.get("offset", 0.0), noise=values.get("noise", 0.0),
+                      gain=values.get("gain", 0.0), drift=drift, drift_basis=_drift_basis(t, drift),
+                      stray_light=stray)
 
 
 def _volumetric(kind: str, t: Table, values: dict[str, float], nominal: float, settings: Settings,

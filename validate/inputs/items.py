@@ -66,16 +66,31 @@ class Cuvette(ItemCommon):
 
 @dataclass(frozen=True, kw_only=True)
 class Photometer(ItemCommon):
+    """Offset and gain act alike on standards and samples and cancel through the calibration line;
+    drift (between reading the standards and the samples) and stray light do not (docs/design.md,
+    "Photometry")."""
+
     kind: ClassVar[str] = "photometer"
     offset: float = 0.0  # absorbance half-width, shared by every reading
     noise: float = 0.0  # absorbance standard deviation per reading
+    gain: float = 0.0  # relative half-width of the photometric scale, shared by every reading
+    drift: float = 0.0  # absorbance half-width of the change between standards and samples
+    drift_basis: str = ""  # how the drift was found, in words (stated, or a check standard's readings)
+    stray_light: float = 0.0  # stray-light ratio, half-width (a fraction of the incident light)
+
+
+LINEARITY_CORRELATIONS = ("independent", "shared")
 
 
 @dataclass(frozen=True, kw_only=True)
 class Balance(ItemCommon):
+    """Each balance reading carries a repeatability term; its linearity deviation is its own
+    (`linearity_correlation = "independent"`, EURACHEM/CITAC CG4) or one per balance ("shared")."""
+
     kind: ClassVar[str] = "balance"
-    linearity: float = 0.0  # kg half-width
-    repeatability: float = 0.0  # kg standard deviation per weighing
+    linearity: float = 0.0  # kg half-width, per reading
+    repeatability: float = 0.0  # kg standard deviation of one reading
+    linearity_correlation: str = "independent"  # one of LINEARITY_CORRELATIONS
 
 
 Item = OneMarkPipette | GraduatedPipette | PistonPipette | Burette | VolumetricFlask | Cuvette | Photometer | Balance

@@ -11,7 +11,7 @@ import tomllib
 from pathlib import Path
 
 from validate.inputs.assay_sections import AssayParts, check_readings, parse_calibration, parse_quantity, parse_result
-from validate.inputs.consistency import check_ids
+from validate.inputs.consistency import check_ids, exact_defaults, weighing_defaults
 from validate.inputs.equilibrium_file import check_equilibrium_readings, parse_equilibrium
 from validate.inputs.equipment_section import parse_item
 from validate.inputs.errors import InputError
@@ -86,6 +86,7 @@ def _common_parts(top: Table, path: Path, defaults: list[str],
     solutions = {sol_id: parse_solution(sol_id, Table(raw, path, f"[solutions.{sol_id}]"), items)
                  for sol_id, raw in top.named_tables("solutions").items()}
     check_solution_graph(solutions, path)
+    defaults.extend(weighing_defaults(solutions) + exact_defaults(solutions))
     common = {"path": str(path), "title": info.text("title", path.stem) or path.stem,
               "measurand": info.text("measurand", "") or "", "scope": info.text("scope", "") or "",
               "settings": settings, "items": items, "solutions": solutions,
@@ -120,6 +121,7 @@ def _assay_method(top: Table, path: Path, common: dict, extra: list[Path], defau
     parts = AssayParts(str(path), solutions, calibration, samples, quantities)
     result = parse_result(top, parts)
     validation = parse_validation(top, parts, result, defaults)
+    defaults.extend(exact_defaults({}, quantities, validation.reference_value))
     routine = parse_routine(top, [smp.id for smp in samples], series, readings_path, result.unit.dims,
                             defaults, items=items, solutions=solutions,
                             reads_samples="c_measured" in result.formula.names)
@@ -193,7 +195,7 @@ def _settings(t: Table, defaults: list[str]) -> Settings:
 def _temperature_range(t: Table, default: float) -> float:
     if not t.has("temperature_range"):
         return default
-    temp = parse_uncertain(t.get("temperature_range"), t, "temperature_range", (0, 0, 0, 1), False).value
+    temp = parse_uncertain(t.get("temperature_range"), t, "temperature_range", (0, 0, 0, 1), False, bare_ok=True).value
     if not 0 <= temp <= 50:  # a half-width about 20 degC; aqueous volumetric work stays well inside
         raise t.error(f"a temperature range of +/-{temp:g} K is not a laboratory's", "temperature_range",
                       fix='give the half-width of the laboratory\'s temperature about 20 degC, e.g. "3 K"')

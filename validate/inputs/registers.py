@@ -9,11 +9,12 @@ A laboratory entry replaces a default entry of the same kind, size and class.
 from __future__ import annotations
 
 import tomllib
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from importlib import resources
 from pathlib import Path
 
 from validate.inputs.errors import InputError
+from validate.inputs.items import LINEARITY_CORRELATIONS
 from validate.inputs.readings import read_text_file
 from validate.inputs.text import MAX_NESTING, clean_document
 from validate.inputs.units import UnitError, parse_quantity
@@ -26,6 +27,7 @@ class RegisterEntry:
     nominal: float | None  # SI (m^3 for volumes), None for items without a size
     values: dict  # key -> SI float (tolerance, repeatability, path, offset, ...)
     source: str  # register title, standard and confidence, for the record
+    choices: dict[str, str] = field(default_factory=dict)  # key -> word (e.g. linearity_correlation)
 
 
 def default_register_files() -> list[Path]:
@@ -41,7 +43,9 @@ def default_register_files() -> list[Path]:
 
 
 _SIZED_KEYS = ("tolerance", "repeatability", "subdivision", "path", "offset", "noise",
-               "linearity", "reading")
+               "linearity", "reading", "gain", "drift", "stray_light")
+# keys whose value is a word from a fixed list, checked here so a typing error stops at the register
+CHOICE_KEYS: dict[str, tuple[str, ...]] = {"linearity_correlation": LINEARITY_CORRELATIONS}
 
 
 def load_register(path: Path) -> list[RegisterEntry]:
@@ -75,8 +79,20 @@ def load_register(path: Path) -> list[RegisterEntry]:
         except UnitError as exc:
             raise InputError(str(exc), file=path, where=where) from None
         source = ", ".join(x for x in (title, raw.get("standard", ""), raw.get("confidence", "")) if x)
-        entries.append(RegisterEntry(raw["kind"], str(raw["class"]), nominal, values, source))
+        entries.append(RegisterEntry(raw["kind"], str(raw["class"]), nominal, values, source,
+                                     _choices(raw, path, where)))
     return entries
+
+
+def _choices(raw: dict, path: Path, where: str) -> dict[str, str]:
+    found = {}
+    for key, allowed in CHOICE_KEYS.items():
+        if key in raw:
+            if raw[key] not in allowed:
+                raise InputError(f"unknown choice {raw[key]!r} for `{key}`", file=path, where=f"{where}.{key}",
+                                 fix=f"use one of: {', '.join(allowed)}")
+            found[key] = raw[key]
+    return found
 
 
 def load_registers(extra: list[Path], builtin: tuple[Path, ...] | None = None

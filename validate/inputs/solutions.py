@@ -19,6 +19,12 @@ class SolutionCommon:
     description: str = ""
 
 
+# how a weighed mass is read on its balance: the difference of a tare and a gross reading, or
+# one reading of the net mass (docs/design.md, "Mass by difference")
+BY_DIFFERENCE, SINGLE_READING = "by difference", "single reading"
+WEIGHINGS = (BY_DIFFERENCE, SINGLE_READING)
+
+
 @dataclass(frozen=True, kw_only=True)
 class Weighed(SolutionCommon):
     """A weighed mass of a substance made up to the mark of a flask."""
@@ -27,6 +33,7 @@ class Weighed(SolutionCommon):
     mass: UncertainValue
     flask: Delivery
     balance: str | None = None  # id of the balance; None: the mass's own uncertainty only
+    weighing: str | None = None  # one of WEIGHINGS; None: not stated, by difference (a default, shown)
     purity: UncertainValue | None = None  # None: taken as pure
     molar_mass: UncertainValue | None = None  # None: a mass concentration
 
@@ -54,6 +61,13 @@ class Blank(SolutionCommon):
     """The reagents without the analyte: concentration zero."""
 
     made_by: ClassVar[str] = "blank"
+
+
+def balance_readings(sol: Weighed) -> tuple[tuple[float, str], ...]:
+    """(sign, name) of the balance readings a weighed mass is made of: gross minus tare, or one."""
+    if sol.weighing == SINGLE_READING:
+        return ((1.0, "net"),)
+    return ((-1.0, "tare"), (1.0, "gross"))
 
 
 Solution = Weighed | Certified | Diluted | Blank

@@ -5,8 +5,9 @@ from __future__ import annotations
 from validate.inputs.errors import InputError
 from validate.inputs.items import FLASKS, PIPETTES, Balance
 from validate.inputs.schema import AMOUNT_CONCENTRATION, MASS_CONCENTRATION, SOLUTION_ORIGINS
-from validate.inputs.solutions import Blank, Certified, Diluted, Solution, Weighed, parent_of
+from validate.inputs.solutions import WEIGHINGS, Blank, Certified, Diluted, Solution, Weighed, parent_of
 from validate.inputs.tables import Table, parse_delivery
+from validate.inputs.values import UncertainValue
 
 MASS = (1, 0, 0, 0)
 NONE = (0, 0, 0, 0)
@@ -41,17 +42,39 @@ def _certified(sol_id: str, t: Table, description: str) -> Certified:
 
 def _weighed(sol_id: str, t: Table, items: dict, description: str) -> Weighed:
     flask = parse_delivery(t.require("flask"), t, "flask", items, FLASKS)
-    t.allow("made_by", "description", "mass", "balance", "purity", "molar_mass", "flask")
+    t.allow("made_by", "description", "mass", "balance", "weighing", "purity", "molar_mass", "flask")
     balance = t.text("balance")
     if balance is not None and not isinstance(items.get(balance), Balance):
         raise t.error(f"`{balance}` is not a balance defined under [equipment]", "balance",
                       fix=f'define [equipment.{balance}] with kind = "balance", or name another')
+    weighing = _weighing(t, balance)
     purity = t.uncertain("purity", NONE) if t.has("purity") else None
     if purity is not None and purity.value > 1.0 + 1e-12:
         raise t.error("a purity cannot exceed 100 %", "purity", fix="give the purity stated on the certificate")
     molar = t.uncertain("molar_mass", MOLAR_MASS) if t.has("molar_mass") else None
-    return Weighed(id=sol_id, mass=t.uncertain("mass", MASS), balance=balance, purity=purity,
-                   molar_mass=molar, flask=flask, description=description)
+    return Weighed(id=sol_id, mass=_mass(t, balance), balance=balance, weighing=weighing,
+                   purity=purity, molar_mass=molar, flask=flask, description=description)
+
+
+def _mass(t: Table, balance: str | None) -> UncertainValue:
+    """The net mass: a bare number when a balance is named (its readings carry the uncertainty),
+    else with its own uncertainty or `exact = true`."""
+    mass = t.uncertain("mass", MASS, bare_ok=balance is not None)
+    raw = t.get("mass")
+    if balance is not None and isinstance(raw, dict) and raw.get("exact") is True:
+        raise t.error("a mass read on a balance is not exact", "mass",
+                      fix="leave out `exact = true` (the balance's readings carry the uncertainty), or the balance")
+    return mass
+
+
+def _weighing(t: Table, balance: str | None) -> str | None:
+    """How the mass was read on its balance: "by difference" (tare and gross) or "single reading"."""
+    if not t.has("weighing"):
+        return None
+    if balance is None:
+        raise t.error("`weighing` says how the mass was read on a balance, but no `balance` is named", "weighing",
+                      fix="name the balance, or leave out `weighing`")
+    return t.choice("weighing", "", WEIGHINGS, f"use one of: {', '.join(repr(w) for w in WEIGHINGS)}")
 
 
 def _diluted(sol_id: str, t: Table, items: dict, description: str) -> Diluted:

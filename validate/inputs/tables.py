@@ -101,8 +101,8 @@ class Table:
         """A value with a unit, converted to SI, its dimension checked."""
         return parse_si(self.require(key), self, key, dims, positive)
 
-    def uncertain(self, key: str, dims=None, positive: bool = True) -> UncertainValue:
-        return parse_uncertain(self.require(key), self, key, dims, positive)
+    def uncertain(self, key: str, dims=None, positive: bool = True, bare_ok: bool = False) -> UncertainValue:
+        return parse_uncertain(self.require(key), self, key, dims, positive, bare_ok)
 
 
 # Magnitudes (SI) beyond any quantity of a laboratory method; refusing them keeps squares of
@@ -133,34 +133,63 @@ def parse_si(raw, table: Table, key: str, dims=None, positive=True) -> tuple[flo
 
 
 _UNCERTAIN_KEYS = ("value", "u", "half_width", "expanded_uncertainty", "coverage_factor",
-                   "readings", "distribution", "dof", "limit_uncertainty", "provenance")
+                   "readings", "distribution", "dof", "limit_uncertainty", "provenance", "exact")
+STATED_EXACT = "stated as exact in the method file"
 
 
-def parse_uncertain(raw, parent: Table, key: str, dims=None, positive=True) -> UncertainValue:
-    """A number with its uncertainty: "10 mL" (exact) or a table, e.g.
+def parse_uncertain(raw, parent: Table, key: str, dims=None, positive=True, bare_ok=False) -> UncertainValue:
+    """A number with its uncertainty, a table such as
     {value = "99.9 %", half_width = "0.1 %"} (rectangular unless stated),
     {value = "1000 mg/L", expanded_uncertainty = "2 mg/L", coverage_factor = 2},
     {value = "10 mL", u = "0.01 mL", distribution = "t", dof = 9},
-    {readings = ["1.02 g", "1.01 g", ...]} (Type A: mean, s/sqrt(n), n-1 dof)."""
+    {readings = ["1.02 g", "1.01 g", ...]} (Type A: mean, s/sqrt(n), n-1 dof),
+    or {value = "30.973762 g/mol", exact = true}: taken as exact because the file says so.
+    A number with no uncertainty ("99.9 %") is refused, since it would enter the result as exact
+    without anyone having said so; `bare_ok` accepts it where something else carries the
+    uncertainty (a mass read on a named balance) or where only the value is read."""
     if not isinstance(raw, dict):
         value, unit = parse_si(raw, parent, key, dims, positive)
+        if not bare_ok:
+            raise _no_uncertainty(parent.error, key, raw)
         return UncertainValue(value, unit, provenance="stated value, no uncertainty given")
     t = Table(raw, parent.file, f"{parent.where}.{key}")
     t.allow(*_UNCERTAIN_KEYS)
     provenance = t.text("provenance", "") or ""
+    exact = _exact_flag(t)
     if t.has("readings"):
+        if exact:
+            raise t.error("readings and `exact = true` contradict each other", "exact",
+                          fix="leave out `exact` (readings give a Type A uncertainty)")
         return _type_a(t, dims, positive, provenance)
-    return _type_b(t, dims, positive, provenance)
+    return _type_b(t, dims, positive, provenance, exact or bare_ok, key)
 
 
-def _type_b(t: Table, dims, positive, provenance: str) -> UncertainValue:
-    """A stated value with a stated spread (GUM 4.3): u, a half-width or an expanded uncertainty."""
+def _no_uncertainty(error, key: str, raw, where_key: str | None = "") -> InputError:
+    """The refusal of a value without an uncertainty; `error` is the table's error method."""
+    shown = raw if isinstance(raw, str) else "..."
+    return error(f"`{key}` has no uncertainty; a number without one would enter the result as exact",
+                 key if where_key == "" else where_key,
+                 fix=f'give its uncertainty, e.g. {key} = {{ value = "{shown}", u = "..." }} (or half_width, '
+                     f'or expanded_uncertainty with coverage_factor, as your certificate states it), or '
+                     f'write {key} = {{ value = "{shown}", exact = true }} to take it as exact on purpose')
+
+
+def _exact_flag(t: Table) -> bool:
+    exact = t.get("exact", False)
+    if not isinstance(exact, bool):
+        raise t.error(f"expected true or false, got {exact!r}", "exact", fix="write exact = true without quotes")
+    return exact
+
+
+def _type_b(t: Table, dims, positive, provenance: str, exact: bool, key: str) -> UncertainValue:
+    """A stated value with a stated spread (GUM 4.3): u, a half-width or an expanded uncertainty;
+    none only where the value is exact on purpose (`exact = true`) or `bare_ok`."""
     value, unit = parse_si(t.require("value"), t, "value", dims, positive)
     dist = _distribution_named(t)
     spread_key = _spread_key(t)
     if spread_key is None:
-        return UncertainValue(value, unit, provenance=provenance or "stated value, no uncertainty given")
-    spread = _spread(t, spread_key, unit)
+        return _without_spread(t, value, unit, provenance, exact, key)
+    spread = _stated_spread(t, spread_key, unit, exact)
     dof = t.number("dof", math.inf, low=0)
     if dof < 1:  # degrees of freedom count readings beyond the first (GUM G.3); below 1 no t quantile is usable
         raise t.error(f"{dof:g} degrees of freedom is fewer than one", "dof",
@@ -179,6 +208,27 @@ def _type_b(t: Table, dims, positive, provenance: str) -> UncertainValue:
         raise t.error(f"give a {dist} distribution by its `half_width`", spread_key,
                       fix=f"write half_width = ... instead of {spread_key}")
     return UncertainValue(value, unit, u, dist, dof, provenance, "B", coverage_factor=k)
+
+
+def _without_spread(t: Table, value: float, unit: Unit, provenance: str, exact: bool, key: str) -> UncertainValue:
+    """A value with no spread: exact on purpose (`exact = true`), or where a bare value is accepted."""
+    if not exact:
+        raise _no_uncertainty(t.error, key, t.get("value"), where_key=None)
+    stated = STATED_EXACT if t.get("exact") else "stated value, no uncertainty given"
+    return UncertainValue(value, unit, provenance=provenance or stated)
+
+
+def _stated_spread(t: Table, spread_key: str, unit: Unit, bare_ok: bool) -> float:
+    """The spread in SI; never beside `exact = true`, and zero only where a bare value is accepted."""
+    if t.get("exact"):
+        raise t.error(f"an uncertainty (`{spread_key}`) and `exact = true` contradict each other", "exact",
+                      fix="keep the one your source states")
+    spread = _spread(t, spread_key, unit)
+    if spread == 0 and not bare_ok:
+        raise t.error("a zero uncertainty makes the value exact", spread_key,
+                      fix=f"write exact = true instead of {spread_key} = 0 if the value is exact on purpose, "
+                          f"or give its uncertainty")
+    return spread
 
 
 def _distribution_named(t: Table) -> str | None:

@@ -3,7 +3,7 @@
 docs/design.md, "Metrology rules": one calibration offset per item, shared by all its uses;
 a fresh repeatability term per use; one laboratory-temperature deviation
 shared by every volumetric step (unless the settings say otherwise); a
-burette delivery is the difference of two readings.
+burette delivery is the difference of two readings, and so is a mass by difference.
 """
 
 from __future__ import annotations
@@ -12,6 +12,7 @@ from dataclasses import replace
 
 from validate.inputs.items import Balance, Burette, Volumetric
 from validate.inputs.schema import Method
+from validate.inputs.solutions import Weighed, balance_readings
 from validate.inputs.values import Delivery
 from validate.metrology.sources import Source, rectangular, triangular
 
@@ -109,23 +110,41 @@ def _per_use_terms(ss: SourceSet, item: Volumetric, step: str, use: str,
             return []
 
 
-def balance_terms(ss: SourceSet, method: Method, balance_id: str, use: str, step: str) -> list[str]:
-    """Sources of one weighing: the balance's linearity (shared) and repeatability (per use),
-    both of the quantity `USE: mass` (the name the weighed mass's own source carries)."""
-    item = method.item_of(balance_id, Balance)
-    quantity = f"{use}: mass"
-    names = []
-    if item.linearity > 0:
-        names.append(ss.add(rectangular(f"{item.id}: linearity", 0.0, item.linearity,
-                                        step="equipment calibration", equipment=item.id,
-                                        provenance=f"+/-{item.linearity * 1e6:.3g} mg; {item.provenance}",
-                                        unit="mg", display_factor=1e-6), quantity))
+def balance_terms(ss: SourceSet, method: Method, sol: Weighed, step: str) -> list[tuple[float, str]]:
+    """(sign, source name) of the balance readings a weighed mass is made of (docs/design.md,
+    "Mass by difference"), all of the quantity `SOLUTION: mass`.
+
+    A mass by difference is gross minus tare: two readings, each with its own repeatability
+    term and, with `linearity_correlation = "independent"` (the default), its own linearity
+    deviation, so a net mass carries linearity twice and repeatability twice (EURACHEM/CITAC
+    CG4, Example A2, from memory: "counted twice, once for the tare and once for the gross
+    weight, because each is an independent observation"). With "shared" the balance has one
+    linearity deviation, entering every net mass once: for weighings of similar masses, where
+    the deviation at the two loads is the same for every weighing; it must not enter the two
+    readings of one weighing, where it would cancel."""
+    item = method.item_of(sol.balance or "", Balance)
+    quantity = f"{sol.id}: mass"
+    readings = balance_readings(sol)
+    terms: list[tuple[float, str]] = []
+    if item.linearity > 0 and item.linearity_correlation == "shared":
+        terms.append((1.0, ss.add(_linearity(item, f"{item.id}: linearity", "one deviation shared by every weighing "
+                                             "on this balance"), quantity)))
+    elif item.linearity > 0:
+        terms += [(sign, ss.add(_linearity(item, f"{item.id}: linearity, {reading} ({sol.id})",
+                                           f"{reading} reading's own deviation"), quantity))
+                  for sign, reading in readings]
     if item.repeatability > 0:
-        names.append(ss.add(Source(f"{item.id}: repeatability ({use})", 0.0, item.repeatability, "normal",
-                                   step=step, equipment=item.id,
-                                   provenance=f"standard deviation {item.repeatability * 1e6:.3g} mg; "
-                                   f"{item.provenance}", unit="mg", display_factor=1e-6), quantity))
-    return names
+        terms += [(sign, ss.add(Source(
+            f"{item.id}: repeatability, {reading} ({sol.id})", 0.0, item.repeatability, "normal", step=step,
+            equipment=item.id, provenance=f"standard deviation {item.repeatability * 1e6:.3g} mg of one reading; "
+            f"{item.provenance}", unit="mg", display_factor=1e-6), quantity)) for sign, reading in readings]
+    return terms
+
+
+def _linearity(item: Balance, name: str, how: str) -> Source:
+    return rectangular(name, 0.0, item.linearity, step="equipment calibration", equipment=item.id,
+                       provenance=f"+/-{item.linearity * 1e6:.3g} mg, rectangular, {how}; {item.provenance}",
+                       unit="mg", display_factor=1e-6)
 
 
 def value_source(ss: SourceSet, name: str, value, step: str, equipment: str = "") -> str | None:

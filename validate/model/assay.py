@@ -31,6 +31,7 @@ from validate.model.errors import evaluate_formula
 from validate.model.keys import ResultKey
 from validate.model.line import fit_line, inverse_prediction, straight_line
 from validate.model.scatter import LINE_GROUP, ScatterComponents, ScatterTerm
+from validate.model.photometry import reading_correction
 
 
 class SolutionInputs:
@@ -212,7 +213,7 @@ def solution_term(ss: SourceSet, method: Method, sol, is_standard_observed: bool
 def _weighed_term(ss: SourceSet, method: Method, sol: Weighed, step: str, is_standard_observed: bool):
     flask = volume_term(ss, method, sol.flask, step, sol.id, not is_standard_observed)
     mass = value_source(ss, f"{sol.id}: mass", sol.mass, step)
-    balance = balance_terms(ss, method, sol.balance, sol.id, step) if sol.balance else []
+    balance = balance_terms(ss, method, sol, step) if sol.balance else []
     purity = value_source(ss, f"{sol.id}: purity", sol.purity, step) if sol.purity else None
     molar = value_source(ss, f"{sol.id}: molar mass", sol.molar_mass, step) if sol.molar_mass else None
     m0 = sol.mass.value
@@ -221,8 +222,8 @@ def _weighed_term(ss: SourceSet, method: Method, sol: Weighed, step: str, is_sta
 
     def term(x, conc):
         m = exact_or(x, mass, m0)
-        for b in balance:
-            m = m + x[b]
+        for sign, b in balance:
+            m = m + sign * x[b]
         c = m * exact_or(x, purity, p0) / flask(x)
         return c / exact_or(x, molar, mm0) if mm0 is not None else c
 
@@ -275,6 +276,7 @@ def mean_reading_term(ss: SourceSet, method: Method, ident: str, readings: tuple
                              provenance=f"{path0 * 1e3:g} mm +/-{cell.tolerance * 1e3:g} mm, one cell for "
                              f"every reading; {cell.provenance}", unit="mm", display_factor=1e-3))
     mean = sum(readings) / len(readings)
+    correct = reading_correction(ss, method, photometer, ident)  # gain, drift, stray light
 
     def term(x):
         a = mean
@@ -284,7 +286,7 @@ def mean_reading_term(ss: SourceSet, method: Method, ident: str, readings: tuple
             a = a + sum(x[name] for name in noise) / len(noise)
         if offset is not None:
             a = a - x[offset]
-        return a / exact_or(x, path, path0)
+        return correct(x, a) / exact_or(x, path, path0)
 
     return term
 

@@ -9,9 +9,8 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 
+from validate.inputs.consistency import exact_inputs
 from validate.inputs.schema import AssayMethod, Method
-from validate.inputs.solutions import Certified, Weighed
-from validate.inputs.values import UncertainValue
 from validate.record.blocks import EquilibriumBlock, TrendEntry
 from validate.record.blocks_validation import IntermediatePrecisionEntry, ValidationBlock
 from validate.record.blocks_verdict import VerdictItem
@@ -149,38 +148,9 @@ def equilibrium(e: EquilibriumBlock) -> list[VerdictItem]:
 # --------------------------------------------------------------------------
 # inputs the method file states without an uncertainty
 
-def _exact(value: UncertainValue | None) -> bool:
-    return value is not None and value.u == 0
-
-
-def _solution_exact(method: Method) -> list[VerdictItem]:
-    items = []
-    for sol in method.solutions.values():
-        match sol:
-            case Weighed():
-                if sol.purity is None:
-                    items.append(VerdictItem(what=f"purity of {sol.id}", why="no purity given: taken as 100 %, exact"))
-                for label, value in (("purity", sol.purity), ("molar mass", sol.molar_mass)):
-                    if _exact(value):
-                        items.append(VerdictItem(what=f"{label} of {sol.id}", why="stated without an uncertainty: "
-                                                 "taken as exact"))
-                if sol.balance is None and _exact(sol.mass):
-                    items.append(VerdictItem(what=f"mass of {sol.id}", why="no balance and no uncertainty: taken as "
-                                             "exact"))
-            case Certified():
-                if _exact(sol.concentration):
-                    items.append(VerdictItem(what=f"concentration of {sol.id}", why="stated without an uncertainty: "
-                                             "taken as exact"))
-    return items
-
-
 def stated_exact(method: Method) -> list[VerdictItem]:
-    """Inputs the method file gives without an uncertainty: they enter the result as exact."""
-    items = _solution_exact(method)
-    if isinstance(method, AssayMethod):
-        items += [VerdictItem(what=f"{name} in [quantities]", why="stated without an uncertainty: taken as exact")
-                  for name, q in method.quantities.items() if q.delivery is None and _exact(q.value)]
-        if _exact(method.validation.reference_value):
-            items.append(VerdictItem(what="reference value", why="stated without an uncertainty: taken as exact "
-                                     "in E_n"))
-    return items
+    """Inputs that enter the result as exact (validate.inputs.consistency.exact_inputs, the list the
+    defaults shown are made from)."""
+    quantities = method.quantities if isinstance(method, AssayMethod) else {}
+    reference = method.validation.reference_value if isinstance(method, AssayMethod) else None
+    return [VerdictItem(what=what, why=why) for what, why in exact_inputs(method.solutions, quantities, reference)]
