@@ -98,6 +98,17 @@ class Model(SolutionInputs):
             results[label] = evaluate_formula(formula, values, sample_id) / factor
         return results
 
+    def result_at(self, c_measured: float) -> float:
+        """The result (display unit) for a concentration `c_measured` (SI) in the measuring solution,
+        every other input at its estimate: how a concentration on the line reads in the reported unit."""
+        x = self.nominal_inputs()
+        values = dict(self.concentrations(x))
+        sample_id = self.method.samples[0].id if self.method.samples else ""
+        for name, term in self._quantity_terms.items():
+            values[name] = term(x, sample_id)
+        values["c_measured"] = c_measured
+        return float(evaluate_formula(self.method.result.formula, values, sample_id) / self.method.result.unit.factor)
+
     def _read_off_line(self, x, conc) -> list[tuple[str, Any]]:
         """(sample id, concentration in the measured solution) of every sample, from this
         evaluation's line."""
