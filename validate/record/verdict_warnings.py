@@ -21,7 +21,6 @@ from validate.record.blocks_verdict import VerdictItem
 from validate.record.types import EquipmentEntry, ResultEntry
 from validate.validation.method_uncertainty import reconcile
 
-
 P_FLOOR = 1e-16  # below about this a p value from a distribution's tail is rounding error
 
 
@@ -88,8 +87,9 @@ def top_down(v: ValidationBlock, results: Sequence[ResultEntry], skip: Sequence[
             items.append(VerdictItem(
                 what=f"top-down against bottom-up, {sample}",
                 why=f"intermediate precision over {ip.groups} series, relative SD {ip.intermediate_rsd_percent:.2g} %, "
-                    f"exceeds the result's relative standard uncertainty, {relative_u:.2g} % (F = {test.statistic:.3g}, "
-                    f"{p_text(test.p_value)}): the budget may miss a series-to-series effect"))
+                    f"exceeds the result's relative standard uncertainty, {relative_u:.2g} % "
+                    f"(F = {test.statistic:.3g}, {p_text(test.p_value)}): the budget may miss a series-to-series "
+                    "effect"))
     return items
 
 

@@ -21,7 +21,6 @@ from validate.model.line import LineFit, fit_line, inverse_prediction
 from validate.propagation.linear import LinearResult
 from validate.validation.criteria import STUDY_CRITERIA, evaluate_criteria
 from validate.validation.limits import range_flags
-from validate.validation.reporting import as_is, limits_in, reporting_units, results_by_sample, scope_check
 from validate.validation.linearity import plain
 from validate.validation.precision import (
     intermediate_precision,
@@ -30,6 +29,7 @@ from validate.validation.precision import (
     scatter_consistency,
     within_series_groups,
 )
+from validate.validation.reporting import as_is, limits_in, reporting_units, results_by_sample, scope_check
 from validate.validation.summary import ValidationSummary, validate_calibration
 from validate.validation.window import absorbance_window_flags
 
