@@ -154,6 +154,12 @@ def p_value(p, digits: int = 2, missing: str = DASH) -> str:
     return f"< {P_FLOOR:g}" if p < P_FLOOR else f"{p:.{digits}g}"
 
 
+def p_equals(p, digits: int = 2) -> str:
+    """ "p = 0.043", or "p < 1e-16" (p_value)."""
+    shown = p_value(p, digits)
+    return f"p {shown}" if shown.startswith("<") else f"p = {shown}"
+
+
 def pct(share, digits: int = 1) -> str:
     """A fraction as a percentage; tiny non-zero shares shown as '< 0.1 %'."""
     if not is_number(share):

@@ -343,7 +343,7 @@ def _scatter(record: dict, v: dict) -> list:
         ("observed residual SD", f"{num(sc.get('observed_sd'), 3)} (absorbance)"),
         ("SD predicted by the budget", f"{num(sc.get('predicted_sd'), 3)} (absorbance)"),
         ("χ², degrees of freedom", f"{num(sc.get('chi_square'), 4)}, {sc.get('dof', DASH)}"),
-        ("p (excess), p (deficit)", f"{num(sc.get('p_excess'), 3)}, {num(sc.get('p_deficit'), 3)}"),
+        ("p (excess), p (deficit)", f"{p_value(sc.get('p_excess'), 3)}, {p_value(sc.get('p_deficit'), 3)}"),
         ("verdict", coloured(sc.get("verdict", DASH), ok))]),
         para(sc.get("source", ""), "note")]
 
