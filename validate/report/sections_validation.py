@@ -103,20 +103,20 @@ def _sensitivity(v: dict, unit: str) -> list:
     return [heading("Sensitivity and molar absorptivity", 2), key_value_table(rows, (44, 130))]
 
 
+def _route_rows(limits: dict) -> list[list]:
+    declared = limits.get("declared_route")
+    return [[ROUTE_NAMES.get(r.get("route"), r.get("route", DASH)), num(r.get("sigma"), 3), num(r.get("lod"), 3),
+             num(r.get("loq"), 3) if r.get("loq") is not None else "not defined",
+             "declared" if r.get("route") == declared else ""] for r in limits["routes"]]
+
+
 def detection_limits(record: dict) -> list | None:
     v = _validation(record)
     limits = (v or {}).get("limits")
     if not isinstance(limits, dict) or not limits.get("routes"):
         return None
     unit = concentration_unit(record)
-    declared = limits.get("declared_route")
-    rows = []
-    for r in limits["routes"]:
-        mark = "declared" if r.get("route") == declared else ""
-        rows.append([ROUTE_NAMES.get(r.get("route"), r.get("route", DASH)), num(r.get("sigma"), 3),
-                     num(r.get("lod"), 3),
-                     num(r.get("loq"), 3) if r.get("loq") is not None else "not defined",
-                     mark])
+    rows = _route_rows(limits)
     out = [para(f"Limits in {unit or 'the concentration unit'}; σ in absorbance. The declared "
                 f"route is the one this record uses: LOD = {num(limits.get('lod'), 3)} {unit}, "
                 f"LOQ = {num(limits.get('loq'), 3)} {unit}.", "lead"),

@@ -98,6 +98,20 @@ def _criterion(key: str, settings: dict, observed: dict, applicable: bool) -> Cr
                      source if is_default else "set by the user", is_default, status)
 
 
+def _judged_keys(settings: dict, applicable: tuple[str, ...] | None) -> list[str]:
+    """The criteria judged: those that apply, and any the user set."""
+    return [k for k in CRITERIA if applicable is None or k in applicable or k in settings]
+
+
+def _caution(keys: list[str]) -> str:
+    caution = ("Acceptance criteria come from the applicable requirements, not from the tool; defaults "
+               "marked common practice are placeholders.")
+    left_out = [CRITERIA[k][0] for k in CRITERIA if k not in keys]
+    if left_out:
+        caution += " Not applicable to this kind of method, so not judged: " + "; ".join(left_out) + "."
+    return caution
+
+
 def evaluate_criteria(settings: dict | None, observed: dict,
                       applicable: tuple[str, ...] | None = None) -> CriteriaResult:
     """Compare observed values with the settings (defaults fill in what is not given).
@@ -109,13 +123,8 @@ def evaluate_criteria(settings: dict | None, observed: dict,
     if unknown:
         raise ValueError(f"unknown acceptance criteria {', '.join(unknown)}; known ones are "
                          f"{', '.join(CRITERIA)}")
-    keys = [k for k in CRITERIA if applicable is None or k in applicable or k in settings]
+    keys = _judged_keys(settings, applicable)
     out = [_criterion(k, settings, observed, applicable is None or k in applicable) for k in keys]
     evaluated = [c.met for c in out if c.met is not None]
-    caution = ("Acceptance criteria come from the applicable requirements, not from the tool; defaults "
-               "marked common practice are placeholders.")
-    left_out = [CRITERIA[k][0] for k in CRITERIA if k not in keys]
-    if left_out:
-        caution += " Not applicable to this kind of method, so not judged: " + "; ".join(left_out) + "."
     return CriteriaResult(tuple(out), {k: DEFAULTS[k] for k in keys}, all(evaluated) if evaluated else None,
-                          caution)
+                          _caution(keys))
