@@ -198,3 +198,13 @@ def test_calibrate_prints_units_u_and_k_and_one_block_of_sources(tmp_path):
     body, sources = printed.split("\nSources\n")
     assert "source:" not in body and "[1]" in body
     assert sources.lstrip().startswith("[1] ") and "Draper and Smith" in sources
+
+
+def test_the_terminal_shows_both_units_and_epsilon_with_its_unit(phosphate):
+    from validate.report.terminal_validation import validation_lines
+    lines = [line.text for line in validation_lines(phosphate.record["validation"]) if hasattr(line, "text")]
+    shown = "\n".join(lines)
+    assert "in the measuring solution: LOD 0.0814, LOQ 0.247, working range 0.998 to 9.98" in shown
+    assert "in the sample (reported unit): LOD 0.0063, LOQ 0.0191, working range 0.0773 to 0.773" in shown
+    assert "L mol^-1 cm^-1, u = 35 L mol^-1 cm^-1 (path length 4 cm)" in shown
+    assert "below the lowest standard (0.07729 mg/L)" in shown

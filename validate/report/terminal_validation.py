@@ -60,7 +60,7 @@ def _absorptivity_line(v: dict) -> list[Printable]:
         return []
     value, u = gum_pair(e["value"], e["standard_uncertainty"], missing=MISSING)
     note = e.get("note")
-    return [Line(f"  molar absorptivity {value} {escape(e['unit'])}, u = {u} (path length "
+    return [Line(f"  molar absorptivity {value} {escape(e['unit'])}, u = {u} {escape(e['unit'])} (path length "
                  f"{compact(e['path_length_cm'])} cm)" + (f"; {escape(note)}" if note else ""), soft_wrap=True)]
 
 
