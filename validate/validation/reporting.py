@@ -114,8 +114,8 @@ def scope_check(method: AssayMethod, units: dict, values: dict[str, float], samp
     if stated is None or cal is None:
         return _no_scope(method.scope, 'the scope states no concentration range ("LOW to HIGH UNIT"): results are '
                                        "not checked against one")
-    if stated.unit.dims == method.result.unit.dims and units.get("reported") is not None:
-        applies, target, shown = "sample", method.result.unit, units["reported"]
+    if stated.unit.dims == method.result.unit.dims:  # with no conversion (no c_measured) only the results
+        applies, target, shown = "sample", method.result.unit, units.get("reported")
         observed = values
     elif stated.unit.dims == cal.concentration_unit.dims:
         applies, target, shown = "measuring solution", cal.concentration_unit, units["measuring_solution"]
@@ -128,5 +128,5 @@ def scope_check(method: AssayMethod, units: dict, values: dict[str, float], samp
     outside = {sid: f"outside the stated scope ({text}): {value:.4g} {target.text} is not covered by the validation"
                for sid, value in observed.items() if value is not None and not low <= value <= high}
     return {"text": method.scope, "low": low, "high": high, "unit": target.text, "applies_to": applies,
-            "flags": _against_range(low, high, shown),
+            "flags": _against_range(low, high, shown) if shown else [],
             "note": f"the scope states {text} in the {applies}", "sample_flags": outside}
