@@ -67,7 +67,7 @@ def test_format_quick_check_shows_fit_tests_limits_and_samples(tmp_path):
     table = tmp_path / "fluorescence.csv"
     table.write_text(FLUORESCENCE)
     text = format_quick_check(quick_check(table, [[2.9, 3.0]]))
-    for part in ("Straight-line fit", "Mandel's test", "source: ", "ICH Q2(R1)",
+    for part in ("Straight-line fit", "Mandel's test", "\nSources\n  [1] ", "ICH Q2(R1)",
                  "ISO 11843-2", "sample 1: 2 reading(s)", "LOD"):
         assert part in text
 

@@ -20,11 +20,7 @@ def _text(lines) -> str:
     """Print Lines the way the command line does, into a string."""
     out = io.StringIO()
     console = Console(file=out, width=WIDTH, highlight=False, color_system=None)
-    for item in lines:
-        if isinstance(item, terminal.Line):
-            console.print(item.text, soft_wrap=item.soft_wrap, style=item.style)
-        else:
-            console.print(item)
+    cli._show(console, lines)
     return out.getvalue()
 
 
@@ -126,7 +122,7 @@ def test_criteria_show_their_units():
         {"status": "met", "met": True, "name": "LOQ", "observed": 0.2467, "comparison": "<=", "limit": 0.5,
          "is_default": False, "unit": "concentration unit"}]}
     text = _text(terminal.criteria_lines(criteria, "µmol/L"))
-    assert "relative U: 2.331 % <= 5.0 %" in text
+    assert "relative U: 2.331 % <= 5 %" in text
     assert "LOQ: 0.2467 µmol/L <= 0.5 µmol/L" in text
 
 
@@ -193,3 +189,33 @@ def test_an_undecided_check_and_a_missing_variance_are_said_so():
     assert "undecided against Monte Carlo" in text
     assert "agrees with Monte Carlo" not in text and "differs from Monte Carlo" not in text
     assert "no finite variance" in text
+
+
+def test_criteria_not_evaluable_and_en_are_shown_with_the_limit():
+    criteria = {"caution": "", "criteria": [
+        {"status": "met", "met": True, "name": "|E_n|", "observed": -0.4642, "comparison": "|x| <=", "limit": 1.0,
+         "is_default": True, "unit": ""},
+        {"status": "not evaluable", "met": None, "name": "recovery", "observed": None, "comparison": "within",
+         "limit": [95.0, 105.0], "is_default": False, "unit": "%"}]}
+    text = _text(terminal.criteria_lines(criteria))
+    assert "met  |E_n|: |-0.4642| <= 1 (default)" in text
+    assert "not evaluable  recovery: no observed value (see the verdict) within 95 to 105 %" in text
+
+
+def test_output_into_a_file_or_pipe_is_not_broken_at_80_columns():
+    out = io.StringIO()  # not a terminal
+    console = Console(file=out, highlight=False, color_system=None)
+    long = "x" * 50 + " " + "y" * 50 + " " + "z" * 50
+    cli._show(console, [terminal.Line(long)])
+    assert out.getvalue() == long + "\n"
+
+
+def test_p_values_are_never_printed_as_zero():
+    from validate.report.numbers import p_value
+    assert p_value(0.0) == "< 1e-16" and p_value(3e-20) == "< 1e-16"
+    assert p_value(4.6e-12) == "4.6e-12" and p_value(0.0456, 3) == "0.0456"
+    test = {"name": "intercept test", "p_value": 0.0, "verdict": "differs", "evaluable": True, "statistic": 80.0,
+            "source": "s"}
+    quick = {"linearity": {"intercept": test}}
+    from validate.report.terminal import _linearity_text, _Sources
+    assert "p < 1e-16" in "\n".join(_linearity_text(quick, _Sources()))

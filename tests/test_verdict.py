@@ -36,14 +36,20 @@ def phosphate_linear():
 
 
 def _quiet(validation):
-    """The validation block without the demo's two warnings (limits disagree, top-down wider)."""
+    """The validation block without the demo's warnings (limits disagree, top-down wider, the scope
+    starting below the lowest standard)."""
     limits = dataclasses.replace(validation.limits, warnings=())
-    return dataclasses.replace(validation, limits=limits, intermediate_precision=None)
+    return dataclasses.replace(validation, limits=limits, intermediate_precision=None, scope=None)
+
+
+def _unflagged(results):
+    """The results without their range flags (the demo's outfall lies outside the stated scope)."""
+    return tuple(dataclasses.replace(r, flags=()) for r in results)
 
 
 def _verdict(record, **changes):
-    parts = {"results": record.results, "validation": record.validation, "equilibrium": record.equilibrium,
-             "equipment": (), "exact": (), "monte_carlo_ran": True}
+    parts = {"results": _unflagged(record.results), "validation": record.validation,
+             "equilibrium": record.equilibrium, "equipment": (), "exact": (), "monte_carlo_ran": True}
     return judge(**{**parts, **changes})
 
 
@@ -84,12 +90,19 @@ def test_a_criterion_not_evaluable_is_a_reservation_with_its_reason(phosphate_li
 
 def test_warnings_are_reservations(phosphate_linear):
     record = phosphate_linear.typed_record
-    verdict = _verdict(record, monte_carlo_ran=False)  # the demo's own validation block, linear only
+    verdict = _verdict(record, results=record.results, monte_carlo_ran=False)  # the demo's own blocks, linear only
     whats = [i.what for i in verdict.warnings]
     assert verdict.status == "fit with reservations"
     assert "detection and quantitation limits" in whats
     assert "top-down against bottom-up, reference_water" in whats
     assert "Monte Carlo check of the GUM interval" in whats
+    # the demo states 0.05 to 0.4 mg/L in its scope: the outfall (0.61 mg/L) lies outside it, and the
+    # scope starts below the lowest standard (1 µmol/L through the dilution 20 mL to 50 mL: 0.077 mg/L P)
+    assert "range, orthophosphate-P, outfall" in whats
+    outfall = next(i for i in verdict.warnings if i.what == "range, orthophosphate-P, outfall")
+    assert "outside the stated scope (0.05 to 0.4 mg/L)" in outfall.why and "0.61 mg/L" in outfall.why
+    scope = next(i for i in verdict.warnings if i.what == "stated scope against the working range")
+    assert "below the lowest standard (0.07729 mg/L)" in scope.why
 
 
 def test_no_evaluated_criterion_is_not_shown_fit(phosphate_linear):
@@ -218,8 +231,8 @@ def test_the_nickel_demo_says_the_same_everywhere(nickel_demo, tmp_path):
     run.set_record(nickel_demo.typed_record)  # a run of its own: write_outputs replaces its record
     verdict = _same_everywhere(run, tmp_path / "out")
     assert verdict["status"] == "fit with reservations"
-    assert {i["what"] for i in verdict["not_evaluable"]} == {"recovery against the reference value",
-                                                             "|E_n| against the reference value"}
+    # recovery and E_n do not apply to a study: left out, not "not evaluable"
+    assert verdict["not_evaluable"] == []
 
 
 @pytest.mark.slow
@@ -239,3 +252,60 @@ def test_input_notes_and_defaults_from_memory_are_warnings(phosphate_linear):
     assert [(i.what, i.why) for i in verdict.warnings] == [
         ("default from memory", "a register value, from memory"),
         ("input note", "readings not used by the method: S9")]
+
+
+# --------------------------------------------------------------------------
+# an equilibrium study is judged on the criteria that apply to it
+
+def test_a_study_whose_criteria_are_met_and_nothing_listed_is_fit(nickel_demo):
+    record = nickel_demo.typed_record
+    keys = [c.key for c in record.validation.criteria.criteria]
+    assert "recovery_range" not in keys and "max_abs_en" not in keys  # no reference value for K
+    validation = _quiet(dataclasses.replace(record.validation, runs=dataclasses.replace(
+        record.validation.runs, significant=False)))
+    mixtures = tuple(dataclasses.replace(m, saturation_flag=None) for m in record.equilibrium.mixtures)
+    equilibrium = dataclasses.replace(record.equilibrium, mixtures=mixtures)
+    results = tuple(dataclasses.replace(r, monte_carlo=dataclasses.replace(r.monte_carlo, agrees_with_gum=True))
+                    for r in _unflagged(record.results))
+    verdict = _verdict(record, results=results, validation=validation, equilibrium=equilibrium)
+    assert (verdict.not_met, verdict.not_evaluable, verdict.warnings) == ((), (), ())
+    assert verdict.status == "fit"
+
+
+def test_a_criterion_a_study_cannot_evaluate_is_not_evaluable_only_when_set():
+    from validate.validation.criteria import STUDY_CRITERIA, evaluate_criteria
+    observed = {"r_squared": 0.9999, "recovery_percent": None}
+    left_out = evaluate_criteria({}, observed, applicable=STUDY_CRITERIA)
+    assert "recovery_range" not in [c.key for c in left_out.criteria]
+    assert "Not applicable to this kind of method" in left_out.caution
+    kept = evaluate_criteria({"recovery_range": [95, 105]}, observed, applicable=STUDY_CRITERIA)
+    row = next(c for c in kept.criteria if c.key == "recovery_range")
+    assert row.status == "not evaluable" and not row.is_default
+
+
+# --------------------------------------------------------------------------
+# the top-down route against the bottom-up budget
+
+def test_a_reconciliation_that_disagrees_is_a_warning(phosphate_linear):
+    record = phosphate_linear.typed_record
+    routine = record.method_uncertainty
+    assert routine is not None and routine.reconciliation.verdict == "agree"  # the demo's own: no warning
+    quiet = _verdict(record, validation=_quiet(record.validation), method_uncertainty=routine)
+    assert quiet.status == "fit"
+    larger = dataclasses.replace(routine, reconciliation=dataclasses.replace(
+        routine.reconciliation, verdict="top-down larger", p_value=0.003))
+    verdict = _verdict(record, validation=_quiet(record.validation), method_uncertainty=larger)
+    assert verdict.status == "fit with reservations"
+    item = next(i for i in verdict.warnings if i.what.startswith("top-down against bottom-up, method"))
+    assert item.why.startswith("top-down larger (F = ") and "p = 0.003" in item.why
+
+
+def test_a_sample_whose_scatter_over_series_is_within_its_u_gives_no_warning(phosphate_linear):
+    """The F test (NIST/SEMATECH e-Handbook 1.3.5.9, as validate.validation.method_uncertainty.reconcile):
+    an intermediate relative SD equal to the relative u is no disagreement."""
+    record = phosphate_linear.typed_record
+    result = next(r for r in record.results if r.key.id == "reference_water")
+    ip = record.validation.intermediate_precision["reference_water"]
+    same = dataclasses.replace(ip, intermediate_rsd_percent=100 * result.standard_uncertainty / result.value)
+    validation = dataclasses.replace(record.validation, intermediate_precision={"reference_water": same})
+    assert not [i for i in _verdict(record, validation=validation).warnings if i.what.startswith("top-down")]

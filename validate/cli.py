@@ -154,9 +154,10 @@ def main(argv=None) -> int:
 
 
 def _show(console: Console, lines: list[terminal.Printable]) -> None:
+    """Print the lines; into a file or a pipe no line is broken at the console's width."""
     for item in lines:
         if isinstance(item, terminal.Line):
-            console.print(item.text, soft_wrap=item.soft_wrap, style=item.style)
+            console.print(item.text, soft_wrap=item.soft_wrap or not console.is_terminal, style=item.style)
         else:
             console.print(item)
 

@@ -4,6 +4,7 @@ check of its readings table against the standards, blanks and samples it names."
 from __future__ import annotations
 
 import difflib
+import re
 from dataclasses import dataclass
 
 from validate.inputs.equipment_section import item_reference
@@ -21,7 +22,7 @@ from validate.inputs.schema import (
 )
 from validate.inputs.solutions import Blank, Solution
 from validate.inputs.tables import Table, parse_delivery, parse_uncertain, unit_of
-from validate.inputs.units import Unit, describe_dims
+from validate.inputs.units import Unit, UnitError, a_dims, parse_unit
 
 VOLUME = (0, 3, 0, 0)
 RESERVED = {"c_measured"}
@@ -189,17 +190,45 @@ def _check_result_dimension(t: Table, formula: Formula, dims: dict, unit: Unit) 
         raise t.error(f"the formula's units do not fit together: {exc}", "formula",
                       fix="check the formula and the units of its quantities") from None
     if tuple(got) != tuple(unit.dims):
-        raise t.error(f"the formula gives a {describe_dims(got)}, but the unit {unit.text!r} is a "
-                      f"{describe_dims(unit.dims)}", "unit", fix="check the formula and the result's unit")
+        raise t.error(f"the formula gives {a_dims(got)}, but the unit {unit.text!r} is "
+                      f"{a_dims(unit.dims)}", "unit", fix="check the formula and the result's unit")
 
 
 def _check_standards_unit(parts: AssayParts, cal: Calibration) -> None:
     """Every standard's concentration is of the calibration unit's kind (mass or amount)."""
     for sid in cal.standards:
         if parts.concentration_dims(sid) != cal.concentration_unit.dims:
-            raise InputError(f"standard `{sid}` has a {describe_dims(parts.concentration_dims(sid))} "
-                             f"but the calibration unit is a "
-                             f"{describe_dims(cal.concentration_unit.dims)}",
+            raise InputError(f"standard `{sid}` has {a_dims(parts.concentration_dims(sid))} "
+                             f"but the calibration unit is {a_dims(cal.concentration_unit.dims)}",
                              file=parts.path, where="[calibration].concentration_unit",
                              fix="give a molar mass for amount concentrations, or a unit of the "
                                  "standards' kind (mg/L for mass, µmol/L for amount)")
+
+
+# ---- the range stated in [method] scope ----
+
+_NUMBER = r"(\d+(?:\.\d*)?(?:[eE][-+]?\d+)?)"
+SCOPE_RANGE = re.compile(_NUMBER + r"\s*(?:to|-|–|—|\.\.\.?)\s*" + _NUMBER + r"\s*([^\s,;()]+)")
+
+
+@dataclass(frozen=True)
+class ScopeRange:
+    """A concentration range written in the scope as "LOW to HIGH UNIT" (also "LOW - HIGH UNIT")."""
+
+    low: float  # in `unit`
+    high: float
+    unit: Unit
+
+
+def scope_range(text: str) -> ScopeRange | None:
+    """The first "LOW to HIGH UNIT" in the scope whose unit is a concentration, low below high;
+    None when the scope states none (free text is the analyst's; nothing here is an error)."""
+    for match in SCOPE_RANGE.finditer(text or ""):
+        try:
+            unit = parse_unit(match.group(3))
+        except UnitError:
+            continue
+        low, high = float(match.group(1)), float(match.group(2))
+        if unit.dims in (MASS_CONCENTRATION, AMOUNT_CONCENTRATION) and low < high:
+            return ScopeRange(low, high, unit)
+    return None

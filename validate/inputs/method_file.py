@@ -28,13 +28,13 @@ from validate.inputs.schema import AssayMethod, EquilibriumMethod, Method, Sampl
 from validate.inputs.solutions_section import check_solution_graph, parse_solution
 from validate.inputs.tables import Table, parse_uncertain
 from validate.inputs.text import MAX_NESTING, clean_document
-from validate.inputs.validation_settings import parse_validation
+from validate.inputs.validation_settings import parse_study_acceptance, parse_validation
 
 TOP_KEYS = ("method", "settings", "equipment", "solutions", "calibration", "samples",
             "quantities", "result", "validation", "acceptance", "equilibrium",
             "routine_uncertainty")
 # sections a study does not read
-ASSAY_ONLY = ("samples", "quantities", "validation", "acceptance", "routine_uncertainty")
+ASSAY_ONLY = ("samples", "quantities", "validation", "routine_uncertainty")
 
 
 def load_method(path, redirect: Redirect | None = None) -> Method:
@@ -155,7 +155,8 @@ def _equilibrium_method(top: Table, path: Path, common: dict, extra: list[Path],
     readings_path = _located(path.parent / study.readings_file, "readings table", redirect)
     readings = load_readings(readings_path)
     check_equilibrium_readings(study, readings, readings_path)
-    return EquilibriumMethod(**common, equilibrium=study, readings=readings,
+    validation = parse_study_acceptance(top, defaults)
+    return EquilibriumMethod(**common, equilibrium=study, readings=readings, validation=validation,
                              input_files=_input_files(path, readings_path, *extra),
                              defaults_shown=tuple(defaults))
 

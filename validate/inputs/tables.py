@@ -8,7 +8,7 @@ from typing import overload
 
 from validate.inputs.errors import InputError
 from validate.inputs.items import OneMarkPipette, Volumetric, VolumetricFlask, kind_names
-from validate.inputs.units import Unit, UnitError, describe_dims, parse_quantity, parse_unit
+from validate.inputs.units import Unit, UnitError, a_dims, describe_dims, parse_quantity, parse_unit
 from validate.inputs.values import DISTRIBUTIONS, Delivery, UncertainValue
 
 
@@ -117,8 +117,8 @@ def parse_si(raw, table: Table, key: str, dims=None, positive=True) -> tuple[flo
         raise table.error(str(exc), key, fix="write a number and its unit in quotes, e.g. \"10.00 mL\"") from None
     if dims is not None and unit.dims != tuple(dims):
         wanted = describe_dims(tuple(dims))
-        got = f"the unit {unit.text!r} is a {describe_dims(unit.dims)}" if unit.text else "the value has no unit"
-        raise table.error(f"{got}, but a {wanted} is needed here", key,
+        got = f"the unit {unit.text!r} is {a_dims(unit.dims)}" if unit.text else "the value has no unit"
+        raise table.error(f"{got}, but {a_dims(tuple(dims))} is needed here", key,
                           fix=f"give the value in a unit of {wanted}")
     if not math.isfinite(number):
         raise table.error("the value is not a finite number", key, fix="write a finite number and its unit")
@@ -311,8 +311,8 @@ def unit_of(table: Table, key: str, dims=None) -> Unit:
     except UnitError as exc:
         raise table.error(str(exc), key, fix='write a unit such as "mg/L" or "µmol/L"') from None
     if dims is not None and unit.dims != tuple(dims):
-        raise table.error(f"{raw!r} is a {describe_dims(unit.dims)}, but a "
-                          f"{describe_dims(tuple(dims))} is needed", key,
+        raise table.error(f"{raw!r} is {a_dims(unit.dims)}, but "
+                          f"{a_dims(tuple(dims))} is needed", key,
                           fix=f"give a unit of {describe_dims(tuple(dims))}")
     return unit
 

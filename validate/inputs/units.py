@@ -110,6 +110,12 @@ def describe_dims(dims: tuple[int, ...]) -> str:
     return " ".join(f"{lab}^{p}" for lab, p in zip(labels, dims, strict=True) if p) or "dimensionless"
 
 
+def a_dims(dims: tuple[int, ...]) -> str:
+    """describe_dims with its article: "a mass concentration", "an amount concentration"."""
+    words = describe_dims(dims)
+    return f"{'an' if words[0] in 'aeiou' else 'a'} {words}"
+
+
 _QUANTITY = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)\s*$")
 
 

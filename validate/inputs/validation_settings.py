@@ -36,6 +36,11 @@ CRITERIA = {
 
 DEFAULTS = {key: spec[3] for key, spec in CRITERIA.items()}
 
+# the criteria an equilibrium study can be judged on: its standards' line and the U of K (it has
+# no reference value for K and reads no sample in replicate)
+STUDY_CRITERIA = ("min_r_squared", "max_abs_relative_residual", "min_linearity_p_value", "max_loq",
+                  "max_relative_expanded_uncertainty")
+
 # The routes to the limits of detection and quantitation (validate.validation.limits computes them).
 ROUTES = ("ich_residual_sd", "ich_intercept_sd", "ich_blank_sd", "iso11843_2")
 
@@ -64,12 +69,36 @@ def parse_validation(top: Table, parts, result: ResultSpec, defaults: list[str])
             if not t.has(key):
                 defaults.append(f"default: {text}")
     acceptance = _acceptance(Table(top.get("acceptance", {}), top.file, "[acceptance]"))
-    unset = [k for k in CRITERIA if k not in acceptance and DEFAULTS[k] is not None]
-    if parts.calibration is not None and unset:
-        defaults.append("default acceptance criteria (common practice, set yours under [acceptance]): " +
-                        ", ".join(f"{k} = {DEFAULTS[k]}" for k in unset))
+    if parts.calibration is not None:
+        defaults += default_criteria_line(acceptance, tuple(CRITERIA))
     return ValidationSettings(route, alpha, beta, (float(window[0]), float(window[1])), sample, ref,
                               acceptance)
+
+
+def criterion_text(key: str, limit) -> str:
+    """A criterion's limit as the analyst writes it: "recovery_range = 95 to 105 %"."""
+    unit = CRITERIA[key][4]
+    unit = "" if unit == "concentration unit" else f" {unit}" if unit == "%" else ""
+    if isinstance(limit, (tuple, list)):
+        return f"{key} = {limit[0]:g} to {limit[1]:g}{unit}"
+    return f"{key} = {limit:g}{unit}"
+
+
+def default_criteria_line(acceptance: dict, applicable: tuple[str, ...]) -> list[str]:
+    """The defaults line for the criteria the user left unset (none: an empty list)."""
+    unset = [k for k in applicable if k not in acceptance and DEFAULTS[k] is not None]
+    if not unset:
+        return []
+    return ["default acceptance criteria (common practice, set yours under [acceptance]): " +
+            ", ".join(criterion_text(k, DEFAULTS[k]) for k in unset)]
+
+
+def parse_study_acceptance(top: Table, defaults: list[str]) -> ValidationSettings:
+    """An equilibrium study's [acceptance]: the criteria of STUDY_CRITERIA by default; another one
+    set by the user is kept and shown as not evaluable (validate.validation.criteria)."""
+    acceptance = _acceptance(Table(top.get("acceptance", {}), top.file, "[acceptance]"))
+    defaults += default_criteria_line(acceptance, STUDY_CRITERIA)
+    return ValidationSettings(acceptance=acceptance)
 
 
 def _is_range(value) -> bool:

@@ -30,8 +30,8 @@ from validate.model.errors import ModelError as ModelError  # imported from here
 from validate.model.errors import evaluate_formula
 from validate.model.keys import ResultKey
 from validate.model.line import fit_line, inverse_prediction, straight_line
-from validate.model.scatter import LINE_GROUP, ScatterComponents, ScatterTerm
 from validate.model.photometry import reading_correction
+from validate.model.scatter import LINE_GROUP, ScatterComponents, ScatterTerm
 
 
 class SolutionInputs:
@@ -101,6 +101,17 @@ class Model(SolutionInputs):
                 values["c_measured"] = c_measured
             results[label] = evaluate_formula(formula, values, sample_id) / factor
         return results
+
+    def result_at(self, c_measured: float) -> float:
+        """The result (display unit) for a concentration `c_measured` (SI) in the measuring solution,
+        every other input at its estimate: how a concentration on the line reads in the reported unit."""
+        x = self.nominal_inputs()
+        values = dict(self.concentrations(x))
+        sample_id = self.method.samples[0].id if self.method.samples else ""
+        for name, term in self._quantity_terms.items():
+            values[name] = term(x, sample_id)
+        values["c_measured"] = c_measured
+        return float(evaluate_formula(self.method.result.formula, values, sample_id) / self.method.result.unit.factor)
 
     def _read_off_line(self, x, conc) -> list[tuple[str, Any]]:
         """(sample id, concentration in the measured solution) of every sample, from this

@@ -135,8 +135,9 @@ class MolarAbsorptivityEntry(RecordPart):
     effective_dof: Number
     path_length_cm: Number
     path_length_u: Number
-    unit: str
+    unit: str = described("L mol^-1 cm^-1 for an amount concentration; else see note")
     source: str
+    note: str = described("how the slope was converted, or why not to mol/L")
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -288,6 +289,40 @@ class IntermediatePrecisionEntry(RecordPart):
 
 
 @dataclass(frozen=True, kw_only=True)
+class LimitsInUnit(RecordPart):
+    """The line's limits and working range in one unit (validate.validation.reporting)."""
+
+    unit: str
+    lod: Number
+    loq: Number
+    working_range_low: Number = described("the lowest standard above zero")
+    working_range_high: Number = described("the highest standard")
+    critical_value: Number = described("ISO 11843-2 critical value x_C")
+    minimum_detectable_value: Number = described("ISO 11843-2 minimum detectable value x_D")
+
+
+@dataclass(frozen=True, kw_only=True)
+class ReportingUnits(RecordPart):
+    measuring_solution: LimitsInUnit = described("in the calibration's concentration unit")
+    reported: LimitsInUnit | None = described("in the result's unit, through the result formula; null: "
+                                              "not convertible (see how)")
+    how: str
+
+
+@dataclass(frozen=True, kw_only=True)
+class ScopeEntry(RecordPart):
+    """The range stated in [method] scope against the working range."""
+
+    text: str
+    low: Number = described("null: the scope states no range")
+    high: Number
+    unit: str | None
+    applies_to: str | None = described('"sample" (the result\'s unit) or "measuring solution"')
+    flags: tuple[str, ...] = described("where the scope and the working range or LOQ disagree")
+    note: str
+
+
+@dataclass(frozen=True, kw_only=True)
 class ValidationBlock(RecordPart):
     """The method's calibration judged as a method (validate.validation.block)."""
 
@@ -324,3 +359,6 @@ class ValidationBlock(RecordPart):
         "the line's statistical units and scatter components; left out for an equilibrium study")
     intermediate_precision: dict[str, IntermediatePrecisionEntry | Unavailable] | None = omitted_when_none(
         "per sample read in two or more series (ISO 5725-3); left out for an equilibrium study")
+    reporting_units: ReportingUnits | None = omitted_when_none(
+        "LOD, LOQ, working range and ISO 11843-2 values in the measuring solution's and the reported unit")
+    scope: ScopeEntry | None = omitted_when_none("the scope's range against the working range; left out for a study")

@@ -69,6 +69,7 @@ def build_record(method: Method, model: Model | EquilibriumModel, results: list[
     entries = _results(results, monte_carlo, keys, validation, quantity_of)
     equipment = tuple(EquipmentEntry(id=i.id, kind=i.kind, item_class=i.item_class, provenance=i.provenance)
                       for i in method.items.values())
+    routine = _method_uncertainty(method, model, results)
     return Record(
         schema_version=SCHEMA_VERSION,
         software=Software(name="validate", version=__version__),
@@ -76,7 +77,7 @@ def build_record(method: Method, model: Model | EquilibriumModel, results: list[
         method=_method_info(method),
         verdict=judge(results=entries, validation=validation, equilibrium=equilibrium, equipment=equipment,
                       exact=stated_exact(method), monte_carlo_ran=bool(monte_carlo),
-                      defaults_applied=method.defaults_shown, notes=method.notes),
+                      defaults_applied=method.defaults_shown, notes=method.notes, method_uncertainty=routine),
         inputs=inputs,
         settings=Settings.from_dict({**method.settings.to_dict(), "validation": method.validation.to_dict()},
                                     "settings"),
@@ -96,7 +97,7 @@ def build_record(method: Method, model: Model | EquilibriumModel, results: list[
         budget=tuple(BudgetRow.from_dict({"result": row["result"], "key": to_dict(keys[row["result"]]),
                                           **{k: v for k, v in row.items() if k != "result"}}, "budget")
                      for row in budget_rows(results)),
-        method_uncertainty=_method_uncertainty(method, model, results),
+        method_uncertainty=routine,
     )
 
 
@@ -148,7 +149,7 @@ def _stage_blocks(method: Method, model: Model | EquilibriumModel, results: list
         if combination is None:
             raise ValueError("an equilibrium study's record needs the combination of its K values")
         block = equilibrium_block(model, results, list(monte_carlo), *combination)
-        return (ValidationBlock.from_dict(equilibrium_validation_block(model), "validation"),
+        return (ValidationBlock.from_dict(equilibrium_validation_block(model, results), "validation"),
                 EquilibriumBlock.from_dict(block, "equilibrium"))
     if model.method.calibration is None:
         return None, None

@@ -3,8 +3,9 @@
 The status:
 - "not shown fit": an acceptance criterion is not met, or none could be evaluated;
 - "fit with reservations": none failed, but a criterion could not be evaluated, or a warning
-  bears on the result (linearity, weighting, scatter, top-down against bottom-up, Monte Carlo
-  against GUM, range flags, detection limits, equipment figures from memory or typical, inputs
+  bears on the result (linearity, weighting, scatter, top-down against bottom-up: each sample's
+  intermediate precision and the method's reconciliation, Monte Carlo against GUM, range flags
+  and the stated scope, detection limits, equipment figures from memory or typical, inputs
   taken as exact, the equilibrium checks);
 - "fit" (shown as "fit for the stated purpose"): every criterion evaluated and met, nothing
   listed.
@@ -21,6 +22,7 @@ from collections.abc import Sequence
 
 from validate.record import verdict_warnings as warn
 from validate.record.blocks import EquilibriumBlock
+from validate.record.blocks_routine import MethodUncertaintyBlock
 from validate.record.blocks_validation import Criterion, ValidationBlock
 from validate.record.blocks_verdict import Basis, Clause8, ReportedResult, Status, Verdict, VerdictItem
 from validate.record.types import EquipmentEntry, ResultEntry
@@ -54,6 +56,8 @@ def _not_met(c: Criterion, validation: ValidationBlock) -> VerdictItem:
 
 def _why_not_evaluable(c: Criterion, validation: ValidationBlock, study: bool) -> str:
     """Why a criterion with a limit has no observed value, from what the record holds."""
+    if study and c.key == "max_repeatability_rsd":
+        return "an equilibrium study reads no sample in replicate"
     if c.key in ("recovery_range", "max_abs_en"):
         if study:
             return "an equilibrium study has no reference value to compare K with"
@@ -69,7 +73,8 @@ def _why_not_evaluable(c: Criterion, validation: ValidationBlock, study: bool) -
     if c.key == "max_repeatability_rsd":
         return "no sample was read in replicate"
     if c.key == "max_relative_expanded_uncertainty":
-        return "no result has a defined relative expanded uncertainty"
+        return ("the combined K has no defined relative expanded uncertainty" if study else
+                "no result has a defined relative expanded uncertainty")
     return "the record holds no observed value for it"
 
 
@@ -88,12 +93,15 @@ def criteria_items(validation: ValidationBlock | None, study: bool) -> tuple[lis
 def warning_items(results: Sequence[ResultEntry], validation: ValidationBlock | None,
                   equilibrium: EquilibriumBlock | None, equipment: Sequence[EquipmentEntry],
                   exact: Sequence[VerdictItem], monte_carlo_ran: bool,
-                  inputs: tuple[Sequence[str], Sequence[str]] = ((), ())) -> list[VerdictItem]:
+                  inputs: tuple[Sequence[str], Sequence[str]] = ((), ()),
+                  method_uncertainty: MethodUncertaintyBlock | None = None) -> list[VerdictItem]:
     """Every warning that bears on the results, in the order the report treats them."""
     items: list[VerdictItem] = []
+    controls = [level.sample for level in method_uncertainty.levels] if method_uncertainty else []
     if validation is not None:
         items += (warn.linearity(validation) + warn.weighting(validation) + warn.scatter(validation)
-                  + warn.limits(validation) + warn.top_down(validation, results))
+                  + warn.limits(validation) + warn.scope(validation) + warn.top_down(validation, results, controls))
+    items += warn.reconciliation(method_uncertainty)
     if equilibrium is not None:
         items += warn.equilibrium(equilibrium)
     items += warn.range_flags(results) + warn.monte_carlo(results, monte_carlo_ran)
@@ -138,12 +146,13 @@ def reported_result(r: ResultEntry) -> ReportedResult:
 def judge(*, results: Sequence[ResultEntry], validation: ValidationBlock | None,
           equilibrium: EquilibriumBlock | None, equipment: Sequence[EquipmentEntry] = (),
           exact: Sequence[VerdictItem] = (), monte_carlo_ran: bool, defaults_applied: Sequence[str] = (),
-          notes: Sequence[str] = ()) -> Verdict:
+          notes: Sequence[str] = (), method_uncertainty: MethodUncertaintyBlock | None = None) -> Verdict:
     """The verdict of a run from its record's parts; `exact` lists the inputs stated without
-    an uncertainty (verdict_warnings.stated_exact of the method)."""
+    an uncertainty (verdict_warnings.stated_exact of the method); `method_uncertainty` the
+    top-down block, whose reconciliation with the budget is judged."""
     not_met, not_evaluable = criteria_items(validation, equilibrium is not None)
     warnings = warning_items(results, validation, equilibrium, equipment, exact, monte_carlo_ran,
-                             (defaults_applied, notes))
+                             (defaults_applied, notes), method_uncertainty)
     rows = validation.criteria.criteria if validation is not None else ()
     met = sum(1 for c in rows if c.status == "met")
     status = _status(not_met, not_evaluable, warnings, met + len(not_met))

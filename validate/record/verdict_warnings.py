@@ -1,8 +1,10 @@
 """The warnings that bear on a run's results, each as a VerdictItem (what, why).
 
-Every function reads typed parts of the record and returns the items it finds; none
-computes a statistic anew: the tests were run by the validation and equilibrium stages and
-their outcomes are in the record. validate.record.verdict.judge collects them.
+Every function reads typed parts of the record and returns the items it finds; the tests were
+run by the validation and equilibrium stages and their outcomes are in the record. One test is
+made here, because it needs two parts of the record side by side: a sample's intermediate
+precision against its result's standard uncertainty (`top_down`), by the same F test the
+method's reconciliation uses. validate.record.verdict.judge collects them.
 """
 
 from __future__ import annotations
@@ -12,13 +14,22 @@ from collections.abc import Sequence
 from validate.inputs.consistency import exact_inputs
 from validate.inputs.schema import AssayMethod, Method
 from validate.record.blocks import EquilibriumBlock, TrendEntry
+from validate.record.blocks_routine import MethodUncertaintyBlock
 from validate.record.blocks_validation import IntermediatePrecisionEntry, ValidationBlock
 from validate.record.blocks_verdict import VerdictItem
 from validate.record.types import EquipmentEntry, ResultEntry
+from validate.validation.method_uncertainty import reconcile
+
+P_FLOOR = 1e-16  # below about this a p value from a distribution's tail is rounding error
+
+
+def p_text(value: float) -> str:
+    """"p = 0.043", or "p < 1e-16" where the tail probability is below double precision's reach."""
+    return f"p < {P_FLOOR:g}" if value < P_FLOOR else f"p = {value:.2g}"
 
 
 def _p(value: float | None) -> str:
-    return "" if value is None else f" (p = {value:.2g})"
+    return "" if value is None else f" ({p_text(value)})"
 
 
 def linearity(v: ValidationBlock) -> list[VerdictItem]:
@@ -54,24 +65,43 @@ def _sample_result(results: Sequence[ResultEntry], sample: str) -> ResultEntry |
     return next((r for r in results if r.key.kind == "result" and r.key.id == sample), None)
 
 
-def top_down(v: ValidationBlock, results: Sequence[ResultEntry]) -> list[VerdictItem]:
-    """Intermediate precision over series (top-down) wider than the result's bottom-up standard
-    uncertainty, compared as relative values (the result is proportional to the concentration
-    read off the line for the formulas of this tool's demos; common practice to compare RSDs)."""
+def top_down(v: ValidationBlock, results: Sequence[ResultEntry], skip: Sequence[str] = ()) -> list[VerdictItem]:
+    """A sample read in several series whose intermediate precision (top-down) is significantly wider
+    than its result's bottom-up standard uncertainty: F = (s_I,rel / u_rel)^2 against F(nu_I, nu_eff),
+    one-sided at 5 % (the reconciliation test of validate.validation.method_uncertainty). Compared
+    as relative values: the result is proportional to the concentration read off the line for the
+    usual dilution formulas (common practice to compare RSDs). `skip`: the controls the method's
+    reconciliation already judges."""
     items = []
     for sample, ip in (v.intermediate_precision or {}).items():
         result = _sample_result(results, sample)
-        if not isinstance(ip, IntermediatePrecisionEntry) or result is None or ip.intermediate_rsd_percent is None \
-                or not result.value:
+        if sample in skip or not isinstance(ip, IntermediatePrecisionEntry) or result is None \
+                or ip.intermediate_rsd_percent is None or not ip.intermediate_dof or not result.value \
+                or not result.standard_uncertainty:
             continue
         relative_u = 100 * result.standard_uncertainty / abs(result.value)
-        if ip.intermediate_rsd_percent > relative_u:
+        test = reconcile(ip.intermediate_rsd_percent, ip.intermediate_dof, relative_u,
+                         result.effective_dof if result.effective_dof is not None else float("inf"))
+        if test.verdict == "top-down larger":
             items.append(VerdictItem(
                 what=f"top-down against bottom-up, {sample}",
                 why=f"intermediate precision over {ip.groups} series, relative SD {ip.intermediate_rsd_percent:.2g} %, "
-                    f"exceeds the result's relative standard uncertainty, {relative_u:.2g} %: the budget may miss "
-                    "a series-to-series effect"))
+                    f"exceeds the result's relative standard uncertainty, {relative_u:.2g} % "
+                    f"(F = {test.statistic:.3g}, {p_text(test.p_value)}): the budget may miss a series-to-series "
+                    "effect"))
     return items
+
+
+def reconciliation(m: MethodUncertaintyBlock | None) -> list[VerdictItem]:
+    """The method's uncertainty for routine use: top-down and bottom-up disagree (either way)."""
+    if m is None or m.reconciliation.verdict == "agree":
+        return []
+    rec = m.reconciliation
+    figures = f" (F = {rec.statistic:.3g}, {p_text(rec.p_value)})" \
+        if rec.statistic is not None and rec.p_value is not None else ""
+    return [VerdictItem(what="top-down against bottom-up, method uncertainty for routine use",
+                        why=f"{rec.verdict}{figures}: {rec.explanation}; stated for routine use: the "
+                            f"{m.reported} U")]
 
 
 def _names(results: Sequence[ResultEntry]) -> str:
@@ -103,6 +133,14 @@ def monte_carlo(results: Sequence[ResultEntry], ran: bool) -> list[VerdictItem]:
 def range_flags(results: Sequence[ResultEntry]) -> list[VerdictItem]:
     """Below the LOD or LOQ, outside the calibrated range: each result's flags."""
     return [VerdictItem(what=f"range, {r.name}", why=flag) for r in results for flag in r.flags]
+
+
+def scope(v: ValidationBlock) -> list[VerdictItem]:
+    """The range stated in [method] scope against the working range and the LOQ (each result
+    outside the scope is among its range flags)."""
+    if v.scope is None:
+        return []
+    return [VerdictItem(what="stated scope against the working range", why=flag) for flag in v.scope.flags]
 
 
 def limits(v: ValidationBlock) -> list[VerdictItem]:

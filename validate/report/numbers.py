@@ -7,7 +7,7 @@ One place for the rules:
   `tolerance_decimals`;
 - other figures to a number of significant digits: `num` (plain notation, no trailing zeros),
   `sig` (trailing zeros kept), `compact` (Python's general format, for the terminal);
-- shares as percentages (`pct`) and degrees of freedom (`dof`).
+- shares as percentages (`pct`), degrees of freedom (`dof`) and p values (`p_value`, never "0").
 
 The output is plain text: escaping for a markup (reportlab, rich) is the renderer's job.
 
@@ -141,6 +141,23 @@ def compact(value, digits: int = 4, missing: str = MISSING) -> str:
     """Python's general format to `digits` significant digits (exponent for very large or small
     numbers, trailing zeros dropped): the terminal's short form. `missing` for None."""
     return missing if value is None else f"{value:.{digits}g}"
+
+
+P_FLOOR = 1e-16  # a tail probability below about this is rounding error in double precision
+
+
+def p_value(p, digits: int = 2, missing: str = DASH) -> str:
+    """A p value to `digits` significant digits; "< 1e-16" where it underflows to (about) zero,
+    never a bare "0"."""
+    if not is_number(p):
+        return missing
+    return f"< {P_FLOOR:g}" if p < P_FLOOR else f"{p:.{digits}g}"
+
+
+def p_equals(p, digits: int = 2) -> str:
+    """ "p = 0.043", or "p < 1e-16" (p_value)."""
+    shown = p_value(p, digits)
+    return f"p {shown}" if shown.startswith("<") else f"p = {shown}"
 
 
 def pct(share, digits: int = 1) -> str:

@@ -14,7 +14,7 @@ import re
 
 from validate.model.equilibrium import COMBINED
 from validate.report import figures_equilibrium
-from validate.report.numbers import DASH, dof, is_number, num, pct, sig
+from validate.report.numbers import DASH, dof, is_number, num, p_value, pct, sig
 from validate.report.sections import coloured, figure_block, rounded
 from validate.report.sections_uncertainty import interval_text, mc_decimals
 from validate.report.style import bullets, data_table, heading, key_value_table, para
@@ -243,7 +243,7 @@ def _consistency(eq: dict) -> list:
         return []
     chi2 = cons.get("chi_square")
     facts = [("χ², degrees of freedom ν", f"{num(chi2, 4)}, {cons.get('dof', DASH)}"),
-             ("p value (χ² above the observed)", num(cons.get("p_value"), 3)),
+             ("p value (χ² above the observed)", p_value(cons.get("p_value"), 3)),
              ("Birge ratio √(χ²/ν)", num(cons.get("birge_ratio"), 3)),
              ("verdict", coloured(cons.get("verdict", DASH), cons.get("consistent")))]
     out = [heading("Do the K values agree?", 2), key_value_table(facts, (62, 112))]
@@ -263,7 +263,7 @@ def _trend(eq: dict) -> list:
     facts = [(f"{quantity} against", against),
              ("slope, u(slope)", f"{num(t.get('slope'), 3)} {per}, u = {num(t.get('slope_u'), 2)} {per}"),
              ("t statistic, ν, p", f"{num(t.get('statistic'), 3)}, {t.get('dof', DASH)}, "
-                                   f"{num(t.get('p_value'), 3)} (α = {num(t.get('alpha'))})"),
+                                   f"{p_value(t.get('p_value'), 3)} (α = {num(t.get('alpha'))})"),
              ("verdict", coloured(t.get("message", DASH),
                                   None if t.get("trend") is None else not t.get("trend")))]
     return [heading("Does K drift with concentration?", 2),

@@ -9,7 +9,7 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
 from validate.report import figures
-from validate.report.numbers import DASH, gum_pair, num
+from validate.report.numbers import DASH, gum_pair, num, p_equals
 from validate.report.sections import coloured, figure_block
 from validate.report.style import bullets, data_table, heading, key_value_table, para
 
@@ -51,7 +51,7 @@ def _summary_rows(m: dict) -> list:
         ("top-down U at the control level", f"{big_u} {unit} at {conc} {unit} (k = {num(m['coverage_factor'], 3)}, "
                                             f"ν = {num(m['effective_dof'], 3)})"),
         ("bottom-up U there", f"{bottom_up} {unit} (within-run budget)"),
-        ("reconciliation", coloured(f"{rec['verdict']}: F = {num(rec['statistic'], 3)}, p = {num(rec['p_value'], 2)}",
+        ("reconciliation", coloured(f"{rec['verdict']}: F = {num(rec['statistic'], 3)}, {p_equals(rec['p_value'])}",
                                     rec["verdict"] == "agree")),
         ("reported for routine use", f"{m['reported']}: {m['reason']}"),
     ]

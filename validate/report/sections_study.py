@@ -13,7 +13,7 @@ from __future__ import annotations
 from reportlab.lib.units import mm
 from reportlab.platypus import CondPageBreak, Table, TableStyle
 
-from validate.report.numbers import DASH, dof, is_number, num, pct
+from validate.report.numbers import DASH, dof, is_number, num, p_equals, pct
 from validate.report.sections import coloured, criteria_block, result_rows, rounded, u_decimals
 from validate.report.sections_equilibrium import k_unit, point_interval, point_result, result_by_key
 from validate.report.sections_uncertainty import (
@@ -60,7 +60,7 @@ def _consistency_line(eq: dict, n_points: int) -> list:
         return []
     chi2 = cons.get("chi_square")
     return [para(f"Consistency of the {n_points} K values: χ² = {num(chi2, 3)} on ν = "
-                 f"{cons.get('dof', DASH)}, p = {num(cons.get('p_value'), 2)}, Birge ratio "
+                 f"{cons.get('dof', DASH)}, {p_equals(cons.get('p_value'))}, Birge ratio "
                  f"{num(cons.get('birge_ratio'), 2)}: {cons.get('verdict', DASH)}.", "body")]
 
 

@@ -8,8 +8,8 @@ the record has no `validation` block (or no data for the section).
 from __future__ import annotations
 
 from validate.report import figures
-from validate.report.numbers import DASH, is_number, num, pct
-from validate.report.sections import coloured, concentration_unit, figure_block
+from validate.report.numbers import DASH, gum_pair, is_number, num, p_value, pct
+from validate.report.sections import coloured, concentration_unit, figure_block, pretty
 from validate.report.style import bullets, data_table, heading, key_value_table, para
 
 TEST_KEYS = ("lack_of_fit", "mandel", "runs", "intercept", "weighting")
@@ -63,7 +63,7 @@ def linearity(record: dict) -> list | None:
         if t.get("name", "").startswith("intercept"):
             good = None  # a non-zero intercept is information, not a failure
         rows.append([t.get("name", DASH), num(t.get("statistic"), 4), _dof_text(t.get("dof")),
-                     num(t.get("p_value"), 3), coloured(t.get("verdict", DASH), good)])
+                     p_value(t.get("p_value"), 3), coloured(t.get("verdict", DASH), good)])
     out = [para("Each test at its stated significance level; the verdict says what the result "
                 "means for the straight line.", "lead"),
            data_table(["test", "statistic", "degrees of freedom", "p value", "verdict"], rows,
@@ -92,13 +92,22 @@ def _sensitivity(v: dict, unit: str) -> list:
                      f"({pct(s.get('relative_standard_uncertainty'), 2)}), ν = {s.get('dof', DASH)}"))
     e = v.get("molar_absorptivity")
     if isinstance(e, dict) and is_number(e.get("value")):
-        rows.append(("molar absorptivity ε", f"{num(e['value'], 5)}, u = "
-                     f"{num(e.get('standard_uncertainty'), 3)} "
-                     f"({pct(e.get('relative_standard_uncertainty'), 2)}); path length "
-                     f"{num(e.get('path_length_cm'), 4)} cm; unit: {e.get('unit', DASH)}"))
+        unit = pretty(e.get("unit", ""))
+        value, u = gum_pair(e["value"], e.get("standard_uncertainty"))
+        name = "molar absorptivity ε" if "mol" in unit else "absorptivity"
+        rows.append((name, f"{value} {unit}, u = {u} {unit} ({pct(e.get('relative_standard_uncertainty'), 2)}); "
+                     f"path length {num(e.get('path_length_cm'), 4)} cm" +
+                     (f"; {e['note']}" if e.get("note") else "")))
     if not rows:
         return []
     return [heading("Sensitivity and molar absorptivity", 2), key_value_table(rows, (44, 130))]
+
+
+def _route_rows(limits: dict) -> list[list]:
+    declared = limits.get("declared_route")
+    return [[ROUTE_NAMES.get(r.get("route"), r.get("route", DASH)), num(r.get("sigma"), 3), num(r.get("lod"), 3),
+             num(r.get("loq"), 3) if r.get("loq") is not None else "not defined",
+             "declared" if r.get("route") == declared else ""] for r in limits["routes"]]
 
 
 def detection_limits(record: dict) -> list | None:
@@ -107,14 +116,7 @@ def detection_limits(record: dict) -> list | None:
     if not isinstance(limits, dict) or not limits.get("routes"):
         return None
     unit = concentration_unit(record)
-    declared = limits.get("declared_route")
-    rows = []
-    for r in limits["routes"]:
-        mark = "declared" if r.get("route") == declared else ""
-        rows.append([ROUTE_NAMES.get(r.get("route"), r.get("route", DASH)), num(r.get("sigma"), 3),
-                     num(r.get("lod"), 3),
-                     num(r.get("loq"), 3) if r.get("loq") is not None else "not defined",
-                     mark])
+    rows = _route_rows(limits)
     out = [para(f"Limits in {unit or 'the concentration unit'}; σ in absorbance. The declared "
                 f"route is the one this record uses: LOD = {num(limits.get('lod'), 3)} {unit}, "
                 f"LOQ = {num(limits.get('loq'), 3)} {unit}.", "lead"),
@@ -130,6 +132,7 @@ def detection_limits(record: dict) -> list | None:
              f"{num(iso.get('minimum_detectable_value_exact_delta'), 3)} {unit}"),
             ("α, β, readings per sample K", f"{num(iso.get('alpha'))}, {num(iso.get('beta'))}, "
              f"{iso.get('sample_replicates', DASH)}")], (58, 116)))
+    out += _in_both_units(v or {})
     warnings = list(limits.get("warnings") or []) + list(limits.get("notes") or [])
     if warnings:
         out += [heading("Warnings", 2), *bullets(warnings)]
@@ -138,6 +141,40 @@ def detection_limits(record: dict) -> list | None:
     out += bullets(notes, "small")
     out += _sources([(ROUTE_NAMES.get(r.get("route"), r.get("route", "")), r.get("source"))
                      for r in limits["routes"]])
+    return out
+
+
+UNIT_ROWS = (("LOD (declared route)", "lod", 3), ("LOQ (declared route)", "loq", 3),
+             ("ISO 11843-2 critical value x_C", "critical_value", 3),
+             ("ISO 11843-2 minimum detectable value x_D", "minimum_detectable_value", 3),
+             ("working range: lowest standard above zero", "working_range_low", 4),
+             ("working range: highest standard", "working_range_high", 4))
+
+
+def _in_both_units(v: dict) -> list:
+    """The limits and the working range in the measuring solution's unit and in the reported unit."""
+    units = v.get("reporting_units")
+    if not isinstance(units, dict):
+        return []
+    columns = [units["measuring_solution"]] + ([units["reported"]] if units.get("reported") else [])
+    header = ["", f"measuring solution / {columns[0]['unit']}"]
+    header += [f"sample, reported / {columns[1]['unit']}"] if len(columns) > 1 else []
+    rows = [[label] + [num(c.get(key), digits) for c in columns] for label, key, digits in UNIT_ROWS]
+    widths = [80, 47, 47] if len(columns) > 1 else [100, 74]
+    return [heading("In the measuring solution and in the reported unit", 2),
+            data_table(header, rows, widths, numeric={1, 2}), para(units["how"], "note")]
+
+
+def _scope(v: dict) -> list:
+    sc = v.get("scope")
+    if not isinstance(sc, dict):
+        return []
+    rows = [("stated scope", sc.get("text") or DASH), ("range read from it", sc.get("note") or DASH)]
+    out = [heading("Stated scope", 2), key_value_table(rows, (58, 116))]
+    if sc.get("flags"):
+        out += bullets(sc["flags"])
+    elif sc.get("low") is not None:
+        out.append(para("The stated scope lies within the working range and above the LOQ.", "small"))
     return out
 
 
@@ -156,8 +193,14 @@ def _sample_rows(v: dict, unit: str) -> list[list]:
             continue
         flags = smp.get("flags") or (v.get("range_flags") or {}).get(sid) or []
         rows.append([sid, num(smp.get("concentration"), 4), num(smp.get("standard_uncertainty"), 3),
-                     "; ".join(map(str, flags)) if flags else "within the working range"])
+                     "; ".join(map(str, flags)) if flags else _clear(v)])
     return rows
+
+
+def _clear(v: dict) -> str:
+    """What an unflagged sample is: within the working range, and within the scope where one is stated."""
+    scope = v.get("scope") or {}
+    return "within the working range" + (" and the stated scope" if scope.get("low") is not None else "")
 
 
 def working_range(record: dict) -> list | None:
@@ -170,7 +213,13 @@ def working_range(record: dict) -> list | None:
               f"{num(v.get('highest_standard'), 4)} {unit}"),
              ("declared LOD and LOQ",
               f"{num(limits.get('lod'), 3)} and {num(limits.get('loq'), 3)} {unit}")]
-    out = [key_value_table(facts, (58, 116))]
+    reported = (v.get("reporting_units") or {}).get("reported")
+    if isinstance(reported, dict):
+        facts.append(("in the sample (reported unit)",
+                      f"working range {num(reported.get('working_range_low'), 4)} to "
+                      f"{num(reported.get('working_range_high'), 4)} {reported['unit']}; LOD "
+                      f"{num(reported.get('lod'), 3)}, LOQ {num(reported.get('loq'), 3)} {reported['unit']}"))
+    out = [key_value_table(facts, (58, 116)), *_scope(v)]
     sample_rows = _sample_rows(v, unit)
     if sample_rows:
         out += [heading("Samples against the working range", 2),
@@ -249,7 +298,7 @@ def _intermediate_one(sample: str, ip: dict) -> list:
         ("between-series SD s_L", f"{num(ip.get('between_group_sd'), 3)} {unit}"),
         ("intermediate SD s_I", f"{num(ip.get('intermediate_sd'), 3)} {unit} "
          f"({num(ip.get('intermediate_rsd_percent'), 3)} %), ν = {num(ip.get('intermediate_dof'), 3)}"),
-        ("F, p value", f"{num(ip.get('f_statistic'), 4)}, {num(ip.get('p_value'), 3)}"),
+        ("F, p value", f"{num(ip.get('f_statistic'), 4)}, {p_value(ip.get('p_value'), 3)}"),
         ("verdict", ip.get("verdict", DASH))]), para(ip.get("source", ""), "note")]
 
 
@@ -300,7 +349,7 @@ def _scatter_check(sc) -> list:
     rows = [("observed SD", f"{num(sc.get('observed_sd'), 3)} (absorbance)"),
             ("SD predicted by the budget", f"{num(sc.get('predicted_sd'), 3)} (absorbance)"),
             ("χ², degrees of freedom", f"{num(sc.get('chi_square'), 4)}, {sc.get('dof', DASH)}"),
-            ("p (excess), p (deficit)", f"{num(sc.get('p_excess'), 3)}, {num(sc.get('p_deficit'), 3)}"),
+            ("p (excess), p (deficit)", f"{p_value(sc.get('p_excess'), 3)}, {p_value(sc.get('p_deficit'), 3)}"),
             ("verdict", coloured(sc.get("verdict", DASH), ok))]
     return [heading("Observed scatter against the bottom-up budget", 2), para(sc.get("compared", ""), "note"),
             key_value_table(rows), para(sc.get("source", ""), "note")]

@@ -7,6 +7,7 @@ headings, light grey rules, numbers right-aligned in tables.
 
 from __future__ import annotations
 
+import re
 from collections.abc import Sequence
 from functools import lru_cache
 from pathlib import Path
@@ -90,9 +91,17 @@ def styles() -> dict[str, ParagraphStyle]:
     }
 
 
+CODE = re.compile(r"`([^`\n]+)`")  # `repeatability`: a key as the text names it (Markdown's code span)
+
+
+def _code_spans(escaped: str) -> str:
+    """Backticked names in the monospaced font, the backticks themselves not printed."""
+    return CODE.sub(lambda m: f'<font name="{FONT_MONO}">{m.group(1)}</font>', escaped)
+
+
 def text(value) -> str:
-    """Plain text made safe for reportlab's paragraph markup."""
-    return escape(str(value))
+    """Plain text made safe for reportlab's paragraph markup; `name` shown in the monospaced font."""
+    return _code_spans(escape(str(value)))
 
 
 # A table row taller than the page stops reportlab's layout, so a cell shows at most
@@ -112,7 +121,7 @@ def cell_text(value, width_mm: float = 174.0) -> str:
     shown, limit = str(value), cell_limit(width_mm)
     if len(shown) > limit:
         shown = f"{shown[:limit]} ... [{len(shown) - limit} more characters; the whole text is in results.json]"
-    return escape(shown)
+    return _code_spans(escape(shown))
 
 
 def para(value, style: str = "body", markup: bool = False) -> Paragraph:

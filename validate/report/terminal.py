@@ -14,20 +14,20 @@ from pathlib import Path
 from rich.console import Console
 from rich.markup import escape
 
-from validate.report.numbers import compact
+from validate.report.numbers import MISSING, compact, gum_pair
 from validate.report.terminal_run import (
     BLANK,
     Line,
     Printable,
     advice_lines,
-    criteria_lines,
     equilibrium_lines,
     method_uncertainty_lines,
+    p_after,
     result_lines,
-    validation_lines,
     verdict_headline,
     verdict_lines,
 )
+from validate.report.terminal_validation import criteria_lines, validation_lines
 
 __all__ = ["BLANK", "Line", "Printable", "ProgressBars", "check_facts", "check_lines", "describe_verify",
            "error_line", "format_quick_check", "init_lines", "interrupted_line", "quick_check_lines",
@@ -184,54 +184,89 @@ def verify_lines(report: dict) -> list[Printable]:
 # --------------------------------------------------------------------------
 # validate calibrate
 
+class _Sources:
+    """Citations gathered as numbered notes, printed once in a block at the end."""
+
+    def __init__(self) -> None:
+        self.texts: list[str] = []
+
+    def mark(self, text: str | None) -> str:
+        if not text:
+            return ""
+        if text not in self.texts:
+            self.texts.append(text)
+        return f" [{self.texts.index(text) + 1}]"
+
+    def block(self) -> list[str]:
+        return ["", "Sources"] + [f"  [{i}] {t}" for i, t in enumerate(self.texts, 1)] if self.texts else []
+
+
+def _units(result: dict) -> tuple[str, str]:
+    """(concentration unit, 'per unit' text) from the table's header; a hint where it gives none."""
+    unit = (result.get("units") or {}).get("concentration") or ""
+    return unit, (f"per {unit}" if unit else "per concentration unit")
+
+
 def _fit_text(result: dict) -> list[str]:
+    unit, per = _units(result)
+    shown = unit or "the table's unit (none in the header; write e.g. 'concentration (mg/L)')"
     return [f"Calibration check: {result['file']}",
             f"  {result['n']} readings at {result['distinct_concentrations']} concentrations, "
-            f"{result['dof']} degrees of freedom",
-            "", "Straight-line fit (ordinary least squares)",
-            f"  slope       {compact(result['slope'], 6)}   u = {compact(result['slope_standard_uncertainty'], 3)}",
-            f"  intercept   {compact(result['intercept'], 6)}   u = "
+            f"{result['dof']} degrees of freedom; concentrations in {shown}, readings in absorbance",
+            "", "Straight-line fit (ordinary least squares), standard uncertainties u",
+            f"  slope       {compact(result['slope'], 6)} {per}, u = "
+            f"{compact(result['slope_standard_uncertainty'], 3)} {per}",
+            f"  intercept   {compact(result['intercept'], 6)} (absorbance), u = "
             f"{compact(result['intercept_standard_uncertainty'], 3)}",
-            f"  residual SD {compact(result['residual_standard_deviation'], 6)}",
+            f"  residual SD {compact(result['residual_standard_deviation'], 6)} (absorbance)",
             f"  r^2         {compact(result['r_squared'], 8)}"]
 
 
-def _linearity_text(result: dict) -> list[str]:
+def _linearity_text(result: dict, sources: _Sources) -> list[str]:
     out = ["", "Linearity"]
     for test in result["linearity"].values():
-        head = f"  {test['name']}: "
+        head = f"  {test['name']}{sources.mark(test.get('source'))}: "
         if test["evaluable"]:
             head += f"statistic {compact(test['statistic'], 4)}"
             if test["p_value"] is not None:
-                head += f", p = {compact(test['p_value'], 3)}"
-        out += [head, f"    {test['verdict']}", f"    source: {test['source']}"]
+                head += f", p {p_after(test['p_value'])}"
+        out += [head, f"    {test['verdict']}"]
     return out
 
 
-def _limits_text(result: dict) -> list[str]:
+def _limits_text(result: dict, sources: _Sources) -> list[str]:
     limits = result["limits"]
-    out = ["", f"Detection and quantitation limits (declared route: {limits['declared_route']})"]
+    unit = _units(result)[0]
+    out = ["", f"Detection and quantitation limits{f' in {unit}' if unit else ''} "
+               f"(declared route: {limits['declared_route']}){sources.mark(result['limit_source'])}"]
     out += [f"  {r['route']:<18} LOD {compact(r['lod'], 4):<10} LOQ {compact(r['loq'], 4)}"
+            f"{sources.mark(r.get('source')) if r['route'] != limits['declared_route'] else ''}"
             for r in limits["routes"]]
     iso = limits["iso11843"]
     out.append(f"  ISO 11843-2 critical value x_C {compact(iso['critical_value'], 4)}, minimum "
-               f"detectable value x_D {compact(iso['minimum_detectable_value'], 4)} "
-               f"(alpha {iso['alpha']}, beta {iso['beta']})")
-    out += [f"  warning: {w}" for w in limits["warnings"]]
-    out.append(f"  source: {result['limit_source']}")
-    return out
+               f"detectable value x_D {compact(iso['minimum_detectable_value'], 4)}{f' {unit}' if unit else ''} "
+               f"(alpha {iso['alpha']:g}, beta {iso['beta']:g})")
+    return out + [f"  warning: {w}" for w in limits["warnings"]]
 
 
-def _samples_text(result: dict) -> list[str]:
-    out = []
-    for i, s in enumerate(result.get("sample", []), 1):
-        if i == 1:
-            out += ["", "Samples (concentration from the line, observed-scatter uncertainty)"]
-        flags = f"  [{'; '.join(s['flags'])}]" if s["flags"] else ""
-        out.append(f"  sample {i}: {s['replicates']} reading(s), mean {compact(s['response_mean'], 5)}"
-                   f" -> {compact(s['concentration'], 6)}  u = {compact(s['standard_uncertainty'], 3)}"
-                   f" ({s['dof']} dof){flags}")
-    return out
+def _sample_line(i: int, s: dict, unit: str) -> str:
+    value, big_u = gum_pair(s["concentration"], s.get("expanded_uncertainty"), missing=MISSING)
+    flags = f"  [{'; '.join(s['flags'])}]" if s["flags"] else ""
+    k = s.get("coverage_factor")
+    expanded = (f"{value} ± {big_u}{f' {unit}' if unit else ''} (U = k u, k = {k:.2f}, "
+                f"{100 * s['coverage_probability']:g} %)") if k is not None else compact(s["concentration"], 6)
+    return (f"  sample {i}: {s['replicates']} reading(s), mean absorbance {compact(s['response_mean'], 5)} -> "
+            f"{expanded}; u = {compact(s['standard_uncertainty'], 3)}, {s['dof']} degrees of freedom{flags}")
+
+
+def _samples_text(result: dict, sources: _Sources) -> list[str]:
+    samples = result.get("sample", [])
+    if not samples:
+        return []
+    unit = _units(result)[0]
+    out = ["", "Samples: concentration read off the line, observed-scatter uncertainty"
+               f"{sources.mark(samples[0].get('source'))}"]
+    return out + [_sample_line(i, s, unit) for i, s in enumerate(samples, 1)]
 
 
 def _notes_text(result: dict) -> list[str]:
@@ -244,9 +279,12 @@ def _notes_text(result: dict) -> list[str]:
 
 
 def format_quick_check(result: dict) -> str:
-    """Plain text of a quick check of a calibration table (the dict quick_check returns)."""
-    out = _fit_text(result) + _linearity_text(result) + _limits_text(result) + _samples_text(result)
-    return "\n".join(out + _notes_text(result)) + "\n"
+    """Plain text of a quick check of a calibration table (the dict quick_check returns): every
+    figure with its unit, each sample with U and k, the citations as numbered notes at the end."""
+    sources = _Sources()
+    out = (_fit_text(result) + _linearity_text(result, sources) + _limits_text(result, sources)
+           + _samples_text(result, sources) + _notes_text(result))
+    return "\n".join(out + sources.block()) + "\n"
 
 
 def quick_check_lines(result: dict) -> list[Printable]:

@@ -10,7 +10,7 @@ from rich.markup import escape
 from rich.table import Table
 
 from validate.inputs.text import is_invisible
-from validate.report.numbers import MISSING, compact, decimals_of, dof, gum_pair, interval
+from validate.report.numbers import MISSING, compact, decimals_of, dof, gum_pair, interval, p_value
 from validate.report.verdict_text import TONE, basis_text, headline, listed, reported_text
 
 
@@ -39,77 +39,10 @@ BLANK = Line()
 Printable = Line | Table  # what the command line prints, in order
 
 
-# --------------------------------------------------------------------------
-# the calibration line and its validation tests
-
-def _line_title(v: dict) -> str:
-    plain_line = v.get("samples") == {} and v.get("trueness") is None and v.get("scatter_consistency") is None
-    return "Line of the standards" if plain_line else "Calibration line"
-
-
-def _fit_lines(v: dict) -> list[Printable]:
-    fit, unit = v["fit"], escape(v["concentration_unit"])
-    return [BLANK,
-            Line(f"[bold]{_line_title(v)}[/] ({fit['n']} readings, absorbance against {unit})"),
-            Line(f"  slope {compact(fit['slope'])} ± {compact(fit['slope_u'], 2)} per {unit}, intercept "
-                 f"{compact(fit['intercept'])} ± {compact(fit['intercept_u'], 2)}, r² {fit['r_squared']:.5f}, "
-                 f"residual SD {compact(fit['residual_sd'], 3)}")]
-
-
-def _test_lines(v: dict) -> list[Printable]:
-    lines: list[Printable] = []
-    for key in ("lack_of_fit", "mandel", "runs", "intercept", "weighting"):
-        test = v[key]
-        p = f" (p = {test['p_value']:.2g})" if test.get("p_value") is not None else ""
-        lines.append(Line(f"  {escape(test['name'])}{p}: {escape(test['verdict'])}", soft_wrap=True))
-    return lines
-
-
-def _limit_lines(v: dict) -> list[Printable]:
-    limits, unit = v["limits"], escape(v["concentration_unit"])
-    routes = "; ".join(f"{escape(r['route'])} {compact(r['lod'], 3)}/{compact(r['loq'], 3)}"
-                       for r in limits["routes"])
-    lines: list[Printable] = [
-        Line(f"  LOD {compact(limits['lod'], 3)} {unit}, LOQ {compact(limits['loq'], 3)} {unit} "
-             f"(declared route: {escape(limits['declared_route'])}); all routes: {routes}", soft_wrap=True)]
-    lines += [Line(f"  [yellow]warning[/] {escape(w)}", soft_wrap=True) for w in limits["warnings"]]
-    return lines
-
-
-def _scatter_and_window(v: dict) -> list[Printable]:
-    lines: list[Printable] = []
-    for key, what in (("scatter_consistency", "scatter of the preparation means against the budget"),
-                      ("reading_noise_consistency", "pure error against the photometer's reading noise")):
-        sc = v.get(key)
-        if sc:
-            lines.append(Line(f"  {what}: {escape(sc['verdict'])} (observed SD {compact(sc['observed_sd'], 3)}, "
-                              f"predicted {compact(sc['predicted_sd'], 3)})", soft_wrap=True))
-    window = v["window_flags"]
-    if window.get("outside"):
-        lines.append(Line(f"  [yellow]note[/] {window['outside']} reading(s) outside the absorbance window "
-                          f"{window['low']:g} to {window['high']:g} (common practice)"))
-    return lines
-
-
-def _precision_and_trueness(v: dict) -> list[Printable]:
-    lines: list[Printable] = []
-    for sample, ip in (v.get("intermediate_precision") or {}).items():
-        if "intermediate_sd" in ip:
-            lines.append(Line(
-                f"  intermediate precision of {escape(sample)} over {ip['groups']} series: s_I "
-                f"{compact(ip['intermediate_sd'], 3)} {escape(ip['unit'])} "
-                f"(s_r {compact(ip['repeatability_sd'], 3)}): {escape(ip['verdict'])}", soft_wrap=True))
-    t = v.get("trueness")
-    if t:
-        lines.append(Line(f"  trueness: recovery {t['recovery_percent']:.1f} %, E_n = {t['en_number']:.2f}: "
-                          f"{escape(t['verdict'])}", soft_wrap=True))
-    return lines
-
-
-def validation_lines(v: dict) -> list[Printable]:
-    """The line of the standards: fit, linearity tests, limits, scatter, precision, trueness."""
-    return (_fit_lines(v) + _test_lines(v) + _limit_lines(v) + _scatter_and_window(v)
-            + _precision_and_trueness(v))
+def p_after(p) -> str:
+    """ "= 0.043" or "< 1e-16": a p value after its "p"."""
+    shown = p_value(p, missing=MISSING)
+    return shown if shown.startswith("<") else f"= {shown}"
 
 
 def method_uncertainty_lines(m: dict | None) -> list[Printable]:
@@ -133,7 +66,7 @@ def method_uncertainty_lines(m: dict | None) -> list[Printable]:
     lines += [Line(f"  at {conc} {unit}: top-down U = [bold]{big_u} {unit}[/] (k = {m['coverage_factor']:.2f}), "
                    f"bottom-up U = {bottom_up} {unit}", soft_wrap=True),
               Line(f"  reconciliation: {escape(rec['verdict'])} (F = {rec['statistic']:.2f}, "
-                   f"p = {rec['p_value']:.2g}); reported for routine use: [bold]{escape(m['reported'])}[/]",
+                   f"p {p_after(rec['p_value'])}); reported for routine use: [bold]{escape(m['reported'])}[/]",
                    soft_wrap=True)]
     lines += [Line(f"  [yellow]note[/] {escape(text)}", soft_wrap=True) for text in m.get("limitations") or []]
     return lines
@@ -230,8 +163,8 @@ def _combination_lines(e: dict) -> list[Printable]:
     c, lines = e["combined"], list[Printable]()
     if c.get("consistency"):
         k = c["consistency"]
-        lines.append(Line(f"  consistency: chi-square {k['chi_square']:.2f} on {k['dof']} dof, p = "
-                          f"{k['p_value']:.2g}, Birge ratio {k['birge_ratio']:.2f}: {escape(k['verdict'])}",
+        lines.append(Line(f"  consistency: chi-square {k['chi_square']:.2f} on {k['dof']} dof, p "
+                          f"{p_after(k['p_value'])}, Birge ratio {k['birge_ratio']:.2f}: {escape(k['verdict'])}",
                           soft_wrap=True))
     if any(w < 0 for w in c["weights"]):
         lines.append(Line("  note: some generalised-least-squares weights are negative (strongly correlated "
@@ -239,7 +172,7 @@ def _combination_lines(e: dict) -> list[Printable]:
     trend = e.get("trend") or {}
     if "message" in trend:
         lines.append(Line(f"  trend with {escape(trend['against'])}: {escape(trend['message'])} "
-                          f"(p = {trend['p_value']:.2g})", soft_wrap=True))
+                          f"(p {p_after(trend['p_value'])})", soft_wrap=True))
     return lines
 
 
@@ -281,31 +214,7 @@ def equilibrium_lines(record: dict, top: int) -> list[Printable]:
 
 
 # --------------------------------------------------------------------------
-# acceptance criteria and advice
-
-def _criterion_line(c: dict, concentration_unit: str) -> Line:
-    mark = "[green]met[/]" if c["met"] else "[red]NOT MET[/]"
-    limit = c["limit"] if not isinstance(c["limit"], list) else f"{c['limit'][0]:g} to {c['limit'][1]:g}"
-    default = " (default)" if c["is_default"] else ""
-    unit = c.get("unit") or ""
-    unit = escape(f" {concentration_unit if unit == 'concentration unit' else unit}" if unit else "")
-    observed = c["observed"]  # r^2 close to 1 needs its digits (as on page 1)
-    shown = compact(observed, 6) if isinstance(observed, float) and 0.9 < observed < 1 else compact(observed)
-    return Line(f"  {mark}  {escape(c['name'])}: {shown}{unit} {escape(c['comparison'])} "
-                f"{limit}{unit}{default}", soft_wrap=True)
-
-
-def criteria_lines(criteria: dict, concentration_unit: str = "") -> list[Printable]:
-    """How many criteria are met, each evaluated one with its unit, and the caution."""
-    rows = criteria["criteria"]
-    counts = {status: sum(1 for c in rows if c["status"] == status)
-              for status in ("met", "not met", "not set", "not evaluable")}
-    head = ", ".join(f"{n} {status}" for status, n in counts.items() if n)
-    lines: list[Printable] = [BLANK, Line(f"[bold]Acceptance criteria[/]: {head}")]
-    lines += [_criterion_line(c, concentration_unit) for c in rows if c["status"] in ("met", "not met")]
-    lines.append(Line(f"  [dim]{escape(criteria['caution'])}[/]", soft_wrap=True))
-    return lines
-
+# advice
 
 def _advice_figure(advice: dict, value) -> str:
     if advice["unit"].startswith("relative"):

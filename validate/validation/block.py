@@ -20,7 +20,7 @@ from validate.model.design import CalibrationDesign
 from validate.model.equilibrium import EquilibriumModel
 from validate.model.line import LineFit, fit_line, inverse_prediction
 from validate.propagation.linear import LinearResult
-from validate.validation.criteria import evaluate_criteria
+from validate.validation.criteria import STUDY_CRITERIA, evaluate_criteria
 from validate.validation.limits import range_flags
 from validate.validation.linearity import plain
 from validate.validation.precision import (
@@ -31,6 +31,7 @@ from validate.validation.precision import (
     scatter_consistency,
     within_series_groups,
 )
+from validate.validation.reporting import as_is, limits_in, reporting_units, results_by_sample, scope_check
 from validate.validation.summary import ValidationSummary, validate_calibration
 from validate.validation.window import absorbance_window_flags
 
@@ -130,7 +131,7 @@ def _summary(method: Method, cal: Calibration, design: CalibrationDesign) -> Val
         declared_limit=v.declared_limit,
         path_length_cm=path * 100 if cell is not None and path is not None else None,
         path_length_u=cell.tolerance / math.sqrt(3) * 100 if cell else None,
-        sample_replicates=1, replicate_sds=reps)
+        sample_replicates=1, replicate_sds=reps, concentration_unit=cal.concentration_unit)
 
 
 def _sample_entries(design: CalibrationDesign, summary: ValidationSummary) -> tuple[dict, dict]:
@@ -177,6 +178,10 @@ def validation_block(method: AssayMethod, model: Model, results: list[LinearResu
     summary = _summary(method, cal, design)
     fit = summary.fit
     samples, flags = _sample_entries(design, summary)
+    units = reporting_units(method, model, summary)
+    scope = scope_check(method, units, results_by_sample(model, results), samples)
+    for sid, flag in scope.pop("sample_flags").items():
+        flags[sid].append(flag)
     window = absorbance_window_flags(design.every_reading(), *v.window)
     rep_groups = [group for s in design.samples
                   for group in within_series_groups(_in_concentration(fit, s.readings), s.series) if len(group) >= 2]
@@ -202,6 +207,8 @@ def validation_block(method: AssayMethod, model: Model, results: list[LinearResu
         "reading_noise_consistency": plain(reading_consistency) if reading_consistency else None,
         "fit_units": _fit_units(design),
         "criteria": plain(criteria),
+        "reporting_units": units,
+        "scope": scope,
     })
     return block
 
@@ -263,9 +270,17 @@ def _trueness(method: AssayMethod, results: list[LinearResult]):
 REFERENCE_K = 2.0  # k for a reference value stated with a standard uncertainty only (common practice)
 
 
-def equilibrium_validation_block(model: EquilibriumModel) -> dict:
+def _combined_relative_u(model: EquilibriumModel, results: list[LinearResult] | None) -> float | None:
+    """Relative expanded uncertainty of the combined K in percent (None: no combination)."""
+    combined = [r for r, key in zip(results or [], model.result_keys, strict=False) if key.kind == "combined K"]
+    return 100 * combined[0].expanded_uncertainty / abs(combined[0].value) if combined and combined[0].value else None
+
+
+def equilibrium_validation_block(model: EquilibriumModel, results: list[LinearResult] | None = None) -> dict:
     """The line of an equilibrium study's standards, judged as a calibration: absorbance
-    against the limiting reagent's total, before any correction for incomplete complexation."""
+    against the limiting reagent's total, before any correction for incomplete complexation.
+    The criteria judged are those that apply to a study (STUDY_CRITERIA); the relative expanded
+    uncertainty is that of the combined K."""
     method, study = model.method, model.study
     factor = study.concentration_unit.factor
     xs, ys = model.design.point_data(factor)  # one point per prepared standard
@@ -277,8 +292,11 @@ def equilibrium_validation_block(model: EquilibriumModel) -> dict:
     summary = validate_calibration(
         xs, ys, alpha=v.alpha, beta=v.beta,
         path_length_cm=path * 100 if cell is not None and path is not None else None,
-        path_length_u=cell.tolerance / math.sqrt(3) * 100 if cell else None, replicate_sds=reps)
-    criteria = evaluate_criteria(v.acceptance, summary.observed_for_criteria())
+        path_length_u=cell.tolerance / math.sqrt(3) * 100 if cell else None, replicate_sds=reps,
+        concentration_unit=study.concentration_unit)
+    observed = {**summary.observed_for_criteria(),
+                "relative_expanded_uncertainty": _combined_relative_u(model, results)}
+    criteria = evaluate_criteria(v.acceptance, observed, applicable=STUDY_CRITERIA)
     block = plain(summary)
     block.update({
         "settings": v.to_dict(),
@@ -288,6 +306,11 @@ def equilibrium_validation_block(model: EquilibriumModel) -> dict:
         "repeatability": None, "trueness": None, "scatter_consistency": None,
         "criteria": plain(criteria),
         "line_weighting": {"used": "none", "why": "the standards' line of an equilibrium study is unweighted"},
+        "reporting_units": {"measuring_solution": limits_in(summary, study.concentration_unit.text, as_is),
+                            "reported": None,
+                            "how": "an equilibrium study reports K, not a concentration: the limits and the range "
+                                   "are those of the standards' line, in its concentration unit"},
+        "scope": None,
     })
     block["notes"] = list(block.get("notes", [])) + [
         "the line of the standards before any correction: its slope is low by the fraction not complexed "

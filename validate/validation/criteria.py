@@ -11,6 +11,10 @@ Observed keys (what `observed` may hold):
     relative_expanded_uncertainty (percent), loq, recovery_percent,
     en_number, min_linearity_p_value (smallest p of lack-of-fit and Mandel),
     repeatability_rsd_percent.
+
+Not every criterion applies to every kind of method: an equilibrium study has no reference
+value for K and reads no sample in replicate, so recovery, E_n and repeatability are left
+out of its criteria (STUDY_CRITERIA); one the user sets anyway is "not evaluable", with why.
 """
 
 from __future__ import annotations
@@ -18,7 +22,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-from validate.inputs.validation_settings import COMMON, CRITERIA, DEFAULTS  # noqa: F401 (the criteria table)
+from validate.inputs.validation_settings import COMMON, CRITERIA, DEFAULTS, STUDY_CRITERIA  # noqa: F401 (the table)
 from validate.validation.linearity import plain
 
 
@@ -77,29 +81,50 @@ def _compare(comparison: str, observed: float, limit) -> bool:
     return lo <= observed <= hi
 
 
-def evaluate_criteria(settings: dict | None, observed: dict) -> CriteriaResult:
-    """Compare observed values with the settings (defaults fill in what is not given)."""
+def _criterion(key: str, settings: dict, observed: dict, applicable: bool) -> Criterion:
+    name, obs_key, comparison, default, unit, source = CRITERIA[key]
+    is_default = key not in settings
+    limit = _check_limit(key, settings.get(key, default))
+    value = observed.get(obs_key) if applicable else None
+    value = None if value is None or not math.isfinite(float(value)) else float(value)
+    if limit is None:
+        met, status = None, "not set"
+    elif value is None:
+        met, status = None, "not evaluable"
+    else:
+        met = bool(_compare(comparison, value, limit))
+        status = "met" if met else "not met"
+    return Criterion(key, name, comparison, limit, value, met, unit,
+                     source if is_default else "set by the user", is_default, status)
+
+
+def _judged_keys(settings: dict, applicable: tuple[str, ...] | None) -> list[str]:
+    """The criteria judged: those that apply, and any the user set."""
+    return [k for k in CRITERIA if applicable is None or k in applicable or k in settings]
+
+
+def _caution(keys: list[str]) -> str:
+    caution = ("Acceptance criteria come from the applicable requirements, not from the tool; defaults "
+               "marked common practice are placeholders.")
+    left_out = [CRITERIA[k][0] for k in CRITERIA if k not in keys]
+    if left_out:
+        caution += " Not applicable to this kind of method, so not judged: " + "; ".join(left_out) + "."
+    return caution
+
+
+def evaluate_criteria(settings: dict | None, observed: dict,
+                      applicable: tuple[str, ...] | None = None) -> CriteriaResult:
+    """Compare observed values with the settings (defaults fill in what is not given).
+
+    `applicable`: the criteria that apply to this kind of method (None: all). One that does not
+    apply is left out, unless the user set it: then it is shown "not evaluable"."""
     settings = dict(settings or {})
     unknown = sorted(set(settings) - set(CRITERIA))
     if unknown:
         raise ValueError(f"unknown acceptance criteria {', '.join(unknown)}; known ones are "
                          f"{', '.join(CRITERIA)}")
-    out = []
-    for key, (name, obs_key, comparison, default, unit, source) in CRITERIA.items():
-        is_default = key not in settings
-        limit = _check_limit(key, settings.get(key, default))
-        value = observed.get(obs_key)
-        value = None if value is None or not math.isfinite(float(value)) else float(value)
-        if limit is None:
-            met, status = None, "not set"
-        elif value is None:
-            met, status = None, "not evaluable"
-        else:
-            met = bool(_compare(comparison, value, limit))
-            status = "met" if met else "not met"
-        out.append(Criterion(key, name, comparison, limit, value, met, unit,
-                             source if is_default else "set by the user", is_default, status))
+    keys = _judged_keys(settings, applicable)
+    out = [_criterion(k, settings, observed, applicable is None or k in applicable) for k in keys]
     evaluated = [c.met for c in out if c.met is not None]
-    return CriteriaResult(tuple(out), dict(DEFAULTS), all(evaluated) if evaluated else None,
-                          "Acceptance criteria come from the applicable requirements, not from "
-                          "the tool; defaults marked common practice are placeholders.")
+    return CriteriaResult(tuple(out), {k: DEFAULTS[k] for k in keys}, all(evaluated) if evaluated else None,
+                          _caution(keys))

@@ -16,6 +16,8 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import optimize, stats
 
+from validate.inputs.schema import AMOUNT_CONCENTRATION, MASS_CONCENTRATION
+from validate.inputs.units import Unit
 from validate.inputs.validation_settings import ROUTES
 from validate.model.line import LineFit, fit_line
 from validate.validation.linearity import negligible, plain
@@ -51,14 +53,31 @@ class MolarAbsorptivity:
     path_length_u: float
     unit: str
     source: str
+    note: str  # the unit it is given in, and why where it is not L mol^-1 cm^-1
 
     def to_dict(self) -> dict:
         return plain(self)
 
 
-def molar_absorptivity(fit: LineFit, path_length_cm: float,
-                       path_length_u: float = 0.0) -> MolarAbsorptivity:
-    """epsilon = b / l (Beer-Lambert A = epsilon l c).
+def absorptivity_unit(unit: Unit | None) -> tuple[float, str, str]:
+    """(factor from 'per calibration unit' to the unit shown, that unit, a note).
+
+    An amount concentration converts to mol/L (1 mol/L = 1000 mol/m^3): the molar absorptivity in
+    L mol^-1 cm^-1. A mass concentration converts to g/L only: without the analyte's molar mass the
+    absorptivity is per gram (L g^-1 cm^-1; IUPAC Gold Book, "specific absorption coefficient", from memory)."""
+    if unit is not None and unit.dims == AMOUNT_CONCENTRATION:
+        return 1000.0 / unit.factor, "L mol^-1 cm^-1", f"slope per {unit.text} converted to per mol/L"
+    if unit is not None and unit.dims == MASS_CONCENTRATION:
+        return 1.0 / unit.factor, "L g^-1 cm^-1", (
+            f"the calibration unit {unit.text} is a mass concentration: without the analyte's molar mass "
+            "it does not convert to mol/L, so the absorptivity is given per gram")
+    return 1.0, "(concentration unit)^-1 cm^-1", "no concentration unit given: per unit of the table's concentrations"
+
+
+def molar_absorptivity(fit: LineFit, path_length_cm: float, path_length_u: float = 0.0,
+                       concentration_unit: Unit | None = None) -> MolarAbsorptivity:
+    """epsilon = b / l (Beer-Lambert A = epsilon l c), in L mol^-1 cm^-1 where the calibration's
+    `concentration_unit` is an amount concentration (see absorptivity_unit).
 
     For a quotient the relative standard uncertainties add in quadrature
     (GUM, JCGM 100:2008, 5.1.6); effective degrees of freedom by the
@@ -69,18 +88,18 @@ def molar_absorptivity(fit: LineFit, path_length_cm: float,
         raise ValueError(f"path length must be a positive number of centimetres, got {path_length_cm!r}")
     if not (path_length_u >= 0 and math.isfinite(path_length_u)):
         raise ValueError("the path-length uncertainty must be zero or a positive number of centimetres")
-    eps = fit.slope / path_length_cm
+    scale, unit, note = absorptivity_unit(concentration_unit)
+    eps = scale * fit.slope / path_length_cm
     rel_b = fit.slope_u / abs(fit.slope)
     rel_l = path_length_u / path_length_cm
     rel = math.hypot(rel_b, rel_l)
     dof = rel**4 / (rel_b**4 / fit.dof) if rel_b > 0 and fit.dof > 0 else math.inf
     return MolarAbsorptivity(
         eps, abs(eps) * rel, rel, dof if math.isfinite(dof) else None, path_length_cm,
-        path_length_u, "L mol^-1 cm^-1 when concentrations are in mol/L (else "
-        "concentration-unit^-1 cm^-1)",
+        path_length_u, unit,
         "Beer-Lambert law A = epsilon l c, epsilon = slope / path length; relative standard "
         "uncertainties of slope and path length combined in quadrature (GUM JCGM 100:2008, "
-        "5.1.6); effective degrees of freedom by Welch-Satterthwaite (GUM G.4.1).")
+        "5.1.6); effective degrees of freedom by Welch-Satterthwaite (GUM G.4.1).", note)
 
 
 # --------------------------------------------------------------------------

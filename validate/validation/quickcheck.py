@@ -25,6 +25,7 @@ from validate.validation.limits import range_flags
 from validate.validation.linearity import plain
 from validate.validation.summary import validate_calibration
 
+COVERAGE = 0.95  # coverage probability of a sample's expanded uncertainty
 REQUIRED = ("concentration", "absorbance")
 OPTIONAL = ("u_concentration",)
 
@@ -210,9 +211,12 @@ def _sample_entry(fit, summary, index: int, readings) -> dict:
                         loq=summary.limits.loq, lod=summary.limits.lod)
     if not ip.finite:
         flags.append("slope not significantly different from zero: no finite interval")
+    k = float(student_t.ppf(0.5 + COVERAGE / 2, ip.dof))  # t quantile at the line's n - 2 (GUM G.3)
     return {"readings": r.tolist(), "replicates": ip.replicates,
             "response_mean": ip.response_mean, "concentration": ip.value,
             "standard_uncertainty": ip.standard_uncertainty, "dof": ip.dof, "flags": flags,
+            "coverage_probability": COVERAGE, "coverage_factor": k,
+            "expanded_uncertainty": k * ip.standard_uncertainty,
             "source": "x0 = (y0 - a)/b with the observed-scatter uncertainty (ISO 8466-1; "
                       "EURACHEM/CITAC CG4 Example A5)"}
 

@@ -7,6 +7,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from validate.inputs.units import Unit
 from validate.model.line import LineFit, fit_line
 from validate.validation.limits import (
     DetectionLimits,
@@ -64,14 +65,17 @@ def _max_relative_residual(points: PointDiagnostics) -> float | None:
 def validate_calibration(x, y, *, weights=None, blanks=None, path_length_cm=None,
                          path_length_u=None, alpha: float = 0.05, beta: float = 0.05,
                          declared_limit: str = "ich_residual_sd", test_alpha: float = 0.05,
-                         sample_replicates: int = 1, replicate_sds=None) -> ValidationSummary:
+                         sample_replicates: int = 1, replicate_sds=None,
+                         concentration_unit: Unit | None = None) -> ValidationSummary:
     """Fit the line and run every validation statistic on it.
 
     `x`, `y` are the line's points: preparation means on a method's line (repeated readings
     averaged first), every row of a bare table. `alpha`/`beta` are the error probabilities of
     ISO 11843-2 detection; `test_alpha` is the significance level of the linearity tests;
     `sample_replicates` is K, the points averaged per sample (1 when the points are means);
-    `replicate_sds`: (x, n, sd) of each level's repeated readings for the weighting check.
+    `replicate_sds`: (x, n, sd) of each level's repeated readings for the weighting check;
+    `concentration_unit` the unit of x (the molar absorptivity is converted to L mol^-1 cm^-1
+    where it allows).
     """
     fit = fit_line(x, y, weights)
     notes = []
@@ -82,7 +86,7 @@ def validate_calibration(x, y, *, weights=None, blanks=None, path_length_cm=None
     points = point_diagnostics(fit)
     eps = None
     if path_length_cm is not None:
-        eps = molar_absorptivity(fit, path_length_cm, path_length_u or 0.0)
+        eps = molar_absorptivity(fit, path_length_cm, path_length_u or 0.0, concentration_unit)
     limits = detection_limits(fit, blanks, alpha=alpha, beta=beta,
                               sample_replicates=sample_replicates, declared=declared_limit)
     p_values = [t.p_value for key, t in tests.items()
