@@ -15,10 +15,16 @@ def _line_title(v: dict) -> str:
     return "Line of the standards" if plain_line else "Calibration line"
 
 
+def _points(v: dict) -> str:
+    """What the line's points are: preparation means on a method's line, readings in a bare table."""
+    n = v["fit"]["n"]
+    return f"{n} points, one mean reading per prepared solution" if v.get("fit_units") else f"{n} readings"
+
+
 def _fit_lines(v: dict) -> list[Printable]:
     fit, unit = v["fit"], escape(v["concentration_unit"])
     return [BLANK,
-            Line(f"[bold]{_line_title(v)}[/] ({fit['n']} readings, absorbance against {unit})"),
+            Line(f"[bold]{_line_title(v)}[/] ({_points(v)}, absorbance against {unit})"),
             Line(f"  slope {compact(fit['slope'])} ± {compact(fit['slope_u'], 2)} per {unit}, intercept "
                  f"{compact(fit['intercept'])} ± {compact(fit['intercept_u'], 2)}, r² {fit['r_squared']:.5f}, "
                  f"residual SD {compact(fit['residual_sd'], 3)}")]
