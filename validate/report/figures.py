@@ -140,8 +140,9 @@ def _residual_panel(ax, points: dict, grid, line: tuple[float, float], half, uni
     _tidy(ax)
 
 
-def calibration_figure(calibration: dict) -> Raster:
-    """The line with its standards, a 95 % prediction band and the samples; residuals beneath."""
+def calibration_figure(calibration: dict, compact: bool = False) -> Raster:
+    """The line with its standards, a 95 % prediction band and the samples; residuals beneath
+    (`compact`: a lower figure, for the annex)."""
     pts = calibration["points"]
     x = np.array([p["concentration"] for p in pts], dtype=float)
     y = np.array([p["absorbance"] for p in pts], dtype=float)
@@ -155,9 +156,10 @@ def calibration_figure(calibration: dict) -> Raster:
     grid = np.linspace(x_lo, x_hi + 0.03 * (x_hi - x_lo), 200)
     half = prediction_band(x, y, grid, b, a)[0] if x.size > 2 else None
 
-    fig = _figure(4.9)
+    height = 3.0 if compact else 3.9
+    fig = _figure(height)
     gs = fig.add_gridspec(2, 1, height_ratios=[3, 1.35], hspace=0.08,
-                          left=0.12, right=0.98, top=0.97, bottom=0.1)
+                          left=0.11, right=0.98, top=1 - 0.1 / height, bottom=0.45 / height)
     top = fig.add_subplot(gs[0])
     low = fig.add_subplot(gs[1], sharex=top)
     _line_panel(top, points, samples, grid, (a, b), half)

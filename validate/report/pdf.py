@@ -25,6 +25,7 @@ from reportlab.platypus import CondPageBreak, KeepTogether, PageBreak, Paragraph
 from validate.report import (
     sections,
     sections_advice,
+    sections_annex,
     sections_equilibrium,
     sections_record,
     sections_routine,
@@ -70,12 +71,13 @@ SECTIONS = (
     ("What to improve first", sections_advice.advice, False),
     ("Defaults applied and assumptions", sections_record.defaults_assumptions, False),
     ("Cautions", sections_record.cautions, False),
-    ("Appendix: equipment, registers and record details", sections_record.appendix, False),
+    ("Annex: traceability to the raw data", sections_annex.annex, True),
+    ("Record details: registers, input files, record", sections_record.appendix, False),
     ("Sign-off", sections_record.sign_off, False),
 )
 FIXED = ("Summary", "Method and scope", "Measurement equation and inputs", "Uncertainty budget",
          "Defaults applied and assumptions", "Cautions",
-         "Appendix: equipment, registers and record details", "Sign-off")
+         "Record details: registers, input files, record", "Sign-off")
 
 
 @dataclass(frozen=True)

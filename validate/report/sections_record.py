@@ -92,7 +92,10 @@ def _record_facts(record: dict) -> list:
 
 
 def appendix(record: dict) -> list:
-    return _equipment(record) + _registers(record) + _input_files(record) + _record_facts(record)
+    """Registers, input files and the record's facts; the equipment is in the traceability annex
+    (a record without that block, from an older layout, shows it here)."""
+    equipment = [] if record.get("traceability") else _equipment(record)
+    return equipment + _registers(record) + _input_files(record) + _record_facts(record)
 
 
 def sign_off(record: dict) -> list:
