@@ -14,6 +14,9 @@ import io
 import math
 from dataclasses import dataclass
 
+import matplotlib.lines
+import matplotlib.patches
+import matplotlib.ticker
 import numpy as np
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
@@ -276,4 +279,90 @@ def window_figure(standards: list[float], samples: list[float], low: float, high
     ax.set_ylabel("error factor", fontsize=9)
     fig.legend(fontsize=7, frameon=False, loc="upper center", ncol=3)
     _tidy(ax)
+    return _raster(fig)
+
+
+STEP_COLOURS = ("#2f5d7c", "#c98a2b", "#7d8a95", "#5f9e6e", "#a02c2c", "#8c6bb1", "#c7d6e2", "#e3b873",
+                "#3d3d3d", "#9ecae1")
+
+
+def step_shares_chart(bars: list[tuple[str, list[tuple[str, float]]]]) -> Raster:
+    """One stacked bar per result: its variance shared out by step, the steps in one legend."""
+    steps: list[str] = []
+    for _, groups in bars:
+        for step, _share in sorted(groups, key=lambda g: -g[1]):
+            if step not in steps:
+                steps.append(step)
+    height = 0.9 + 0.24 * len(bars) + 0.17 * math.ceil(len(steps) / 3)
+    fig = _figure(height)
+    legend_in = 0.17 * math.ceil(len(steps) / 3) + 0.45
+    ax = fig.add_axes((0.22, legend_in / height, 0.75, 1 - (legend_in + 0.1) / height))
+    positions = np.arange(len(bars))[::-1]
+    left = np.zeros(len(bars))
+    for i, step in enumerate(steps):
+        values = np.array([100.0 * dict(groups).get(step, 0.0) for _, groups in bars])
+        ax.barh(positions, values, left=left, height=0.66, color=STEP_COLOURS[i % len(STEP_COLOURS)],
+                label=_short(step, 38), edgecolor="white", linewidth=0.4)
+        for pos, v, start in zip(positions, values, left, strict=True):
+            if v >= 8:  # a label where the segment is wide enough to hold it
+                ax.text(start + v / 2, pos, f"{v:.0f}", ha="center", va="center", fontsize=6.5,
+                        color="white" if i % len(STEP_COLOURS) in (0, 3, 4, 5, 8) else POINT)
+        left += values
+    ax.set_yticks(positions)
+    ax.set_yticklabels([_short(label, 30) for label, _ in bars], fontsize=7.5)
+    ax.set_xlim(0, 100)
+    ax.set_xlabel("share of the combined variance / %", fontsize=8)
+    _tidy(ax)
+    ax.grid(False, axis="y")
+    fig.legend(fontsize=7, frameon=False, loc="lower center", ncol=3, bbox_to_anchor=(0.5, 0.0))
+    return _raster(fig)
+
+
+def _mc_panel(ax, mc: dict, value: float, u: float, nu_eff) -> None:
+    """One small histogram of the trials with the GUM curve and the three intervals."""
+    hist = mc["histogram"]
+    edges = np.asarray(hist["edges"], dtype=float)
+    counts = np.asarray(hist["counts"], dtype=float)
+    widths = np.diff(edges)
+    density = counts / (counts.sum() * widths) if counts.sum() > 0 else counts
+    ax.bar(edges[:-1], density, width=widths, align="edge", color=BAND, edgecolor=BAND)
+    grid = np.linspace(edges[0], edges[-1], 200)
+    if nu_eff is None or not math.isfinite(nu_eff) or nu_eff > 1e6:
+        curve = stats.norm.pdf(grid, value, u)
+    else:
+        curve = stats.t.pdf((grid - value) / u, nu_eff) / u
+    ax.plot(grid, curve, color=LINE, linewidth=1.1)
+    for key, colour, style in (("interval", WARM, "-"), ("shortest_interval", BAD, "--"),
+                               ("gum_interval", LINE, ":")):
+        ends = mc.get(key)
+        if ends and all(e is not None for e in ends):
+            for end in ends:
+                ax.axvline(end, color=colour, linestyle=style, linewidth=1.0)
+    ax.set_yticks([])
+    ax.tick_params(labelsize=6.5)
+    ax.xaxis.set_major_locator(matplotlib.ticker.MaxNLocator(4))
+    for side in ("top", "right", "left"):
+        ax.spines[side].set_visible(False)
+
+
+def monte_carlo_grid(panels: list[tuple[str, dict, float, float, object]], unit: str) -> Raster:
+    """Small multiples: one panel per result (title, Monte Carlo block, y, u(y), nu_eff), drawn
+    once as one figure, with one legend for all."""
+    columns = 3 if len(panels) > 4 else 2
+    rows = math.ceil(len(panels) / columns)
+    height = 0.55 + 1.2 * rows
+    fig = _figure(height)
+    gs = fig.add_gridspec(rows, columns, hspace=0.75, wspace=0.12, left=0.03, right=0.98,
+                          top=1 - 0.22 / height, bottom=0.6 / height)
+    for i, (title, mc, value, u, nu) in enumerate(panels):
+        ax = fig.add_subplot(gs[i // columns, i % columns])
+        _mc_panel(ax, mc, value, u, nu)
+        ax.set_title(_short(title, 34), fontsize=7.5, loc="left")
+    handles = [matplotlib.patches.Patch(color=BAND, label="Monte Carlo trials"),
+               matplotlib.lines.Line2D([], [], color=LINE, linewidth=1.1, label="GUM distribution of y"),
+               matplotlib.lines.Line2D([], [], color=WARM, label="MC, probabilistically symmetric"),
+               matplotlib.lines.Line2D([], [], color=BAD, linestyle="--", label="MC, shortest"),
+               matplotlib.lines.Line2D([], [], color=LINE, linestyle=":", label="GUM, y ± U")]
+    fig.legend(handles=handles, fontsize=7, frameon=False, loc="lower center", ncol=5)
+    fig.text(0.5, 0.33 / height, f"result / {unit}" if unit else "result", ha="center", fontsize=7.5)
     return _raster(fig)

@@ -100,8 +100,14 @@ def _notes(block: dict, items: list[dict]) -> list:
     return out
 
 
+NOT_RUN = ("Not run in this evaluation: the advisor was skipped on request (validate run --no-advice, or "
+           "advice=False from Python). Run without that option for changes ranked by how much they reduce U.")
+
+
 def advice(record: dict) -> list | None:
     block = _advice_block(record)
+    if block is None and "advice" in record and record["advice"] is None:
+        return [para(NOT_RUN, "body")]
     if block is None:
         return None
     units = {r.get("name"): r.get("unit", "") for r in record.get("results") or []}

@@ -14,6 +14,7 @@ from __future__ import annotations
 from validate.report import figures
 from validate.report.numbers import DASH, gum_pair, is_number, num
 from validate.report.sections import figure_block
+from validate.report.sections_inputs import note_ref, provenance_notes
 from validate.report.style import data_table, heading, para
 
 LINE_DIGITS = 7  # significant digits of the line's slope and intercept: enough to redo a result by hand
@@ -171,17 +172,18 @@ def _values_text(values: list[dict]) -> str:
                      f" {v.get('unit', '')}".strip() for v in values) or DASH
 
 
-def _equipment_part(block: dict) -> list:
+def _equipment_part(record: dict, block: dict) -> list:
     items = block.get("equipment") or []
     if not items:
         return []
+    notes = provenance_notes(record)
     rows = [[e.get("id", DASH), e.get("kind", DASH), e.get("class") or DASH, _values_text(e.get("values") or []),
-             e.get("source") or DASH] for e in items]
+             note_ref(notes, e.get("source") or "")] for e in items]
     return [heading("Equipment and register values", 2),
-            para("Each item's class, the values the model takes from its register (or from the method "
-                 "file), and their source with its confidence.", "lead_small"),
-            data_table(["item", "kind", "class", "values used", "source and confidence"], rows,
-                       [22, 24, 24, 56, 48])]
+            para("Each item's class and the values the model takes from its register (or from the method "
+                 "file); the note number names the register with its standard and confidence (the notes "
+                 "are listed under the inputs, section Measurement equation and inputs).", "lead_small"),
+            data_table(["item", "kind", "class", "values used", "source"], rows, [24, 28, 30, 78, 14])]
 
 
 def _totals_part(block: dict) -> list:
@@ -229,4 +231,4 @@ def annex(record: dict) -> list | None:
     if block is None:
         return None
     return (_solutions_part(block) + _standards_part(block) + _study_line(record, block)
-            + _samples_part(record, block) + _totals_part(block) + _equipment_part(block))
+            + _samples_part(record, block) + _totals_part(block) + _equipment_part(record, block))
