@@ -159,7 +159,7 @@ def calibration_figure(calibration: dict, compact: bool = False) -> Raster:
     grid = np.linspace(x_lo, x_hi + 0.03 * (x_hi - x_lo), 200)
     half = prediction_band(x, y, grid, b, a)[0] if x.size > 2 else None
 
-    height = 3.0 if compact else 3.9
+    height = 2.8 if compact else 3.3
     fig = _figure(height)
     gs = fig.add_gridspec(2, 1, height_ratios=[3, 1.35], hspace=0.08,
                           left=0.11, right=0.98, top=1 - 0.1 / height, bottom=0.45 / height)
@@ -256,8 +256,8 @@ def window_figure(standards: list[float], samples: list[float], low: float, high
     readings = [a for a in list(standards) + list(samples) if a is not None and a > 0]
     a_max = max([2.0] + [a * 1.1 for a in readings])
     curve = error_curve(0.02, a_max, 300)
-    fig = _figure(2.7)
-    ax = fig.add_axes((0.1, 0.18, 0.87, 0.66))
+    fig = _figure(2.3)
+    ax = fig.add_axes((0.1, 0.2, 0.87, 0.62))
     ax.axvspan(low, high, color="#e9efe6", label=f"recommended window {low:g} to {high:g}")
     ax.plot(curve.absorbance, curve.relative_error_factor, color=LINE, linewidth=1.3,
             label="relative error per unit transmittance noise")
@@ -293,10 +293,11 @@ def step_shares_chart(bars: list[tuple[str, list[tuple[str, float]]]]) -> Raster
         for step, _share in sorted(groups, key=lambda g: -g[1]):
             if step not in steps:
                 steps.append(step)
-    height = 0.9 + 0.24 * len(bars) + 0.17 * math.ceil(len(steps) / 3)
+    legend_rows = math.ceil(len(steps) / 4)
+    legend_in = 0.16 * legend_rows + 0.5  # the legend under the x-axis label
+    height = 0.12 + 0.19 * len(bars) + legend_in
     fig = _figure(height)
-    legend_in = 0.17 * math.ceil(len(steps) / 3) + 0.45
-    ax = fig.add_axes((0.22, legend_in / height, 0.75, 1 - (legend_in + 0.1) / height))
+    ax = fig.add_axes((0.2, legend_in / height, 0.77, 1 - (legend_in + 0.12) / height))
     positions = np.arange(len(bars))[::-1]
     left = np.zeros(len(bars))
     for i, step in enumerate(steps):
@@ -314,7 +315,7 @@ def step_shares_chart(bars: list[tuple[str, list[tuple[str, float]]]]) -> Raster
     ax.set_xlabel("share of the combined variance / %", fontsize=8)
     _tidy(ax)
     ax.grid(False, axis="y")
-    fig.legend(fontsize=7, frameon=False, loc="lower center", ncol=3, bbox_to_anchor=(0.5, 0.0))
+    fig.legend(fontsize=7, frameon=False, loc="lower center", ncol=4, bbox_to_anchor=(0.5, 0.0))
     return _raster(fig)
 
 
@@ -350,7 +351,7 @@ def monte_carlo_grid(panels: list[tuple[str, dict, float, float, object]], unit:
     once as one figure, with one legend for all."""
     columns = 3 if len(panels) > 4 else 2
     rows = math.ceil(len(panels) / columns)
-    height = 0.55 + 1.2 * rows
+    height = 0.55 + 1.1 * rows
     fig = _figure(height)
     gs = fig.add_gridspec(rows, columns, hspace=0.75, wspace=0.12, left=0.03, right=0.98,
                           top=1 - 0.22 / height, bottom=0.6 / height)

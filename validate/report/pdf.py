@@ -108,7 +108,7 @@ def _story(record: dict, content_hash: str | None = None) -> tuple[list, list[st
 
 
 BINDING_STYLES = ("h1", "h2", "lead", "lead_small")
-LONG_TABLE_ROWS = 15
+LONG_TABLE_ROWS = 5
 MIN_SPACE = 45 * mm
 MIN_TABLE_SPACE = 25 * mm
 

@@ -93,13 +93,16 @@ def grouped_sources(record: dict) -> list[tuple[list[dict], str, str]]:
 
 def _row(members: list[dict], detail: str, origin: str, notes: dict[str, int]) -> list:
     first = members[0]
-    where = " · ".join(v for v in (first.get("step"), first.get("equipment"), detail) if v)
-    name = text(_template([str(m.get("name", "")) for m in members]))
+    label = _template([str(m.get("name", "")) for m in members])
+    item = first.get("equipment") or ""
+    shown_item = "" if label.startswith(f"{item}:") else item  # the name says it already
+    where = " · ".join(v for v in (first.get("step"), shown_item, detail) if v)
+    name = text(label)
     if where:
         name += f'<br/><font size="6.8" color="{GREY}">{cell_text(where, 80)}</font>'
     value = first.get("value_in_unit", first.get("value"))
     u = first.get("u_in_unit", first.get("u"))
-    return [Paragraph(name, styles()["cell"]), num(value, 6), num(u, 3), first.get("unit") or DASH,
+    return [Paragraph(name, styles()["cell"]), num(value, 8), num(u, 2), first.get("unit") or DASH,
             first.get("distribution") or DASH, dof(first.get("dof")), first.get("kind") or DASH,
             note_ref(notes, origin)]
 
@@ -122,5 +125,5 @@ def equation_inputs(record: dict) -> list:
         out.append(para("The record lists no input quantities.", "body"))
         return out
     out.append(data_table(["input", "value", "u(x)", "unit", "distribution", "ν", "type", "note"], rows,
-                          [78, 17, 15, 13, 20, 9, 10, 12], numeric={1, 2, 5}))
+                          [82, 16, 15, 11, 19, 8, 9, 14], numeric={1, 2, 5}))
     return out + notes_block(notes)

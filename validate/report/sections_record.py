@@ -31,9 +31,10 @@ def defaults_assumptions(record: dict) -> list:
     out = []
     for title, key, empty in (("Defaults applied", "defaults_applied", "No defaults were applied."),
                               ("Assumptions", "assumptions", "No further assumptions."),
-                              ("Notes", "notes", "No notes.")):
+                              ("Notes", "notes", "")):
         lines = [str(x) for x in record.get(key) or []]
-        out += [heading(title, 2), *(bullets(lines) if lines else [para(empty, "body")])]
+        if lines or empty:  # no heading for an empty list of notes
+            out += [heading(title, 2), *(bullets(lines) if lines else [para(empty, "body")])]
     return out
 
 
@@ -95,7 +96,9 @@ def appendix(record: dict) -> list:
     """Registers, input files and the record's facts; the equipment is in the traceability annex
     (a record without that block, from an older layout, shows it here)."""
     equipment = [] if record.get("traceability") else _equipment(record)
-    return equipment + _registers(record) + _input_files(record) + _record_facts(record)
+    listed = {str(i.get("path")) for i in record.get("inputs") or []}
+    registers = [] if set(map(str, record.get("registers") or [])) <= listed else _registers(record)
+    return equipment + registers + _input_files(record) + _record_facts(record)
 
 
 def sign_off(record: dict) -> list:
@@ -105,7 +108,7 @@ def sign_off(record: dict) -> list:
                      for role in ("Prepared by", "Reviewed by", "Approved by")]
     # blank columns 2 and 4 keep the three writing lines apart
     table = Table(rows, colWidths=[30 * mm, 52 * mm, 6 * mm, 52 * mm, 6 * mm, 28 * mm],
-                  rowHeights=[7 * mm] + [16 * mm] * 3, hAlign="LEFT")
+                  rowHeights=[7 * mm] + [13 * mm] * 3, hAlign="LEFT")
     table.setStyle(TableStyle([
         ("LINEBELOW", (0, 0), (-1, 0), 0.8, ACCENT),
         *[("LINEBELOW", (col, 1), (col, -1), 0.6, INK) for col in (1, 3, 5)],

@@ -16,9 +16,9 @@ from validate.report.style import bullets, data_table, heading, key_value_table,
 
 def u_figure(by_concentration: list[dict], unit: str) -> figures.Raster:
     """Top-down U against concentration (a curve) with each result's bottom-up U (points)."""
-    fig = Figure(figsize=(figures.WIDTH_IN, 2.6), dpi=figures.DPI)
+    fig = Figure(figsize=(figures.WIDTH_IN, 2.2), dpi=figures.DPI)
     FigureCanvasAgg(fig)
-    ax = fig.add_axes((0.1, 0.18, 0.87, 0.66))
+    ax = fig.add_axes((0.1, 0.2, 0.87, 0.62))
     cs = [e["concentration"] for e in by_concentration]
     ax.plot(cs, [e["expanded_uncertainty"] for e in by_concentration], color=figures.LINE, linewidth=1.3,
             marker="o", markersize=3, label="top-down U (validation data)")

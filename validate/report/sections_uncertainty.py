@@ -10,7 +10,7 @@ from validate.report.numbers import DASH, dof, interval, is_number, num, pct, to
 from validate.report.sections import coloured, figure_block, rounded, u_decimals
 from validate.report.style import data_table, heading, key_value_table, para, text
 
-MIN_SHARE_SHOWN = 0.01  # budget rows below 1 % of a result's variance are summed in one line
+MIN_SHARE_SHOWN = 0.02  # budget rows below 2 % of a result's variance are summed in one line
 # (common practice: such sources do not change U at two significant digits; budget.csv has them all)
 
 
@@ -143,14 +143,12 @@ def budget(record: dict) -> list:
     results = record.get("results") or []
     many = len(results) > 1
     out = [para(BUDGET_LEAD + (f" For each result the sources with at least {pct(MIN_SHARE_SHOWN, 0)} of its "
-                               "variance are listed; the rest are summed in one line." if many else ""), "lead")]
+                               "variance are listed; the rest are summed in one line." if many else ""), "lead" if not many else "body")]
     if not results:
         out.append(para("The record holds no result.", "body"))
-    if many:
-        out += step_shares_figure(results)
     for result in results:
         out += budget_for_result(record, result, full=not many)
-    return out
+    return out + (step_shares_figure(results) if many else [])  # after the tables: they split, a figure does not
 
 
 # --------------------------------------------------------------------------
