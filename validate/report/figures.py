@@ -226,8 +226,7 @@ def monte_carlo_figure(mc: dict, value: float, u: float, nu_eff, unit: str) -> R
     density = counts / (counts.sum() * widths) if counts.sum() > 0 else counts
     fig = _figure(3.1)
     ax = fig.add_axes((0.1, 0.33, 0.87, 0.63))
-    ax.bar(edges[:-1], density, width=widths, align="edge", color=BAND, edgecolor=BAND,
-           label="Monte Carlo trials")
+    ax.stairs(density, edges, fill=True, color=BAND, label="Monte Carlo trials")  # one patch, not one per bin
     grid = np.linspace(edges[0], edges[-1], 400)
     if nu_eff is None or not math.isfinite(nu_eff) or nu_eff > 1e6:
         curve, label = stats.norm.pdf(grid, value, u), "GUM: normal, y and u(y)"
@@ -326,7 +325,7 @@ def _mc_panel(ax, mc: dict, value: float, u: float, nu_eff) -> None:
     counts = np.asarray(hist["counts"], dtype=float)
     widths = np.diff(edges)
     density = counts / (counts.sum() * widths) if counts.sum() > 0 else counts
-    ax.bar(edges[:-1], density, width=widths, align="edge", color=BAND, edgecolor=BAND)
+    ax.stairs(density, edges, fill=True, color=BAND)  # one patch, not one per bin
     grid = np.linspace(edges[0], edges[-1], 200)
     if nu_eff is None or not math.isfinite(nu_eff) or nu_eff > 1e6:
         curve = stats.norm.pdf(grid, value, u)

@@ -49,8 +49,9 @@ def _result_lead(result: dict, full: bool = True) -> list:
                f"p = {pct(result.get('coverage_probability'), 0)}, ν_eff = {dof(result.get('effective_dof'))}).")
     if full:
         return [CondPageBreak(90 * mm), heading(result["name"], 2), para(numbers, "lead")]
-    # many results: the name and its numbers on one line
-    return [CondPageBreak(40 * mm), para(f"<b>{text(result['name'])}</b>: {text(numbers)}", "lead", markup=True)]
+    # many results: the name and its numbers on one line (c_i u(x_i) in the result's unit)
+    return [CondPageBreak(40 * mm), para(f"<b>{text(result['name'])}</b>: {text(numbers)} c_i u(x_i) in {text(unit)}.",
+                                         "lead", markup=True)]
 
 
 def _source_table(rows: list[dict], unit: str, with_step: bool = True) -> list:
@@ -61,7 +62,7 @@ def _source_table(rows: list[dict], unit: str, with_step: bool = True) -> list:
     out: list = []
     if shown:
         header = ["#", "source", *(["step"] if with_step else []), "equipment", "u(x_i)", "sensitivity c_i",
-                  f"c_i u(x_i) / {unit}", "share"]
+                  f"c_i u(x_i) / {unit}" if with_step else "c_i u(x_i)", "share"]
         widths = [7, 40, 24, 21, 20, 26, 20, 16] if with_step else [7, 58, 20, 20, 32, 22, 15]
         last = len(header) - 1
         out.append(data_table(header, [_source_row(rank, r, unit, with_step) for rank, r in enumerate(shown, 1)],

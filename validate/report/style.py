@@ -24,8 +24,8 @@ from reportlab.platypus import Paragraph, Spacer, Table, TableStyle
 
 PAGE_SIZE = A4
 MARGIN_X = 18 * mm
-MARGIN_TOP = 22 * mm
-MARGIN_BOTTOM = 20 * mm
+MARGIN_TOP = 19 * mm
+MARGIN_BOTTOM = 18 * mm
 FRAME_WIDTH = PAGE_SIZE[0] - 2 * MARGIN_X
 
 INK = colors.HexColor("#1f2a33")
