@@ -345,7 +345,7 @@ def _mc_panel(ax, mc: dict, value: float, u: float, nu_eff) -> None:
         ax.spines[side].set_visible(False)
 
 
-def monte_carlo_grid(panels: list[tuple[str, dict, float, float, object]], unit: str) -> Raster:
+def monte_carlo_grid_figure(panels: list[tuple[str, dict, float, float, object]], unit: str) -> Raster:
     """Small multiples: one panel per result (title, Monte Carlo block, y, u(y), nu_eff), drawn
     once as one figure, with one legend for all."""
     columns = 3 if len(panels) > 4 else 2
@@ -365,4 +365,25 @@ def monte_carlo_grid(panels: list[tuple[str, dict, float, float, object]], unit:
                matplotlib.lines.Line2D([], [], color=LINE, linestyle=":", label="GUM, y ± U")]
     fig.legend(handles=handles, fontsize=7, frameon=False, loc="lower center", ncol=5)
     fig.text(0.5, 0.33 / height, f"result / {unit}" if unit else "result", ha="center", fontsize=7.5)
+    return _raster(fig)
+
+
+def routine_uncertainty_figure(by_concentration: list[dict], unit: str) -> Raster:
+    """Top-down U against concentration (a curve) with each result's bottom-up U (points)."""
+    fig = _figure(2.2)
+    ax = fig.add_axes((0.1, 0.2, 0.87, 0.62))
+    cs = [e["concentration"] for e in by_concentration]
+    ax.plot(cs, [e["expanded_uncertainty"] for e in by_concentration], color=LINE, linewidth=1.3,
+            marker="o", markersize=3, label="top-down U (validation data)")
+    bottom = [(e["concentration"], e["bottom_up_expanded_uncertainty"]) for e in by_concentration
+              if e.get("bottom_up_expanded_uncertainty") is not None]
+    if bottom:
+        ax.plot(*zip(*bottom, strict=True), linestyle="none", marker="s", markersize=5, color=WARM,
+                label="bottom-up U of each result (within-run budget)")
+    ax.set_xlabel(f"concentration ({unit})", fontsize=9)
+    ax.set_ylabel(f"U ({unit})", fontsize=9)
+    ax.set_xlim(left=0)
+    ax.set_ylim(bottom=0)
+    fig.legend(fontsize=7, frameon=False, loc="upper center", ncol=2)
+    _tidy(ax)
     return _raster(fig)

@@ -99,7 +99,7 @@ def _solutions_part(block: dict) -> list:
     rows = _solution_rows(block)
     if rows:
         out.append(data_table(["solution", "what", "amount", "u", "item", "made up in", "concentration",
-                               "u(c)"], rows, [18, 36, 16, 13, 18, 31, 27, 15], numeric={2, 3, 6, 7}))
+                               "u(c)"], rows, [22, 32, 16, 13, 18, 31, 27, 15], numeric={2, 3, 6, 7}))
     return out
 
 

@@ -101,7 +101,12 @@ def _quantity_table(result: dict, unit: str) -> list:
     quantities = result.get("budget_by_quantity") or []
     if not quantities:
         return []
-    rows = [[g.get("group", DASH), num(g.get("contribution"), 3), pct(g.get("share"))] for g in quantities]
+    shown = [g for g in quantities if (g.get("share") or 0.0) >= MIN_SHARE_SHOWN]
+    rest = quantities[len(shown):] if len(shown) < len(quantities) else []
+    rows = [[g.get("group", DASH), num(g.get("contribution"), 3), pct(g.get("share"))] for g in shown]
+    if rest:
+        rows.append([f"{len(rest)} further quantities, each below {pct(MIN_SHARE_SHOWN, 0)} (results.json)", DASH,
+                     pct(sum(g.get("share") or 0.0 for g in rest), 2)])
     return [data_table(["input quantity", f"u / {unit}", "share"], rows, [110, 30, 30], numeric={1, 2}),
             para("By input quantity of the measurement equation: each quantity's terms (a volume's "
                  "calibration, repeatability and temperature) combined first, as EURACHEM/CITAC CG4 "
@@ -140,11 +145,15 @@ def step_shares_figure(results: list[dict]) -> list:
                          "quantity are in results.json; every source of every result is in budget.csv.")]
 
 
+SHOWN_RULE = (f" For each result the sources with at least {pct(MIN_SHARE_SHOWN, 0)} of its variance are listed; "
+              "the rest are summed in one line and listed in budget.csv.")
+
+
 def budget(record: dict) -> list:
     results = record.get("results") or []
     many = len(results) > 1
-    out = [para(BUDGET_LEAD + (f" For each result the sources with at least {pct(MIN_SHARE_SHOWN, 0)} of its "
-                               "variance are listed; the rest are summed in one line." if many else ""), "lead" if not many else "body")]
+    # with many results the lead stands alone (a 'body' paragraph), so the first table may start under it
+    out = [para(BUDGET_LEAD + SHOWN_RULE, "body" if many else "lead")]
     if not results:
         out.append(para("The record holds no result.", "body"))
     for result in results:
@@ -329,7 +338,7 @@ def monte_carlo_compact(results: list[dict]) -> list:
               if (r["monte_carlo"].get("histogram") or {}).get("edges") and is_number(r.get("value"))
               and is_number(r.get("standard_uncertainty"))]
     if panels:
-        out.append(figure_block(figures.monte_carlo_grid(panels, unit),
+        out.append(figure_block(figures.monte_carlo_grid_figure(panels, unit),
                                 "Figure: the Monte Carlo trials of each result against the distribution the GUM "
                                 "assigns to it; vertical lines mark the coverage intervals."))
     return out + _largest_share_gap(results) + _notes_of(results)
