@@ -20,11 +20,6 @@ def _figure(value, unit: str) -> str:
     return f"{num(value, 3)} {unit}".strip()
 
 
-def _plain(value) -> str:
-    """The advisor's text without the backticks it marks names with (they are not markup here)."""
-    return str(value).replace("`", "")
-
-
 def _evaluated(a: dict) -> bool:
     return is_number(a.get("expanded_uncertainty_after"))
 
@@ -33,11 +28,11 @@ def _rows(items: list[dict], unit: str) -> list[list]:
     rows = []
     for rank, a in enumerate(items, 1):
         u = a.get("unit") or unit
-        rows.append([rank, _plain(a.get("change", DASH)), _figure(a.get("expanded_uncertainty_after"), u),
+        rows.append([rank, a.get("change", DASH), _figure(a.get("expanded_uncertainty_after"), u),
                      pct(a.get("reduction")) if is_number(a.get("reduction")) else DASH,
                      _figure(a["confirmed_by_monte_carlo"], u)
                      if is_number(a.get("confirmed_by_monte_carlo")) else DASH,
-                     _plain(a.get("cost") or DASH)])
+                     a.get("cost") or DASH])
     return rows
 
 
@@ -89,7 +84,7 @@ def _changes(items: list[dict], combined, unit: str, units: dict) -> list:
     others = [a for a in items if not _evaluated(a)]
     if others:
         out += [para("Suggested, not evaluated by the model:", "small"),
-                *bullets([f"{_plain(a.get('change', DASH))}" + (f" ({_plain(a['assumption'])})"
+                *bullets([f"{a.get('change', DASH)}" + (f" ({a['assumption']})"
                                                                   if a.get("assumption") else "")
                           for a in others], "small")]
     if isinstance(combined, dict):
@@ -105,14 +100,14 @@ def _changes(items: list[dict], combined, unit: str, units: dict) -> list:
 def _notes(block: dict, items: list[dict]) -> list:
     """Assumptions behind the changes, changes without effect or not evaluated, and sources."""
     out: list = []
-    notes = [f"{_plain(a['change'])}: {_plain(a['assumption'])}" for a in items
+    notes = [f"{a['change']}: {a['assumption']}" for a in items
              if a.get("assumption") and _evaluated(a)]
     if notes:
         out += [heading("Assumptions behind the changes", 2), *bullets(notes, "small")]
     for title, key in (("Changes without effect", "without_effect"),
                        ("Changes that could not be evaluated", "skipped")):
         if block.get(key):
-            out += [heading(title, 2), *bullets([_plain(x) for x in block[key]], "small")]
+            out += [heading(title, 2), *bullets(block[key], "small")]
     if block.get("sources"):
         out += [para("Sources", "small"), *bullets(block["sources"], "small")]
     return out

@@ -90,9 +90,15 @@ def styles() -> dict[str, ParagraphStyle]:
     }
 
 
+def _plain(value) -> str:
+    """The record's text as printed: the backticks that mark names in messages are not markup
+    on paper, so they are dropped."""
+    return str(value).replace("`", "")
+
+
 def text(value) -> str:
     """Plain text made safe for reportlab's paragraph markup."""
-    return escape(str(value))
+    return escape(_plain(value))
 
 
 # A table row taller than the page stops reportlab's layout, so a cell shows at most
@@ -109,7 +115,7 @@ def cell_limit(width_mm: float) -> int:
 
 def cell_text(value, width_mm: float = 174.0) -> str:
     """text() for a table cell, cut with a note when too long to lay out."""
-    shown, limit = str(value), cell_limit(width_mm)
+    shown, limit = _plain(value), cell_limit(width_mm)
     if len(shown) > limit:
         shown = f"{shown[:limit]} ... [{len(shown) - limit} more characters; the whole text is in results.json]"
     return escape(shown)
