@@ -512,3 +512,40 @@ def test_the_content_hash_is_on_page_one_only_when_given(tmp_path):
     first = pages_text(tmp_path / "with.pdf")[0].replace("\n", "")
     assert "content hash" in first and digest in first.replace(" ", "")
     assert "content hash" not in pages_text(tmp_path / "without.pdf")[0]
+
+
+def page_fill(path) -> list[float]:
+    """How far down each page its text reaches, as a fraction of the text frame (from the text
+    positions pypdf reports; a figure's caption marks where the figure ends)."""
+    from validate.report.style import MARGIN_BOTTOM, MARGIN_TOP
+
+    fills = []
+    for page in PdfReader(str(path)).pages:
+        height = float(page.mediabox.height)
+        top, bottom = height - MARGIN_TOP, MARGIN_BOTTOM
+        heights: list[float] = []
+
+        def visit(text, cm, tm, font, size, heights=heights):
+            y = tm[5] * cm[3] + cm[5]
+            if text.strip() and bottom - 2 < y < top + 2:  # leave out the running head and foot
+                heights.append(y)
+
+        page.extract_text(visitor_text=visit)
+        fills.append((top - min(heights)) / (top - bottom) if heights else 0.0)
+    return fills
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("which", ["phosphate", "nickel"])
+def test_no_page_but_the_last_is_half_blank(which, demo_report, nickel_report):
+    info, path, _ = demo_report if which == "phosphate" else nickel_report
+    fills = page_fill(path)
+    assert len(fills) == info.page_count
+    assert all(f >= 0.5 for f in fills[:-1]), [round(f, 2) for f in fills]
+
+
+@pytest.mark.slow
+def test_the_assay_demo_report_with_its_annex_fits_fifteen_pages(demo_report):
+    info, _, pages = demo_report
+    assert "Annex: traceability to the raw data" in info.sections
+    assert info.page_count <= 15  # issue target for the phosphate demo, annex included
