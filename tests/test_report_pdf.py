@@ -525,7 +525,7 @@ def page_fill(path) -> list[float]:
         top, bottom = height - MARGIN_TOP, MARGIN_BOTTOM
         heights: list[float] = []
 
-        def visit(text, cm, tm, font, size, heights=heights):
+        def visit(text, cm, tm, font, size, heights=heights, top=top, bottom=bottom):
             y = tm[5] * cm[3] + cm[5]
             if text.strip() and bottom - 2 < y < top + 2:  # leave out the running head and foot
                 heights.append(y)
@@ -549,3 +549,16 @@ def test_the_assay_demo_report_with_its_annex_fits_fifteen_pages(demo_report):
     info, _, pages = demo_report
     assert "Annex: traceability to the raw data" in info.sections
     assert info.page_count <= 15  # issue target for the phosphate demo, annex included
+
+
+@pytest.mark.slow
+def test_equilibrium_annex_has_the_standards_line_and_every_point_total(nickel_report, nickel_record):
+    info, _, pages = nickel_report
+    annex = section_text(pages, info, "Annex: traceability to the raw data")
+    assert "The standards' line" in annex and "residuals" in annex
+    fit = nickel_record["validation"]["fit"]
+    assert f"a = {fit['intercept']:.7g}" in annex and f"b = {fit['slope']:.7g}" in annex
+    for t in nickel_record["traceability"]["totals"]:  # every standard, mixture and series point
+        value, u = round_gum(t["L_total"], t["u_L_total"])
+        pattern = rf"\b{re.escape(t['id'])} {t['role']} .*?{re.escape(value)} \({re.escape(u)}\)"
+        assert re.search(pattern, annex), t["id"]

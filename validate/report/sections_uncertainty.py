@@ -132,6 +132,15 @@ BUDGET_LEAD = ("Each source's standard uncertainty u(x_i), its sensitivity coeff
                "is part of the budget.")
 
 
+BARS_PER_FIGURE = 25  # results per step-share chart, so a chart never outgrows a page
+PANELS_PER_FIGURE = 12  # Monte Carlo panels per figure (four rows of three)
+
+
+def chunks(items: list, size: int) -> list[list]:
+    """`items` in consecutive parts of at most `size`."""
+    return [items[i:i + size] for i in range(0, len(items), size)]
+
+
 def step_shares_figure(results: list[dict]) -> list:
     """One chart for every result: its variance shared out by step (drawn once, not per result)."""
     bars = [(r.get("sample") or r.get("name", ""),
@@ -139,10 +148,10 @@ def step_shares_figure(results: list[dict]) -> list:
             for r in results]
     if not any(steps for _, steps in bars):
         return []
-    return [figure_block(figures.step_shares_chart(bars),
-                         "Figure: each result's combined variance u²(y) shared out by step of the procedure "
-                         "(the steps add up to 100 %). The shares by step, by equipment item and by input "
-                         "quantity are in results.json; every source of every result is in budget.csv.")]
+    caption = ("Figure: each result's combined variance u²(y) shared out by step of the procedure (the steps "
+               "add up to 100 %). The shares by step, by equipment item and by input quantity are in "
+               "results.json; every source of every result is in budget.csv.")
+    return [figure_block(figures.step_shares_chart(part), caption) for part in chunks(bars, BARS_PER_FIGURE)]
 
 
 SHOWN_RULE = (f" For each result the sources with at least {pct(MIN_SHARE_SHOWN, 0)} of its variance are listed; "
@@ -337,8 +346,8 @@ def monte_carlo_compact(results: list[dict]) -> list:
                r.get("effective_dof")) for r in results
               if (r["monte_carlo"].get("histogram") or {}).get("edges") and is_number(r.get("value"))
               and is_number(r.get("standard_uncertainty"))]
-    if panels:
-        out.append(figure_block(figures.monte_carlo_grid_figure(panels, unit),
+    for part in chunks(panels, PANELS_PER_FIGURE):
+        out.append(figure_block(figures.monte_carlo_grid_figure(part, unit),
                                 "Figure: the Monte Carlo trials of each result against the distribution the GUM "
                                 "assigns to it; vertical lines mark the coverage intervals."))
     return out + _largest_share_gap(results) + _notes_of(results)
