@@ -7,6 +7,7 @@ from pathlib import PurePath
 from reportlab.lib.units import mm
 from reportlab.platypus import Paragraph, Table, TableStyle
 
+from validate.report import figures
 from validate.report.numbers import DASH
 from validate.report.style import ACCENT, INK, bullets, data_table, heading, key_value_table, para, styles, text
 
@@ -86,6 +87,8 @@ def _record_facts(record: dict) -> list:
     seeds = _seeds(record)
     if seeds:
         facts.append(("random seed", seeds))
+    facts.append(("figures", f"drawn at {figures.DPI} dpi of their printed size (sharp on paper; common practice "
+                             "prints line art at 150 to 300 dpi)"))
     return [heading("Record", 2), key_value_table(facts, (40, 134)),
             para("The record id and the input files' SHA-256"
                  + (", with the random seed," if seeds else "") + " let the evaluation be "
