@@ -99,7 +99,7 @@ def _solutions_part(block: dict) -> list:
     rows = _solution_rows(block)
     if rows:
         out.append(data_table(["solution", "what", "amount", "u", "item", "made up in", "concentration",
-                               "u(c)"], rows, [22, 32, 16, 13, 18, 31, 27, 15], numeric={2, 3, 6, 7}))
+                               "u(c)"], rows, [25, 27, 19, 16, 17, 29, 27, 14], numeric={2, 3, 6, 7}))
     return out
 
 
@@ -204,7 +204,7 @@ def _totals_part(block: dict) -> list:
                  "with their standard uncertainty in brackets. A series point holds the start aliquots "
                  "and the additions so far.", "lead_small"),
             data_table(["id", "role", "aliquots (item)", "made up in", "[M]0 (u)", "[L]0 (u)"], rows,
-                       [13, 19, 64, 22, 28, 28], numeric={4, 5})]
+                       [11, 17, 62, 26, 29, 29], numeric={4, 5})]
 
 
 def _study_line(record: dict, block: dict) -> list:
