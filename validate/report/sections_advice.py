@@ -8,7 +8,7 @@ or a plain list of changes. Nothing is evaluated here.
 from __future__ import annotations
 
 from validate.report.numbers import DASH, dof, is_number, num, pct
-from validate.report.style import bullets, data_table, heading, para
+from validate.report.style import bullets, data_table, heading, para, unquoted
 
 
 def _figure(value, unit: str) -> str:
@@ -28,11 +28,11 @@ def _rows(items: list[dict], unit: str) -> list[list]:
     rows = []
     for rank, a in enumerate(items, 1):
         u = a.get("unit") or unit
-        rows.append([rank, a.get("change", DASH), _figure(a.get("expanded_uncertainty_after"), u),
+        rows.append([rank, unquoted(a.get("change", DASH)), _figure(a.get("expanded_uncertainty_after"), u),
                      pct(a.get("reduction")) if is_number(a.get("reduction")) else DASH,
                      _figure(a["confirmed_by_monte_carlo"], u)
                      if is_number(a.get("confirmed_by_monte_carlo")) else DASH,
-                     a.get("cost") or DASH])
+                     unquoted(a.get("cost") or DASH)])
     return rows
 
 

@@ -7,6 +7,7 @@ headings, light grey rules, numbers right-aligned in tables.
 
 from __future__ import annotations
 
+import re
 from collections.abc import Sequence
 from functools import lru_cache
 from pathlib import Path
@@ -90,15 +91,15 @@ def styles() -> dict[str, ParagraphStyle]:
     }
 
 
-def _plain(value) -> str:
-    """The record's text as printed: the backticks that mark names in messages are not markup
-    on paper, so they are dropped."""
-    return str(value).replace("`", "")
+def unquoted(value) -> str:
+    """A message as printed: the backticks that mark a name (`balance`) are not markup on paper,
+    so a pair around a name is dropped; any other backtick stays."""
+    return re.sub(r"`([^`\n]+)`", r"\1", str(value))
 
 
 def text(value) -> str:
-    """Plain text made safe for reportlab's paragraph markup."""
-    return escape(_plain(value))
+    """Plain text (a sentence, a message) made safe for reportlab's paragraph markup."""
+    return escape(unquoted(value))
 
 
 # A table row taller than the page stops reportlab's layout, so a cell shows at most
@@ -115,7 +116,7 @@ def cell_limit(width_mm: float) -> int:
 
 def cell_text(value, width_mm: float = 174.0) -> str:
     """text() for a table cell, cut with a note when too long to lay out."""
-    shown, limit = _plain(value), cell_limit(width_mm)
+    shown, limit = str(value), cell_limit(width_mm)
     if len(shown) > limit:
         shown = f"{shown[:limit]} ... [{len(shown) - limit} more characters; the whole text is in results.json]"
     return escape(shown)
