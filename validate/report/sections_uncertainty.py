@@ -11,7 +11,7 @@ from validate.report.sections import coloured, figure_block, rounded, u_decimals
 from validate.report.style import data_table, heading, key_value_table, para, text
 
 MIN_SHARE_SHOWN = 0.02  # budget rows below 2 % of a result's variance are summed in one line
-# (common practice: such sources do not change U at two significant digits; budget.csv has them all)
+# (leaving out one such source changes u(y) by less than 1 %, sqrt(0.98) = 0.99; budget.csv has them all)
 
 
 def _budget_rows(record: dict, result_name: str) -> list[dict]:
