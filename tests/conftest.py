@@ -45,6 +45,31 @@ def nickel_demo():
     assert _snapshot(run.record) == before, "a test changed the shared nickel demo record; work on a copy"
 
 
+@pytest.fixture(scope="session")
+def phosphate_demo():
+    """The assay demo run once (20 000 trials, seed 11, with the advisor), shared by the tests
+    that read its record or its PDF. Tests must not change it (work on a copy.deepcopy)."""
+    from validate.workflow import pipeline
+
+    run = pipeline.analyse(DEMOS / "phosphate_assay" / "method.toml", trials=20_000, seed=11)
+    before = _snapshot(run.record)
+    yield run
+    assert _snapshot(run.record) == before, "a test changed the shared phosphate demo record; work on a copy"
+
+
+@pytest.fixture(scope="session")
+def phosphate_report(phosphate_demo, tmp_path_factory):
+    """The assay demo's PDF, built once: (ReportInfo, path, text of each page with white space made single)."""
+    from pypdf import PdfReader
+
+    from validate.report.pdf import build_report
+
+    path = tmp_path_factory.mktemp("phosphate_report") / "report.pdf"
+    info = build_report(phosphate_demo.record, path)
+    pages = [" ".join((page.extract_text() or "").split()) for page in PdfReader(str(path)).pages]
+    return info, path, pages
+
+
 def copy_demo(tmp_path: Path, demo: Path = DEMOS / "phosphate_assay") -> Path:
     """A demo's folder copied under tmp_path/demo, to be edited by a test."""
     folder = tmp_path / "demo"

@@ -24,6 +24,7 @@ from validate.record.blocks import AdviceBlock, EquilibriumBlock
 from validate.record.blocks_routine import MethodUncertaintyBlock
 from validate.record.blocks_validation import ValidationBlock
 from validate.record.files import sha256_of
+from validate.record.traceability import traceability_block
 from validate.record.tree import from_dict, to_dict
 from validate.record.types import (
     SCHEMA_VERSION,
@@ -98,6 +99,7 @@ def build_record(method: Method, model: Model | EquilibriumModel, results: list[
                                           **{k: v for k, v in row.items() if k != "result"}}, "budget")
                      for row in budget_rows(results)),
         method_uncertainty=routine,
+        traceability=traceability_block(method, model),
     )
 
 

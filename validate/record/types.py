@@ -18,6 +18,7 @@ from typing import Any
 from validate.model.keys import ResultKey
 from validate.record.blocks import AdviceBlock, EquilibriumBlock
 from validate.record.blocks_routine import MethodUncertaintyBlock
+from validate.record.blocks_traceability import TraceabilityBlock
 from validate.record.blocks_validation import ValidationBlock, ValidationSettingsEntry
 from validate.record.blocks_verdict import Verdict
 from validate.record.tree import RecordPart, described, omitted_when_none
@@ -282,6 +283,9 @@ class Record(RecordPart):
     budget: tuple[BudgetRow, ...]
     method_uncertainty: MethodUncertaintyBlock | None = omitted_when_none(
         "the method's uncertainty for routine use (top-down) beside the budget; left out without [routine_uncertainty]")
+    traceability: TraceabilityBlock | None = omitted_when_none(
+        "how every solution was made, the standards' assigned values and every reading, the equipment's "
+        "register values: what a reader needs to recompute a standard and a result by hand")
 
     def result(self, key: ResultKey) -> ResultEntry:
         """The result with this key (KeyError when the record has none)."""

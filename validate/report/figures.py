@@ -14,6 +14,9 @@ import io
 import math
 from dataclasses import dataclass
 
+import matplotlib.lines
+import matplotlib.patches
+import matplotlib.ticker
 import numpy as np
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
@@ -140,8 +143,9 @@ def _residual_panel(ax, points: dict, grid, line: tuple[float, float], half, uni
     _tidy(ax)
 
 
-def calibration_figure(calibration: dict) -> Raster:
-    """The line with its standards, a 95 % prediction band and the samples; residuals beneath."""
+def calibration_figure(calibration: dict, compact: bool = False) -> Raster:
+    """The line with its standards, a 95 % prediction band and the samples; residuals beneath
+    (`compact`: a lower figure, for the annex)."""
     pts = calibration["points"]
     x = np.array([p["concentration"] for p in pts], dtype=float)
     y = np.array([p["absorbance"] for p in pts], dtype=float)
@@ -155,9 +159,10 @@ def calibration_figure(calibration: dict) -> Raster:
     grid = np.linspace(x_lo, x_hi + 0.03 * (x_hi - x_lo), 200)
     half = prediction_band(x, y, grid, b, a)[0] if x.size > 2 else None
 
-    fig = _figure(4.9)
+    height = 2.8 if compact else 3.3
+    fig = _figure(height)
     gs = fig.add_gridspec(2, 1, height_ratios=[3, 1.35], hspace=0.08,
-                          left=0.12, right=0.98, top=0.97, bottom=0.1)
+                          left=0.11, right=0.98, top=1 - 0.1 / height, bottom=0.45 / height)
     top = fig.add_subplot(gs[0])
     low = fig.add_subplot(gs[1], sharex=top)
     _line_panel(top, points, samples, grid, (a, b), half)
@@ -221,8 +226,7 @@ def monte_carlo_figure(mc: dict, value: float, u: float, nu_eff, unit: str) -> R
     density = counts / (counts.sum() * widths) if counts.sum() > 0 else counts
     fig = _figure(3.1)
     ax = fig.add_axes((0.1, 0.33, 0.87, 0.63))
-    ax.bar(edges[:-1], density, width=widths, align="edge", color=BAND, edgecolor=BAND,
-           label="Monte Carlo trials")
+    ax.stairs(density, edges, fill=True, color=BAND, label="Monte Carlo trials")  # one patch, not one per bin
     grid = np.linspace(edges[0], edges[-1], 400)
     if nu_eff is None or not math.isfinite(nu_eff) or nu_eff > 1e6:
         curve, label = stats.norm.pdf(grid, value, u), "GUM: normal, y and u(y)"
@@ -251,8 +255,8 @@ def window_figure(standards: list[float], samples: list[float], low: float, high
     readings = [a for a in list(standards) + list(samples) if a is not None and a > 0]
     a_max = max([2.0] + [a * 1.1 for a in readings])
     curve = error_curve(0.02, a_max, 300)
-    fig = _figure(2.7)
-    ax = fig.add_axes((0.1, 0.18, 0.87, 0.66))
+    fig = _figure(2.3)
+    ax = fig.add_axes((0.1, 0.2, 0.87, 0.62))
     ax.axvspan(low, high, color="#e9efe6", label=f"recommended window {low:g} to {high:g}")
     ax.plot(curve.absorbance, curve.relative_error_factor, color=LINE, linewidth=1.3,
             label="relative error per unit transmittance noise")
@@ -273,5 +277,113 @@ def window_figure(standards: list[float], samples: list[float], low: float, high
     ax.set_xlabel("absorbance", fontsize=9)
     ax.set_ylabel("error factor", fontsize=9)
     fig.legend(fontsize=7, frameon=False, loc="upper center", ncol=3)
+    _tidy(ax)
+    return _raster(fig)
+
+
+STEP_COLOURS = ("#2f5d7c", "#c98a2b", "#7d8a95", "#5f9e6e", "#a02c2c", "#8c6bb1", "#c7d6e2", "#e3b873",
+                "#3d3d3d", "#9ecae1")
+
+
+def step_shares_chart(bars: list[tuple[str, list[tuple[str, float]]]]) -> Raster:
+    """One stacked bar per result: its variance shared out by step, the steps in one legend."""
+    steps: list[str] = []
+    for _, groups in bars:
+        for step, _share in sorted(groups, key=lambda g: -g[1]):
+            if step not in steps:
+                steps.append(step)
+    legend_rows = math.ceil(len(steps) / 4)
+    legend_in = 0.16 * legend_rows + 0.5  # the legend under the x-axis label
+    height = 0.12 + 0.19 * len(bars) + legend_in
+    fig = _figure(height)
+    ax = fig.add_axes((0.2, legend_in / height, 0.77, 1 - (legend_in + 0.12) / height))
+    positions = np.arange(len(bars))[::-1]
+    left = np.zeros(len(bars))
+    for i, step in enumerate(steps):
+        values = np.array([100.0 * dict(groups).get(step, 0.0) for _, groups in bars])
+        ax.barh(positions, values, left=left, height=0.66, color=STEP_COLOURS[i % len(STEP_COLOURS)],
+                label=_short(step, 38), edgecolor="white", linewidth=0.4)
+        for pos, v, start in zip(positions, values, left, strict=True):
+            if v >= 8:  # a label where the segment is wide enough to hold it
+                ax.text(start + v / 2, pos, f"{v:.0f}", ha="center", va="center", fontsize=6.5,
+                        color="white" if i % len(STEP_COLOURS) in (0, 3, 4, 5, 8) else POINT)
+        left += values
+    ax.set_yticks(positions)
+    ax.set_yticklabels([_short(label, 30) for label, _ in bars], fontsize=7.5)
+    ax.set_xlim(0, 100)
+    ax.set_xlabel("share of the combined variance / %", fontsize=8)
+    _tidy(ax)
+    ax.grid(False, axis="y")
+    fig.legend(fontsize=7, frameon=False, loc="lower center", ncol=4, bbox_to_anchor=(0.5, 0.0))
+    return _raster(fig)
+
+
+def _mc_panel(ax, mc: dict, value: float, u: float, nu_eff) -> None:
+    """One small histogram of the trials with the GUM curve and the three intervals."""
+    hist = mc["histogram"]
+    edges = np.asarray(hist["edges"], dtype=float)
+    counts = np.asarray(hist["counts"], dtype=float)
+    widths = np.diff(edges)
+    density = counts / (counts.sum() * widths) if counts.sum() > 0 else counts
+    ax.stairs(density, edges, fill=True, color=BAND)  # one patch, not one per bin
+    grid = np.linspace(edges[0], edges[-1], 200)
+    if nu_eff is None or not math.isfinite(nu_eff) or nu_eff > 1e6:
+        curve = stats.norm.pdf(grid, value, u)
+    else:
+        curve = stats.t.pdf((grid - value) / u, nu_eff) / u
+    ax.plot(grid, curve, color=LINE, linewidth=1.1)
+    for key, colour, style in (("interval", WARM, "-"), ("shortest_interval", BAD, "--"),
+                               ("gum_interval", LINE, ":")):
+        ends = mc.get(key)
+        if ends and all(e is not None for e in ends):
+            for end in ends:
+                ax.axvline(end, color=colour, linestyle=style, linewidth=1.0)
+    ax.set_yticks([])
+    ax.tick_params(labelsize=6.5)
+    ax.xaxis.set_major_locator(matplotlib.ticker.MaxNLocator(4))
+    for side in ("top", "right", "left"):
+        ax.spines[side].set_visible(False)
+
+
+def monte_carlo_grid_figure(panels: list[tuple[str, dict, float, float, object]], unit: str) -> Raster:
+    """Small multiples: one panel per result (title, Monte Carlo block, y, u(y), nu_eff), drawn
+    once as one figure, with one legend for all."""
+    columns = 3 if len(panels) > 4 else 2
+    rows = math.ceil(len(panels) / columns)
+    height = 0.55 + 1.1 * rows
+    fig = _figure(height)
+    gs = fig.add_gridspec(rows, columns, hspace=0.75, wspace=0.12, left=0.03, right=0.98,
+                          top=1 - 0.22 / height, bottom=0.6 / height)
+    for i, (title, mc, value, u, nu) in enumerate(panels):
+        ax = fig.add_subplot(gs[i // columns, i % columns])
+        _mc_panel(ax, mc, value, u, nu)
+        ax.set_title(_short(title, 34), fontsize=7.5, loc="left")
+    handles = [matplotlib.patches.Patch(color=BAND, label="Monte Carlo trials"),
+               matplotlib.lines.Line2D([], [], color=LINE, linewidth=1.1, label="GUM distribution of y"),
+               matplotlib.lines.Line2D([], [], color=WARM, label="MC, probabilistically symmetric"),
+               matplotlib.lines.Line2D([], [], color=BAD, linestyle="--", label="MC, shortest"),
+               matplotlib.lines.Line2D([], [], color=LINE, linestyle=":", label="GUM, y ± U")]
+    fig.legend(handles=handles, fontsize=7, frameon=False, loc="lower center", ncol=5)
+    fig.text(0.5, 0.33 / height, f"result / {unit}" if unit else "result", ha="center", fontsize=7.5)
+    return _raster(fig)
+
+
+def routine_uncertainty_figure(by_concentration: list[dict], unit: str) -> Raster:
+    """Top-down U against concentration (a curve) with each result's bottom-up U (points)."""
+    fig = _figure(2.2)
+    ax = fig.add_axes((0.1, 0.2, 0.87, 0.62))
+    cs = [e["concentration"] for e in by_concentration]
+    ax.plot(cs, [e["expanded_uncertainty"] for e in by_concentration], color=LINE, linewidth=1.3,
+            marker="o", markersize=3, label="top-down U (validation data)")
+    bottom = [(e["concentration"], e["bottom_up_expanded_uncertainty"]) for e in by_concentration
+              if e.get("bottom_up_expanded_uncertainty") is not None]
+    if bottom:
+        ax.plot(*zip(*bottom, strict=True), linestyle="none", marker="s", markersize=5, color=WARM,
+                label="bottom-up U of each result (within-run budget)")
+    ax.set_xlabel(f"concentration ({unit})", fontsize=9)
+    ax.set_ylabel(f"U ({unit})", fontsize=9)
+    ax.set_xlim(left=0)
+    ax.set_ylim(bottom=0)
+    fig.legend(fontsize=7, frameon=False, loc="upper center", ncol=2)
     _tidy(ax)
     return _raster(fig)

@@ -25,7 +25,9 @@ from reportlab.platypus import CondPageBreak, KeepTogether, PageBreak, Paragraph
 from validate.report import (
     sections,
     sections_advice,
+    sections_annex,
     sections_equilibrium,
+    sections_inputs,
     sections_record,
     sections_routine,
     sections_study,
@@ -55,27 +57,28 @@ def _by_kind(general, for_study):
 # (title, builder, starts a new page). Builders return None when their block is absent.
 SECTIONS = (
     ("Summary", _by_kind(sections.summary, sections_study.summary), False),
-    ("Method and scope", sections.method_scope, True),
-    ("Measurement equation and inputs", sections.equation_inputs, False),
-    ("Equilibrium constant", sections_equilibrium.equilibrium, True),
+    ("Method and scope", sections.method_scope, False),
+    ("Measurement equation and inputs", sections_inputs.equation_inputs, False),
+    ("Equilibrium constant", sections_equilibrium.equilibrium, False),
     ("Calibration", sections.calibration, False),
     ("Linearity", sections_validation.linearity, False),
     ("Limits of detection and quantitation", sections_validation.detection_limits, False),
     ("Working range", sections_validation.working_range, False),
     ("Precision and trueness", sections_validation.precision_trueness, False),
-    ("Uncertainty budget", _by_kind(sections_uncertainty.budget, sections_study.budget), True),
+    ("Uncertainty budget", _by_kind(sections_uncertainty.budget, sections_study.budget), False),
     ("Monte Carlo check", _by_kind(sections_uncertainty.monte_carlo, sections_study.monte_carlo),
      False),
-    ("Method uncertainty for routine use", sections_routine.method_uncertainty, True),
+    ("Method uncertainty for routine use", sections_routine.method_uncertainty, False),
     ("What to improve first", sections_advice.advice, False),
     ("Defaults applied and assumptions", sections_record.defaults_assumptions, False),
     ("Cautions", sections_record.cautions, False),
-    ("Appendix: equipment, registers and record details", sections_record.appendix, False),
+    ("Annex: traceability to the raw data", sections_annex.annex, False),
+    ("Record details: registers, input files, record", sections_record.appendix, False),
     ("Sign-off", sections_record.sign_off, False),
 )
 FIXED = ("Summary", "Method and scope", "Measurement equation and inputs", "Uncertainty budget",
          "Defaults applied and assumptions", "Cautions",
-         "Appendix: equipment, registers and record details", "Sign-off")
+         "Record details: registers, input files, record", "Sign-off")
 
 
 @dataclass(frozen=True)
@@ -105,7 +108,7 @@ def _story(record: dict, content_hash: str | None = None) -> tuple[list, list[st
 
 
 BINDING_STYLES = ("h1", "h2", "lead", "lead_small")
-LONG_TABLE_ROWS = 15
+LONG_TABLE_ROWS = 5
 MIN_SPACE = 45 * mm
 MIN_TABLE_SPACE = 25 * mm
 

@@ -27,11 +27,11 @@ from validate.report.style import (
     BAD,
     FRAME_WIDTH,
     GOOD,
-    cell_text,
     data_table,
     gap,
     heading,
     key_value_table,
+    pairs_table,
     para,
     styles,
     text,
@@ -238,6 +238,21 @@ def criteria_block(record: dict) -> list:
     return out
 
 
+def stages_not_run(record: dict) -> list:
+    """One line naming every stage this run left out and why (the record says which ran:
+    no Monte Carlo settings, no advice block)."""
+    skipped = []
+    if record.get("results") and not record.get("monte_carlo_settings") \
+            and not any(isinstance(r.get("monte_carlo"), dict) for r in record["results"]):
+        skipped.append("Monte Carlo (JCGM 101), because the run asked for the linear engine only (--trials 0): "
+                       "the GUM intervals are not checked by clause 8")
+    if "advice" in record and record.get("advice") is None:
+        skipped.append("the advisor, because it was skipped on request (--no-advice): no ranked changes")
+    if not skipped:
+        return []
+    return [para("<b>Not run in this evaluation:</b> " + text("; ".join(skipped)) + ".", "small", markup=True)]
+
+
 def summary(record: dict) -> list:
     header, rows, widths, numeric = result_rows(record)
     out = [*verdict_block(record), heading("Results", 2),
@@ -245,7 +260,7 @@ def summary(record: dict) -> list:
             para("U = k u(y), k from the t distribution at the effective degrees of freedom ν_eff "
                  "(Welch-Satterthwaite, GUM G.4.1) for coverage probability p; U rounded to two "
                  "significant digits, the value to the same decimal place (GUM 7.2.6).", "note"),
-            *interval_rule_note(record)]
+            *interval_rule_note(record), *stages_not_run(record)]
     for r in record.get("results") or []:
         if r.get("flags"):  # e.g. below the LOQ, extrapolated: the reader must see it here
             out.append(para(f'<font color="#{BAD.hexval()[2:]}"><b>flag</b></font> '
@@ -290,44 +305,10 @@ def method_scope(record: dict) -> list:
     plain = {k: v for k, v in settings.items() if not isinstance(v, dict)}
     out = [key_value_table(facts, (32, 142))]
     if plain:
-        out += [heading("Settings of this evaluation", 2), key_value_table(_flatten(plain), (64, 110))]
+        out += [heading("Settings of this evaluation", 2), pairs_table(_flatten(plain))]
     for key, group in settings.items():
         if isinstance(group, dict) and group:
-            out += [heading(f"Settings: {str(key).replace('_', ' ')}", 2),
-                    key_value_table(_flatten(group), (64, 110))]
-    return out
-
-
-def equation_inputs(record: dict) -> list:
-    method = record.get("method", {})
-    formula = str(method.get("formula", DASH))
-    head = formula.split(",")[0]
-    symbol = head.split("=")[0].strip() if "=" in head else "y"  # "K = ..." names itself
-    out = [para("The result is calculated as", "lead"),
-           para(formula if "=" in head else f"y = {formula}", "formula"),
-           para(f"with {symbol} in {method.get('result_unit') or DASH}. Every input quantity and "
-                "uncertainty source of the model follows, with its provenance. Type A: "
-                "evaluated from replicate readings; Type B: from certificates, tolerances "
-                "and specifications (GUM 4.2, 4.3). ν: degrees of freedom (∞ for Type B).",
-                "small")]
-    s = styles()
-    rows = []
-    for src in record.get("sources") or []:
-        where = " · ".join(v for v in (src.get("step"), src.get("equipment")) if v)
-        name = f"{text(src.get('name', ''))}"
-        if where:
-            name += f'<br/><font size="6.8" color="#5b6670">{text(where)}</font>'
-        value = src.get("value_in_unit", src.get("value"))
-        u = src.get("u_in_unit", src.get("u"))
-        rows.append([Paragraph(name, s["cell"]), num(value, 6), num(u, 3), src.get("unit") or DASH,
-                     src.get("distribution") or DASH, dof(src.get("dof")), src.get("kind") or DASH,
-                     Paragraph(cell_text(src.get("provenance") or DASH, 53), s["cell"])])  # cut when too tall
-    if not rows:
-        out.append(para("The record lists no input quantities.", "body"))
-        return out
-    out.append(data_table(["input", "value", "u(x)", "unit", "distribution", "ν", "type",
-                           "provenance"], rows, [38, 16, 15, 12, 22, 8, 10, 53],
-                          numeric={1, 2, 5}))
+            out += [heading(f"Settings: {str(key).replace('_', ' ')}", 2), pairs_table(_flatten(group))]
     return out
 
 
@@ -372,6 +353,9 @@ def calibration(record: dict) -> list | None:
                         "Regression Analysis, 3rd ed., 1998, section 3.1). Below: residuals, "
                         "reading minus line, with the same band drawn about zero.")]
     samples = cal.get("samples") or []
+    if record.get("traceability"):  # every reading, with its series, is in the annex: said once
+        return out + [para("Every reading of the standards, blanks and samples, with its series: section "
+                           "Annex: traceability to the raw data.", "small")]
     if samples:
         places = reading_decimals(cal)
         rows = []

@@ -8,7 +8,7 @@ or a plain list of changes. Nothing is evaluated here.
 from __future__ import annotations
 
 from validate.report.numbers import DASH, dof, is_number, num, pct
-from validate.report.style import bullets, data_table, heading, para
+from validate.report.style import bullets, data_table, heading, para, unquoted
 
 
 def _figure(value, unit: str) -> str:
@@ -20,15 +20,19 @@ def _figure(value, unit: str) -> str:
     return f"{num(value, 3)} {unit}".strip()
 
 
+def _evaluated(a: dict) -> bool:
+    return is_number(a.get("expanded_uncertainty_after"))
+
+
 def _rows(items: list[dict], unit: str) -> list[list]:
     rows = []
     for rank, a in enumerate(items, 1):
         u = a.get("unit") or unit
-        rows.append([rank, a.get("change", DASH), _figure(a.get("expanded_uncertainty_after"), u),
+        rows.append([rank, unquoted(a.get("change", DASH)), _figure(a.get("expanded_uncertainty_after"), u),
                      pct(a.get("reduction")) if is_number(a.get("reduction")) else DASH,
                      _figure(a["confirmed_by_monte_carlo"], u)
                      if is_number(a.get("confirmed_by_monte_carlo")) else DASH,
-                     a.get("cost") or DASH])
+                     unquoted(a.get("cost") or DASH)])
     return rows
 
 
@@ -71,10 +75,18 @@ def _intro(block: dict, unit: str) -> list:
 
 
 def _changes(items: list[dict], combined, unit: str, units: dict) -> list:
-    """The ranked changes, the best ones together, and their effect on each result."""
+    """The ranked changes, the best ones together, and their effect on each result; suggestions
+    the model cannot evaluate follow in one short list, each with what is expected of it."""
     out: list = []
-    if items:
-        out.append(data_table(TABLE_HEADER, _rows(items, unit), TABLE_WIDTHS, numeric={0, 2, 3, 4}))
+    evaluated = [a for a in items if _evaluated(a)]
+    if evaluated:
+        out.append(data_table(TABLE_HEADER, _rows(evaluated, unit), TABLE_WIDTHS, numeric={0, 2, 3, 4}))
+    others = [a for a in items if not _evaluated(a)]
+    if others:
+        out += [para("Suggested, not evaluated by the model:", "small"),
+                *bullets([f"{a.get('change', DASH)}" + (f" ({a['assumption']})"
+                                                                  if a.get("assumption") else "")
+                          for a in others], "small")]
     if isinstance(combined, dict):
         out += [heading("The best changes together", 2),
                 data_table(["", *TABLE_HEADER[1:]], _rows([combined], unit), TABLE_WIDTHS, numeric={0, 2, 3, 4})]
@@ -88,7 +100,8 @@ def _changes(items: list[dict], combined, unit: str, units: dict) -> list:
 def _notes(block: dict, items: list[dict]) -> list:
     """Assumptions behind the changes, changes without effect or not evaluated, and sources."""
     out: list = []
-    notes = [f"{a['change']}: {a['assumption']}" for a in items if a.get("assumption")]
+    notes = [f"{a['change']}: {a['assumption']}" for a in items
+             if a.get("assumption") and _evaluated(a)]
     if notes:
         out += [heading("Assumptions behind the changes", 2), *bullets(notes, "small")]
     for title, key in (("Changes without effect", "without_effect"),
@@ -100,8 +113,14 @@ def _notes(block: dict, items: list[dict]) -> list:
     return out
 
 
+NOT_RUN = ("Not run in this evaluation: the advisor was skipped on request (validate run --no-advice, or "
+           "advice=False from Python). Run without that option for changes ranked by how much they reduce U.")
+
+
 def advice(record: dict) -> list | None:
     block = _advice_block(record)
+    if block is None and "advice" in record and record["advice"] is None:
+        return [para(NOT_RUN, "body")]
     if block is None:
         return None
     units = {r.get("name"): r.get("unit", "") for r in record.get("results") or []}

@@ -7,6 +7,7 @@ from pathlib import PurePath
 from reportlab.lib.units import mm
 from reportlab.platypus import Paragraph, Table, TableStyle
 
+from validate.report import figures
 from validate.report.numbers import DASH
 from validate.report.style import ACCENT, INK, bullets, data_table, heading, key_value_table, para, styles, text
 
@@ -31,9 +32,10 @@ def defaults_assumptions(record: dict) -> list:
     out = []
     for title, key, empty in (("Defaults applied", "defaults_applied", "No defaults were applied."),
                               ("Assumptions", "assumptions", "No further assumptions."),
-                              ("Notes", "notes", "No notes.")):
+                              ("Notes", "notes", "")):
         lines = [str(x) for x in record.get(key) or []]
-        out += [heading(title, 2), *(bullets(lines) if lines else [para(empty, "body")])]
+        if lines or empty:  # no heading for an empty list of notes
+            out += [heading(title, 2), *(bullets(lines) if lines else [para(empty, "body")])]
     return out
 
 
@@ -85,6 +87,8 @@ def _record_facts(record: dict) -> list:
     seeds = _seeds(record)
     if seeds:
         facts.append(("random seed", seeds))
+    facts.append(("figures", f"drawn at {figures.DPI} dpi of their printed size (sharp on paper; common practice "
+                             "prints line art at 150 to 300 dpi)"))
     return [heading("Record", 2), key_value_table(facts, (40, 134)),
             para("The record id and the input files' SHA-256"
                  + (", with the random seed," if seeds else "") + " let the evaluation be "
@@ -92,7 +96,12 @@ def _record_facts(record: dict) -> list:
 
 
 def appendix(record: dict) -> list:
-    return _equipment(record) + _registers(record) + _input_files(record) + _record_facts(record)
+    """Registers, input files and the record's facts; the equipment is in the traceability annex
+    (a record without that block, from an older layout, shows it here)."""
+    equipment = [] if record.get("traceability") else _equipment(record)
+    listed = {str(i.get("path")) for i in record.get("inputs") or []}
+    registers = [] if set(map(str, record.get("registers") or [])) <= listed else _registers(record)
+    return equipment + registers + _input_files(record) + _record_facts(record)
 
 
 def sign_off(record: dict) -> list:
@@ -102,7 +111,7 @@ def sign_off(record: dict) -> list:
                      for role in ("Prepared by", "Reviewed by", "Approved by")]
     # blank columns 2 and 4 keep the three writing lines apart
     table = Table(rows, colWidths=[30 * mm, 52 * mm, 6 * mm, 52 * mm, 6 * mm, 28 * mm],
-                  rowHeights=[7 * mm] + [16 * mm] * 3, hAlign="LEFT")
+                  rowHeights=[7 * mm] + [13 * mm] * 3, hAlign="LEFT")
     table.setStyle(TableStyle([
         ("LINEBELOW", (0, 0), (-1, 0), 0.8, ACCENT),
         *[("LINEBELOW", (col, 1), (col, -1), 0.6, INK) for col in (1, 3, 5)],

@@ -5,9 +5,6 @@ Built from the record's `method_uncertainty` block alone; None when the record h
 
 from __future__ import annotations
 
-from matplotlib.backends.backend_agg import FigureCanvasAgg
-from matplotlib.figure import Figure
-
 from validate.report import figures
 from validate.report.numbers import DASH, gum_pair, num, p_equals
 from validate.report.sections import coloured, figure_block
@@ -15,25 +12,8 @@ from validate.report.style import bullets, data_table, heading, key_value_table,
 
 
 def u_figure(by_concentration: list[dict], unit: str) -> figures.Raster:
-    """Top-down U against concentration (a curve) with each result's bottom-up U (points)."""
-    fig = Figure(figsize=(figures.WIDTH_IN, 2.6), dpi=figures.DPI)
-    FigureCanvasAgg(fig)
-    ax = fig.add_axes((0.1, 0.18, 0.87, 0.66))
-    cs = [e["concentration"] for e in by_concentration]
-    ax.plot(cs, [e["expanded_uncertainty"] for e in by_concentration], color=figures.LINE, linewidth=1.3,
-            marker="o", markersize=3, label="top-down U (validation data)")
-    bottom = [(e["concentration"], e["bottom_up_expanded_uncertainty"]) for e in by_concentration
-              if e.get("bottom_up_expanded_uncertainty") is not None]
-    if bottom:
-        ax.plot(*zip(*bottom, strict=True), linestyle="none", marker="s", markersize=5, color=figures.WARM,
-                label="bottom-up U of each result (within-run budget)")
-    ax.set_xlabel(f"concentration ({unit})", fontsize=9)
-    ax.set_ylabel(f"U ({unit})", fontsize=9)
-    ax.set_xlim(left=0)
-    ax.set_ylim(bottom=0)
-    fig.legend(fontsize=7, frameon=False, loc="upper center", ncol=2)
-    figures._tidy(ax)
-    return figures._raster(fig)
+    """Top-down U against concentration with each result's bottom-up U (figures.py draws it)."""
+    return figures.routine_uncertainty_figure(by_concentration, unit)
 
 
 def _summary_rows(m: dict) -> list:

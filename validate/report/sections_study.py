@@ -14,10 +14,12 @@ from reportlab.lib.units import mm
 from reportlab.platypus import CondPageBreak, Table, TableStyle
 
 from validate.report.numbers import DASH, dof, is_number, num, p_equals, pct
-from validate.report.sections import coloured, criteria_block, result_rows, rounded, u_decimals
+from validate.report.sections import coloured, criteria_block, result_rows, rounded, stages_not_run, u_decimals
 from validate.report.sections_equilibrium import k_unit, point_interval, point_result, result_by_key
 from validate.report.sections_uncertainty import (
     BUDGET_LEAD,
+    NOT_RUN,
+    SHOWN_RULE,
     budget_for_result,
     interval_text,
     mc_decimals,
@@ -105,7 +107,8 @@ def summary(record: dict) -> list:
                 f"{unit}. U: expanded uncertainty, U = k u(y), with coverage factor k from the t "
                 "distribution at the effective degrees of freedom ν_eff (Welch-Satterthwaite, "
                 "GUM G.4.1) and coverage probability p. U is rounded to two significant digits "
-                "and the value to the same decimal place (GUM 7.2.6).", "note"), *interval_rule_note(record)]
+                "and the value to the same decimal place (GUM 7.2.6).", "note"), *interval_rule_note(record),
+           *stages_not_run(record)]
     out += _consistency_line(eq, len(points))
     for r in headline + [r for _, r in points]:
         if r.get("flags"):
@@ -184,8 +187,7 @@ def _points_table(record: dict, points: list[tuple[dict, dict]]) -> list:
 
 def budget(record: dict) -> list:
     combined, log10k, points = _parts(record)
-    out = [para(BUDGET_LEAD + " Shown in full for the combined K; the points follow in one "
-                "table.", "lead")]
+    out = [para(BUDGET_LEAD + SHOWN_RULE + " Shown for the combined K; the points follow in one table.", "lead")]
     return (out + budget_for_result(record, combined) + _log10_budget(record, combined, log10k)
             + _points_table(record, points))
 
@@ -229,7 +231,7 @@ def monte_carlo(record: dict) -> list | None:
     combined, log10k, points = _parts(record)
     if not any(isinstance(r.get("monte_carlo"), dict) for r in [combined, log10k or {}]
                + [r for _, r in points]):
-        return None
+        return [para(NOT_RUN, "body")]
     out = monte_carlo_intro(record)
     if isinstance(combined.get("monte_carlo"), dict):
         out += monte_carlo_for_result(combined)

@@ -8,9 +8,10 @@ from reportlab.platypus import CondPageBreak, Table, TableStyle
 from validate.report import figures
 from validate.report.numbers import DASH, dof, interval, is_number, num, pct, tolerance_decimals
 from validate.report.sections import coloured, figure_block, rounded, u_decimals
-from validate.report.style import data_table, heading, key_value_table, para
+from validate.report.style import data_table, heading, key_value_table, para, text
 
-MIN_SHARE_SHOWN = 1e-4  # budget rows below 0.01 % are summed in one line (all are in budget.csv)
+MIN_SHARE_SHOWN = 0.02  # budget rows below 2 % of a result's variance are summed in one line
+# (leaving out one such source changes u(y) by less than 1 %, sqrt(0.98) = 0.99; budget.csv has them all)
 
 
 def _budget_rows(record: dict, result_name: str) -> list[dict]:
@@ -31,39 +32,45 @@ def _group_table(title: str, groups: list[dict], unit: str) -> Table:
     return data_table([title, f"u / {unit}", "share"], rows, [43, 20, 20], numeric={1, 2})
 
 
-def _source_row(rank: int, r: dict, unit: str) -> list:
+def _source_row(rank: int, r: dict, unit: str, with_step: bool = True) -> list:
     src_unit = r.get("unit") or ""
-    return [rank, r.get("source", DASH), r.get("step") or DASH, r.get("equipment") or DASH,
+    step = [r.get("step") or DASH] if with_step else []
+    return [rank, r.get("source", DASH), *step, r.get("equipment") or DASH,
             f"{num(r.get('standard_uncertainty'), 3)} {src_unit}".strip(),
             f"{num(r.get('sensitivity'), 4)} {_per(unit, src_unit)}",
             num(r.get("contribution"), 3), pct(r.get("share"))]
 
 
-def _result_lead(result: dict) -> list:
+def _result_lead(result: dict, full: bool = True) -> list:
     unit = result.get("unit", "")
     value, big_u = rounded(result.get("value"), result.get("expanded_uncertainty"))
-    return [CondPageBreak(90 * mm), heading(result["name"], 2),
-            para(f"y = {value} {unit}, u(y) = {num(result.get('standard_uncertainty'), 3)} {unit}, "
-                 f"U = {big_u} {unit} (k = {num(result.get('coverage_factor'), 3)}, "
-                 f"p = {pct(result.get('coverage_probability'), 0)}, ν_eff = "
-                 f"{dof(result.get('effective_dof'))}).", "lead")]
+    numbers = (f"y = {value} {unit}, u(y) = {num(result.get('standard_uncertainty'), 3)} {unit}, "
+               f"U = {big_u} {unit} (k = {num(result.get('coverage_factor'), 3)}, "
+               f"p = {pct(result.get('coverage_probability'), 0)}, ν_eff = {dof(result.get('effective_dof'))}).")
+    if full:
+        return [CondPageBreak(90 * mm), heading(result["name"], 2), para(numbers, "lead")]
+    # many results: the name and its numbers on one line (c_i u(x_i) in the result's unit)
+    return [CondPageBreak(40 * mm), para(f"<b>{text(result['name'])}</b>: {text(numbers)} c_i u(x_i) in {text(unit)}.",
+                                         "lead", markup=True)]
 
 
-def _source_table(rows: list[dict], unit: str) -> list:
-    """Sources at or above MIN_SHARE_SHOWN, ranked; one line for the rest."""
+def _source_table(rows: list[dict], unit: str, with_step: bool = True) -> list:
+    """Sources at or above MIN_SHARE_SHOWN, ranked; one line for the rest (all in budget.csv).
+    Without `with_step` (many results: the steps are in one figure) a row fits one line."""
     shown = [r for r in rows if (r.get("share") or 0.0) >= MIN_SHARE_SHOWN]
     hidden = rows[len(shown):] if len(shown) < len(rows) else []
     out: list = []
     if shown:
-        out.append(data_table(["#", "source", "step", "equipment", "u(x_i)", "sensitivity c_i",
-                               f"c_i u(x_i) / {unit}", "share"],
-                              [_source_row(rank, r, unit) for rank, r in enumerate(shown, 1)],
-                              [7, 40, 24, 21, 20, 26, 20, 16], numeric={0, 4, 5, 6, 7}))
+        header = ["#", "source", *(["step"] if with_step else []), "equipment", "u(x_i)", "sensitivity c_i",
+                  f"c_i u(x_i) / {unit}" if with_step else "c_i u(x_i)", "share"]
+        widths = [7, 40, 24, 21, 20, 26, 20, 16] if with_step else [7, 58, 20, 20, 32, 22, 15]
+        last = len(header) - 1
+        out.append(data_table(header, [_source_row(rank, r, unit, with_step) for rank, r in enumerate(shown, 1)],
+                              widths, numeric={0, last - 3, last - 2, last - 1, last}))
     if hidden:
         total = sum(r.get("share") or 0.0 for r in hidden)
-        out.append(para(f"{len(hidden)} further sources each below {pct(MIN_SHARE_SHOWN, 2)} of "
-                        f"the variance (together {pct(total, 3)}) are listed in budget.csv.",
-                        "small"))
+        out.append(para(f"{len(hidden)} further sources, each below {pct(MIN_SHARE_SHOWN, 0)} of the "
+                        f"variance, together {pct(total, 2)}: listed in budget.csv.", "small"))
     return out
 
 
@@ -94,7 +101,12 @@ def _quantity_table(result: dict, unit: str) -> list:
     quantities = result.get("budget_by_quantity") or []
     if not quantities:
         return []
-    rows = [[g.get("group", DASH), num(g.get("contribution"), 3), pct(g.get("share"))] for g in quantities]
+    shown = [g for g in quantities if (g.get("share") or 0.0) >= MIN_SHARE_SHOWN]
+    rest = quantities[len(shown):] if len(shown) < len(quantities) else []
+    rows = [[g.get("group", DASH), num(g.get("contribution"), 3), pct(g.get("share"))] for g in shown]
+    if rest:
+        rows.append([f"{len(rest)} further quantities, each below {pct(MIN_SHARE_SHOWN, 0)} (results.json)", DASH,
+                     pct(sum(g.get("share") or 0.0 for g in rest), 2)])
     return [data_table(["input quantity", f"u / {unit}", "share"], rows, [110, 30, 30], numeric={1, 2}),
             para("By input quantity of the measurement equation: each quantity's terms (a volume's "
                  "calibration, repeatability and temperature) combined first, as EURACHEM/CITAC CG4 "
@@ -102,11 +114,15 @@ def _quantity_table(result: dict, unit: str) -> list:
                  "item's calibration used twice) stands as a quantity of its own.", "note")]
 
 
-def budget_for_result(record: dict, result: dict) -> list:
+def budget_for_result(record: dict, result: dict, full: bool = True) -> list:
+    """A result's budget: its sources above MIN_SHARE_SHOWN; with `full` (a report with one
+    result that matters) also its share chart and its tables by quantity, step and item."""
     unit = result.get("unit", "")
     rows = _budget_rows(record, result["name"])
-    return (_result_lead(result) + _source_table(rows, unit) + _share_figure(rows, result)
-            + _quantity_table(result, unit) + _group_tables(result, unit))
+    out = _result_lead(result, full) + _source_table(rows, unit, with_step=full)
+    if full:
+        out += _share_figure(rows, result) + _quantity_table(result, unit) + _group_tables(result, unit)
+    return out
 
 
 BUDGET_LEAD = ("Each source's standard uncertainty u(x_i), its sensitivity coefficient "
@@ -116,14 +132,42 @@ BUDGET_LEAD = ("Each source's standard uncertainty u(x_i), its sensitivity coeff
                "is part of the budget.")
 
 
+BARS_PER_FIGURE = 25  # results per step-share chart, so a chart never outgrows a page
+PANELS_PER_FIGURE = 12  # Monte Carlo panels per figure (four rows of three)
+
+
+def chunks(items: list, size: int) -> list[list]:
+    """`items` in consecutive parts of at most `size`."""
+    return [items[i:i + size] for i in range(0, len(items), size)]
+
+
+def step_shares_figure(results: list[dict]) -> list:
+    """One chart for every result: its variance shared out by step (drawn once, not per result)."""
+    bars = [(r.get("sample") or r.get("name", ""),
+             [(g.get("group", ""), g.get("share") or 0.0) for g in r.get("budget_by_step") or []])
+            for r in results]
+    if not any(steps for _, steps in bars):
+        return []
+    caption = ("Figure: each result's combined variance u²(y) shared out by step of the procedure (the steps "
+               "add up to 100 %). The shares by step, by equipment item and by input quantity are in "
+               "results.json; every source of every result is in budget.csv.")
+    return [figure_block(figures.step_shares_chart(part), caption) for part in chunks(bars, BARS_PER_FIGURE)]
+
+
+SHOWN_RULE = (f" For each result the sources with at least {pct(MIN_SHARE_SHOWN, 0)} of its variance are listed; "
+              "the rest are summed in one line and listed in budget.csv.")
+
+
 def budget(record: dict) -> list:
     results = record.get("results") or []
-    out = [para(BUDGET_LEAD, "lead")]
+    many = len(results) > 1
+    # with many results the lead stands alone (a 'body' paragraph), so the first table may start under it
+    out = [para(BUDGET_LEAD + SHOWN_RULE, "body" if many else "lead")]
     if not results:
         out.append(para("The record holds no result.", "body"))
     for result in results:
-        out += budget_for_result(record, result)
-    return out
+        out += budget_for_result(record, result, full=not many)
+    return out + (step_shares_figure(results) if many else [])  # after the tables: they split, a figure does not
 
 
 # --------------------------------------------------------------------------
@@ -245,11 +289,82 @@ def monte_carlo_intro(record: dict) -> list:
     return out
 
 
+CHECK_WORDS = {"agrees": ("validated", True), "differs": ("not validated", False),
+               "undecided": ("undecided", None)}
+
+
+def _compact_row(result: dict) -> list:
+    mc = result["monte_carlo"]
+    d = mc_decimals(mc, result)
+    word, good = CHECK_WORDS.get(str(mc.get("gum_check")), ("not evaluated", None))
+    mean = f"{mc['mean']:.{d}f}" if is_number(mc.get("mean")) else DASH
+    return [result.get("sample") or result.get("name", DASH), f"{mean}, {num(mc.get('standard_uncertainty'), 2)}",
+            interval(mc.get("interval"), d), interval(mc.get("gum_interval"), d),
+            f"{num(mc.get('d_low'), 2)}, {num(mc.get('d_high'), 2)}; {num(mc.get('tolerance'), 1)}",
+            coloured(word, good)]
+
+
+def _largest_share_gap(results: list[dict]) -> list:
+    """The largest difference between a Monte Carlo share and the GUM share of the same group."""
+    worst: tuple[float, str, str] | None = None
+    for r in results:
+        mc = r["monte_carlo"]
+        for key, gum_key in (("shares_by_step", "budget_by_step"), ("shares_by_equipment", "budget_by_equipment")):
+            gum = {g.get("group"): g.get("share") for g in r.get(gum_key) or []}
+            for g in mc.get(key) or []:
+                a, b = gum.get(g.get("group")), g.get("share")
+                if is_number(a) and is_number(b) and (worst is None or abs(a - b) > worst[0]):
+                    worst = (abs(a - b), r.get("sample") or r.get("name", ""), str(g.get("group")))
+    if worst is None:
+        return []
+    return [para(f"Shares of the variance by step and by item from the Monte Carlo trials agree with the GUM "
+                 f"shares within {num(100 * worst[0], 2)} percentage points (largest: {worst[2]}, {worst[1]}); "
+                 "both are in results.json.", "small")]
+
+
+def _notes_of(results: list[dict]) -> list:
+    lines = []
+    for r in results:
+        for label, value in _mc_notes(r["monte_carlo"]):
+            shown = value.getPlainText() if hasattr(value, "getPlainText") else str(value)
+            lines.append(f"{r.get('sample') or r.get('name')}: {label}: {shown}")
+    return [para(line, "small") for line in lines]
+
+
+def monte_carlo_compact(results: list[dict]) -> list:
+    """Many results: one table and one figure of small multiples instead of a block per result."""
+    unit = results[0].get("unit", "")
+    p = pct(results[0].get("coverage_probability"), 0)
+    table = data_table(["result", f"mean, u / {unit}", f"Monte Carlo {p} interval / {unit}", f"GUM y ± U / {unit}",
+                        f"d_low, d_high; δ / {unit}", "GUM interval (clause 8)"],
+                       [_compact_row(r) for r in results], [28, 26, 34, 34, 30, 22], numeric={1, 2, 3, 4})
+    out = [table, para("Intervals to the decimal place of the numerical tolerance δ; Monte Carlo: the "
+                       "probabilistically symmetric interval (the shortest is drawn in the figure and kept in "
+                       "results.json); d_low and d_high: differences of the ends of the GUM and the Monte Carlo "
+                       "interval (JCGM 101 8.2).", "note")]
+    panels = [(r.get("sample") or r.get("name", ""), r["monte_carlo"], r["value"], r["standard_uncertainty"],
+               r.get("effective_dof")) for r in results
+              if (r["monte_carlo"].get("histogram") or {}).get("edges") and is_number(r.get("value"))
+              and is_number(r.get("standard_uncertainty"))]
+    for part in chunks(panels, PANELS_PER_FIGURE):
+        out.append(figure_block(figures.monte_carlo_grid_figure(part, unit),
+                                "Figure: the Monte Carlo trials of each result against the distribution the GUM "
+                                "assigns to it; vertical lines mark the coverage intervals."))
+    return out + _largest_share_gap(results) + _notes_of(results)
+
+
+NOT_RUN = ("Not run in this evaluation: the run asked for the linear engine only (validate run --trials 0, "
+           "or trials=0 from Python). The GUM intervals are therefore not checked against Monte Carlo "
+           "(JCGM 101 clause 8) and are reported as y ± U unchecked; run with trials to check them.")
+
+
 def monte_carlo(record: dict) -> list | None:
     results = [r for r in record.get("results") or [] if isinstance(r.get("monte_carlo"), dict)]
     if not results:
-        return None
+        return [para(NOT_RUN, "body")] if record.get("results") else None
     out = monte_carlo_intro(record)
+    if len(results) > 1:
+        return out + monte_carlo_compact(results)
     for result in results:
         out += monte_carlo_for_result(result)
     return out

@@ -25,8 +25,8 @@ from reportlab.platypus import Paragraph, Spacer, Table, TableStyle
 
 PAGE_SIZE = A4
 MARGIN_X = 18 * mm
-MARGIN_TOP = 22 * mm
-MARGIN_BOTTOM = 20 * mm
+MARGIN_TOP = 19 * mm
+MARGIN_BOTTOM = 18 * mm
 FRAME_WIDTH = PAGE_SIZE[0] - 2 * MARGIN_X
 
 INK = colors.HexColor("#1f2a33")
@@ -97,6 +97,11 @@ CODE = re.compile(r"`([^`\n]+)`")  # `repeatability`: a key as the text names it
 def _code_spans(escaped: str) -> str:
     """Backticked names in the monospaced font, the backticks themselves not printed."""
     return CODE.sub(lambda m: f'<font name="{FONT_MONO}">{m.group(1)}</font>', escaped)
+
+
+def unquoted(value) -> str:
+    """A message as printed in a plain cell: a pair of backticks around a name is dropped."""
+    return CODE.sub(r"\1", str(value))
 
 
 def text(value) -> str:
@@ -171,8 +176,8 @@ def data_table(header: list[str], rows: list[list], widths_mm: Sequence[float],
         ("LINEBELOW", (0, 0), (-1, 0), 0.8, ACCENT),
         ("LINEBELOW", (0, -1), (-1, -1), 0.6, RULE),
         ("VALIGN", (0, 0), (-1, -1), "TOP"),
-        ("TOPPADDING", (0, 0), (-1, -1), 2.2),
-        ("BOTTOMPADDING", (0, 0), (-1, -1), 2.2),
+        ("TOPPADDING", (0, 0), (-1, -1), 1.5),
+        ("BOTTOMPADDING", (0, 0), (-1, -1), 1.6),
         ("LEFTPADDING", (0, 0), (-1, -1), 3),
         ("RIGHTPADDING", (0, 0), (-1, -1), 3),
     ]
@@ -191,8 +196,25 @@ def key_value_table(pairs: Sequence[tuple[str, object]], widths_mm=(52, 122)) ->
     table.setStyle(TableStyle([
         ("VALIGN", (0, 0), (-1, -1), "TOP"),
         ("LINEBELOW", (0, 0), (-1, -1), 0.3, RULE),
-        ("TOPPADDING", (0, 0), (-1, -1), 2.2),
-        ("BOTTOMPADDING", (0, 0), (-1, -1), 2.2),
+        ("TOPPADDING", (0, 0), (-1, -1), 1.5),
+        ("BOTTOMPADDING", (0, 0), (-1, -1), 1.6),
+        ("LEFTPADDING", (0, 0), (-1, -1), 3),
+    ]))
+    return table
+
+
+def pairs_table(pairs: Sequence[tuple[str, object]], widths_mm=(46, 41, 46, 41)) -> Table:
+    """Short facts two to a row (label, value, label, value): settings and the like."""
+    s = styles()
+    cells = [[Paragraph(text(k), s["cell_head"]), Paragraph(cell_text(v, widths_mm[1]), s["cell"])]
+             for k, v in pairs]
+    rows = [cells[i] + (cells[i + 1] if i + 1 < len(cells) else ["", ""]) for i in range(0, len(cells), 2)]
+    table = Table(rows or [["", "", "", ""]], colWidths=[w * mm for w in widths_mm], hAlign="LEFT")
+    table.setStyle(TableStyle([
+        ("VALIGN", (0, 0), (-1, -1), "TOP"),
+        ("LINEBELOW", (0, 0), (-1, -1), 0.3, RULE),
+        ("TOPPADDING", (0, 0), (-1, -1), 1.5),
+        ("BOTTOMPADDING", (0, 0), (-1, -1), 1.6),
         ("LEFTPADDING", (0, 0), (-1, -1), 3),
     ]))
     return table
