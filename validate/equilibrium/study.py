@@ -17,7 +17,7 @@ from validate.inputs.schema import EquilibriumStudy
 from validate.model.build import build
 from validate.model.equilibrium import COMBINED, LOG10, EquilibriumModel, impossible_reason
 from validate.model.errors import ModelError
-from validate.model.standards import fit_joint, iterate_standards
+from validate.model.standards import fit_joint, iterate_standards, normalised
 from validate.propagation.linear import covariance
 
 # A point constrains K best when the complex holds between about 20 % and 80 % of the
@@ -25,11 +25,20 @@ from validate.propagation.linear import covariance
 SATURATION_WINDOW = (0.2, 0.8)
 
 
+# The GLS weights depend on the covariance of the points' K, which depends (weakly) on the
+# weights the standards are corrected with: repeat until they agree (a fixed point).
+WEIGHT_PASSES = 6
+WEIGHT_TOLERANCE = 1e-12
+
+
 def prepare_combination(model: EquilibriumModel):
     """Covariance of the per-point K (linear engine) and the GLS combination of the points whose
-    K is physically possible; sets model.excluded and model.weights (0 for a point left out).
-    ModelError (exit 3) when no point is left."""
-    model.weights = None
+    K is physically possible; sets model.excluded, model.weights (0 for a point left out) and
+    model.start_K. The standards are corrected with the combination's own weights, so the K
+    they are corrected with is the reported combined K (issue: a correction with the plain mean
+    while the GLS mean is reported is consistent with neither). ModelError (exit 3) when no
+    point is left."""
+    model.weights, model.start_K = None, None
     model.excluded = impossible_points(model)
     kept = [i for i, p in enumerate(model.points) if p not in model.excluded]
     if not kept:
@@ -38,19 +47,34 @@ def prepare_combination(model: EquilibriumModel):
                          "  what to do: check the readings and the totals of the mixtures; a point needs a "
                          "reading above the blank and below full complexation")
     variables = {n: ufloat(s.value, s.u, tag=n) for n, s in model.sources.items()}
+    for _ in range(WEIGHT_PASSES):
+        used = normalised(model.combination_weights(), len(model.points))
+        combined, values, cov = _combination_pass(model, variables, kept)
+        model.weights = _full_weights(combined, kept, len(values))
+        if max(abs(a - b) for a, b in zip(used, model.weights, strict=True)) <= WEIGHT_TOLERANCE:
+            break
+    x0 = model.nominal_inputs()
+    start = model.correction_K(x0)
+    model.start_K = None if start is None else float(start)
+    return combined, values, cov
+
+
+def _combination_pass(model: EquilibriumModel, variables: dict, kept: list[int]):
     outputs = model.evaluate(variables)
     ks = [outputs[f"K, {p}"] for p in model.points]
     cov = covariance(ks)  # summed in source-name order: the same bits in every run
     values = [k.nominal_value for k in ks]
     kept_values = [values[i] for i in kept]
     kept_cov = [[cov[i][j] for j in kept] for i in kept]
-    combined = combine_correlated(kept_values, kept_cov) if len(kept) > 1 else None
+    return (combine_correlated(kept_values, kept_cov) if len(kept) > 1 else None), values, cov
+
+
+def _full_weights(combined, kept: list[int], n: int) -> list[float]:
     kept_weights = list(combined.weights) if combined else [1.0]
-    weights = [0.0] * len(values)
+    weights = [0.0] * n
     for i, w in zip(kept, kept_weights, strict=True):
         weights[i] = float(w)
-    model.weights = weights
-    return combined, values, cov
+    return weights
 
 
 def impossible_points(model: EquilibriumModel) -> dict[str, str]:
@@ -170,16 +194,21 @@ def _conditions(study: EquilibriumStudy) -> dict:
             "note": "K is conditional on the temperature and ionic strength recorded"}
 
 
-def _bias_part(study: EquilibriumStudy, columns, limiting: str) -> dict:
-    """The bias of taking the standards as fully complexed, from the correction by iteration."""
+def _bias_part(model: EquilibriumModel, columns, limiting: str, reported_K: float) -> dict:
+    """The bias of taking the standards as fully complexed, against the reported K: the
+    shortcut's K is the combination, with the reported K's weights, of the points' K read off
+    the line of the standards taken as fully complexed."""
+    study = model.study
     sm, sl, sa, reps, pm, pl, pa = columns
     corr = iterate_standards(sm, sl, sa, pm, pl, pa, limiting=limiting, iterations=max(study.iterations, 1),
-                             standard_weights=reps)
+                             standard_weights=reps, mixture_weights=model.combination_weights())
+    naive_K = _float(corr.naive_K) / study.k_unit.factor
     return {
-        "slope": _float(corr.slope_bias), "K": _float(corr.K_bias),
-        "naive_K": _float(corr.naive_K) / study.k_unit.factor,
+        "slope": _float(corr.slope_bias), "K": naive_K / reported_K - 1.0,
+        "naive_K": naive_K, "reported_K": reported_K,
         "fraction_complexed_in_standards": [_float(f) for f in corr.fraction_standards],
-        "meaning": "relative bias (naive / corrected - 1) if the standards were taken as fully complexed",
+        "meaning": "relative bias (naive / reported - 1) if the standards were taken as fully complexed: the "
+                   "naive K combines the points' K read off the uncorrected line with the reported K's weights",
         "iteration_converged": corr.converged, "iterations": corr.iterations}
 
 
@@ -231,7 +260,7 @@ def equilibrium_block(model: EquilibriumModel, results, monte_carlo, combined, v
         "combined": _combined_part(model, comb, mc_by_name.get(COMBINED), combined),
         "log10K": {"value": log10.value, "standard_uncertainty": log10.standard_uncertainty,
                    "expanded_uncertainty": log10.expanded_uncertainty, "interval": _interval(mc_log)},
-        "complete_complexation_bias": _bias_part(study, columns, limiting),
+        "complete_complexation_bias": _bias_part(model, columns, limiting, comb.value),
         "covariance": [list(row) for row in cov],
         "joint_fit": _joint_fit_part(study, columns, limiting),
     }

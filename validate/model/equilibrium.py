@@ -28,7 +28,7 @@ from validate.model.errors import ModelError
 from validate.model.ice import equilibrium_constant
 from validate.model.keys import ResultKey
 from validate.model.line import fit_line
-from validate.model.standards import iterate_standards, line_by_sums
+from validate.model.standards import corrected_states, line_by_sums
 
 COMBINED = "K, combined"
 LOG10 = "log10 K, combined"
@@ -47,6 +47,7 @@ class EquilibriumModel(SolutionInputs):
     method: EquilibriumMethod
     sources: dict[str, Source]
     weights: list[float] | None = None  # GLS weights of the combined K, set after a first pass
+    start_K: float | None = None  # the estimate's corrected K (SI): where trials start the correction
     # points whose K is physically impossible at the estimates (id -> reason): weight 0 and left
     # out of the combined K, so a nan trial of theirs cannot reach it
     excluded: dict[str, str] = field(default_factory=dict)
@@ -91,17 +92,36 @@ class EquilibriumModel(SolutionInputs):
                 [t[0] for t, _ in pts], [t[1] for t, _ in pts], [a for _, a in pts])
 
     def ice_tables(self, x):
-        """The ICE table of every point. The correction of the standards combines only the points
-        not excluded as physically impossible (weight 0 for those), so an impossible point is
-        never averaged into it."""
+        """The ICE table of every point. The correction of the standards is the fixed point of
+        the combination with the reported K's weights (`combination_weights`), so the K used
+        to correct the standards is the reported combined K; an excluded point has weight 0
+        and is never averaged into it. Trials start from the estimate's K (`start_K`)."""
         sm, sl, sa, reps, pm, pl, pa = self.columns(x)
         study = self.study
         if study.correction == "none":
             return self._uncorrected(sm, sl, sa, reps, pm, pl, pa)
-        weights = [0.0 if p in self.excluded else 1.0 for p in self.points]
-        corrected = iterate_standards(sm, sl, sa, pm, pl, pa, limiting="L" if study.limiting == "ligand" else "M",
-                                      iterations=study.iterations, standard_weights=reps, mixture_weights=weights)
-        return list(corrected.mixtures)
+        solved = corrected_states((sm, sl, sa), (pm, pl, pa), limiting="L" if study.limiting == "ligand" else "M",
+                                  iterations=max(study.iterations, 1), standard_weights=reps,
+                                  mixture_weights=self.combination_weights(), start=self.start_K)
+        return list(solved.states)
+
+    def correction_K(self, x):
+        """The K the standards are corrected with (SI; the fixed point of the combination), or
+        None without a correction."""
+        sm, sl, sa, reps, pm, pl, pa = self.columns(x)
+        study = self.study
+        if study.correction == "none":
+            return None
+        return corrected_states((sm, sl, sa), (pm, pl, pa), limiting="L" if study.limiting == "ligand" else "M",
+                                iterations=max(study.iterations, 1), standard_weights=reps,
+                                mixture_weights=self.combination_weights(), start=self.start_K).K
+
+    def combination_weights(self) -> list[float]:
+        """The weights of the combined K (GLS, fixed by `prepare_combination`), or before they
+        are known equal weights over the points not excluded."""
+        if self.weights is not None:
+            return list(self.weights)
+        return [0.0 if p in self.excluded else 1.0 for p in self.points]
 
     def uncorrected_ice_tables(self, x):
         """The ICE table of every point read off the line of the standards taken as fully
@@ -207,8 +227,10 @@ def _assumptions(study: EquilibriumStudy, observed: bool) -> list[str]:
     out = ["1:1 complex M + L <=> ML; only the complex absorbs beyond the blank (the line's intercept); "
            "K is conditional on the temperature and ionic strength recorded"]
     if study.correction == "iterate":
-        out.append(f"standards corrected for incomplete complexation: {study.iterations} iterations of "
-                   "K -> [ML] in each standard (stable quadratic root) -> refitted line -> K")
+        out.append("standards corrected for incomplete complexation: K is the fixed point of K -> [ML] in each "
+                   "standard (stable quadratic root) -> refitted line -> the points' K combined with the reported "
+                   f"K's weights, found by Newton's method (at most {max(study.iterations, 1)} steps per trial, "
+                   "stopping when K no longer changes)")
     else:
         out.append("standards taken as fully complexed (no correction); the record shows "
                    "the bias this assumption causes")

@@ -95,8 +95,9 @@ class ComplexationBias(RecordPart):
     """What taking the standards as fully complexed would do to the slope and to K."""
 
     slope: Number
-    K: Number
+    K: Number = described("naive_K / reported_K - 1")
     naive_K: Number
+    reported_K: Number = described("the reported combined K the bias is taken against")
     fraction_complexed_in_standards: tuple[Number, ...]
     meaning: str
     iteration_converged: bool
