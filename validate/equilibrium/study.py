@@ -15,8 +15,7 @@ from uncertainties import ufloat
 from validate.equilibrium.combine import combine_correlated, davies_activity_correction, trend_test
 from validate.inputs.schema import EquilibriumStudy
 from validate.model.build import build
-from validate.model.equilibrium import COMBINED, LOG10, EquilibriumModel, impossible_reason
-from validate.model.errors import ModelError
+from validate.model.equilibrium import COMBINED, LOG10, EquilibriumModel, impossible_points
 from validate.model.standards import fit_joint, iterate_standards, normalised
 from validate.propagation.linear import covariance
 
@@ -27,7 +26,7 @@ SATURATION_WINDOW = (0.2, 0.8)
 
 # The GLS weights depend on the covariance of the points' K, which depends (weakly) on the
 # weights the standards are corrected with: repeat until they agree (a fixed point).
-WEIGHT_PASSES = 6
+WEIGHT_PASSES = 25  # the weights settle by a factor of about 20 per pass on the nickel demo
 WEIGHT_TOLERANCE = 1e-12
 
 
@@ -39,24 +38,51 @@ def prepare_combination(model: EquilibriumModel):
     while the GLS mean is reported is consistent with neither). ModelError (exit 3) when no
     point is left."""
     model.weights, model.start_K = None, None
-    model.excluded = impossible_points(model)
+    model.excluded = impossible_points(model)  # ModelError (exit 3) when no point is left
     kept = [i for i, p in enumerate(model.points) if p not in model.excluded]
-    if not kept:
-        listed = "; ".join(f"{p}: {why}" for p, why in model.excluded.items())
-        raise ModelError(f"no point of the study gives a physically possible K ({listed})\n"
-                         "  what to do: check the readings and the totals of the mixtures; a point needs a "
-                         "reading above the blank and below full complexation")
     variables = {n: ufloat(s.value, s.u, tag=n) for n, s in model.sources.items()}
+    x0 = model.nominal_inputs()
+    last = math.inf
     for _ in range(WEIGHT_PASSES):
         used = normalised(model.combination_weights(), len(model.points))
         combined, values, cov = _combination_pass(model, variables, kept)
-        model.weights = _full_weights(combined, kept, len(values))
-        if max(abs(a - b) for a, b in zip(used, model.weights, strict=True)) <= WEIGHT_TOLERANCE:
+        weights = _full_weights(combined, kept, len(values))
+        change = max(abs(a - b) for a, b in zip(used, weights, strict=True))
+        if change > last or not _correction_defined(model, weights, x0):
+            # not settling (strongly correlated points far apart): keep the weights of the last
+            # pass, which the standards were corrected with; the record says they did not settle
+            model.weights, model.weights_change = list(used), change
+            model.assumptions[:] = [a for a in model.assumptions if not a.startswith(UNSETTLED)]
+            model.assumptions.append(_unsettled_note(change))
             break
-    x0 = model.nominal_inputs()
+        model.weights, model.weights_change, last = weights, change, change
+        if change <= WEIGHT_TOLERANCE:
+            break
     start = model.correction_K(x0)
     model.start_K = None if start is None else float(start)
     return combined, values, cov
+
+
+def _correction_defined(model: EquilibriumModel, weights: list[float], x0) -> bool:
+    """Does the correction of the standards with these weights give a positive K at the estimates?"""
+    before = model.weights
+    model.weights = weights
+    try:
+        K = model.correction_K(x0)
+    except (ValueError, ZeroDivisionError, OverflowError):
+        return False
+    finally:
+        model.weights = before
+    return K is None or (math.isfinite(float(K)) and float(K) > 0)
+
+
+UNSETTLED = "the generalised least-squares weights did not settle"
+
+
+def _unsettled_note(change: float) -> str:
+    return (f"{UNSETTLED} (a pass changed them by {change:.3g} or left the "
+            "correction of the standards undefined): the combined K and the correction use the weights of the "
+            "last pass before, the same weights in both")
 
 
 def _combination_pass(model: EquilibriumModel, variables: dict, kept: list[int]):
@@ -75,37 +101,6 @@ def _full_weights(combined, kept: list[int], n: int) -> list[float]:
     for i, w in zip(kept, kept_weights, strict=True):
         weights[i] = float(w)
     return weights
-
-
-def impossible_points(model: EquilibriumModel) -> dict[str, str]:
-    """Points whose ICE table at the estimates is physically impossible, with the reason: first
-    as read off the uncorrected line, then after the correction of the standards made from the
-    points left (which may move a point over the edge), until no more points drop out."""
-    x0 = model.nominal_inputs()
-    model.excluded = {}
-    model.excluded.update(_impossible(model, model.uncorrected_ice_tables(x0), x0))
-    while len(model.excluded) < len(model.points):
-        try:
-            states = model.ice_tables(x0)
-        except (ValueError, ZeroDivisionError, OverflowError) as exc:
-            raise ModelError(f"the correction of the standards cannot be computed from the points of the study "
-                             f"({exc})\n  what to do: check the readings and the totals of the standards and "
-                             f"mixtures") from None
-        new = _impossible(model, states, x0)
-        if not new:
-            break
-        model.excluded.update(new)
-    return dict(model.excluded)
-
-
-def _impossible(model: EquilibriumModel, states, x0) -> dict[str, str]:
-    columns = model.columns(x0)
-    out = {}
-    for p, state, m, l_ in zip(model.points, states, columns[4], columns[5], strict=True):
-        reason = impossible_reason(state, float(m), float(l_))
-        if reason is not None and p not in model.excluded:
-            out[p] = reason
-    return out
 
 
 def build_ready_model(method):
@@ -174,15 +169,21 @@ def _consistency(combined) -> dict | None:
                       "(Birge 1932)"}
 
 
-def _combined_part(model: EquilibriumModel, comb, mc_comb, combined) -> dict:
+def _invalid(mc) -> int | None:
+    """Monte Carlo trials without a defined K (None without Monte Carlo)."""
+    return None if mc is None else int(mc.summary.invalid_trials)
+
+
+def _combined_part(model: EquilibriumModel, comb, mc_comb, combined, mc_by_name: dict) -> dict:
     return {
         "K": comb.value, "standard_uncertainty": comb.standard_uncertainty,
         "expanded_uncertainty": comb.expanded_uncertainty, "coverage_factor": comb.coverage_factor,
         "coverage_probability": comb.coverage_probability,
         "interval": _interval(mc_comb), "shortest_interval": _interval(mc_comb, "shortest"),
         "agrees_with_gum": mc_comb.check.agrees if mc_comb else None,
-        "weights": list(model.weights or []),
-        "excluded": [{"id": p, "reason": why} for p, why in model.excluded.items()],
+        "weights": list(model.weights or []), "weights_change": model.weights_change,
+        "excluded": [{"id": p, "reason": why, "invalid_trials": _invalid(mc_by_name.get(f"K, {p}"))}
+                     for p, why in model.excluded.items()],
         "consistency": _consistency(combined),
     }
 
@@ -257,7 +258,7 @@ def equilibrium_block(model: EquilibriumModel, results, monte_carlo, combined, v
         "concentration_unit": study.concentration_unit.text,
         "correction": study.correction, "limiting_reagent_in_standards": study.limiting,
         "mixtures": _point_rows(model, by_name, mc_by_name, pm, pl),
-        "combined": _combined_part(model, comb, mc_by_name.get(COMBINED), combined),
+        "combined": _combined_part(model, comb, mc_by_name.get(COMBINED), combined, mc_by_name),
         "log10K": {"value": log10.value, "standard_uncertainty": log10.standard_uncertainty,
                    "expanded_uncertainty": log10.expanded_uncertainty, "interval": _interval(mc_log)},
         "complete_complexation_bias": _bias_part(model, columns, limiting, comb.value),

@@ -48,6 +48,7 @@ class EquilibriumModel(SolutionInputs):
     sources: dict[str, Source]
     weights: list[float] | None = None  # GLS weights of the combined K, set after a first pass
     start_K: float | None = None  # the estimate's corrected K (SI): where trials start the correction
+    weights_change: float = math.nan  # largest change of a weight in the last pass of their fixed point
     # points whose K is physically impossible at the estimates (id -> reason): weight 0 and left
     # out of the combined K, so a nan trial of theirs cannot reach it
     excluded: dict[str, str] = field(default_factory=dict)
@@ -176,7 +177,46 @@ def build_equilibrium_model(method: EquilibriumMethod) -> EquilibriumModel:
             model._points.append((_series_totals(series.solutions, start, additions[:k], series.added),
                                   reading(next(series_points))))
     model.assumptions.extend(_assumptions(study, observed))
+    # found here, from the readings and nominal values, so `validate check` reports them too
+    model.excluded = impossible_points(model)
     return model
+
+
+def impossible_points(model: EquilibriumModel) -> dict[str, str]:
+    """Points whose ICE table at the estimates is physically impossible, with the reason: first
+    as read off the uncorrected line, then after the correction of the standards made from the
+    points left (which may move a point over the edge), until no more points drop out.
+    ModelError (exit 3) when no point is left."""
+    x0 = model.nominal_inputs()
+    model.excluded = {}
+    model.excluded.update(_impossible(model, model.uncorrected_ice_tables(x0), x0))
+    while len(model.excluded) < len(model.points):
+        try:
+            states = model.ice_tables(x0)
+        except (ValueError, ZeroDivisionError, OverflowError) as exc:
+            raise ModelError(f"the correction of the standards cannot be computed from the points of the study "
+                             f"({exc})\n  what to do: check the readings and the totals of the standards and "
+                             f"mixtures") from None
+        new = _impossible(model, states, x0)
+        if not new:
+            break
+        model.excluded.update(new)
+    if len(model.excluded) == len(model.points):
+        listed = "; ".join(f"{p}: {why}" for p, why in model.excluded.items())
+        raise ModelError(f"no point of the study gives a physically possible K ({listed})\n"
+                         "  what to do: check the readings and the totals of the mixtures; a point needs a "
+                         "reading above the blank and below full complexation")
+    return dict(model.excluded)
+
+
+def _impossible(model: EquilibriumModel, states, x0) -> dict[str, str]:
+    columns = model.columns(x0)
+    out = {}
+    for p, state, m, l_ in zip(model.points, states, columns[4], columns[5], strict=True):
+        reason = impossible_reason(state, float(m), float(l_))
+        if reason is not None and p not in model.excluded:
+            out[p] = reason
+    return out
 
 
 def impossible_reason(state, m_total, l_total) -> str | None:

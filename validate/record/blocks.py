@@ -63,6 +63,8 @@ class ExcludedPoint(RecordPart):
 
     id: str
     reason: str
+    invalid_trials: int | None = described("Monte Carlo trials of this point without a defined K (its "
+                                           "statistics leave them out; null without Monte Carlo)")
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -77,6 +79,9 @@ class CombinedK(RecordPart):
     agrees_with_gum: bool | None
     weights: tuple[float, ...] = described("generalised least-squares weights of the points' K "
                                            "(0 for a point left out)")
+    weights_change: Number = described("largest change of a weight in the last pass of the weights' fixed "
+                                       "point (the standards are corrected with these weights; <= 1e-12 when "
+                                       "settled)")
     excluded: tuple[ExcludedPoint, ...] = described(
         "points left out of the combination because their K is physically impossible, with the reason")
     consistency: Consistency | None = described("null with a single point")
