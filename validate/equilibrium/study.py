@@ -12,7 +12,8 @@ import math
 
 from uncertainties import ufloat
 
-from validate.equilibrium.combine import combine_correlated, davies_activity_correction, trend_test
+from validate.equilibrium.combine import DAVIES_UPPER_I, combine_correlated, davies_activity_correction, trend_test
+from validate.equilibrium.conditions import conditions_block
 from validate.inputs.schema import EquilibriumStudy
 from validate.model.build import build
 from validate.model.equilibrium import COMBINED, LOG10, EquilibriumModel, impossible_points
@@ -188,13 +189,6 @@ def _combined_part(model: EquilibriumModel, comb, mc_comb, combined, mc_by_name:
     }
 
 
-def _conditions(study: EquilibriumStudy) -> dict:
-    return {"temperature_C": study.temperature_C,
-            "ionic_strength_mol_per_L": None if study.ionic_strength is None else study.ionic_strength / 1e3,
-            "charges": list(study.charges) if study.charges else None,
-            "note": "K is conditional on the temperature and ionic strength recorded"}
-
-
 def _bias_part(model: EquilibriumModel, columns, limiting: str, reported_K: float) -> dict:
     """The bias of taking the standards as fully complexed, against the reported K: the
     shortcut's K is the combination, with the reported K's weights, of the points' K read off
@@ -236,7 +230,7 @@ def _optional_parts(study: EquilibriumStudy, comb, values, cov, pm) -> dict:
                 "against": f"total metal ({study.concentration_unit.text})"}
         except ValueError as exc:
             out["trend"] = {"error": str(exc)}
-    if study.charges and study.ionic_strength is not None:
+    if study.charges and study.ionic_strength is not None and study.ionic_strength / 1e3 <= DAVIES_UPPER_I:
         act = davies_activity_correction(comb.value, study.ionic_strength / 1e3, study.charges,
                                          study.temperature_C if study.temperature_C is not None else 25.0)
         out["activity_estimate"] = act.to_dict()
@@ -253,7 +247,7 @@ def equilibrium_block(model: EquilibriumModel, results, monte_carlo, combined, v
     mc_log = mc_by_name.get(LOG10)
     limiting = "L" if study.limiting == "ligand" else "M"
     block = {
-        "conditions": _conditions(study),
+        "conditions": conditions_block(model),
         "k_unit": study.k_unit.text, "unit": study.k_unit.text,
         "concentration_unit": study.concentration_unit.text,
         "correction": study.correction, "limiting_reagent_in_standards": study.limiting,

@@ -19,8 +19,8 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 
 from validate.inputs.schema import EquilibriumMethod, EquilibriumStudy
-from validate.metrology.equipment import SourceSet, volume_term
-from validate.metrology.sources import Source
+from validate.metrology.equipment import SourceSet, temperature_source, volume_term
+from validate.metrology.sources import Source, normal
 from validate.model import backend as mathops
 from validate.model.assay import SolutionInputs, mean_reading_term, solution_order, solution_term
 from validate.model.design import EquilibriumDesign, equilibrium_design
@@ -32,6 +32,8 @@ from validate.model.standards import corrected_states, line_by_sums
 
 COMBINED = "K, combined"
 LOG10 = "log10 K, combined"
+R_GAS = 8.314462618  # J/(mol K), molar gas constant (CODATA 2018, exact)
+ENTHALPY = "reaction enthalpy"
 
 
 def positive_or_nan(x):
@@ -49,6 +51,7 @@ class EquilibriumModel(SolutionInputs):
     weights: list[float] | None = None  # GLS weights of the combined K, set after a first pass
     start_K: float | None = None  # the estimate's corrected K (SI): where trials start the correction
     weights_change: float = math.nan  # largest change of a weight in the last pass of their fixed point
+    temperature_name: str | None = None  # the temperature deviation K is carried over by van 't Hoff
     # points whose K is physically impossible at the estimates (id -> reason): weight 0 and left
     # out of the combined K, so a nan trial of theirs cannot reach it
     excluded: dict[str, str] = field(default_factory=dict)
@@ -137,9 +140,20 @@ class EquilibriumModel(SolutionInputs):
                   for m, l_, a in zip(pm, pl, pa, strict=True)]
         return [replace(s, K=mathops.collapse(s.K)) for s in states]
 
+    def temperature_factor(self, x):
+        """K at the stated temperature T0 over K at the laboratory's, T0 + dT (van 't Hoff,
+        d ln K/dT = dH/(R T^2), integrated with dH constant):
+        exp(-(dH/R)(1/T0 - 1/(T0 + dT))) = exp(-dH dT / (R T0 (T0 + dT))); 1 without an enthalpy."""
+        if self.temperature_name is None or self.study.temperature_C is None:
+            return 1.0
+        t0 = self.study.temperature_C + 273.15
+        dt = x[self.temperature_name]
+        return mathops.exp(-x[ENTHALPY] * dt / (R_GAS * t0 * (t0 + dt)))
+
     def evaluate(self, x) -> dict:
         factor = self.study.k_unit.factor
-        ks = [positive_or_nan(state.K) for state in self.ice_tables(x)]
+        to_stated = self.temperature_factor(x)
+        ks = [positive_or_nan(state.K) * to_stated for state in self.ice_tables(x)]
         out = {f"K, {p}": k / factor for p, k in zip(self.points, ks, strict=True)}
         if self.weights is not None:
             kept = [(w, k) for p, w, k in zip(self.points, self.weights, ks, strict=True) if p not in self.excluded]
@@ -176,6 +190,11 @@ def build_equilibrium_model(method: EquilibriumMethod) -> EquilibriumModel:
         for k in range(1, series.additions + 1):
             model._points.append((_series_totals(series.solutions, start, additions[:k], series.added),
                                   reading(next(series_points))))
+    if study.reaction_enthalpy is not None:
+        dh, u_dh = study.reaction_enthalpy
+        ss.add(normal(ENTHALPY, dh, u_dh, step="reaction conditions", unit="kJ/mol", display_factor=1e3,
+                      provenance="stated in the method file (reaction_enthalpy)"))
+        model.temperature_name = ss.add(temperature_source(method, "reaction temperature"), "reaction temperature")
     model.assumptions.extend(_assumptions(study, observed))
     # found here, from the readings and nominal values, so `validate check` reports them too
     model.excluded = impossible_points(model)
@@ -277,6 +296,14 @@ def _assumptions(study: EquilibriumStudy, observed: bool) -> list[str]:
     if observed:
         out.append("calibration scatter treated as observed: the standards' residual scatter stands for the "
                    "random effects of preparing and reading standards and mixtures")
+    if study.reaction_enthalpy is not None:
+        out.append("K carried from the laboratory temperature to the stated temperature by van 't Hoff "
+                   "(d ln K/dT = dH/(R T^2)) with the stated reaction enthalpy and the laboratory temperature "
+                   "deviation (the one deviation the glassware shares): both in U(K)")
+    else:
+        out.append("the laboratory temperature's effect on K is NOT in U(K): no reaction enthalpy given "
+                   "(van 't Hoff: K changes by about 2.7 % per K for |dH| = 20 kJ/mol near 25 degC); give "
+                   "`reaction_enthalpy` to include it")
     # the study is one run: what varies between runs is not observed, so it is not in U(K)
     out.append("U(K) is a within-run uncertainty: it holds this study's preparations, its line of standards and "
                "its readings; effects that change between days (reagent lots, the laboratory temperature on "

@@ -15,11 +15,46 @@ from validate.record.tree import JsonObject, Number, RecordPart, described, omit
 
 
 @dataclass(frozen=True, kw_only=True)
+class ActivityOnCorrection(RecordPart):
+    """The correction of the standards repeated with each standard's K at its own ionic strength
+    (Davies equation): an estimate, not in U(K)."""
+
+    estimated: bool
+    note: str
+    relative_change_of_K: Number = omitted_when_none("K with the activity-corrected standards / K - 1")
+    K: Number = omitted_when_none("K with the activity-corrected standards, in k_unit")
+    K_factors_of_standards: tuple[Number, ...] | None = omitted_when_none(
+        "each standard's K relative to the points' (Davies)")
+    reference_ionic_strength_mol_per_L: Number = omitted_when_none("the points' mean ionic strength")
+    A: Number = omitted_when_none("Debye-Hueckel A, (L/mol)^(1/2)")
+
+
+@dataclass(frozen=True, kw_only=True)
+class TemperatureEffect(RecordPart):
+    """The laboratory temperature's effect on K (van 't Hoff), in U(K) only with an enthalpy."""
+
+    in_U: bool
+    reaction_enthalpy_kJ_per_mol: Number
+    u_kJ_per_mol: Number
+    relative_change_per_K: Number = described("dH/(R T^2), per K (null without an enthalpy)")
+    temperature_range_K: Number
+    note: str
+
+
+@dataclass(frozen=True, kw_only=True)
 class Conditions(RecordPart):
     temperature_C: Number
     ionic_strength_mol_per_L: Number
     charges: tuple[int, ...] | None
     note: str
+    ionic_strength_standards: tuple[Number, ...] | None = described(
+        "ionic strength of each standard, mol/L, from the solutions (null without the charges)")
+    ionic_strength_points: tuple[Number, ...] | None = described(
+        "ionic strength of each mixture and series point, mol/L (null without the charges)")
+    ionic_strength_basis: str
+    activity_effect_on_correction: ActivityOnCorrection
+    temperature_effect: TemperatureEffect
+    not_in_U: tuple[str, ...] = described("effects on K that U(K) does not hold")
 
 
 @dataclass(frozen=True, kw_only=True)
