@@ -43,6 +43,22 @@ def prepare_combination(model: EquilibriumModel):
     kept = [i for i, p in enumerate(model.points) if p not in model.excluded]
     variables = {n: ufloat(s.value, s.u, tag=n) for n, s in model.sources.items()}
     x0 = model.nominal_inputs()
+    # The van 't Hoff factor multiplies every point's K alike: it is left out of the covariance the
+    # weights come from (combining first and multiplying after is the same estimate). A common
+    # multiplicative error in GLS weights pulls the mean low (Peelle's pertinent puzzle; e.g.
+    # Froehner, Nucl. Sci. Eng. 126 (1997) 1, from memory).
+    temperature, model.temperature_name = model.temperature_name, None
+    try:
+        combined, values, cov = _settle_weights(model, variables, kept, x0)
+    finally:
+        model.temperature_name = temperature
+    start = model.correction_K(x0)
+    model.start_K = None if start is None else float(start)
+    return combined, values, cov
+
+
+def _settle_weights(model: EquilibriumModel, variables: dict, kept: list[int], x0):
+    """GLS passes until the weights the standards are corrected with are the combination's."""
     last = math.inf
     for _ in range(WEIGHT_PASSES):
         used = normalised(model.combination_weights(), len(model.points))
@@ -59,8 +75,6 @@ def prepare_combination(model: EquilibriumModel):
         model.weights, model.weights_change, last = weights, change, change
         if change <= WEIGHT_TOLERANCE:
             break
-    start = model.correction_K(x0)
-    model.start_K = None if start is None else float(start)
     return combined, values, cov
 
 

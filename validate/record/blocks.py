@@ -209,7 +209,9 @@ class EquilibriumBlock(RecordPart):
     combined: CombinedK
     log10K: Log10K
     complete_complexation_bias: ComplexationBias
-    covariance: tuple[tuple[float, ...], ...] = described("covariance of the points' K, in k_unit squared")
+    covariance: tuple[tuple[float, ...], ...] = described(
+        "covariance of the points' K, in k_unit squared, without the van 't Hoff factor common to all "
+        "(the GLS weights come from it; U(K) holds that factor)")
     joint_fit: JointFit | Unavailable
     trend: TrendEntry | Unavailable | None = omitted_when_none("left out with fewer than three points")
     activity_estimate: ActivityEstimate | None = omitted_when_none("left out without charges and ionic strength")
