@@ -285,32 +285,37 @@ def _solve_linear(cols: Columns, start, limiting_totals, max_steps: int) -> Solv
     return Solved(K, slope, intercept, states, history, change)
 
 
+def _cut(v, s: slice):
+    """One block of a column or start value: arrays sliced, plain numbers as they are."""
+    return v[s] if isinstance(v, np.ndarray) and v.ndim else v
+
+
 def _solve_blocks(cols: Columns, n: int, start, limiting_totals, max_steps: int) -> Solved:
     """Arrays of trials, a block at a time; every output preallocated once."""
-    m = len(cols.mix_A)
     out = {k: np.empty(n) for k in ("K", "slope", "intercept", "change")}
-    mix = [[np.empty(n) for _ in range(4)] for _ in range(m)]
+    mix = [[np.empty(n) for _ in range(4)] for _ in cols.mix_A]
     history: list[float] = []
     for lo in range(0, n, BLOCK):
         s = slice(lo, min(lo + BLOCK, n))
         part = cols.part(s)
-        if start is None:
-            first = naive_start(part, [v[s] if isinstance(v, np.ndarray) and v.ndim else v
-                                       for v in limiting_totals])
-        else:
-            first = start[s] if isinstance(start, np.ndarray) and start.ndim else start
+        first = (naive_start(part, [_cut(v, s) for v in limiting_totals]) if start is None
+                 else _cut(start, s))
         K, steps, change = _solve_direct(part, np.broadcast_to(np.asarray(first, dtype=float),
                                                                (s.stop - s.start,)), max_steps)
         slope, intercept, states = states_at(K, part)
-        for key, value in (("K", K), ("slope", slope), ("intercept", intercept), ("change", change)):
-            out[key][s] = value
-        for arrays, state in zip(mix, states, strict=True):
-            for target, value in zip(arrays, (state.complex_conc, state.free_M, state.free_L, state.K), strict=True):
-                target[s] = value
+        _store(out, mix, s, (K, slope, intercept, change), states)
         history = [max(a, b) for a, b in _padded(history, steps)]
     history = [h if h > -math.inf else math.nan for h in history]
     states = tuple(IceTable(*arrays) for arrays in mix)
     return Solved(out["K"], out["slope"], out["intercept"], states, history, out["change"])
+
+
+def _store(out: dict, mix: list, s: slice, values: tuple, states) -> None:
+    for key, value in zip(("K", "slope", "intercept", "change"), values, strict=True):
+        out[key][s] = value
+    for arrays, state in zip(mix, states, strict=True):
+        for target, value in zip(arrays, (state.complex_conc, state.free_M, state.free_L, state.K), strict=True):
+            target[s] = value
 
 
 def _padded(a: list, b: list):
