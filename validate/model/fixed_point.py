@@ -158,9 +158,7 @@ def combination(K, cols: Columns, derivative: bool = False):
 def naive_start(cols: Columns, limiting_totals):
     """The shortcut's K: the standards taken as fully complexed (the line on the limiting
     reagent's totals), combined with the same weights."""
-    full = Columns(tuple(limiting_totals), tuple(limiting_totals), cols.std_A, cols.counts, cols.mix_M,
-                   cols.mix_L, cols.mix_A, cols.weights, cols.factors)
-    slope, intercept = _line_on(full.std_M, cols)
+    slope, intercept = _line_on(list(limiting_totals), cols)
     F: Any = 0.0
     for m, l_, a, w in zip(cols.mix_M, cols.mix_L, cols.mix_A, cols.weights, strict=True):
         if w != 0.0:
