@@ -211,3 +211,21 @@ def test_prepare_combination_is_repeatable(nickel_demo):
     before = list(model.weights)
     prepare_combination(model)
     assert model.weights == before
+
+
+def test_unconverged_trials_are_undefined_not_silently_off():
+    # Monte Carlo trials whose correction did not converge (here: one Newton step allowed, from the
+    # shortcut's K 10x too high) get no K; the count says so (docs/design.md, "Monte Carlo")
+    K, eps, a0 = 1e3, 100.0, 0.02
+    std_M, std_L = [4e-3] * 6, [i * 2e-4 for i in range(6)]
+    mix_M, mix_L = [7.5e-3, 6e-3, 9e-3], [6e-3] * 3
+
+    def reading(m, lig):
+        return a0 + eps * fixed_point_root(K, m, lig)
+    std_A = [np.full(3, reading(m, lig)) for m, lig in zip(std_M, std_L, strict=True)]
+    mix_A = [np.full(3, reading(m, lig)) for m, lig in zip(mix_M, mix_L, strict=True)]
+    short = iterate_standards(std_M, std_L, std_A, mix_M, mix_L, mix_A, iterations=1)
+    assert np.all(np.isnan(short.K)) and short.unconverged_trials == 3 and short.undefined_trials == 3
+    full = iterate_standards(std_M, std_L, std_A, mix_M, mix_L, mix_A)
+    np.testing.assert_allclose(full.K, K, rtol=1e-9)
+    assert full.unconverged_trials == 0

@@ -32,6 +32,7 @@ from validate.model import backend as mathops
 from validate.model.ice import IceTable, equilibrium_constant
 
 BLOCK = 8192  # trials per block: the arrays of a step stay in a processor's cache (8192 measured fastest)
+CONVERGED = 1e-9  # remaining relative error of K above which a trial's correction has not converged
 STOP = 1e-13  # relative change of K below which a block stops stepping (quadratic convergence:
 #               the next step would change K by less than round-off)
 
@@ -300,6 +301,8 @@ def _solve_blocks(cols: Columns, n: int, start, limiting_totals, max_steps: int)
                  else _cut(start, s))
         K, steps, change = _solve_direct(part, np.broadcast_to(np.asarray(first, dtype=float),
                                                                (s.stop - s.start,)), max_steps)
+        # a trial whose correction has not converged has no defined K: nan, counted by the engine
+        K = np.where(change <= CONVERGED, K, np.nan)
         slope, intercept, states = states_at(K, part)
         _store(out, mix, s, (K, slope, intercept, change), states)
         history = [max(a, b) for a, b in _padded(history, steps)]
