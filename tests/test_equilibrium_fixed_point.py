@@ -55,6 +55,17 @@ def test_exact_study_gives_back_K_and_the_correction_uses_the_reported_K(tmp_pat
     assert bias["K"] > 0.0  # standards taken as fully complexed give a high K (mass balance)
 
 
+def test_without_correction_the_bias_is_that_of_the_reported_K(tmp_path):
+    # correction "none": the reported K is the shortcut's; its bias is taken against the corrected K,
+    # which for exact readings is the K they were made from (invented study, K = 850 L/mol)
+    K = 850.0
+    run = api.analyse(_noise_free_copy(tmp_path, K, correction="none"), trials=None, advice=False)
+    e = run.record["equilibrium"]
+    bias = e["complete_complexation_bias"]
+    assert bias["reported_K"] == e["combined"]["K"] > K
+    assert bias["K"] == pytest.approx(e["combined"]["K"] / K - 1.0, rel=1e-7)
+
+
 def test_the_demo_corrects_with_the_reported_K_and_its_own_weights(nickel_demo):
     # fixed point: the K the standards are corrected with equals the reported combined K (1e-10),
     # and the GLS weights recomputed from the covariance at that correction are the weights used

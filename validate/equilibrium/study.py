@@ -212,6 +212,15 @@ def _bias_part(model: EquilibriumModel, columns, limiting: str, reported_K: floa
     corr = iterate_standards(sm, sl, sa, pm, pl, pa, limiting=limiting, iterations=max(study.iterations, 1),
                              standard_weights=reps, mixture_weights=model.combination_weights())
     naive_K = _float(corr.naive_K) / study.k_unit.factor
+    if study.correction == "none":  # the reported K is the shortcut's: its bias against the corrected K
+        corrected = _float(corr.K) / study.k_unit.factor
+        return {
+            "slope": _float(corr.slope_bias), "K": reported_K / corrected - 1.0, "naive_K": naive_K,
+            "reported_K": reported_K,
+            "fraction_complexed_in_standards": [_float(f) for f in corr.fraction_standards],
+            "meaning": f"relative bias of the reported K, the standards taken as fully complexed, against the K "
+                       f"of corrected standards ({corrected:.6g}): reported / corrected - 1",
+            "iteration_converged": corr.converged, "iterations": corr.iterations}
     return {
         "slope": _float(corr.slope_bias), "K": naive_K / reported_K - 1.0,
         "naive_K": naive_K, "reported_K": reported_K,

@@ -135,7 +135,8 @@ class ComplexationBias(RecordPart):
     """What taking the standards as fully complexed would do to the slope and to K."""
 
     slope: Number
-    K: Number = described("naive_K / reported_K - 1")
+    K: Number = described("naive_K / reported_K - 1; with the standards taken as fully complexed (correction "
+                          "none) the reported K is the naive one: reported / corrected - 1")
     naive_K: Number
     reported_K: Number = described("the reported combined K the bias is taken against")
     fraction_complexed_in_standards: tuple[Number, ...]
