@@ -60,6 +60,7 @@ class EquilibriumModel(SolutionInputs):
     _solution_terms: dict = field(default_factory=dict, repr=False)
     _standards: list = field(default_factory=list, repr=False)  # (totals fn, reading fn) per standard
     _points: list = field(default_factory=list, repr=False)  # (totals fn, reading fn) per point
+    _memos: list = field(default_factory=list, repr=False)  # per addition series: its totals for one x
 
     @property
     def study(self) -> EquilibriumStudy:
@@ -91,6 +92,8 @@ class EquilibriumModel(SolutionInputs):
         conc = self.concentrations(x)
         std = [(totals(x, conc), reading(x)) for totals, reading in self._standards]
         pts = [(totals(x, conc), reading(x)) for totals, reading in self._points]
+        for memo in self._memos:  # the series' totals of this x are no longer needed: free them
+            memo.clear()
         reps = [lv.count for lv in self.design.standards]
         return ([t[0] for t, _ in std], [t[1] for t, _ in std], [a for _, a in std], reps,
                 [t[0] for t, _ in pts], [t[1] for t, _ in pts], [a for _, a in pts])
@@ -187,8 +190,10 @@ def build_equilibrium_model(method: EquilibriumMethod) -> EquilibriumModel:
         start = {r: volume_term(ss, method, d, step, f"{series.id} start, {r}") for r, d in series.start.items()}
         additions = [volume_term(ss, method, series.aliquot, step, f"{series.id} addition {k}")
                      for k in range(1, series.additions + 1)]
+        memo: dict = {}
+        model._memos.append(memo)
         for k in range(1, series.additions + 1):
-            model._points.append((_series_totals(series.solutions, start, additions[:k], series.added),
+            model._points.append((_series_totals(series.solutions, start, additions, series.added, k, memo),
                                   reading(next(series_points))))
     if study.reaction_enthalpy is not None:
         dh, u_dh = study.reaction_enthalpy
@@ -312,14 +317,30 @@ def _assumptions(study: EquilibriumStudy, observed: bool) -> list[str]:
     return out
 
 
-def _series_totals(reagent_solution, start, additions, added):
-    """Totals after k additions: the vessel holds the start aliquots plus k aliquots."""
+def _series_totals(reagent_solution, start, additions, added, k: int, memo: dict):
+    """Totals after k additions: the vessel holds the start aliquots plus k aliquots. The totals
+    after every addition are computed once per evaluation and shared by the series' points
+    (`memo`, cleared by `EquilibriumModel.columns`), not once per point."""
     def totals(x, conc):
-        volume = sum(v(x) for v in start.values()) + sum(a(x) for a in additions)
-        amount = {r: conc[reagent_solution[r]] * v(x) for r, v in start.items()}
-        amount[added] = amount.get(added, 0.0) + conc[reagent_solution[added]] * sum(a(x) for a in additions)
-        return amount.get("metal", 0.0) / volume, amount.get("ligand", 0.0) / volume
+        if memo.get("x") is not x:
+            memo.update(x=x, totals=_series_all_totals(reagent_solution, start, additions, added, x, conc))
+        return memo["totals"][k - 1]
     return totals
+
+
+def _series_all_totals(reagent_solution, start, additions, added, x, conc) -> list:
+    start_volume = sum(v(x) for v in start.values())
+    start_amount = {r: conc[reagent_solution[r]] * v(x) for r, v in start.items()}
+    added_conc = conc[reagent_solution[added]]
+    out = []
+    added_volume = 0.0
+    for a in additions:  # a loop over additions, not over trials
+        added_volume = added_volume + a(x)
+        volume = start_volume + added_volume
+        amount = dict(start_amount)
+        amount[added] = amount.get(added, 0.0) + added_conc * added_volume
+        out.append((amount.get("metal", 0.0) / volume, amount.get("ligand", 0.0) / volume))
+    return out
 
 
 def _standards_scatter(design: EquilibriumDesign) -> tuple[float, int]:
