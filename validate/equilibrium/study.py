@@ -12,12 +12,12 @@ import math
 
 from uncertainties import ufloat
 
-from validate.equilibrium.combine import combine_correlated, davies_activity_correction, trend_test
+from validate.equilibrium.combine import DAVIES_UPPER_I, combine_correlated, davies_activity_correction, trend_test
+from validate.equilibrium.conditions import conditions_block
 from validate.inputs.schema import EquilibriumStudy
 from validate.model.build import build
-from validate.model.equilibrium import COMBINED, LOG10, EquilibriumModel, impossible_reason
-from validate.model.errors import ModelError
-from validate.model.standards import fit_joint, iterate_standards
+from validate.model.equilibrium import COMBINED, LOG10, EquilibriumModel, impossible_points
+from validate.model.standards import fit_joint, iterate_standards, normalised
 from validate.propagation.linear import covariance
 
 # A point constrains K best when the complex holds between about 20 % and 80 % of the
@@ -25,63 +25,97 @@ from validate.propagation.linear import covariance
 SATURATION_WINDOW = (0.2, 0.8)
 
 
+# The GLS weights depend on the covariance of the points' K, which depends (weakly) on the
+# weights the standards are corrected with: repeat until they agree (a fixed point).
+WEIGHT_PASSES = 25  # the weights settle by a factor of about 20 per pass on the nickel demo
+WEIGHT_TOLERANCE = 1e-12
+
+
 def prepare_combination(model: EquilibriumModel):
     """Covariance of the per-point K (linear engine) and the GLS combination of the points whose
-    K is physically possible; sets model.excluded and model.weights (0 for a point left out).
-    ModelError (exit 3) when no point is left."""
-    model.weights = None
-    model.excluded = impossible_points(model)
+    K is physically possible; sets model.excluded, model.weights (0 for a point left out) and
+    model.start_K. The standards are corrected with the combination's own weights, so the K
+    they are corrected with is the reported combined K (issue: a correction with the plain mean
+    while the GLS mean is reported is consistent with neither). ModelError (exit 3) when no
+    point is left."""
+    model.weights, model.start_K = None, None
+    model.excluded = impossible_points(model)  # ModelError (exit 3) when no point is left
     kept = [i for i, p in enumerate(model.points) if p not in model.excluded]
-    if not kept:
-        listed = "; ".join(f"{p}: {why}" for p, why in model.excluded.items())
-        raise ModelError(f"no point of the study gives a physically possible K ({listed})\n"
-                         "  what to do: check the readings and the totals of the mixtures; a point needs a "
-                         "reading above the blank and below full complexation")
     variables = {n: ufloat(s.value, s.u, tag=n) for n, s in model.sources.items()}
+    x0 = model.nominal_inputs()
+    # The van 't Hoff factor multiplies every point's K alike: it is left out of the covariance the
+    # weights come from (combining first and multiplying after is the same estimate). A common
+    # multiplicative error in GLS weights pulls the mean low (Peelle's pertinent puzzle; e.g.
+    # Froehner, Nucl. Sci. Eng. 126 (1997) 1, from memory).
+    temperature, model.temperature_name = model.temperature_name, None
+    try:
+        combined, values, cov = _settle_weights(model, variables, kept, x0)
+    finally:
+        model.temperature_name = temperature
+    start = model.correction_K(x0)
+    model.start_K = None if start is None else float(start)
+    return combined, values, cov
+
+
+def _settle_weights(model: EquilibriumModel, variables: dict, kept: list[int], x0):
+    """GLS passes until the weights the standards are corrected with are the combination's."""
+    last = math.inf
+    for _ in range(WEIGHT_PASSES):
+        used = normalised(model.combination_weights(), len(model.points))
+        combined, values, cov = _combination_pass(model, variables, kept)
+        weights = _full_weights(combined, kept, len(values))
+        change = max(abs(a - b) for a, b in zip(used, weights, strict=True))
+        if change > last or not _correction_defined(model, weights, x0):
+            # not settling (strongly correlated points far apart): keep the weights of the last
+            # pass, which the standards were corrected with; the record says they did not settle
+            model.weights, model.weights_change = list(used), change
+            model.assumptions[:] = [a for a in model.assumptions if not a.startswith(UNSETTLED)]
+            model.assumptions.append(_unsettled_note(change))
+            break
+        model.weights, model.weights_change, last = weights, change, change
+        if change <= WEIGHT_TOLERANCE:
+            break
+    return combined, values, cov
+
+
+def _correction_defined(model: EquilibriumModel, weights: list[float], x0) -> bool:
+    """Does the correction of the standards with these weights give a positive K at the estimates?"""
+    before = model.weights
+    model.weights = weights
+    try:
+        K = model.correction_K(x0)
+    except (ValueError, ZeroDivisionError, OverflowError):
+        return False
+    finally:
+        model.weights = before
+    return K is None or (math.isfinite(float(K)) and float(K) > 0)
+
+
+UNSETTLED = "the generalised least-squares weights did not settle"
+
+
+def _unsettled_note(change: float) -> str:
+    return (f"{UNSETTLED} (a pass changed them by {change:.3g} or left the "
+            "correction of the standards undefined): the combined K and the correction use the weights of the "
+            "last pass before, the same weights in both")
+
+
+def _combination_pass(model: EquilibriumModel, variables: dict, kept: list[int]):
     outputs = model.evaluate(variables)
     ks = [outputs[f"K, {p}"] for p in model.points]
     cov = covariance(ks)  # summed in source-name order: the same bits in every run
     values = [k.nominal_value for k in ks]
     kept_values = [values[i] for i in kept]
     kept_cov = [[cov[i][j] for j in kept] for i in kept]
-    combined = combine_correlated(kept_values, kept_cov) if len(kept) > 1 else None
+    return (combine_correlated(kept_values, kept_cov) if len(kept) > 1 else None), values, cov
+
+
+def _full_weights(combined, kept: list[int], n: int) -> list[float]:
     kept_weights = list(combined.weights) if combined else [1.0]
-    weights = [0.0] * len(values)
+    weights = [0.0] * n
     for i, w in zip(kept, kept_weights, strict=True):
         weights[i] = float(w)
-    model.weights = weights
-    return combined, values, cov
-
-
-def impossible_points(model: EquilibriumModel) -> dict[str, str]:
-    """Points whose ICE table at the estimates is physically impossible, with the reason: first
-    as read off the uncorrected line, then after the correction of the standards made from the
-    points left (which may move a point over the edge), until no more points drop out."""
-    x0 = model.nominal_inputs()
-    model.excluded = {}
-    model.excluded.update(_impossible(model, model.uncorrected_ice_tables(x0), x0))
-    while len(model.excluded) < len(model.points):
-        try:
-            states = model.ice_tables(x0)
-        except (ValueError, ZeroDivisionError, OverflowError) as exc:
-            raise ModelError(f"the correction of the standards cannot be computed from the points of the study "
-                             f"({exc})\n  what to do: check the readings and the totals of the standards and "
-                             f"mixtures") from None
-        new = _impossible(model, states, x0)
-        if not new:
-            break
-        model.excluded.update(new)
-    return dict(model.excluded)
-
-
-def _impossible(model: EquilibriumModel, states, x0) -> dict[str, str]:
-    columns = model.columns(x0)
-    out = {}
-    for p, state, m, l_ in zip(model.points, states, columns[4], columns[5], strict=True):
-        reason = impossible_reason(state, float(m), float(l_))
-        if reason is not None and p not in model.excluded:
-            out[p] = reason
-    return out
+    return weights
 
 
 def build_ready_model(method):
@@ -150,36 +184,49 @@ def _consistency(combined) -> dict | None:
                       "(Birge 1932)"}
 
 
-def _combined_part(model: EquilibriumModel, comb, mc_comb, combined) -> dict:
+def _invalid(mc) -> int | None:
+    """Monte Carlo trials without a defined K (None without Monte Carlo)."""
+    return None if mc is None else int(mc.summary.invalid_trials)
+
+
+def _combined_part(model: EquilibriumModel, comb, mc_comb, combined, mc_by_name: dict) -> dict:
     return {
         "K": comb.value, "standard_uncertainty": comb.standard_uncertainty,
         "expanded_uncertainty": comb.expanded_uncertainty, "coverage_factor": comb.coverage_factor,
         "coverage_probability": comb.coverage_probability,
         "interval": _interval(mc_comb), "shortest_interval": _interval(mc_comb, "shortest"),
         "agrees_with_gum": mc_comb.check.agrees if mc_comb else None,
-        "weights": list(model.weights or []),
-        "excluded": [{"id": p, "reason": why} for p, why in model.excluded.items()],
+        "weights": list(model.weights or []), "weights_change": model.weights_change,
+        "excluded": [{"id": p, "reason": why, "invalid_trials": _invalid(mc_by_name.get(f"K, {p}"))}
+                     for p, why in model.excluded.items()],
         "consistency": _consistency(combined),
     }
 
 
-def _conditions(study: EquilibriumStudy) -> dict:
-    return {"temperature_C": study.temperature_C,
-            "ionic_strength_mol_per_L": None if study.ionic_strength is None else study.ionic_strength / 1e3,
-            "charges": list(study.charges) if study.charges else None,
-            "note": "K is conditional on the temperature and ionic strength recorded"}
-
-
-def _bias_part(study: EquilibriumStudy, columns, limiting: str) -> dict:
-    """The bias of taking the standards as fully complexed, from the correction by iteration."""
+def _bias_part(model: EquilibriumModel, columns, limiting: str, reported_K: float) -> dict:
+    """The bias of taking the standards as fully complexed, against the reported K: the
+    shortcut's K is the combination, with the reported K's weights, of the points' K read off
+    the line of the standards taken as fully complexed."""
+    study = model.study
     sm, sl, sa, reps, pm, pl, pa = columns
     corr = iterate_standards(sm, sl, sa, pm, pl, pa, limiting=limiting, iterations=max(study.iterations, 1),
-                             standard_weights=reps)
+                             standard_weights=reps, mixture_weights=model.combination_weights())
+    naive_K = _float(corr.naive_K) / study.k_unit.factor
+    if study.correction == "none":  # the reported K is the shortcut's: its bias against the corrected K
+        corrected = _float(corr.K) / study.k_unit.factor
+        return {
+            "slope": _float(corr.slope_bias), "K": reported_K / corrected - 1.0, "naive_K": naive_K,
+            "reported_K": reported_K,
+            "fraction_complexed_in_standards": [_float(f) for f in corr.fraction_standards],
+            "meaning": f"relative bias of the reported K, the standards taken as fully complexed, against the K "
+                       f"of corrected standards ({corrected:.6g}): reported / corrected - 1",
+            "iteration_converged": corr.converged, "iterations": corr.iterations}
     return {
-        "slope": _float(corr.slope_bias), "K": _float(corr.K_bias),
-        "naive_K": _float(corr.naive_K) / study.k_unit.factor,
+        "slope": _float(corr.slope_bias), "K": naive_K / reported_K - 1.0,
+        "naive_K": naive_K, "reported_K": reported_K,
         "fraction_complexed_in_standards": [_float(f) for f in corr.fraction_standards],
-        "meaning": "relative bias (naive / corrected - 1) if the standards were taken as fully complexed",
+        "meaning": "relative bias (naive / reported - 1) if the standards were taken as fully complexed: the "
+                   "naive K combines the points' K read off the uncorrected line with the reported K's weights",
         "iteration_converged": corr.converged, "iterations": corr.iterations}
 
 
@@ -206,7 +253,7 @@ def _optional_parts(study: EquilibriumStudy, comb, values, cov, pm) -> dict:
                 "against": f"total metal ({study.concentration_unit.text})"}
         except ValueError as exc:
             out["trend"] = {"error": str(exc)}
-    if study.charges and study.ionic_strength is not None:
+    if study.charges and study.ionic_strength is not None and study.ionic_strength / 1e3 <= DAVIES_UPPER_I:
         act = davies_activity_correction(comb.value, study.ionic_strength / 1e3, study.charges,
                                          study.temperature_C if study.temperature_C is not None else 25.0)
         out["activity_estimate"] = act.to_dict()
@@ -223,15 +270,15 @@ def equilibrium_block(model: EquilibriumModel, results, monte_carlo, combined, v
     mc_log = mc_by_name.get(LOG10)
     limiting = "L" if study.limiting == "ligand" else "M"
     block = {
-        "conditions": _conditions(study),
+        "conditions": conditions_block(model),
         "k_unit": study.k_unit.text, "unit": study.k_unit.text,
         "concentration_unit": study.concentration_unit.text,
         "correction": study.correction, "limiting_reagent_in_standards": study.limiting,
         "mixtures": _point_rows(model, by_name, mc_by_name, pm, pl),
-        "combined": _combined_part(model, comb, mc_by_name.get(COMBINED), combined),
+        "combined": _combined_part(model, comb, mc_by_name.get(COMBINED), combined, mc_by_name),
         "log10K": {"value": log10.value, "standard_uncertainty": log10.standard_uncertainty,
                    "expanded_uncertainty": log10.expanded_uncertainty, "interval": _interval(mc_log)},
-        "complete_complexation_bias": _bias_part(study, columns, limiting),
+        "complete_complexation_bias": _bias_part(model, columns, limiting, comb.value),
         "covariance": [list(row) for row in cov],
         "joint_fit": _joint_fit_part(study, columns, limiting),
     }

@@ -8,6 +8,10 @@
     temperature = "25 degC"        # conditions K refers to (recorded; used by the activity estimate)
     ionic_strength = "0.10 mol/L"
     charges = [2, -1]              # of M and L: enables the Davies activity estimate
+    counter_ion_charges = [-2, 1]  # of the metal salt's and the ligand salt's counter-ions (sulfate,
+                                   # sodium): with `charges`, the ionic strength of every solution
+    medium_ionic_strength = "0.10 mol/L"  # background electrolyte every solution is made up in
+    reaction_enthalpy = { value = "-20 kJ/mol", u = "5 kJ/mol" }  # optional: K moved by van 't Hoff
     k_unit = "L/mol"
     concentration_unit = "mmol/L"
     readings = "readings.csv"
@@ -64,7 +68,8 @@ class _Parts:
 def parse_equilibrium(t: Table, items: dict, solutions: dict[str, Solution], defaults: list[str]) -> EquilibriumStudy:
     """The study; `items` and `solutions` are the method file's, already parsed."""
     t.allow("metal", "ligand", "limiting", "correction", "iterations", "temperature", "ionic_strength",
-            "charges", "k_unit", "concentration_unit", "readings", "cuvette", "photometer",
+            "charges", "counter_ion_charges", "medium_ionic_strength", "reaction_enthalpy",
+            "k_unit", "concentration_unit", "readings", "cuvette", "photometer",
             "standards", "mixtures", "series")
     parts = _Parts(items, solutions, {key: _reagent(t, key, solutions) for key in REAGENTS})
     limiting = t.choice("limiting", "ligand", REAGENTS, 'use "metal" or "ligand"')
@@ -74,6 +79,9 @@ def parse_equilibrium(t: Table, items: dict, solutions: dict[str, Solution], def
     temperature = _temperature(t)
     ionic = _ionic_strength(t)
     charges = _charges(t)
+    counter = _counter_charges(t, charges)
+    medium = _ionic_strength(t, "medium_ionic_strength")
+    enthalpy = _reaction_enthalpy(t, temperature)
     k_unit = _unit_or_default(t, "k_unit", (0, 3, -1, 0), "L/mol", "default: K reported in L/mol", defaults)
     conc_unit = _unit_or_default(t, "concentration_unit", AMOUNT_CONCENTRATION, "mmol/L",
                                  "default: equilibrium concentrations shown in mmol/L", defaults)
@@ -91,7 +99,8 @@ def parse_equilibrium(t: Table, items: dict, solutions: dict[str, Solution], def
         mixtures=mixtures, series=series, correction=correction, iterations=iterations,
         temperature_C=temperature, ionic_strength=ionic, charges=charges, k_unit=k_unit,
         concentration_unit=conc_unit, readings_file=t.required_text("readings"),
-        cuvette=cuvette, photometer=photometer)
+        cuvette=cuvette, photometer=photometer, counter_charges=counter, medium_ionic_strength=medium,
+        reaction_enthalpy=enthalpy)
 
 
 def _reagent(t: Table, key: str, solutions: dict[str, Solution]) -> str:
@@ -126,14 +135,64 @@ MAX_CHARGE = 6  # |z| of a metal ion or ligand in a 1:1 study (Th4+, EDTA4- lie 
 MAX_ADDITIONS = 200  # readings of one addition series
 
 
-def _ionic_strength(t: Table) -> float | None:
-    if not t.has("ionic_strength"):
+def _ionic_strength(t: Table, key: str = "ionic_strength") -> float | None:
+    if not t.has(key):
         return None
-    ionic = parse_si(t.get("ionic_strength"), t, "ionic_strength", AMOUNT_CONCENTRATION, False)[0]
+    ionic = parse_si(t.get(key), t, key, AMOUNT_CONCENTRATION, False)[0]
     if not 0 <= ionic <= MAX_IONIC_STRENGTH:
-        raise t.error(f"an ionic strength of {ionic / 1e3:g} mol/L is not an aqueous medium's", "ionic_strength",
+        raise t.error(f"an ionic strength of {ionic / 1e3:g} mol/L is not an aqueous medium's", key,
                       fix=f"give it in mol/L, between 0 and {MAX_IONIC_STRENGTH / 1e3:g} mol/L")
     return ionic
+
+
+def _counter_charges(t: Table, charges: tuple[int, int] | None) -> tuple[int, int] | None:
+    """The charges of the counter-ions of the metal salt and of the ligand salt: each of the
+    opposite sign to its ion (0 for a neutral reagent, which has none)."""
+    raw = t.get("counter_ion_charges")
+    if raw is None:
+        return None
+    key = "counter_ion_charges"
+    if charges is None:
+        raise t.error("counter-ion charges need the charges of M and L", key, fix="add `charges = [2, -1]`")
+    if not (isinstance(raw, list) and len(raw) == 2 and all(isinstance(c, int) and not isinstance(c, bool)
+                                                            for c in raw)):
+        raise t.error("expected two whole numbers, the counter-ions' charges of the metal and ligand salts",
+                      key, fix="e.g. [-2, 1] for a metal sulfate and a sodium salt of the ligand")
+    for name, z, zc in (("metal", charges[0], raw[0]), ("ligand", charges[1], raw[1])):
+        if abs(zc) > MAX_CHARGE or (z == 0) != (zc == 0) or z * zc > 0:
+            raise t.error(f"the {name} salt's counter-ion charge {zc} does not balance an ion of charge {z}", key,
+                          fix="give a counter-ion of the opposite sign (0 for a neutral reagent)")
+    return raw[0], raw[1]
+
+
+ENTHALPY_UNITS = {"J/mol": 1.0, "kJ/mol": 1e3}
+MAX_ENTHALPY = 500e3  # J/mol: beyond any complex-formation enthalpy in water (from memory, |dH| < 200 kJ/mol)
+
+
+def _reaction_enthalpy(t: Table, temperature: float | None) -> tuple[float, float] | None:
+    """{ value = "-20 kJ/mol", u = "5 kJ/mol" } -> (dH, u(dH)) in J/mol."""
+    raw = t.get("reaction_enthalpy")
+    if raw is None:
+        return None
+    key = "reaction_enthalpy"
+    fix = 'write it as { value = "-20 kJ/mol", u = "5 kJ/mol" } (u: its standard uncertainty)'
+    if temperature is None:
+        raise t.error("a reaction enthalpy needs the temperature K refers to", key, fix='add temperature = "25 degC"')
+    if not (isinstance(raw, dict) and set(raw) == {"value", "u"}):
+        raise t.error("expected a value and its standard uncertainty", key, fix=fix)
+    value, u = (_enthalpy(t, raw[k], fix) for k in ("value", "u"))
+    if not (abs(value) <= MAX_ENTHALPY and 0 <= u <= MAX_ENTHALPY):
+        raise t.error(f"{value / 1e3:g} +/- {u / 1e3:g} kJ/mol is not a reaction enthalpy of a complex in water",
+                      key, fix=fix)
+    return value, u
+
+
+def _enthalpy(t: Table, raw, fix: str) -> float:
+    match = re.fullmatch(r"\s*([-+]?\d+(?:\.\d*)?(?:[eE][-+]?\d+)?)\s*(kJ/mol|J/mol)\s*", raw) \
+        if isinstance(raw, str) else None
+    if not match:
+        raise t.error(f"cannot read {raw!r} as an energy per mole", "reaction_enthalpy", fix=fix)
+    return float(match.group(1)) * ENTHALPY_UNITS[match.group(2)]
 
 
 def _charges(t: Table) -> tuple[int, int] | None:

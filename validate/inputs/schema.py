@@ -150,6 +150,12 @@ class EquilibriumStudy:
     readings_file: str
     cuvette: str | None
     photometer: str | None
+    # conditions (validate/inputs/equilibrium_file.py): the counter-ions of the metal salt and the
+    # ligand salt, the background medium's ionic strength (mol/m^3) and the reaction enthalpy with
+    # its standard uncertainty (J/mol)
+    counter_charges: tuple[int, int] | None = None
+    medium_ionic_strength: float | None = None
+    reaction_enthalpy: tuple[float, float] | None = None
 
     def point_ids(self) -> list[str]:
         return [m.id for m in self.mixtures] + [r for s in self.series for r in s.reading_ids()]

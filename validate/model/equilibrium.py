@@ -19,8 +19,8 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 
 from validate.inputs.schema import EquilibriumMethod, EquilibriumStudy
-from validate.metrology.equipment import SourceSet, volume_term
-from validate.metrology.sources import Source
+from validate.metrology.equipment import SourceSet, temperature_source, volume_term
+from validate.metrology.sources import Source, normal
 from validate.model import backend as mathops
 from validate.model.assay import SolutionInputs, mean_reading_term, solution_order, solution_term
 from validate.model.design import EquilibriumDesign, equilibrium_design
@@ -28,10 +28,12 @@ from validate.model.errors import ModelError
 from validate.model.ice import equilibrium_constant
 from validate.model.keys import ResultKey
 from validate.model.line import fit_line
-from validate.model.standards import iterate_standards, line_by_sums
+from validate.model.standards import corrected_states, line_by_sums
 
 COMBINED = "K, combined"
 LOG10 = "log10 K, combined"
+R_GAS = 8.314462618  # J/(mol K), molar gas constant (CODATA 2018, exact)
+ENTHALPY = "reaction enthalpy"
 
 
 def positive_or_nan(x):
@@ -47,6 +49,9 @@ class EquilibriumModel(SolutionInputs):
     method: EquilibriumMethod
     sources: dict[str, Source]
     weights: list[float] | None = None  # GLS weights of the combined K, set after a first pass
+    start_K: float | None = None  # the estimate's corrected K (SI): where trials start the correction
+    weights_change: float = math.nan  # largest change of a weight in the last pass of their fixed point
+    temperature_name: str | None = None  # the temperature deviation K is carried over by van 't Hoff
     # points whose K is physically impossible at the estimates (id -> reason): weight 0 and left
     # out of the combined K, so a nan trial of theirs cannot reach it
     excluded: dict[str, str] = field(default_factory=dict)
@@ -55,6 +60,7 @@ class EquilibriumModel(SolutionInputs):
     _solution_terms: dict = field(default_factory=dict, repr=False)
     _standards: list = field(default_factory=list, repr=False)  # (totals fn, reading fn) per standard
     _points: list = field(default_factory=list, repr=False)  # (totals fn, reading fn) per point
+    _memos: list = field(default_factory=list, repr=False)  # per addition series: its totals for one x
 
     @property
     def study(self) -> EquilibriumStudy:
@@ -86,22 +92,43 @@ class EquilibriumModel(SolutionInputs):
         conc = self.concentrations(x)
         std = [(totals(x, conc), reading(x)) for totals, reading in self._standards]
         pts = [(totals(x, conc), reading(x)) for totals, reading in self._points]
+        for memo in self._memos:  # the series' totals of this x are no longer needed: free them
+            memo.clear()
         reps = [lv.count for lv in self.design.standards]
         return ([t[0] for t, _ in std], [t[1] for t, _ in std], [a for _, a in std], reps,
                 [t[0] for t, _ in pts], [t[1] for t, _ in pts], [a for _, a in pts])
 
     def ice_tables(self, x):
-        """The ICE table of every point. The correction of the standards combines only the points
-        not excluded as physically impossible (weight 0 for those), so an impossible point is
-        never averaged into it."""
+        """The ICE table of every point. The correction of the standards is the fixed point of
+        the combination with the reported K's weights (`combination_weights`), so the K used
+        to correct the standards is the reported combined K; an excluded point has weight 0
+        and is never averaged into it. Trials start from the estimate's K (`start_K`)."""
         sm, sl, sa, reps, pm, pl, pa = self.columns(x)
         study = self.study
         if study.correction == "none":
             return self._uncorrected(sm, sl, sa, reps, pm, pl, pa)
-        weights = [0.0 if p in self.excluded else 1.0 for p in self.points]
-        corrected = iterate_standards(sm, sl, sa, pm, pl, pa, limiting="L" if study.limiting == "ligand" else "M",
-                                      iterations=study.iterations, standard_weights=reps, mixture_weights=weights)
-        return list(corrected.mixtures)
+        solved = corrected_states((sm, sl, sa), (pm, pl, pa), limiting="L" if study.limiting == "ligand" else "M",
+                                  iterations=max(study.iterations, 1), standard_weights=reps,
+                                  mixture_weights=self.combination_weights(), start=self.start_K)
+        return list(solved.states)
+
+    def correction_K(self, x):
+        """The K the standards are corrected with (SI; the fixed point of the combination), or
+        None without a correction."""
+        sm, sl, sa, reps, pm, pl, pa = self.columns(x)
+        study = self.study
+        if study.correction == "none":
+            return None
+        return corrected_states((sm, sl, sa), (pm, pl, pa), limiting="L" if study.limiting == "ligand" else "M",
+                                iterations=max(study.iterations, 1), standard_weights=reps,
+                                mixture_weights=self.combination_weights(), start=self.start_K).K
+
+    def combination_weights(self) -> list[float]:
+        """The weights of the combined K (GLS, fixed by `prepare_combination`), or before they
+        are known equal weights over the points not excluded."""
+        if self.weights is not None:
+            return list(self.weights)
+        return [0.0 if p in self.excluded else 1.0 for p in self.points]
 
     def uncorrected_ice_tables(self, x):
         """The ICE table of every point read off the line of the standards taken as fully
@@ -116,9 +143,20 @@ class EquilibriumModel(SolutionInputs):
                   for m, l_, a in zip(pm, pl, pa, strict=True)]
         return [replace(s, K=mathops.collapse(s.K)) for s in states]
 
+    def temperature_factor(self, x):
+        """K at the stated temperature T0 over K at the laboratory's, T0 + dT (van 't Hoff,
+        d ln K/dT = dH/(R T^2), integrated with dH constant):
+        exp(-(dH/R)(1/T0 - 1/(T0 + dT))) = exp(-dH dT / (R T0 (T0 + dT))); 1 without an enthalpy."""
+        if self.temperature_name is None or self.study.temperature_C is None:
+            return 1.0
+        t0 = self.study.temperature_C + 273.15
+        dt = x[self.temperature_name]
+        return mathops.exp(-x[ENTHALPY] * dt / (R_GAS * t0 * (t0 + dt)))
+
     def evaluate(self, x) -> dict:
         factor = self.study.k_unit.factor
-        ks = [positive_or_nan(state.K) for state in self.ice_tables(x)]
+        to_stated = self.temperature_factor(x)
+        ks = [positive_or_nan(state.K) * to_stated for state in self.ice_tables(x)]
         out = {f"K, {p}": k / factor for p, k in zip(self.points, ks, strict=True)}
         if self.weights is not None:
             kept = [(w, k) for p, w, k in zip(self.points, self.weights, ks, strict=True) if p not in self.excluded]
@@ -152,11 +190,57 @@ def build_equilibrium_model(method: EquilibriumMethod) -> EquilibriumModel:
         start = {r: volume_term(ss, method, d, step, f"{series.id} start, {r}") for r, d in series.start.items()}
         additions = [volume_term(ss, method, series.aliquot, step, f"{series.id} addition {k}")
                      for k in range(1, series.additions + 1)]
+        memo: dict = {}
+        model._memos.append(memo)
         for k in range(1, series.additions + 1):
-            model._points.append((_series_totals(series.solutions, start, additions[:k], series.added),
+            model._points.append((_series_totals(series.solutions, start, additions, series.added, k, memo),
                                   reading(next(series_points))))
+    if study.reaction_enthalpy is not None:
+        dh, u_dh = study.reaction_enthalpy
+        ss.add(normal(ENTHALPY, dh, u_dh, step="reaction conditions", unit="kJ/mol", display_factor=1e3,
+                      provenance="stated in the method file (reaction_enthalpy)"))
+        model.temperature_name = ss.add(temperature_source(method, "reaction temperature"), "reaction temperature")
     model.assumptions.extend(_assumptions(study, observed))
+    # found here, from the readings and nominal values, so `validate check` reports them too
+    model.excluded = impossible_points(model)
     return model
+
+
+def impossible_points(model: EquilibriumModel) -> dict[str, str]:
+    """Points whose ICE table at the estimates is physically impossible, with the reason: first
+    as read off the uncorrected line, then after the correction of the standards made from the
+    points left (which may move a point over the edge), until no more points drop out.
+    ModelError (exit 3) when no point is left."""
+    x0 = model.nominal_inputs()
+    model.excluded = {}
+    model.excluded.update(_impossible(model, model.uncorrected_ice_tables(x0), x0))
+    while len(model.excluded) < len(model.points):
+        try:
+            states = model.ice_tables(x0)
+        except (ValueError, ZeroDivisionError, OverflowError) as exc:
+            raise ModelError(f"the correction of the standards cannot be computed from the points of the study "
+                             f"({exc})\n  what to do: check the readings and the totals of the standards and "
+                             f"mixtures") from None
+        new = _impossible(model, states, x0)
+        if not new:
+            break
+        model.excluded.update(new)
+    if len(model.excluded) == len(model.points):
+        listed = "; ".join(f"{p}: {why}" for p, why in model.excluded.items())
+        raise ModelError(f"no point of the study gives a physically possible K ({listed})\n"
+                         "  what to do: check the readings and the totals of the mixtures; a point needs a "
+                         "reading above the blank and below full complexation")
+    return dict(model.excluded)
+
+
+def _impossible(model: EquilibriumModel, states, x0) -> dict[str, str]:
+    columns = model.columns(x0)
+    out = {}
+    for p, state, m, l_ in zip(model.points, states, columns[4], columns[5], strict=True):
+        reason = impossible_reason(state, float(m), float(l_))
+        if reason is not None and p not in model.excluded:
+            out[p] = reason
+    return out
 
 
 def impossible_reason(state, m_total, l_total) -> str | None:
@@ -207,14 +291,24 @@ def _assumptions(study: EquilibriumStudy, observed: bool) -> list[str]:
     out = ["1:1 complex M + L <=> ML; only the complex absorbs beyond the blank (the line's intercept); "
            "K is conditional on the temperature and ionic strength recorded"]
     if study.correction == "iterate":
-        out.append(f"standards corrected for incomplete complexation: {study.iterations} iterations of "
-                   "K -> [ML] in each standard (stable quadratic root) -> refitted line -> K")
+        out.append("standards corrected for incomplete complexation: K is the fixed point of K -> [ML] in each "
+                   "standard (stable quadratic root) -> refitted line -> the points' K combined with the reported "
+                   f"K's weights, found by Newton's method (at most {max(study.iterations, 1)} steps per trial, "
+                   "stopping when K no longer changes)")
     else:
         out.append("standards taken as fully complexed (no correction); the record shows "
                    "the bias this assumption causes")
     if observed:
         out.append("calibration scatter treated as observed: the standards' residual scatter stands for the "
                    "random effects of preparing and reading standards and mixtures")
+    if study.reaction_enthalpy is not None:
+        out.append("K carried from the laboratory temperature to the stated temperature by van 't Hoff "
+                   "(d ln K/dT = dH/(R T^2)) with the stated reaction enthalpy and the laboratory temperature "
+                   "deviation (the one deviation the glassware shares): both in U(K)")
+    else:
+        out.append("the laboratory temperature's effect on K is NOT in U(K): no reaction enthalpy given "
+                   "(van 't Hoff: K changes by about 2.7 % per K for |dH| = 20 kJ/mol near 25 degC); give "
+                   "`reaction_enthalpy` to include it")
     # the study is one run: what varies between runs is not observed, so it is not in U(K)
     out.append("U(K) is a within-run uncertainty: it holds this study's preparations, its line of standards and "
                "its readings; effects that change between days (reagent lots, the laboratory temperature on "
@@ -223,14 +317,30 @@ def _assumptions(study: EquilibriumStudy, observed: bool) -> list[str]:
     return out
 
 
-def _series_totals(reagent_solution, start, additions, added):
-    """Totals after k additions: the vessel holds the start aliquots plus k aliquots."""
+def _series_totals(reagent_solution, start, additions, added, k: int, memo: dict):
+    """Totals after k additions: the vessel holds the start aliquots plus k aliquots. The totals
+    after every addition are computed once per evaluation and shared by the series' points
+    (`memo`, cleared by `EquilibriumModel.columns`), not once per point."""
     def totals(x, conc):
-        volume = sum(v(x) for v in start.values()) + sum(a(x) for a in additions)
-        amount = {r: conc[reagent_solution[r]] * v(x) for r, v in start.items()}
-        amount[added] = amount.get(added, 0.0) + conc[reagent_solution[added]] * sum(a(x) for a in additions)
-        return amount.get("metal", 0.0) / volume, amount.get("ligand", 0.0) / volume
+        if memo.get("x") is not x:
+            memo.update(x=x, totals=_series_all_totals(reagent_solution, start, additions, added, x, conc))
+        return memo["totals"][k - 1]
     return totals
+
+
+def _series_all_totals(reagent_solution, start, additions, added, x, conc) -> list:
+    start_volume = sum(v(x) for v in start.values())
+    start_amount = {r: conc[reagent_solution[r]] * v(x) for r, v in start.items()}
+    added_conc = conc[reagent_solution[added]]
+    out = []
+    added_volume = 0.0
+    for a in additions:  # a loop over additions, not over trials
+        added_volume = added_volume + a(x)
+        volume = start_volume + added_volume
+        amount = dict(start_amount)
+        amount[added] = amount.get(added, 0.0) + added_conc * added_volume
+        out.append((amount.get("metal", 0.0) / volume, amount.get("ligand", 0.0) / volume))
+    return out
 
 
 def _standards_scatter(design: EquilibriumDesign) -> tuple[float, int]:

@@ -8,8 +8,8 @@ mixtures comes out high. Two corrections are offered:
 
 - `iterate_standards`: generic over the numeric backend (floats, ufloats,
   numpy arrays of trials). Fit the line on full complexation, get K from the
-  mixtures, recompute [ML] in every standard with that K, refit; a fixed
-  number of vectorised iterations.
+  mixtures, then find the K whose corrected standards give that K back (the
+  fixed point, by Newton's method: `validate.model.fixed_point`).
 - `fit_joint`: K, slope and intercept fitted together by nonlinear least
   squares over all readings (plain floats only, scipy), with the covariance
   from the Jacobian.
@@ -29,8 +29,9 @@ from typing import Any
 import numpy as np
 
 from validate.model import backend as mathops
+from validate.model import fixed_point
+from validate.model.fixed_point import Columns
 from validate.model.ice import (
-    IceTable,
     complex_concentration,
     complex_concentration_derivative,
     count_undefined,
@@ -66,10 +67,10 @@ class StandardsCorrection:
     naive_intercept: Any
     slope_bias: Any  # naive/corrected - 1
     K_bias: Any  # naive/corrected - 1
-    iterations: int  # steps done (fewer than asked only when a scalar run left the domain)
-    change_history: tuple  # largest |relative change of K| per iteration (finite trials)
+    iterations: int  # Newton steps taken (they stop when K no longer changes)
+    change_history: tuple  # largest |relative change of K| per step (finite trials)
     converged: bool
-    unconverged_trials: int  # trials whose last relative change exceeds the tolerance
+    unconverged_trials: int  # trials whose remaining relative error of K exceeds the tolerance
     undefined_trials: int  # trials with K or a mixture concentration not finite and positive
 
     def to_dict(self) -> dict:
@@ -91,138 +92,109 @@ def _check_lengths(kind, *columns, minimum):
         raise ValueError(f"{kind}: {n} given, at least {minimum} needed")
 
 
-def _largest_abs(x) -> float:
-    """Largest |x| over the finite trials (nan when none is finite)."""
-    v = np.abs(np.atleast_1d(np.asarray(mathops.nominal(x), dtype=float)))
-    v = v[np.isfinite(v)]
-    return float(v.max()) if v.size else math.nan
-
-
 def _mixture_states(slope, intercept, mixtures_M, mixtures_L, mixtures_A):
-    """The ICE table of every mixture read off the line. The line is collapsed
-    (`backend.collapse`) once for all mixtures; each K is collapsed by its user
-    (the next step's combined K, or `_collapsed_K` for the results)."""
+    """The ICE table of every mixture read off a line, each K collapsed (`backend.collapse`)."""
     slope, intercept = mathops.collapse(slope), mathops.collapse(intercept)
-    return tuple(equilibrium_constant((a - intercept) / slope, m, l_)
-                 for m, l_, a in zip(mixtures_M, mixtures_L, mixtures_A, strict=True))
+    return tuple(replace(s, K=mathops.collapse(s.K)) for s in (
+        equilibrium_constant((a - intercept) / slope, m, l_)
+        for m, l_, a in zip(mixtures_M, mixtures_L, mixtures_A, strict=True)))
 
 
-def _collapsed_K(states: tuple[IceTable, ...]) -> tuple[IceTable, ...]:
-    """The states with K collapsed: each K is a result and enters the combined K."""
-    return tuple(replace(s, K=mathops.collapse(s.K)) for s in states)
-
-
-def _combined(states: tuple[IceTable, ...], weights):
-    return sum(w * s.K for w, s in zip(weights, states, strict=True))
-
-
-def _check_iteration(limiting: str, iterations: int, damping: float, standards, mixtures) -> None:
+def _check_iteration(limiting: str, iterations: int, standards, mixtures) -> None:
     if limiting not in ("L", "M"):
         raise ValueError(f"limiting={limiting!r}: say which reagent the standards are short of, 'L' or 'M'")
     _check_lengths("standards", *standards, minimum=2)
     _check_lengths("mixtures", *mixtures, minimum=1)
-    if iterations < 1 or not (0.0 < damping <= 1.0):
-        raise ValueError("iterations must be >= 1 and damping in (0, 1]")
+    if iterations < 1:
+        raise ValueError("iterations must be >= 1")
 
 
-def _normalised(weights, n: int) -> list[float]:
+def normalised(weights, n: int) -> tuple[float, ...]:
+    """The mixtures' weights in the combination, summing to 1 (all equal when None)."""
     w = [1.0] * n if weights is None else [float(v) for v in weights]
-    return [v / sum(w) for v in w]
+    return tuple(v / sum(w) for v in w)
 
 
-@dataclass
-class _State:
-    """Where the iteration stands: the line, the mixtures' ICE tables and the combined K."""
+def study_columns(standards, mixtures, standard_weights=None, mixture_weights=None,
+                  standard_K_factors=None) -> Columns:
+    """The numbers of the fixed point (`fixed_point.Columns`) from the study's columns."""
+    (sm, sl, sa), (pm, pl, pa) = standards, mixtures
+    counts = tuple(1.0 for _ in sa) if standard_weights is None else tuple(float(v) for v in standard_weights)
+    factors = tuple(1.0 for _ in sa) if standard_K_factors is None else tuple(float(v) for v in standard_K_factors)
+    return Columns(tuple(sm), tuple(sl), tuple(sa), counts, tuple(pm), tuple(pl), tuple(pa),
+                   normalised(mixture_weights, len(pa)), factors)
 
-    slope: Any
-    intercept: Any
-    states: tuple
-    K: Any
+
+def corrected_states(standards, mixtures, *, limiting: str = "L", iterations: int = 12, standard_weights=None,
+                     mixture_weights=None, start=None, standard_K_factors=None) -> fixed_point.Solved:
+    """K at the fixed point of the correction with the line and the mixtures' ICE tables there,
+    without the shortcut's numbers (the model's path; `iterate_standards` adds them).
+    `start`: a first K (the estimate's, for trials); None: the shortcut's K."""
+    _check_iteration(limiting, iterations, standards, mixtures)
+    cols = study_columns(standards, mixtures, standard_weights, mixture_weights, standard_K_factors)
+    limiting_totals = list(standards[1] if limiting == "L" else standards[0])
+    with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
+        try:
+            return fixed_point.solve(cols, start=start, limiting_totals=limiting_totals, max_steps=iterations)
+        except ZeroDivisionError:
+            raise ValueError("the standards give no line: their limiting-reagent totals are all equal, "
+                             "or the slope is zero, or a mixture has a free concentration of exactly "
+                             "zero; check the standards' concentrations and absorbances") from None
 
 
-def _naive(limiting_totals, standards_A, standard_weights, mixtures, mw) -> _State:
-    """The start: the standards taken as fully complexed in the limiting reagent."""
+def iterate_standards(standards_M, standards_L, standards_A, mixtures_M, mixtures_L, mixtures_A, *,
+                      limiting: str = "L", path_length=1.0, iterations: int = 12, tolerance: float = 1e-9,
+                      standard_weights=None, mixture_weights=None, standard_K_factors=None) -> StandardsCorrection:
+    """Correct the standards for incomplete complexation: K with F(K) = K.
+
+    Start: [ML] in each standard = total of the `limiting` reagent; fit the line; [ML] of each
+    mixture = (A - intercept)/slope; K per mixture from the ICE table; combined K = weighted
+    mean of the mixtures' K (equal weights unless given): the shortcut's K. Then K is moved
+    to the fixed point of K -> [ML] of each standard (stable quadratic root) -> refitted line
+    -> combined K by Newton's method (`validate.model.fixed_point`), at most `iterations`
+    steps, stopping when K no longer changes.
+
+    The plain iteration K <- F(K) contracts by c = F'(K) ~ (1 - f)(1 + [ML]/[M] + [ML]/[L])
+    near the solution (f the fraction complexed in the standards) and fails for c >= 1;
+    Newton's method does not need c < 1, but far from the solution (a large naive bias) it
+    may still not settle, and K -> 0 is also a fixed point. So the result says whether it
+    converged (last relative change <= `tolerance`, for every trial); when it did not, use
+    `fit_joint`. `standard_K_factors`: K in each standard relative to the mixtures' (an
+    activity estimate at the standards' ionic strength; 1 by default).
+    """
+    standards = (standards_M, standards_L, standards_A)
+    mixtures = (mixtures_M, mixtures_L, mixtures_A)
+    _check_iteration(limiting, iterations, standards, mixtures)
+    cols = study_columns(standards, mixtures, standard_weights, mixture_weights, standard_K_factors)
+    limiting_totals = list(standards_L if limiting == "L" else standards_M)
     try:
-        slope, intercept = line_by_sums(limiting_totals, standards_A, standard_weights)
-        states = _mixture_states(slope, intercept, *mixtures)
-        return _State(slope, intercept, states, mathops.collapse(_combined(states, mw)))
+        naive_slope, naive_intercept = line_by_sums(limiting_totals, standards_A, standard_weights)
+        naive_states = _mixture_states(naive_slope, naive_intercept, *mixtures)
+        naive_K = mathops.collapse(sum(w * s.K for w, s in zip(cols.weights, naive_states, strict=True) if w))
     except ZeroDivisionError:
         raise ValueError("the standards give no line: their limiting-reagent totals are all equal, "
                          "or the slope is zero, or a mixture has a free concentration of exactly "
                          "zero; check the standards' concentrations and absorbances") from None
-
-
-def _iterate(start: _State, standards, standard_weights, mixtures, mw, iterations: int, damping: float):
-    """`iterations` vectorised steps K -> [ML] of the standards -> line -> K; (state, history,
-    last relative change). Call inside np.errstate: trials leaving the domain give nan."""
-    standards_M, standards_L, standards_A = standards
-    now = replace(start)  # updated in place, step by step
-    history: list[float] = []
-    change: Any = math.nan
-    for _ in range(iterations):  # a fixed count of vectorised steps, no test on values
-        try:
-            x_std = [complex_concentration(now.K, m, l_)
-                     for m, l_ in zip(standards_M, standards_L, strict=True)]
-            now.slope, now.intercept = (mathops.collapse(v) for v in line_by_sums(x_std, standards_A, standard_weights))
-            now.states = _mixture_states(now.slope, now.intercept, *mixtures)
-            K_new = mathops.collapse(now.K + damping * (_combined(now.states, mw) - now.K))
-        except (ValueError, ZeroDivisionError, OverflowError):
-            # Only scalars raise (numpy gives nan per trial): the iteration left the
-            # domain (K <= 0 or a zero slope). Report it as undefined, not converged.
-            now.K, now.slope = math.nan, math.nan
-            history.append(math.nan)
-            return now, history, math.nan
-        change = (K_new - now.K) / K_new
-        history.append(_largest_abs(change))
-        now.K = K_new
-    return now, history, change
-
-
-def iterate_standards(standards_M, standards_L, standards_A, mixtures_M, mixtures_L, mixtures_A, *,
-                      limiting: str = "L", path_length=1.0, iterations: int = 30,
-                      damping: float = 1.0, tolerance: float = 1e-9,
-                      standard_weights=None, mixture_weights=None) -> StandardsCorrection:
-    """Correct the standards for incomplete complexation by iteration.
-
-    Start: [ML] in each standard = total of the `limiting` reagent; fit the
-    line; [ML] of each mixture = (A - intercept)/slope; K per mixture from
-    the ICE table; combined K = weighted mean of the mixtures' K (equal
-    weights unless given). Then, `iterations` times: [ML] of each standard
-    from the current K (stable quadratic root), refit, recompute K, and
-    K <- K + damping (K_new - K).
-
-    Near the solution the plain iteration (damping 1) contracts by the factor
-    c = (1 - f)(1 + [ML]/[M] + [ML]/[L]), f being the fraction complexed in
-    the standards and the bracket the sensitivity of K to [ML] in a mixture
-    (first-order analysis of the fixed point); it converges when c < 1, and
-    damping 0.5 extends that to c < 3. Far from the solution (a large naive
-    bias) it can drift towards K -> 0, which is also a fixed point. So the
-    result says whether it converged; when it did not, use `fit_joint`.
-    The check uses nominal values (every trial's for arrays).
-    """
-    standards = (standards_M, standards_L, standards_A)
-    mixtures = (mixtures_M, mixtures_L, mixtures_A)
-    _check_iteration(limiting, iterations, damping, standards, mixtures)
-    mw = _normalised(mixture_weights, len(mixtures_A))
-    limiting_totals = list(standards_L if limiting == "L" else standards_M)
-    naive = _naive(limiting_totals, standards_A, standard_weights, mixtures, mw)
+    solved = corrected_states(standards, mixtures, limiting=limiting, iterations=iterations,
+                              standard_weights=standard_weights, mixture_weights=mixture_weights,
+                              start=naive_K, standard_K_factors=standard_K_factors)
     with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
-        now, history, change = _iterate(naive, standards, standard_weights, mixtures, mw, iterations, damping)
-        K, slope = now.K, now.slope
-        fractions = tuple(fraction_complexed(K, m, l_, of=limiting)
-                          for m, l_ in zip(standards_M, standards_L, strict=True))
-        final_change = np.abs(np.atleast_1d(np.asarray(mathops.nominal(change), dtype=float)))
+        K, slope = solved.K, solved.slope
+        fractions = tuple(fraction_complexed(K * phi, m, l_, of=limiting)
+                          for m, l_, phi in zip(standards_M, standards_L, cols.factors, strict=True))
+        final_change = np.abs(np.atleast_1d(np.asarray(mathops.nominal(solved.change), dtype=float)))
         unconverged = int(np.count_nonzero(~(final_change <= tolerance)))
         # A zero or non-finite slope shows up as non-finite [ML] in the mixtures.
-        undefined = count_undefined(K, *[q for s in now.states for q in (s.complex_conc, s.free_M, s.free_L)])
-    return StandardsCorrection(
-        K=K, slope=slope, intercept=now.intercept, molar_absorptivity=slope / path_length,
-        mixtures=_collapsed_K(now.states), fraction_standards=fractions, naive_K=naive.K, naive_slope=naive.slope,
-        naive_intercept=naive.intercept, slope_bias=naive.slope / slope - 1.0,
-        K_bias=naive.K / K - 1.0, iterations=len(history),
-        change_history=tuple(history), converged=bool(history[-1] <= tolerance),
-        unconverged_trials=unconverged, undefined_trials=undefined,
-    )
+        undefined = count_undefined(K, *[q for s in solved.states for q in (s.complex_conc, s.free_M, s.free_L)])
+        history = solved.history
+        return StandardsCorrection(
+            K=K, slope=slope, intercept=solved.intercept, molar_absorptivity=slope / path_length,
+            mixtures=solved.states, fraction_standards=fractions, naive_K=naive_K, naive_slope=naive_slope,
+            naive_intercept=naive_intercept, slope_bias=naive_slope / slope - 1.0,
+            K_bias=naive_K / K - 1.0, iterations=len(history),
+            change_history=tuple(history), converged=bool(history) and unconverged == 0,
+            unconverged_trials=unconverged, undefined_trials=undefined,
+        )
 
 
 @dataclass(frozen=True)
@@ -291,7 +263,7 @@ def fit_joint(standards_M, standards_L, standards_A, mixtures_M, mixtures_L, mix
         raise ValueError("fit_joint: reading_sd must be positive and finite")
 
     start = iterate_standards(standards_M, standards_L, standards_A, mixtures_M, mixtures_L,
-                              mixtures_A, limiting=limiting, iterations=5, damping=0.5)
+                              mixtures_A, limiting=limiting, iterations=5)
     ok = bool(np.isfinite(start.K) and start.K > 0)
     # Start from the short iteration when it stayed defined, else from the naive line
     # and K ~ 1/concentration (the middle of the range a mixture design can resolve).

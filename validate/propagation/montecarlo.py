@@ -176,15 +176,21 @@ def _shares(model: Model, seed: int, key: str, progress, n: int = SHARE_TRIALS) 
     for name, src in model.sources.items():
         groups.setdefault(getattr(src, key) or "(none)", set()).add(name)
     base = evaluate_trials(model, n, np.random.default_rng(seed))
-    var0 = {k: np.nanvar(v) for k, v in base.items()}
+    var0 = {k: _defined_variance(v) for k, v in base.items()}
     shares: dict[str, list[tuple[str, float]]] = {label: [] for label in model.result_labels}
     for group, names in groups.items():
         held = evaluate_trials(model, n, np.random.default_rng(seed), frozenset(names))
         progress(n)
         for label, arr in held.items():
-            share = 1.0 - np.nanvar(arr) / var0[label] if var0[label] > 0 else 0.0
+            share = 1.0 - _defined_variance(arr) / var0[label] if var0[label] > 0 else 0.0
             shares[label].append((group, float(share)))
     return {k: sorted(v, key=lambda t: (-round(t[1], 12), t[0])) for k, v in shares.items()}
+
+
+def _defined_variance(arr: np.ndarray) -> float:
+    """Variance over the defined trials; nan, without numpy's warning, when fewer than two are
+    defined (a point left out of an equilibrium study can have none in a held-group run)."""
+    return float(np.nanvar(arr)) if np.count_nonzero(~np.isnan(arr)) > 1 else math.nan
 
 
 def propagate_mc(model: Model, linear: list[LinearResult], trials: int | str = 1_000_000,

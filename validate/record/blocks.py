@@ -15,11 +15,46 @@ from validate.record.tree import JsonObject, Number, RecordPart, described, omit
 
 
 @dataclass(frozen=True, kw_only=True)
+class ActivityOnCorrection(RecordPart):
+    """The correction of the standards repeated with each standard's K at its own ionic strength
+    (Davies equation): an estimate, not in U(K)."""
+
+    estimated: bool
+    note: str
+    relative_change_of_K: Number = omitted_when_none("K with the activity-corrected standards / K - 1")
+    K: Number = omitted_when_none("K with the activity-corrected standards, in k_unit")
+    K_factors_of_standards: tuple[Number, ...] | None = omitted_when_none(
+        "each standard's K relative to the points' (Davies)")
+    reference_ionic_strength_mol_per_L: Number = omitted_when_none("the points' mean ionic strength")
+    A: Number = omitted_when_none("Debye-Hueckel A, (L/mol)^(1/2)")
+
+
+@dataclass(frozen=True, kw_only=True)
+class TemperatureEffect(RecordPart):
+    """The laboratory temperature's effect on K (van 't Hoff), in U(K) only with an enthalpy."""
+
+    in_U: bool
+    reaction_enthalpy_kJ_per_mol: Number
+    u_kJ_per_mol: Number
+    relative_change_per_K: Number = described("dH/(R T^2), per K (null without an enthalpy)")
+    temperature_range_K: Number
+    note: str
+
+
+@dataclass(frozen=True, kw_only=True)
 class Conditions(RecordPart):
     temperature_C: Number
     ionic_strength_mol_per_L: Number
     charges: tuple[int, ...] | None
     note: str
+    ionic_strength_standards: tuple[Number, ...] | None = described(
+        "ionic strength of each standard, mol/L, from the solutions (null without the charges)")
+    ionic_strength_points: tuple[Number, ...] | None = described(
+        "ionic strength of each mixture and series point, mol/L (null without the charges)")
+    ionic_strength_basis: str
+    activity_effect_on_correction: ActivityOnCorrection
+    temperature_effect: TemperatureEffect
+    not_in_U: tuple[str, ...] = described("effects on K that U(K) does not hold")
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -63,6 +98,8 @@ class ExcludedPoint(RecordPart):
 
     id: str
     reason: str
+    invalid_trials: int | None = described("Monte Carlo trials of this point without a defined K (its "
+                                           "statistics leave them out; null without Monte Carlo)")
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -77,6 +114,9 @@ class CombinedK(RecordPart):
     agrees_with_gum: bool | None
     weights: tuple[float, ...] = described("generalised least-squares weights of the points' K "
                                            "(0 for a point left out)")
+    weights_change: Number = described("largest change of a weight in the last pass of the weights' fixed "
+                                       "point (the standards are corrected with these weights; <= 1e-12 when "
+                                       "settled)")
     excluded: tuple[ExcludedPoint, ...] = described(
         "points left out of the combination because their K is physically impossible, with the reason")
     consistency: Consistency | None = described("null with a single point")
@@ -95,8 +135,10 @@ class ComplexationBias(RecordPart):
     """What taking the standards as fully complexed would do to the slope and to K."""
 
     slope: Number
-    K: Number
+    K: Number = described("naive_K / reported_K - 1; with the standards taken as fully complexed (correction "
+                          "none) the reported K is the naive one: reported / corrected - 1")
     naive_K: Number
+    reported_K: Number = described("the reported combined K the bias is taken against")
     fraction_complexed_in_standards: tuple[Number, ...]
     meaning: str
     iteration_converged: bool
@@ -168,7 +210,9 @@ class EquilibriumBlock(RecordPart):
     combined: CombinedK
     log10K: Log10K
     complete_complexation_bias: ComplexationBias
-    covariance: tuple[tuple[float, ...], ...] = described("covariance of the points' K, in k_unit squared")
+    covariance: tuple[tuple[float, ...], ...] = described(
+        "covariance of the points' K, in k_unit squared, without the van 't Hoff factor common to all "
+        "(the GLS weights come from it; U(K) holds that factor)")
     joint_fit: JointFit | Unavailable
     trend: TrendEntry | Unavailable | None = omitted_when_none("left out with fewer than three points")
     activity_estimate: ActivityEstimate | None = omitted_when_none("left out without charges and ionic strength")

@@ -71,6 +71,22 @@ def kind_text(point_id) -> str:
 # --------------------------------------------------------------------------
 # parts of the section
 
+def _condition_effects(cond: dict) -> list[tuple[str, str]]:
+    """Ionic strengths, the activity and temperature effects on K, and what is not in U(K)."""
+    std, pts = cond.get("ionic_strength_standards"), cond.get("ionic_strength_points")
+    facts = [("ionic strength of standards / points", f"{num(min(std), 3)} to {num(max(std), 3)} / "
+              f"{num(min(pts), 3)} to {num(max(pts), 3)} mol/L")] if std and pts else []
+    act, temp = cond.get("activity_effect_on_correction") or {}, cond.get("temperature_effect") or {}
+    if act:
+        facts.append(("activity effect on the correction (Davies)", f"K {act['relative_change_of_K']:+.2%} "
+                      "(an estimate, not in U(K))" if act.get("estimated") else str(act.get("note", ""))))
+    if temp:
+        facts.append(("laboratory temperature (van 't Hoff)", str(temp.get("note", ""))))
+    if cond.get("not_in_U"):
+        facts.append(("not in U(K)", "; ".join(cond["not_in_U"])))
+    return facts
+
+
 def _conditions(eq: dict) -> list:
     cond = eq.get("conditions") or {}
     facts, known = [], set()
@@ -85,6 +101,9 @@ def _conditions(eq: dict) -> list:
         z = list(charges[:2]) + [charges[0] + charges[1]]
         facts.append(("charge numbers z(M), z(L), z(ML)", ", ".join(f"{c:+d}" for c in z)))
         known.add("charges")
+    facts += _condition_effects(cond)
+    known |= {"ionic_strength_standards", "ionic_strength_points", "ionic_strength_basis",
+              "activity_effect_on_correction", "temperature_effect", "not_in_U"}
     for key, value in cond.items():  # anything else the record holds, as it stands
         if key not in known and key != "note":
             facts.append((key.replace("_", " "), num(value, 4) if is_number(value) else str(value)))

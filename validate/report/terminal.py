@@ -57,7 +57,7 @@ def check_facts(method, model) -> dict:
     return {"title": method.title, "input_files": [str(p) for p in method.input_files],
             "equipment_items": len(method.items), "solutions": len(method.solutions), "contents": contents,
             "sources": len(model.sources), "defaults_applied": list(method.defaults_shown),
-            "notes": list(method.notes)}
+            "notes": list(method.notes), "left_out": dict(getattr(model, "excluded", None) or {})}
 
 
 def check_lines(facts: dict) -> list[Printable]:
@@ -67,6 +67,8 @@ def check_lines(facts: dict) -> list[Printable]:
                         f"{facts['solutions']} solutions, {facts['contents']}, {facts['sources']} uncertainty "
                         "sources")),
             *_defaults_lines(facts["defaults_applied"], facts["notes"]),
+            *[Line(escape(f"point {p} will be left out of the combined K: {why}"), style="yellow")
+              for p, why in facts.get("left_out", {}).items()],
             Line("[green]the method file is complete and consistent[/]")]
 
 

@@ -154,6 +154,8 @@ def _mixture_lines(e: dict) -> list[Printable]:
         Line(f"[bold]Formation constant K of ML (1:1)[/], in {escape(e['k_unit'])}; conditional on "
              f"{compact(cond['temperature_C'])} degC, I = {compact(cond['ionic_strength_mol_per_L'])} mol/L"),
         _mixture_table(e)]
+    if cond.get("not_in_U"):  # conditions K depends on that U(K) does not hold
+        lines.append(Line(f"  [yellow]not in U(K)[/]: {escape('; '.join(cond['not_in_U']))}", soft_wrap=True))
     lines += [Line(f"  [yellow]note[/] {escape(p['id'])}: {escape(p['saturation_flag'])}", soft_wrap=True)
               for p in e["mixtures"] if p.get("saturation_flag")]
     return lines
