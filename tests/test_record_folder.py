@@ -209,7 +209,7 @@ def test_too_little_free_space_is_refused_before_any_computation(tmp_path, monke
 
 
 @pytest.mark.parametrize("make, message", [
-    (lambda out: out.write_text("x"), "exists and is not a folder"),
+    (lambda out: out.write_text("x"), "exists and is a file, not a folder"),
     (lambda out: (out.mkdir(), (out / "notes.txt").write_text("mine")), "not part of a record (notes.txt)"),
 ])
 def test_an_output_path_that_cannot_take_a_record_is_refused_even_with_overwrite(tmp_path, make, message):
@@ -309,7 +309,7 @@ def test_without_an_atomic_exchange_a_failed_second_rename_puts_the_old_record_b
             raise OSError("no space left on device (simulated)")
 
     monkeypatch.setattr(record_folder, "checkpoint", fail_between)
-    with pytest.raises(OSError, match="simulated"):
+    with pytest.raises(record_folder.OutputError, match="simulated.*holds the old record, unchanged"):
         api.write_outputs(new, out, overwrite=True, pdf=False)
     monkeypatch.setattr(record_folder, "checkpoint", lambda name: None)
     assert _state(out, old, new) == "old" and _no_hidden_siblings(out) == []

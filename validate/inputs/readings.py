@@ -9,7 +9,9 @@ from __future__ import annotations
 import csv
 import io
 import math
+import os
 import re
+import stat
 from pathlib import Path
 
 from validate.inputs.errors import InputError
@@ -24,7 +26,7 @@ def read_text_file(path: Path, what: str) -> str:
                          fix="check the file name and the folder it is in")
     if path.is_dir():
         raise InputError(f"{what} is a folder, not a file", file=path, fix="name the file inside it")
-    data = _bounded_bytes(path, what)
+    data = read_bounded_bytes(path, what)
     if not data.strip():
         raise InputError(f"{what} is empty", file=path,
                          fix="check that the right file is named and that it was saved with its content")
@@ -45,13 +47,22 @@ MAX_FILE_BYTES = 10_000_000
 MAX_READINGS = 100_000
 
 
-def _bounded_bytes(path: Path, what: str) -> bytes:
+def read_bounded_bytes(path: Path, what: str) -> bytes:
     """The file's bytes, refused when it is not a regular file (a pipe or device would hang
-    the reading or never end) or larger than MAX_FILE_BYTES."""
+    the reading or never end) or larger than MAX_FILE_BYTES. The file is opened without
+    waiting and checked again once open, so a file swapped for a pipe meanwhile is refused too."""
     if not path.is_file():
         raise InputError(f"{what} is not a regular file (a pipe, device or socket)", file=path,
                          fix="name a file saved on disk")
-    with path.open("rb") as handle:
+    try:
+        fd = os.open(path, os.O_RDONLY | getattr(os, "O_NONBLOCK", 0))
+    except OSError as exc:
+        raise InputError(f"{what} cannot be read ({exc.strerror})", file=path,
+                         fix="check that the file may be read") from None
+    with os.fdopen(fd, "rb") as handle:
+        if not stat.S_ISREG(os.fstat(fd).st_mode):
+            raise InputError(f"{what} is not a regular file (a pipe, device or socket)", file=path,
+                             fix="name a file saved on disk")
         data = handle.read(MAX_FILE_BYTES + 1)
     if len(data) > MAX_FILE_BYTES:
         raise InputError(f"{what} is larger than the limit of {MAX_FILE_BYTES // 1_000_000} MB", file=path,
