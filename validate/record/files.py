@@ -99,7 +99,8 @@ def read_json_file(path: Path, what: str, fix: str):
     with open(path, "rb") as handle:
         data = handle.read(MAX_JSON_BYTES + 1)
     if len(data) > MAX_JSON_BYTES:
-        raise InputError(f"{what} is larger than the limit of {MAX_JSON_BYTES // 1_000_000} MB", file=path, fix=fix)
+        limit = f"{MAX_JSON_BYTES / 1e6:g} MB" if MAX_JSON_BYTES >= 1_000_000 else f"{MAX_JSON_BYTES} bytes"
+        raise InputError(f"{what} is larger than the limit of {limit}", file=path, fix=fix)
     try:
         text = data.decode("utf-8")
     except UnicodeDecodeError as exc:

@@ -103,8 +103,12 @@ class FileCheck:
 
 
 def check_files(folder: Path, manifest: Manifest) -> tuple[FileCheck, ...]:
-    """Every listed file against its size and SHA-256, and every file present but not listed."""
-    checks = []
+    """Every listed file against its size and SHA-256, every file present but not listed, and
+    manifest.json itself against the bytes its content gives (it cannot list its own hash, but
+    the one JSON writer gives one text for one content, so an edit of its layout shows too)."""
+    own = folder / MANIFEST_FILE
+    same = own.is_file() and own.stat().st_size == len(manifest.to_json()) and own.read_bytes() == manifest.to_json()
+    checks = [FileCheck(MANIFEST_FILE, "unchanged" if same else "changed")]
     for entry in manifest.files:
         target = folder / entry.path
         if not target.is_file():
