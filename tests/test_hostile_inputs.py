@@ -119,6 +119,108 @@ def test_a_device_as_readings_is_refused(tmp_path, capsys):
     _refused(capsys, ["check", str(folder / "method.toml")], 2, "/dev/zero", "not a regular file")
 
 
+def _pipe(path):
+    if not hasattr(os, "mkfifo"):
+        pytest.skip("named pipes need a POSIX system")
+    path.unlink(missing_ok=True)
+    os.mkfifo(path)
+    return path
+
+
+def _device(path):
+    if not os.path.exists("/dev/zero"):
+        pytest.skip("needs a device file")
+    return "/dev/zero"
+
+
+def _calibration_table(folder):
+    table = folder / "table.csv"
+    table.write_text("concentration,absorbance\n1,0.1\n2,0.2\n3,0.31\n4,0.4\n", encoding="utf-8")
+    return table
+
+
+def _method_as(make):
+    def case(folder):
+        target = make(folder / "method.toml")
+        return ["check", str(target)], str(target)
+    return case
+
+
+def _register_as(make):
+    def case(folder):
+        target = make(folder / "our_lab.toml")
+        _edit(folder, "[settings]\n", f'[settings]\nregisters = ["{target}"]\n')
+        return ["check", str(folder / "method.toml")], str(target)
+    return case
+
+
+def _table_as(make):
+    def case(folder):
+        target = make(_calibration_table(folder))
+        return ["calibrate", str(target)], str(target)
+    return case
+
+
+def _run_with_method_as(make):
+    def case(folder):
+        target = make(folder / "method.toml")
+        return ["run", str(target), "--out", str(folder / "new" / "out"), "--trials", "0"], str(target)
+    return case
+
+
+# every file the tool reads, as a named pipe (would hang a plain read) and as a device (never ends)
+NOT_REGULAR = [
+    ("method file, pipe", _method_as(_pipe)), ("method file, device", _method_as(_device)),
+    ("method file for run, pipe", _run_with_method_as(_pipe)),
+    ("register, device", _register_as(_device)),
+    ("calibration table, pipe", _table_as(_pipe)), ("calibration table, device", _table_as(_device)),
+]
+
+
+@pytest.mark.parametrize("label, case", NOT_REGULAR, ids=[c[0] for c in NOT_REGULAR])
+def test_a_pipe_or_device_is_refused_wherever_a_file_is_read(tmp_path, capsys, label, case):
+    folder = _copy(tmp_path)
+    argv, shown = case(folder)
+    _refused(capsys, argv, 2, shown, "not a regular file")
+    assert not (folder / "new").exists()  # a run refused for its input leaves no folder behind
+
+
+@pytest.mark.parametrize("what, name, command", [
+    ("method file", "method.toml", "check"), ("readings table", "readings.csv", "check"),
+    ("calibration table", "table.csv", "calibrate"),
+])
+def test_a_file_over_the_size_limit_is_refused_with_the_limit(tmp_path, capsys, monkeypatch, what, name, command):
+    from validate.inputs import readings
+    from validate.inputs.registers import default_register_files
+    folder = _copy(tmp_path)
+    table = _calibration_table(folder)
+    method = folder / "method.toml"
+    limit = method.stat().st_size - 1  # the method file is read first
+    if what != "method file":  # only this file over the limit: the others (and the registers) below it
+        limit = max(p.stat().st_size for p in [method, *default_register_files()])
+        (folder / name).write_text((folder / name).read_text(encoding="utf-8") + "# padding\n" * limit,
+                                   encoding="utf-8")
+    monkeypatch.setattr(readings, "MAX_FILE_BYTES", limit)  # instead of writing 10 MB
+    argv = ["calibrate", str(table)] if command == "calibrate" else ["check", str(method)]
+    _refused(capsys, argv, 2, str(folder / name), f"{what} is larger than the limit of {limit} bytes")
+
+
+@pytest.mark.skipif(not hasattr(os, "mkfifo"), reason="named pipes need a POSIX system")
+def test_an_input_swapped_for_a_pipe_after_the_run_is_not_waited_for(tmp_path):
+    # the record stores a copy of each input, read again after the computation
+    from validate.workflow import pipeline as api
+    folder = _copy(tmp_path)
+    run = api.analyse(folder / "method.toml", trials=None, advice=False)
+    _pipe(folder / "readings.csv")
+    with pytest.raises(InputError, match="not a regular file"):
+        api.write_outputs(run, tmp_path / "out", pdf=False)
+    assert not (tmp_path / "out").exists()
+
+
+def test_verify_refuses_a_pipe_as_the_folder(tmp_path, capsys):
+    _refused(capsys, ["verify", str(_pipe(tmp_path / "record"))], 2, "not a folder")
+
+
 def test_deep_nesting_in_the_method_file_is_refused(tmp_path, capsys):
     folder = _copy(tmp_path)
     with (folder / "method.toml").open("a", encoding="utf-8") as handle:

@@ -65,7 +65,8 @@ def read_bounded_bytes(path: Path, what: str) -> bytes:
                              fix="name a file saved on disk")
         data = handle.read(MAX_FILE_BYTES + 1)
     if len(data) > MAX_FILE_BYTES:
-        raise InputError(f"{what} is larger than the limit of {MAX_FILE_BYTES // 1_000_000} MB", file=path,
+        limit = f"{MAX_FILE_BYTES / 1e6:g} MB" if MAX_FILE_BYTES >= 1_000_000 else f"{MAX_FILE_BYTES} bytes"
+        raise InputError(f"{what} is larger than the limit of {limit}", file=path,
                          fix="check that the right file is named")
     return data
 
