@@ -18,6 +18,8 @@ from pathlib import Path
 
 import pytest
 from conftest import DEMOS
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
 
 from validate import cli
 from validate.inputs.errors import InputError
@@ -520,3 +522,88 @@ def test_without_an_atomic_exchange_a_failed_second_rename_puts_the_old_record_b
     assert _state(out, old, new) == "old" and _no_hidden_siblings(out) == []
     api.write_outputs(new, out, overwrite=True, pdf=False)  # and without the fault the swap works
     assert _state(out, old, new) == "new" and _no_hidden_siblings(out) == []
+
+
+# ---- fuzzer: --out drawn as any chain of folders, files, pipes and links ----
+
+ANCESTOR_KINDS = ["absent", "folder", "link to folder", "file", "named pipe", "dangling link"]
+OUT_KINDS = ["absent", "folder", "link to folder", "file", "named pipe", "dangling link", "folder with a record",
+             "folder with a note"]
+
+
+def _make(path: Path, kind: str, record: Path) -> None:
+    if kind == "folder":
+        path.mkdir()
+    elif kind == "link to folder":
+        (path.parent / f"{path.name}.target").mkdir()
+        path.symlink_to(path.parent / f"{path.name}.target")
+    elif kind == "file":
+        path.write_text("x")
+    elif kind == "named pipe":
+        os.mkfifo(path)
+    elif kind == "dangling link":
+        path.symlink_to(path.parent / "gone")
+    elif kind == "folder with a record":
+        shutil.copytree(record, path)
+    elif kind == "folder with a note":
+        path.mkdir()
+        (path / "notes.txt").write_text("mine")
+
+
+def _takes_a_record(kinds: list[str], overwrite: bool) -> bool:
+    """The rule: every folder above --out is a folder (or a link to one) or not there yet, and --out
+    is not there yet, an empty folder, or (with --overwrite) a record."""
+    *above, last = kinds
+    return all(k in ("absent", "folder", "link to folder") for k in above) and (
+        last in ("absent", "folder") or (last == "folder with a record" and overwrite))
+
+
+class _Filed:
+    """The two runs and the old one's record folder, shown briefly in hypothesis' reports."""
+
+    def __init__(self, runs, folder: Path):
+        self.old, self.new = runs
+        self.folder = folder
+
+    def __repr__(self) -> str:
+        return "filed"
+
+
+@pytest.fixture(scope="module")
+def filed(runs, tmp_path_factory) -> _Filed:
+    folder = tmp_path_factory.mktemp("filed_old") / "record"
+    api.write_outputs(runs[0], folder, pdf=False)
+    return _Filed(runs, folder)
+
+
+@pytest.mark.skipif(not hasattr(os, "mkfifo"), reason="named pipes need a POSIX system")
+@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(st.lists(st.sampled_from(ANCESTOR_KINDS), max_size=2), st.sampled_from(OUT_KINDS), st.booleans())
+def test_any_output_path_takes_the_record_whole_or_is_refused_untouched(filed, tmp_path_factory,
+                                                                         above, last, overwrite):
+    old, new, filed_old = filed.old, filed.new, filed.folder
+    base = tmp_path_factory.mktemp("out_fuzz")
+    kinds = [*above, last]
+    stop = next((i for i, k in enumerate(kinds[:-1]) if k not in ("folder", "link to folder")), None)
+    if stop is not None:  # nothing can be below a missing folder, a file, a pipe or a broken link
+        kinds = kinds[:stop + 1] + ["absent"] * (len(kinds) - stop - 1)
+    out = base
+    for index, kind in enumerate(kinds):
+        out = out / f"c{index}"
+        if kind != "absent":
+            _make(out, kind, filed_old)
+    before = _tree(base)
+    try:
+        target = api.open_output(out, overwrite=overwrite)
+    except record_folder.OutputError as exc:
+        assert not _takes_a_record(kinds, overwrite), exc.message()
+        assert _tree(base) == before  # nothing made, nothing removed
+        return
+    try:
+        assert _takes_a_record(kinds, overwrite), kinds
+        api.write_record(new, target, pdf=False)
+    finally:
+        target.close()
+    assert _state(out, old, new) == "new" and _no_hidden_siblings(out) == []
+    kept = {entry for entry in before if not (base / entry[0]).is_relative_to(out)}
+    assert kept <= set(_tree(base))  # nothing beside --out was touched
