@@ -309,6 +309,20 @@ def test_out_of_range_arguments_are_refused_before_any_work(tmp_path, capsys, ar
     assert not out.exists()
 
 
+@pytest.mark.parametrize("argv, fragment", [
+    (["calibrate", "table.csv", "--sample", "nan"], "between -0.05 and 4.0"),
+    (["calibrate", "table.csv", "--sample", "1e308"], "between -0.05 and 4.0"),  # overflowed in the fit before
+    (["calibrate", "table.csv", "--sample=-inf"], "between -0.05 and 4.0"),
+    (["calibrate", "table.csv", "--sample", "0,5"], "as a number"),
+    (["run", "method.toml", "--out", ""], "give the name of a folder"),
+    (["run", "method.toml", "--out", "   "], "give the name of a folder"),
+])
+def test_other_arguments_out_of_range_are_refused(capsys, argv, fragment):
+    with pytest.raises(SystemExit) as stopped:
+        cli.main(argv)
+    assert stopped.value.code == 2 and fragment in capsys.readouterr().err
+
+
 @pytest.mark.parametrize("old, new, fragment", [
     ("coverage_probability = 0.95", "coverage_probability = 1e-300", "above 0.5"),
     ("coverage_probability = 0.95", "coverage_probability = 0.999999", "below 0.9999"),
