@@ -2,7 +2,11 @@
 equilibrium points. Each case runs through the command's entry point on a modified copy of a
 demo (invented data) and must end with a clear message and exit code 2 (bad input) or 3 (no
 result), never a traceback or a silently wrong number. The limits checked are this tool's own
-(README) and the physical rules are textbook facts named beside each check."""
+(README) and the physical rules are textbook facts named beside each check.
+
+The catalogue as a whole (this file and nine others), by category, with the number of cases,
+the fuzzers and what they found: docs/hostile_catalogue.md.
+"""
 
 from __future__ import annotations
 
