@@ -20,8 +20,9 @@ from validate.propagation.linear import LinearResult, propagate
 from validate.propagation.montecarlo import McResult, expected_work, new_seed, propagate_mc
 from validate.record.build import build_record
 from validate.record.files import budget_csv, record_json
-from validate.record.folder import RECORD_ALLOWANCE, OutputFolder, check_space
+from validate.record.folder import OutputFolder
 from validate.record.manifest import MANIFEST_FILE, content_hash, make_manifest
+from validate.record.output_checks import RECORD_ALLOWANCE, check_space
 from validate.record.stored import copy_bytes, with_stored_names
 from validate.record.types import Record
 
