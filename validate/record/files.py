@@ -31,7 +31,7 @@ from validate.record.tree import RecordPart
 MAX_JSON_BYTES = 100_000_000
 MAX_JSON_NESTING = 32
 MAX_INT_DIGITS = 40  # a record's integers are counts and seeds (below 2^64, 20 digits)
-_JSON_STRING = re.compile(r'"(?:[^"\\]|\\.)*"')
+_JSON_STRING = re.compile(r'"(?:[^"\\]|\\.)*"?')
 _JSON_BRACKET = re.compile(r"[\[\]{}]")
 
 
@@ -82,12 +82,16 @@ def budget_csv(rows: list[dict]) -> bytes:
     return buffer.getvalue().encode("utf-8")
 
 
-def json_nesting(text: str) -> int:
-    """How deep arrays and objects are nested in a JSON text (brackets inside strings not counted)."""
+def json_nesting(text: str, stop_above: int | None = None) -> int:
+    """How deep arrays and objects are nested in a JSON text (brackets inside strings not
+    counted); the count stops once it passes `stop_above`. Linear in the text whatever it holds:
+    a string runs to its closing quote or, unterminated, to the end (no second try)."""
     depth = deepest = 0
     for match in _JSON_BRACKET.finditer(_JSON_STRING.sub('""', text)):
         depth += 1 if match.group() in "[{" else -1
         deepest = max(deepest, depth)
+        if stop_above is not None and deepest > stop_above:
+            break
     return deepest
 
 
@@ -105,7 +109,7 @@ def read_json_file(path: Path, what: str, fix: str):
         text = data.decode("utf-8")
     except UnicodeDecodeError as exc:
         raise InputError(f"{what} is not UTF-8 text (bad byte at offset {exc.start})", file=path, fix=fix) from None
-    if json_nesting(text) > MAX_JSON_NESTING:
+    if json_nesting(text, stop_above=MAX_JSON_NESTING) > MAX_JSON_NESTING:
         raise InputError(f"{what} is nested more than {MAX_JSON_NESTING} deep (the limit)", file=path, fix=fix)
     try:
         return json.loads(text, parse_constant=_no_constant, parse_int=_bounded_int,
@@ -130,6 +134,9 @@ def _no_constant(name: str):
 def _no_repeated_key(pairs: list[tuple[str, object]]) -> dict:
     data = dict(pairs)
     if len(data) != len(pairs):
-        repeated = sorted({k for k, _ in pairs if sum(1 for key, _ in pairs if key == k) > 1})
-        raise ValueError(f"the key {repeated[0]!r} appears twice in one object")
+        seen: set[str] = set()
+        for key, _ in pairs:
+            if key in seen:
+                raise ValueError(f"the key {key!r} appears twice in one object")
+            seen.add(key)
     return data
