@@ -20,6 +20,7 @@ import io
 import json
 import os
 import re
+import stat
 import tempfile
 from pathlib import Path
 
@@ -100,7 +101,10 @@ def read_json_file(path: Path, what: str, fix: str):
     path = Path(path)
     if not path.is_file():
         raise InputError(f"{what} is not a regular file", file=path, fix=fix)
-    with open(path, "rb") as handle:
+    fd = os.open(path, os.O_RDONLY | getattr(os, "O_NONBLOCK", 0))  # a pipe swapped in meanwhile: no wait
+    with os.fdopen(fd, "rb") as handle:
+        if not stat.S_ISREG(os.fstat(fd).st_mode):
+            raise InputError(f"{what} is not a regular file", file=path, fix=fix)
         data = handle.read(MAX_JSON_BYTES + 1)
     if len(data) > MAX_JSON_BYTES:
         limit = f"{MAX_JSON_BYTES / 1e6:g} MB" if MAX_JSON_BYTES >= 1_000_000 else f"{MAX_JSON_BYTES} bytes"

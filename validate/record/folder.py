@@ -13,10 +13,9 @@ swapped into place, so `--out` holds either the complete old record or the compl
 A lock file beside the folder (`.NAME.lock`, held with flock) makes a second writer into the
 same `--out` fail at once with a clear message instead of silently replacing the first one's
 record. Every precondition (validate.record.output_checks) is checked when the folder is
-opened, before any computation. Folders of the
-path that had to be made are removed again when no record is written. A failure of the disk
-while the record is written (full, read-only, gone) is an `OutputError` that says what `--out`
-still holds, never a traceback.
+opened, before any computation. Folders of the path that had to be made are removed again
+when no record is written. A failure of the disk while the record is written (full,
+read-only, gone) is an `OutputError` that says what `--out` still holds, never a traceback.
 
 `checkpoint(step)` is called before every file operation; tests replace it to interrupt the
 write between any two operations (tests/test_record_folder.py).
