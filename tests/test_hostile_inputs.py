@@ -62,6 +62,16 @@ def test_an_invisible_character_in_a_reading_id_stops_the_check(tmp_path, capsys
     _refused(capsys, ["check", str(folder / "method.toml")], 2, "readings.csv", shown, "retype")
 
 
+@pytest.mark.parametrize("separator", ["\u2028", "\x85", "\x1c", "\x0b"])
+def test_a_separator_at_the_start_of_a_reading_id_is_refused_not_taken_as_a_line_break(tmp_path, capsys,
+                                                                                       separator):
+    # before: str.splitlines broke the row there (and str.strip dropped it), so "\u2028outfall"
+    # was read as "outfall" without a word; a CSV row ends only at LF, CR LF or CR (RFC 4180)
+    folder = _copy(tmp_path)
+    _edit(folder, "outfall,", f"{separator}outfall,", name="readings.csv")
+    _refused(capsys, ["check", str(folder / "method.toml")], 2, "readings.csv", f"\\u{ord(separator):04x}")
+
+
 def test_a_control_character_in_a_series_label_is_refused(tmp_path, capsys):
     folder = _copy(tmp_path)
     _edit(folder, "S4,0.3406,day 1", "S4,0.3406,day\x1b[8m 1", name="readings.csv")

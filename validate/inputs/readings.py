@@ -15,7 +15,7 @@ import stat
 from pathlib import Path
 
 from validate.inputs.errors import InputError
-from validate.inputs.text import clean_id, clean_text
+from validate.inputs.text import clean_id, clean_text, trimmed
 
 
 def read_text_file(path: Path, what: str) -> str:
@@ -78,10 +78,18 @@ LOWEST_READING = -0.05
 HIGHEST_READING = 4.0
 
 
+def text_lines(text: str) -> list[str]:
+    """The lines of a table, broken only where a CSV file breaks them: at LF, CR LF or CR
+    (RFC 4180). str.splitlines would also break at invisible separators (U+2028, U+0085,
+    U+001C ...), and a row cut there loses or mangles its id without a word; kept in the line,
+    they reach the id check and are refused with the character shown."""
+    return text.replace("\r\n", "\n").replace("\r", "\n").split("\n")
+
+
 def _rows(text: str) -> list[tuple[int, list[str]]]:
     """(file line number, cells) of each non-empty, non-comment line."""
     rows = []
-    for line_no, line in enumerate(text.splitlines(), start=1):
+    for line_no, line in enumerate(text_lines(text), start=1):
         if line.lstrip().startswith("#"):
             continue
         cells = next(csv.reader(io.StringIO(line)), [])
@@ -132,7 +140,7 @@ def _reading(row: list[str], line_no: int, i_id: int, i_a: int, columns: int, pa
                          file=path, where=where,
                          fix="a decimal comma splits a number into two cells: write a decimal point, "
                              "e.g. 0.512")
-    ident = clean_id(row[i_id].strip(), file=path, where=where)
+    ident = clean_id(trimmed(row[i_id]), file=path, where=where)
     if not ident:
         raise InputError("the id is empty", file=path, where=where,
                          fix="write the standard, blank or sample id in the first column")
@@ -172,9 +180,9 @@ def load_reading_series(path: Path) -> dict[str, tuple[str, ...]]:
     series: dict[str, list[str]] = {}
     for line_no, row in rows[1:]:
         where = f"row at line {line_no}"
-        label = clean_text(row[i_s].strip(), file=path, where=where) if len(row) > i_s else ""
+        label = clean_text(trimmed(row[i_s]), file=path, where=where) if len(row) > i_s else ""
         if not label:
             raise InputError("the series is empty", file=path, where=where,
                              fix="give every reading its series (e.g. the day or analyst), or drop the column")
-        series.setdefault(clean_id(row[i_id].strip(), file=path), []).append(label)
+        series.setdefault(clean_id(trimmed(row[i_id]), file=path), []).append(label)
     return {k: tuple(v) for k, v in series.items()}
