@@ -272,4 +272,4 @@ def test_any_command_line_is_parsed_in_range_or_refused(options, samples):
             assert args.seed is None or 0 <= args.seed <= cli.MAX_SEED
             assert 0 <= args.top <= cli.MAX_TOP and args.out.strip()
         else:
-            assert all(-0.05 <= a <= 4.0 for a in args.sample)
+            assert all(abs(a) <= cli.MAX_SAMPLE for a in args.sample)

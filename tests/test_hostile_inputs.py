@@ -324,9 +324,9 @@ def test_out_of_range_arguments_are_refused_before_any_work(tmp_path, capsys, ar
 
 
 @pytest.mark.parametrize("argv, fragment", [
-    (["calibrate", "table.csv", "--sample", "nan"], "between -0.05 and 4.0"),
-    (["calibrate", "table.csv", "--sample", "1e308"], "between -0.05 and 4.0"),  # overflowed in the fit before
-    (["calibrate", "table.csv", "--sample=-inf"], "between -0.05 and 4.0"),
+    (["calibrate", "table.csv", "--sample", "nan"], "a finite number from -1e+12 to 1e+12"),
+    (["calibrate", "table.csv", "--sample", "1e308"], "a finite number from"),  # overflowed in the fit before
+    (["calibrate", "table.csv", "--sample=-inf"], "a finite number from"),
     (["calibrate", "table.csv", "--sample", "0,5"], "as a number"),
     (["run", "method.toml", "--out", ""], "give the name of a folder"),
     (["run", "method.toml", "--out", "   "], "give the name of a folder"),

@@ -219,24 +219,6 @@ def _kill_at(method: Path, out: Path, stop: int, exchange: bool = True) -> str:
 
 
 @pytest.mark.slow
-def test_killing_the_process_between_any_two_file_operations_leaves_old_or_new(runs, tmp_path):
-    old, new = runs
-    steps = _steps(new, tmp_path)
-    out = tmp_path / "record"
-    api.write_outputs(old, out, pdf=False)
-    for index in range(len(steps)):
-        step = _kill_at(Path(new.method.path), out, index)
-        assert step == steps[index]
-        state = _state(out, old, new)
-        assert state == ("new" if index > steps.index("swap") else "old"), (step, state)
-        report = verify_record(out)
-        assert report.passed, (step, report.to_dict())
-        # the next write clears what the killed one left behind
-        api.write_outputs(old, out, overwrite=True, pdf=False)
-        assert _no_hidden_siblings(out) == []
-
-
-@pytest.mark.slow
 def test_without_an_atomic_exchange_a_kill_between_the_renames_is_repaired_by_the_next_run(runs, tmp_path):
     # documented limitation (validate.record.folder): on such systems --out is missing for the
     # instant between the two renames; the next run into the same --out puts the old record back

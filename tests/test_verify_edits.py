@@ -254,9 +254,8 @@ def _runs_in_two_processes(method: Path, tmp_path: Path, *extra: str) -> None:
 @pytest.mark.parametrize("demo, extra", [
     # the quick pair: the study, whose K covariance was summed in memory-address order before
     ("nickel_complex", ("--no-advice",)),
-    pytest.param("phosphate_assay", (), marks=pytest.mark.slow),  # with the advisor
-    pytest.param("nickel_complex", (), marks=pytest.mark.slow),
-], ids=["study", "assay with advice", "study with advice"])
+    pytest.param("phosphate_assay", (), marks=pytest.mark.slow),  # the advisor's numbers too
+], ids=["study", "assay with advice"])
 def test_two_processes_with_different_hash_seeds_write_the_same_bytes(tmp_path, demo, extra):
     # the same inputs, seed and software must give the same results.json apart from its run block
     method = DEMOS / demo / "method.toml"

@@ -16,7 +16,6 @@ from rich.console import Console
 
 from validate import __version__
 from validate.inputs.errors import InputError
-from validate.inputs.readings import HIGHEST_READING, LOWEST_READING
 from validate.inputs.run_limits import MAX_SEED, MAX_TRIALS, MIN_TRIALS
 from validate.model.errors import ModelError  # the small module: no numerics for --help
 from validate.report import terminal
@@ -75,7 +74,7 @@ def _parser() -> argparse.ArgumentParser:
     ver.add_argument("folder", help="the folder a `validate run --out` wrote")
     cal = sub.add_parser("calibrate", help="quick check of a calibration table (CSV: concentration,absorbance)")
     cal.add_argument("table", help="CSV with columns concentration and absorbance, one row per reading")
-    cal.add_argument("--sample", action="append", type=_absorbance, default=[], metavar="A",
+    cal.add_argument("--sample", action="append", type=_reading, default=[], metavar="A",
                      help="one reading of the unknown; repeat for replicate readings")
     cal.add_argument("--json", action="store_true", help="print the result as JSON")
     return p
@@ -109,15 +108,21 @@ def _top(text: str) -> int:
     return value
 
 
-def _absorbance(text: str) -> float:
-    """One reading for `calibrate --sample`, in the range the readings table accepts."""
+# `calibrate` takes the table's response as it is (any instrument's signal, not only an
+# absorbance), so a sample reading is bounded only in size: its square and the fit's sums
+# must stay far inside the range of a double (about 1.8e308)
+MAX_SAMPLE = 1e12
+
+
+def _reading(text: str) -> float:
+    """One reading of the unknown for `calibrate --sample`: a finite number of bounded size."""
     try:
         value = float(text)
     except ValueError:
-        raise argparse.ArgumentTypeError(f"give an absorbance as a number (got {text!r})") from None
-    if not LOWEST_READING <= value <= HIGHEST_READING:  # also refuses nan and inf
-        raise argparse.ArgumentTypeError(f"an absorbance must lie between {LOWEST_READING} and {HIGHEST_READING} "
-                                         f"(got {text})")
+        raise argparse.ArgumentTypeError(f"give the reading as a number (got {text!r})") from None
+    if not abs(value) <= MAX_SAMPLE:  # also refuses nan and inf
+        raise argparse.ArgumentTypeError(f"a reading must be a finite number from {-MAX_SAMPLE:g} to "
+                                         f"{MAX_SAMPLE:g} (got {text})")
     return value
 
 
