@@ -2,7 +2,11 @@
 equilibrium points. Each case runs through the command's entry point on a modified copy of a
 demo (invented data) and must end with a clear message and exit code 2 (bad input) or 3 (no
 result), never a traceback or a silently wrong number. The limits checked are this tool's own
-(README) and the physical rules are textbook facts named beside each check."""
+(README) and the physical rules are textbook facts named beside each check.
+
+The catalogue as a whole (this file and nine others), by category, with the number of cases,
+the fuzzers and what they found: docs/hostile_catalogue.md.
+"""
 
 from __future__ import annotations
 
@@ -56,6 +60,16 @@ def test_an_invisible_character_in_a_reading_id_stops_the_check(tmp_path, capsys
     folder = _copy(tmp_path)
     _edit(folder, "S4,0.3406", f"{bad},0.3406", name="readings.csv")
     _refused(capsys, ["check", str(folder / "method.toml")], 2, "readings.csv", shown, "retype")
+
+
+@pytest.mark.parametrize("separator", ["\u2028", "\x85", "\x1c", "\x0b"])
+def test_a_separator_at_the_start_of_a_reading_id_is_refused_not_taken_as_a_line_break(tmp_path, capsys,
+                                                                                       separator):
+    # before: str.splitlines broke the row there (and str.strip dropped it), so "\u2028outfall"
+    # was read as "outfall" without a word; a CSV row ends only at LF, CR LF or CR (RFC 4180)
+    folder = _copy(tmp_path)
+    _edit(folder, "outfall,", f"{separator}outfall,", name="readings.csv")
+    _refused(capsys, ["check", str(folder / "method.toml")], 2, "readings.csv", f"\\u{ord(separator):04x}")
 
 
 def test_a_control_character_in_a_series_label_is_refused(tmp_path, capsys):
@@ -117,6 +131,108 @@ def test_a_device_as_readings_is_refused(tmp_path, capsys):
     folder = _copy(tmp_path)
     _edit(folder, 'readings = "readings.csv"', 'readings = "/dev/zero"')
     _refused(capsys, ["check", str(folder / "method.toml")], 2, "/dev/zero", "not a regular file")
+
+
+def _pipe(path):
+    if not hasattr(os, "mkfifo"):
+        pytest.skip("named pipes need a POSIX system")
+    path.unlink(missing_ok=True)
+    os.mkfifo(path)
+    return path
+
+
+def _device(path):
+    if not os.path.exists("/dev/zero"):
+        pytest.skip("needs a device file")
+    return "/dev/zero"
+
+
+def _calibration_table(folder):
+    table = folder / "table.csv"
+    table.write_text("concentration,absorbance\n1,0.1\n2,0.2\n3,0.31\n4,0.4\n", encoding="utf-8")
+    return table
+
+
+def _method_as(make):
+    def case(folder):
+        target = make(folder / "method.toml")
+        return ["check", str(target)], str(target)
+    return case
+
+
+def _register_as(make):
+    def case(folder):
+        target = make(folder / "our_lab.toml")
+        _edit(folder, "[settings]\n", f'[settings]\nregisters = ["{target}"]\n')
+        return ["check", str(folder / "method.toml")], str(target)
+    return case
+
+
+def _table_as(make):
+    def case(folder):
+        target = make(_calibration_table(folder))
+        return ["calibrate", str(target)], str(target)
+    return case
+
+
+def _run_with_method_as(make):
+    def case(folder):
+        target = make(folder / "method.toml")
+        return ["run", str(target), "--out", str(folder / "new" / "out"), "--trials", "0"], str(target)
+    return case
+
+
+# every file the tool reads, as a named pipe (would hang a plain read) and as a device (never ends)
+NOT_REGULAR = [
+    ("method file, pipe", _method_as(_pipe)), ("method file, device", _method_as(_device)),
+    ("method file for run, pipe", _run_with_method_as(_pipe)),
+    ("register, device", _register_as(_device)),
+    ("calibration table, pipe", _table_as(_pipe)), ("calibration table, device", _table_as(_device)),
+]
+
+
+@pytest.mark.parametrize("label, case", NOT_REGULAR, ids=[c[0] for c in NOT_REGULAR])
+def test_a_pipe_or_device_is_refused_wherever_a_file_is_read(tmp_path, capsys, label, case):
+    folder = _copy(tmp_path)
+    argv, shown = case(folder)
+    _refused(capsys, argv, 2, shown, "not a regular file")
+    assert not (folder / "new").exists()  # a run refused for its input leaves no folder behind
+
+
+@pytest.mark.parametrize("what, name, command", [
+    ("method file", "method.toml", "check"), ("readings table", "readings.csv", "check"),
+    ("calibration table", "table.csv", "calibrate"),
+])
+def test_a_file_over_the_size_limit_is_refused_with_the_limit(tmp_path, capsys, monkeypatch, what, name, command):
+    from validate.inputs import readings
+    from validate.inputs.registers import default_register_files
+    folder = _copy(tmp_path)
+    table = _calibration_table(folder)
+    method = folder / "method.toml"
+    limit = method.stat().st_size - 1  # the method file is read first
+    if what != "method file":  # only this file over the limit: the others (and the registers) below it
+        limit = max(p.stat().st_size for p in [method, *default_register_files()])
+        (folder / name).write_text((folder / name).read_text(encoding="utf-8") + "# padding\n" * limit,
+                                   encoding="utf-8")
+    monkeypatch.setattr(readings, "MAX_FILE_BYTES", limit)  # instead of writing 10 MB
+    argv = ["calibrate", str(table)] if command == "calibrate" else ["check", str(method)]
+    _refused(capsys, argv, 2, str(folder / name), f"{what} is larger than the limit of {limit} bytes")
+
+
+@pytest.mark.skipif(not hasattr(os, "mkfifo"), reason="named pipes need a POSIX system")
+def test_an_input_swapped_for_a_pipe_after_the_run_is_not_waited_for(tmp_path):
+    # the record stores a copy of each input, read again after the computation
+    from validate.workflow import pipeline as api
+    folder = _copy(tmp_path)
+    run = api.analyse(folder / "method.toml", trials=None, advice=False)
+    _pipe(folder / "readings.csv")
+    with pytest.raises(InputError, match="not a regular file"):
+        api.write_outputs(run, tmp_path / "out", pdf=False)
+    assert not (tmp_path / "out").exists()
+
+
+def test_verify_refuses_a_pipe_as_the_folder(tmp_path, capsys):
+    _refused(capsys, ["verify", str(_pipe(tmp_path / "record"))], 2, "not a folder")
 
 
 def test_deep_nesting_in_the_method_file_is_refused(tmp_path, capsys):
@@ -205,6 +321,20 @@ def test_out_of_range_arguments_are_refused_before_any_work(tmp_path, capsys, ar
     assert stopped.value.code == 2
     assert fragment in capsys.readouterr().err
     assert not out.exists()
+
+
+@pytest.mark.parametrize("argv, fragment", [
+    (["calibrate", "table.csv", "--sample", "nan"], "a finite number from -1e+12 to 1e+12"),
+    (["calibrate", "table.csv", "--sample", "1e308"], "a finite number from"),  # overflowed in the fit before
+    (["calibrate", "table.csv", "--sample=-inf"], "a finite number from"),
+    (["calibrate", "table.csv", "--sample", "0,5"], "as a number"),
+    (["run", "method.toml", "--out", ""], "give the name of a folder"),
+    (["run", "method.toml", "--out", "   "], "give the name of a folder"),
+])
+def test_other_arguments_out_of_range_are_refused(capsys, argv, fragment):
+    with pytest.raises(SystemExit) as stopped:
+        cli.main(argv)
+    assert stopped.value.code == 2 and fragment in capsys.readouterr().err
 
 
 @pytest.mark.parametrize("old, new, fragment", [

@@ -18,6 +18,8 @@ from pathlib import Path
 
 import pytest
 from conftest import DEMOS
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
 
 from validate import cli
 from validate.inputs.errors import InputError
@@ -54,18 +56,23 @@ def runs(tmp_path_factory):
     return old, new
 
 
-def _steps(run, tmp_path) -> list[str]:
-    """The file operations of one write, in order, as checkpoint() sees them."""
-    seen: list[str] = []
-    original = record_folder.checkpoint
-    record_folder.checkpoint = seen.append
+def _steps(run, tmp_path, fresh: bool = False, exchange: bool = True) -> list[str]:
+    """The file operations of one write over a record (or, `fresh`, into a new folder), in
+    order, as checkpoint() sees them (`exchange`: with the system's atomic exchange or without)."""
+    first: list[str] = []
+    second: list[str] = []
+    original, swap = record_folder.checkpoint, record_folder._exchange
+    if not exchange:
+        record_folder._exchange = lambda a, b: False
     try:
+        record_folder.checkpoint = first.append
         api.write_outputs(run, tmp_path / "probe", pdf=False)
+        record_folder.checkpoint = second.append
         api.write_outputs(run, tmp_path / "probe", overwrite=True, pdf=False)  # the second one swaps
     finally:
-        record_folder.checkpoint = original
-    half = len(seen) // 2
-    return seen[half:]
+        record_folder.checkpoint, record_folder._exchange = original, swap
+    shutil.rmtree(tmp_path / "probe")
+    return first if fresh else second
 
 
 def _state(out: Path, old, new) -> str:
@@ -109,6 +116,81 @@ def test_an_exception_between_any_two_file_operations_leaves_old_or_new(runs, tm
         api.write_outputs(old, out, overwrite=True, pdf=False)  # the old record again for the next step
 
 
+def _fork_and_kill_at(run, out: Path, stop: int, exchange: bool) -> str:
+    """Write `run` into `out` in a forked child that kills itself with SIGKILL (no clean-up, no
+    finally, no atexit) just before file operation number `stop`; the step's name, or "finished"."""
+    import signal
+    read_end, write_end = os.pipe()
+    pid = os.fork()
+    if pid == 0:  # the child
+        code = 0
+        try:
+            os.close(read_end)
+            calls: list[str] = []
+
+            def kill_at(name):
+                calls.append(name)
+                if len(calls) - 1 == stop:
+                    os.write(write_end, name.encode())
+                    os.kill(os.getpid(), signal.SIGKILL)
+
+            record_folder.checkpoint = kill_at
+            if not exchange:
+                record_folder._exchange = lambda a, b: False  # a system without an atomic exchange
+            api.write_outputs(run, out, overwrite=True, pdf=False)
+            os.write(write_end, b"finished")
+        except BaseException as exc:  # reported to the parent, which fails the test
+            os.write(write_end, f"error: {exc!r}".encode())
+            code = 1
+        finally:
+            os._exit(code)
+    os.close(write_end)
+    _, status = os.waitpid(pid, 0)
+    with os.fdopen(read_end, "rb") as pipe:
+        said = pipe.read().decode()
+    assert not said.startswith("error"), said
+    assert os.WIFSIGNALED(status) == (said != "finished"), (said, status)
+    return said
+
+
+@pytest.mark.skipif(not hasattr(os, "fork"), reason="needs fork (POSIX)")
+@pytest.mark.parametrize("exchange", [True, False], ids=["atomic exchange", "two renames"])
+@pytest.mark.parametrize("fresh", [True, False], ids=["new folder", "over a record"])
+def test_a_kill_between_any_two_file_operations_leaves_old_or_new(runs, tmp_path, fresh, exchange):
+    """SIGKILL before every file operation of the write: --out then holds the complete old record
+    (or, for a new folder, nothing) up to the swap and the complete new one after it; where the
+    system has no atomic exchange, a kill between the two renames is repaired by the next run.
+    Every state is checked file by file against its manifest and the run's content hash; verify
+    is run on the first old and the first new state (the others are the same bytes)."""
+    old, new = runs
+    steps = _steps(new, tmp_path, fresh=fresh, exchange=exchange)
+    assert "swap" in steps and "results.json" in steps
+    out = tmp_path / "record"
+    verified: set[str] = set()
+    for index, step in enumerate([*steps, "finished"]):  # the last one runs to its end
+        shutil.rmtree(out, ignore_errors=True)
+        if not fresh:
+            api.write_outputs(old, out, pdf=False)
+        assert _fork_and_kill_at(new, out, index, exchange) == step
+        after_swap = index > steps.index("swap")
+        between_renames = step == "swap, second rename"
+        if between_renames:  # --out is missing until the next run into it puts the old record back
+            api.open_output(out, overwrite=True).close()
+        if fresh and not after_swap:
+            assert not out.exists(), step
+            state = "none"
+        else:
+            state = _state(out, old, new)
+            assert state == ("new" if after_swap and not between_renames else "old"), (step, state)
+        api.open_output(out, overwrite=True).close()  # the next run clears what the kill left
+        assert _no_hidden_siblings(out) == [], step
+        if state not in verified and state != "none":
+            assert verify_record(out).passed, step
+            verified.add(state)
+    assert verified == ({"new"} if fresh else {"old", "new"})
+    assert ("swap, second rename" in steps) == (not exchange and not fresh)
+
+
 _KILLER = textwrap.dedent("""
     import os, sys
     from validate.record import folder
@@ -134,24 +216,6 @@ def _kill_at(method: Path, out: Path, stop: int, exchange: bool = True) -> str:
                            "yes" if exchange else "no"], capture_output=True, text=True, cwd=ROOT, timeout=300)
     assert done.returncode in (0, 9), done.stderr[-2000:]
     return done.stdout.strip()
-
-
-@pytest.mark.slow
-def test_killing_the_process_between_any_two_file_operations_leaves_old_or_new(runs, tmp_path):
-    old, new = runs
-    steps = _steps(new, tmp_path)
-    out = tmp_path / "record"
-    api.write_outputs(old, out, pdf=False)
-    for index in range(len(steps)):
-        step = _kill_at(Path(new.method.path), out, index)
-        assert step == steps[index]
-        state = _state(out, old, new)
-        assert state == ("new" if index > steps.index("swap") else "old"), (step, state)
-        report = verify_record(out)
-        assert report.passed, (step, report.to_dict())
-        # the next write clears what the killed one left behind
-        api.write_outputs(old, out, overwrite=True, pdf=False)
-        assert _no_hidden_siblings(out) == []
 
 
 @pytest.mark.slow
@@ -208,19 +272,144 @@ def test_too_little_free_space_is_refused_before_any_computation(tmp_path, monke
     assert not (tmp_path / "record").exists() and _no_hidden_siblings(tmp_path / "record") == []
 
 
-@pytest.mark.parametrize("make, message", [
-    (lambda out: out.write_text("x"), "exists and is not a folder"),
-    (lambda out: (out.mkdir(), (out / "notes.txt").write_text("mine")), "not part of a record (notes.txt)"),
-])
-def test_an_output_path_that_cannot_take_a_record_is_refused_even_with_overwrite(tmp_path, make, message):
+def _tree(folder: Path) -> list[tuple[str, str]]:
+    """Every entry under `folder` (hidden ones too, links not followed) with its kind."""
+    found = []
+    for path in sorted(folder.rglob("*")):
+        kind = "link" if path.is_symlink() else "folder" if path.is_dir() else "file"
+        found.append((path.relative_to(folder).as_posix(), kind))
+    return found
+
+
+def _mkfifo(path: Path) -> None:
+    if not hasattr(os, "mkfifo"):
+        pytest.skip("named pipes need a POSIX system")
+    os.mkfifo(path)
+
+
+# (what --out is made as, the --out given relative to the test's folder, what the message must say)
+OUT_CASES = [
+    ("file", lambda base: (base / "record").write_text("x"), "record", "exists and is a file, not a folder"),
+    ("named pipe", lambda base: _mkfifo(base / "record"), "record", "exists and is a named pipe"),
+    ("device", None, "/dev/null", "exists and is a device"),
+    ("dangling link", lambda base: (base / "record").symlink_to(base / "gone"), "record",
+     "symbolic link (to {base}/gone, which does not exist)"),
+    ("link to a folder", lambda base: ((base / "real").mkdir(), (base / "record").symlink_to(base / "real")),
+     "record", "never follows a link"),
+    ("under a file", lambda base: (base / "notes").write_text("x"), "notes/sub/record",
+     "{base}/notes: a folder of the output path is a file"),
+    ("under a dangling link", lambda base: (base / "away").symlink_to(base / "gone"), "away/record",
+     "{base}/away: a folder of the output path is a symbolic link to {base}/gone, which does not exist"),
+    ("foreign files", lambda base: ((base / "record").mkdir(), (base / "record" / "notes.txt").write_text("mine")),
+     "record", "not part of a record (notes.txt)"),
+    ("name too long", lambda base: None, "r" * 250, "the limit here is 241 bytes"),
+]
+
+
+@pytest.mark.parametrize("label, make, given, message", OUT_CASES, ids=[c[0] for c in OUT_CASES])
+def test_an_output_path_that_cannot_take_a_record_is_refused_before_any_computation(
+        tmp_path, monkeypatch, capsys, label, make, given, message):
+    base = tmp_path / "base"
+    base.mkdir()
+    if make is None and given.startswith("/dev") and not os.path.exists(given):
+        pytest.skip("needs a device file")
+    if make is not None:
+        make(base)
+    before = _tree(base)
+    monkeypatch.setattr(api, "analyse", lambda *a, **k: pytest.fail("computed although --out cannot take a record"))
+    out = given if given.startswith("/") else str(base / given)
+    code = cli.main(["run", str(DEMO / "method.toml"), "--out", out, "--overwrite", "--trials", "0"])
+    err = " ".join(capsys.readouterr().err.split())
+    assert code == cli.EXIT_INPUT, err
+    assert err.startswith("output error") and "Traceback" not in err
+    assert message.format(base=base) in err
+    assert _tree(base) == before  # nothing made, nothing removed
+    if label == "foreign files":
+        assert (base / "record" / "notes.txt").read_text() == "mine"
+
+
+def test_a_read_only_file_system_is_named_as_such(tmp_path, monkeypatch):
+    # the superuser may write in any folder but not on a read-only file system; its flag is
+    # what statvfs reports (POSIX <sys/statvfs.h>, ST_RDONLY), simulated here
+    if not hasattr(os, "ST_RDONLY"):
+        pytest.skip("statvfs flags need a POSIX system")
+    real = os.statvfs
+
+    class ReadOnly:
+        def __init__(self, path):
+            self.f_flag = real(path).f_flag | os.ST_RDONLY
+
+    monkeypatch.setattr(record_folder.os, "statvfs", ReadOnly)
+    with pytest.raises(record_folder.OutputError, match="read-only file system"):
+        api.open_output(tmp_path / "record")
+    assert list(tmp_path.iterdir()) == []
+
+
+def test_folders_made_for_a_record_that_is_not_written_are_removed(tmp_path, capsys):
+    # --out names folders that are not there yet, and the method file is missing: nothing stays
+    out = tmp_path / "new" / "deeper" / "record"
+    code = cli.main(["run", str(tmp_path / "missing.toml"), "--out", str(out), "--trials", "0"])
+    assert code == cli.EXIT_INPUT and "not found" in capsys.readouterr().err
+    assert list(tmp_path.iterdir()) == []
+
+
+@pytest.mark.parametrize("fresh", [True, False], ids=["new folder", "over a record"])
+@pytest.mark.parametrize("where", ["writing a file", "writing the PDF"])
+def test_a_full_disk_while_writing_is_an_output_error_and_loses_nothing(runs, tmp_path, monkeypatch, capsys,
+                                                                         fresh, where):
+    import errno
+    old, new = runs
     out = tmp_path / "record"
-    make(out)
-    before = sorted(p.name for p in tmp_path.iterdir())
-    with pytest.raises(InputError, match=message.replace("(", r"\(").replace(")", r"\)")):
-        api.open_output(out, overwrite=True)
-    assert sorted(p.name for p in tmp_path.iterdir()) == before  # nothing made, nothing removed
-    if out.is_dir():
-        assert (out / "notes.txt").read_text() == "mine"
+    if not fresh:
+        api.write_outputs(old, out, pdf=False)
+    before = None if fresh else (out / "results.json").read_bytes()
+
+    def disk_full(*args, **kwargs):
+        raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC))
+
+    if where == "writing a file":
+        monkeypatch.setattr(record_folder.os, "fsync", disk_full)
+    else:
+        monkeypatch.setattr("validate.report.pdf.build_report", disk_full)
+    monkeypatch.setattr(api, "analyse", lambda *a, **k: new)
+    code = cli.main(["run", new.method.path, "--out", str(out), "--overwrite", "--trials", "0"])
+    err = " ".join(capsys.readouterr().err.split())
+    assert code == cli.EXIT_INPUT and "Traceback" not in err
+    assert err.startswith("output error") and os.strerror(errno.ENOSPC) in err
+    if fresh:
+        assert "--out holds nothing (no record was written)" in err and not out.exists()
+    else:
+        assert "--out holds the old record, unchanged" in err
+        assert (out / "results.json").read_bytes() == before and _state(out, old, new) == "old"
+    assert _no_hidden_siblings(out) == []
+
+
+def test_a_kill_signal_is_handled_like_ctrl_c(runs, tmp_path):
+    # SIGTERM (kill's default) while the record is staged: the staging folder and the lock are
+    # removed, the message says nothing was changed, and the exit code is 128 + 15 (shell convention)
+    import signal
+    if not hasattr(signal, "SIGTERM") or os.name != "posix":
+        pytest.skip("POSIX signals")
+    old, _ = runs
+    out = tmp_path / "record"
+    api.write_outputs(old, out, pdf=False)
+    before = (out / "results.json").read_bytes()
+    script = textwrap.dedent("""
+        import os, signal, sys
+        from validate import cli
+        from validate.record import folder
+        def terminate_at(name):
+            if name == "budget.csv":
+                os.kill(os.getpid(), signal.SIGTERM)
+        folder.checkpoint = terminate_at
+        sys.exit(cli.main(["run", sys.argv[1], "--out", sys.argv[2], "--overwrite", "--trials", "0",
+                           "--no-advice", "--no-pdf"]))
+    """)
+    done = subprocess.run([sys.executable, "-c", script, old.method.path, str(out)], capture_output=True,
+                          text=True, cwd=ROOT, timeout=300)
+    assert done.returncode == 128 + signal.SIGTERM, done.stderr[-2000:]
+    assert "no record was written or changed" in done.stderr and "Traceback" not in done.stderr
+    assert (out / "results.json").read_bytes() == before and _no_hidden_siblings(out) == []
 
 
 def test_an_empty_folder_takes_a_record(runs, tmp_path):
@@ -309,9 +498,94 @@ def test_without_an_atomic_exchange_a_failed_second_rename_puts_the_old_record_b
             raise OSError("no space left on device (simulated)")
 
     monkeypatch.setattr(record_folder, "checkpoint", fail_between)
-    with pytest.raises(OSError, match="simulated"):
+    with pytest.raises(record_folder.OutputError, match="simulated.*holds the old record, unchanged"):
         api.write_outputs(new, out, overwrite=True, pdf=False)
     monkeypatch.setattr(record_folder, "checkpoint", lambda name: None)
     assert _state(out, old, new) == "old" and _no_hidden_siblings(out) == []
     api.write_outputs(new, out, overwrite=True, pdf=False)  # and without the fault the swap works
     assert _state(out, old, new) == "new" and _no_hidden_siblings(out) == []
+
+
+# ---- fuzzer: --out drawn as any chain of folders, files, pipes and links ----
+
+ANCESTOR_KINDS = ["absent", "folder", "link to folder", "file", "named pipe", "dangling link"]
+OUT_KINDS = ["absent", "folder", "link to folder", "file", "named pipe", "dangling link", "folder with a record",
+             "folder with a note"]
+
+
+def _make(path: Path, kind: str, record: Path) -> None:
+    if kind == "folder":
+        path.mkdir()
+    elif kind == "link to folder":
+        (path.parent / f"{path.name}.target").mkdir()
+        path.symlink_to(path.parent / f"{path.name}.target")
+    elif kind == "file":
+        path.write_text("x")
+    elif kind == "named pipe":
+        os.mkfifo(path)
+    elif kind == "dangling link":
+        path.symlink_to(path.parent / "gone")
+    elif kind == "folder with a record":
+        shutil.copytree(record, path)
+    elif kind == "folder with a note":
+        path.mkdir()
+        (path / "notes.txt").write_text("mine")
+
+
+def _takes_a_record(kinds: list[str], overwrite: bool) -> bool:
+    """The rule: every folder above --out is a folder (or a link to one) or not there yet, and --out
+    is not there yet, an empty folder, or (with --overwrite) a record."""
+    *above, last = kinds
+    return all(k in ("absent", "folder", "link to folder") for k in above) and (
+        last in ("absent", "folder") or (last == "folder with a record" and overwrite))
+
+
+class _Filed:
+    """The two runs and the old one's record folder, shown briefly in hypothesis' reports."""
+
+    def __init__(self, runs, folder: Path):
+        self.old, self.new = runs
+        self.folder = folder
+
+    def __repr__(self) -> str:
+        return "filed"
+
+
+@pytest.fixture(scope="module")
+def filed(runs, tmp_path_factory) -> _Filed:
+    folder = tmp_path_factory.mktemp("filed_old") / "record"
+    api.write_outputs(runs[0], folder, pdf=False)
+    return _Filed(runs, folder)
+
+
+@pytest.mark.skipif(not hasattr(os, "mkfifo"), reason="named pipes need a POSIX system")
+@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(st.lists(st.sampled_from(ANCESTOR_KINDS), max_size=2), st.sampled_from(OUT_KINDS), st.booleans())
+def test_any_output_path_takes_the_record_whole_or_is_refused_untouched(filed, tmp_path_factory,
+                                                                         above, last, overwrite):
+    old, new, filed_old = filed.old, filed.new, filed.folder
+    base = tmp_path_factory.mktemp("out_fuzz")
+    kinds = [*above, last]
+    stop = next((i for i, k in enumerate(kinds[:-1]) if k not in ("folder", "link to folder")), None)
+    if stop is not None:  # nothing can be below a missing folder, a file, a pipe or a broken link
+        kinds = kinds[:stop + 1] + ["absent"] * (len(kinds) - stop - 1)
+    out = base
+    for index, kind in enumerate(kinds):
+        out = out / f"c{index}"
+        if kind != "absent":
+            _make(out, kind, filed_old)
+    before = _tree(base)
+    try:
+        target = api.open_output(out, overwrite=overwrite)
+    except record_folder.OutputError as exc:
+        assert not _takes_a_record(kinds, overwrite), exc.message()
+        assert _tree(base) == before  # nothing made, nothing removed
+        return
+    try:
+        assert _takes_a_record(kinds, overwrite), kinds
+        api.write_record(new, target, pdf=False)
+    finally:
+        target.close()
+    assert _state(out, old, new) == "new" and _no_hidden_siblings(out) == []
+    kept = {entry for entry in before if not (base / entry[0]).is_relative_to(out)}
+    assert kept <= set(_tree(base))  # nothing beside --out was touched

@@ -4,8 +4,10 @@ what is printed is rendered by validate.report.terminal."""
 from __future__ import annotations
 
 import argparse
+import contextlib
 import math
 import shutil
+import signal
 import sys
 from pathlib import Path
 from typing import TYPE_CHECKING
@@ -14,6 +16,7 @@ from rich.console import Console
 
 from validate import __version__
 from validate.inputs.errors import InputError
+from validate.inputs.run_limits import MAX_SEED, MAX_TRIALS, MIN_TRIALS
 from validate.model.errors import ModelError  # the small module: no numerics for --help
 from validate.report import terminal
 
@@ -48,7 +51,7 @@ def _parser() -> argparse.ArgumentParser:
     sub = p.add_subparsers(dest="command", required=True)
     run = sub.add_parser("run", help="evaluate a method file and write the record")
     run.add_argument("method", help="the method file (TOML)")
-    run.add_argument("--out", required=True, help="folder for results.json and budget.csv")
+    run.add_argument("--out", required=True, type=_folder_name, help="folder for results.json and budget.csv")
     run.add_argument("--overwrite", action="store_true", help="replace a record already in --out")
     run.add_argument("--top", type=_top, default=5, help="how many budget lines to print (default 5)")
     run.add_argument("--trials", default="1000000", type=_trials,
@@ -71,19 +74,13 @@ def _parser() -> argparse.ArgumentParser:
     ver.add_argument("folder", help="the folder a `validate run --out` wrote")
     cal = sub.add_parser("calibrate", help="quick check of a calibration table (CSV: concentration,absorbance)")
     cal.add_argument("table", help="CSV with columns concentration and absorbance, one row per reading")
-    cal.add_argument("--sample", action="append", type=float, default=[], metavar="A",
+    cal.add_argument("--sample", action="append", type=_reading, default=[], metavar="A",
                      help="one reading of the unknown; repeat for replicate readings")
     cal.add_argument("--json", action="store_true", help="print the result as JSON")
     return p
 
 
-# Bounds of the numeric arguments. A run keeps a few arrays of one number per trial and result
-# (README, Performance: about 0.5 GiB at 10^7 trials), so 10^8 trials is the most one machine
-# holds; numpy's seed is a non-negative integer, and 2^63 - 1 keeps it within a signed 64-bit
-# integer in the record.
-MAX_TRIALS = 100_000_000
-MIN_TRIALS = 1000
-MAX_SEED = 2**63 - 1
+# Bounds of the numeric arguments: validate.inputs.run_limits (a filed record's re-run is held to them too).
 MAX_TOP = 1000
 
 
@@ -111,6 +108,30 @@ def _top(text: str) -> int:
     return value
 
 
+# `calibrate` takes the table's response as it is (any instrument's signal, not only an
+# absorbance), so a sample reading is bounded only in size: its square and the fit's sums
+# must stay far inside the range of a double (about 1.8e308)
+MAX_SAMPLE = 1e12
+
+
+def _reading(text: str) -> float:
+    """One reading of the unknown for `calibrate --sample`: a finite number of bounded size."""
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"give the reading as a number (got {text!r})") from None
+    if not abs(value) <= MAX_SAMPLE:  # also refuses nan and inf
+        raise argparse.ArgumentTypeError(f"a reading must be a finite number from {-MAX_SAMPLE:g} to "
+                                         f"{MAX_SAMPLE:g} (got {text})")
+    return value
+
+
+def _folder_name(text: str) -> str:
+    if not text.strip() or "\x00" in text:
+        raise argparse.ArgumentTypeError(f"give the name of a folder (got {text!r})")
+    return text
+
+
 def _whole_number(text: str, name: str, fix: str) -> int:
     """An integer written as 1000, 1e6 or 1_000; refused when not finite or not whole."""
     try:
@@ -131,23 +152,55 @@ def _tolerant_streams() -> None:
             reconfigure(errors="replace")
 
 
+class Terminated(KeyboardInterrupt):
+    """A termination signal (kill's default SIGTERM, a closed terminal's SIGHUP), handled as Ctrl-C:
+    the staged record is removed and the message says what --out holds."""
+
+    def __init__(self, signum: int):
+        super().__init__(signum)
+        self.exit_code = 128 + signum
+
+
+def _terminate(signum, frame):
+    raise Terminated(signum)
+
+
+@contextlib.contextmanager
+def _termination_as_interrupt():
+    wanted = [getattr(signal, name) for name in ("SIGTERM", "SIGHUP") if hasattr(signal, name)]
+    try:
+        previous = {sig: signal.signal(sig, _terminate) for sig in wanted}
+    except ValueError:  # not the main thread (an embedding program): leave its handlers alone
+        previous = {}
+    try:
+        yield
+    finally:
+        for sig, handler in previous.items():
+            signal.signal(sig, handler)
+
+
+def _interrupt_code(exc: KeyboardInterrupt) -> int:
+    return exc.exit_code if isinstance(exc, Terminated) else 130
+
+
 def main(argv=None) -> int:
     _tolerant_streams()
     args = _parser().parse_args(argv)
     console = Console(highlight=False)
     errors = Console(stderr=True, highlight=False)
     try:
-        return {"run": _run, "check": _check, "init": _init, "calibrate": _calibrate,
-                "verify": _verify}[args.command](args, console)
+        with _termination_as_interrupt():
+            return {"run": _run, "check": _check, "init": _init, "calibrate": _calibrate,
+                    "verify": _verify}[args.command](args, console)
     except InputError as exc:
-        _show(errors, [terminal.error_line("input error", exc.message())])
+        _show(errors, [terminal.error_line(exc.kind, exc.message())])
         return EXIT_INPUT
     except ModelError as exc:
         _show(errors, [terminal.error_line("no result", str(exc))])
         return EXIT_DATA
-    except KeyboardInterrupt:
+    except KeyboardInterrupt as exc:
         _show(errors, [terminal.interrupted_line()])
-        return 130
+        return _interrupt_code(exc)
     except BrokenPipeError:  # output piped into a program that stopped reading (e.g. head)
         sys.stderr.close()
         return 0
@@ -182,9 +235,9 @@ def _run(args, console: Console) -> int:
     try:
         run = _analyse(args, console)
         written = api.write_record(run, target, pdf=not args.no_pdf)
-    except KeyboardInterrupt:
+    except KeyboardInterrupt as exc:
         _show(Console(stderr=True, highlight=False), [terminal.interrupted_line(replaced=target.committed)])
-        return 130
+        return _interrupt_code(exc)
     finally:
         target.close()
     verdict = run.record.get("verdict")

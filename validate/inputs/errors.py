@@ -6,6 +6,8 @@ from __future__ import annotations
 class InputError(Exception):
     """A problem with the user's input. Printed without a traceback; exit code 2."""
 
+    kind = "input error"  # how the command labels it (a subclass may say more exactly what failed)
+
     def __init__(self, what: str, *, file=None, where: str | None = None, fix: str | None = None):
         self.what = what
         self.file = str(file) if file is not None else None

@@ -9,11 +9,13 @@ from __future__ import annotations
 import csv
 import io
 import math
+import os
 import re
+import stat
 from pathlib import Path
 
 from validate.inputs.errors import InputError
-from validate.inputs.text import clean_id, clean_text
+from validate.inputs.text import clean_id, clean_text, trimmed
 
 
 def read_text_file(path: Path, what: str) -> str:
@@ -24,7 +26,7 @@ def read_text_file(path: Path, what: str) -> str:
                          fix="check the file name and the folder it is in")
     if path.is_dir():
         raise InputError(f"{what} is a folder, not a file", file=path, fix="name the file inside it")
-    data = _bounded_bytes(path, what)
+    data = read_bounded_bytes(path, what)
     if not data.strip():
         raise InputError(f"{what} is empty", file=path,
                          fix="check that the right file is named and that it was saved with its content")
@@ -45,16 +47,26 @@ MAX_FILE_BYTES = 10_000_000
 MAX_READINGS = 100_000
 
 
-def _bounded_bytes(path: Path, what: str) -> bytes:
+def read_bounded_bytes(path: Path, what: str) -> bytes:
     """The file's bytes, refused when it is not a regular file (a pipe or device would hang
-    the reading or never end) or larger than MAX_FILE_BYTES."""
+    the reading or never end) or larger than MAX_FILE_BYTES. The file is opened without
+    waiting and checked again once open, so a file swapped for a pipe meanwhile is refused too."""
     if not path.is_file():
         raise InputError(f"{what} is not a regular file (a pipe, device or socket)", file=path,
                          fix="name a file saved on disk")
-    with path.open("rb") as handle:
+    try:
+        fd = os.open(path, os.O_RDONLY | getattr(os, "O_NONBLOCK", 0))
+    except OSError as exc:
+        raise InputError(f"{what} cannot be read ({exc.strerror})", file=path,
+                         fix="check that the file may be read") from None
+    with os.fdopen(fd, "rb") as handle:
+        if not stat.S_ISREG(os.fstat(fd).st_mode):
+            raise InputError(f"{what} is not a regular file (a pipe, device or socket)", file=path,
+                             fix="name a file saved on disk")
         data = handle.read(MAX_FILE_BYTES + 1)
     if len(data) > MAX_FILE_BYTES:
-        raise InputError(f"{what} is larger than the limit of {MAX_FILE_BYTES // 1_000_000} MB", file=path,
+        limit = f"{MAX_FILE_BYTES / 1e6:g} MB" if MAX_FILE_BYTES >= 1_000_000 else f"{MAX_FILE_BYTES} bytes"
+        raise InputError(f"{what} is larger than the limit of {limit}", file=path,
                          fix="check that the right file is named")
     return data
 
@@ -66,10 +78,18 @@ LOWEST_READING = -0.05
 HIGHEST_READING = 4.0
 
 
+def text_lines(text: str) -> list[str]:
+    """The lines of a table, broken only where a CSV file breaks them: at LF, CR LF or CR
+    (RFC 4180). str.splitlines would also break at invisible separators (U+2028, U+0085,
+    U+001C ...), and a row cut there loses or mangles its id without a word; kept in the line,
+    they reach the id check and are refused with the character shown."""
+    return text.replace("\r\n", "\n").replace("\r", "\n").split("\n")
+
+
 def _rows(text: str) -> list[tuple[int, list[str]]]:
     """(file line number, cells) of each non-empty, non-comment line."""
     rows = []
-    for line_no, line in enumerate(text.splitlines(), start=1):
+    for line_no, line in enumerate(text_lines(text), start=1):
         if line.lstrip().startswith("#"):
             continue
         cells = next(csv.reader(io.StringIO(line)), [])
@@ -120,7 +140,7 @@ def _reading(row: list[str], line_no: int, i_id: int, i_a: int, columns: int, pa
                          file=path, where=where,
                          fix="a decimal comma splits a number into two cells: write a decimal point, "
                              "e.g. 0.512")
-    ident = clean_id(row[i_id].strip(), file=path, where=where)
+    ident = clean_id(trimmed(row[i_id]), file=path, where=where)
     if not ident:
         raise InputError("the id is empty", file=path, where=where,
                          fix="write the standard, blank or sample id in the first column")
@@ -173,8 +193,8 @@ def _label_column(path: Path, column: str, fix: str | None) -> dict[str, tuple[s
     labels: dict[str, list[str]] = {}
     for line_no, row in rows[1:]:
         where = f"row at line {line_no}"
-        label = clean_text(row[i_s].strip(), file=path, where=where) if len(row) > i_s else ""
+        label = clean_text(trimmed(row[i_s]), file=path, where=where) if len(row) > i_s else ""
         if not label and fix is not None:
             raise InputError(f"the {column} is empty", file=path, where=where, fix=fix)
-        labels.setdefault(clean_id(row[i_id].strip(), file=path), []).append(label)
+        labels.setdefault(clean_id(trimmed(row[i_id]), file=path), []).append(label)
     return {k: tuple(v) for k, v in labels.items()}

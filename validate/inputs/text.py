@@ -35,6 +35,13 @@ def is_invisible(char: str) -> bool:
     return unicodedata.category(char) in _INVISIBLE
 
 
+def trimmed(cell: str) -> str:
+    """A table cell without the spaces and tabs around it. Only these: str.strip would also drop
+    invisible separators (U+2028, U+0085, U+001C ...) at the ends of an id without a word,
+    which must reach the id check instead."""
+    return cell.strip(" \t")
+
+
 def normal_id(text: str) -> str:
     """NFKC, with the Greek mu the micro sign (so "μL" and "µL" are one unit)."""
     return unicodedata.normalize("NFKC", text).replace("\u03bc", "\u00b5")

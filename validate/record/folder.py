@@ -12,9 +12,10 @@ swapped into place, so `--out` holds either the complete old record or the compl
 
 A lock file beside the folder (`.NAME.lock`, held with flock) makes a second writer into the
 same `--out` fail at once with a clear message instead of silently replacing the first one's
-record. Every precondition (a folder, not a file; nothing in it that is not part of a record;
-writable; enough free space for the expected size) is checked when the folder is opened,
-before any computation.
+record. Every precondition (validate.record.output_checks) is checked when the folder is
+opened, before any computation. Folders of the path that had to be made are removed again
+when no record is written. A failure of the disk while the record is written (full,
+read-only, gone) is an `OutputError` that says what `--out` still holds, never a traceback.
 
 `checkpoint(step)` is called before every file operation; tests replace it to interrupt the
 write between any two operations (tests/test_record_folder.py).
@@ -30,18 +31,20 @@ import shutil
 import tempfile
 from pathlib import Path
 
-from validate.inputs.errors import InputError
+from validate.record.output_checks import (
+    OutputError,
+    check_place,
+    check_space,
+    check_target,
+    check_writable,
+    make_parents,
+    reason_of,
+)
 
 try:
     import fcntl
 except ImportError:  # not a POSIX system: the lock falls back to an exclusive lock file
     fcntl = None  # type: ignore[assignment]
-
-# what a record folder may hold; anything else is the analyst's and is never swapped away
-RECORD_ENTRIES = frozenset({"results.json", "budget.csv", "report.pdf", "manifest.json", "inputs", "registers"})
-# room for results.json, budget.csv and report.pdf before their size is known (the demos' records
-# take about 1 MB; figures make the PDF the largest part)
-RECORD_ALLOWANCE = 16 * 1024 * 1024
 
 
 def checkpoint(step: str) -> None:
@@ -64,6 +67,7 @@ class OutputFolder:
         self.staging: Path | None = None
         self.committed = False
         self._lock: _Lock | None = None
+        self._made: list[Path] = []  # folders of the path made for this record, outermost first
 
     # ---- opening: every precondition before any computation ----
 
@@ -75,16 +79,22 @@ class OutputFolder:
         self.close()
 
     def open(self) -> None:
+        check_place(self.out)
         check_target(self.out, self.overwrite)
         parent = self.out.parent
-        _make_parent(parent)
-        self._lock = _Lock(parent / f".{self.out.name}.lock", self.out)
         try:
+            self._made = make_parents(parent)
+            check_writable(parent)
+            self._lock = _Lock(parent / f".{self.out.name}.lock", self.out)
             _recover(self.out)
             check_target(self.out, self.overwrite)  # again: another run may have written it meanwhile
             check_space(parent, self.expected_bytes)
             self.staging = Path(tempfile.mkdtemp(dir=parent, prefix=f".{self.out.name}.new-"))
             os.chmod(self.staging, 0o755)  # mkdtemp makes it private; a record is meant to be read
+        except OSError as exc:
+            self.close()
+            raise OutputError(f"cannot prepare the folder for the record ({reason_of(exc)}); nothing was "
+                              f"written", file=self.out, fix="choose a folder you may write in with --out") from None
         except BaseException:
             self.close()
             raise
@@ -96,6 +106,19 @@ class OutputFolder:
         if self._lock is not None:
             self._lock.release()
             self._lock = None
+        if not self.committed:  # the folders made for a record that was not written
+            for folder in reversed(self._made):
+                with contextlib.suppress(OSError):
+                    folder.rmdir()
+        self._made = []
+
+    def failed(self, exc: OSError, step: str) -> OutputError:
+        """The message for a write that failed (`step`: what was being done); --out is as it was."""
+        held = "the old record, unchanged" if self.out.exists() else "nothing (no record was written)"
+        return OutputError(f"the record could not be written: {step} failed ({reason_of(exc)}); --out holds "
+                           f"{held}", file=self.out,
+                           fix="free some space or fix the disk, or choose another folder with --out, "
+                               "then run again")
 
     # ---- staging the files ----
 
@@ -110,16 +133,22 @@ class OutputFolder:
         """Where `name` (relative, e.g. "inputs/readings.csv") goes in the staged record; its folder is made."""
         checkpoint(name)
         target = self.staged / name
-        target.parent.mkdir(parents=True, exist_ok=True)
+        try:
+            target.parent.mkdir(parents=True, exist_ok=True)
+        except OSError as exc:
+            raise self.failed(exc, f"making the folder for {name}") from None
         return target
 
     def write(self, name: str, data: bytes) -> Path:
         target = self.reserve(name)
-        with open(target, "wb") as out:
-            out.write(data)
-            out.flush()
-            os.fsync(out.fileno())
-        os.chmod(target, 0o644)
+        try:
+            with open(target, "wb") as out:
+                out.write(data)
+                out.flush()
+                os.fsync(out.fileno())
+            os.chmod(target, 0o644)
+        except OSError as exc:
+            raise self.failed(exc, f"writing {name}") from None
         return target
 
     # ---- the swap ----
@@ -131,59 +160,16 @@ class OutputFolder:
         checkpoint("sync")
         _sync_tree(self.staging)
         checkpoint("swap")
-        old = _swap(self.staging, self.out)
+        try:
+            old = _swap(self.staging, self.out)
+        except OSError as exc:  # _swap leaves the old record in place when it fails
+            raise self.failed(exc, "moving the new record into place") from None
         self.committed = True
         _sync_dir(self.out.parent)
         if old is not None:
             checkpoint("remove old record")
             shutil.rmtree(old, ignore_errors=True)
         self.staging = None
-
-
-def check_target(out: Path, overwrite: bool) -> None:
-    """Refuse (InputError) to write where the result would destroy something or cannot be written."""
-    if out.is_symlink() or (out.exists() and not out.is_dir()):
-        raise InputError("the output path exists and is not a folder", file=out,
-                         fix="choose a folder name with --out")
-    if not out.exists():
-        return
-    names = sorted(p.name for p in out.iterdir())
-    foreign = [n for n in names if n not in RECORD_ENTRIES]
-    if foreign:
-        shown = ", ".join(foreign[:5]) + (" ..." if len(foreign) > 5 else "")
-        raise InputError(f"the folder holds files that are not part of a record ({shown}); a record "
-                         f"replaces the whole folder, so it is not written here", file=out,
-                         fix="choose a new or empty folder with --out, or move those files elsewhere")
-    if names and not overwrite:
-        raise InputError("this folder already holds a record; it is not overwritten", file=out,
-                         fix="choose another folder with --out, or add --overwrite to replace it")
-    if names and not _removable(out):
-        raise InputError("the record in this folder cannot be replaced: a folder in it is not writable",
-                         file=out, fix="make the folder writable, or choose another folder with --out")
-
-
-def check_space(folder: Path, expected_bytes: int) -> None:
-    free = shutil.disk_usage(folder).free
-    if expected_bytes > free:
-        raise InputError(f"not enough free space for the record: {free / 1e6:.1f} MB free, about "
-                         f"{expected_bytes / 1e6:.1f} MB needed", file=folder,
-                         fix="free some space on that disk, or choose a folder on another disk with --out")
-
-
-def _removable(out: Path) -> bool:
-    folders = [out] + [p for p in out.rglob("*") if p.is_dir() and not p.is_symlink()]
-    return all(os.access(p, os.W_OK | os.X_OK) for p in folders)
-
-
-def _make_parent(parent: Path) -> None:
-    try:
-        parent.mkdir(parents=True, exist_ok=True)
-    except OSError as exc:
-        raise InputError(f"cannot make the folder for the record ({exc.strerror})", file=parent,
-                         fix="choose a folder you may write in with --out") from None
-    if not os.access(parent, os.W_OK | os.X_OK):
-        raise InputError("the folder that holds --out is not writable", file=parent,
-                         fix="choose a folder you may write in with --out")
 
 
 # ---- the lock ----
@@ -197,11 +183,11 @@ class _Lock:
         try:
             self.fd = _acquire(path)
         except (BlockingIOError, FileExistsError):
-            raise InputError("another run is writing a record into this folder right now", file=out,
+            raise OutputError("another run is writing a record into this folder right now", file=out,
                              fix="wait for it to finish, or choose another folder with --out"
                                  + ("" if fcntl is not None else f"; if no run is active, delete {path}")) from None
         except PermissionError:
-            raise InputError("the folder that holds --out is not writable", file=path.parent,
+            raise OutputError("the folder that holds --out is not writable", file=path.parent,
                              fix="choose a folder you may write in with --out") from None
 
     def release(self) -> None:

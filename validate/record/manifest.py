@@ -9,12 +9,12 @@ PDF and by `validate verify`, so a paper copy can be matched with its record.
 from __future__ import annotations
 
 import hashlib
-import json
+import os
 from dataclasses import dataclass
 from pathlib import Path
 
 from validate.inputs.errors import InputError
-from validate.record.files import json_bytes, sha256_of
+from validate.record.files import json_bytes, read_json_file, sha256_of
 from validate.record.tree import RecordPart, RecordShapeError, described
 
 MANIFEST_FILE = "manifest.json"
@@ -61,13 +61,15 @@ def make_manifest(folder: Path, record: dict) -> Manifest:
 def read_manifest(folder: Path) -> Manifest | None:
     """The folder's manifest; None when there is none (a record written before manifests)."""
     path = folder / MANIFEST_FILE
-    if not path.is_file():
+    if not os.path.lexists(path):
         return None
+    fix = "the file was damaged or edited by hand; restore the folder from the archive"
     try:
-        manifest = Manifest.from_dict(json.loads(path.read_text(encoding="utf-8")))
-    except (UnicodeDecodeError, json.JSONDecodeError, RecordShapeError) as exc:
-        raise InputError(f"manifest.json is not readable ({exc})", file=path,
-                         fix="the file was damaged or edited by hand; restore the folder from the archive") from None
+        manifest = Manifest.from_dict(read_json_file(path, "manifest.json", fix))
+    except RecordShapeError as exc:
+        raise InputError(f"manifest.json is not readable ({exc})", file=path, fix=fix) from None
+    except OSError as exc:
+        raise InputError(f"manifest.json cannot be read ({exc.strerror})", file=path, fix=fix) from None
     for entry in manifest.files:
         check_inside(folder, entry.path, path)
     return manifest
@@ -101,8 +103,12 @@ class FileCheck:
 
 
 def check_files(folder: Path, manifest: Manifest) -> tuple[FileCheck, ...]:
-    """Every listed file against its size and SHA-256, and every file present but not listed."""
-    checks = []
+    """Every listed file against its size and SHA-256, every file present but not listed, and
+    manifest.json itself against the bytes its content gives (it cannot list its own hash, but
+    the one JSON writer gives one text for one content, so an edit of its layout shows too)."""
+    own = folder / MANIFEST_FILE
+    same = own.is_file() and own.stat().st_size == len(manifest.to_json()) and own.read_bytes() == manifest.to_json()
+    checks = [FileCheck(MANIFEST_FILE, "unchanged" if same else "changed")]
     for entry in manifest.files:
         target = folder / entry.path
         if not target.is_file():

@@ -16,6 +16,7 @@ import os
 from pathlib import Path, PurePosixPath
 
 from validate.inputs.errors import InputError
+from validate.inputs.readings import read_bounded_bytes
 from validate.record.build import BUILTIN_REGISTER, METHOD_FILE
 from validate.record.manifest import check_inside
 from validate.record.types import InputFile, Record
@@ -46,12 +47,13 @@ def with_stored_names(record: Record) -> Record:
 
 
 def copy_bytes(entry: InputFile) -> bytes:
-    """The bytes to store for an input; refused when the file changed since it was analysed."""
-    try:
-        data = Path(entry.path).read_bytes()
-    except OSError as exc:
-        raise InputError(f"cannot read the input again to store its copy ({exc.strerror})", file=entry.path,
-                         fix="leave the input files in place until the run has finished") from None
+    """The bytes to store for an input; refused when the file changed since it was analysed
+    (read with the inputs' own bounds: a file swapped for a pipe meanwhile would hang the write)."""
+    path = Path(entry.path)
+    if not path.exists():
+        raise InputError("cannot read the input again to store its copy (it is gone)", file=entry.path,
+                         fix="leave the input files in place until the run has finished")
+    data = read_bounded_bytes(path, "the input")
     if hashlib.sha256(data).hexdigest() != entry.sha256:
         raise InputError("the file changed while the run was in progress; the record is not written",
                          file=entry.path, fix="run the method again once the file is no longer being edited")

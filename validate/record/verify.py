@@ -10,14 +10,14 @@ re-run by design; the inputs are compared by their SHA-256.
 
 from __future__ import annotations
 
-import json
 import math
+import os
 from dataclasses import dataclass
 from pathlib import Path
 
 from validate import __version__
 from validate.inputs.errors import InputError
-from validate.record.files import budget_csv, sha256_of
+from validate.record.files import budget_csv, read_json_file, sha256_of
 from validate.record.manifest import RUN_METADATA, FileCheck
 from validate.record.stored import INPUTS_FOLDER, RECORD_FILE
 from validate.record.tree import RecordShapeError
@@ -30,6 +30,7 @@ RELATIVE_TOLERANCE = 1e-9  # numbers agreeing to about 9 significant digits coun
 # it did); the tolerance allows for another machine's floating-point library.
 ABSOLUTE_TOLERANCE = 1e-12
 BUDGET_FILE = "budget.csv"
+DAMAGED = "the file was damaged or edited by hand; restore it from the archive"
 _ABSENT = "(absent)"
 
 __all__ = ["ABSOLUTE_TOLERANCE", "INPUTS_FOLDER", "RECORD_FILE", "RELATIVE_TOLERANCE", "FileCheck", "InputCheck",
@@ -186,13 +187,12 @@ def read_filed_record(folder: Path) -> dict:
     path = folder / RECORD_FILE
     if not folder.is_dir():
         raise InputError("not a folder", file=folder, fix="give the folder that a `validate run --out` wrote")
-    if not path.is_file():
+    if not os.path.lexists(path):
         raise InputError("no record here", file=path, fix="give the folder that a `validate run --out` wrote")
     try:
-        record = json.loads(path.read_text(encoding="utf-8"))
-    except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
-        raise InputError(f"the record is not readable JSON ({exc})", file=path,
-                         fix="the file was damaged or edited by hand; restore it from the archive") from None
+        record = read_json_file(path, "the record", DAMAGED)
+    except OSError as exc:
+        raise InputError(f"the record cannot be read ({exc.strerror})", file=path, fix=DAMAGED) from None
     if not isinstance(record, dict) or not all(k in record for k in ("inputs", "results")):
         raise InputError("this file is not a record written by validate", file=path,
                          fix="give the folder that a `validate run --out` wrote")
@@ -212,8 +212,7 @@ def _check_layout(record: dict, path: Path) -> None:
         read_record(record)
     except RecordShapeError as exc:
         raise InputError(f"the record does not have the layout of version {SCHEMA_VERSION}: {exc.problem}",
-                         file=path, where=exc.where,
-                         fix="the file was damaged or edited by hand; restore it from the archive") from None
+                         file=path, where=exc.where, fix=DAMAGED) from None
 
 
 def check_input(folder: Path, entry: dict) -> InputCheck:
@@ -224,9 +223,11 @@ def check_input(folder: Path, entry: dict) -> InputCheck:
 
 
 def budget_file_matches(folder: Path, record: dict) -> bool:
-    """budget.csv regenerated from the record's budget is byte for byte the file in the folder."""
+    """budget.csv regenerated from the record's budget is byte for byte the file in the folder
+    (the sizes first: a file of another size is never read)."""
     path = folder / BUDGET_FILE
-    return path.is_file() and path.read_bytes() == budget_csv(record.get("budget") or [])
+    expected = budget_csv(record.get("budget") or [])
+    return path.is_file() and path.stat().st_size == len(expected) and path.read_bytes() == expected
 
 
 def record_id(record: dict) -> str | None:

@@ -18,7 +18,7 @@ import numpy as np
 from scipy.stats import t as student_t
 
 from validate.inputs.errors import InputError
-from validate.inputs.readings import read_text_file
+from validate.inputs.readings import read_text_file, text_lines
 from validate.model.errors import ModelError
 from validate.model.line import fit_line, inverse_prediction
 from validate.validation.limits import range_flags
@@ -119,7 +119,7 @@ def _content_lines(path: Path) -> list[tuple[int, str]]:
     if not path.exists():  # the one reader below also refuses pipes, devices, binary and huge files
         raise TableError("file not found", file=path, fix="check the path")
     text = read_text_file(path, "calibration table")
-    lines = [(i, ln) for i, ln in enumerate(text.splitlines(), start=1)
+    lines = [(i, ln) for i, ln in enumerate(text_lines(text), start=1)
              if ln.strip() and not ln.lstrip().startswith("#")]
     if not lines:
         raise TableError("the table is empty", file=path,

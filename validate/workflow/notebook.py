@@ -15,7 +15,6 @@ computed anew.
 
 from __future__ import annotations
 
-import json
 from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
@@ -24,6 +23,7 @@ import pandas as pd
 
 from validate.inputs.errors import InputError
 from validate.inputs.schema import Method
+from validate.record.files import read_json_file
 from validate.record.tree import RecordShapeError
 from validate.record.types import Record, read_record
 from validate.workflow import pipeline
@@ -72,13 +72,10 @@ def read(path) -> Record:
     """A filed record: a folder written by `validate run --out` or its results.json."""
     file = Path(path)
     file = file / "results.json" if file.is_dir() else file
-    try:
-        data = json.loads(file.read_text(encoding="utf-8"))
-    except FileNotFoundError:
+    if not file.exists():
         raise InputError("no record here", file=file, fix="give a folder written by `validate run --out` "
-                         "or its results.json") from None
-    except json.JSONDecodeError as exc:
-        raise InputError(f"not JSON: {exc.msg}", file=file, where=f"line {exc.lineno}") from None
+                         "or its results.json")
+    data = read_json_file(file, "the record", "give a record written by `validate run --out`")  # bounded, strict
     try:
         return read_record(data)
     except RecordShapeError as exc:

@@ -20,8 +20,9 @@ from validate.propagation.linear import LinearResult, propagate
 from validate.propagation.montecarlo import McResult, expected_work, new_seed, propagate_mc
 from validate.record.build import build_record
 from validate.record.files import budget_csv, record_json
-from validate.record.folder import RECORD_ALLOWANCE, OutputFolder, check_space, check_target
+from validate.record.folder import OutputFolder
 from validate.record.manifest import MANIFEST_FILE, content_hash, make_manifest
+from validate.record.output_checks import RECORD_ALLOWANCE, check_space
 from validate.record.stored import copy_bytes, with_stored_names
 from validate.record.types import Record
 
@@ -84,11 +85,6 @@ def expected_size(method_path) -> int:
     return sum(p.stat().st_size for p in files if p.is_file()) + RECORD_ALLOWANCE
 
 
-def check_output_folder(out_dir, overwrite: bool) -> None:
-    """Refuse early (before any computation) to write where a record cannot or may not go."""
-    check_target(Path(out_dir).absolute(), overwrite)
-
-
 def open_output(out_dir, overwrite: bool = False, method_path=None) -> OutputFolder:
     """`--out` checked, locked and staged before any computation (validate.record.folder)."""
     expected = expected_size(method_path) if method_path is not None else RECORD_ALLOWANCE
@@ -111,8 +107,15 @@ def write_record(run: Run, target: OutputFolder, pdf: bool = True) -> list[Path]
         target.write(name, data)
     if pdf:
         from validate.report.pdf import build_report
-        build_report(run.record, target.reserve("report.pdf"), content_hash=content_hash(run.record))
-    target.write(MANIFEST_FILE, make_manifest(target.staged, run.record).to_json())
+        try:
+            build_report(run.record, target.reserve("report.pdf"), content_hash=content_hash(run.record))
+        except OSError as exc:  # the disk filled up or went away while the PDF was written
+            raise target.failed(exc, "writing report.pdf") from None
+    try:
+        manifest = make_manifest(target.staged, run.record).to_json()
+    except OSError as exc:
+        raise target.failed(exc, "reading the staged files for manifest.json") from None
+    target.write(MANIFEST_FILE, manifest)
     target.commit()
     return [target.out / name for name in OUTPUT_FILES if (target.out / name).exists()]
 

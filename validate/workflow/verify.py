@@ -14,6 +14,7 @@ from dataclasses import replace
 from pathlib import Path
 
 from validate.inputs.errors import InputError
+from validate.inputs.run_limits import seed_problem, trials_problem
 from validate.model.assay import ModelError
 from validate.record.manifest import check_files, content_hash, read_manifest
 from validate.record.stored import INPUTS_FOLDER, RECORD_FILE, StoredCopies
@@ -47,6 +48,11 @@ def verify_record(out_dir) -> VerifyReport:
     manifest = read_manifest(folder)
     mc = record.get("monte_carlo_settings") or {}
     trials, seed = mc.get("trials"), mc.get("seed")
+    problem = trials_problem(trials) or seed_problem(seed)
+    if problem:  # a forged record must not make the re-run take the machine's memory or fail inside numpy
+        raise InputError(f"the record asks its re-run for settings no run may have: {problem}",
+                         file=folder / RECORD_FILE, where="monte_carlo_settings",
+                         fix="the file was damaged or edited by hand; restore it from the archive")
     checked = VerifyReport(
         str(folder), record_id(record), tuple(check_input(folder, entry) for entry in entries), trials, seed,
         None, 0, (), recorded_version(record), files=check_files(folder, manifest) if manifest else (),
