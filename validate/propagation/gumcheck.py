@@ -30,7 +30,6 @@ from validate.propagation.mcstats import (
     _interval_length,
     coverage_interval_symmetric,
     numerical_tolerance,
-    sort_ends,
     validate_gum,
 )
 
@@ -105,28 +104,11 @@ def end_spreads(sorted_values: np.ndarray, p: float) -> tuple[float, float]:
     return _spread_at(s, r - 1), _spread_at(s, r + q - 1)
 
 
-def _rank_margin(m: int, index: int) -> int:
-    a = (index + 1) / m
-    return math.ceil(CONFIDENCE_Z * math.sqrt(m * a * (1.0 - a)))
-
-
 def _spread_at(s: np.ndarray, index: int) -> float:
     m = s.size
-    k = _rank_margin(m, index)
+    a = (index + 1) / m
+    k = math.ceil(CONFIDENCE_Z * math.sqrt(m * a * (1.0 - a)))
     return float(s[min(index + k, m - 1)] - s[max(index - k, 0)]) / 2.0
-
-
-def arrange_for_check(values: np.ndarray, p: float) -> None:
-    """Arrange finite values in place so that every order statistic read by both coverage
-    intervals (JCGM 101 7.7.1, 7.7.2) and by the spreads of `end_spreads` is in its sorted
-    place (`sort_ends`); `check_gum` and `summarise_arranged` then take the array as sorted."""
-    m = values.size
-    if m < 2:
-        return
-    q = _interval_length(m, p)
-    r = (m - q + 1) // 2
-    low, high = r - 1, r + q - 1  # the symmetric interval's ends, 0-based
-    sort_ends(values, max(m - q, low + _rank_margin(m, low)), min(q, high - _rank_margin(m, high)))
 
 
 def check_gum(y: float, expanded: float, u: float, sorted_values: np.ndarray, p: float) -> GumCheck:
@@ -138,4 +120,4 @@ def check_gum(y: float, expanded: float, u: float, sorted_values: np.ndarray, p:
     return GumCheck(validation, low, high, TARGET_FRACTION * delta, int(np.asarray(sorted_values).size))
 
 
-__all__ = ["GumCheck", "VERDICTS", "arrange_for_check", "check_gum", "end_spreads"]
+__all__ = ["GumCheck", "VERDICTS", "check_gum", "end_spreads"]

@@ -165,15 +165,12 @@ def summarise(values, p: float = 0.95) -> McSummary:
     finite = np.isfinite(v)
     s = v.copy() if finite.all() else v[finite]  # a copy either way: the caller's array stays as it is
     s.sort()
-    return summarise_arranged(s, int(v.size - s.size), p)
+    return summarise_sorted(s, int(v.size - s.size), p)
 
 
-def summarise_arranged(s: np.ndarray, invalid: int, p: float = 0.95) -> McSummary:
-    """`summarise` of finite values already arranged for the intervals: sorted, or with every
-    order statistic the two intervals read in its sorted place (the lowest M - q + 1 and the
-    highest M - q + 1 values sorted at the two ends, as `sort_ends` leaves them). `invalid`
-    counts the undefined trials left out before. The mean and standard deviation do not depend
-    on the order (up to round-off)."""
+def summarise_sorted(s: np.ndarray, invalid: int, p: float = 0.95) -> McSummary:
+    """`summarise` of finite values already sorted (ascending); `invalid` counts the undefined
+    trials left out before. Lets the engine sort each output once for every statistic."""
     p = _check_p(p)
     if s.size < 2:
         raise ValueError(
@@ -189,25 +186,6 @@ def summarise_arranged(s: np.ndarray, invalid: int, p: float = 0.95) -> McSummar
         invalid_trials=invalid,
         p=p,
     )
-
-
-def sort_ends(s: np.ndarray, low_last: int, high_first: int) -> None:
-    """Sort, in place, the lowest values up to index `low_last` and the highest from index
-    `high_first` (0-based), each in its sorted place; the values between stay in any order.
-
-    The order statistics the coverage intervals read lie at the two ends (JCGM 101 7.7: the
-    shortest interval's ends lie among the lowest and highest M - q + 1 values), so a
-    partition and two short sorts give the same intervals as a full sort, in about a third
-    of the time. Falls back to a full sort when the two ends meet.
-    """
-    m = s.size
-    low_last, high_first = min(max(low_last, 0), m - 1), min(max(high_first, 0), m - 1)
-    if low_last + 1 >= high_first:
-        s.sort()
-        return
-    s.partition((low_last, high_first))
-    s[:low_last + 1].sort()
-    s[high_first:].sort()
 
 
 # --- adaptive procedure, JCGM 101 7.9 -------------------------------------
@@ -401,21 +379,25 @@ class HistogramData:
 
 
 def histogram_data(values, bins: int = 100, value_range: tuple[float, float] | None = None,
-                   invalid: int = 0) -> HistogramData:
+                   invalid: int = 0, presorted: bool = False) -> HistogramData:
     """Counts and bin edges of the finite trial values (NaN/inf are counted, not binned).
 
     `density` divides by all finite trials, so with a `value_range` that cuts
     off some of them it integrates to the fraction inside the range. `invalid`
-    adds undefined trials already left out of `values`.
+    adds undefined trials already left out of `values`. presorted=True promises
+    finite values in ascending order: the counts then come from a binary search
+    for each edge, the same counts as numpy.histogram gives.
     """
     if isinstance(bins, bool) or not isinstance(bins, (int, np.integer)) or bins < 1:
         raise ValueError(f"number of histogram bins must be a positive integer, got {bins!r}")
     v = np.asarray(values, dtype=np.float64).ravel()
-    finite = np.isfinite(v)
-    good = v if finite.all() else v[finite]
+    good = v if presorted or np.isfinite(v).all() else v[np.isfinite(v)]
     if good.size == 0:
         raise ValueError("no Monte Carlo trial gave a defined result; nothing to draw")
-    counts, edges = np.histogram(good, bins=int(bins), range=value_range)
+    if presorted:
+        counts, edges = _sorted_histogram(good, int(bins), value_range)
+    else:
+        counts, edges = np.histogram(good, bins=int(bins), range=value_range)
     widths = np.diff(edges)
     density = counts / (good.size * widths)
     return HistogramData(
@@ -425,3 +407,13 @@ def histogram_data(values, bins: int = 100, value_range: tuple[float, float] | N
         n=int(good.size),
         invalid_trials=int(v.size - good.size) + int(invalid),
     )
+
+
+def _sorted_histogram(s: np.ndarray, bins: int, value_range) -> tuple[np.ndarray, np.ndarray]:
+    """numpy.histogram's counts and edges for sorted values: the same edges (numpy's own
+    `histogram_bin_edges`), and in every bin the values v with edge_i <= v < edge_i+1, the last
+    bin closed on the right, as numpy.histogram bins them."""
+    edges = np.histogram_bin_edges(s, bins=bins, range=value_range)
+    below = np.searchsorted(s, edges, side="left")
+    below[-1] = np.searchsorted(s, edges[-1], side="right")
+    return np.diff(below), edges

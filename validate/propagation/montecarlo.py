@@ -31,7 +31,7 @@ import numpy as np
 from validate.model.assay import Model
 from validate.model.errors import ModelError
 from validate.propagation.distributions import draw_many
-from validate.propagation.gumcheck import GumCheck, arrange_for_check, check_gum
+from validate.propagation.gumcheck import GumCheck, check_gum
 from validate.propagation.linear import LinearResult
 from validate.propagation.mcstats import (
     AdaptiveCheck,
@@ -43,7 +43,7 @@ from validate.propagation.mcstats import (
     coverage_interval_symmetric,
     histogram_data,
     summarise,
-    summarise_arranged,
+    summarise_sorted,
 )
 
 CHUNK = 100_000  # trials evaluated together: large enough for numpy, small enough for memory
@@ -234,8 +234,8 @@ def _shares(model: Model, seed: int, keys: tuple[str, ...], progress,
 
 @dataclass
 class _Kept:
-    """One output's finite values (arranged for the intervals by `arrange_for_check`), its
-    count of undefined trials and its JCGM 101 8.2 comparison."""
+    """One output's finite values (sorted), its count of undefined trials and its JCGM 101 8.2
+    comparison."""
 
     values: np.ndarray
     invalid: int
@@ -249,7 +249,7 @@ class _Kept:
 
 
 def _check(gum: LinearResult, finite: np.ndarray, p: float) -> GumCheck:
-    arrange_for_check(finite, p)
+    finite.sort()  # in place, once: the check, the summary and the histogram read the sorted values
     return check_gum(gum.value, gum.expanded_uncertainty, gum.standard_uncertainty, finite, p)
 
 
@@ -266,18 +266,35 @@ def _label_groups(labels: list[str], trials_each: int) -> list[list[str]]:
     return [labels[i:i + size] for i in range(0, len(labels), size)]
 
 
+@dataclass(frozen=True)
+class _Final:
+    """What is kept of one output once its values are dropped."""
+
+    summary: McSummary
+    check: GumCheck
+    histogram: HistogramData
+
+    @classmethod
+    def of(cls, kept: _Kept, p: float) -> _Final:
+        summary = summarise_sorted(kept.values, kept.invalid, p)
+        return cls(summary, kept.check, _histogram(kept, summary))
+
+
 def _run_fixed(model: Model, gums: dict[str, LinearResult], trials: int, seed: int, p: float,
-               progress) -> dict[str, _Kept]:
-    """Every output's kept values and comparison, run in groups of outputs that fit in memory;
-    each group runs on the same random stream (default_rng(seed)), so the groups see the same trials."""
-    kept: dict[str, _Kept] = {}
+               progress) -> dict[str, _Final]:
+    """Every output's statistics, run in groups of outputs that fit in memory; each group runs on
+    the same random stream (default_rng(seed)), so the groups see the same trials. A group's
+    values are dropped once its statistics are formed."""
+    final: dict[str, _Final] = {}
     for group in _label_groups(list(gums), trials):
         rng = np.random.default_rng(seed)
         values = _fixed(model, trials, rng, progress, group)
         in_group = {name: _Kept.of(gums[name], values.pop(name), p) for name in group}
+        settled = [name for name, k in in_group.items() if k.check.settled]
+        final.update({name: _Final.of(in_group.pop(name), p) for name in settled})  # dropped before more trials
         _extend(model, gums, in_group, trials, p, rng, progress)
-        kept.update(in_group)
-    return kept
+        final.update({name: _Final.of(in_group.pop(name), p) for name in list(in_group)})
+    return final
 
 
 def _extend(model: Model, gums: dict[str, LinearResult], kept: dict[str, _Kept], total: int, p: float, rng,
@@ -293,8 +310,8 @@ def _extend(model: Model, gums: dict[str, LinearResult], kept: dict[str, _Kept],
     state = rng.bit_generator.state
     for group in _label_groups(open_, budget):
         rng.bit_generator.state = state
-        kept.update(_extend_group(model, gums, {name: kept[name] for name in group}, total, budget, p, rng,
-                                  progress))
+        subset = {name: kept.pop(name) for name in group}  # held only here, so replaced values are freed
+        kept.update(_extend_group(model, gums, subset, total, budget, p, rng, progress))
 
 
 def _extend_group(model: Model, gums: dict[str, LinearResult], kept: dict[str, _Kept], total: int, budget: int,
@@ -305,8 +322,9 @@ def _extend_group(model: Model, gums: dict[str, LinearResult], kept: dict[str, _
     buffers = {name: np.empty(budget) for name in kept}
     counts = {}
     for name, k in kept.items():
-        buffers[name][:k.values.size] = k.values
         counts[name] = k.values.size
+        buffers[name][:k.values.size] = k.values
+        kept[name] = _Kept(buffers[name][:k.values.size], k.invalid, k.check)
     while True:
         open_ = [name for name, k in kept.items() if not k.check.settled]
         more = min(total, budget - total)
@@ -330,7 +348,7 @@ def _histogram(kept: _Kept, summary: McSummary) -> HistogramData:
     low95, high95 = summary.symmetric.low, summary.symmetric.high
     spread = 0.6 * (high95 - low95)
     window = (low95 - spread, high95 + spread) if high95 > low95 else None
-    return histogram_data(kept.values, bins=80, value_range=window, invalid=kept.invalid)
+    return histogram_data(kept.values, bins=80, value_range=window, invalid=kept.invalid, presorted=True)
 
 
 def propagate_mc(model: Model, linear: list[LinearResult], trials: int | str = 1_000_000,
@@ -346,14 +364,14 @@ def propagate_mc(model: Model, linear: list[LinearResult], trials: int | str = 1
         values, checks = _adaptive(model, p, rng, progress)
         kept = {name: _Kept.of(gum, values.pop(name), p) for name, gum in gums.items()}
         _extend(model, gums, kept, min(k.values.size + k.invalid for k in kept.values()), p, rng, progress)
+        final = {name: _Final.of(kept.pop(name), p) for name in gums}
     else:
-        kept = _run_fixed(model, gums, int(trials), seed, p, progress)
+        final = _run_fixed(model, gums, int(trials), seed, p, progress)
     by = _shares(model, seed + 1, ("step", "equipment"), progress, share_trials(trials)) if shares else {}
     results = []
     for gum in linear:
-        k = kept.pop(gum.name)
-        summary = summarise_arranged(k.values, k.invalid, p)
-        results.append(McResult(gum.name, seed, summary, k.check, checks.get(gum.name), _histogram(k, summary),
+        f = final[gum.name]
+        results.append(McResult(gum.name, seed, f.summary, f.check, checks.get(gum.name), f.histogram,
                                 tuple(by.get("step", {}).get(gum.name, ())),
                                 tuple(by.get("equipment", {}).get(gum.name, ())), smallest_t_dof(model, gum)))
     return results
@@ -369,8 +387,7 @@ def symmetric_intervals(model: Model, trials: int, seed: int) -> dict[str, Cover
         values = _fixed(model, trials, np.random.default_rng(seed), lambda n: None, group)
         for name in group:
             arr = values.pop(name)
-            finite = arr[np.isfinite(arr)]
-            arrange_for_check(finite, p)
+            finite = np.sort(arr[np.isfinite(arr)])
             out[name] = coverage_interval_symmetric(finite, p, presorted=True)
     return out
 
