@@ -82,7 +82,8 @@ def write_scaled_method(folder: Path, standards: int = 40, samples: int = 50, se
               f"{standards} standards and {samples} samples, for the speed benchmark only.\n")
     body = (header + _between(text, "[settings]", "[solutions.S1]") + _standards_toml(volumes) + "\n"
             + "# ---- calibration and samples ----\n" + _calibration_toml(standards) + "\n"
-            + _samples_toml(samples - len(ids), demo_samples) + "\n" + _between(text, "# ---- the reported result ----", None))
+            + _samples_toml(samples - len(ids), demo_samples) + "\n"
+            + _between(text, "# ---- the reported result ----", None))
     folder.mkdir(parents=True, exist_ok=True)
     (folder / "method.toml").write_text(body, encoding="utf-8")
     csv = _readings(volumes, samples - len(ids), np.random.default_rng(seed),
