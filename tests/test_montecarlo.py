@@ -186,7 +186,7 @@ def _strip_seed(results) -> list[dict]:
     return [r.to_dict() for r in results]
 
 
-@pytest.mark.parametrize(("kept_bytes", "growth"), [(8 * 3 * 20_000, 1), (8 * 200_000, 10)])
+@pytest.mark.parametrize(("kept_bytes", "growth"), [(8 * 3 * 5_000, 1), (8 * 50_000, 10)])
 def test_results_in_memory_groups_equal_one_pass(monkeypatch, kept_bytes, growth):
     # Room for three results' values (no trials added), or for all of them at the trials asked
     # but for one only at the clause 8 budget: the results then run in groups, each on the same
@@ -195,13 +195,13 @@ def test_results_in_memory_groups_equal_one_pass(monkeypatch, kept_bytes, growth
 
     monkeypatch.setattr(mc, "CHECK_GROWTH", growth)
     run = api.analyse(DEMOS / "phosphate_assay" / "method.toml", trials=None, advice=False)
-    one_pass = _strip_seed(mc.propagate_mc(run.model, run.results, 20_000, seed=4, shares=False))
+    one_pass = _strip_seed(mc.propagate_mc(run.model, run.results, 5_000, seed=4, shares=False))
     monkeypatch.setattr(mc, "MAX_KEPT_BYTES", kept_bytes)
-    grouped = _strip_seed(mc.propagate_mc(run.model, run.results, 20_000, seed=4, shares=False))
+    grouped = _strip_seed(mc.propagate_mc(run.model, run.results, 5_000, seed=4, shares=False))
     assert grouped == one_pass
-    assert len(mc._label_groups(run.model.result_labels, 20_000 * growth)) > 1
+    assert len(mc._label_groups(run.model.result_labels, 5_000 * growth)) > 1
     if growth > 1:  # the case is one: some results had trials added
-        assert any(r["trials"] > 20_000 for r in grouped)
+        assert any(r["trials"] > 5_000 for r in grouped)
 
 
 def test_slices_of_the_evaluation_change_no_number(write_method, monkeypatch):
