@@ -299,48 +299,43 @@ def _run_fixed(model: Model, gums: dict[str, LinearResult], trials: int, seed: i
 
 def _extend(model: Model, gums: dict[str, LinearResult], kept: dict[str, _Kept], total: int, p: float, rng,
             progress) -> None:
-    """JCGM 101 8.2: more trials, on the same random stream, for the outputs whose comparison is
-    undecided or not yet known to delta/5, doubling the trials up to the budget. Outputs that may
-    grow to the budget are run in groups that fit in memory, each from the stream's state after
-    the first `total` trials, so every output sees the same trials whatever its group. Updates `kept`."""
+    """JCGM 101 8.2: rounds of more trials, on the same random stream, for the outputs whose
+    comparison is undecided or not yet known to delta/5; each round adds as many trials as were
+    run so far, up to the budget. A round whose open outputs do not fit in memory together runs
+    in groups, each from the stream's state at the round's start, so every output sees the same
+    trials whatever its group. Updates `kept`."""
     budget = min(MAX_CHECK_TRIALS, CHECK_GROWTH * total)
-    open_ = [name for name, k in kept.items() if not k.check.settled]
-    if not open_ or budget <= total:
-        return
-    state = rng.bit_generator.state
-    for group in _label_groups(open_, budget):
-        rng.bit_generator.state = state
-        subset = {name: kept.pop(name) for name in group}  # held only here, so replaced values are freed
-        kept.update(_extend_group(model, gums, subset, total, budget, p, rng, progress))
-
-
-def _extend_group(model: Model, gums: dict[str, LinearResult], kept: dict[str, _Kept], total: int, budget: int,
-                  p: float, rng, progress) -> dict[str, _Kept]:
-    """The rounds of `_extend` for one group: each round adds as many trials as were run so far
-    (at most up to the budget), kept only for the outputs still open, in buffers of the budget's
-    size (pages are only taken as they fill)."""
-    buffers = {name: np.empty(budget) for name in kept}
-    counts = {}
-    for name, k in kept.items():
-        counts[name] = k.values.size
-        buffers[name][:k.values.size] = k.values
-        kept[name] = _Kept(buffers[name][:k.values.size], k.invalid, k.check)
     while True:
         open_ = [name for name, k in kept.items() if not k.check.settled]
         more = min(total, budget - total)
         if not open_ or more <= 0:
-            return kept
-        _fixed(model, more, rng, progress, open_,
-               {name: buffers[name][counts[name]:counts[name] + more] for name in open_})
+            return
+        state = rng.bit_generator.state
+        for group in _label_groups(open_, total + more):
+            rng.bit_generator.state = state
+            _one_round(model, gums, kept, group, more, p, rng, progress)
         total += more
-        for name in open_:
-            start, segment = counts[name], buffers[name][counts[name]:counts[name] + more]
-            finite = np.isfinite(segment)
-            good = segment if finite.all() else segment[finite]  # a copy only when some are undefined
-            buffers[name][start:start + good.size] = good
-            counts[name] = start + good.size
-            values = buffers[name][:counts[name]]
-            kept[name] = _Kept(values, kept[name].invalid + int(more - good.size), _check(gums[name], values, p))
+
+
+def _one_round(model: Model, gums: dict[str, LinearResult], kept: dict[str, _Kept], group: list[str], more: int,
+               p: float, rng, progress) -> None:
+    """`more` trials for the outputs of `group`, added to their kept values and compared again."""
+    buffers = {}
+    for name in group:  # each output's values move to a buffer with room for the new trials
+        k = kept[name]
+        buffers[name] = np.empty(k.values.size + more)
+        buffers[name][:k.values.size] = k.values
+        kept[name] = _Kept(buffers[name][:k.values.size], k.invalid, k.check)  # the old array is freed
+    _fixed(model, more, rng, progress, group, {name: buffers[name][-more:] for name in group})
+    for name in group:
+        k, buffer = kept[name], buffers[name]
+        start = k.values.size
+        segment = buffer[start:]
+        finite = np.isfinite(segment)
+        good = segment if finite.all() else segment[finite]  # a copy only when some are undefined
+        buffer[start:start + good.size] = good
+        values = buffer[:start + good.size]
+        kept[name] = _Kept(values, k.invalid + int(more - good.size), _check(gums[name], values, p))
 
 
 def _histogram(kept: _Kept, summary: McSummary) -> HistogramData:
