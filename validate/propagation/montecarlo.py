@@ -11,7 +11,9 @@ result) are held for at most MAX_KEPT_BYTES at once. A run whose results do not
 fit together runs in groups of results, each group on the same random stream
 (the same seed, so the same trials; the model is evaluated once per group); a
 result is summarised as soon as it is final and its values are dropped. A run
-whose single result does not fit stops with a message before any trial.
+whose single result does not fit stops with a message before any trial. (The
+adaptive procedure, trials="auto", keeps every result's values of its batches, at
+most MAX_ADAPTIVE_TRIALS each: it is not split into groups.)
 
 Budget shares (held groups) use common random numbers: one set of draws and one
 base run, shared by every held-group run.
