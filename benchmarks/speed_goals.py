@@ -11,7 +11,8 @@ runs of the generated method) are skipped unless --before-all is given.
 Methods: the two demos in example_inputs/ and a generated copy of the phosphate demo with
 40 standards and 50 samples (benchmarks/scaled_method.py; invented readings).
 
-Usage: python benchmarks/speed_goals.py [--runs 3] [--before CHECKOUT [--before-all]]
+Usage: python benchmarks/speed_goals.py [--runs 3] [--before CHECKOUT [--before-all]] [--memory]
+       [--only TEXT]   (TEXT: only the measures whose label contains it, e.g. "Monte Carlo")
 """
 
 from __future__ import annotations
@@ -86,7 +87,7 @@ def whole_run(checkout: Path, method: Path, runs: int, out: Path) -> list[float]
 
 
 def show(goal: Goal, after: float, before: float | None) -> None:
-    scale, unit = (1024.0, "kB") if goal.unit == "bytes" else (1.0, "s")
+    scale, unit = (1024.0, "kB") if goal.unit == "bytes" else (1.0, goal.unit)
     ratio = f"{before / after:7.1f}x" if before is not None and after > 0 else "       -"
     was = f"{before / scale:9.3f}" if before is not None else "        -"
     if goal.limit is None:
@@ -101,11 +102,14 @@ def _median(values: list[float]) -> float:
 
 
 class Bench:
-    def __init__(self, runs: int, before: Path | None, before_all: bool, scratch: Path) -> None:
+    def __init__(self, runs: int, before: Path | None, before_all: bool, scratch: Path, only: str = "") -> None:
         self.runs, self.before, self.before_all, self.scratch = runs, before, before_all, scratch
+        self.only = only
 
     def both(self, goal: Goal, measure, slow: bool = False) -> None:
         """Run `measure(checkout)` here and, when asked, on the before-checkout; print the pair."""
+        if self.only not in goal.label:
+            return
         after = measure(ROOT)
         before = measure(self.before) if self.before and (self.before_all or not slow) else None
         show(goal, after, before)
@@ -126,6 +130,27 @@ class Bench:
         self.both(Goal(f"whole run with defaults, {label}", limit),
                   lambda c: _median(whole_run(c, method, runs, out)), slow)
 
+    def monte_carlo(self, method: Path, label: str) -> None:
+        """Goal 1: the Monte Carlo stage against its draw-only floor (a ratio, so `limit` is 2)."""
+        for measure, how in (("mc", "as a run does"), ("mc-asked", "trials asked only")):
+            found = {}
+
+            def measured(c: Path, measure=measure, found=found) -> dict:
+                if c not in found:
+                    found[c] = probe(c, measure, method, self.runs)
+                return found[c]
+
+            self.both(Goal(f"Monte Carlo 10^6 + shares, {label}, {how}: s", None),
+                      lambda c: _median(measured(c)["cpu"]))
+            self.both(Goal(f"  ... its draw-only floor (the same trials drawn), {label}, {how}: s", None),
+                      lambda c: _median(measured(c)["floor"]))
+            self.both(Goal(f"  ... ratio engine / floor, {label}, {how}", 2.0, "x"),
+                      lambda c: _median(measured(c)["cpu"]) / _median(measured(c)["floor"]))
+
+    def memory(self, method: Path, label: str) -> None:
+        self.both(Goal(f"peak memory, Monte Carlo at 10^7 trials + shares, {label}: MiB", 600.0, "MiB"),
+                  lambda c: probe(c, "memory", method, 1)["mib"], slow=True)
+
     def pdf(self, method: Path, label: str) -> None:
         results = {}
 
@@ -144,18 +169,23 @@ def main() -> None:
     parser.add_argument("--runs", type=int, default=3)
     parser.add_argument("--before", type=Path, default=None, help="another checkout to time side by side")
     parser.add_argument("--before-all", action="store_true", help="also the slow before-measures")
+    parser.add_argument("--memory", action="store_true", help="also peak memory at 10^7 trials (minutes)")
+    parser.add_argument("--only", default="", help="run only the measures whose label contains this text")
     args = parser.parse_args()
     print(pin_to_one_core(), f"; CPU seconds, median of {args.runs} runs; before = {args.before or '-'}")
     print(f"{'measure':58s} {'before':>9s} {'after':>9s} {'ratio':>8s}   goal")
     with tempfile.TemporaryDirectory() as folder:
         scratch = Path(folder)
         scaled = write_scaled_method(scratch / "scaled", standards=40, samples=50)
-        bench = Bench(args.runs, args.before.resolve() if args.before else None, args.before_all, scratch)
+        bench = Bench(args.runs, args.before.resolve() if args.before else None, args.before_all, scratch,
+                      args.only)
         for label, method in DEMOS.items():
             bench.gum(method, f"{label} demo", 1.0)
         bench.gum(scaled, "generated 40 standards x 50 samples", 1.0)
         for label, method in DEMOS.items():
             bench.advisor(method, f"{label} demo")
+        for label, method in DEMOS.items():
+            bench.monte_carlo(method, f"{label} demo")
         bench.both(Goal("validate --help", 0.5), lambda c: _median(command_cpu(c, ["--help"], args.runs)))
         for label, method in DEMOS.items():
             bench.both(Goal(f"validate check, {label} demo", 0.5),
@@ -164,6 +194,9 @@ def main() -> None:
         for label, method in DEMOS.items():
             bench.whole(method, f"{label} demo", 4.0)
         bench.whole(scaled, "generated 40 x 50", 15.0, slow=True)
+        if args.memory:
+            for label, method in DEMOS.items():
+                bench.memory(method, f"{label} demo")
 
 
 if __name__ == "__main__":

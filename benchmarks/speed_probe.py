@@ -10,6 +10,11 @@ and, for the PDF, its size. MEASURE is one of:
   advisor-linear  the same without the Monte Carlo check
   pdf      the report from a finished run (10^6 trials, seed 1); also the CPU time inside the
            figure functions and the file size
+  mc       the Monte Carlo stage of a default run (10^6 trials, seed 1, with the shares and the
+           clause 8 comparison's added trials) and its floor: drawing the same random numbers
+           only (the trials of the main run and of the additions, and the shares' one set)
+  mc-asked the same with no trials added for the clause 8 comparison (the trials asked only)
+  memory   peak resident memory (MiB) of the Monte Carlo stage at 10^7 trials with the shares
 """
 
 from __future__ import annotations
@@ -91,11 +96,51 @@ def pdf(method: str, runs: int) -> dict:
     return {"cpu": total, "figures_cpu": figures, "bytes": size}
 
 
+def _mc_and_floor(method: str, runs: int, growth: int | None) -> dict:
+    import numpy as np
+
+    from validate.propagation import montecarlo as mc
+    from validate.propagation.distributions import draw_many
+    from validate.workflow import pipeline
+
+    if growth is not None:
+        mc.CHECK_GROWTH = growth
+    run = pipeline.analyse(method, trials=None, advice=False)
+    trials = 1_000_000
+    results: list = []
+    engine = [_cpu(lambda: results.append(mc.propagate_mc(run.model, run.results, trials, seed=1)))
+              for _ in range(runs)]
+    drawn = max(r.summary.total_trials for r in results[-1]) + mc.share_trials(trials)
+    sources = list(run.model.sources.values())
+
+    def draw_only() -> None:
+        rng, done = np.random.default_rng(1), 0
+        while done < drawn:
+            n = min(mc.CHUNK, drawn - done)
+            draw_many(sources, n, rng)
+            done += n
+
+    return {"cpu": engine, "floor": [_cpu(draw_only) for _ in range(runs)], "drawn": drawn}
+
+
+def memory(method: str) -> dict:
+    import resource
+
+    from validate.propagation.montecarlo import propagate_mc
+    from validate.workflow import pipeline
+
+    run = pipeline.analyse(method, trials=None, advice=False)
+    propagate_mc(run.model, run.results, 10_000_000, seed=1)
+    return {"mib": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0}  # Linux: KiB
+
+
 def main() -> None:
     checkout, measure, method, runs = sys.argv[1], sys.argv[2], sys.argv[3], int(sys.argv[4])
     sys.path.insert(0, checkout)
     probes = {"gum": lambda: gum(method, runs), "advisor": lambda: advisor(method, runs, 3),
-              "advisor-linear": lambda: advisor(method, runs, 0), "pdf": lambda: pdf(method, runs)}
+              "advisor-linear": lambda: advisor(method, runs, 0), "pdf": lambda: pdf(method, runs),
+              "mc": lambda: _mc_and_floor(method, runs, None), "mc-asked": lambda: _mc_and_floor(method, runs, 1),
+              "memory": lambda: memory(method)}
     if measure not in probes:
         raise SystemExit(f"unknown measure {measure!r}; choose one of {', '.join(probes)}")
     print(json.dumps(probes[measure]()))

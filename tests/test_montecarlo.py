@@ -128,7 +128,7 @@ formula = "sqrt(A)"
     assert mc.to_dict()["invalid_trials"] == mc.summary.invalid_trials
 
 
-def test_calibration_refitted_in_every_trial(tmp_path):
+def test_calibration_refitted_in_every_trial(tmp_path, monkeypatch):
     # Bottom-up demo: readings carry photometer noise, so the line differs from trial to
     # trial. Slope and intercept of each trial must equal an independent OLS fit
     # (numpy.polyfit) of that trial's standards and readings.
@@ -154,8 +154,90 @@ def test_calibration_refitted_in_every_trial(tmp_path):
         assert intercepts[trial] == pytest.approx(intercept, rel=1e-7, abs=1e-12)
     # and the spread of the line feeds the result: Monte Carlo and GUM agree for this
     # nearly linear model (JCGM 101 clause 8 spirit: relative difference of u below 5 %)
-    run = api.analyse(folder / "method.toml", trials=100_000, seed=4, advice=False)
-    for gum, mc in zip(run.results, run.monte_carlo, strict=True):
+    from validate.propagation import montecarlo
+
+    monkeypatch.setattr(montecarlo, "CHECK_GROWTH", 1)  # the trials the clause 8 comparison adds are not checked here
+    run = api.analyse(folder / "method.toml", trials=None, advice=False)
+    for gum, mc in zip(run.results, montecarlo.propagate_mc(run.model, run.results, 100_000, seed=4, shares=False),
+                       strict=True):
         assert mc.summary.standard_deviation == pytest.approx(gum.standard_uncertainty, rel=0.05)
     out = evaluate_trials(model, 10, np.random.default_rng(0))
     assert all(v.shape == (10,) for v in out.values())
+
+
+# ---- the engine's economies change no number (a property of the arithmetic, not a reference value) ----
+
+SEVERAL = """
+[quantities.A]
+value = 1
+u = 0.02
+[quantities.B]
+value = 2
+half_width = 0.05
+[quantities.C]
+value = 0.5
+u = 0.01
+distribution = "t"
+dof = 6
+[result]
+name = "Y"
+unit = ""
+formula = "A / B + C * A"
+"""
+
+
+def _strip_seed(results) -> list[dict]:
+    return [r.to_dict() for r in results]
+
+
+@pytest.mark.parametrize(("kept_bytes", "growth"), [(8 * 3 * 5_000, 1), (8 * 50_000, 10)])
+def test_results_in_memory_groups_equal_one_pass(monkeypatch, kept_bytes, growth):
+    # Room for three results' values (no trials added), or for all of them at the trials asked
+    # but for one only at the clause 8 budget: the results then run in groups, each on the same
+    # random stream; the record must be the same, number for number, as one pass for all.
+    from validate.propagation import montecarlo as mc
+
+    monkeypatch.setattr(mc, "CHECK_GROWTH", growth)
+    run = api.analyse(DEMOS / "phosphate_assay" / "method.toml", trials=None, advice=False)
+    one_pass = _strip_seed(mc.propagate_mc(run.model, run.results, 5_000, seed=4, shares=False))
+    monkeypatch.setattr(mc, "MAX_KEPT_BYTES", kept_bytes)
+    grouped = _strip_seed(mc.propagate_mc(run.model, run.results, 5_000, seed=4, shares=False))
+    assert grouped == one_pass
+    assert len(mc._label_groups(run.model.result_labels, 5_000 * growth)) > 1
+    if growth > 1:  # the case is one: some results had trials added
+        assert any(r["trials"] > 5_000 for r in grouped)
+
+
+def test_slices_of_the_evaluation_change_no_number(write_method, monkeypatch):
+    from validate.propagation import montecarlo as mc
+
+    run = api.analyse(write_method(SEVERAL), trials=None, advice=False)
+    whole = mc.evaluate_trials(run.model, 30_000, np.random.default_rng(5))
+    monkeypatch.setattr(mc, "EVAL_SLICE", 977)  # slices that do not divide the chunk
+    sliced = mc.evaluate_trials(run.model, 30_000, np.random.default_rng(5))
+    assert all(np.array_equal(whole[k], sliced[k]) for k in whole)
+
+
+def test_shares_from_one_set_of_draws_equal_a_fresh_draw_per_group(write_method):
+    # The definition: every held-group run draws all sources from the same seed, the group's held
+    # at their estimates (common random numbers); the engine draws once and runs the base once.
+    from validate.propagation import montecarlo as mc
+
+    run = api.analyse(write_method(SEVERAL), trials=None, advice=False)
+    model, n, seed = run.model, 5_000, 8
+    shares = mc._shares(model, seed, ("step",), lambda k: None, n)["step"]
+    base = mc.evaluate_trials(model, n, np.random.default_rng(seed))
+    for group, share in shares["Y"]:
+        names = frozenset(k for k, s in model.sources.items() if (s.step or "(none)") == group)
+        held = mc.evaluate_trials(model, n, np.random.default_rng(seed), names)
+        assert share == 1.0 - np.nanvar(held["Y"]) / np.nanvar(base["Y"])
+
+
+def test_too_many_trials_stop_with_the_limit_before_any_trial(write_method):
+    from validate.model.errors import ModelError
+    from validate.propagation import montecarlo as mc
+
+    run = api.analyse(write_method(SEVERAL), trials=None, advice=False)
+    most = mc.MAX_KEPT_BYTES // 8
+    with pytest.raises(ModelError, match=f"use at most {most:,} trials"):
+        mc.propagate_mc(run.model, run.results, most + 1, seed=1)

@@ -1,10 +1,22 @@
 """The Monte Carlo engine (JCGM 101): the same model evaluated on arrays of trials.
 
-Trials are drawn for every source (validate.propagation.distributions), the
-model runs once per chunk of trials on numpy arrays, so the calibration line
-is refitted in every trial without a Python loop per trial. Memory stays
-bounded by the chunk size, apart from the output values kept for the
-coverage intervals (8 bytes per trial and result).
+Trials are drawn for every source (validate.propagation.distributions) in chunks
+of CHUNK, and the model runs on slices of EVAL_SLICE trials of them, so the
+calibration line is refitted in every trial without a Python loop per trial and
+the model's temporary arrays stay in the processor's cache. The random stream
+depends on CHUNK only; slicing the evaluation changes no number.
+
+Memory: the output values kept for the coverage intervals (8 bytes per trial and
+result) are held for at most MAX_KEPT_BYTES at once. A run whose results do not
+fit together runs in groups of results, each group on the same random stream
+(the same seed, so the same trials; the model is evaluated once per group); a
+result is summarised as soon as it is final and its values are dropped. A run
+whose single result does not fit stops with a message before any trial. (The
+adaptive procedure, trials="auto", keeps every result's values of its batches, at
+most MAX_ADAPTIVE_TRIALS each: it is not split into groups.)
+
+Budget shares (held groups) use common random numbers: one set of draws and one
+base run, shared by every held-group run.
 
 Trials whose result is undefined (NaN or infinite, e.g. a zero slope) are
 counted and reported, never dropped silently (docs/design.md, "Monte Carlo").
@@ -19,17 +31,21 @@ from dataclasses import dataclass
 import numpy as np
 
 from validate.model.assay import Model
+from validate.model.errors import ModelError
 from validate.propagation.distributions import draw_many
 from validate.propagation.gumcheck import GumCheck, check_gum
 from validate.propagation.linear import LinearResult
 from validate.propagation.mcstats import (
     AdaptiveCheck,
+    CoverageInterval,
     HistogramData,
     McSummary,
     adaptive_batch_size,
     adaptive_converged,
+    coverage_interval_symmetric,
     histogram_data,
     summarise,
+    summarise_sorted,
 )
 
 CHUNK = 100_000  # trials evaluated together: large enough for numpy, small enough for memory
@@ -38,7 +54,8 @@ SHARE_TRIALS = 50_000  # trials per held-group run for the Monte Carlo shares (c
 INVALID_WARNING = 0.001  # share of undefined trials above which a warning is shown
 MAX_CHECK_TRIALS = 10_000_000  # trial budget of the JCGM 101 8.2 comparison per output
 CHECK_GROWTH = 10  # ... and at most this many times the trials asked for (a small run stays small)
-MAX_KEPT_VALUES = 40_000_000  # values kept over all outputs still being compared (320 MB)
+EVAL_SLICE = 10_000  # trials per model evaluation: its temporaries stay in the core's cache
+MAX_KEPT_BYTES = 320 * 2**20  # output values kept at once; with the rest a run stays within about 600 MiB
 
 
 @dataclass(frozen=True)
@@ -120,23 +137,41 @@ def evaluate_trials(model: Model, n: int, rng: np.random.Generator, hold: frozen
     share their random numbers (common random numbers: their difference is
     the held sources' effect, not sampling noise)."""
     draws = draw_many(list(model.sources.values()), n, rng)
-    for name in hold:
-        draws[name] = np.full(n, model.sources[name].value)
+    return _evaluate(model, _held(model, draws, hold, n), n, model.result_labels)
+
+
+def _held(model: Model, draws: dict[str, np.ndarray], hold, n: int) -> dict[str, np.ndarray]:
+    """The draws with the sources named in `hold` at their estimates (the others shared, not copied)."""
+    if not hold:
+        return draws
+    return {**draws, **{name: np.full(n, model.sources[name].value) for name in hold}}
+
+
+def _evaluate(model: Model, draws: dict[str, np.ndarray], n: int, labels, out=None) -> dict[str, np.ndarray]:
+    """The outputs named in `labels` for n drawn trials, the model run on slices of EVAL_SLICE
+    trials (elementwise arithmetic: the same numbers as one run on all n). `out` may give the
+    arrays to fill (label -> array of n)."""
+    out = {label: np.empty(n) for label in labels} if out is None else out
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-        out = model.evaluate(draws)
-    return {k: np.broadcast_to(np.asarray(v, dtype=float), (n,)) for k, v in out.items()}
+        for start in range(0, n, EVAL_SLICE):
+            stop = min(start + EVAL_SLICE, n)
+            part = model.evaluate({name: arr[start:stop] for name, arr in draws.items()})
+            for label in labels:
+                out[label][start:stop] = part[label]  # a constant output broadcasts
+    return out
 
 
-def _fixed(model: Model, trials: int, rng, progress, labels=None) -> dict[str, np.ndarray]:
-    """Output values of `trials` trials, kept for `labels` (every output when None)."""
+def _fixed(model: Model, trials: int, rng, progress, labels=None, out=None) -> dict[str, np.ndarray]:
+    """Output values of `trials` trials, kept for `labels` (every output when None); `out` may give
+    the arrays to fill (label -> array of `trials`)."""
     labels = model.result_labels if labels is None else labels
-    values = {label: np.empty(trials) for label in labels}
+    values = {label: np.empty(trials) for label in labels} if out is None else out
+    sources = list(model.sources.values())
     done = 0
     while done < trials:
         n = min(CHUNK, trials - done)
-        out = evaluate_trials(model, n, rng)
-        for label in labels:
-            values[label][done:done + n] = out[label]
+        _evaluate(model, draw_many(sources, n, rng), n, labels,
+                  {label: values[label][done:done + n] for label in labels})
         done += n
         progress(n)
     return values
@@ -151,7 +186,7 @@ def _adaptive(model: Model, p: float, rng, progress) -> tuple[dict, dict]:
     total = 0
     while total < MAX_ADAPTIVE_TRIALS:
         for label, arr in evaluate_trials(model, m, rng).items():
-            kept[label].append(np.array(arr))
+            kept[label].append(arr)
             batches[label].append(summarise(arr, p))
         total += m
         progress(m)
@@ -169,22 +204,148 @@ def share_trials(trials) -> int:
     return SHARE_TRIALS if trials == "auto" else max(1000, min(SHARE_TRIALS, int(trials) // 4))
 
 
-def _shares(model: Model, seed: int, key: str, progress, n: int = SHARE_TRIALS) -> dict[str, list[tuple[str, float]]]:
+def _shares(model: Model, seed: int, keys: tuple[str, ...], progress,
+            n: int = SHARE_TRIALS) -> dict[str, dict[str, list[tuple[str, float]]]]:
     """Share of the variance removed when one group of sources is held at its estimates:
-    1 - Var(held) / Var(all), from runs of n trials on common random numbers."""
-    groups: dict[str, set] = {}
-    for name, src in model.sources.items():
-        groups.setdefault(getattr(src, key) or "(none)", set()).add(name)
-    base = evaluate_trials(model, n, np.random.default_rng(seed))
+    1 - Var(held) / Var(all), from runs of n trials on common random numbers: one set of draws
+    and one base run serve every group of every key (a group holding the same sources as one
+    already run is not run again)."""
+    draws = draw_many(list(model.sources.values()), n, np.random.default_rng(seed))
+    labels = model.result_labels
+    base = _evaluate(model, draws, n, labels)
     var0 = {k: _defined_variance(v) for k, v in base.items()}
-    shares: dict[str, list[tuple[str, float]]] = {label: [] for label in model.result_labels}
-    for group, names in groups.items():
-        held = evaluate_trials(model, n, np.random.default_rng(seed), frozenset(names))
-        progress(n)
-        for label, arr in held.items():
-            share = 1.0 - _defined_variance(arr) / var0[label] if var0[label] > 0 else 0.0
-            shares[label].append((group, float(share)))
-    return {k: sorted(v, key=lambda t: (-round(t[1], 12), t[0])) for k, v in shares.items()}
+    held_var: dict[frozenset, dict[str, float]] = {}
+    out = {}
+    for key in keys:
+        groups: dict[str, set] = {}
+        for name, src in model.sources.items():
+            groups.setdefault(getattr(src, key) or "(none)", set()).add(name)
+        shares: dict[str, list[tuple[str, float]]] = {label: [] for label in labels}
+        for group, names in groups.items():
+            held = frozenset(names)
+            if held not in held_var:
+                arrays = _evaluate(model, _held(model, draws, held, n), n, labels)
+                held_var[held] = {label: _defined_variance(arr) for label, arr in arrays.items()}
+            progress(n)
+            for label in labels:
+                share = 1.0 - held_var[held][label] / var0[label] if var0[label] > 0 else 0.0
+                shares[label].append((group, float(share)))
+        out[key] = {k: sorted(v, key=lambda t: (-round(t[1], 12), t[0])) for k, v in shares.items()}
+    return out
+
+
+@dataclass
+class _Kept:
+    """One output's finite values (sorted), its count of undefined trials and its JCGM 101 8.2
+    comparison."""
+
+    values: np.ndarray
+    invalid: int
+    check: GumCheck
+
+    @classmethod
+    def of(cls, gum: LinearResult, arr: np.ndarray, p: float) -> _Kept:
+        finite = np.isfinite(arr)
+        good = arr if finite.all() else arr[finite]
+        return cls(good, int(arr.size - good.size), _check(gum, good, p))
+
+
+def _check(gum: LinearResult, finite: np.ndarray, p: float) -> GumCheck:
+    finite.sort()  # in place, once: the check, the summary and the histogram read the sorted values
+    return check_gum(gum.value, gum.expanded_uncertainty, gum.standard_uncertainty, finite, p)
+
+
+def _label_groups(labels: list[str], trials_each: int) -> list[list[str]]:
+    """The outputs in groups whose values fit in MAX_KEPT_BYTES at `trials_each` trials."""
+    per = 8 * trials_each
+    if per > MAX_KEPT_BYTES:
+        most = MAX_KEPT_BYTES // 8
+        raise ModelError(f"{trials_each:,} Monte Carlo trials would need {per / 2**20:,.0f} MiB for the values of "
+                         f"one result (the coverage intervals need them all), above the limit of "
+                         f"{MAX_KEPT_BYTES / 2**20:,.0f} MiB that keeps a run within about 600 MiB; use at most "
+                         f"{most:,} trials (JCGM 101 7.2.2 finds about 10^6 enough for a 95 % interval)")
+    size = max(1, MAX_KEPT_BYTES // per)
+    return [labels[i:i + size] for i in range(0, len(labels), size)]
+
+
+@dataclass(frozen=True)
+class _Final:
+    """What is kept of one output once its values are dropped."""
+
+    summary: McSummary
+    check: GumCheck
+    histogram: HistogramData
+
+    @classmethod
+    def of(cls, kept: _Kept, p: float) -> _Final:
+        summary = summarise_sorted(kept.values, kept.invalid, p)
+        return cls(summary, kept.check, _histogram(kept, summary))
+
+
+def _run_fixed(model: Model, gums: dict[str, LinearResult], trials: int, seed: int, p: float,
+               progress) -> dict[str, _Final]:
+    """Every output's statistics, run in groups of outputs that fit in memory; each group runs on
+    the same random stream (default_rng(seed)), so the groups see the same trials. A group's
+    values are dropped once its statistics are formed."""
+    final: dict[str, _Final] = {}
+    for group in _label_groups(list(gums), trials):
+        rng = np.random.default_rng(seed)
+        values = _fixed(model, trials, rng, progress, group)
+        in_group = {name: _Kept.of(gums[name], values.pop(name), p) for name in group}
+        settled = [name for name, k in in_group.items() if k.check.settled]
+        final.update({name: _Final.of(in_group.pop(name), p) for name in settled})  # dropped before more trials
+        _extend(model, gums, in_group, trials, p, rng, progress)
+        final.update({name: _Final.of(in_group.pop(name), p) for name in list(in_group)})
+    return final
+
+
+def _extend(model: Model, gums: dict[str, LinearResult], kept: dict[str, _Kept], total: int, p: float, rng,
+            progress) -> None:
+    """JCGM 101 8.2: rounds of more trials, on the same random stream, for the outputs whose
+    comparison is undecided or not yet known to delta/5; each round adds as many trials as were
+    run so far, up to the budget. A round whose open outputs do not fit in memory together runs
+    in groups, each from the stream's state at the round's start, so every output sees the same
+    trials whatever its group. Updates `kept`."""
+    budget = min(MAX_CHECK_TRIALS, CHECK_GROWTH * total)
+    while True:
+        open_ = [name for name, k in kept.items() if not k.check.settled]
+        more = min(total, budget - total)
+        if not open_ or more <= 0:
+            return
+        state = rng.bit_generator.state
+        for group in _label_groups(open_, total + more):
+            rng.bit_generator.state = state
+            _one_round(model, gums, kept, group, more, p, rng, progress)
+        total += more
+
+
+def _one_round(model: Model, gums: dict[str, LinearResult], kept: dict[str, _Kept], group: list[str], more: int,
+               p: float, rng, progress) -> None:
+    """`more` trials for the outputs of `group`, added to their kept values and compared again."""
+    buffers = {}
+    for name in group:  # each output's values move to a buffer with room for the new trials
+        k = kept[name]
+        buffers[name] = np.empty(k.values.size + more)
+        buffers[name][:k.values.size] = k.values
+        kept[name] = _Kept(buffers[name][:k.values.size], k.invalid, k.check)  # the old array is freed
+    _fixed(model, more, rng, progress, group, {name: buffers[name][-more:] for name in group})
+    for name in group:
+        k, buffer = kept[name], buffers[name]
+        start = k.values.size
+        segment = buffer[start:]
+        finite = np.isfinite(segment)
+        good = segment if finite.all() else segment[finite]  # a copy only when some are undefined
+        buffer[start:start + good.size] = good
+        values = buffer[:start + good.size]
+        kept[name] = _Kept(values, k.invalid + int(more - good.size), _check(gums[name], values, p))
+
+
+def _histogram(kept: _Kept, summary: McSummary) -> HistogramData:
+    """The histogram shows the central part: the 95 % interval widened by 60 % on each side."""
+    low95, high95 = summary.symmetric.low, summary.symmetric.high
+    spread = 0.6 * (high95 - low95)
+    window = (low95 - spread, high95 + spread) if high95 > low95 else None
+    return histogram_data(kept.values, bins=80, value_range=window, invalid=kept.invalid, presorted=True)
 
 
 def _defined_variance(arr: np.ndarray) -> float:
@@ -199,29 +360,39 @@ def propagate_mc(model: Model, linear: list[LinearResult], trials: int | str = 1
     seed = new_seed() if seed is None else int(seed)
     progress = progress or (lambda n: None)
     p = model.method.settings.coverage_probability
-    rng = np.random.default_rng(seed)
-    if trials == "auto":
-        values, checks = _adaptive(model, p, rng, progress)
-    else:
-        values, checks = _fixed(model, int(trials), rng, progress), {}
     gums = {gum.name: gum for gum in linear}
-    values, gum_checks = _checked(model, gums, values, p, rng, progress)
-    n_shares = share_trials(trials)
-    by_step = _shares(model, seed + 1, "step", progress, n_shares) if shares else {}
-    by_item = _shares(model, seed + 1, "equipment", progress, n_shares) if shares else {}
+    checks: dict[str, AdaptiveCheck] = {}
+    if trials == "auto":
+        rng = np.random.default_rng(seed)
+        values, checks = _adaptive(model, p, rng, progress)
+        kept = {name: _Kept.of(gum, values.pop(name), p) for name, gum in gums.items()}
+        _extend(model, gums, kept, min(k.values.size + k.invalid for k in kept.values()), p, rng, progress)
+        final = {name: _Final.of(kept.pop(name), p) for name in gums}
+    else:
+        final = _run_fixed(model, gums, int(trials), seed, p, progress)
+    by = _shares(model, seed + 1, ("step", "equipment"), progress, share_trials(trials)) if shares else {}
     results = []
     for gum in linear:
-        arr = values[gum.name]
-        summary = summarise(arr, p)
-        # the histogram shows the central part: the 95 % interval widened by 60 % on each side
-        low95, high95 = summary.symmetric.low, summary.symmetric.high
-        spread = 0.6 * (high95 - low95)
-        window = (low95 - spread, high95 + spread) if high95 > low95 else None
-        histogram = histogram_data(arr, bins=80, value_range=window)
-        results.append(McResult(gum.name, seed, summary, gum_checks[gum.name], checks.get(gum.name), histogram,
-                                tuple(by_step.get(gum.name, ())), tuple(by_item.get(gum.name, ())),
-                                smallest_t_dof(model, gum)))
+        f = final[gum.name]
+        results.append(McResult(gum.name, seed, f.summary, f.check, checks.get(gum.name), f.histogram,
+                                tuple(by.get("step", {}).get(gum.name, ())),
+                                tuple(by.get("equipment", {}).get(gum.name, ())), smallest_t_dof(model, gum)))
     return results
+
+
+def symmetric_intervals(model: Model, trials: int, seed: int) -> dict[str, CoverageInterval]:
+    """The probabilistically symmetric coverage interval (JCGM 101 7.7.1) of every output from
+    exactly `trials` trials of default_rng(seed): no comparison with the GUM interval (so no
+    trials added) and no shares. What the advisor compares before and after a change."""
+    p = model.method.settings.coverage_probability
+    out = {}
+    for group in _label_groups(model.result_labels, trials):
+        values = _fixed(model, trials, np.random.default_rng(seed), lambda n: None, group)
+        for name in group:
+            arr = values.pop(name)
+            finite = np.sort(arr[np.isfinite(arr)])
+            out[name] = coverage_interval_symmetric(finite, p, presorted=True)
+    return out
 
 
 def smallest_t_dof(model: Model, gum: LinearResult) -> float:
@@ -231,35 +402,15 @@ def smallest_t_dof(model: Model, gum: LinearResult) -> float:
     return min(dofs, default=math.inf)
 
 
-def _check(gum: LinearResult, arr: np.ndarray, p: float) -> GumCheck:
-    finite = np.sort(arr[np.isfinite(arr)])
-    return check_gum(gum.value, gum.expanded_uncertainty, gum.standard_uncertainty, finite, p)
-
-
-def _checked(model: Model, gums: dict[str, LinearResult], values: dict[str, np.ndarray], p: float, rng,
-             progress) -> tuple[dict[str, np.ndarray], dict[str, GumCheck]]:
-    """JCGM 101 8.2 for every output; more trials (kept only for the outputs still open) while a
-    verdict is undecided or the Monte Carlo ends are not yet known to delta/5, within the budget."""
-    checks = {name: _check(gum, values[name], p) for name, gum in gums.items()}
-    total = min(arr.size for arr in values.values()) if values else 0
-    budget = min(MAX_CHECK_TRIALS, CHECK_GROWTH * total)
-    while True:
-        open_ = [name for name, c in checks.items() if not c.settled]
-        more = min(total, budget - total)
-        if not open_ or more <= 0 or len(open_) * (total + more) > MAX_KEPT_VALUES:
-            return values, checks
-        extra = _fixed(model, more, rng, progress, open_)
-        total += more
-        for name in open_:
-            values[name] = np.concatenate([values[name], extra[name]])
-            checks[name] = _check(gums[name], values[name], p)
-
-
 def expected_work(trials: int | str, model: Model, shares: bool = True) -> int:
     """Trials the run will evaluate, for a progress bar (the adaptive run is open-ended)."""
     groups = len({s.step for s in model.sources.values()}) + len({s.equipment for s in model.sources.values()})
-    main = adaptive_batch_size(model.method.settings.coverage_probability) * 10 if trials == "auto" else int(trials)
+    if trials == "auto":
+        main = adaptive_batch_size(model.method.settings.coverage_probability) * 10
+    else:  # a run too large to keep every result's values at once runs once per group of results
+        per = MAX_KEPT_BYTES // (8 * int(trials)) if 8 * int(trials) <= MAX_KEPT_BYTES else 1
+        main = int(trials) * -(-len(model.result_labels) // max(1, per))
     return main + (groups * share_trials(trials) if shares else 0)
 
 
-__all__ = ["McResult", "propagate_mc", "evaluate_trials", "new_seed", "expected_work"]
+__all__ = ["McResult", "propagate_mc", "evaluate_trials", "new_seed", "expected_work", "symmetric_intervals"]
