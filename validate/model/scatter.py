@@ -64,8 +64,9 @@ class ScatterComponents:
         u = self.means_sd * math.sqrt(rel / weight)
         return ScatterTerm("calibration scatter", u, self.means_dof, LINE_GROUP,
                            f"residual standard deviation of the preparations' mean readings about the line "
-                           f"{self.means_sd:.3g} (absorbance), {self.means_dof} degrees of freedom; {ident} "
-                           f"read {count} time(s) (observed scatter; ISO 8466-1, CG4 A5, on preparation means)")
+                           f"{self.means_sd:.3g} (absorbance), {self.means_dof} degrees of freedom, scaled for the "
+                           f"solution's number of readings (observed scatter; ISO 8466-1, CG4 A5, on preparation "
+                           f"means)")
 
     def sample_terms(self, ident: str, count: int, weight: float) -> list[ScatterTerm]:
         """The scatter of a sample's mean reading: preparation scatter u_p plus reading scatter
@@ -79,14 +80,14 @@ class ScatterComponents:
         terms = [ScatterTerm("reading scatter", self.reading_sd / math.sqrt(count * weight), self.reading_dof,
                              READING_GROUP,
                              f"pooled standard deviation of repeated readings of one solution "
-                             f"{self.reading_sd:.3g} (absorbance), {self.reading_dof} degrees of freedom; "
-                             f"{ident} read {count} time(s)")]
+                             f"{self.reading_sd:.3g} (absorbance), {self.reading_dof} degrees of freedom, divided by "
+                             f"the square root of the sample's number of readings")]
         if self.preparation_sd > 0:
             terms.append(ScatterTerm(
                 "preparation scatter", self.preparation_sd / math.sqrt(weight), self.means_dof, LINE_GROUP,
                 f"scatter of independently prepared standards beyond their reading scatter, "
                 f"sqrt(s_m^2 - s_r^2 mean(1/m)) = {self.preparation_sd:.3g} (absorbance), taken with the "
-                f"{self.means_dof} degrees of freedom of s_m; it stands for preparing {ident}'s measured "
+                f"{self.means_dof} degrees of freedom of s_m; it stands for preparing the sample's measured "
                 f"solution and does not average with more readings"))
         return terms
 

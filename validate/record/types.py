@@ -23,7 +23,7 @@ from validate.record.blocks_validation import ValidationBlock, ValidationSetting
 from validate.record.blocks_verdict import Verdict
 from validate.record.tree import RecordPart, described, omitted_when_none
 
-SCHEMA_VERSION = "2.0"
+SCHEMA_VERSION = "2.1"
 
 
 @dataclass(frozen=True, kw_only=True)

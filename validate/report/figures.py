@@ -159,7 +159,7 @@ def calibration_figure(calibration: dict, compact: bool = False) -> Raster:
     grid = np.linspace(x_lo, x_hi + 0.03 * (x_hi - x_lo), 200)
     half = prediction_band(x, y, grid, b, a)[0] if x.size > 2 else None
 
-    height = 2.8 if compact else 3.3
+    height = 2.6 if compact else 3.0
     fig = _figure(height)
     gs = fig.add_gridspec(2, 1, height_ratios=[3, 1.35], hspace=0.08,
                           left=0.11, right=0.98, top=1 - 0.1 / height, bottom=0.45 / height)
@@ -255,7 +255,7 @@ def window_figure(standards: list[float], samples: list[float], low: float, high
     readings = [a for a in list(standards) + list(samples) if a is not None and a > 0]
     a_max = max([2.0] + [a * 1.1 for a in readings])
     curve = error_curve(0.02, a_max, 300)
-    fig = _figure(2.3)
+    fig = _figure(1.9)
     ax = fig.add_axes((0.1, 0.2, 0.87, 0.62))
     ax.axvspan(low, high, color="#e9efe6", label=f"recommended window {low:g} to {high:g}")
     ax.plot(curve.absorbance, curve.relative_error_factor, color=LINE, linewidth=1.3,
@@ -348,9 +348,9 @@ def _mc_panel(ax, mc: dict, value: float, u: float, nu_eff) -> None:
 def monte_carlo_grid_figure(panels: list[tuple[str, dict, float, float, object]], unit: str) -> Raster:
     """Small multiples: one panel per result (title, Monte Carlo block, y, u(y), nu_eff), drawn
     once as one figure, with one legend for all."""
-    columns = 3 if len(panels) > 4 else 2
+    columns = 4 if len(panels) > 6 else 3 if len(panels) > 4 else 2
     rows = math.ceil(len(panels) / columns)
-    height = 0.55 + 1.1 * rows
+    height = 0.55 + 0.95 * rows
     fig = _figure(height)
     gs = fig.add_gridspec(rows, columns, hspace=0.75, wspace=0.12, left=0.03, right=0.98,
                           top=1 - 0.22 / height, bottom=0.6 / height)
@@ -370,7 +370,7 @@ def monte_carlo_grid_figure(panels: list[tuple[str, dict, float, float, object]]
 
 def routine_uncertainty_figure(by_concentration: list[dict], unit: str) -> Raster:
     """Top-down U against concentration (a curve) with each result's bottom-up U (points)."""
-    fig = _figure(2.2)
+    fig = _figure(1.9)
     ax = fig.add_axes((0.1, 0.2, 0.87, 0.62))
     cs = [e["concentration"] for e in by_concentration]
     ax.plot(cs, [e["expanded_uncertainty"] for e in by_concentration], color=LINE, linewidth=1.3,

@@ -99,7 +99,7 @@ def _solutions_part(block: dict) -> list:
     rows = _solution_rows(block)
     if rows:
         out.append(data_table(["solution", "what", "amount", "u", "item", "made up in", "concentration",
-                               "u(c)"], rows, [25, 27, 19, 16, 17, 29, 27, 14], numeric={2, 3, 6, 7}))
+                               "u(c)"], rows, [23, 31, 17, 14, 20, 28, 27, 14], numeric={2, 3, 6, 7}))
     return out
 
 

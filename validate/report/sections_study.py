@@ -19,12 +19,12 @@ from validate.report.sections_equilibrium import k_unit, point_interval, point_r
 from validate.report.sections_uncertainty import (
     BUDGET_LEAD,
     NOT_RUN,
-    SHOWN_RULE,
     budget_for_result,
     interval_text,
     mc_decimals,
     monte_carlo_for_result,
     monte_carlo_intro,
+    shown_rule,
 )
 from validate.report.sections_verdict import interval_rule_note, verdict_block
 from validate.report.style import BAD, data_table, heading, key_value_table, para, text
@@ -187,7 +187,7 @@ def _points_table(record: dict, points: list[tuple[dict, dict]]) -> list:
 
 def budget(record: dict) -> list:
     combined, log10k, points = _parts(record)
-    out = [para(BUDGET_LEAD + SHOWN_RULE + " Shown for the combined K; the points follow in one table.", "lead")]
+    out = [para(BUDGET_LEAD + shown_rule() + " Shown for the combined K; the points follow in one table.", "lead")]
     return (out + budget_for_result(record, combined) + _log10_budget(record, combined, log10k)
             + _points_table(record, points))
 

@@ -11,6 +11,7 @@ from validate.report.sections import coloured, figure_block, rounded, u_decimals
 from validate.report.style import data_table, heading, key_value_table, para, text
 
 MIN_SHARE_SHOWN = 0.02  # budget rows below 2 % of a result's variance are summed in one line
+MIN_SHARE_SHOWN_MANY = 0.05  # the same where several results each have a table (a compact report)
 # (leaving out one such source changes u(y) by less than 1 %, sqrt(0.98) = 0.99; budget.csv has them all)
 
 
@@ -56,8 +57,10 @@ def _result_lead(result: dict, full: bool = True) -> list:
 
 def _source_table(rows: list[dict], unit: str, with_step: bool = True) -> list:
     """Sources at or above MIN_SHARE_SHOWN, ranked; one line for the rest (all in budget.csv).
-    Without `with_step` (many results: the steps are in one figure) a row fits one line."""
-    shown = [r for r in rows if (r.get("share") or 0.0) >= MIN_SHARE_SHOWN]
+    Without `with_step` (many results: the steps are in one figure) a row fits one line and the
+    threshold is MIN_SHARE_SHOWN_MANY."""
+    limit = MIN_SHARE_SHOWN if with_step else MIN_SHARE_SHOWN_MANY
+    shown = [r for r in rows if (r.get("share") or 0.0) >= limit]
     hidden = rows[len(shown):] if len(shown) < len(rows) else []
     out: list = []
     if shown:
@@ -69,7 +72,7 @@ def _source_table(rows: list[dict], unit: str, with_step: bool = True) -> list:
                               widths, numeric={0, last - 3, last - 2, last - 1, last}))
     if hidden:
         total = sum(r.get("share") or 0.0 for r in hidden)
-        out.append(para(f"{len(hidden)} further sources, each below {pct(MIN_SHARE_SHOWN, 0)} of the "
+        out.append(para(f"{len(hidden)} further sources, each below {pct(limit, 0)} of the "
                         f"variance, together {pct(total, 2)}: listed in budget.csv.", "small"))
     return out
 
@@ -154,15 +157,18 @@ def step_shares_figure(results: list[dict]) -> list:
     return [figure_block(figures.step_shares_chart(part), caption) for part in chunks(bars, BARS_PER_FIGURE)]
 
 
-SHOWN_RULE = (f" For each result the sources with at least {pct(MIN_SHARE_SHOWN, 0)} of its variance are listed; "
-              "the rest are summed in one line and listed in budget.csv.")
+def shown_rule(many: bool = False) -> str:
+    """The sentence that states the budget tables' share threshold."""
+    limit = MIN_SHARE_SHOWN_MANY if many else MIN_SHARE_SHOWN
+    return (f" For each result the sources with at least {pct(limit, 0)} of its variance are listed; "
+            "the rest are summed in one line and listed in budget.csv.")
 
 
 def budget(record: dict) -> list:
     results = record.get("results") or []
     many = len(results) > 1
     # with many results the lead stands alone (a 'body' paragraph), so the first table may start under it
-    out = [para(BUDGET_LEAD + SHOWN_RULE, "body" if many else "lead")]
+    out = [para(BUDGET_LEAD + shown_rule(many), "body" if many else "lead")]
     if not results:
         out.append(para("The record holds no result.", "body"))
     for result in results:

@@ -303,14 +303,27 @@ def _intermediate_one(sample: str, ip: dict) -> list:
 
 
 def _intermediate(v: dict) -> list:
+    """One key-value block for a single analysis; one table, a row per sample, for several."""
     per_sample = v.get("intermediate_precision")
     if isinstance(per_sample, dict) and "groups" in per_sample:  # a single analysis, unnamed
         per_sample = {"": per_sample}
-    out: list = []
-    for sample, ip in (per_sample or {}).items():
-        if isinstance(ip, dict) and "groups" in ip:
-            out += _intermediate_one(sample, ip)
-    return out
+    entries = [(sample, ip) for sample, ip in (per_sample or {}).items() if isinstance(ip, dict) and "groups" in ip]
+    if len(entries) == 1:
+        return _intermediate_one(*entries[0])
+    if not entries:
+        return []
+    rows = [[sample, f"{ip.get('groups', DASH)}, {ip.get('n', DASH)}",
+             f"{num(ip.get('repeatability_sd'), 3)}",
+             f"{num(ip.get('between_group_sd'), 3)}",
+             f"{num(ip.get('intermediate_sd'), 3)} ({num(ip.get('intermediate_rsd_percent'), 3)} %), "
+             f"ν = {num(ip.get('intermediate_dof'), 3)}",
+             f"{num(ip.get('f_statistic'), 4)}, {p_value(ip.get('p_value'), 3)}",
+             ip.get("verdict", DASH)] for sample, ip in entries]
+    unit = entries[0][1].get("unit", "")
+    return [heading("Intermediate precision", 2),
+            data_table(["sample", "series, n", f"s_r ({unit})", f"s_L ({unit})", "s_I (RSD), ν", "F, p",
+                        "verdict"], rows, [28, 16, 17, 17, 31, 19, 46]),
+            para(entries[0][1].get("source", ""), "note")]
 
 
 def _trueness(v: dict) -> list:
@@ -334,25 +347,27 @@ def _trueness(v: dict) -> list:
         para(rec.get("source", ""), "note")]
 
 
+SCATTER_CHECKS = (("scatter_consistency", "scatter of the preparation means about the line against preparation "
+                                          "and reading noise"),
+                  ("reading_noise_consistency", "pure error (repeated readings of one solution) against the "
+                                                "photometer's stated reading noise"))
+
+
 def _scatter(record: dict, v: dict) -> list:
-    out = []
-    for sc in (v.get("scatter_consistency") or record.get("scatter_consistency"), v.get("reading_noise_consistency")):
-        out += _scatter_check(sc)
-    return out
-
-
-def _scatter_check(sc) -> list:
-    """One chi-square check of an observed scatter against its bottom-up prediction."""
-    if not isinstance(sc, dict):
+    """The observed scatter checks (chi-square against the bottom-up prediction), one row each."""
+    checks = [(what, v.get(key) or (record.get(key) if key == "scatter_consistency" else None))
+              for key, what in SCATTER_CHECKS]
+    checks = [(what, sc) for what, sc in checks if isinstance(sc, dict)]
+    if not checks:
         return []
-    ok = "consistent" in (sc.get("verdict") or "")
-    rows = [("observed SD", f"{num(sc.get('observed_sd'), 3)} (absorbance)"),
-            ("SD predicted by the budget", f"{num(sc.get('predicted_sd'), 3)} (absorbance)"),
-            ("χ², degrees of freedom", f"{num(sc.get('chi_square'), 4)}, {sc.get('dof', DASH)}"),
-            ("p (excess), p (deficit)", f"{p_value(sc.get('p_excess'), 3)}, {p_value(sc.get('p_deficit'), 3)}"),
-            ("verdict", coloured(sc.get("verdict", DASH), ok))]
-    return [heading("Observed scatter against the bottom-up budget", 2), para(sc.get("compared", ""), "note"),
-            key_value_table(rows), para(sc.get("source", ""), "note")]
+    rows = [[sc.get("compared") or what, num(sc.get("observed_sd"), 3), num(sc.get("predicted_sd"), 3),
+             f"{num(sc.get('chi_square'), 4)}, {sc.get('dof', DASH)}",
+             f"{p_value(sc.get('p_excess'), 3)}, {p_value(sc.get('p_deficit'), 3)}",
+             coloured(sc.get("verdict", DASH), "consistent" in (sc.get("verdict") or ""))] for what, sc in checks]
+    return [heading("Observed scatter against the bottom-up budget", 2),
+            data_table(["compared", "observed SD (AU)", "predicted SD (AU)", "χ², ν", "p (excess), p (deficit)",
+                        "verdict"], rows, [44, 18, 18, 17, 22, 55], numeric={1, 2}),
+            para(checks[0][1].get("source", ""), "note")]
 
 
 def precision_trueness(record: dict) -> list | None:
