@@ -355,9 +355,9 @@ SCATTER_CHECKS = (("scatter_consistency", "scatter of the preparation means abou
 
 def _scatter(record: dict, v: dict) -> list:
     """The observed scatter checks (chi-square against the bottom-up prediction), one row each."""
-    checks = [(what, v.get(key) or (record.get(key) if key == "scatter_consistency" else None))
-              for key, what in SCATTER_CHECKS]
-    checks = [(what, sc) for what, sc in checks if isinstance(sc, dict)]
+    found = [(what, v.get(key) or (record.get(key) if key == "scatter_consistency" else None))
+             for key, what in SCATTER_CHECKS]
+    checks: list[tuple[str, dict]] = [(what, sc) for what, sc in found if isinstance(sc, dict)]
     if not checks:
         return []
     rows = [[sc.get("compared") or what, num(sc.get("observed_sd"), 3), num(sc.get("predicted_sd"), 3),
