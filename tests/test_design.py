@@ -197,7 +197,8 @@ def test_equilibrium_design_follows_the_study():
     sm, sl, _, reps, *_ = model.columns(model.nominal_inputs())
     limiting = sl if study.limiting == "ligand" else sm
     assert [lv.concentration for lv in design.standards] == pytest.approx(limiting, rel=1e-12)
-    assert reps == [len(method.readings[m.id]) for m in study.standards]
+    # the line runs through the preparations' means: each standard weighs as its preparations (one here)
+    assert reps == [1] * len(study.standards)
     xs, ys = design.reading_points()
     assert ys == [a for m in study.standards for a in method.readings[m.id]]
     assert len(xs) == len(ys)
