@@ -97,11 +97,11 @@ def test_warnings_are_reservations(phosphate_linear):
     assert "detection and quantitation limits" in whats
     assert any(w.startswith("top-down against bottom-up, ") for w in whats)
     assert "Monte Carlo check of the GUM interval" in whats
-    # the demo states 0.05 to 0.4 mg/L in its scope: the outfall (0.61 mg/L) lies outside it, and the
+    # the demo states 0.05 to 0.4 mg/L in its scope: the outfall (0.6101 mg/L) lies outside it, and the
     # scope starts below the lowest standard (1 µmol/L through the dilution 20 mL to 50 mL: 0.077 mg/L P)
     assert "range, orthophosphate-P, outfall" in whats
     outfall = next(i for i in verdict.warnings if i.what == "range, orthophosphate-P, outfall")
-    assert "outside the stated scope (0.05 to 0.4 mg/L)" in outfall.why and "0.61 mg/L" in outfall.why
+    assert "outside the stated scope (0.05 to 0.4 mg/L)" in outfall.why and "0.6101 mg/L" in outfall.why
     scope = next(i for i in verdict.warnings if i.what == "stated scope against the working range")
     assert "below the lowest standard (0.07729 mg/L)" in scope.why
 
