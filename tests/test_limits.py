@@ -173,3 +173,22 @@ def test_samples_read_fewer_times_than_the_points_use_their_own_response_sd():
         same = detection_limits(fit, sample=SampleReadings(m0, 0.012, 0.004, 3.0))
         assert same.lod == plain.lod and same.iso11843.critical_value == plain.iso11843.critical_value
         assert same.notes == plain.notes
+
+
+def test_a_method_whose_sample_is_read_once_gets_the_larger_sigma(tmp_path):
+    # The rule above through a method file (invented demo): the standards' points are means of 3
+    # readings; with one sample read once the residual route's sigma is sqrt(u_p^2 + s_r^2/1) of
+    # the line's own components (ICH Q2(R1) 6.3, ISO 11843-2 5.3, from memory).
+    from conftest import copy_demo, edit_text
+
+    from validate.workflow import pipeline
+
+    folder = copy_demo(tmp_path)
+    for reading in ("river_upstream,0.1332,day 1\n", "river_upstream,0.1304,day 1\n"):
+        edit_text(folder, reading, "", name="readings.csv", count=1)
+    run = pipeline.analyse(folder / "method.toml", trials=None, advice=False)
+    sc = run.model.design.scatter_components()
+    route = next(r for r in run.record["validation"]["limits"]["routes"] if r["route"] == "ich_residual_sd")
+    expected = max(math.sqrt(sc.preparation_sd**2 + sc.reading_sd**2), sc.means_sd)
+    assert route["sigma"] == pytest.approx(expected, rel=1e-12) and expected > sc.means_sd
+    assert "read 1 time(s)" in route["note"]
