@@ -254,12 +254,8 @@ def detection_limits(fit: LineFit, blanks=None, *, alpha: float = 0.05, beta: fl
         sample = None  # the scatter components of a weighted line are on its weighted scale
     if fit.slope == 0:
         raise ValueError("the calibration slope is zero; detection limits are undefined")
-    sigma, sample_term, residual_note = fit.residual_sd, None, ""
-    if sample is not None and sample.fewer_than_points() and fit.residual_sd > 0:
-        sigma = max(sample.response_sd(), fit.residual_sd)
-        sample_term = (sigma / fit.residual_sd) ** 2
-        residual_note = SAMPLE_RULE.format(m0=sample.count, m=sample.points_count, sigma=sigma,
-                                           s=fit.residual_sd, ratio=sample_term)
+    sigma, sample_term, residual_note = _residual_sigma(fit, sample)
+    if residual_note:
         notes.append(residual_note)
     routes = [
         _ich_route("ich_residual_sd", sigma, fit.dof, fit.slope,
@@ -290,6 +286,17 @@ def detection_limits(fit: LineFit, blanks=None, *, alpha: float = 0.05, beta: fl
                     "scatter are not meaningful; use blank readings or more standards"]
     return DetectionLimits(tuple(routes), iso, declared, chosen.lod, chosen.loq,
                            tuple(warnings), tuple(notes))
+
+
+def _residual_sigma(fit: LineFit, sample: SampleReadings | None) -> tuple[float, float | None, str]:
+    """sigma of the residual route, ISO 11843-2's sample term (None: 1/K) and the note saying why
+    (SAMPLE_RULE): the points' residual SD unless samples are read fewer times than the points."""
+    if sample is None or not sample.fewer_than_points() or not fit.residual_sd > 0:
+        return fit.residual_sd, None, ""
+    sigma = max(sample.response_sd(), fit.residual_sd)
+    ratio = (sigma / fit.residual_sd) ** 2
+    return sigma, ratio, SAMPLE_RULE.format(m0=sample.count, m=sample.points_count, sigma=sigma,
+                                            s=fit.residual_sd, ratio=ratio)
 
 
 def _disagreements(routes) -> list[str]:
