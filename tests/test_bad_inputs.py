@@ -166,21 +166,21 @@ def readings_missing_for_a_standard(folder):
 
 
 def standards_at_one_concentration(folder):
-    for volume in ("1.00", "4.00", "6.00", "8.00", "10.00"):
+    for volume in ("1.00", "4.00", "4.00", "6.00", "6.00", "8.00", "10.00"):  # S4b and S6b: 4 and 6 mL too
         _edit(folder, f'volume = "{volume} mL"', 'volume = "2.00 mL"')
     _edit(folder, 'blanks = ["blank"]', "blanks = []")
     return [METHOD, "[calibration].standards", "only 1 distinct concentration", "different concentrations"]
 
 
 def standards_at_one_concentration_and_a_blank(folder):
-    for volume in ("1.00", "4.00", "6.00", "8.00", "10.00"):
+    for volume in ("1.00", "4.00", "4.00", "6.00", "6.00", "8.00", "10.00"):  # S4b and S6b: 4 and 6 mL too
         _edit(folder, f'volume = "{volume} mL"', 'volume = "2.00 mL"')
     return [METHOD, "[calibration].standards", "only 2 distinct concentration"]
 
 
 def falling_response(folder):
     """Readings of the standards reversed: absorbance falls as concentration rises (a data problem)."""
-    order = ["blank", "S1", "S2", "S4", "S6", "S8", "S10"]
+    order = ["blank", "S1", "S2", "S4", "S4b", "S6", "S6b", "S8", "S10"]
     lines = (folder / READINGS).read_text(encoding="utf-8").splitlines()
     by_id = {i: [ln.split(",")[1] for ln in lines if ln.startswith(i + ",")] for i in order}
     swap = dict(zip(order, reversed(order), strict=True))
@@ -194,7 +194,7 @@ def falling_response(folder):
             ln = ",".join([ident, by_id[swap[ident]][j], *cells[2:]])  # keep any further columns
         out.append(ln)
     (folder / READINGS).write_text("\n".join(out) + "\n", encoding="utf-8")
-    return [READINGS, "falls as the concentration rises", "slope -0.08", "what to do", "right id"]
+    return [READINGS, "falls as the concentration rises", "slope -0.079", "what to do", "right id"]
 
 
 def quantity_named_like_a_solution(folder):
@@ -283,7 +283,7 @@ CASES = [
     ("readings_with_semicolons_and_decimal_commas", readings_with_semicolons_and_decimal_commas, 2, "run"),
     ("reading_with_an_unquoted_decimal_comma", reading_with_an_unquoted_decimal_comma, 2, "run"),
     ("readings_missing_for_a_standard", readings_missing_for_a_standard, 2, "run"),
-    ("two_standards_only", edit('standards = ["S1", "S2", "S4", "S6", "S8", "S10"]', 'standards = ["S1"]',
+    ("two_standards_only", edit('standards = ["S1", "S2", "S4", "S4b", "S6", "S6b", "S8", "S10"]', 'standards = ["S1"]',
          [METHOD, "[calibration].standards", "only 2 calibration levels", "add standards"]), 2, "run"),
     ("standards_at_one_concentration", standards_at_one_concentration, 2, "run"),
     ("standards_at_one_concentration_and_a_blank", standards_at_one_concentration_and_a_blank, 2, "check"),

@@ -144,10 +144,15 @@ def test_demo_design_follows_the_method_file():
     method, model = api.check(DEMOS / "phosphate_assay" / "method.toml")
     design = model.design
     cal = method.calibration
-    assert [lv.id for lv in design.levels] == list(cal.standards) + list(cal.blanks)  # blanks fitted (default)
-    assert [lv.role for lv in design.levels] == ["standard"] * len(cal.standards) + ["blank"] * len(cal.blanks)
+    # S4b and S6b are second, independent preparations of S4 and S6 (same concentration): one level each
+    levels = [s for s in cal.standards if s not in ("S4b", "S6b")]
+    assert [lv.id for lv in design.levels] == levels + list(cal.blanks)  # blanks fitted (default)
+    assert [lv.role for lv in design.levels] == ["standard"] * len(levels) + ["blank"] * len(cal.blanks)
     for level in design.levels:
-        assert level.readings == tuple(method.readings[level.id])
+        for prep in level.preparations:
+            assert prep.readings == tuple(method.readings[prep.solution])
+    assert [[p.solution for p in lv.preparations] for lv in design.levels if len(lv.preparations) > 1] == \
+        [["S4", "S4b"], ["S6", "S6b"]]
     assert [s.id for s in design.samples] == [s.id for s in method.samples]
     assert {s.id: s.series for s in design.samples} == {s.id: method.reading_series.get(s.id) for s in method.samples}
     assert not design.weighted and design.weight("S1") == 1.0
@@ -167,7 +172,7 @@ def test_demo_design_follows_the_method_file():
 def test_blanks_out_of_the_fit_stay_in_the_design(tmp_path):
     method, model = api.check(_demo_copy(tmp_path, "blanks_in_fit = false"))
     design = model.design
-    assert [lv.id for lv in design.levels] == list(method.calibration.standards)
+    assert [p.solution for _, p in design.fitted()] == list(method.calibration.standards)
     assert [b.id for b in design.blanks] == ["blank"] and not design.blanks_in_fit
     assert design.blank_readings() == list(method.readings["blank"])
     assert "blank" not in design.reading_ids()
@@ -197,7 +202,8 @@ def test_equilibrium_design_follows_the_study():
     sm, sl, _, reps, *_ = model.columns(model.nominal_inputs())
     limiting = sl if study.limiting == "ligand" else sm
     assert [lv.concentration for lv in design.standards] == pytest.approx(limiting, rel=1e-12)
-    assert reps == [len(method.readings[m.id]) for m in study.standards]
+    # the line runs through the preparations' means: each standard weighs as its preparations (one here)
+    assert reps == [1] * len(study.standards)
     xs, ys = design.reading_points()
     assert ys == [a for m in study.standards for a in method.readings[m.id]]
     assert len(xs) == len(ys)

@@ -38,9 +38,12 @@ def _plain_fixed_point(cols, K, steps=400):
 
 def test_exact_study_gives_back_K_and_the_correction_uses_the_reported_K(tmp_path):
     # invented study, readings exact for K = 850 L/mol: every point, the combined K and the K the
-    # standards are corrected with must all be 850 L/mol
+    # standards are corrected with must all be 850 L/mol. Bottom-up scatter: exact readings show no
+    # scatter, so only bottom-up terms give each point the random effects a real study has (with
+    # observed scatter of zero the GLS weights rest on shared terms alone and may be negative)
     K = 850.0
-    run = api.analyse(_noise_free_copy(tmp_path, K, iterations=12), trials=None, advice=False)
+    run = api.analyse(_noise_free_copy(tmp_path, K, iterations=12, scatter="bottom-up"), trials=None,
+                      advice=False)
     e = run.record["equilibrium"]
     assert e["combined"]["K"] == pytest.approx(K, rel=1e-9)
     for point in e["mixtures"]:
@@ -59,7 +62,8 @@ def test_without_correction_the_bias_is_that_of_the_reported_K(tmp_path):
     # correction "none": the reported K is the shortcut's; its bias is taken against the corrected K,
     # which for exact readings is the K they were made from (invented study, K = 850 L/mol)
     K = 850.0
-    run = api.analyse(_noise_free_copy(tmp_path, K, correction="none"), trials=None, advice=False)
+    run = api.analyse(_noise_free_copy(tmp_path, K, correction="none", scatter="bottom-up"), trials=None,
+                      advice=False)  # bottom-up: exact readings show no scatter (see the test above)
     e = run.record["equilibrium"]
     bias = e["complete_complexation_bias"]
     assert bias["reported_K"] == e["combined"]["K"] > K

@@ -146,3 +146,49 @@ def test_limits_scale_with_units(cy, cx):
     for name in ("ich_residual_sd", "ich_intercept_sd", "iso11843_2"):
         assert ys.route(name).lod == pytest.approx(base.route(name).lod, rel=1e-9)
         assert xs.route(name).lod == pytest.approx(cx * base.route(name).lod, rel=1e-9)
+
+
+def test_samples_read_fewer_times_than_the_points_use_their_own_response_sd():
+    # The line's points are preparation means of 3 readings; a sample read once has the response
+    # SD sqrt(u_p^2 + s_r^2/m0) (one-way random model, Searle et al. 1992, from memory), which ICH
+    # Q2(R1) 6.3 (sigma: SD of the response) and ISO 11843-2 5.3 (the sample term 1/K on the SD of
+    # one measurement) then use (the rule recalled from memory). By hand, invented numbers:
+    # s_r = 0.012, u_p = 0.004, m0 = 1: sigma^2 = 16e-6 + 144e-6 = 160e-6, sigma = 0.0126491,
+    # LOD = 3.3 sigma / b = 3.3 * 0.0126491 / 0.099 = 0.421637.
+    from validate.validation.limits import SampleReadings
+
+    fit = fit_line(X, Y)
+    once = SampleReadings(count=1, reading_sd=0.012, preparation_sd=0.004, points_count=3.0)
+    lim = detection_limits(fit, sample=once)
+    assert lim.route("ich_residual_sd").sigma == pytest.approx(math.sqrt(160e-6), rel=1e-12)
+    assert lim.route("ich_residual_sd").lod == pytest.approx(0.421637, abs=2e-6)
+    assert any("sqrt(u_p^2 + s_r^2/m0)" in n for n in lim.notes)
+    # ISO 11843-2: x_C b / t_0.95(3) = sqrt(sigma^2 + s^2 (1/n + xbar^2/Sxx)) = sqrt(160e-6 + s^2 0.6);
+    # t_0.95(3) = 2.353 (NIST/SEMATECH table 1.3.6.7.2)
+    expected = 2.353 * math.sqrt(160e-6 + S**2 * 0.6) / 0.099
+    assert lim.iso11843.critical_value == pytest.approx(expected, rel=2e-4)
+    # read as often as the points (or more): the residual SD of the points stands, nothing changes
+    plain = detection_limits(fit)
+    for m0 in (3, 6):
+        same = detection_limits(fit, sample=SampleReadings(m0, 0.012, 0.004, 3.0))
+        assert same.lod == plain.lod and same.iso11843.critical_value == plain.iso11843.critical_value
+        assert same.notes == plain.notes
+
+
+def test_a_method_whose_sample_is_read_once_gets_the_larger_sigma(tmp_path):
+    # The rule above through a method file (invented demo): the standards' points are means of 3
+    # readings; with one sample read once the residual route's sigma is sqrt(u_p^2 + s_r^2/1) of
+    # the line's own components (ICH Q2(R1) 6.3, ISO 11843-2 5.3, from memory).
+    from conftest import copy_demo, edit_text
+
+    from validate.workflow import pipeline
+
+    folder = copy_demo(tmp_path)
+    for reading in ("river_upstream,0.1332,day 1\n", "river_upstream,0.1304,day 1\n"):
+        edit_text(folder, reading, "", name="readings.csv", count=1)
+    run = pipeline.analyse(folder / "method.toml", trials=None, advice=False)
+    sc = run.model.design.scatter_components()
+    route = next(r for r in run.record["validation"]["limits"]["routes"] if r["route"] == "ich_residual_sd")
+    expected = max(math.sqrt(sc.preparation_sd**2 + sc.reading_sd**2), sc.means_sd)
+    assert route["sigma"] == pytest.approx(expected, rel=1e-12) and expected > sc.means_sd
+    assert "read 1 time(s)" in route["note"]

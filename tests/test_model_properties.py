@@ -177,7 +177,11 @@ def test_weighted_line_reproduces_the_weighted_inverse_prediction(tmp_path):
     assert run.record["validation"]["line_weighting"]["used"] == "inverse-variance"
     conc = model.concentrations(model.nominal_inputs())
     ids = list(method.calibration.standards) + list(method.calibration.blanks)
-    weight = model.design.weight
+    # a second preparation of a level (S4b, S6b) carries its level's weight
+    level_of = {p.solution: lv.id for lv in model.design.levels for p in lv.preparations}
+
+    def weight(ident):
+        return model.design.weight(level_of.get(ident, ident))
     xs = np.array([conc[i] * 1e3 for i in ids])
     ys = np.array([np.mean(method.readings[i]) for i in ids])
     w = np.array([weight(i) for i in ids])

@@ -143,7 +143,7 @@ def test_calibration_refitted_in_every_trial(tmp_path, monkeypatch):
     conc = model.concentrations(draws)
     for trial in range(5):
         xs, ys = [], []
-        for sid in [level.id for level in model.design.levels]:  # the line's solutions, blanks included
+        for sid in [p.solution for _, p in model.design.fitted()]:  # the line's solutions, blanks included
             for j, a in enumerate(method.readings[sid]):
                 noise = draws[f"photometer: noise, {sid} reading {j + 1}"][trial]
                 offset = draws["photometer: photometric offset"][trial]

@@ -63,7 +63,7 @@ def test_observed_scatter_covers_each_random_effect_once():
 def test_the_record_says_what_the_observed_scatter_covers():
     run = api.analyse(PHOSPHATE, trials=None, advice=False)
     units = run.record["validation"]["fit_units"]
-    assert units["points"] == "preparation means" and units["preparations"] == 7 and units["readings"] == 21
+    assert units["points"] == "preparation means" and units["preparations"] == 9 and units["readings"] == 27
     assert units["covered_by_observed_scatter"] == list(SCATTER_COVERED.values())
     assert any("sample dilution" in a for a in run.record["assumptions"])
 
@@ -94,37 +94,31 @@ def test_two_scatter_checks_compare_like_with_like():
     assert reading["chi_square"] == pytest.approx(dof_r * s_r**2 / noise**2, rel=1e-12)
     assert reading["p_excess"] == pytest.approx(stats.chi2.sf(dof_r * s_r**2 / noise**2, dof_r), rel=1e-9)
     line = v["scatter_consistency"]
-    assert line["dof"] == 7 - 2 and line["observed_sd"] == pytest.approx(v["fit"]["residual_sd"], rel=1e-12)
+    assert line["dof"] == 9 - 2 and line["observed_sd"] == pytest.approx(v["fit"]["residual_sd"], rel=1e-12)
     assert line["predicted_sd"] > noise / math.sqrt(3)  # preparation noise comes on top of the readings'
-    assert line["chi_square"] == pytest.approx(5 * line["observed_sd"] ** 2 / line["predicted_sd"] ** 2, rel=1e-12)
+    assert line["chi_square"] == pytest.approx(7 * line["observed_sd"] ** 2 / line["predicted_sd"] ** 2, rel=1e-12)
     assert "preparations' mean readings" in line["compared"] and "pure error" in reading["compared"]
 
 
-def test_independent_preparations_of_one_level_give_pure_error(tmp_path):
-    # A second, independent preparation of S4 (same recipe, its own id): one level of two
-    # preparations. The lack-of-fit F test (Draper and Smith, Applied Regression Analysis, 3rd ed.,
-    # 2.1) then runs on the preparation means with (m - 2, N - m) = (5, 1) degrees of freedom.
-    from conftest import copy_demo
-
-    folder = copy_demo(tmp_path)
-    edit_text(folder, "[solutions.S6]", '[solutions.S4b]\nmade_by = "dilution"\nfrom = "intermediate"\n'
-              'aliquot = { item = "burette_25", volume = "4.00 mL" }\nflask = "flask_50"\n\n[solutions.S6]', count=1)
-    edit_text(folder, '"S4", "S6"', '"S4", "S4b", "S6"', count=1)
-    edit_text(folder, "S6,0.5054,day 1", "S4b,0.3441,day 1\nS4b,0.3452,day 1\nS4b,0.3430,day 1\nS6,0.5054,day 1",
-              name="readings.csv", count=1)
-    run = api.analyse(folder / "method.toml", trials=None, advice=False)
+def test_independent_preparations_of_one_level_give_pure_error():
+    # The demo's second, independent preparations S4b and S6b (same recipes as S4 and S6, their own
+    # ids): two levels of two preparations. The lack-of-fit F test (Draper and Smith, Applied
+    # Regression Analysis, 3rd ed., 2.1) then runs on the preparation means with
+    # (m - 2, N - m) = (7 - 2, 9 - 7) = (5, 2) degrees of freedom, pure error from the pairs.
+    run = api.analyse(PHOSPHATE, trials=None, advice=False)
     design = run.model.design
     s4 = next(lv for lv in design.levels if lv.id == "S4")
     assert [p.solution for p in s4.preparations] == ["S4", "S4b"]
     lof = run.record["validation"]["lack_of_fit"]
-    assert lof["evaluable"] and tuple(lof["dof"]) == (5, 1)
+    assert lof["evaluable"] and tuple(lof["dof"]) == (5, 2)
     xs, ys, _ = design.point_data(1e-3)
     x, y = np.array(xs), np.array(ys)
     b, a = np.polyfit(x, y, 1)
     rss = float(np.sum((y - a - b * x) ** 2))
-    i, j = design.point_ids().index("S4"), design.point_ids().index("S4b")
-    ss_pe = (y[i] - y[j]) ** 2 / 2
-    assert lof["statistic"] == pytest.approx(((rss - ss_pe) / 5) / (ss_pe / 1), rel=1e-9)
+    ids = design.point_ids()
+    ss_pe = sum((y[ids.index(p)] - y[ids.index(q)]) ** 2 / 2 for p, q in (("S4", "S4b"), ("S6", "S6b")))
+    assert lof["statistic"] == pytest.approx(((rss - ss_pe) / 5) / (ss_pe / 2), rel=1e-9)
+    assert lof["p_value"] == pytest.approx(stats.f.sf(lof["statistic"], 5, 2), rel=1e-9)
 
 
 def _level(ident, c, sd, n=4):
@@ -162,7 +156,7 @@ def test_weights_warn_on_few_readings_and_the_variance_function_is_offered(tmp_p
         ratio = design.weight(lv.id) * max(a + b * lv.concentration, floor) ** 2
         first = design.weight(design.levels[0].id) * max(a + b * design.levels[0].concentration, floor) ** 2
         assert ratio == pytest.approx(first, rel=1e-9)
-    assert np.mean([design.weight(lv.id) for lv in design.levels]) == pytest.approx(1.0, rel=1e-12)
+    assert np.mean([design.weight(lv.id) for lv, _ in design.fitted()]) == pytest.approx(1.0, rel=1e-12)
 
 
 def test_preparations_recorded_under_one_id(tmp_path):
@@ -179,10 +173,11 @@ def test_preparations_recorded_under_one_id(tmp_path):
               name="readings.csv", count=1)
     run = api.analyse(folder / "method.toml", trials=None, advice=False)
     s4 = next(lv for lv in run.model.design.levels if lv.id == "S4")
-    assert [p.key for p in s4.preparations] == ["S4 (preparation 1)", "S4 (preparation 2)"]
-    assert [p.readings for p in s4.preparations] == [(0.3406, 0.3388, 0.3456), (0.3441, 0.3452, 0.3430)]
+    # the demo's own S4b is a third preparation of the level
+    assert [p.key for p in s4.preparations] == ["S4 (preparation 1)", "S4 (preparation 2)", "S4b"]
+    assert [p.readings for p in s4.preparations][:2] == [(0.3406, 0.3388, 0.3456), (0.3441, 0.3452, 0.3430)]
     lof = run.record["validation"]["lack_of_fit"]
-    assert lof["evaluable"] and tuple(lof["dof"]) == (5, 1)
+    assert lof["evaluable"] and tuple(lof["dof"]) == (5, 3)  # 7 levels, 10 preparations
     assert "calibration scatter, S4 (preparation 2)" in run.model.sources
     # bottom-up, the two preparations would share one set of preparation terms: refused
     from validate.inputs.errors import InputError

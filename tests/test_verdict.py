@@ -37,9 +37,10 @@ def phosphate_linear():
 
 def _quiet(validation):
     """The validation block without the demo's warnings (limits disagree, top-down wider, the scope
-    starting below the lowest standard)."""
+    starting below the lowest standard, pure error above the photometer's stated noise)."""
     limits = dataclasses.replace(validation.limits, warnings=())
-    return dataclasses.replace(validation, limits=limits, intermediate_precision=None, scope=None)
+    return dataclasses.replace(validation, limits=limits, intermediate_precision=None, scope=None,
+                               reading_noise_consistency=None)
 
 
 def _unflagged(results):
@@ -96,13 +97,36 @@ def test_warnings_are_reservations(phosphate_linear):
     assert "detection and quantitation limits" in whats
     assert any(w.startswith("top-down against bottom-up, ") for w in whats)
     assert "Monte Carlo check of the GUM interval" in whats
-    # the demo states 0.05 to 0.4 mg/L in its scope: the outfall (0.61 mg/L) lies outside it, and the
+    # the demo states 0.05 to 0.4 mg/L in its scope: the outfall (0.6101 mg/L) lies outside it, and the
     # scope starts below the lowest standard (1 µmol/L through the dilution 20 mL to 50 mL: 0.077 mg/L P)
     assert "range, orthophosphate-P, outfall" in whats
     outfall = next(i for i in verdict.warnings if i.what == "range, orthophosphate-P, outfall")
-    assert "outside the stated scope (0.05 to 0.4 mg/L)" in outfall.why and "0.61 mg/L" in outfall.why
+    assert "outside the stated scope (0.05 to 0.4 mg/L)" in outfall.why and "0.6101 mg/L" in outfall.why
     scope = next(i for i in verdict.warnings if i.what == "stated scope against the working range")
     assert "below the lowest standard (0.07729 mg/L)" in scope.why
+
+
+def test_reading_noise_against_the_photometer_spec_is_a_warning(phosphate_linear):
+    # Chi-square test of a standard deviation against a stated value, T = nu s^2/sigma0^2
+    # (NIST/SEMATECH e-Handbook 1.3.5.8). The demo's pure error (0.0020 AU) against its photometer's
+    # stated 0.001 AU is significant excess: a warning naming both figures and why it matters.
+    from validate.record.verdict_warnings import reading_noise
+
+    record = phosphate_linear.typed_record
+    check = record.validation.reading_noise_consistency
+    assert check is not None and check.p_excess < check.alpha
+    items = reading_noise(record.validation)
+    assert [i.what for i in items] == ["reading scatter against the photometer's stated noise"]
+    assert "stated noise 0.001 (absorbance)" in items[0].why and "understates" in items[0].why
+    verdict = _verdict(record, validation=dataclasses.replace(_quiet(record.validation),
+                                                              reading_noise_consistency=check))
+    assert verdict.status == "fit with reservations" and verdict.warnings == tuple(items)
+    # consistent (p both ways above alpha): nothing; significantly below the stated noise: a warning
+    quiet = dataclasses.replace(check, p_excess=0.5, p_deficit=0.5)
+    assert reading_noise(dataclasses.replace(record.validation, reading_noise_consistency=quiet)) == []
+    low = dataclasses.replace(check, p_excess=0.999, p_deficit=0.001)
+    low_items = reading_noise(dataclasses.replace(record.validation, reading_noise_consistency=low))
+    assert len(low_items) == 1 and "significantly less than the stated noise" in low_items[0].why
 
 
 def test_no_evaluated_criterion_is_not_shown_fit(phosphate_linear):

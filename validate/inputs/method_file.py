@@ -157,6 +157,8 @@ def _equilibrium_method(top: Table, path: Path, common: dict, extra: list[Path],
     check_equilibrium_readings(study, readings, readings_path)
     validation = parse_study_acceptance(top, defaults)
     return EquilibriumMethod(**common, equilibrium=study, readings=readings, validation=validation,
+                             reading_series=load_reading_series(readings_path),
+                             reading_preparations=load_reading_preparations(readings_path),
                              input_files=_input_files(path, readings_path, *extra),
                              defaults_shown=tuple(defaults))
 

@@ -51,6 +51,14 @@ SCATTER_COVERED = {
 }
 
 
+def scatter_covers(treatment: str, term: str) -> bool:
+    """Whether a method's scatter treatment ("observed" or "bottom-up") leaves this random effect
+    (a key of SCATTER_COVERED) to the observed scatter: the one decision, for assays and studies."""
+    if term not in SCATTER_COVERED:
+        raise KeyError(f"unknown scatter term {term!r}")
+    return treatment == "observed"
+
+
 def _reading_points(levels: tuple[Level, ...], factor: float) -> tuple[list[float], list[float]]:
     xs = [p.concentration / factor for lv in levels for p in lv.preparations for _ in p.readings]
     ys = [a for lv in levels for p in lv.preparations for a in p.readings]
@@ -73,9 +81,7 @@ class CalibrationDesign:
     def covers(self, term: str) -> bool:
         """Whether the observed scatter stands for this random effect (a key of SCATTER_COVERED),
         so its bottom-up term is left out."""
-        if term not in SCATTER_COVERED:
-            raise KeyError(f"unknown scatter term {term!r}")
-        return self.scatter == "observed"
+        return scatter_covers(self.scatter, term)
 
     def covered_terms(self) -> list[str]:
         """What the observed scatter stands for, in words, for the record (empty bottom-up)."""
@@ -152,13 +158,17 @@ def _scatter_components(design: CalibrationDesign) -> ScatterComponents:
     """The two components of a design at the estimates: the repeated readings of the line's
     solutions give s_r (the pure error of ISO 8466-1), the preparations' means give s_m."""
     xs, ys, ws = design.point_data()
+    return scatter_of_line([(p, design.weight(lv.id)) for lv, p in design.fitted()], xs, ys, ws)
+
+
+def scatter_of_line(preparations: list[tuple[Preparation, float]], xs, ys, ws) -> ScatterComponents:
+    """s_m of the preparations' means (xs, ys, weights ws) about their line, s_r pooled within the
+    preparations (each with its weight) and series, and u_p (validate.model.scatter)."""
     fit = fit_line(xs, ys, ws)
     # the line's own solutions only: a sample's readings never change another sample's uncertainty
-    solutions = [(p.readings, p.series, design.weight(lv.id)) for lv, p in design.fitted()]
-    groups = [(g, w) for readings, series, w in solutions for g in _within_series(readings, series)]
+    groups = [(g, w) for p, w in preparations for g in _within_series(p.readings, p.series)]
     s_r, dof_r = pooled_reading_sd(groups)
-    counts = [p.count for _, p in design.fitted()]
-    inv = sum(1.0 / m for m in counts) / len(counts)
+    inv = sum(1.0 / p.count for p, _ in preparations) / len(preparations)
     u_p = math.sqrt(max(0.0, fit.residual_sd**2 - s_r**2 * inv)) if s_r is not None else None
     return ScatterComponents(fit.residual_sd, fit.dof, s_r, dof_r, u_p, inv)
 
@@ -302,6 +312,12 @@ class EquilibriumDesign:
 
     def every_reading(self) -> list[float]:
         return [a for lv in self.standards for a in lv.readings] + [a for p in self.points for a in p.readings]
+
+    def scatter_components(self) -> ScatterComponents:
+        """Reading and preparation scatter of the standards' line through the preparations' means,
+        as an assay's (unweighted)."""
+        xs, ys = self.point_data()
+        return scatter_of_line([(p, 1.0) for lv in self.standards for p in lv.preparations], xs, ys, None)
 
     def to_dict(self) -> dict:
         return asdict(self)

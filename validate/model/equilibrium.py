@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field, replace
+from pathlib import Path
 
 import numpy as np
 
@@ -23,11 +24,12 @@ from validate.metrology.equipment import SourceSet, temperature_source, volume_t
 from validate.metrology.sources import Source, normal
 from validate.model import backend as mathops
 from validate.model.assay import SolutionInputs, mean_reading_term, solution_order, solution_term
-from validate.model.design import EquilibriumDesign, equilibrium_design
+from validate.model.design import EquilibriumDesign, equilibrium_design, scatter_covers
 from validate.model.errors import ModelError
 from validate.model.ice import equilibrium_constant
 from validate.model.keys import ResultKey
-from validate.model.line import fit_line
+from validate.model.levels import Level
+from validate.model.scatter import ScatterComponents, ScatterTerm
 from validate.model.standards import corrected_states, line_by_sums
 
 COMBINED = "K, combined"
@@ -94,7 +96,9 @@ class EquilibriumModel(SolutionInputs):
         pts = [(totals(x, conc), reading(x)) for totals, reading in self._points]
         for memo in self._memos:  # the series' totals of this x are no longer needed: free them
             memo.clear()
-        reps = [lv.count for lv in self.design.standards]
+        # the line runs through the preparations' means: a standard of p preparations is their mean
+        # with weight p (the same line as one point per preparation, all at one concentration)
+        reps = [len(lv.preparations) for lv in self.design.standards]
         return ([t[0] for t, _ in std], [t[1] for t, _ in std], [a for _, a in std], reps,
                 [t[0] for t, _ in pts], [t[1] for t, _ in pts], [a for _, a in pts])
 
@@ -173,17 +177,23 @@ def build_equilibrium_model(method: EquilibriumMethod) -> EquilibriumModel:
     study = model.study
     for sol in solution_order(method.solutions):
         model._solution_terms[sol.id] = solution_term(ss, method, sol, False)
-    std_totals = [_mix_totals(ss, method, mix, observed) for mix in study.standards]
+    treatment = method.settings.scatter
+    std_totals = [_mix_totals(ss, method, mix, scatter_covers(treatment, "standard preparation"))
+                  for mix in study.standards]
     design = model.design = _design(model, std_totals)
     scatter = _standards_scatter(design) if observed else None
 
-    def reading(point):
-        return mean_reading_term(ss, method, point.id, point.readings, scatter, study.cuvette, study.photometer)
+    def reading(ident, readings, terms):
+        return mean_reading_term(ss, method, ident, readings, terms, study.cuvette, study.photometer)
 
-    model._standards = [(totals, reading(lv)) for lv, totals in zip(design.standards, std_totals, strict=True)]
+    model._standards = [(totals, reading(lv.id, *_standard_reading(lv, scatter)))
+                        for lv, totals in zip(design.standards, std_totals, strict=True)]
+    # a mixture is the study's sample: u_p^2 + s_r^2/m where the observed scatter covers preparing it
+    mixture_covered = scatter_covers(treatment, "sample preparation")
     for mix, point in zip(study.mixtures, design.mixtures, strict=True):
-        totals = _mix_totals(ss, method, mix, False)
-        model._points.append((totals, reading(point)))
+        totals = _mix_totals(ss, method, mix, mixture_covered)
+        terms = scatter.sample_terms(point.id, point.count, 1.0) if scatter else None
+        model._points.append((totals, reading(point.id, point.readings, terms)))
     series_points = iter(design.series_points)
     for series in study.series:
         step = f"addition series {series.id}"
@@ -193,8 +203,9 @@ def build_equilibrium_model(method: EquilibriumMethod) -> EquilibriumModel:
         memo: dict = {}
         model._memos.append(memo)
         for k in range(1, series.additions + 1):
+            point = next(series_points)
             model._points.append((_series_totals(series.solutions, start, additions, series.added, k, memo),
-                                  reading(next(series_points))))
+                                  reading(point.id, point.readings, _series_terms(scatter, point.id, point.count))))
     if study.reaction_enthalpy is not None:
         dh, u_dh = study.reaction_enthalpy
         ss.add(normal(ENTHALPY, dh, u_dh, step="reaction conditions", unit="kJ/mol", display_factor=1e3,
@@ -260,11 +271,12 @@ def impossible_reason(state, m_total, l_total) -> str | None:
     return None
 
 
-def _mix_totals(ss: SourceSet, method: EquilibriumMethod, mix, observed_standard: bool):
-    """A closure (x, concentrations) -> (total M, total L) of a standard or mixture made up in a flask."""
+def _mix_totals(ss: SourceSet, method: EquilibriumMethod, mix, covered: bool):
+    """A closure (x, concentrations) -> (total M, total L) of a standard or mixture made up in a
+    flask; without the glassware's per-use repeatability where the observed scatter covers it."""
     step = f"prepare {mix.id}"
-    flask = volume_term(ss, method, mix.flask, step, mix.id, not observed_standard)
-    parts = {r: volume_term(ss, method, d, step, f"{mix.id}, {r}", not observed_standard)
+    flask = volume_term(ss, method, mix.flask, step, mix.id, not covered)
+    parts = {r: volume_term(ss, method, d, step, f"{mix.id}, {r}", not covered)
              for r, d in mix.parts.items()}
 
     def totals(x, conc):
@@ -275,9 +287,26 @@ def _mix_totals(ss: SourceSet, method: EquilibriumMethod, mix, observed_standard
     return totals
 
 
+def _check_point_preparations(method: EquilibriumMethod) -> None:
+    """A mixture or series point is one measured solution: several preparations under its id (the
+    readings table's preparation column) are not averaged silently."""
+    from validate.inputs.errors import InputError
+
+    study = method.equilibrium
+    assert study is not None
+    points = [mix.id for mix in study.mixtures] + [i for s in study.series for i in s.reading_ids()]
+    for ident in points:
+        if len(set(method.reading_preparations.get(ident, ()))) > 1:
+            raise InputError(f"`{ident}` has readings of several preparations (the readings table's preparation "
+                             f"column); a mixture or series point is read as one measured solution",
+                             file=Path(method.path).parent / study.readings_file, where=f"readings of {ident}",
+                             fix="give each preparation its own mixture entry, or one preparation label")
+
+
 def _design(model: EquilibriumModel, std_totals) -> EquilibriumDesign:
     """The study's design, its standards at their limiting-reagent totals at the estimates."""
     study = model.study
+    _check_point_preparations(model.method)
     x0 = model.nominal_inputs()
     conc = model.concentrations(x0)
     limiting = {}
@@ -299,8 +328,15 @@ def _assumptions(study: EquilibriumStudy, observed: bool) -> list[str]:
         out.append("standards taken as fully complexed (no correction); the record shows "
                    "the bias this assumption causes")
     if observed:
-        out.append("calibration scatter treated as observed: the standards' residual scatter stands for the "
-                   "random effects of preparing and reading standards and mixtures")
+        out.append("calibration scatter treated as observed: the standards' line is fitted to the mean reading "
+                   "of each prepared standard (repeated readings of one solution are not independent points); "
+                   "the scatter of these means about the line is split into reading scatter s_r (repeated "
+                   "readings) and preparation scatter u_p, which stand for the per-use repeatability of the "
+                   "glassware preparing the standards and the mixtures and for every reading; a mixture read m "
+                   "times carries u^2 = u_p^2 + s_r^2/m and no glassware repeatability of its own; an addition "
+                   "series' points are not independent preparations (an addition's error is carried by every "
+                   "later point), so their volumes keep their repeatability bottom-up and they carry reading "
+                   "scatter s_r^2/m only")
     if study.reaction_enthalpy is not None:
         out.append("K carried from the laboratory temperature to the stated temperature by van 't Hoff "
                    "(d ln K/dT = dH/(R T^2)) with the stated reaction enthalpy and the laboratory temperature "
@@ -343,13 +379,39 @@ def _series_all_totals(reagent_solution, start, additions, added, x, conc) -> li
     return out
 
 
-def _standards_scatter(design: EquilibriumDesign) -> tuple[float, int]:
-    """Residual SD and n-2 of the standards' line at the estimates (readings on limiting totals;
-    absorbance as read: the scatter terms are added before dividing by the path)."""
+def _standards_scatter(design: EquilibriumDesign) -> ScatterComponents:
+    """The observed scatter of the standards' line through the preparations' means, split into
+    reading and preparation scatter as an assay's (validate.model.scatter); absorbance as read:
+    the scatter terms are added before dividing by the path."""
     try:
-        fit = fit_line(*design.reading_points())
+        scatter = design.scatter_components()
     except ValueError as exc:
         raise ModelError(f"equilibrium standards: {exc}") from None
-    if not math.isfinite(fit.residual_sd) or fit.dof < 1:
-        raise ModelError("equilibrium standards: too few readings to estimate the scatter of the line")
-    return fit.residual_sd, fit.dof
+    if not math.isfinite(scatter.means_sd) or scatter.means_dof < 1:
+        raise ModelError("equilibrium standards: too few prepared standards to estimate the scatter of their "
+                         "line (at least 3 at different concentrations)")
+    return scatter
+
+
+def _standard_reading(lv: Level, scatter: ScatterComponents | None) -> tuple[tuple[float, ...], list | None]:
+    """The readings a standard's mean is taken over and its observed-scatter term: one
+    preparation's own readings with its point term (s_m scaled for its reading count), or the
+    mean of several preparations' means with the mean of their independent point terms."""
+    if scatter is None:
+        return lv.readings, None
+    preps = lv.preparations
+    terms = [scatter.point_term(p.key, p.count, 1.0) for p in preps]
+    if len(preps) == 1:
+        return preps[0].readings, terms
+    u = math.sqrt(sum(t.u**2 for t in terms)) / len(preps)
+    return (tuple(p.mean for p in preps),
+            [replace(terms[0], u=u, provenance=f"mean of {len(preps)} independent preparations of {lv.id}; "
+                                                f"each: {terms[0].provenance}")])
+
+
+def _series_terms(scatter: ScatterComponents | None, ident: str, count: int) -> list[ScatterTerm] | None:
+    """An addition-series point's observed scatter: reading scatter s_r/sqrt(m) only (its volumes
+    are carried bottom-up); s_m where no solution was read twice (nothing to split)."""
+    if scatter is None:
+        return None
+    return [t for t in scatter.sample_terms(ident, count, 1.0) if t.label != "preparation scatter"]

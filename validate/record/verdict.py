@@ -100,6 +100,7 @@ def warning_items(results: Sequence[ResultEntry], validation: ValidationBlock | 
     controls = [level.sample for level in method_uncertainty.levels] if method_uncertainty else []
     if validation is not None:
         items += (warn.linearity(validation) + warn.weighting(validation) + warn.scatter(validation)
+                  + warn.reading_noise(validation)
                   + warn.limits(validation) + warn.scope(validation) + warn.top_down(validation, results, controls))
     items += warn.reconciliation(method_uncertainty)
     if equilibrium is not None:

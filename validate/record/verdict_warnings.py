@@ -61,6 +61,27 @@ def scatter(v: ValidationBlock) -> list[VerdictItem]:
     return []
 
 
+def reading_noise(v: ValidationBlock) -> list[VerdictItem]:
+    """The pure error (repeated readings of one solution) against the photometer's stated reading
+    noise, by the chi-square test of a standard deviation (NIST/SEMATECH 1.3.5.8): excess means the
+    stated noise understates reading a solution (a bottom-up budget carries the stated figure);
+    deficit means the specification is conservative, or the repeated readings were not independent."""
+    sc = v.reading_noise_consistency
+    if sc is None or sc.observed_sd is None or sc.predicted_sd is None or sc.alpha is None:
+        return []
+    what = "reading scatter against the photometer's stated noise"
+    figures = f"pure error SD {sc.observed_sd:.3g}, stated noise {sc.predicted_sd:.3g} (absorbance), {sc.dof} " \
+              f"degrees of freedom"
+    if sc.p_excess is not None and sc.p_excess < sc.alpha:
+        return [VerdictItem(what=what, why=f"{sc.verdict}: {figures}{_p(sc.p_excess)}")]
+    if sc.p_deficit is not None and sc.p_deficit < sc.alpha:
+        return [VerdictItem(what=what, why=f"repeated readings scatter significantly less than the stated noise: "
+                                           f"{figures}{_p(sc.p_deficit)}; the specification is conservative, or "
+                                           f"the repeated readings were not independent (read without refilling "
+                                           f"or re-placing the cell)")]
+    return []
+
+
 def _sample_result(results: Sequence[ResultEntry], sample: str) -> ResultEntry | None:
     return next((r for r in results if r.key.kind == "result" and r.key.id == sample), None)
 

@@ -14,6 +14,7 @@ import io
 from reportlab.lib.utils import ImageReader
 from reportlab.platypus import Flowable, Image, KeepTogether, Paragraph
 
+from validate.inputs.validation_settings import CRITERIA
 from validate.report import figures
 from validate.report.numbers import DASH, dof, gum_decimals, gum_pair, interval, is_number, num, pct
 from validate.report.sections_verdict import (
@@ -175,6 +176,8 @@ def mc_interval_text(result: dict) -> str:
 
 
 def limit_text(c: dict, conc_unit: str) -> str:
+    """The limit with its unit or %, as the terminal shows it: "≤ 5 %", "≥ 0.995", "95 to 105 %"
+    (a limit on an absolute value reads as a limit; the observed value carries the bars)."""
     limit, unit = c.get("limit"), c.get("unit", "")
     unit = conc_unit if unit == "concentration unit" else unit
     suffix = f" {unit}" if unit else ""
@@ -183,8 +186,14 @@ def limit_text(c: dict, conc_unit: str) -> str:
     if isinstance(limit, (list, tuple)):
         return f"{num(limit[0])} to {num(limit[1])}{suffix}"
     comparison = str(c.get("comparison", ""))
-    symbol = {">=": "≥", "<=": "≤", "|x| <=": "|x| ≤"}.get(comparison, comparison)
+    symbol = {">=": "≥", "<=": "≤", "|x| <=": "≤"}.get(comparison, comparison)
     return f"{symbol} {num(limit, 6)}{suffix}"
+
+
+def not_applicable(crit: dict) -> list[str]:
+    """The criteria left out of a record's list as not applicable to its kind of method."""
+    judged = {c.get("key") for c in crit.get("criteria") or []}
+    return [pretty(spec[0]) for key, spec in CRITERIA.items() if key not in judged]
 
 
 def pretty(name: str) -> str:
@@ -212,7 +221,9 @@ def _criterion_row(c: dict, conc_unit: str) -> list:
     value = c.get("observed")
     # r² close to 1 needs its digits; other observations read well with four
     digits = 6 if is_number(value) and 0.9 < value < 1 else 4
-    observed = f"{num(value, digits)} {unit}".strip() if value is not None else DASH
+    shown = num(value, digits)
+    shown = f"|{shown}|" if c.get("comparison") == "|x| <=" else shown
+    observed = f"{shown} {unit}".strip() if value is not None else DASH
     origin = "default (common practice)" if c.get("is_default") else "set by the user"
     return [pretty(c.get("name", c.get("key", ""))), limit_text(c, conc_unit), observed,
             coloured(c.get("status", DASH), c.get("met")), origin]
@@ -233,8 +244,14 @@ def criteria_block(record: dict) -> list:
                               [72, 24, 26, 20, 32], numeric={2}))
     if not_set:
         out.append(para("Not set (no general default): " + "; ".join(not_set) + ".", "small"))
-    out.append(para(crit.get("caution") or "Acceptance criteria come from the applicable "
-                    "requirements, not from the tool.", "note"))
+    left_out = not_applicable(crit)
+    if left_out:
+        out.append(para("Not applicable to this kind of method, so not judged: " + "; ".join(left_out) + ".",
+                        "small"))
+    # the caution's own list of those left out is the line above
+    caution = (crit.get("caution") or "").split(" Not applicable to this kind of method")[0]
+    out.append(para(caution or "Acceptance criteria come from the applicable requirements, not from the tool.",
+                    "note"))
     return out
 
 

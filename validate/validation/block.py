@@ -21,7 +21,7 @@ from validate.model.equilibrium import EquilibriumModel
 from validate.model.line import LineFit, fit_line, inverse_prediction
 from validate.propagation.linear import LinearResult
 from validate.validation.criteria import STUDY_CRITERIA, evaluate_criteria
-from validate.validation.limits import range_flags
+from validate.validation.limits import SampleReadings, range_flags
 from validate.validation.linearity import plain
 from validate.validation.precision import (
     READING_SCATTER,
@@ -131,7 +131,18 @@ def _summary(method: Method, cal: Calibration, design: CalibrationDesign) -> Val
         declared_limit=v.declared_limit,
         path_length_cm=path * 100 if cell is not None and path is not None else None,
         path_length_u=cell.tolerance / math.sqrt(3) * 100 if cell else None,
-        sample_replicates=1, replicate_sds=reps, concentration_unit=cal.concentration_unit)
+        sample_replicates=1, replicate_sds=reps, concentration_unit=cal.concentration_unit,
+        sample=sample_readings(design))
+
+
+def sample_readings(design: CalibrationDesign) -> SampleReadings | None:
+    """The fewest readings of a sample against the line's points, with the two scatter components
+    (None without samples, or where no solution of the line was read twice)."""
+    sc = design.scatter_components()
+    if not design.samples or sc.reading_sd is None or sc.preparation_sd is None:
+        return None
+    return SampleReadings(min(s.count for s in design.samples), sc.reading_sd, sc.preparation_sd,
+                          1.0 / sc.mean_inverse_count)
 
 
 def _sample_entries(design: CalibrationDesign, summary: ValidationSummary) -> tuple[dict, dict]:

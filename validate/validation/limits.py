@@ -110,6 +110,38 @@ ICH_SOURCE = "ICH Q2(R1), sections 6.3 and 7.3: LOD = 3.3 sigma/S, LOQ = 10 sigm
 
 
 @dataclass(frozen=True)
+class SampleReadings:
+    """How a sample is read, against the line's points (preparation means): the two scatter
+    components of the line (validate.model.scatter) and the readings averaged per sample."""
+
+    count: int  # m0: readings averaged into one sample result (the fewest of the method's samples)
+    reading_sd: float  # s_r, repeated readings of one solution
+    preparation_sd: float  # u_p, preparations beyond their reading scatter
+    points_count: float  # readings per point of the line, as their harmonic mean 1/mean(1/m_i)
+
+    def fewer_than_points(self) -> bool:
+        return self.count < self.points_count * (1 - 1e-9)
+
+    def response_sd(self) -> float:
+        """sqrt(u_p^2 + s_r^2/m0): the SD of a sample's mean reading (one-way random model)."""
+        return math.sqrt(self.preparation_sd**2 + self.reading_sd**2 / self.count)
+
+
+# The rule for samples read fewer times than the line's points (from memory): ICH Q2(R1) 6.3 takes
+# sigma as the SD of the response, and ISO 11843-2 (5.3) the SD of one measurement of the sample,
+# both for measurements like those of the calibration. The line's points are preparation means of
+# m readings; a sample read m0 < m times has the larger SD sqrt(u_p^2 + s_r^2/m0), so the residual
+# route and ISO 11843-2's sample term use that (1/K becomes (u_p^2 + s_r^2/m0)/s_m^2). Read as
+# often as the points or more, the line's residual SD s_m stands (a limit is not lowered by
+# averaging beyond what the calibration itself showed).
+SAMPLE_RULE = ("samples are read {m0} time(s), fewer than the line's points ({m:.3g} readings each): "
+               "the residual route takes sigma = sqrt(u_p^2 + s_r^2/m0) = {sigma:.4g} instead of the residual "
+               "SD {s:.4g} of the points, and ISO 11843-2 its sample term 1/K as (u_p^2 + s_r^2/m0)/s^2 = "
+               "{ratio:.3g} (ICH Q2(R1) 6.3 and ISO 11843-2 5.3: the SD of the response as the sample is "
+               "measured, from memory)")
+
+
+@dataclass(frozen=True)
 class LimitRoute:
     route: str
     sigma: float | None  # response SD used (None for ISO 11843-2)
@@ -172,7 +204,7 @@ def exact_delta(dof: int, alpha: float, beta: float) -> float:
 
 
 def iso11843_2(fit: LineFit, alpha: float = 0.05, beta: float = 0.05,
-               sample_replicates: int = 1) -> Iso11843Result:
+               sample_replicates: int = 1, sample_term: float | None = None) -> Iso11843Result:
     """Critical value x_C and minimum detectable value x_D, constant-SD linear case.
 
     x_C = t_{1-alpha}(nu) (s/b) sqrt(1/K + 1/(IJ) + xbar^2/Sxx),  x_D = delta (s/b) sqrt(...),
@@ -180,14 +212,16 @@ def iso11843_2(fit: LineFit, alpha: float = 0.05, beta: float = 0.05,
     from memory). delta ~ t_{1-alpha}(nu) + t_{1-beta}(nu), the approximation the
     standard allows (it equals 2 t_{1-alpha} for alpha = beta); the exact
     noncentral-t delta is given beside it. Unbalanced designs use n and Sxx of
-    the actual readings.
+    the actual readings. `sample_term`: the sample's response variance over s^2 in place of 1/K
+    (samples read fewer times than the line's points; SAMPLE_RULE).
     """
     if not (0 < alpha < 0.5 and 0 < beta < 0.5):
         raise ValueError("alpha and beta must lie between 0 and 0.5 (e.g. 0.05)")
     if sample_replicates < 1:
         raise ValueError("the number of sample replicates K must be at least 1")
     nu = fit.dof
-    root = math.sqrt(1.0 / sample_replicates + 1.0 / fit.n + fit.x_mean**2 / fit.sxx)
+    first = 1.0 / sample_replicates if sample_term is None else sample_term
+    root = math.sqrt(first + 1.0 / fit.n + fit.x_mean**2 / fit.sxx)
     scale = fit.residual_sd / abs(fit.slope) * root
     t_a, t_b = stats.t.ppf(1 - alpha, nu), stats.t.ppf(1 - beta, nu)
     delta, delta_ex = float(t_a + t_b), exact_delta(nu, alpha, beta)
@@ -205,9 +239,11 @@ def iso11843_2(fit: LineFit, alpha: float = 0.05, beta: float = 0.05,
 
 
 def detection_limits(fit: LineFit, blanks=None, *, alpha: float = 0.05, beta: float = 0.05,
-                     sample_replicates: int = 1,
-                     declared: str = "ich_residual_sd") -> DetectionLimits:
-    """Every LOD/LOQ route the data allow, the declared one, and disagreement warnings."""
+                     sample_replicates: int = 1, declared: str = "ich_residual_sd",
+                     sample: SampleReadings | None = None) -> DetectionLimits:
+    """Every LOD/LOQ route the data allow, the declared one, and disagreement warnings.
+    `sample`: how samples are read against the line's points; where they are read fewer times,
+    the residual route and ISO 11843-2 use the sample's larger response SD (SAMPLE_RULE)."""
     if declared not in ROUTES:
         raise ValueError(f"unknown detection-limit route {declared!r}; choose one of {', '.join(ROUTES)}")
     notes = []
@@ -215,11 +251,15 @@ def detection_limits(fit: LineFit, blanks=None, *, alpha: float = 0.05, beta: fl
         fit = fit_line(fit.x, fit.y)
         notes.append("limits use the unweighted line of the same data (constant-SD formulas); "
                      "with scatter growing with concentration they are conservative")
+        sample = None  # the scatter components of a weighted line are on its weighted scale
     if fit.slope == 0:
         raise ValueError("the calibration slope is zero; detection limits are undefined")
+    sigma, sample_term, residual_note = _residual_sigma(fit, sample)
+    if residual_note:
+        notes.append(residual_note)
     routes = [
-        _ich_route("ich_residual_sd", fit.residual_sd, fit.dof, fit.slope,
-                   ICH_SOURCE + "sigma = residual SD of the regression line."),
+        _ich_route("ich_residual_sd", sigma, fit.dof, fit.slope,
+                   ICH_SOURCE + "sigma = residual SD of the regression line.", residual_note),
         _ich_route("ich_intercept_sd", fit.intercept_u, fit.dof, fit.slope,
                    ICH_SOURCE + "sigma = SD of the y-intercept.",
                    "ICH names the SD of intercepts of several lines; the standard error of "
@@ -232,7 +272,7 @@ def detection_limits(fit: LineFit, blanks=None, *, alpha: float = 0.05, beta: fl
         b = np.asarray(blanks, dtype=float).ravel()
         routes.append(_ich_route("ich_blank_sd", float(np.std(b, ddof=1)), len(b) - 1,
                                  fit.slope, ICH_SOURCE + "sigma = SD of blank responses."))
-    iso = iso11843_2(fit, alpha, beta, sample_replicates)
+    iso = iso11843_2(fit, alpha, beta, sample_replicates, sample_term)
     routes.append(LimitRoute("iso11843_2", None, fit.dof, iso.minimum_detectable_value, None,
                              iso.source, "minimum detectable value x_D; ISO 11843 defines no "
                              "quantitation limit"))
@@ -246,6 +286,17 @@ def detection_limits(fit: LineFit, blanks=None, *, alpha: float = 0.05, beta: fl
                     "scatter are not meaningful; use blank readings or more standards"]
     return DetectionLimits(tuple(routes), iso, declared, chosen.lod, chosen.loq,
                            tuple(warnings), tuple(notes))
+
+
+def _residual_sigma(fit: LineFit, sample: SampleReadings | None) -> tuple[float, float | None, str]:
+    """sigma of the residual route, ISO 11843-2's sample term (None: 1/K) and the note saying why
+    (SAMPLE_RULE): the points' residual SD unless samples are read fewer times than the points."""
+    if sample is None or not sample.fewer_than_points() or not fit.residual_sd > 0:
+        return fit.residual_sd, None, ""
+    sigma = max(sample.response_sd(), fit.residual_sd)
+    ratio = (sigma / fit.residual_sd) ** 2
+    return sigma, ratio, SAMPLE_RULE.format(m0=sample.count, m=sample.points_count, sigma=sigma,
+                                            s=fit.residual_sd, ratio=ratio)
 
 
 def _disagreements(routes) -> list[str]:

@@ -12,6 +12,7 @@ from validate.model.line import LineFit, fit_line
 from validate.validation.limits import (
     DetectionLimits,
     MolarAbsorptivity,
+    SampleReadings,
     Sensitivity,
     detection_limits,
     molar_absorptivity,
@@ -66,7 +67,8 @@ def validate_calibration(x, y, *, weights=None, blanks=None, path_length_cm=None
                          path_length_u=None, alpha: float = 0.05, beta: float = 0.05,
                          declared_limit: str = "ich_residual_sd", test_alpha: float = 0.05,
                          sample_replicates: int = 1, replicate_sds=None,
-                         concentration_unit: Unit | None = None) -> ValidationSummary:
+                         concentration_unit: Unit | None = None,
+                         sample: SampleReadings | None = None) -> ValidationSummary:
     """Fit the line and run every validation statistic on it.
 
     `x`, `y` are the line's points: preparation means on a method's line (repeated readings
@@ -75,7 +77,7 @@ def validate_calibration(x, y, *, weights=None, blanks=None, path_length_cm=None
     `sample_replicates` is K, the points averaged per sample (1 when the points are means);
     `replicate_sds`: (x, n, sd) of each level's repeated readings for the weighting check;
     `concentration_unit` the unit of x (the molar absorptivity is converted to L mol^-1 cm^-1
-    where it allows).
+    where it allows); `sample`: how samples are read against the points, for the limits.
     """
     fit = fit_line(x, y, weights)
     notes = []
@@ -88,7 +90,7 @@ def validate_calibration(x, y, *, weights=None, blanks=None, path_length_cm=None
     if path_length_cm is not None:
         eps = molar_absorptivity(fit, path_length_cm, path_length_u or 0.0, concentration_unit)
     limits = detection_limits(fit, blanks, alpha=alpha, beta=beta,
-                              sample_replicates=sample_replicates, declared=declared_limit)
+                              sample_replicates=sample_replicates, declared=declared_limit, sample=sample)
     p_values = [t.p_value for key, t in tests.items()
                 if key in ("lack_of_fit", "mandel") and t.p_value is not None]
     positive = [v for v in fit.x if v > 0]
