@@ -47,8 +47,8 @@ from validate.record.types import (
 )
 from validate.record.verdict import judge
 from validate.record.verdict_warnings import stated_exact
-from validate.validation.matrix_effect import addition_blocks
 from validate.validation.block import equilibrium_validation_block, line_summary, validation_block
+from validate.validation.matrix_effect import addition_blocks
 from validate.validation.routine_block import method_uncertainty_block
 
 EQUILIBRIUM_FORMULA = "K = [ML] / (([M]0 - [ML]) ([L]0 - [ML])), [ML] from the line of the standards"
