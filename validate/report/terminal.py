@@ -19,6 +19,7 @@ from validate.report.terminal_run import (
     BLANK,
     Line,
     Printable,
+    addition_lines,
     advice_lines,
     equilibrium_lines,
     method_uncertainty_lines,
@@ -95,6 +96,7 @@ def run_lines(record: dict, top: int) -> list[Printable]:
             lines += result_lines(record, result, top)
     if validation:
         lines += criteria_lines(validation["criteria"], validation.get("concentration_unit") or "")
+    lines += addition_lines(record.get("standard_additions"))
     lines += method_uncertainty_lines(record.get("method_uncertainty"))
     return lines + advice_lines(record.get("advice"))
 
