@@ -91,6 +91,9 @@ def _spikes(t: Table, items: dict) -> tuple[Delivery | None, ...]:
                       fix='e.g. spike_volumes = ["0 mL", "1.00 mL", "2.00 mL", "3.00 mL"]')
     item = t.required_text("spike_item")
     spikes = tuple(_spike(t, item, v, items) for v in raw)
+    if all(d is None for d in spikes):
+        raise t.error("every volume is 0 mL: no flask has an addition, so there is no line to extrapolate",
+                      "spike_volumes", fix="add the standard in increasing volumes, e.g. 0, 1, 2 and 3 mL")
     distinct = {0.0 if d is None else round(d.volume * 1e12) for d in spikes}
     if len(distinct) < MIN_LEVELS:
         raise t.error(f"{len(distinct)} different addition level(s); standard addition needs at least "

@@ -34,6 +34,7 @@ from validate.model.line import fit_line, straight_line
 from validate.model.scatter import ScatterTerm
 
 STEP = "standard addition"
+MIN_REACH = 0.5  # the largest addition at least half the sample's content: below, refused (common practice)
 
 
 @dataclass
@@ -91,19 +92,24 @@ def mean_readings(method: AssayMethod, add: StandardAddition) -> list[float]:
 
 def check_addition_line(method: AssayMethod, add: StandardAddition, c_std: float):
     """The line of mean absorbance on added concentration at the estimates, refused when it
-    falls or its slope does not differ from zero (Fieller's g >= 1: the extrapolation has no
-    finite confidence interval; Miller and Miller, section 5.6, from memory)."""
-    fit = fit_line(flask_concentrations(method, add, c_std), mean_readings(method, add))
+    falls, when its slope does not differ from zero (Fieller's g >= 1: the extrapolation has no
+    finite confidence interval; Miller and Miller, section 5.6, from memory), or when the additions
+    reach less than half the sample's own content (common practice: about 1 to 3 times it)."""
+    xs = flask_concentrations(method, add, c_std)
+    fit = fit_line(xs, mean_readings(method, add))
+    f, u, where = add.unit.factor, add.unit.text, f"standard addition `{add.id}`"
     if fit.slope <= 0:
-        raise ModelError(f"standard addition `{add.id}`: the response falls as standard is added (slope "
-                         f"{fit.slope:.4g} per SI unit); check the readings' order against spike_volumes and the "
-                         f"standard solution")
-    t = float(special.stdtrit(fit.dof, 0.975))
-    g = (t * fit.slope_u / fit.slope) ** 2
+        raise ModelError(f"{where}: the response falls as standard is added (slope {fit.slope * f:.4g} absorbance "
+                         f"per {u}); check the readings' order against spike_volumes and the standard solution")
+    g = (float(special.stdtrit(fit.dof, 0.975)) * fit.slope_u / fit.slope) ** 2
     if g >= 1:
-        raise ModelError(f"standard addition `{add.id}`: the slope does not differ significantly from zero "
-                         f"(Fieller's g = {g:.2f} >= 1), so the extrapolated concentration has no finite "
-                         f"interval; add larger amounts of standard")
+        raise ModelError(f"{where}: the slope does not differ significantly from zero (Fieller's g = {g:.2f} >= 1), "
+                         f"so the extrapolated concentration has no finite interval; add larger amounts of standard")
+    x_e = fit.intercept / fit.slope
+    if max(xs) < MIN_REACH * x_e:
+        raise ModelError(f"{where}: the largest addition ({max(xs) / f:.4g} {u}) is less than half the sample's own "
+                         f"contribution to the flask ({x_e / f:.4g} {u}), so the line would be extrapolated over more "
+                         f"than twice its spiked range; add up to about 1 to 3 times the sample's content")
     return fit
 
 
