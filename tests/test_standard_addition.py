@@ -232,6 +232,16 @@ def test_bad_additions_stop_with_an_input_error(write_method, capsys, spikes, fl
     assert what in err and "spike_volumes" in err and "Traceback" not in err
 
 
+def test_a_blank_as_the_standard_or_no_volumes_is_refused(write_method, capsys):
+    text = method_text(MILLER_SPIKES).replace('[solutions.S1]', '[solutions.water]\nmade_by = "blank"\n[solutions.S1]')
+    path = write_method(text.replace('standard = "stock"', 'standard = "water"'), readings_text(MILLER_ABSORBANCE))
+    assert cli.main(["check", str(path)]) == 2
+    assert "is a blank" in capsys.readouterr().err
+    path = write_method(method_text([]), readings_text([]))
+    assert cli.main(["check", str(path)]) == 2
+    assert "expected a list of volumes" in capsys.readouterr().err
+
+
 def test_a_falling_line_stops_with_a_clear_message(write_method, capsys):
     path = write_method(method_text(MILLER_SPIKES), readings_text(list(reversed(MILLER_ABSORBANCE))))
     assert cli.main(["check", str(path)]) == 3
@@ -252,3 +262,21 @@ def test_missing_flask_readings_are_named(write_method, capsys):
     path = write_method(method_text(MILLER_SPIKES), readings_text(MILLER_ABSORBANCE[:-1]))
     assert cli.main(["check", str(path)]) == 2
     assert "waste.7" in capsys.readouterr().err
+
+
+@pytest.mark.slow
+def test_the_demo_runs_end_to_end_with_record_terminal_and_pdf(tmp_path):
+    """The invented effluent demo: record (schema-checked on the way in), terminal lines and PDF."""
+    from validate.record.types import Record
+    from validate.report.terminal import run_lines
+    from validate.workflow import pipeline as api
+
+    run = api.analyse(DEMOS / "effluent_iron" / "method.toml", trials=5000, seed=2)
+    paths = api.write_outputs(run, tmp_path / "record", pdf=True)
+    record = Record.from_dict(run.record)
+    entry = record.result(ResultKey("standard addition", "effluent_A"))
+    assert entry.unit == "mg/L" and entry.expanded_uncertainty > 0
+    assert record.standard_additions is not None and len(record.standard_additions) == 2
+    text = "\n".join(getattr(line, "text", "") for line in run_lines(run.record, 5))
+    assert "Standard addition effluent_A" in text and "recovery of sensitivity" in text
+    assert any(p.name == "report.pdf" and p.stat().st_size > 0 for p in paths)

@@ -19,6 +19,7 @@ from dataclasses import dataclass
 
 from validate.inputs.errors import InputError
 from validate.inputs.items import FLASKS, VOLUMETRIC
+from validate.inputs.solutions import Blank
 from validate.inputs.tables import Table, parse_delivery, unit_of
 from validate.inputs.units import Unit
 from validate.inputs.values import Delivery
@@ -67,6 +68,9 @@ def _addition(name: str, t: Table, items: dict, solutions: dict, concentration_d
     if standard not in solutions:
         raise t.error(f"`{standard}` is not one of the [solutions]", "standard",
                       fix=f"use one of: {', '.join(solutions) or '(no solutions defined)'}")
+    if isinstance(solutions[standard], Blank):
+        raise t.error(f"`{standard}` is a blank: adding it adds nothing", "standard",
+                      fix="name the standard solution whose known concentration is added")
     flask = parse_delivery(t.require("made_up_to", fix='e.g. made_up_to = "flask_50"'), t, "made_up_to", items,
                            FLASKS)
     spikes = _spikes(t, items)
@@ -86,7 +90,7 @@ def _addition(name: str, t: Table, items: dict, solutions: dict, concentration_d
 
 def _spikes(t: Table, items: dict) -> tuple[Delivery | None, ...]:
     raw = t.require("spike_volumes", fix='e.g. spike_volumes = ["0 mL", "1.00 mL", "2.00 mL", "3.00 mL"]')
-    if not isinstance(raw, list) or not all(isinstance(v, str) for v in raw):
+    if not isinstance(raw, list) or not raw or not all(isinstance(v, str) for v in raw):
         raise t.error("expected a list of volumes", "spike_volumes",
                       fix='e.g. spike_volumes = ["0 mL", "1.00 mL", "2.00 mL", "3.00 mL"]')
     item = t.required_text("spike_item")

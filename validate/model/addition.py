@@ -96,8 +96,11 @@ def check_addition_line(method: AssayMethod, add: StandardAddition, c_std: float
     finite confidence interval; Miller and Miller, section 5.6, from memory), or when the additions
     reach less than half the sample's own content (common practice: about 1 to 3 times it)."""
     xs = flask_concentrations(method, add, c_std)
-    fit = fit_line(xs, mean_readings(method, add))
     f, u, where = add.unit.factor, add.unit.text, f"standard addition `{add.id}`"
+    try:
+        fit = fit_line(xs, mean_readings(method, add))
+    except ValueError as exc:
+        raise ModelError(f"{where}: {exc}") from None
     if fit.slope <= 0:
         raise ModelError(f"{where}: the response falls as standard is added (slope {fit.slope * f:.4g} absorbance "
                          f"per {u}); check the readings' order against spike_volumes and the standard solution")
