@@ -280,3 +280,19 @@ def test_the_demo_runs_end_to_end_with_record_terminal_and_pdf(tmp_path):
     text = "\n".join(getattr(line, "text", "") for line in run_lines(run.record, 5))
     assert "Standard addition effluent_A" in text and "recovery of sensitivity" in text
     assert any(p.name == "report.pdf" and p.stat().st_size > 0 for p in paths)
+
+
+def test_the_starter_block_checks_when_uncommented(tmp_path, capsys):
+    """The commented [additions] block of `validate init` is a valid section as written."""
+    folder = tmp_path / "assay"
+    assert cli.main(["init", str(folder)]) == 0
+    method = folder / "method.toml"
+    text = method.read_text(encoding="utf-8")
+    block = text[text.index("# [additions.sample_2]"):]
+    method.write_text(text.replace(block, "\n".join(line[2:] for line in block.splitlines())), encoding="utf-8")
+    readings = folder / "readings.csv"
+    flasks = "".join(f"sample_2.{k},{0.1 + 0.05 * k:.3f}\n" for k in range(1, 5))
+    readings.write_text(readings.read_text(encoding="utf-8") + flasks, encoding="utf-8")
+    assert cli.main(["check", str(method)]) == 0, capsys.readouterr().err
+    assert len(load_method(method).additions) == 1
+    capsys.readouterr()
