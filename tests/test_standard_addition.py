@@ -288,7 +288,8 @@ def test_the_starter_block_checks_when_uncommented(tmp_path, capsys):
     assert cli.main(["init", str(folder)]) == 0
     method = folder / "method.toml"
     text = method.read_text(encoding="utf-8")
-    block = text[text.index("# [additions.sample_2]"):]
+    start = text.index("# [additions.sample_2]")
+    block = text[start:text.index("\n\n", start)]
     method.write_text(text.replace(block, "\n".join(line[2:] for line in block.splitlines())), encoding="utf-8")
     readings = folder / "readings.csv"
     flasks = "".join(f"sample_2.{k},{0.1 + 0.05 * k:.3f}\n" for k in range(1, 5))
