@@ -18,7 +18,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 from validate.inputs.errors import InputError
-from validate.inputs.items import FLASKS, VOLUMETRIC
+from validate.inputs.items import FLASKS, PIPETTES
 from validate.inputs.solutions import Blank
 from validate.inputs.tables import Table, parse_delivery, unit_of
 from validate.inputs.units import Unit
@@ -63,7 +63,7 @@ def parse_additions(top: Table, items: dict, solutions: dict, concentration_dims
 def _addition(name: str, t: Table, items: dict, solutions: dict, concentration_dims,
               default_unit: Unit | None) -> StandardAddition:
     t.allow("description", "portion", "standard", "spike_item", "spike_volumes", "made_up_to", "unit")
-    portion = parse_delivery(t.require("portion", fix='e.g. portion = "pipette_10"'), t, "portion", items, VOLUMETRIC)
+    portion = parse_delivery(t.require("portion", fix='e.g. portion = "pipette_10"'), t, "portion", items, PIPETTES)
     standard = t.required_text("standard")
     if standard not in solutions:
         raise t.error(f"`{standard}` is not one of the [solutions]", "standard",
@@ -94,6 +94,7 @@ def _spikes(t: Table, items: dict) -> tuple[Delivery | None, ...]:
         raise t.error("expected a list of volumes", "spike_volumes",
                       fix='e.g. spike_volumes = ["0 mL", "1.00 mL", "2.00 mL", "3.00 mL"]')
     item = t.required_text("spike_item")
+    parse_delivery(item, t, "spike_item", items, PIPETTES)  # the item's kind, before its volumes
     spikes = tuple(_spike(t, item, v, items) for v in raw)
     if all(d is None for d in spikes):
         raise t.error("every volume is 0 mL: no flask has an addition, so there is no line to extrapolate",
@@ -108,13 +109,13 @@ def _spikes(t: Table, items: dict) -> tuple[Delivery | None, ...]:
 
 
 def _spike(t: Table, item: str, volume: str, items: dict) -> Delivery | None:
-    sub = Table({"v": volume}, t.file, f"{t.where}.spike_volumes")
-    v, _ = sub.quantity("v", (0, 3, 0, 0), positive=False)
+    one = Table({"spike_volumes": volume}, t.file, t.where)  # errors name the key as written
+    v, _ = one.quantity("spike_volumes", (0, 3, 0, 0), positive=False)
     if v < 0:
         raise t.error(f"a negative addition ({volume})", "spike_volumes", fix="give volumes of 0 mL or more")
     if v == 0:
         return None
-    return parse_delivery({"item": item, "volume": volume}, t, "spike_volumes", items, VOLUMETRIC)
+    return parse_delivery({"item": item, "volume": volume}, t, "spike_volumes", items, PIPETTES)
 
 
 def check_addition_readings(additions: tuple[StandardAddition, ...], readings: dict, path) -> None:
