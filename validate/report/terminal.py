@@ -55,6 +55,8 @@ def check_facts(method, model) -> dict:
                     f"{len(study.series)} addition series")
     else:
         contents = f"{len(method.samples)} samples"
+        if method.additions:
+            contents += f", {len(method.additions)} by standard addition"
     return {"title": method.title, "input_files": [str(p) for p in method.input_files],
             "equipment_items": len(method.items), "solutions": len(method.solutions), "contents": contents,
             "sources": len(model.sources), "defaults_applied": list(method.defaults_shown),
