@@ -245,7 +245,8 @@ def window_advice(model: Model, results: list[LinearResult], fig_before: float, 
     top = max(p.mean for lv in design.standards for p in lv.preparations)
     goal = min(OPTIMUM_ABSORBANCE, top)
     out = []
-    for smp, result in zip(design.samples, results, strict=True):
+    own = [r for r, key in zip(results, model.result_keys, strict=True) if key.kind == "result"]
+    for smp, result in zip(design.samples, own, strict=True):
         mean = smp.mean
         if READING_WINDOW[0] <= mean <= READING_WINDOW[1] or mean <= fit.intercept:
             continue

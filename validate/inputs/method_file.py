@@ -10,6 +10,7 @@ from __future__ import annotations
 import tomllib
 from pathlib import Path
 
+from validate.inputs.addition_section import check_addition_readings, parse_additions
 from validate.inputs.assay_sections import AssayParts, check_readings, parse_calibration, parse_quantity, parse_result
 from validate.inputs.consistency import check_ids, exact_defaults, weighing_defaults
 from validate.inputs.equilibrium_file import check_equilibrium_readings, parse_equilibrium
@@ -24,7 +25,7 @@ from validate.inputs.readings import (
 from validate.inputs.redirect import Redirect
 from validate.inputs.registers import load_registers
 from validate.inputs.routine_section import parse_routine
-from validate.inputs.schema import AssayMethod, EquilibriumMethod, Method, Sample, Settings
+from validate.inputs.schema import AssayMethod, EquilibriumMethod, Method, Sample, Settings, concentration_dims
 from validate.inputs.solutions_section import check_solution_graph, parse_solution
 from validate.inputs.tables import Table, parse_uncertain
 from validate.inputs.text import MAX_NESTING, clean_document
@@ -32,9 +33,9 @@ from validate.inputs.validation_settings import parse_study_acceptance, parse_va
 
 TOP_KEYS = ("method", "settings", "equipment", "solutions", "calibration", "samples",
             "quantities", "result", "validation", "acceptance", "equilibrium",
-            "routine_uncertainty")
+            "routine_uncertainty", "additions")
 # sections a study does not read
-ASSAY_ONLY = ("samples", "quantities", "validation", "routine_uncertainty")
+ASSAY_ONLY = ("samples", "quantities", "validation", "routine_uncertainty", "additions")
 
 
 def load_method(path, redirect: Redirect | None = None) -> Method:
@@ -112,12 +113,20 @@ def _assay_method(top: Table, path: Path, common: dict, extra: list[Path], defau
     preparations: dict[str, tuple[str, ...]] = {}
     notes: list[str] = []
     readings_path = None
+    additions: tuple = ()
     if calibration is not None:
         readings_path = _located(path.parent / calibration.readings_file, "readings table", redirect)
         readings = load_readings(readings_path)
         series = load_reading_series(readings_path)
         preparations = load_reading_preparations(readings_path)
-        check_readings(readings, calibration, samples, readings_path, notes)
+        additions = _additions(top, common, calibration, readings, readings_path)
+        spiked = {r for add in additions for r in add.reading_ids()}
+        check_readings({k: v for k, v in readings.items() if k not in spiked}, calibration, samples,
+                       readings_path, notes)
+    elif top.has("additions"):
+        raise top.error("standard additions are read in the readings table of [calibration]", "additions",
+                        fix="add a [calibration] with its readings table (it also gives the external line the "
+                            "matrix-effect test compares with)")
     parts = AssayParts(str(path), solutions, calibration, samples, quantities)
     result = parse_result(top, parts)
     validation = parse_validation(top, parts, result, defaults)
@@ -127,9 +136,19 @@ def _assay_method(top: Table, path: Path, common: dict, extra: list[Path], defau
                             reads_samples="c_measured" in result.formula.names)
     return AssayMethod(**common, calibration=calibration, samples=samples, quantities=quantities, result=result,
                        readings=readings, reading_series=series, reading_preparations=preparations,
-                       validation=validation, routine=routine,
+                       validation=validation, routine=routine, additions=additions,
                        input_files=_input_files(path, readings_path, *extra),
                        defaults_shown=tuple(defaults), notes=tuple(notes))
+
+
+def _additions(top: Table, common: dict, calibration, readings: dict, readings_path: Path) -> tuple:
+    """The [additions] section, each flask's readings present."""
+    solutions = common["solutions"]
+    additions = parse_additions(top, common["items"], solutions,
+                                lambda sid: concentration_dims(solutions, sid, calibration.concentration_unit.dims),
+                                calibration.concentration_unit)
+    check_addition_readings(additions, readings, readings_path)
+    return additions
 
 
 def _samples(top: Table, path: Path) -> tuple[Sample, ...]:

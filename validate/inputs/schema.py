@@ -11,6 +11,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import ClassVar, TypeVar
 
+from validate.inputs.addition_section import StandardAddition
 from validate.inputs.formula import Formula
 from validate.inputs.items import ITEM_KINDS, VOLUMETRIC, Item, ItemCommon, kind_names
 from validate.inputs.routine_section import RoutineSettings
@@ -209,6 +210,7 @@ class AssayMethod(MethodCommon):
     quantities: dict[str, NamedQuantity]
     result: ResultSpec
     routine: RoutineSettings | None = None  # [routine_uncertainty]: data for the top-down route
+    additions: tuple[StandardAddition, ...] = ()  # [additions]: samples measured by standard addition
 
     def blank_dims(self) -> tuple[int, ...]:
         return self.calibration.concentration_unit.dims if self.calibration else AMOUNT_CONCENTRATION

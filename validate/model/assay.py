@@ -94,7 +94,8 @@ class Model(SolutionInputs):
         factor = self.method.result.unit.factor
         read = self._read_off_line(x, conc) if "c_measured" in formula.names else [("", None)]
         results = {}
-        for (sample_id, c_measured), label in zip(read, self.result_labels, strict=True):
+        own = [lb for lb, key in zip(self.result_labels, self.result_keys, strict=True) if key.kind == "result"]
+        for (sample_id, c_measured), label in zip(read, own, strict=True):  # others: a subclass's results
             for name, term in self._quantity_terms.items():
                 values[name] = term(x, sample_id)
             if c_measured is not None:  # a result without a sample reads nothing off the line

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from validate.inputs.schema import AssayMethod, EquilibriumMethod, Method
+from validate.model.addition import build_addition_model
 from validate.model.assay import Model, build_model
 from validate.model.equilibrium import EquilibriumModel, build_equilibrium_model
 
@@ -10,6 +11,8 @@ from validate.model.equilibrium import EquilibriumModel, build_equilibrium_model
 def build(method: Method) -> Model | EquilibriumModel:
     """The model of a method file: an assay's, or an equilibrium study's (weights not yet set)."""
     match method:
+        case AssayMethod(additions=additions) if additions:
+            return build_addition_model(method)
         case AssayMethod():
             return build_model(method)
         case EquilibriumMethod():

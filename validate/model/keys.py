@@ -12,8 +12,9 @@ from typing import Literal
 
 # "result": the method's result for one sample (id: the sample) or its single result (id: None);
 # "K": the formation constant of one mixture or series point (id: the point);
-# "combined K" and "log10 K": the constant combined over every point, on both scales (id: None).
-ResultKind = Literal["result", "K", "combined K", "log10 K"]
+# "combined K" and "log10 K": the constant combined over every point, on both scales (id: None);
+# "standard addition": a sample's concentration by extrapolation of its own additions (id: the sample).
+ResultKind = Literal["result", "K", "combined K", "log10 K", "standard addition"]
 
 
 @dataclass(frozen=True)

@@ -14,6 +14,7 @@ from collections.abc import Sequence
 from validate import __version__
 from validate.equilibrium.study import equilibrium_block
 from validate.inputs.schema import AssayMethod, EquilibriumMethod, Method
+from validate.model.addition import AdditionModel
 from validate.model.assay import Model
 from validate.model.equilibrium import EquilibriumModel
 from validate.model.keys import ResultKey
@@ -21,6 +22,7 @@ from validate.propagation.budget import budget_rows, grouped, grouped_by_quantit
 from validate.propagation.linear import LinearResult
 from validate.propagation.montecarlo import McResult
 from validate.record.blocks import AdviceBlock, EquilibriumBlock
+from validate.record.blocks_addition import AdditionBlock
 from validate.record.blocks_routine import MethodUncertaintyBlock
 from validate.record.blocks_validation import ValidationBlock
 from validate.record.files import sha256_of
@@ -46,6 +48,7 @@ from validate.record.types import (
 from validate.record.verdict import judge
 from validate.record.verdict_warnings import stated_exact
 from validate.validation.block import equilibrium_validation_block, line_summary, validation_block
+from validate.validation.matrix_effect import addition_blocks
 from validate.validation.routine_block import method_uncertainty_block
 
 EQUILIBRIUM_FORMULA = "K = [ML] / (([M]0 - [ML]) ([L]0 - [ML])), [ML] from the line of the standards"
@@ -99,6 +102,7 @@ def build_record(method: Method, model: Model | EquilibriumModel, results: list[
                                           **{k: v for k, v in row.items() if k != "result"}}, "budget")
                      for row in budget_rows(results)),
         method_uncertainty=routine,
+        standard_additions=_standard_additions(method, model),
         traceability=traceability_block(method, model),
     )
 
@@ -125,6 +129,12 @@ def _method_uncertainty(method: Method, model: Model | EquilibriumModel,
     block = method_uncertainty_block(method, model, results) \
         if isinstance(method, AssayMethod) and isinstance(model, Model) else None
     return None if block is None else MethodUncertaintyBlock.from_dict(block, "method_uncertainty")
+
+
+def _standard_additions(method: Method, model: Model | EquilibriumModel) -> tuple[AdditionBlock, ...] | None:
+    if not isinstance(model, AdditionModel) or not isinstance(method, AssayMethod):
+        return None
+    return tuple(AdditionBlock.from_dict(b, "standard_additions") for b in addition_blocks(method, model))
 
 
 def _run_info(inputs: tuple[InputFile, ...]) -> RunInfo:

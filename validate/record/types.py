@@ -17,6 +17,7 @@ from typing import Any
 
 from validate.model.keys import ResultKey
 from validate.record.blocks import AdviceBlock, EquilibriumBlock
+from validate.record.blocks_addition import AdditionBlock
 from validate.record.blocks_routine import MethodUncertaintyBlock
 from validate.record.blocks_traceability import TraceabilityBlock
 from validate.record.blocks_validation import ValidationBlock, ValidationSettingsEntry
@@ -283,6 +284,9 @@ class Record(RecordPart):
     budget: tuple[BudgetRow, ...]
     method_uncertainty: MethodUncertaintyBlock | None = omitted_when_none(
         "the method's uncertainty for routine use (top-down) beside the budget; left out without [routine_uncertainty]")
+    standard_additions: tuple[AdditionBlock, ...] | None = omitted_when_none(
+        "samples measured by standard addition: each line, its leverage and the matrix-effect test; left out "
+        "without [additions]")
     traceability: TraceabilityBlock | None = omitted_when_none(
         "how every solution was made, the standards' assigned values and every reading, the equipment's "
         "register values: what a reader needs to recompute a standard and a result by hand")

@@ -24,6 +24,7 @@ from reportlab.platypus import CondPageBreak, KeepTogether, PageBreak, Paragraph
 
 from validate.report import (
     sections,
+    sections_addition,
     sections_advice,
     sections_annex,
     sections_equilibrium,
@@ -65,6 +66,7 @@ SECTIONS = (
     ("Limits of detection and quantitation", sections_validation.detection_limits, False),
     ("Working range", sections_validation.working_range, False),
     ("Precision and trueness", sections_validation.precision_trueness, False),
+    ("Standard addition and matrix effect", sections_addition.standard_additions, False),
     ("Uncertainty budget", _by_kind(sections_uncertainty.budget, sections_study.budget), False),
     ("Monte Carlo check", _by_kind(sections_uncertainty.monte_carlo, sections_study.monte_carlo),
      False),

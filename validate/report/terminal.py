@@ -19,6 +19,7 @@ from validate.report.terminal_run import (
     BLANK,
     Line,
     Printable,
+    addition_lines,
     advice_lines,
     equilibrium_lines,
     method_uncertainty_lines,
@@ -54,6 +55,8 @@ def check_facts(method, model) -> dict:
                     f"{len(study.series)} addition series")
     else:
         contents = f"{len(method.samples)} samples"
+        if method.additions:
+            contents += f", {len(method.additions)} by standard addition"
     return {"title": method.title, "input_files": [str(p) for p in method.input_files],
             "equipment_items": len(method.items), "solutions": len(method.solutions), "contents": contents,
             "sources": len(model.sources), "defaults_applied": list(method.defaults_shown),
@@ -95,6 +98,7 @@ def run_lines(record: dict, top: int) -> list[Printable]:
             lines += result_lines(record, result, top)
     if validation:
         lines += criteria_lines(validation["criteria"], validation.get("concentration_unit") or "")
+    lines += addition_lines(record.get("standard_additions"))
     lines += method_uncertainty_lines(record.get("method_uncertainty"))
     return lines + advice_lines(record.get("advice"))
 

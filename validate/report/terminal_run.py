@@ -72,6 +72,28 @@ def method_uncertainty_lines(m: dict | None) -> list[Printable]:
     return lines
 
 
+def addition_lines(blocks: list[dict] | None) -> list[Printable]:
+    """Each standard addition's line, its leverage and the matrix-effect verdict."""
+    lines: list[Printable] = []
+    for b in blocks or []:
+        unit = escape(b["concentration_unit"])
+        lines += [BLANK, Line(f"[bold]Standard addition {escape(b['sample'])}[/]: {b['n']} flasks, slope "
+                              f"{compact(b['slope'], 4)} per {unit}, extrapolated {compact(b['extrapolated'], 4)} "
+                              f"{unit} in the flask (x {compact(b['dilution_factor'], 4)}); leverage h0 "
+                              f"{compact(b['leverage'], 3)} (largest of the flasks "
+                              f"{compact(b['largest_level_leverage'], 3)})", soft_wrap=True)]
+        m = b.get("matrix_effect")
+        if m:
+            tone = "yellow" if m["significant"] else "green"
+            lines.append(Line(f"  recovery of sensitivity {m['recovery_percent']:.1f} % "
+                              f"[{m['recovery_low_percent']:.1f}, {m['recovery_high_percent']:.1f}] %: "
+                              f"[{tone}]{escape(m['verdict'])}[/] (p {p_after(m['p_value'])})", soft_wrap=True))
+        if not b["reaches_sample_content"]:
+            lines.append(Line("  [yellow]note[/] the largest addition is below the sample's own content: the "
+                              "extrapolation is longer than the spiked range", soft_wrap=True))
+    return lines
+
+
 # --------------------------------------------------------------------------
 # one result
 
