@@ -297,3 +297,27 @@ def test_the_starter_block_checks_when_uncommented(tmp_path, capsys):
     assert cli.main(["check", str(method)]) == 0, capsys.readouterr().err
     assert len(load_method(method).additions) == 1
     capsys.readouterr()
+
+
+def test_a_matrix_effect_and_a_short_extrapolation_are_verdict_warnings():
+    """A significant slope difference (Welch t, as the block states it) and additions below the
+    sample's own content each become a warning of the run's verdict, named by sample."""
+    from validate.record.blocks_addition import AdditionBlock
+    from validate.record.verdict_warnings import standard_additions
+
+    def block(significant: bool, reaches: bool) -> AdditionBlock:
+        effect = {"external_slope": 0.2, "external_slope_standard_uncertainty": 0.001, "external_dof": 8,
+                  "t": -9.0 if significant else 0.1, "dof": 5.0, "critical_t": 2.57,
+                  "p_value": 1e-4 if significant else 0.9, "alpha": 0.05, "recovery_percent": 86.0,
+                  "recovery_standard_uncertainty_percent": 1.0, "recovery_low_percent": 84.0,
+                  "recovery_high_percent": 88.0, "significant": significant, "verdict": "matrix effect"}
+        return AdditionBlock.from_dict({
+            "sample": "s", "description": "d", "concentration_unit": "mg/L", "result_unit": "mg/L", "levels": [],
+            "slope": 0.17, "slope_standard_uncertainty": 0.001, "intercept": 0.1, "residual_standard_deviation": 0.002,
+            "n": 4, "dof": 2, "extrapolated": 0.6, "extrapolated_standard_uncertainty": 0.01, "dilution_factor": 10,
+            "sample_concentration": 6.0, "leverage": 1.2, "largest_level_leverage": 0.6,
+            "reaches_sample_content": reaches, "matrix_effect": effect}, "standard_additions")
+
+    assert standard_additions([block(False, True)]) == []
+    whats = [i.what for i in standard_additions([block(True, False)])]
+    assert whats == ["matrix effect, s", "standard addition, s"]

@@ -74,6 +74,7 @@ def build_record(method: Method, model: Model | EquilibriumModel, results: list[
     equipment = tuple(EquipmentEntry(id=i.id, kind=i.kind, item_class=i.item_class, provenance=i.provenance)
                       for i in method.items.values())
     routine = _method_uncertainty(method, model, results)
+    additions = _standard_additions(method, model)
     return Record(
         schema_version=SCHEMA_VERSION,
         software=Software(name="validate", version=__version__),
@@ -81,7 +82,8 @@ def build_record(method: Method, model: Model | EquilibriumModel, results: list[
         method=_method_info(method),
         verdict=judge(results=entries, validation=validation, equilibrium=equilibrium, equipment=equipment,
                       exact=stated_exact(method), monte_carlo_ran=bool(monte_carlo),
-                      defaults_applied=method.defaults_shown, notes=method.notes, method_uncertainty=routine),
+                      defaults_applied=method.defaults_shown, notes=method.notes, method_uncertainty=routine,
+                      standard_additions=additions or ()),
         inputs=inputs,
         settings=Settings.from_dict({**method.settings.to_dict(), "validation": method.validation.to_dict()},
                                     "settings"),
@@ -102,7 +104,7 @@ def build_record(method: Method, model: Model | EquilibriumModel, results: list[
                                           **{k: v for k, v in row.items() if k != "result"}}, "budget")
                      for row in budget_rows(results)),
         method_uncertainty=routine,
-        standard_additions=_standard_additions(method, model),
+        standard_additions=additions,
         traceability=traceability_block(method, model),
     )
 

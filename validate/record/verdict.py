@@ -22,6 +22,7 @@ from collections.abc import Sequence
 
 from validate.record import verdict_warnings as warn
 from validate.record.blocks import EquilibriumBlock
+from validate.record.blocks_addition import AdditionBlock
 from validate.record.blocks_routine import MethodUncertaintyBlock
 from validate.record.blocks_validation import Criterion, ValidationBlock
 from validate.record.blocks_verdict import Basis, Clause8, ReportedResult, Status, Verdict, VerdictItem
@@ -94,7 +95,8 @@ def warning_items(results: Sequence[ResultEntry], validation: ValidationBlock | 
                   equilibrium: EquilibriumBlock | None, equipment: Sequence[EquipmentEntry],
                   exact: Sequence[VerdictItem], monte_carlo_ran: bool,
                   inputs: tuple[Sequence[str], Sequence[str]] = ((), ()),
-                  method_uncertainty: MethodUncertaintyBlock | None = None) -> list[VerdictItem]:
+                  method_uncertainty: MethodUncertaintyBlock | None = None,
+                  standard_additions: Sequence[AdditionBlock] = ()) -> list[VerdictItem]:
     """Every warning that bears on the results, in the order the report treats them."""
     items: list[VerdictItem] = []
     controls = [level.sample for level in method_uncertainty.levels] if method_uncertainty else []
@@ -102,7 +104,7 @@ def warning_items(results: Sequence[ResultEntry], validation: ValidationBlock | 
         items += (warn.linearity(validation) + warn.weighting(validation) + warn.scatter(validation)
                   + warn.reading_noise(validation)
                   + warn.limits(validation) + warn.scope(validation) + warn.top_down(validation, results, controls))
-    items += warn.reconciliation(method_uncertainty)
+    items += warn.reconciliation(method_uncertainty) + warn.standard_additions(standard_additions)
     if equilibrium is not None:
         items += warn.equilibrium(equilibrium)
     items += warn.range_flags(results) + warn.monte_carlo(results, monte_carlo_ran)
@@ -147,13 +149,14 @@ def reported_result(r: ResultEntry) -> ReportedResult:
 def judge(*, results: Sequence[ResultEntry], validation: ValidationBlock | None,
           equilibrium: EquilibriumBlock | None, equipment: Sequence[EquipmentEntry] = (),
           exact: Sequence[VerdictItem] = (), monte_carlo_ran: bool, defaults_applied: Sequence[str] = (),
-          notes: Sequence[str] = (), method_uncertainty: MethodUncertaintyBlock | None = None) -> Verdict:
+          notes: Sequence[str] = (), method_uncertainty: MethodUncertaintyBlock | None = None,
+          standard_additions: Sequence[AdditionBlock] = ()) -> Verdict:
     """The verdict of a run from its record's parts; `exact` lists the inputs stated without
     an uncertainty (verdict_warnings.stated_exact of the method); `method_uncertainty` the
     top-down block, whose reconciliation with the budget is judged."""
     not_met, not_evaluable = criteria_items(validation, equilibrium is not None)
     warnings = warning_items(results, validation, equilibrium, equipment, exact, monte_carlo_ran,
-                             (defaults_applied, notes), method_uncertainty)
+                             (defaults_applied, notes), method_uncertainty, standard_additions)
     rows = validation.criteria.criteria if validation is not None else ()
     met = sum(1 for c in rows if c.status == "met")
     status = _status(not_met, not_evaluable, warnings, met + len(not_met))

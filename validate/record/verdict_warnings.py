@@ -14,6 +14,7 @@ from collections.abc import Sequence
 from validate.inputs.consistency import exact_inputs
 from validate.inputs.schema import AssayMethod, Method
 from validate.record.blocks import EquilibriumBlock, TrendEntry
+from validate.record.blocks_addition import AdditionBlock
 from validate.record.blocks_routine import MethodUncertaintyBlock
 from validate.record.blocks_validation import IntermediatePrecisionEntry, ValidationBlock
 from validate.record.blocks_verdict import VerdictItem
@@ -123,6 +124,24 @@ def reconciliation(m: MethodUncertaintyBlock | None) -> list[VerdictItem]:
     return [VerdictItem(what="top-down against bottom-up, method uncertainty for routine use",
                         why=f"{rec.verdict}{figures}: {rec.explanation}; stated for routine use: the "
                             f"{m.reported} U")]
+
+
+def standard_additions(blocks: Sequence[AdditionBlock]) -> list[VerdictItem]:
+    """A matrix effect shown by a standard addition (its slope differs from the external line's:
+    results read on the external line are biased for that matrix), and additions too small for
+    the extrapolation."""
+    items = []
+    for b in blocks:
+        m = b.matrix_effect
+        if m is not None and m.significant:
+            items.append(VerdictItem(what=f"matrix effect, {b.sample}", why=(
+                f"{m.verdict}; recovery of sensitivity {m.recovery_percent:.1f} % ({m.recovery_low_percent:.1f} to "
+                f"{m.recovery_high_percent:.1f} %){_p(m.p_value)}")))
+        if not b.reaches_sample_content:
+            items.append(VerdictItem(what=f"standard addition, {b.sample}", why=(
+                "the largest addition is below the sample's own content: the extrapolation is long "
+                f"(leverage {b.leverage:.2g})")))
+    return items
 
 
 def _names(results: Sequence[ResultEntry]) -> str:
