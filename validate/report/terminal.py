@@ -27,7 +27,7 @@ from validate.report.terminal_run import (
     verdict_headline,
     verdict_lines,
 )
-from validate.report.terminal_validation import criteria_lines, validation_lines
+from validate.report.terminal_validation import criteria_lines, second_order_lines, validation_lines
 
 __all__ = ["BLANK", "Line", "Printable", "ProgressBars", "check_facts", "check_lines", "describe_verify",
            "error_line", "format_quick_check", "init_lines", "interrupted_line", "quick_check_lines",
@@ -88,6 +88,8 @@ def run_lines(record: dict, top: int) -> list[Printable]:
     validation = record.get("validation")
     if validation:
         lines += validation_lines(validation)
+    lines += second_order_lines((record.get("calibration") or {}).get("second_order"),
+                                (validation or {}).get("concentration_unit", ""))
     if record.get("equilibrium"):
         lines += equilibrium_lines(record, top)
     else:

@@ -32,6 +32,7 @@ from validate.validation.precision import (
     within_series_groups,
 )
 from validate.validation.reporting import as_is, limits_in, reporting_units, results_by_sample, scope_check
+from validate.validation.second_order import second_order_sample_entries
 from validate.validation.summary import ValidationSummary, validate_calibration
 from validate.validation.window import absorbance_window_flags
 
@@ -134,13 +135,15 @@ def _summary(method: Method, cal: Calibration, design: CalibrationDesign) -> Val
         sample_replicates=1, replicate_sds=reps, concentration_unit=cal.concentration_unit)
 
 
-def _sample_entries(design: CalibrationDesign, summary: ValidationSummary) -> tuple[dict, dict]:
+def _sample_entries(design: CalibrationDesign, summary: ValidationSummary, factor: float = 1.0) -> tuple[dict, dict]:
     """Each sample read off the line (observed-scatter uncertainty: u_p^2 + s_r^2/m for its own
     mean reading) with its range flags."""
     fit = summary.fit
     scatter = design.scatter_components()
     nonzero = [x for x in fit.x if x > 0] or list(fit.x)
     samples, flags = {}, {}
+    if design.second_order:  # read off the second-order function, with its own limits
+        return second_order_sample_entries(design, factor, summary.limits.declared_route, min(nonzero), max(fit.x))
     for smp in design.samples:
         w0 = design.weight(smp.id)
         pred = inverse_prediction(fit, smp.readings, sample_weight=w0,
@@ -177,7 +180,7 @@ def validation_block(method: AssayMethod, model: Model, results: list[LinearResu
     design = _design(model)
     summary = _summary(method, cal, design)
     fit = summary.fit
-    samples, flags = _sample_entries(design, summary)
+    samples, flags = _sample_entries(design, summary, cal.concentration_unit.factor)
     units = reporting_units(method, model, summary)
     scope = scope_check(method, units, results_by_sample(model, results), samples)
     for sid, flag in scope.pop("sample_flags").items():

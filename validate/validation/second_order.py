@@ -1,0 +1,104 @@
+"""The second-order calibration function judged and reported: its coefficients with their
+covariance, the samples read off it, the sensitivity at each result, and the detection and
+quantitation limits whose formulas hold for a curved function.
+
+ISO 8466-2 (from memory) for the function and its inverse prediction (validate.model.quadratic).
+Limits (ICH Q2(R1) 6.3 and 7.3: LOD = 3.3 sigma/S, LOQ = 10 sigma/S): S is the sensitivity at
+the low end, the slope b + 2 c x at x = 0, i.e. b, because the limits describe the response near
+zero concentration. Valid for a second-order function: sigma from the residuals of the function
+(N - 3 degrees of freedom), from the standard error of its intercept a, and from the blanks.
+Not shown: ISO 11843-2 (its critical and minimum detectable values are derived for a straight
+calibration line with constant scatter; the non-linear case is another part of ISO 11843,
+from memory).
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from validate.inputs.schema import Method
+from validate.model.design import CalibrationDesign
+from validate.model.quadratic import QuadraticFit, fit_quadratic, quadratic_inverse_prediction
+from validate.validation.limits import range_flags
+from validate.validation.linearity import plain
+
+ICH = "ICH Q2(R1) 6.3 and 7.3: LOD = 3.3 sigma/S, LOQ = 10 sigma/S, S = b (the slope of the second-order " \
+      "function at zero concentration); "
+NOT_SHOWN = ("ISO 11843-2 critical value and minimum detectable value are not shown: they are derived for a "
+             "straight calibration line with constant scatter (ISO 11843-2:2000, clause 5, from memory)")
+
+
+def second_order_limits(fit: QuadraticFit, blanks: list[float] | None, declared: str) -> dict:
+    """The LOD/LOQ routes valid for a second-order function, and the declared one."""
+    b = fit.coefficients[1]
+    routes = [("ich_residual_sd", fit.residual_sd, fit.dof, "sigma = residual SD of the second-order function"),
+              ("ich_intercept_sd", fit.standard_uncertainties[0], fit.dof,
+               "sigma = standard error of the function's intercept a")]
+    if blanks and len(blanks) > 1:
+        routes.append(("ich_blank_sd", float(np.std(blanks, ddof=1)), len(blanks) - 1, "sigma = SD of the blanks"))
+    entries = [{"route": r, "sigma": s, "sigma_dof": dof, "lod": 3.3 * s / abs(b), "loq": 10.0 * s / abs(b),
+                "source": ICH + why} for r, s, dof, why in routes]
+    chosen = next((e for e in entries if e["route"] == declared), entries[0])
+    return {"routes": entries, "declared_route": chosen["route"], "lod": chosen["lod"], "loq": chosen["loq"],
+            "not_shown": [NOT_SHOWN]}
+
+
+def second_order_samples(design: CalibrationDesign, fit: QuadraticFit) -> list[dict]:
+    """Each sample read off the function at the estimates: the root in the working range, its
+    observed-scatter uncertainty (ISO 8466-2, u_p^2 + s_r^2/m for the sample's own term) and the
+    sensitivity (slope of the function) there."""
+    scatter = design.scatter_components()
+    rows = []
+    for smp in design.samples:
+        w0 = design.weight(smp.id)
+        pred = quadratic_inverse_prediction(fit, smp.readings, sample_weight=w0,
+                                            response_variance=scatter.sample_variance(smp.count, w0))
+        rows.append({"id": smp.id, "concentration": pred.value, "standard_uncertainty": pred.standard_uncertainty,
+                     "sensitivity": pred.sensitivity})
+    return rows
+
+
+def second_order_block(method: Method, design: CalibrationDesign) -> dict | None:
+    """The record's view of a second-order calibration function (None for a straight line)."""
+    cal = method.calibration
+    if cal is None or not design.second_order:
+        return None
+    factor = cal.concentration_unit.factor
+    fit = fit_quadratic(*design.point_data(factor))
+    a, b, c = fit.coefficients
+    lo, hi = min(x for x in fit.x if x > 0), max(fit.x)
+    return plain({
+        "function": "second order",
+        "equation": "y = a + b x + c x^2",
+        "coefficients": list(fit.coefficients),
+        "standard_uncertainties": list(fit.standard_uncertainties),
+        "covariance": [list(row) for row in fit.covariance],
+        "residual_standard_deviation": fit.residual_sd, "dof": fit.dof, "n": fit.n, "r_squared": fit.r_squared,
+        "residuals": fit.residuals().tolist(),
+        "sensitivity_at_range_ends": [b + 2 * c * lo, b + 2 * c * hi],
+        "turning_point": -b / (2 * c) if c != 0 else math.inf,
+        "samples": second_order_samples(design, fit),
+        "limits": second_order_limits(fit, design.blank_readings() or None, method.validation.declared_limit),
+        "source": "ISO 8466-2 (from memory): second-order calibration function, least squares through the "
+                  "preparations' means; inverse prediction by the root on the rising branch",
+    })
+
+
+
+def second_order_sample_entries(design: CalibrationDesign, factor: float, declared: str, lowest: float,
+                                highest: float) -> tuple[dict, dict]:
+    """The validation block's samples and range flags for a second-order function (calibration unit):
+    the straight line's LOD/LOQ do not apply, the function's own declared route does."""
+    fit = fit_quadratic(*design.point_data(factor))
+    limits = second_order_limits(fit, design.blank_readings() or None, declared)
+    samples, flags = {}, {}
+    for row, smp in zip(second_order_samples(design, fit), design.samples, strict=True):
+        f = range_flags(row["concentration"], lowest, highest, limits["loq"], limits["lod"])
+        if not math.isfinite(row["concentration"]):
+            f = ["no real root of the second-order function for this response"]
+        flags[smp.id] = f
+        samples[smp.id] = {"concentration": row["concentration"], "standard_uncertainty": row["standard_uncertainty"],
+                           "readings": list(smp.readings), "flags": f}
+    return samples, flags
