@@ -176,3 +176,42 @@ def test_sample_above_the_function_maximum_exits_3(tmp_path):
                            "--trials", "0", "--no-advice", "--no-pdf"], capture_output=True, text=True, timeout=120)
     assert proc.returncode == 3, proc.stderr
     assert "no real root" in proc.stderr and "Traceback" not in proc.stderr
+
+
+def _table(tmp_path, levels):
+    lines = ["# invented: a bending calibration table", "concentration,absorbance"]
+    for x in levels:
+        for d in (-0.001, 0.001):
+            lines.append(f"{x},{0.004 + 0.105 * x - 0.0036 * x * x + d:.4f}")
+    path = tmp_path / "table.csv"
+    path.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    return path
+
+
+def _calibrate(*args):
+    return subprocess.run([sys.executable, "-m", "validate.cli", "calibrate", *map(str, args)], capture_output=True,
+                          text=True, timeout=120)
+
+
+def test_calibrate_second_order_json_adds_coefficients_and_covariance(tmp_path):
+    from validate.validation.quickcheck import quick_check
+
+    path = _table(tmp_path, [0, 1, 2, 3, 4, 5, 6, 8, 10])
+    result = quick_check(path, [[0.5, 0.502]], "second order")
+    fit = fit_quadratic(*np.loadtxt(path, delimiter=",", comments="#", skiprows=2).T)
+    assert result["coefficients"] == pytest.approx(list(fit.coefficients))
+    assert result["standard_uncertainties"] == pytest.approx(list(fit.standard_uncertainties))
+    cov = np.asarray(result["covariance"])
+    assert np.sqrt(np.diag(cov)) == pytest.approx(list(fit.standard_uncertainties))
+    sample = result["sample"][0]
+    a, b, c = fit.coefficients
+    assert a + b * sample["concentration"] + c * sample["concentration"] ** 2 == pytest.approx(0.501)
+    assert sample["sensitivity"] == pytest.approx(b + 2 * c * sample["concentration"])
+    assert result["second_order"]["limits"]["not_shown"]  # ISO 11843-2 left out, and why
+
+
+def test_calibrate_second_order_bad_inputs_exit_2_and_3(tmp_path):
+    few = _calibrate(_table(tmp_path, [0, 5, 10]), "--function", "second order")
+    assert few.returncode == 2 and "at least 4" in few.stderr and "Traceback" not in few.stderr
+    no_root = _calibrate(_table(tmp_path, [0, 1, 2, 4, 6, 8, 10]), "--function", "second order", "--sample", "2.5")
+    assert no_root.returncode == 3 and "no real root" in no_root.stderr and "Traceback" not in no_root.stderr

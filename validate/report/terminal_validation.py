@@ -151,6 +151,24 @@ def second_order_lines(so: dict | None, unit: str) -> list[Printable]:
     return lines
 
 
+def second_order_text(result: dict) -> list[str]:
+    """`validate calibrate --function "second order"`: the function the samples are read off."""
+    so = result.get("second_order")
+    if not so:
+        return []
+    (a, b, c), (ua, ub, uc) = result["coefficients"], result["standard_uncertainties"]
+    lim = so["limits"]
+    return ["", f"Second-order function {so['equation']} (ISO 8466-2, from memory), standard uncertainties u; "
+                f"the samples below are read off it",
+            f"  a {compact(a, 6)}, u = {compact(ua, 3)}", f"  b {compact(b, 6)}, u = {compact(ub, 3)}",
+            f"  c {compact(c, 6)}, u = {compact(uc, 3)}",
+            f"  residual SD {compact(so['residual_standard_deviation'], 6)} (absorbance), {so['dof']} degrees of "
+            f"freedom; covariance of a, b, c in --json",
+            "  limits valid for the function (S = b): " + "; ".join(
+                f"{r['route']} LOD {compact(r['lod'], 4)} LOQ {compact(r['loq'], 4)}" for r in lim["routes"]),
+            *[f"  {n}" for n in lim["not_shown"]]]
+
+
 def validation_lines(v: dict) -> list[Printable]:
     """The line of the standards: fit, linearity tests, limits, scatter, precision, trueness."""
     return (_fit_lines(v) + _test_lines(v) + _limit_lines(v) + _scatter_and_window(v)

@@ -102,3 +102,46 @@ def second_order_sample_entries(design: CalibrationDesign, factor: float, declar
         samples[smp.id] = {"concentration": row["concentration"], "standard_uncertainty": row["standard_uncertainty"],
                            "readings": list(smp.readings), "flags": f}
     return samples, flags
+
+
+def quick_second_order(path: str, x, y, samples: list[list[float]] | None, coverage: float) -> dict:
+    """`validate calibrate --function "second order"` on a bare table (every row a point): the function,
+    its limits, and each sample read off it with U = k u, k the t quantile at N - 3 (GUM G.3)."""
+    from scipy.stats import t as student_t
+
+    from validate.model.errors import ModelError
+
+    fit = fit_quadratic(x, y)
+    lo, hi = min(v for v in fit.x if v > 0), max(fit.x)
+    ends = fit.slope_at([lo, hi])
+    if not (ends[0] > 0 and ends[1] > 0):
+        raise ModelError(f"{path}: the second-order function does not rise over the whole range {lo:g} to {hi:g} "
+                         f"(slope {ends[0]:.3g} and {ends[1]:.3g} at the ends), so a response could belong to two "
+                         f"concentrations and no concentration is reported\n  what to do: narrow the range of the "
+                         f"standards to where the response still rises")
+    limits = second_order_limits(fit, None, "ich_residual_sd")
+    out = {"function": "second order",
+           "coefficients": list(fit.coefficients), "standard_uncertainties": list(fit.standard_uncertainties),
+           "covariance": [list(r) for r in fit.covariance],
+           "second_order": {"equation": "y = a + b x + c x^2", "dof": fit.dof,
+                            "residual_standard_deviation": fit.residual_sd, "r_squared": fit.r_squared,
+                            "limits": limits, "source": "ISO 8466-2 (from memory): second-order calibration function"}}
+    k = float(student_t.ppf(0.5 + coverage / 2, fit.dof))
+    rows = []
+    for i, readings in enumerate(samples or [], 1):
+        pred = quadratic_inverse_prediction(fit, readings)
+        if not pred.real_root:
+            raise ModelError(f"{path}: sample {i} (mean absorbance {pred.response_mean:.4g}) has no real root on the "
+                             f"second-order function, so no concentration is reported\n  what to do: dilute the "
+                             f"sample into the range of the standards")
+        flags = range_flags(pred.value, lo, hi, loq=limits["loq"], lod=limits["lod"])
+        rows.append({"readings": list(readings), "replicates": pred.replicates, "response_mean": pred.response_mean,
+                     "concentration": pred.value, "standard_uncertainty": pred.standard_uncertainty,
+                     "sensitivity": pred.sensitivity, "dof": fit.dof, "flags": flags,
+                     "coverage_probability": coverage, "coverage_factor": k,
+                     "expanded_uncertainty": k * pred.standard_uncertainty,
+                     "source": "root of a + b x + c x^2 = y0 on the rising branch, u by the law of propagation "
+                               "with the coefficients' covariance (ISO 8466-2, from memory)"})
+    if rows:
+        out["sample"] = rows
+    return out
