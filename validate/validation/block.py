@@ -19,6 +19,7 @@ from validate.model.assay import Model, build_model
 from validate.model.design import CalibrationDesign
 from validate.model.equilibrium import EquilibriumModel
 from validate.model.line import LineFit, fit_line, inverse_prediction
+from validate.model.quadratic import fit_quadratic
 from validate.propagation.linear import LinearResult
 from validate.validation.criteria import STUDY_CRITERIA, evaluate_criteria
 from validate.validation.limits import range_flags
@@ -32,7 +33,11 @@ from validate.validation.precision import (
     within_series_groups,
 )
 from validate.validation.reporting import as_is, limits_in, reporting_units, results_by_sample, scope_check
-from validate.validation.second_order import second_order_sample_entries
+from validate.validation.second_order import (
+    second_order_observed,
+    second_order_sample_entries,
+    with_second_order_limits,
+)
 from validate.validation.summary import ValidationSummary, validate_calibration
 from validate.validation.window import absorbance_window_flags
 
@@ -127,12 +132,15 @@ def _summary(method: Method, cal: Calibration, design: CalibrationDesign) -> Val
     reps = [(lv.concentration / factor, lv.count, statistics.stdev(lv.readings)) for lv in design.levels
             if lv.count >= 2]
     # the points are preparation means: a sample's mean reading is one such point (K = 1)
-    return validate_calibration(
+    summary = validate_calibration(
         xs, ys, weights=ws, blanks=design.blank_readings() or None, alpha=v.alpha, beta=v.beta,
         declared_limit=v.declared_limit,
         path_length_cm=path * 100 if cell is not None and path is not None else None,
         path_length_u=cell.tolerance / math.sqrt(3) * 100 if cell else None,
         sample_replicates=1, replicate_sds=reps, concentration_unit=cal.concentration_unit)
+    if design.second_order:  # the limits valid for the function the results are read off
+        summary = with_second_order_limits(summary, design, factor, v.declared_limit)
+    return summary
 
 
 def _sample_entries(design: CalibrationDesign, summary: ValidationSummary, factor: float = 1.0) -> tuple[dict, dict]:
@@ -190,9 +198,15 @@ def validation_block(method: AssayMethod, model: Model, results: list[LinearResu
                   for group in within_series_groups(_in_concentration(fit, s.readings), s.series) if len(group) >= 2]
     precision = repeatability(rep_groups) if rep_groups else None
     between_series = _intermediate(design, fit, cal.concentration_unit.text)
-    consistency, reading_consistency = scatter_checks(method, design, fit)
+    # a second-order function: its own residual scatter (N - 3) and criteria values (validation.second_order)
+    so_fit = fit_quadratic(*design.point_data(cal.concentration_unit.factor)) if design.second_order else None
+    scatter_fit = dataclasses.replace(fit, residual_sd=so_fit.residual_sd, dof=so_fit.dof) if so_fit else fit
+    consistency, reading_consistency = scatter_checks(method, design, scatter_fit)
     trueness = _trueness(method, results)
-    criteria = evaluate_criteria(v.acceptance, _observed(summary, results, precision, trueness))
+    observed = _observed(summary, results, precision, trueness)
+    if so_fit is not None:
+        observed = second_order_observed(design, cal.concentration_unit.factor, v.declared_limit, observed)
+    criteria = evaluate_criteria(v.acceptance, observed)
     block = plain(summary)
     block.update({
         "settings": v.to_dict(),
@@ -212,6 +226,7 @@ def validation_block(method: AssayMethod, model: Model, results: list[LinearResu
         "criteria": plain(criteria),
         "reporting_units": units,
         "scope": scope,
+        "calibration_function": cal.function,
     })
     return block
 

@@ -145,3 +145,55 @@ def quick_second_order(path: str, x, y, samples: list[list[float]] | None, cover
     if rows:
         out["sample"] = rows
     return out
+
+
+ADEQUACY_SOURCE = ("adequacy of the second-order function: the construction of Mandel's test taken one degree up, "
+                   "second order against third order, F = [RSS2 - RSS3] / [RSS3/(n-4)] with (1, n-4) degrees of "
+                   "freedom (after DIN 38402-51 and ISO 8466-2, from memory; the one-degree-up use is this tool's)")
+
+
+def adequacy_p(fit: QuadraticFit) -> float | None:
+    """p of the test that a third-order term improves the second-order function (None with n < 5)."""
+    from scipy import stats
+
+    from validate.validation.linearity import _poly_rss
+
+    n = fit.n
+    if n < 5 or len(set(fit.x)) < 4:
+        return None
+    x, y, w = np.asarray(fit.x), np.asarray(fit.y), np.asarray(fit.weights)
+    rss3 = _poly_rss(x, y, w, 3)
+    if rss3 <= 1e-300:
+        return None
+    return float(stats.f.sf(max(fit.rss - rss3, 0.0) / (rss3 / (n - 4)), 1, n - 4))
+
+
+def second_order_observed(design: CalibrationDesign, factor: float, declared: str, observed: dict) -> dict:
+    """The acceptance criteria's observed values for a second-order function: r^2, the largest relative
+    residual and the LOQ of the function, and for the linearity criterion the adequacy test above (the
+    straight line's tests showed the curvature the function is chosen for)."""
+    fit = fit_quadratic(*design.point_data(factor))
+    predicted = fit.predict(fit.x)
+    rel = [abs(r / p) for x, r, p in zip(fit.x, fit.residuals(), predicted, strict=True) if x > 0 and p != 0]
+    limits = second_order_limits(fit, design.blank_readings() or None, declared)
+    return {**observed, "r_squared": fit.r_squared, "max_abs_relative_residual": 100 * max(rel) if rel else None,
+            "min_linearity_p_value": adequacy_p(fit), "loq": limits["loq"]}
+
+
+def with_second_order_limits(summary, design: CalibrationDesign, factor: float, declared: str):
+    """The validation summary with its detection limits replaced by the routes valid for a second-order
+    function, so the reporting units, the scope check, the range flags and the verdict use them. The
+    ISO 11843-2 values stay in the record for the straight line only, and a note says so."""
+    import dataclasses
+
+    from validate.validation.limits import LimitRoute, _disagreements
+
+    fit = fit_quadratic(*design.point_data(factor))
+    lim = second_order_limits(fit, design.blank_readings() or None, declared)
+    routes = tuple(LimitRoute(r["route"], r["sigma"], r["sigma_dof"], r["lod"], r["loq"], r["source"])
+                   for r in lim["routes"])
+    notes = (*lim["not_shown"], "the ISO 11843-2 values in this block are of the straight line and do not apply "
+             "to the second-order function")
+    limits = dataclasses.replace(summary.limits, routes=routes, declared_route=lim["declared_route"], lod=lim["lod"],
+                                 loq=lim["loq"], warnings=tuple(_disagreements(routes)), notes=notes)
+    return dataclasses.replace(summary, limits=limits)
