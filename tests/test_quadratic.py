@@ -171,7 +171,7 @@ def test_second_order_with_three_levels_exits_2(tmp_path):
 
 
 def test_sample_above_the_function_maximum_exits_3(tmp_path):
-    path = _demo_copy(tmp_path, readings_edit=lambda t: t.replace("rinse_2,0.", "rinse_2,1.9"))
+    path = _demo_copy(tmp_path, readings_edit=lambda t: t.replace("rinse_2,0.", "rinse_2,3."))
     proc = subprocess.run([sys.executable, "-m", "validate.cli", "run", str(path), "--out", str(tmp_path / "o"),
                            "--trials", "0", "--no-advice", "--no-pdf"], capture_output=True, text=True, timeout=120)
     assert proc.returncode == 3, proc.stderr
@@ -215,3 +215,54 @@ def test_calibrate_second_order_bad_inputs_exit_2_and_3(tmp_path):
     assert few.returncode == 2 and "at least 4" in few.stderr and "Traceback" not in few.stderr
     no_root = _calibrate(_table(tmp_path, [0, 1, 2, 4, 6, 8, 10]), "--function", "second order", "--sample", "2.5")
     assert no_root.returncode == 3 and "no real root" in no_root.stderr and "Traceback" not in no_root.stderr
+
+
+def _straight_line_demo(tmp_path):
+    return _demo_copy(tmp_path, method_edit=lambda t: t.replace(
+        'function = "second order"', 'function = "straight line"'))
+
+
+def test_advisor_quantifies_both_ways_out_of_a_curved_line(tmp_path):
+    # The invented demo read with a straight line: Mandel's test rejects it (DIN 38402-51, ISO 8466-1);
+    # the advisor offers the second-order function and the narrowed range found from the data.
+    from validate.advisor.curvature import ALPHA, curvature_candidates, largest_linear_range
+    from validate.inputs.method_file import load_method
+    from validate.model.assay import build_model
+    from validate.validation.linearity import mandel_test
+
+    method = load_method(_straight_line_demo(tmp_path))
+    kinds = {c.kind: c for c in curvature_candidates(method)}
+    assert set(kinds) == {"second-order calibration", "narrower linear range"}
+    model = build_model(method)
+    conc = model.concentrations(model.nominal_inputs())
+    kept = largest_linear_range(model.design, method.calibration.standards, conc)
+    ordered = sorted(method.calibration.standards, key=conc.get)
+    assert kept == tuple(ordered[:len(kept)])  # from the lowest standard up
+
+    def mandel(ids):
+        pts = [(p.concentration, p.mean) for lv, p in model.design.fitted() if lv.role == "blank" or p.solution in ids]
+        return mandel_test(fit_line(*zip(*pts, strict=True)), ALPHA)
+
+    assert mandel(set(kept)).significant is not True  # passes on the range kept
+    assert mandel(set(ordered[:len(kept) + 1])).significant is True  # and fails one standard further up
+    narrowed = kinds["narrower linear range"].apply(method)
+    assert narrowed.calibration.standards == kept
+    assert kinds["second-order calibration"].apply(method).calibration.function == "second order"
+    # a method already on the second-order function gets neither
+    assert curvature_candidates(kinds["second-order calibration"].apply(method)) == []
+
+
+def test_verdict_names_the_two_ways_out(tmp_path):
+    from validate.workflow import pipeline
+
+    run = pipeline.analyse(_straight_line_demo(tmp_path), trials=0, advice=False)
+    warnings = [w["why"] for w in run.record["verdict"]["warnings"] if "Mandel" in w["what"]]
+    assert warnings and "second-order calibration function" in warnings[0] and "narrower" in warnings[0]
+    curved = pipeline.analyse(DEMOS / "saturating_reagent" / "method.toml", trials=0, advice=False)
+    assert not [w for w in curved.record["verdict"]["warnings"] if "Mandel" in w["what"]]
+    so = curved.record["calibration"]["second_order"]
+    assert len(so["coefficients"]) == 3 and len(so["covariance"]) == 3
+    # the record's result equals the function's root at the estimates, times the dilution 50/10
+    sample = {s["id"]: s for s in so["samples"]}["rinse_1"]
+    result = next(r for r in curved.record["results"] if r["name"].endswith("rinse_1"))
+    assert result["value"] == pytest.approx(sample["concentration"] * 5, rel=1e-6)

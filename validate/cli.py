@@ -226,7 +226,7 @@ def _calibrate(args, console: Console) -> int:
     import json
 
     from validate.validation.quickcheck import quick_check
-    result = quick_check(args.table, [args.sample] if args.sample else None, args.function)
+    result = quick_check(args.table, [args.sample] if args.sample else None, getattr(args, "function", "straight line"))
     if not args.json:
         _show(console, terminal.quick_check_lines(result))
     elif args.sample:  # the --sample values are replicate readings of one unknown

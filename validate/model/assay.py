@@ -31,7 +31,7 @@ from validate.model.errors import evaluate_formula
 from validate.model.keys import ResultKey
 from validate.model.line import fit_line, inverse_prediction, straight_line
 from validate.model.photometry import reading_correction
-from validate.model.quadratic import fit_quadratic, quadratic_coefficients, quadratic_inverse_prediction
+from validate.model.quadratic import fit_quadratic, quadratic_coefficients, quadratic_inverse_prediction, rising_root
 from validate.model.scatter import LINE_GROUP, ScatterComponents, ScatterTerm
 
 
@@ -128,7 +128,12 @@ class Model(SolutionInputs):
 
     def _read_off_line(self, x, conc) -> list[tuple[str, Any]]:
         """(sample id, concentration in the measured solution) of every sample, from this
-        evaluation's line."""
+        evaluation's line, or its second-order function's root on the rising branch (ISO 8466-2)."""
+        if self._design().second_order:
+            a, b, c = self.second_order(x, conc)
+            rising = fit_quadratic(*self._design().point_data()).coefficients[1] > 0  # form from the estimates, once
+            return [(smp.id, rising_root(a, b, c, self._reading_terms[smp.id](x), rising))
+                    for smp in self._design().samples]
         intercept, slope = self.line(x, conc)
         return [(smp.id, (self._reading_terms[smp.id](x) - intercept) / slope) for smp in self._design().samples]
 
