@@ -266,3 +266,24 @@ def test_verdict_names_the_two_ways_out(tmp_path):
     sample = {s["id"]: s for s in so["samples"]}["rinse_1"]
     result = next(r for r in curved.record["results"] if r["name"].endswith("rinse_1"))
     assert result["value"] == pytest.approx(sample["concentration"] * 5, rel=1e-6)
+
+
+@pytest.mark.slow
+def test_saturating_demo_end_to_end(tmp_path):
+    # the invented demo: record, PDF, and the second-order results by both engines (GUM 5.1.2 and
+    # JCGM 101 7 on the one model, the function refitted in every trial)
+    from pypdf import PdfReader
+
+    from validate.workflow import pipeline
+
+    run = pipeline.analyse(DEMOS / "saturating_reagent" / "method.toml", trials=50_000, seed=3)
+    written = pipeline.write_outputs(run, tmp_path / "out")
+    assert any(p.name == "report.pdf" for p in written)
+    text = "".join(page.extract_text() for page in PdfReader(tmp_path / "out" / "report.pdf").pages)
+    assert "Second-order calibration function" in text
+    for result in run.record["results"]:
+        mc = result["monte_carlo"]
+        assert mc["mean"] == pytest.approx(result["value"], rel=2e-3)
+        # the observed scatter rests on 7 degrees of freedom (t inputs): the Monte Carlo u is larger
+        # than the GUM u by about sqrt(nu/(nu-2)) on its share, never smaller (JCGM 101 6.4.9)
+        assert result["standard_uncertainty"] <= mc["standard_uncertainty"] <= 1.3 * result["standard_uncertainty"]

@@ -19,7 +19,7 @@ from validate.model.assay import Model, build_model
 from validate.model.design import CalibrationDesign
 from validate.model.equilibrium import EquilibriumModel
 from validate.model.line import LineFit, fit_line, inverse_prediction
-from validate.model.quadratic import fit_quadratic
+from validate.model.quadratic import QuadraticFit, fit_quadratic, rising_root
 from validate.propagation.linear import LinearResult
 from validate.validation.criteria import STUDY_CRITERIA, evaluate_criteria
 from validate.validation.limits import range_flags
@@ -176,7 +176,27 @@ def _observed(summary: ValidationSummary, results: list[LinearResult], precision
     return observed
 
 
-def _in_concentration(fit: LineFit, readings) -> list[float]:
+def _scatter_fit(fit: LineFit, so_fit: QuadraticFit | None) -> LineFit:
+    """The fit whose residual scatter the budget is checked against: the second-order function's (N - 3)."""
+    return dataclasses.replace(fit, residual_sd=so_fit.residual_sd, dof=so_fit.dof) if so_fit else fit
+
+
+def _criteria_observed(method: AssayMethod, design: CalibrationDesign, summary: ValidationSummary, results,
+                       precision, trueness) -> dict:
+    """The observed values of the acceptance criteria; those of the second-order function where it is used."""
+    observed = _observed(summary, results, precision, trueness)
+    if design.second_order:
+        cal = _calibration(method)
+        observed = second_order_observed(design, cal.concentration_unit.factor, method.validation.declared_limit,
+                                         observed)
+    return observed
+
+
+def _in_concentration(fit: LineFit | QuadraticFit, readings) -> list[float]:
+    """Readings in concentration, off the line or the second-order function's rising root."""
+    if isinstance(fit, QuadraticFit):
+        a, b, c = fit.coefficients
+        return [float(rising_root(a, b, c, y, b > 0)) for y in readings]
     return [(a - fit.intercept) / fit.slope for a in readings]
 
 
@@ -194,19 +214,19 @@ def validation_block(method: AssayMethod, model: Model, results: list[LinearResu
     for sid, flag in scope.pop("sample_flags").items():
         flags[sid].append(flag)
     window = absorbance_window_flags(design.every_reading(), *v.window)
-    rep_groups = [group for s in design.samples
-                  for group in within_series_groups(_in_concentration(fit, s.readings), s.series) if len(group) >= 2]
-    precision = repeatability(rep_groups) if rep_groups else None
-    between_series = _intermediate(design, fit, cal.concentration_unit.text)
-    # a second-order function: its own residual scatter (N - 3) and criteria values (validation.second_order)
+    # a second-order function: readings in concentration off it, its own residual scatter (N - 3) and
+    # criteria values (validation.second_order)
     so_fit = fit_quadratic(*design.point_data(cal.concentration_unit.factor)) if design.second_order else None
-    scatter_fit = dataclasses.replace(fit, residual_sd=so_fit.residual_sd, dof=so_fit.dof) if so_fit else fit
-    consistency, reading_consistency = scatter_checks(method, design, scatter_fit)
+    read_off = so_fit or fit
+    rep_groups = [group for s in design.samples
+                  for group in within_series_groups(_in_concentration(read_off, s.readings), s.series)
+                  if len(group) >= 2]
+    precision = repeatability(rep_groups) if rep_groups else None
+    between_series = _intermediate(design, read_off, cal.concentration_unit.text)
+    consistency, reading_consistency = scatter_checks(method, design, _scatter_fit(fit, so_fit))
     trueness = _trueness(method, results)
-    observed = _observed(summary, results, precision, trueness)
-    if so_fit is not None:
-        observed = second_order_observed(design, cal.concentration_unit.factor, v.declared_limit, observed)
-    criteria = evaluate_criteria(v.acceptance, observed)
+    criteria = evaluate_criteria(v.acceptance, _criteria_observed(method, design, summary, results, precision,
+                                                                  trueness))
     block = plain(summary)
     block.update({
         "settings": v.to_dict(),
@@ -251,7 +271,7 @@ def _fit_units(design: CalibrationDesign) -> dict:
     }
 
 
-def _intermediate(design: CalibrationDesign, fit: LineFit, unit: str) -> dict:
+def _intermediate(design: CalibrationDesign, fit: LineFit | QuadraticFit, unit: str) -> dict:
     """Intermediate precision (ISO 5725-3) of every sample read in two or more series (the
     readings table's optional `series` column: days, analysts), in the calibration unit.
     The budget's observed scatter is within-series only: a series effect is reported here."""
