@@ -41,8 +41,12 @@ def second_order_limits(fit: QuadraticFit, blanks: list[float] | None, declared:
     entries = [{"route": r, "sigma": s, "sigma_dof": dof, "lod": 3.3 * s / abs(b), "loq": 10.0 * s / abs(b),
                 "source": ICH + why} for r, s, dof, why in routes]
     chosen = next((e for e in entries if e["route"] == declared), entries[0])
+    not_shown = [NOT_SHOWN]
+    if chosen["route"] != declared:
+        not_shown.append(f"the declared route {declared} is not available for this second-order function; "
+                         f"{chosen['route']} is used in its place")
     return {"routes": entries, "declared_route": chosen["route"], "lod": chosen["lod"], "loq": chosen["loq"],
-            "not_shown": [NOT_SHOWN]}
+            "not_shown": not_shown}
 
 
 def second_order_samples(design: CalibrationDesign, fit: QuadraticFit) -> list[dict]:
@@ -84,7 +88,6 @@ def second_order_block(method: Method, design: CalibrationDesign) -> dict | None
         "source": "ISO 8466-2 (from memory): second-order calibration function, least squares through the "
                   "preparations' means; inverse prediction by the root on the rising branch",
     })
-
 
 
 def second_order_sample_entries(design: CalibrationDesign, factor: float, declared: str, lowest: float,
