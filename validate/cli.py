@@ -77,6 +77,9 @@ def _parser() -> argparse.ArgumentParser:
     cal.add_argument("--sample", action="append", type=_reading, default=[], metavar="A",
                      help="one reading of the unknown; repeat for replicate readings")
     cal.add_argument("--json", action="store_true", help="print the result as JSON")
+    cal.add_argument("--function", default="straight line", choices=("straight line", "second order"),
+                     help='calibration function: "straight line" (default) or "second order" '
+                          "(y = a + b x + c x^2, ISO 8466-2)")
     return p
 
 
@@ -276,7 +279,7 @@ def _calibrate(args, console: Console) -> int:
     import json
 
     from validate.validation.quickcheck import quick_check
-    result = quick_check(args.table, [args.sample] if args.sample else None)
+    result = quick_check(args.table, [args.sample] if args.sample else None, getattr(args, "function", "straight line"))
     if not args.json:
         _show(console, terminal.quick_check_lines(result))
     elif args.sample:  # the --sample values are replicate readings of one unknown

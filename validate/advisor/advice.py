@@ -34,6 +34,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from validate.advisor.candidates import Candidate, Shares, class_candidates, piston_candidates, volume_pair_candidates
+from validate.advisor.curvature import curvature_candidates
 from validate.advisor.readings import reading_candidates
 from validate.advisor.stated_inputs import input_value_candidates, temperature_candidates
 from validate.advisor.weighing import weighing_candidates
@@ -66,6 +67,7 @@ def generate(method: Method, shares: Shares, entries: list[RegisterEntry]) -> li
     out += temperature_candidates(method, shares)
     out += input_value_candidates(method, shares)
     out += weighing_candidates(method, shares, entries)
+    out += curvature_candidates(method)
     return out
 
 

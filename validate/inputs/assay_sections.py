@@ -48,8 +48,9 @@ class AssayParts:
 
 def parse_calibration(t: Table, items: dict, solutions: dict[str, Solution], defaults: list[str]) -> Calibration:
     t.allow("standards", "blanks", "blanks_in_fit", "readings", "cuvette", "photometer",
-            "concentration_unit", "weighting")
+            "concentration_unit", "weighting", "function")
     weighting = _weighting(t, defaults)
+    function = _function(t, defaults)
     standards = _solution_ids(t, "standards", t.require("standards"), solutions)
     blanks = _solution_ids(t, "blanks", t.get("blanks", []), solutions)
     both = [sid for sid in blanks if sid in standards]
@@ -69,7 +70,22 @@ def parse_calibration(t: Table, items: dict, solutions: dict[str, Solution], def
     if n_points < MIN_LEVELS:
         raise t.error(f"only {n_points} calibration levels; at least 3 are needed", "standards",
                       fix="add standards (5 to 7 levels is common practice)")
-    return Calibration(standards, blanks, in_fit, readings, cuvette, photometer, unit, weighting)
+    if function == "second order" and n_points < 4:
+        raise t.error(f"only {n_points} calibration levels; a second-order function (three coefficients and a "
+                      f"residual scatter) needs at least 4", "standards",
+                      fix='add standards (ISO 8466-2 asks for about 10 levels, from memory), or use '
+                          'function = "straight line"')
+    return Calibration(standards, blanks, in_fit, readings, cuvette, photometer, unit, weighting, function)
+
+
+def _function(t: Table, defaults: list[str]) -> str:
+    function = t.choice("function", "straight line", ("straight line", "second order"),
+                        'use "straight line" (y = a + b x, ISO 8466-1) or "second order" (y = a + b x + c x^2, '
+                        'ISO 8466-2) for the calibration function')
+    if not t.has("function"):
+        defaults.append('default: calibration function "straight line" (y = a + b x); "second order" is the '
+                        "choice where Mandel's test shows curvature")
+    return function
 
 
 def _weighting(t: Table, defaults: list[str]) -> str:

@@ -38,6 +38,7 @@ class Calibration:
     photometer: str | None
     concentration_unit: Unit
     weighting: str = "none"  # "none", "variance-function" (s = a + b c) or "inverse-variance" (1/s_j^2)
+    function: str = "straight line"  # calibration function: "straight line" or "second order" (ISO 8466-2)
 
 
 @dataclass(frozen=True)

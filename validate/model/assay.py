@@ -31,6 +31,7 @@ from validate.model.errors import evaluate_formula
 from validate.model.keys import ResultKey
 from validate.model.line import fit_line, inverse_prediction, straight_line
 from validate.model.photometry import reading_correction
+from validate.model.quadratic import fit_quadratic, quadratic_coefficients, quadratic_inverse_prediction, rising_root
 from validate.model.scatter import LINE_GROUP, ScatterComponents, ScatterTerm
 
 
@@ -81,6 +82,18 @@ class Model(SolutionInputs):
             [design.weight(lv.id) for lv, _ in fitted] if design.weighted else None)
         return backend.collapse(intercept), backend.collapse(slope)  # shared by every sample's result
 
+    def second_order(self, x, conc=None):
+        """(a, b, c) of the second-order function y = a + b x + c x^2 refitted from this evaluation's
+        standards and readings, through the same points and weights as `line` (ISO 8466-2)."""
+        conc = self.concentrations(x) if conc is None else conc
+        design = self._design()
+        fitted = design.fitted()
+        coefficients = quadratic_coefficients(
+            [1] * len(fitted), [conc[p.solution] for _, p in fitted],
+            [self._reading_terms[p.key](x) for _, p in fitted],
+            [design.weight(lv.id) for lv, _ in fitted] if design.weighted else None)
+        return tuple(backend.collapse(v) for v in coefficients)  # shared by every sample's result
+
     def _design(self) -> CalibrationDesign:
         if self.design is None:
             raise ModelError("the method has no calibration line")
@@ -116,7 +129,12 @@ class Model(SolutionInputs):
 
     def _read_off_line(self, x, conc) -> list[tuple[str, Any]]:
         """(sample id, concentration in the measured solution) of every sample, from this
-        evaluation's line."""
+        evaluation's line, or its second-order function's root on the rising branch (ISO 8466-2)."""
+        if self._design().second_order:
+            a, b, c = self.second_order(x, conc)
+            rising = fit_quadratic(*self._design().point_data()).coefficients[1] > 0  # form from the estimates, once
+            return [(smp.id, rising_root(a, b, c, self._reading_terms[smp.id](x), rising))
+                    for smp in self._design().samples]
         intercept, slope = self.line(x, conc)
         return [(smp.id, (self._reading_terms[smp.id](x) - intercept) / slope) for smp in self._design().samples]
 
@@ -339,6 +357,9 @@ def _observed_scatter(design: CalibrationDesign, samples) -> ScatterComponents:
         fit = fit_line(*design.point_data())
     except ValueError as exc:
         raise ModelError(f"calibration: {exc}") from None
+    if design.second_order:
+        _check_real_roots(design, samples, scatter)
+        return scatter
     for smp in samples:
         read = design.sample(smp.id)
         pred = inverse_prediction(fit, read.readings, sample_weight=design.weight(smp.id),
@@ -349,3 +370,22 @@ def _observed_scatter(design: CalibrationDesign, samples) -> ScatterComponents:
                 f"(Fieller's g = {pred.g:.2f} >= 1), so the concentration read off the line has no finite "
                 f"confidence interval; no result is reported")
     return scatter
+
+
+def _check_real_roots(design: CalibrationDesign, samples, scatter: ScatterComponents) -> None:
+    """Every sample's mean response must have a real root of the second-order function (a response
+    above the function's maximum has none): a data problem, ModelError (exit 3)."""
+    fit = fit_quadratic(*design.point_data())
+    for smp in samples:
+        read = design.sample(smp.id)
+        pred = quadratic_inverse_prediction(fit, read.readings, sample_weight=design.weight(smp.id),
+                                            response_variance=scatter.sample_variance(read.count,
+                                                                                      design.weight(smp.id)))
+        if not pred.real_root:
+            a, b, c = fit.coefficients
+            top = a - b * b / (4 * c) if c < 0 else float("inf")
+            raise ModelError(
+                f"sample {smp.id}: its mean absorbance {pred.response_mean:.4g} has no real root on the "
+                f"second-order calibration function (the function reaches at most {top:.4g}), so no "
+                f"concentration can be read off it and no result is reported\n  what to do: dilute the "
+                f"sample into the working range and read it again")

@@ -31,7 +31,9 @@ from pathlib import Path
 from validate.inputs.schema import Method
 from validate.model.errors import ModelError
 from validate.model.levels import Level, Preparation, ReadSolution
-from validate.model.line import fit_line
+from validate.model.line import LineFit, fit_line
+from validate.model.quadratic import MIN_LEVELS as MIN_LEVELS_SECOND_ORDER
+from validate.model.quadratic import QuadraticFit, fit_quadratic
 from validate.model.scatter import ScatterComponents, pooled_reading_sd
 from validate.model.weights import WEIGHTING_FUNCTIONS, level_weights, weight_notes
 
@@ -77,6 +79,7 @@ class CalibrationDesign:
     weighting: str = "none"  # how the weights were found: "none", "inverse-variance", "variance-function"
     scatter: str = "observed"  # the method's treatment: "observed" or "bottom-up"
     notes: tuple[str, ...] = ()  # warnings about the design (weights on few readings)
+    function: str = "straight line"  # the calibration function: "straight line" or "second order"
 
     def covers(self, term: str) -> bool:
         """Whether the observed scatter stands for this random effect (a key of SCATTER_COVERED),
@@ -127,6 +130,16 @@ class CalibrationDesign:
         """The name of every preparation on the line (`Preparation.key`), in fit order."""
         return [p.key for _, p in self.fitted()]
 
+    @property
+    def second_order(self) -> bool:
+        return self.function == "second order"
+
+    def function_fit(self, factor: float = 1.0) -> LineFit | QuadraticFit:
+        """The calibration function (straight line or second order) fitted to the preparations'
+        means at the estimates, with its statistics."""
+        data = self.point_data(factor)
+        return fit_quadratic(*data) if self.second_order else fit_line(*data)
+
     def scatter_components(self) -> ScatterComponents:
         """Reading and preparation scatter of the line at the estimates (see validate.model.scatter)."""
         return _scatter_components(self)
@@ -157,14 +170,14 @@ def _within_series(readings, series) -> list[list[float]]:
 def _scatter_components(design: CalibrationDesign) -> ScatterComponents:
     """The two components of a design at the estimates: the repeated readings of the line's
     solutions give s_r (the pure error of ISO 8466-1), the preparations' means give s_m."""
-    xs, ys, ws = design.point_data()
-    return scatter_of_line([(p, design.weight(lv.id)) for lv, p in design.fitted()], xs, ys, ws)
+    # s_m with N - 2 (line) or N - 3 (second order) degrees of freedom
+    return scatter_of_line([(p, design.weight(lv.id)) for lv, p in design.fitted()], design.function_fit())
 
 
-def scatter_of_line(preparations: list[tuple[Preparation, float]], xs, ys, ws) -> ScatterComponents:
-    """s_m of the preparations' means (xs, ys, weights ws) about their line, s_r pooled within the
-    preparations (each with its weight) and series, and u_p (validate.model.scatter)."""
-    fit = fit_line(xs, ys, ws)
+def scatter_of_line(preparations: list[tuple[Preparation, float]], fit) -> ScatterComponents:
+    """s_m of the preparations' means about their fitted function `fit` (residual_sd, dof), s_r
+    pooled within the preparations (each with its weight) and series, and u_p
+    (validate.model.scatter)."""
     # the line's own solutions only: a sample's readings never change another sample's uncertainty
     groups = [(g, w) for p, w in preparations for g in _within_series(p.readings, p.series)]
     s_r, dof_r = pooled_reading_sd(groups)
@@ -231,7 +244,7 @@ def calibration_design(method: Method, concentrations: Mapping[str, float]) -> C
     samples = tuple(_read(method, s.id) for s in method.samples)
     _check_sample_preparations(method)
     design = CalibrationDesign(standards + (blanks if cal.blanks_in_fit else ()), blanks,
-                               cal.blanks_in_fit, samples, scatter=method.settings.scatter)
+                               cal.blanks_in_fit, samples, scatter=method.settings.scatter, function=cal.function)
     check_calibration_data(method, design)
     if cal.weighting in WEIGHTING_FUNCTIONS:
         design = replace(design, weights=level_weights(design.levels, design.samples, cal.weighting),
@@ -272,6 +285,9 @@ def check_calibration_data(method: Method, design: CalibrationDesign) -> None:
                          where="[calibration].standards",
                          fix="prepare the standards at different concentrations (5 to 7 levels over the "
                              "working range is common practice)")
+    if design.second_order:
+        _check_second_order(method, design, levels)
+        return
     xs, ys, _ = design.point_data(unit.factor)
     slope = fit_line(xs, ys).slope
     if not slope > 0:
@@ -281,6 +297,34 @@ def check_calibration_data(method: Method, design: CalibrationDesign) -> None:
             f"so no result is reported\n  what to do: check that every reading is under the right id "
             f"(rows swapped between standards?) and that the preparation of the standards in {path} "
             f"matches the solutions measured; methods read as a loss of absorbance are not supported")
+
+
+def _check_second_order(method: Method, design: CalibrationDesign, levels: list[float]) -> None:
+    """At least 4 distinct concentrations (InputError, exit 2), and a function that rises over the
+    whole working range, so every response in it has one root there (ModelError, exit 3)."""
+    from validate.inputs.errors import InputError
+
+    cal = method.calibration
+    assert cal is not None
+    unit = cal.concentration_unit
+    if len(levels) < MIN_LEVELS_SECOND_ORDER:
+        raise InputError(f"the calibration points have only {len(levels)} distinct concentration(s); a "
+                         f"second-order function needs at least {MIN_LEVELS_SECOND_ORDER}", file=method.path,
+                         where="[calibration].standards",
+                         fix='add standards (ISO 8466-2 asks for about 10 levels, from memory), or use '
+                             'function = "straight line"')
+    fit = fit_quadratic(*design.point_data(unit.factor))
+    slopes = fit.slope_at([levels[0], levels[-1]])
+    if not (slopes[0] > 0 and slopes[1] > 0):
+        a, b, c = fit.coefficients
+        vertex = -b / (2 * c) if c != 0 else float("nan")
+        raise ModelError(
+            f"{Path(method.path).parent / cal.readings_file}, readings of the standards: the second-order "
+            f"function does not rise over the whole working range {levels[0]:g} to {levels[-1]:g} {unit.text} "
+            f"(slope {slopes[0]:.3g} at the lowest, {slopes[1]:.3g} at the highest level; its turning point is "
+            f"at {vertex:.4g} {unit.text}), so a response could belong to two concentrations and no result is "
+            f"reported\n  what to do: narrow the working range to where the response still rises (dilute the "
+            f"samples), or check the readings of the highest standards")
 
 
 @dataclass(frozen=True)
@@ -317,7 +361,8 @@ class EquilibriumDesign:
         """Reading and preparation scatter of the standards' line through the preparations' means,
         as an assay's (unweighted)."""
         xs, ys = self.point_data()
-        return scatter_of_line([(p, 1.0) for lv in self.standards for p in lv.preparations], xs, ys, None)
+        return scatter_of_line([(p, 1.0) for lv in self.standards for p in lv.preparations],
+                               fit_line(xs, ys, None))
 
     def to_dict(self) -> dict:
         return asdict(self)

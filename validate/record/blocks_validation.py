@@ -362,3 +362,6 @@ class ValidationBlock(RecordPart):
     reporting_units: ReportingUnits | None = omitted_when_none(
         "LOD, LOQ, working range and ISO 11843-2 values in the measuring solution's and the reported unit")
     scope: ScopeEntry | None = omitted_when_none("the scope's range against the working range; left out for a study")
+    calibration_function: str | None = omitted_when_none(
+        '"straight line" or "second order": the function the results are read off (the fit and the linearity tests '
+        "above are of the straight line); left out for an equilibrium study")

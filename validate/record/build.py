@@ -50,6 +50,7 @@ from validate.record.verdict_warnings import stated_exact
 from validate.validation.block import equilibrium_validation_block, line_summary, validation_block
 from validate.validation.matrix_effect import addition_blocks
 from validate.validation.routine_block import method_uncertainty_block
+from validate.validation.second_order import second_order_block
 
 EQUILIBRIUM_FORMULA = "K = [ML] / (([M]0 - [ML]) ([L]0 - [ML])), [ML] from the line of the standards"
 MONTE_CARLO_METHOD = "JCGM 101:2008; calibration line refitted in every trial"
@@ -58,6 +59,8 @@ MONTE_CARLO_METHOD = "JCGM 101:2008; calibration line refitted in every trial"
 def calibration_summary(method: Method, model: Model) -> CalibrationSummary | None:
     """The straight line as the analyst sees it: absorbance against concentration."""
     summary = line_summary(method, model)
+    if summary is not None and model.design is not None and model.design.second_order:
+        summary["second_order"] = second_order_block(method, model.design)
     return None if summary is None else from_dict(CalibrationSummary, summary)
 
 

@@ -22,7 +22,7 @@ from validate.record.blocks_routine import MethodUncertaintyBlock
 from validate.record.blocks_traceability import TraceabilityBlock
 from validate.record.blocks_validation import ValidationBlock, ValidationSettingsEntry
 from validate.record.blocks_verdict import Verdict
-from validate.record.tree import RecordPart, described, omitted_when_none
+from validate.record.tree import Number, RecordPart, described, omitted_when_none
 
 SCHEMA_VERSION = "2.1"
 
@@ -131,6 +131,59 @@ class CalibrationSummary(RecordPart):
     n: int
     dof: int
     samples: tuple[SampleReadings, ...]
+    second_order: SecondOrderFunction | None = omitted_when_none(
+        "the second-order calibration function y = a + b x + c x^2 (ISO 8466-2) the results are read off; "
+        "left out for a straight line, whose statistics are the fields above")
+
+
+@dataclass(frozen=True, kw_only=True)
+class SecondOrderSample(RecordPart):
+    """A sample read off the second-order function at the estimates (calibration unit)."""
+
+    id: str
+    concentration: Number
+    standard_uncertainty: Number
+    sensitivity: Number = described("slope b + 2 c x of the function at the result (absorbance per unit)")
+
+
+@dataclass(frozen=True, kw_only=True)
+class SecondOrderLimitRoute(RecordPart):
+    route: str
+    sigma: Number
+    sigma_dof: int
+    lod: Number
+    loq: Number
+    source: str
+
+
+@dataclass(frozen=True, kw_only=True)
+class SecondOrderLimits(RecordPart):
+    routes: tuple[SecondOrderLimitRoute, ...]
+    declared_route: str
+    lod: Number
+    loq: Number
+    not_shown: tuple[str, ...] = described("routes left out for a second-order function, and why")
+
+
+@dataclass(frozen=True, kw_only=True)
+class SecondOrderFunction(RecordPart):
+    """The second-order calibration function (validate.validation.second_order)."""
+
+    function: str
+    equation: str
+    coefficients: tuple[float, ...] = described("a, b, c (absorbance, per unit, per unit squared)")
+    standard_uncertainties: tuple[float, ...]
+    covariance: tuple[tuple[float, ...], ...] = described("covariance matrix of (a, b, c)")
+    residual_standard_deviation: float
+    dof: int = described("N - 3")
+    n: int
+    r_squared: Number
+    residuals: tuple[float, ...] = described("mean reading minus the function, per point in fit order")
+    sensitivity_at_range_ends: tuple[float, ...]
+    turning_point: Number = described("concentration where the slope is zero (outside the working range)")
+    samples: tuple[SecondOrderSample, ...]
+    limits: SecondOrderLimits
+    source: str
 
 
 @dataclass(frozen=True, kw_only=True)

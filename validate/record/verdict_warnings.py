@@ -33,9 +33,19 @@ def _p(value: float | None) -> str:
     return "" if value is None else f" ({p_text(value)})"
 
 
+WAYS_OUT = ("; two ways out (ISO 8466-2, from memory): the second-order calibration function over the full range "
+            '(function = "second order" in [calibration]), or the straight line over a narrower working range where '
+            "it passes; the advisor gives the U of each")
+
+
 def linearity(v: ValidationBlock) -> list[VerdictItem]:
-    """Lack of fit, Mandel's test or the runs test significant: the straight line is in doubt."""
-    return [VerdictItem(what=f"linearity, {t.name}", why=t.verdict + _p(t.p_value))
+    """Lack of fit, Mandel's test or the runs test significant: the straight line is in doubt. Mandel's
+    test names the two ways out. With a second-order function the results do not rest on the straight
+    line, whose curvature is what the function was chosen for: no warning."""
+    if v.calibration_function == "second order":
+        return []
+    return [VerdictItem(what=f"linearity, {t.name}",
+                        why=t.verdict + _p(t.p_value) + (WAYS_OUT if t is v.mandel else ""))
             for t in (v.lack_of_fit, v.mandel, v.runs) if t.significant is True]
 
 

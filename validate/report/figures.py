@@ -25,6 +25,7 @@ from PIL import Image
 from scipy import stats
 
 from validate.model.line import level_sums
+from validate.model.quadratic import rising_root
 from validate.validation.window import error_curve
 
 DPI = 200
@@ -94,26 +95,42 @@ def prediction_band(x, y, grid, slope: float, intercept: float, p: float = 0.95)
     return t * s * np.sqrt(1.0 + 1.0 / n + (grid - sums.x_mean) ** 2 / sums.sxx), s
 
 
-def _samples_on_line(calibration: dict, a: float, b: float) -> list[tuple[str, float, float]]:
-    """(id, concentration read off the line, mean reading) of every sample with readings."""
+def _samples_on_line(calibration: dict, a: float, b: float, c: float = 0.0) -> list[tuple[str, float, float]]:
+    """(id, concentration read off the line, or the second-order function's rising root, mean reading)
+    of every sample with readings."""
     samples = []
     for s in calibration.get("samples") or []:
         readings = [r for r in s.get("readings", []) if r is not None]
-        if readings and b != 0:
+        disc = b * b - 4 * c * (a - float(np.mean(readings))) if readings else -1.0
+        if readings and b != 0 and disc >= 0:
             mean = float(np.mean(readings))
-            samples.append((s["id"], (mean - a) / b, mean))
+            samples.append((s["id"], float(rising_root(a, b, c, mean, b > 0)), mean))
     return samples
 
 
-def _line_panel(ax, points: dict, samples: list, grid, line: tuple[float, float], half) -> None:
-    """The line, its prediction band, the standards (blanks apart) and the samples."""
-    a, b = line
+def _second_order_band(so: dict, grid, p: float = 0.95):
+    """Half-width of the 95 % prediction interval of one new point about the second-order function:
+    t(N-3) sqrt(s^2 + g' V g), g = (1, x, x^2), V the covariance of (a, b, c) (the line's expression
+    with the third coefficient)."""
+    v = np.asarray(so["covariance"], dtype=float)
+    g = np.vstack([np.ones_like(grid), grid, grid**2])
+    var_fit = np.einsum("in,ij,jn->n", g, v, g)
+    s = float(so["residual_standard_deviation"])
+    return stats.t.ppf(0.5 + p / 2, so["dof"]) * np.sqrt(s * s + var_fit)
+
+
+def _line_panel(ax, points: dict, samples: list, grid, line: tuple[float, float, float], half) -> None:
+    """The line (or second-order function), its prediction band, the standards (blanks apart) and
+    the samples."""
+    a, b, c = line
     x, y, blank = points["x"], points["y"], points["blank"]
-    fitted = a + b * grid
+    fitted = a + b * grid + c * grid**2
     if half is not None:
         ax.fill_between(grid, fitted - half, fitted + half, color=BAND, linewidth=0,
                         label="95 % prediction band (one new reading)")
-    ax.plot(grid, fitted, color=LINE, linewidth=1.3, label=f"fitted line A = {a:.4g} + {b:.4g} c")
+    label = (f"second-order function A = {a:.4g} + {b:.4g} c {'-' if c < 0 else '+'} {abs(c):.4g} c²" if c
+             else f"fitted line A = {a:.4g} + {b:.4g} c")
+    ax.plot(grid, fitted, color=LINE, linewidth=1.3, label=label)
     ax.plot(x[~blank], y[~blank], "o", color=POINT, markersize=3.6, label="standards")
     if blank.any():
         ax.plot(x[blank], y[blank], "s", color=MUTED, markersize=3.6, label="blanks")
@@ -127,11 +144,11 @@ def _line_panel(ax, points: dict, samples: list, grid, line: tuple[float, float]
     _tidy(ax)
 
 
-def _residual_panel(ax, points: dict, grid, line: tuple[float, float], half, unit: str) -> None:
+def _residual_panel(ax, points: dict, grid, line: tuple[float, float, float], half, unit: str) -> None:
     """Residuals of the readings, with the same band drawn about zero."""
-    a, b = line
+    a, b, c = line
     x, blank = points["x"], points["blank"]
-    resid = points["y"] - (a + b * x)
+    resid = points["y"] - (a + b * x + c * x**2)
     if half is not None:  # the same band, relative to the line, where its width can be seen
         ax.fill_between(grid, -half, half, color=BAND, linewidth=0)
     ax.axhline(0.0, color=LINE, linewidth=1.0)
@@ -152,12 +169,18 @@ def calibration_figure(calibration: dict, compact: bool = False) -> Raster:
     blank = np.array([p.get("id", "").lower().startswith("blank") or p["concentration"] == 0
                       for p in pts])
     points = {"x": x, "y": y, "blank": blank}
+    so = calibration.get("second_order")  # the second-order function the results are read off
     b, a = float(calibration["slope"]), float(calibration["intercept"])
-    samples = _samples_on_line(calibration, a, b)
+    line = (float(so["coefficients"][0]), float(so["coefficients"][1]), float(so["coefficients"][2])) if so \
+        else (a, b, 0.0)
+    samples = _samples_on_line(calibration, *line)
     x_hi = max([float(x.max())] + [sx for _, sx, _ in samples])
     x_lo = min([0.0, float(x.min())] + [sx for _, sx, _ in samples])
     grid = np.linspace(x_lo, x_hi + 0.03 * (x_hi - x_lo), 200)
-    half = prediction_band(x, y, grid, b, a)[0] if x.size > 2 else None
+    if so:
+        half = _second_order_band(so, grid)
+    else:
+        half = prediction_band(x, y, grid, b, a)[0] if x.size > 2 else None
 
     height = 2.6 if compact else 3.0
     fig = _figure(height)
@@ -165,8 +188,8 @@ def calibration_figure(calibration: dict, compact: bool = False) -> Raster:
                           left=0.11, right=0.98, top=1 - 0.1 / height, bottom=0.45 / height)
     top = fig.add_subplot(gs[0])
     low = fig.add_subplot(gs[1], sharex=top)
-    _line_panel(top, points, samples, grid, (a, b), half)
-    _residual_panel(low, points, grid, (a, b), half, calibration.get("concentration_unit", ""))
+    _line_panel(top, points, samples, grid, line, half)
+    _residual_panel(low, points, grid, line, half, calibration.get("concentration_unit", ""))
     return _raster(fig)
 
 

@@ -62,6 +62,7 @@ SECTIONS = (
     ("Measurement equation and inputs", sections_inputs.equation_inputs, False),
     ("Equilibrium constant", sections_equilibrium.equilibrium, False),
     ("Calibration", sections.calibration, False),
+    ("Second-order calibration function", sections_validation.second_order, False),
     ("Linearity", sections_validation.linearity, False),
     ("Limits of detection and quantitation", sections_validation.detection_limits, False),
     ("Working range", sections_validation.working_range, False),

@@ -374,3 +374,40 @@ def precision_trueness(record: dict) -> list | None:
     v = _validation(record) or {}
     blocks = _repeatability(record, v) + _intermediate(v) + _trueness(v) + _scatter(record, v)
     return blocks or None
+
+
+def second_order(record: dict) -> list | None:
+    """The second-order calibration function the results are read off (ISO 8466-2): coefficients with
+    their standard uncertainties and correlations, the sensitivity at each result, the limits valid
+    for it; None for a straight line."""
+    so = (record.get("calibration") or {}).get("second_order")
+    if not so:
+        return None
+    unit = concentration_unit(record)
+    names = ("a (absorbance)", f"b (per {unit})", f"c (per ({unit})²)")
+    cov = so["covariance"]
+    corr = [[cov[i][j] / (cov[i][i] * cov[j][j]) ** 0.5 for j in range(3)] for i in range(3)]
+    rows = [[n, num(v, 5), num(u, 3), num(corr[i][0], 4), num(corr[i][1], 4), num(corr[i][2], 4)]
+            for i, (n, v, u) in enumerate(zip(names, so["coefficients"], so["standard_uncertainties"], strict=True))]
+    samples = [[s["id"], num(s["concentration"], 5), num(s["standard_uncertainty"], 3), num(s["sensitivity"], 4)]
+               for s in so["samples"]]
+    lim = so["limits"]
+    routes = [[ROUTE_NAMES.get(r["route"], r["route"]).replace("of the line", "of the function"), num(r["lod"], 3),
+               num(r["loq"], 3)] for r in lim["routes"]]
+    return [para(f"Absorbance y = a + b x + c x², x the concentration, fitted by least squares "
+                 f"to the preparations' means (N = {so['n']}, {so['dof']} degrees of freedom, residual SD "
+                 f"{num(so['residual_standard_deviation'], 3)}); the results are read off it by the root on its "
+                 f"rising branch, refitted in every Monte Carlo trial. The calibration figure above shows this "
+                 f"function, its 95 % prediction band t(N-3) sqrt(s² + g'Vg), g = (1, x, x²), and its residuals; "
+                 f"the straight line's statistics and tests are those of the line the function replaces.", "lead"),
+            data_table(["coefficient", "value", "u", "corr. a", "corr. b", "corr. c"], rows,
+                       [34, 26, 22, 22, 22, 22], numeric={1, 2, 3, 4, 5}),
+            para(f"Sensitivity b + 2 c x: {num(so['sensitivity_at_range_ends'][0], 4)} at the lowest and "
+                 f"{num(so['sensitivity_at_range_ends'][1], 4)} at the highest standard; the function turns at "
+                 f"{num(so['turning_point'], 4)} {unit}, outside the working range.", "body"),
+            data_table(["sample", f"read off ({unit})", "u (function)", "sensitivity"], samples, [40, 36, 30, 30],
+                       numeric={1, 2, 3}),
+            heading("Limits valid for a second-order function (S = b)", 2),
+            data_table(["route", f"LOD ({unit})", f"LOQ ({unit})"], routes, [80, 30, 30], numeric={1, 2}),
+            *bullets(list(lim["not_shown"])),
+            para(so["source"], "small")]

@@ -28,7 +28,7 @@ from validate.report.terminal_run import (
     verdict_headline,
     verdict_lines,
 )
-from validate.report.terminal_validation import criteria_lines, validation_lines
+from validate.report.terminal_validation import criteria_lines, second_order_lines, second_order_text, validation_lines
 
 __all__ = ["BLANK", "Line", "Printable", "ProgressBars", "check_facts", "check_lines", "describe_verify",
            "error_line", "format_quick_check", "init_lines", "interrupted_line", "quick_check_lines",
@@ -91,6 +91,8 @@ def run_lines(record: dict, top: int) -> list[Printable]:
     validation = record.get("validation")
     if validation:
         lines += validation_lines(validation)
+    lines += second_order_lines((record.get("calibration") or {}).get("second_order"),
+                                (validation or {}).get("concentration_unit", ""))
     if record.get("equilibrium"):
         lines += equilibrium_lines(record, top)
     else:
@@ -270,7 +272,8 @@ def _samples_text(result: dict, sources: _Sources) -> list[str]:
     if not samples:
         return []
     unit = _units(result)[0]
-    out = ["", "Samples: concentration read off the line, observed-scatter uncertainty"
+    curve = "the second-order function" if result.get("second_order") else "the line"
+    out = ["", f"Samples: concentration read off {curve}, observed-scatter uncertainty"
                f"{sources.mark(samples[0].get('source'))}"]
     return out + [_sample_line(i, s, unit) for i, s in enumerate(samples, 1)]
 
@@ -289,7 +292,7 @@ def format_quick_check(result: dict) -> str:
     figure with its unit, each sample with U and k, the citations as numbered notes at the end."""
     sources = _Sources()
     out = (_fit_text(result) + _linearity_text(result, sources) + _limits_text(result, sources)
-           + _samples_text(result, sources) + _notes_text(result))
+           + second_order_text(result) + _samples_text(result, sources) + _notes_text(result))
     return "\n".join(out + sources.block()) + "\n"
 
 

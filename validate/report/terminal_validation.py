@@ -122,6 +122,53 @@ def _precision_and_trueness(v: dict) -> list[Printable]:
     return lines
 
 
+def second_order_lines(so: dict | None, unit: str) -> list[Printable]:
+    """The second-order calibration function the results are read off (ISO 8466-2)."""
+    if not so:
+        return []
+    unit = escape(unit)
+    (a, b, c), (ua, ub, uc) = so["coefficients"], so["standard_uncertainties"]
+    lo, hi = so["sensitivity_at_range_ends"]
+    lim = so["limits"]
+    routes = "; ".join(f"{escape(r['route'])} {compact(r['lod'], 3)}/{compact(r['loq'], 3)}" for r in lim["routes"])
+    lines: list[Printable] = [
+        BLANK, Line(f"[bold]Second-order calibration function[/] (ISO 8466-2; {so['n']} points, y = a + b x + c x^2, "
+                    f"x in {unit}); the results are read off it, the straight line above is shown for the linearity "
+                    f"tests", soft_wrap=True),
+        Line(f"  a {compact(a, 4)} ± {compact(ua, 2)}, b {compact(b, 4)} ± {compact(ub, 2)}, c {compact(c, 4)} ± "
+             f"{compact(uc, 2)} (standard uncertainties; covariance in the record), residual SD "
+             f"{compact(so['residual_standard_deviation'], 3)} with {so['dof']} degrees of freedom", soft_wrap=True),
+        Line(f"  sensitivity b + 2 c x: {compact(lo, 3)} at the lowest, {compact(hi, 3)} at the highest standard; "
+             f"turning point at {compact(so['turning_point'], 4)} {unit}", soft_wrap=True)]
+    lines += [Line(f"  {escape(s['id'])}: {compact(s['concentration'], 4)} {unit} "
+                   f"(u {compact(s['standard_uncertainty'], 2)} from the function), "
+                   f"sensitivity {compact(s['sensitivity'], 3)} per {unit}", soft_wrap=True)
+              for s in so["samples"]]
+    lines.append(Line(f"  LOD {compact(lim['lod'], 3)} {unit}, LOQ {compact(lim['loq'], 3)} {unit} (declared route: "
+                      f"{escape(lim['declared_route'])}, S = b); routes valid for the function (LOD/LOQ): {routes}",
+                      soft_wrap=True))
+    lines += [Line(f"  [dim]{escape(n)}[/]", soft_wrap=True) for n in lim["not_shown"]]
+    return lines
+
+
+def second_order_text(result: dict) -> list[str]:
+    """`validate calibrate --function "second order"`: the function the samples are read off."""
+    so = result.get("second_order")
+    if not so:
+        return []
+    (a, b, c), (ua, ub, uc) = result["coefficients"], result["standard_uncertainties"]
+    lim = so["limits"]
+    return ["", f"Second-order function {so['equation']} (ISO 8466-2, from memory), standard uncertainties u; "
+                f"the samples below are read off it",
+            f"  a {compact(a, 6)}, u = {compact(ua, 3)}", f"  b {compact(b, 6)}, u = {compact(ub, 3)}",
+            f"  c {compact(c, 6)}, u = {compact(uc, 3)}",
+            f"  residual SD {compact(so['residual_standard_deviation'], 6)} (absorbance), {so['dof']} degrees of "
+            f"freedom; covariance of a, b, c in --json",
+            "  limits valid for the function (S = b): " + "; ".join(
+                f"{r['route']} LOD {compact(r['lod'], 4)} LOQ {compact(r['loq'], 4)}" for r in lim["routes"]),
+            *[f"  {n}" for n in lim["not_shown"]]]
+
+
 def validation_lines(v: dict) -> list[Printable]:
     """The line of the standards: fit, linearity tests, limits, scatter, precision, trueness."""
     return (_fit_lines(v) + _test_lines(v) + _limit_lines(v) + _scatter_and_window(v)

@@ -19,6 +19,7 @@ from validate.model.assay import Model, build_model
 from validate.model.design import CalibrationDesign
 from validate.model.equilibrium import EquilibriumModel
 from validate.model.line import LineFit, fit_line, inverse_prediction
+from validate.model.quadratic import QuadraticFit, fit_quadratic, rising_root
 from validate.propagation.linear import LinearResult
 from validate.validation.criteria import STUDY_CRITERIA, evaluate_criteria
 from validate.validation.limits import SampleReadings, range_flags
@@ -32,6 +33,11 @@ from validate.validation.precision import (
     within_series_groups,
 )
 from validate.validation.reporting import as_is, limits_in, reporting_units, results_by_sample, scope_check
+from validate.validation.second_order import (
+    second_order_observed,
+    second_order_sample_entries,
+    with_second_order_limits,
+)
 from validate.validation.summary import ValidationSummary, validate_calibration
 from validate.validation.window import absorbance_window_flags
 
@@ -126,13 +132,16 @@ def _summary(method: Method, cal: Calibration, design: CalibrationDesign) -> Val
     reps = [(lv.concentration / factor, lv.count, statistics.stdev(lv.readings)) for lv in design.levels
             if lv.count >= 2]
     # the points are preparation means: a sample's mean reading is one such point (K = 1)
-    return validate_calibration(
+    summary = validate_calibration(
         xs, ys, weights=ws, blanks=design.blank_readings() or None, alpha=v.alpha, beta=v.beta,
         declared_limit=v.declared_limit,
         path_length_cm=path * 100 if cell is not None and path is not None else None,
         path_length_u=cell.tolerance / math.sqrt(3) * 100 if cell else None,
         sample_replicates=1, replicate_sds=reps, concentration_unit=cal.concentration_unit,
         sample=sample_readings(design))
+    if design.second_order:  # the limits valid for the function the results are read off
+        summary = with_second_order_limits(summary, design, factor, v.declared_limit)
+    return summary
 
 
 def sample_readings(design: CalibrationDesign) -> SampleReadings | None:
@@ -145,13 +154,15 @@ def sample_readings(design: CalibrationDesign) -> SampleReadings | None:
                           1.0 / sc.mean_inverse_count)
 
 
-def _sample_entries(design: CalibrationDesign, summary: ValidationSummary) -> tuple[dict, dict]:
+def _sample_entries(design: CalibrationDesign, summary: ValidationSummary, factor: float = 1.0) -> tuple[dict, dict]:
     """Each sample read off the line (observed-scatter uncertainty: u_p^2 + s_r^2/m for its own
     mean reading) with its range flags."""
     fit = summary.fit
     scatter = design.scatter_components()
     nonzero = [x for x in fit.x if x > 0] or list(fit.x)
     samples, flags = {}, {}
+    if design.second_order:  # read off the second-order function, with its own limits
+        return second_order_sample_entries(design, factor, summary.limits.declared_route, min(nonzero), max(fit.x))
     for smp in design.samples:
         w0 = design.weight(smp.id)
         pred = inverse_prediction(fit, smp.readings, sample_weight=w0,
@@ -176,7 +187,27 @@ def _observed(summary: ValidationSummary, results: list[LinearResult], precision
     return observed
 
 
-def _in_concentration(fit: LineFit, readings) -> list[float]:
+def _scatter_fit(fit: LineFit, so_fit: QuadraticFit | None) -> LineFit:
+    """The fit whose residual scatter the budget is checked against: the second-order function's (N - 3)."""
+    return dataclasses.replace(fit, residual_sd=so_fit.residual_sd, dof=so_fit.dof) if so_fit else fit
+
+
+def _criteria_observed(method: AssayMethod, design: CalibrationDesign, summary: ValidationSummary, results,
+                       precision, trueness) -> dict:
+    """The observed values of the acceptance criteria; those of the second-order function where it is used."""
+    observed = _observed(summary, results, precision, trueness)
+    if design.second_order:
+        cal = _calibration(method)
+        observed = second_order_observed(design, cal.concentration_unit.factor, method.validation.declared_limit,
+                                         observed)
+    return observed
+
+
+def _in_concentration(fit: LineFit | QuadraticFit, readings) -> list[float]:
+    """Readings in concentration, off the line or the second-order function's rising root."""
+    if isinstance(fit, QuadraticFit):
+        a, b, c = fit.coefficients
+        return [float(rising_root(a, b, c, y, b > 0)) for y in readings]
     return [(a - fit.intercept) / fit.slope for a in readings]
 
 
@@ -188,19 +219,25 @@ def validation_block(method: AssayMethod, model: Model, results: list[LinearResu
     design = _design(model)
     summary = _summary(method, cal, design)
     fit = summary.fit
-    samples, flags = _sample_entries(design, summary)
+    samples, flags = _sample_entries(design, summary, cal.concentration_unit.factor)
     units = reporting_units(method, model, summary)
     scope = scope_check(method, units, results_by_sample(model, results), samples)
     for sid, flag in scope.pop("sample_flags").items():
         flags[sid].append(flag)
     window = absorbance_window_flags(design.every_reading(), *v.window)
+    # a second-order function: readings in concentration off it, its own residual scatter (N - 3) and
+    # criteria values (validation.second_order)
+    so_fit = fit_quadratic(*design.point_data(cal.concentration_unit.factor)) if design.second_order else None
+    read_off = so_fit or fit
     rep_groups = [group for s in design.samples
-                  for group in within_series_groups(_in_concentration(fit, s.readings), s.series) if len(group) >= 2]
+                  for group in within_series_groups(_in_concentration(read_off, s.readings), s.series)
+                  if len(group) >= 2]
     precision = repeatability(rep_groups) if rep_groups else None
-    between_series = _intermediate(design, fit, cal.concentration_unit.text)
-    consistency, reading_consistency = scatter_checks(method, design, fit)
+    between_series = _intermediate(design, read_off, cal.concentration_unit.text)
+    consistency, reading_consistency = scatter_checks(method, design, _scatter_fit(fit, so_fit))
     trueness = _trueness(method, results)
-    criteria = evaluate_criteria(v.acceptance, _observed(summary, results, precision, trueness))
+    criteria = evaluate_criteria(v.acceptance, _criteria_observed(method, design, summary, results, precision,
+                                                                  trueness))
     block = plain(summary)
     block.update({
         "settings": v.to_dict(),
@@ -220,6 +257,7 @@ def validation_block(method: AssayMethod, model: Model, results: list[LinearResu
         "criteria": plain(criteria),
         "reporting_units": units,
         "scope": scope,
+        "calibration_function": cal.function,
     })
     return block
 
@@ -244,7 +282,7 @@ def _fit_units(design: CalibrationDesign) -> dict:
     }
 
 
-def _intermediate(design: CalibrationDesign, fit: LineFit, unit: str) -> dict:
+def _intermediate(design: CalibrationDesign, fit: LineFit | QuadraticFit, unit: str) -> dict:
     """Intermediate precision (ISO 5725-3) of every sample read in two or more series (the
     readings table's optional `series` column: days, analysts), in the calibration unit.
     The budget's observed scatter is within-series only: a series effect is reported here."""

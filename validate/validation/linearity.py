@@ -16,6 +16,7 @@ import numpy as np
 from scipy import stats
 
 from validate.model.line import LineFit
+from validate.model.quadratic import fit_quadratic
 
 
 def plain(value):
@@ -203,7 +204,8 @@ def mandel_test(fit: LineFit, alpha: float = 0.05) -> SignificanceTest:
         return _not_evaluable("Mandel's test", alpha,
                               "needs at least 4 readings at 3 or more concentrations", MANDEL_SOURCE)
     rss1 = fit.rss  # (n-2) s1^2
-    rss2 = _poly_rss(x, y, w, 2)  # (n-3) s2^2
+    quadratic = fit_quadratic(x, y, w)  # the second-order function of ISO 8466-2, kept in the details
+    rss2 = quadratic.rss  # (n-3) s2^2
     ds2 = max(rss1 - rss2, 0.0)
     s2_sq = rss2 / (n - 3)
     if negligible(rss2, fit):
@@ -218,7 +220,8 @@ def mandel_test(fit: LineFit, alpha: float = 0.05) -> SignificanceTest:
                "no significant improvement by a quadratic: the straight line is adequate")
     return SignificanceTest("Mandel's test", True, f, (1, n - 3), p, crit, alpha, sig, verdict,
                       MANDEL_SOURCE, {"s_linear": math.sqrt(rss1 / (n - 2)),
-                                      "s_quadratic": math.sqrt(s2_sq), "ds_squared": ds2})
+                                      "s_quadratic": math.sqrt(s2_sq), "ds_squared": ds2,
+                                      "quadratic_coefficients": list(quadratic.coefficients)})
 
 
 def runs_distribution(n1: int, n2: int) -> dict[int, float]:

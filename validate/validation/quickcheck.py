@@ -21,6 +21,7 @@ from validate.inputs.errors import InputError
 from validate.inputs.readings import read_text_file, text_lines
 from validate.model.errors import ModelError
 from validate.model.line import fit_line, inverse_prediction
+from validate.model.quadratic import FUNCTIONS
 from validate.validation.limits import range_flags
 from validate.validation.linearity import plain
 from validate.validation.summary import validate_calibration
@@ -248,10 +249,18 @@ EVERY_ROW_NOTE = ("every row is fitted as an independent point: a bare table doe
                   "fits one point per prepared solution")
 
 
-def quick_check(path, samples: list[list[float]] | None = None) -> dict:
-    """Fit, linearity tests, ICH limits (sigma from residuals) and optional samples, as plain data."""
+def quick_check(path, samples: list[list[float]] | None = None, function: str = "straight line") -> dict:
+    """Fit, linearity tests, ICH limits (sigma from residuals) and optional samples, as plain data.
+    With `function = "second order"` the samples are read off y = a + b x + c x^2 (ISO 8466-2) and the
+    result adds its coefficients, their standard uncertainties and covariance, and its limits."""
+    if function not in FUNCTIONS:
+        raise InputError(f"unknown calibration function {function!r}", where="--function",
+                         fix='use --function "straight line" or --function "second order"')
     table = load_table(path)
-    _check_line_rises(table.path, fit_line(table.concentration, table.absorbance))  # before any statistic of it
+    if function == "second order":
+        _check_second_order_levels(table)
+    else:
+        _check_line_rises(table.path, fit_line(table.concentration, table.absorbance))  # before any statistic
     summary = validate_calibration(table.concentration, table.absorbance)
     fit = summary.fit
     notes = [EVERY_ROW_NOTE] + list(summary.notes)
@@ -278,6 +287,21 @@ def quick_check(path, samples: list[list[float]] | None = None) -> dict:
         "absorbance_window": [summary.window.low, summary.window.high],
         "notes": notes,
     }
-    if samples:
+    if function == "second order":  # the line's statistics stay: its linearity tests say why the curve
+        from validate.validation.second_order import quick_second_order
+
+        result.update(quick_second_order(table.path, table.concentration, table.absorbance, samples, COVERAGE))
+    elif samples:
         result["sample"] = [_sample_entry(fit, summary, i, s) for i, s in enumerate(samples, 1)]
     return plain(result)
+
+
+
+def _check_second_order_levels(table: CalibrationTable) -> None:
+    levels = len(set(table.concentration))
+    if levels < 4:
+        raise TooFewLevelsError(f"the table has {levels} distinct concentrations; a second-order function "
+                                f"(three coefficients and a residual scatter) needs at least 4",
+                                file=table.path, column="concentration",
+                                fix='add standards (ISO 8466-2 asks for about 10 levels, from memory), or use '
+                                    '--function "straight line"')
