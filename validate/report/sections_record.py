@@ -111,7 +111,7 @@ def sign_off(record: dict) -> list:
                      for role in ("Prepared by", "Reviewed by", "Approved by")]
     # blank columns 2 and 4 keep the three writing lines apart
     table = Table(rows, colWidths=[30 * mm, 52 * mm, 6 * mm, 52 * mm, 6 * mm, 28 * mm],
-                  rowHeights=[7 * mm] + [13 * mm] * 3, hAlign="LEFT")
+                  rowHeights=[6 * mm] + [11 * mm] * 3, hAlign="LEFT")
     table.setStyle(TableStyle([
         ("LINEBELOW", (0, 0), (-1, 0), 0.8, ACCENT),
         *[("LINEBELOW", (col, 1), (col, -1), 0.6, INK) for col in (1, 3, 5)],
