@@ -287,3 +287,28 @@ def test_saturating_demo_end_to_end(tmp_path):
         # the observed scatter rests on 7 degrees of freedom (t inputs): the Monte Carlo u is larger
         # than the GUM u by about sqrt(nu/(nu-2)) on its share, never smaller (JCGM 101 6.4.9)
         assert result["standard_uncertainty"] <= mc["standard_uncertainty"] <= 1.3 * result["standard_uncertainty"]
+
+
+def test_reporting_units_leave_out_the_straight_line_values_for_a_second_order_function():
+    """ISO 11843-2's x_C and x_D assume a straight line (ISO 11843-2:2000, clause 5, from memory):
+    with a second-order function they are null in both units, the limits and range stay."""
+    from validate.validation.reporting import limits_in
+
+    class Iso:
+        critical_value, minimum_detectable_value = 0.03, 0.06
+
+    class Limits:
+        lod, loq, iso11843 = 0.05, 0.15, Iso()
+
+    class Fit:
+        x = (0.0, 1.0, 2.0)
+
+    class Summary:
+        limits, fit, highest_standard = Limits(), Fit(), 2.0
+
+    line = limits_in(Summary(), "mg/L", lambda x: x)
+    curve = limits_in(Summary(), "mg/L", lambda x: x, straight_line=False)
+    assert (line["critical_value"], line["minimum_detectable_value"]) == (0.03, 0.06)
+    assert curve["critical_value"] is None and curve["minimum_detectable_value"] is None
+    kept = (curve["lod"], curve["loq"], curve["working_range_low"], curve["working_range_high"])
+    assert kept == (0.05, 0.15, 1.0, 2.0)

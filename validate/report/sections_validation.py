@@ -159,7 +159,8 @@ def _in_both_units(v: dict) -> list:
     columns = [units["measuring_solution"]] + ([units["reported"]] if units.get("reported") else [])
     header = ["", f"measuring solution / {columns[0]['unit']}"]
     header += [f"sample, reported / {columns[1]['unit']}"] if len(columns) > 1 else []
-    rows = [[label] + [num(c.get(key), digits) for c in columns] for label, key, digits in UNIT_ROWS]
+    rows = [[label] + [num(c.get(key), digits) for c in columns] for label, key, digits in UNIT_ROWS
+            if any(c.get(key) is not None for c in columns)]  # x_C, x_D: null for a second-order function
     widths = [80, 47, 47] if len(columns) > 1 else [100, 74]
     return [heading("In the measuring solution and in the reported unit", 2),
             data_table(header, rows, widths, numeric={1, 2}), para(units["how"], "note")]

@@ -41,10 +41,11 @@ def _test_lines(v: dict) -> list[Printable]:
 
 def _in_units(values: dict) -> str:
     """'LOD 0.0814, LOQ 0.247, range 0.998 to 9.98, x_C 0.0289, x_D 0.0578 µmol/L'"""
+    iso = (f", ISO 11843-2 x_C {compact(values['critical_value'], 3)}, x_D "
+           f"{compact(values['minimum_detectable_value'], 3)}" if values.get("critical_value") is not None else "")
     return (f"LOD {compact(values['lod'], 3)}, LOQ {compact(values['loq'], 3)}, working range "
-            f"{compact(values['working_range_low'], 3)} to {compact(values['working_range_high'], 3)}, "
-            f"ISO 11843-2 x_C {compact(values['critical_value'], 3)}, x_D "
-            f"{compact(values['minimum_detectable_value'], 3)} {escape(values['unit'])}")
+            f"{compact(values['working_range_low'], 3)} to {compact(values['working_range_high'], 3)}"
+            f"{iso} {escape(values['unit'])}")
 
 
 def _reporting_lines(v: dict) -> list[Printable]:

@@ -35,16 +35,18 @@ def as_is(x: float | None) -> float | None:
     return x
 
 
-def limits_in(summary: ValidationSummary, unit: str, convert: Callable[[float | None], float | None]) -> dict:
-    """The limits and the working range of the line, each passed through `convert`."""
+def limits_in(summary: ValidationSummary, unit: str, convert: Callable[[float | None], float | None],
+              straight_line: bool = True) -> dict:
+    """The limits and the working range of the line, each passed through `convert`; the ISO 11843-2
+    values only for a straight line (its formulas assume one: null for a second-order function)."""
     lim, iso = summary.limits, summary.limits.iso11843
     above_zero = [x for x in summary.fit.x if x > 0] or list(summary.fit.x)
     ends = sorted(v for v in (convert(min(above_zero)), convert(summary.highest_standard)) if v is not None)
     return {"unit": unit, "lod": convert(lim.lod), "loq": convert(lim.loq),
             "working_range_low": ends[0] if len(ends) == 2 else None,
             "working_range_high": ends[1] if len(ends) == 2 else None,
-            "critical_value": convert(iso.critical_value),
-            "minimum_detectable_value": convert(iso.minimum_detectable_value)}
+            "critical_value": convert(iso.critical_value) if straight_line else None,
+            "minimum_detectable_value": convert(iso.minimum_detectable_value) if straight_line else None}
 
 
 def _through_formula(model: Model, factor: float) -> Callable[[float | None], float | None]:
@@ -65,11 +67,13 @@ def reporting_units(method: AssayMethod, model: Model, summary: ValidationSummar
     if cal is None:
         raise ValueError("the method has no [calibration]")
     formula = method.result.formula
-    measuring = limits_in(summary, cal.concentration_unit.text, as_is)
+    straight = model.design is None or not model.design.second_order
+    measuring = limits_in(summary, cal.concentration_unit.text, as_is, straight)
     if "c_measured" not in formula.names:
         return {"measuring_solution": measuring, "reported": None,
                 "how": "the result formula does not read the line (no c_measured): no conversion"}
-    reported = limits_in(summary, method.result.unit.text, _through_formula(model, cal.concentration_unit.factor))
+    reported = limits_in(summary, method.result.unit.text, _through_formula(model, cal.concentration_unit.factor),
+                         straight)
     return {"measuring_solution": measuring, "reported": reported,
             "how": f"each value put through the result formula ({formula.text}) in place of c_measured, every "
                    "other input at its estimate"}
