@@ -51,15 +51,15 @@ def test_a_mixture_carries_u_p_and_reading_scatter_and_no_glassware_repeatabilit
     model = _model()
     sc = model.design.scatter_components()
     for mix in model.design.mixtures:
-        reading = model.sources[f"reading scatter, {mix.id}"]
-        assert reading.u == pytest.approx(sc.reading_sd / math.sqrt(mix.count), rel=1e-12)
-        assert model.sources[f"preparation scatter, {mix.id}"].u == pytest.approx(sc.preparation_sd, rel=1e-12)
+        term = model.sources[f"calibration scatter, {mix.id}"]  # one term on s_m, with its dof
+        assert term.u == pytest.approx(math.sqrt(sc.sample_variance(mix.count, 1.0)), rel=1e-12)
+        assert term.dof == sc.means_dof
         assert not [n for n, s in model.sources.items() if s.step == f"prepare {mix.id}" and "repeatability" in n]
     # bottom-up, the mixture's glassware keeps its repeatability and no observed term is added
     bottom_up = _model(scatter="bottom-up")
     for mix in bottom_up.design.mixtures:
         assert [n for n, s in bottom_up.sources.items() if s.step == f"prepare {mix.id}" and "repeatability" in n]
-        assert f"preparation scatter, {mix.id}" not in bottom_up.sources
+        assert f"calibration scatter, {mix.id}" not in bottom_up.sources
 
 
 def test_addition_series_points_carry_reading_scatter_only():
@@ -71,7 +71,7 @@ def test_addition_series_points_carry_reading_scatter_only():
     for point in model.design.series_points:
         assert model.sources[f"reading scatter, {point.id}"].u == pytest.approx(
             sc.reading_sd / math.sqrt(point.count), rel=1e-12)
-        assert f"preparation scatter, {point.id}" not in model.sources
+        assert f"calibration scatter, {point.id}" not in model.sources
     assert any("repeatability (T addition" in n for n in model.sources)
 
 

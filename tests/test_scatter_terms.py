@@ -36,9 +36,13 @@ def test_preparation_scatter_never_averages_away():
                            preparation_sd=math.sqrt(0.002**2 - 0.002**2 / 3), mean_inverse_count=1 / 3)
     assert sc.sample_variance(3, 1.0) == pytest.approx(0.002**2, rel=1e-12)  # a sample read like a standard
     assert sc.sample_variance(10**6, 1.0) == pytest.approx(sc.preparation_sd**2, rel=1e-5)
-    terms = {t.label: t for t in sc.sample_terms("x", 6, 1.0)}
-    assert terms["reading scatter"].u == pytest.approx(0.002 / math.sqrt(6))
-    assert terms["reading scatter"].dof == 14 and terms["preparation scatter"].dof == 5
+    # one term on s_m with its 5 degrees of freedom (u_p alone, a difference of two variances, has
+    # fewer: Welch-Satterthwaite, GUM G.4.1), scaled to the sample's 6 readings
+    (term,) = sc.sample_terms("x", 6, 1.0)
+    assert term.u == pytest.approx(math.sqrt(sc.preparation_sd**2 + 0.002**2 / 6), rel=1e-12)
+    assert term.dof == 5 and term.label == "calibration scatter"
+    (reading,) = sc.reading_terms("x", 6, 1.0)  # a solution whose preparation is carried bottom-up
+    assert reading.u == pytest.approx(0.002 / math.sqrt(6)) and reading.dof == 14
 
 
 def test_observed_scatter_covers_each_random_effect_once():
@@ -204,9 +208,10 @@ def test_an_equilibrium_study_line_is_judged_on_its_prepared_standards():
        st.integers(1, 12))
 @settings(max_examples=60, deadline=None)
 def test_components_add_up_to_the_means_scatter(noise, m0):
-    # Property of the split (one-way random model): where u_p is not truncated at zero, a sample
-    # read as often as the standards carries exactly the means' scatter s_m^2, and in general
-    # u^2 = u_p^2 + s_r^2/m0 never falls below u_p^2. Invented readings about a true line.
+    # Property of the split (one-way random model): a sample's u^2 is s_m^2 scaled by
+    # (u_p^2 + s_r^2/m0)/(u_p^2 + s_r^2 mean(1/m)); where u_p is not truncated at zero that is
+    # u_p^2 + s_r^2/m0 (never below u_p^2), and a sample read as often as the standards carries
+    # exactly s_m^2. Invented readings about a true line.
     from validate.model.design import CalibrationDesign
 
     levels = tuple(Level(f"L{i}", "standard", (Preparation(f"L{i}", float(i), tuple(0.1 * i + 0.05 + d for d in r)),))
@@ -216,8 +221,12 @@ def test_components_add_up_to_the_means_scatter(noise, m0):
     if sc.reading_sd is None or sc.reading_sd == 0 or sc.means_sd == 0:
         return
     var = sc.sample_variance(m0, 1.0)
-    assert var == pytest.approx(sc.preparation_sd**2 + sc.reading_sd**2 / m0, rel=1e-9, abs=1e-18)
-    assert var >= sc.preparation_sd**2
+    average = sc.preparation_sd**2 + sc.reading_sd**2 * sc.mean_inverse_count
+    assert var == pytest.approx(sc.means_sd**2 * (sc.preparation_sd**2 + sc.reading_sd**2 / m0) / average,
+                                rel=1e-9, abs=1e-18)
+    if sc.preparation_sd > 0:
+        assert var == pytest.approx(sc.preparation_sd**2 + sc.reading_sd**2 / m0, rel=1e-9, abs=1e-18)
+        assert var >= sc.preparation_sd**2 * (1 - 1e-12)
     counts = {lv.count for lv in levels}
     if len(counts) == 1 and sc.preparation_sd > 0:
         (m,) = counts

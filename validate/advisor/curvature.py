@@ -61,7 +61,7 @@ def largest_linear_range(design: CalibrationDesign, standard_ids: tuple[str, ...
         if len(set(xs)) < MIN_LEVELS:
             return None
         test = mandel_test(fit_line(xs, ys, ws if design.weighted else None), ALPHA)
-        if test.significant is not True:
+        if test.significant is False:  # evaluated and passed (a test that could not run is no pass)
             return tuple(s for s in standard_ids if s in kept)
     return None
 

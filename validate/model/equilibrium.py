@@ -414,4 +414,4 @@ def _series_terms(scatter: ScatterComponents | None, ident: str, count: int) -> 
     are carried bottom-up); s_m where no solution was read twice (nothing to split)."""
     if scatter is None:
         return None
-    return [t for t in scatter.sample_terms(ident, count, 1.0) if t.label != "preparation scatter"]
+    return scatter.reading_terms(ident, count, 1.0)

@@ -11,7 +11,8 @@ between-laboratory terms):
     u_p^2 = max(0, s_m^2 - s_r^2 mean(1/m_i))                  (preparation scatter)
 
 A sample read m0 times then has u^2(y0) = u_p^2 + s_r^2/m0: more readings lower the reading
-part only, and the preparation scatter never averages away. On a weighted line every sum
+part only, and the preparation scatter never averages away. It is carried as s_m scaled to m0,
+with s_m's N - 2 degrees of freedom (u_p alone, a difference of two variances, has fewer). On a weighted line every sum
 carries the solution's weight, so the components are on the line's weighted scale.
 """
 
@@ -28,7 +29,7 @@ READING_GROUP = "reading repeatability"  # terms resting on s_r
 class ScatterTerm:
     """One observed-scatter term of a mean reading (absorbance, on the line's weighted scale)."""
 
-    label: str  # "calibration scatter", "preparation scatter" or "reading scatter"
+    label: str  # "calibration scatter" or "reading scatter"
     u: float
     dof: int
     group: str
@@ -69,27 +70,38 @@ class ScatterComponents:
                            f"means)")
 
     def sample_terms(self, ident: str, count: int, weight: float) -> list[ScatterTerm]:
-        """The scatter of a sample's mean reading: preparation scatter u_p plus reading scatter
-        s_r/sqrt(m0); s_m itself where no solution was read twice (nothing to split)."""
+        """The scatter of a sample's mean reading: u^2 = u_p^2 + s_r^2/m0, carried as ONE term on s_m
+        with s_m's degrees of freedom: s_m scaled by (u_p^2 + s_r^2/m0) / (u_p^2 + s_r^2 mean(1/m_i)).
+
+        u_p^2 is a difference of two variance estimates, so it has far fewer degrees of freedom
+        than s_m (Welch-Satterthwaite, GUM G.4.1); carrying u_p and s_r/sqrt(m0) as two terms would
+        overstate the degrees of freedom of the sum (a sample read as often as the standards has
+        exactly s_m^2 with N - 2 degrees of freedom). Where no solution was read twice, s_m itself."""
         if self.reading_sd is None or self.preparation_sd is None:
             return [ScatterTerm("calibration scatter", self.means_sd / math.sqrt(weight), self.means_dof,
                                 LINE_GROUP,
                                 f"residual standard deviation of the line {self.means_sd:.3g} (absorbance), "
                                 f"{self.means_dof} degrees of freedom; no solution read twice, so preparation "
                                 f"and reading scatter are not told apart and nothing averages")]
-        terms = [ScatterTerm("reading scatter", self.reading_sd / math.sqrt(count * weight), self.reading_dof,
-                             READING_GROUP,
-                             f"pooled standard deviation of repeated readings of one solution "
-                             f"{self.reading_sd:.3g} (absorbance), {self.reading_dof} degrees of freedom, divided by "
-                             f"the square root of the sample's number of readings")]
-        if self.preparation_sd > 0:
-            terms.append(ScatterTerm(
-                "preparation scatter", self.preparation_sd / math.sqrt(weight), self.means_dof, LINE_GROUP,
-                f"scatter of independently prepared standards beyond their reading scatter, "
-                f"sqrt(s_m^2 - s_r^2 mean(1/m)) = {self.preparation_sd:.3g} (absorbance), taken with the "
-                f"{self.means_dof} degrees of freedom of s_m; it stands for preparing the sample's measured "
-                f"solution and does not average with more readings"))
-        return terms
+        average = self.preparation_sd**2 + self.reading_sd**2 * self.mean_inverse_count
+        rel = self._expected_means_variance(count) / average if average > 0 else 1.0
+        return [ScatterTerm(
+            "calibration scatter", self.means_sd * math.sqrt(rel / weight), self.means_dof, LINE_GROUP,
+            f"residual standard deviation of the preparations' mean readings about the line {self.means_sd:.3g} "
+            f"(absorbance), {self.means_dof} degrees of freedom, scaled to the sample's number of readings by "
+            f"(u_p^2 + s_r^2/m)/(u_p^2 + s_r^2 mean(1/m_i)) with reading scatter s_r {self.reading_sd:.3g} and "
+            f"preparation scatter u_p {self.preparation_sd:.3g}: more readings lower the reading part only")]
+
+    def reading_terms(self, ident: str, count: int, weight: float) -> list[ScatterTerm]:
+        """Reading scatter s_r/sqrt(m) alone (a solution whose preparation is carried bottom-up);
+        the sample's term where no solution was read twice (nothing to split)."""
+        if self.reading_sd is None:
+            return self.sample_terms(ident, count, weight)
+        return [ScatterTerm("reading scatter", self.reading_sd / math.sqrt(count * weight), self.reading_dof,
+                            READING_GROUP,
+                            f"pooled standard deviation of repeated readings of one solution "
+                            f"{self.reading_sd:.3g} (absorbance), {self.reading_dof} degrees of freedom, divided "
+                            f"by the square root of the solution's number of readings")]
 
     def sample_variance(self, count: int, weight: float) -> float:
         """u^2 of a sample's mean reading (absorbance^2): the sum of its terms."""
