@@ -189,12 +189,15 @@ def inverse_prediction(fit: LineFit, readings, sample_weight: float = 1.0,
     y0 = float(r.mean())
     b = fit.slope
     t = special.stdtrit(fit.dof, 0.5 + confidence / 2.0)  # what scipy.stats.t.ppf computes
-    g = (t * fit.slope_u / b) ** 2 if b != 0 else math.inf
+    ratio = t * fit.slope_u / b if b != 0 else math.inf
+    g = ratio * ratio
     finite = g < 1.0
     if b == 0:
         return InversePrediction(y0, m, math.nan, math.inf, fit.dof, False, g)
     x0 = (y0 - fit.intercept) / b
     s2 = fit.residual_sd**2
     own = s2 / (sample_weight * m) if response_variance is None else response_variance
-    u = math.sqrt(own + s2 * (1.0 / fit.n + (y0 - fit.y_mean) ** 2 / (b**2 * fit.sxx))) / abs(b)
+    d = (y0 - fit.y_mean) / b  # divided by b first (b^2 may underflow); d * d is inf, never an error
+    lever = d * d / fit.sxx
+    u = math.sqrt(own + s2 * (1.0 / fit.n + lever)) / abs(b)
     return InversePrediction(y0, m, x0, u if finite else math.inf, fit.dof, finite, g)
