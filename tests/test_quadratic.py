@@ -312,3 +312,19 @@ def test_reporting_units_leave_out_the_straight_line_values_for_a_second_order_f
     assert curve["critical_value"] is None and curve["minimum_detectable_value"] is None
     kept = (curve["lod"], curve["loq"], curve["working_range_low"], curve["working_range_high"])
     assert kept == (0.05, 0.15, 1.0, 2.0)
+
+
+def test_no_ich_limit_where_the_function_does_not_rise_at_zero():
+    """ICH Q2(R1) 6.3 divides by the sensitivity S; with S = b <= 0 at zero there is no limit to
+    report (null, with why), never a limit from |b|."""
+    import math
+
+    from validate.validation.second_order import second_order_limits
+
+    class Fit:
+        coefficients = (0.01, -0.002, 0.003)
+        residual_sd, dof, standard_uncertainties = 0.001, 5, (0.0005, 0.0004, 0.0001)
+
+    lim = second_order_limits(Fit(), None, "ich_residual_sd")
+    assert math.isnan(lim["lod"]) and math.isnan(lim["loq"])
+    assert any("not positive" in note for note in lim["not_shown"])

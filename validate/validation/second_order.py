@@ -38,10 +38,14 @@ def second_order_limits(fit: QuadraticFit, blanks: list[float] | None, declared:
                "sigma = standard error of the function's intercept a")]
     if blanks and len(blanks) > 1:
         routes.append(("ich_blank_sd", float(np.std(blanks, ddof=1)), len(blanks) - 1, "sigma = SD of the blanks"))
-    entries = [{"route": r, "sigma": s, "sigma_dof": dof, "lod": 3.3 * s / abs(b), "loq": 10.0 * s / abs(b),
-                "source": ICH + why} for r, s, dof, why in routes]
+    rising = b > 0  # S = b is the sensitivity at zero; a function not rising there has no ICH limit
+    entries = [{"route": r, "sigma": s, "sigma_dof": dof, "lod": 3.3 * s / b if rising else math.nan,
+                "loq": 10.0 * s / b if rising else math.nan, "source": ICH + why} for r, s, dof, why in routes]
     chosen = next((e for e in entries if e["route"] == declared), entries[0])
     not_shown = [NOT_SHOWN]
+    if not rising:
+        not_shown.append(f"the function's slope at zero, b = {b:.3g}, is not positive: S = b gives no detection "
+                         "or quantitation limit (put the blanks in the fit, or start the range where it rises)")
     if chosen["route"] != declared:
         not_shown.append(f"the declared route {declared} is not available for this second-order function; "
                          f"{chosen['route']} is used in its place")
