@@ -321,3 +321,16 @@ def test_a_matrix_effect_and_a_short_extrapolation_are_verdict_warnings():
     assert standard_additions([block(False, True)]) == []
     whats = [i.what for i in standard_additions([block(True, False)])]
     assert whats == ["matrix effect, s", "standard addition, s"]
+
+
+def test_no_matrix_effect_test_against_a_second_order_external_function():
+    """A second-order external function has no single slope to compare the additions' slope with
+    (its sensitivity b + 2cx changes along the range): the comparison is left out, never made
+    against a straight line forced through curved standards."""
+    from types import SimpleNamespace
+
+    from validate.validation.matrix_effect import _external_fit
+
+    curved = SimpleNamespace(design=SimpleNamespace(second_order=True))
+    assert _external_fit(curved) is None
+    assert _external_fit(SimpleNamespace(design=None)) is None

@@ -64,4 +64,5 @@ class AdditionBlock(RecordPart):
     leverage: Number = described("h0 = 1/n + (x0 - xbar)^2/Sxx at the extrapolated point x0")
     largest_level_leverage: Number = described("the largest leverage of the flasks themselves, for comparison")
     reaches_sample_content: bool = described("the largest addition is at least the sample's own contribution")
-    matrix_effect: MatrixEffect | None = described("null: no external calibration to compare with")
+    matrix_effect: MatrixEffect | None = described(
+        "null: no external straight line to compare with (none, or a second-order calibration function)")

@@ -46,7 +46,13 @@ def _rows(b: dict, reported: dict | None) -> list:
                      f"[{num(m['recovery_low_percent'], 4)}, {num(m['recovery_high_percent'], 4)}] %"))
         rows.append(("matrix effect", coloured(f"t = {num(m['t'], 3)}, ν = {num(m['dof'], 3)}, "
                                                f"{p_equals(m['p_value'])}: {m['verdict']}", not m["significant"])))
+    else:
+        rows.append(("matrix effect", NO_COMPARISON))
     return rows
+
+
+NO_COMPARISON = ("not tested: no external straight line to compare the additions' slope with (none in the "
+                 "method, or a second-order calibration function)")
 
 
 def standard_additions(record: dict) -> list | None:

@@ -88,6 +88,9 @@ def addition_lines(blocks: list[dict] | None) -> list[Printable]:
             lines.append(Line(f"  recovery of sensitivity {m['recovery_percent']:.1f} % "
                               f"[{m['recovery_low_percent']:.1f}, {m['recovery_high_percent']:.1f}] %: "
                               f"[{tone}]{escape(m['verdict'])}[/] (p {p_after(m['p_value'])})", soft_wrap=True))
+        else:
+            lines.append(Line("  matrix effect not tested: no external straight line to compare the additions' "
+                              "slope with", soft_wrap=True))
         if not b["reaches_sample_content"]:
             lines.append(Line("  [yellow]note[/] the largest addition is below the sample's own content: the "
                               "extrapolation is longer than the spiked range", soft_wrap=True))

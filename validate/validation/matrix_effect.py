@@ -39,7 +39,9 @@ def addition_blocks(method: AssayMethod, model: AdditionModel) -> list[dict]:
 
 
 def _external_fit(model: AdditionModel) -> LineFit | None:
-    if model.design is None:
+    """The external straight line; None where there is none, or where the calibration function is
+    second order (its slope is no single sensitivity to compare the additions' slope with)."""
+    if model.design is None or model.design.second_order:
         return None
     return fit_line(*model.design.point_data())
 
