@@ -232,3 +232,24 @@ def test_components_add_up_to_the_means_scatter(noise, m0):
         (m,) = counts
         assert sc.sample_variance(m, 1.0) == pytest.approx(sc.means_sd**2, rel=1e-9)
         assert all(sc.point_term(lv.id, m, 1.0).u == pytest.approx(sc.means_sd, rel=1e-12) for lv in levels)
+
+
+def test_no_scatter_check_against_the_stated_noise_on_a_weighted_line(tmp_path):
+    # On a weighted line the scatter components are on the line's normalised weighted scale
+    # (Miller and Miller 5.10: weights normalised to a mean of 1), not in absorbance: a chi-square
+    # against the photometer's noise in absorbance would compare unlike quantities, so neither
+    # check is made.
+    from conftest import copy_demo
+
+    from validate.validation.block import scatter_checks
+
+    folder = copy_demo(tmp_path)
+    path = edit_text(folder, 'concentration_unit = "µmol/L"', 'concentration_unit = "µmol/L"\nweighting = '
+                     '"variance-function"', count=1)
+    method, model = api.check(path)
+    from validate.model.line import fit_line
+    fit = fit_line(*model.design.point_data())
+    assert scatter_checks(method, model.design, fit) == (None, None)
+    unweighted_method, unweighted = api.check(PHOSPHATE)
+    line, reading = scatter_checks(unweighted_method, unweighted.design, fit_line(*unweighted.design.point_data()))
+    assert line is not None and reading is not None

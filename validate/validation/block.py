@@ -112,7 +112,11 @@ def scatter_checks(method: AssayMethod, design: CalibrationDesign, fit: LineFit)
     """The two consistency checks of item "Validation statistics" in docs/design.md: the pure
     error against the reading noise (None where no solution was read twice or no noise is
     stated), and the scatter of the preparation means about the line against preparation plus
-    reading noise for a mean of m readings (None where nothing is predicted)."""
+    reading noise for a mean of m readings (None where nothing is predicted). On a weighted line
+    both are None: the scatter components are then on the line's normalised weighted scale, not
+    in absorbance, and cannot be set against a stated noise in absorbance."""
+    if design.weighted:
+        return None, None
     prep, noise = predicted_scatter(method, fit.slope)
     sc = design.scatter_components()
     reading = (scatter_consistency(sc.reading_sd, sc.reading_dof, noise, compared=READING_SCATTER)
