@@ -105,3 +105,19 @@ def test_more_readings_of_a_mixture_never_average_the_preparation_away():
     variances = [sc.sample_variance(m, 1.0) for m in (1, 3, 10, 10**6)]
     assert np.all(np.diff(variances) < 0)
     assert variances[-1] == pytest.approx(sc.preparation_sd**2, rel=1e-5)
+
+
+def test_a_series_point_without_reading_scatter_takes_the_stated_noise():
+    # Where no solution was read twice there is no s_r; s_m would carry the preparation a second
+    # time beside the additions' volumes, which stay bottom-up (GUM 4.1: each effect once), so the
+    # point gets no observed term and its readings carry the photometer's stated noise.
+    from validate.model.equilibrium import _series_terms
+    from validate.model.scatter import ScatterComponents
+
+    no_split = ScatterComponents(means_sd=0.002, means_dof=5, reading_sd=None, reading_dof=0,
+                                 preparation_sd=None, mean_inverse_count=1.0)
+    assert _series_terms(no_split, "T.1", 3) is None
+    split = ScatterComponents(means_sd=0.002, means_dof=5, reading_sd=0.0015, reading_dof=10,
+                              preparation_sd=0.001, mean_inverse_count=1 / 3)
+    (term,) = _series_terms(split, "T.1", 3)
+    assert term.label == "reading scatter" and term.u == pytest.approx(0.0015 / math.sqrt(3))

@@ -411,7 +411,9 @@ def _standard_reading(lv: Level, scatter: ScatterComponents | None) -> tuple[tup
 
 def _series_terms(scatter: ScatterComponents | None, ident: str, count: int) -> list[ScatterTerm] | None:
     """An addition-series point's observed scatter: reading scatter s_r/sqrt(m) only (its volumes
-    are carried bottom-up); s_m where no solution was read twice (nothing to split)."""
-    if scatter is None:
+    are carried bottom-up). Where no solution was read twice there is no s_r, and s_m would carry
+    the preparation a second time beside the volumes: None, so the point's readings carry the
+    photometer's stated noise, as bottom-up."""
+    if scatter is None or scatter.reading_sd is None:
         return None
     return scatter.reading_terms(ident, count, 1.0)
