@@ -328,3 +328,27 @@ def test_no_ich_limit_where_the_function_does_not_rise_at_zero():
     lim = second_order_limits(Fit(), None, "ich_residual_sd")
     assert math.isnan(lim["lod"]) and math.isnan(lim["loq"])
     assert any("not positive" in note for note in lim["not_shown"])
+
+
+def test_the_narrower_range_drops_whole_levels_from_the_top():
+    """Independent preparations of one level go together (ISO 8466-1 reads a level as one point of
+    the design, from memory): the narrower straight-line range never keeps one of two preparations
+    of its top level. Invented readings of a line that bends at the top."""
+    from validate.advisor.curvature import largest_linear_range
+    from validate.model.design import CalibrationDesign
+    from validate.model.levels import Level, Preparation
+
+    ys = {1: 0.101, 2: 0.199, 3: 0.302, 4: 0.398, 5: 0.501, 6: 0.560, 7: 0.600}
+    wobble = (0.0, 0.002, -0.001)
+    levels, conc, ids = [], {}, []
+    for c, y in ys.items():
+        preps = []
+        for name in ((f"S{c}", f"S{c}b") if c == 6 else (f"S{c}",)):
+            preps.append(Preparation(name, float(c), tuple(y + d for d in wobble)))
+            conc[name], ids = float(c), [*ids, name]
+        levels.append(Level(f"S{c}", "standard", tuple(preps)))
+    design = CalibrationDesign(tuple(levels), (), False, ())
+    kept = largest_linear_range(design, tuple(ids), conc)
+    assert kept is not None
+    assert ("S6" in kept) == ("S6b" in kept)  # both preparations of level 6, or neither
+    assert "S7" not in kept

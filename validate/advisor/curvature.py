@@ -51,10 +51,12 @@ def _with_standards(standards: tuple[str, ...]) -> Callable[[Method], Method]:
 def largest_linear_range(design: CalibrationDesign, standard_ids: tuple[str, ...],
                          concentration: dict[str, float]) -> tuple[str, ...] | None:
     """The standards of the largest range from the lowest standard up where the straight line passes
-    Mandel's test (blanks kept as the method fits them); None when no such range keeps MIN_LEVELS."""
-    ordered = sorted(standard_ids, key=lambda s: concentration[s])
-    for keep in range(len(ordered) - 1, MIN_LEVELS - 1, -1):
-        kept = set(ordered[:keep])
+    Mandel's test (blanks kept as the method fits them); None when no such range keeps MIN_LEVELS.
+    Whole levels are dropped from the top (independent preparations of one level go together)."""
+    levels = sorted({concentration[s] for s in standard_ids})
+    for keep in range(len(levels) - 1, MIN_LEVELS - 1, -1):
+        top = levels[keep - 1]
+        kept = {s for s in standard_ids if concentration[s] <= top}
         points = [(p.concentration, p.mean, design.weight(lv.id)) for lv, p in design.fitted()
                   if lv.role == "blank" or p.solution in kept]
         xs, ys, ws = (list(v) for v in zip(*points, strict=True))
