@@ -31,7 +31,8 @@ from uncertainties.core import AffineScalarFunc
 from validate.model import backend as mathops
 from validate.model.ice import IceTable, equilibrium_constant
 
-BLOCK = 8192  # trials per block: the arrays of a step stay in a processor's cache (8192 measured fastest)
+BLOCK = 10_000  # trials per block: the arrays of a step stay in a processor's cache; as many as the
+#                 Monte Carlo engine's slice (montecarlo.EVAL_SLICE), so a slice is solved as one block
 CONVERGED = 1e-9  # remaining relative error of K above which a trial's correction has not converged
 STOP = 1e-13  # relative change of K below which a block stops stepping (quadratic convergence:
 #               the next step would change K by less than round-off)
@@ -75,6 +76,14 @@ class Columns:
         return tuple(((m - l_) ** 2, 2.0 * (m + l_), m + l_, 2.0 * m * l_, phi)
                      for m, l_, phi in zip(self.std_M, self.std_L, self.factors, strict=True))
 
+    @cached_property
+    def readings_centred(self) -> tuple:
+        """(total count, mean reading of the standards, each reading's deviation from it): the
+        line's y side, which K does not change (formed once, not at every step)."""
+        total = sum(self.counts)
+        y_mean = _weighted_sum(self.counts, self.std_A) / total
+        return total, y_mean, tuple(y - y_mean for y in self.std_A)
+
     def trials(self) -> int:
         """Number of trials (0 for plain numbers and ufloats)."""
         for col in (self.std_M, self.std_L, self.std_A, self.mix_M, self.mix_L, self.mix_A):
@@ -95,19 +104,19 @@ def standards_line(K, cols: Columns, derivative: bool = False):
     dx/dK = phi x / ((phi K)^2 sqrt(D)) by implicit differentiation, and the weighted
     least-squares line in centred sums (the normal equations, as `line.level_sums`).
     Derivatives are None unless asked for."""
-    total = sum(cols.counts)
+    total, y_mean, dev_y = cols.readings_centred
     xs, dxs = [], []
+    inv_K = 1.0 / K  # shared by every standard without a factor of its own (computed once)
     for diff2, two_sum, total_ml, two_prod, phi in cols.standard_terms:
-        inv_k = 1.0 / (K * phi) if phi != 1.0 else 1.0 / K  # phi: a plain factor per standard
+        inv_k = 1.0 / (K * phi) if phi != 1.0 else inv_K  # phi: a plain factor per standard
         root = mathops.sqrt(diff2 + (two_sum + inv_k) * inv_k)
         x = two_prod / (total_ml + inv_k + root)
         xs.append(x)
         if derivative:
-            dxs.append(phi * (x * inv_k * inv_k / root))
+            dx = x * inv_k * inv_k / root
+            dxs.append(dx if phi == 1.0 else phi * dx)  # phi * dx is dx itself at phi = 1
     x_mean = _weighted_sum(cols.counts, xs) / total
-    y_mean = _weighted_sum(cols.counts, cols.std_A) / total
     dev_x = [x - x_mean for x in xs]
-    dev_y = [y - y_mean for y in cols.std_A]
     sxx = _weighted_sum(cols.counts, [d * d for d in dev_x])
     sxy = _weighted_sum(cols.counts, [d * e for d, e in zip(dev_x, dev_y, strict=True)])
     slope = sxy / sxx
@@ -290,25 +299,34 @@ def _cut(v, s: slice):
 
 
 def _solve_blocks(cols: Columns, n: int, start, limiting_totals, max_steps: int) -> Solved:
-    """Arrays of trials, a block at a time; every output preallocated once."""
+    """Arrays of trials, a block at a time; every output preallocated once (a single block's
+    arrays are returned as they are, without a copy)."""
+    if n <= BLOCK:
+        return _solve_block(cols, slice(0, n), start, limiting_totals, max_steps)
     out = {k: np.empty(n) for k in ("K", "slope", "intercept", "change")}
     mix = [[np.empty(n) for _ in range(4)] for _ in cols.mix_A]
     history: list[float] = []
     for lo in range(0, n, BLOCK):
         s = slice(lo, min(lo + BLOCK, n))
-        part = cols.part(s)
-        first = (naive_start(part, [_cut(v, s) for v in limiting_totals]) if start is None
-                 else _cut(start, s))
-        K, steps, change = _solve_direct(part, np.broadcast_to(np.asarray(first, dtype=float),
-                                                               (s.stop - s.start,)), max_steps)
-        # a trial whose correction has not converged has no defined K: nan, counted by the engine
-        K = np.where(change <= CONVERGED, K, np.nan)
-        slope, intercept, states = states_at(K, part)
-        _store(out, mix, s, (K, slope, intercept, change), states)
-        history = [max(a, b) for a, b in _padded(history, steps)]
+        block = _solve_block(cols, s, start, limiting_totals, max_steps)
+        _store(out, mix, s, (block.K, block.slope, block.intercept, block.change), block.states)
+        history = [max(a, b) for a, b in _padded(history, block.history)]
     history = [h if h > -math.inf else math.nan for h in history]
     states = tuple(IceTable(*arrays) for arrays in mix)
     return Solved(out["K"], out["slope"], out["intercept"], states, history, out["change"])
+
+
+def _solve_block(cols: Columns, s: slice, start, limiting_totals, max_steps: int) -> Solved:
+    """One block of trials (the slice `s` of the columns)."""
+    part = cols.part(s) if (s.start, s.stop) != (0, cols.trials()) else cols
+    first = (naive_start(part, [_cut(v, s) for v in limiting_totals]) if start is None
+             else _cut(start, s))
+    K, steps, change = _solve_direct(part, np.broadcast_to(np.asarray(first, dtype=float),
+                                                           (s.stop - s.start,)), max_steps)
+    # a trial whose correction has not converged has no defined K: nan, counted by the engine
+    K = np.where(change <= CONVERGED, K, np.nan)
+    slope, intercept, states = states_at(K, part)
+    return Solved(K, slope, intercept, states, steps, change)
 
 
 def _store(out: dict, mix: list, s: slice, values: tuple, states) -> None:
