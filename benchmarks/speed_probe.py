@@ -48,8 +48,9 @@ def advisor(method: str, runs: int, confirm: int) -> dict:
     from validate.propagation.linear import propagate
 
     loaded = load_method(method)
-    results = propagate(build_ready_model(loaded)[0])
-    return {"cpu": [_cpu(lambda: advise(loaded, results, seed=1, confirm_with_mc=confirm))
+    model = build_ready_model(loaded)[0]
+    results = propagate(model)  # the run's model and results, handed to the advisor as a run does
+    return {"cpu": [_cpu(lambda: advise(loaded, results, seed=1, confirm_with_mc=confirm, model=model))
                     for _ in range(runs)]}
 
 
