@@ -241,6 +241,49 @@ def _solve_direct(cols: Columns, start, max_steps: int) -> tuple[Any, list, Any]
     return K, history, (float(remaining) if np.ndim(remaining) == 0 else remaining)
 
 
+def _solve_trials(cols: Columns, start, max_steps: int) -> tuple[np.ndarray, list, np.ndarray]:
+    """Newton steps on one block of trials, as `_solve_direct` but each trial on its own: a trial
+    stops when its own last change, or its next change predicted from the last two, is at most
+    STOP (or its change is not a number: it has no K), and the trials still stepping go on
+    without it, on their own columns. So a trial's K does not depend on the other trials of its
+    block, and the one slow trial of a block no longer costs every trial a step. History: the
+    largest relative change per step over the trials that took it."""
+    K = np.array(start, dtype=float)
+    change, previous = np.full(K.size, math.nan), np.full(K.size, math.nan)
+    active: np.ndarray | None = None  # indices of the trials still stepping; None: all of them
+    history: list[float] = []
+    for _ in range(max_steps):
+        K_new, step_change = _step_some(K, cols, active)
+        if active is None:
+            previous, change, K = change, step_change, K_new
+        else:
+            previous[active], change[active], K[active] = change[active], step_change, K_new
+        history.append(_largest(step_change))
+        last = change if active is None else change[active]
+        before = previous if active is None else previous[active]
+        with np.errstate(invalid="ignore"):
+            done = (np.abs(last) <= STOP) | (_predicted(last, before) <= STOP) | ~np.isfinite(last)
+        if done.all():
+            break
+        left = np.flatnonzero(~done)
+        active = left if active is None else active[left]
+    return K, history, np.fmin(np.abs(change), _predicted(change, previous))
+
+
+def _step_some(K: np.ndarray, cols: Columns, active: np.ndarray | None) -> tuple[np.ndarray, np.ndarray]:
+    """(new K, relative change) of the trials `active` (all when None). Few trials step on their
+    own columns (gathered); many step with the whole block (a gather of every column costs more
+    than the few trials' arithmetic it saves), of which theirs are kept: each trial's numbers are
+    the same either way (elementwise arithmetic)."""
+    if active is None or 4 * active.size > K.size:
+        K_new = _step(K, cols)
+        change = (K_new - K) / K_new
+        return (K_new, change) if active is None else (K_new[active], change[active])
+    K_old = K[active]
+    K_new = _step(K_old, cols.part(active))  # type: ignore[arg-type]
+    return K_new, (K_new - K_old) / K_new
+
+
 def _predicted(change, previous):
     """The next step's relative change predicted from the last two (quadratic convergence);
     nan before two steps were taken."""
@@ -321,7 +364,7 @@ def _solve_block(cols: Columns, s: slice, start, limiting_totals, max_steps: int
     part = cols.part(s) if (s.start, s.stop) != (0, cols.trials()) else cols
     first = (naive_start(part, [_cut(v, s) for v in limiting_totals]) if start is None
              else _cut(start, s))
-    K, steps, change = _solve_direct(part, np.broadcast_to(np.asarray(first, dtype=float),
+    K, steps, change = _solve_trials(part, np.broadcast_to(np.asarray(first, dtype=float),
                                                            (s.stop - s.start,)), max_steps)
     # a trial whose correction has not converged has no defined K: nan, counted by the engine
     K = np.where(change <= CONVERGED, K, np.nan)
