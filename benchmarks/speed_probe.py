@@ -19,6 +19,7 @@ and, for the PDF, its size. MEASURE is one of:
 
 from __future__ import annotations
 
+import inspect
 import json
 import sys
 import tempfile
@@ -50,7 +51,8 @@ def advisor(method: str, runs: int, confirm: int) -> dict:
     loaded = load_method(method)
     model = build_ready_model(loaded)[0]
     results = propagate(model)  # the run's model and results, handed to the advisor as a run does
-    return {"cpu": [_cpu(lambda: advise(loaded, results, seed=1, confirm_with_mc=confirm, model=model))
+    given = {"model": model} if "model" in inspect.signature(advise).parameters else {}  # older checkouts
+    return {"cpu": [_cpu(lambda: advise(loaded, results, seed=1, confirm_with_mc=confirm, **given))
                     for _ in range(runs)]}
 
 

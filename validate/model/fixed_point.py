@@ -80,9 +80,12 @@ class Columns:
     def readings_centred(self) -> tuple:
         """(total count, mean reading of the standards, each reading's deviation from it): the
         line's y side, which K does not change (formed once, not at every step)."""
-        total = sum(self.counts)
-        y_mean = _weighted_sum(self.counts, self.std_A) / total
-        return total, y_mean, tuple(y - y_mean for y in self.std_A)
+        return _readings_centred(self)
+
+    @cached_property
+    def linear(self) -> bool:
+        """Whether the columns hold `uncertainties` numbers (the linear engine)."""
+        return self.has_ufloats()
 
     def trials(self) -> int:
         """Number of trials (0 for plain numbers and ufloats)."""
@@ -104,11 +107,14 @@ def standards_line(K, cols: Columns, derivative: bool = False):
     dx/dK = phi x / ((phi K)^2 sqrt(D)) by implicit differentiation, and the weighted
     least-squares line in centred sums (the normal equations, as `line.level_sums`).
     Derivatives are None unless asked for."""
-    total, y_mean, dev_y = cols.readings_centred
+    linear = cols.linear
+    total, y_mean, dev_y = _readings_centred(cols) if linear else cols.readings_centred
     xs, dxs = [], []
-    inv_K = 1.0 / K  # shared by every standard without a factor of its own (computed once)
+    inv_K = None if linear else 1.0 / K  # arrays: shared by every standard without a factor (once)
     for diff2, two_sum, total_ml, two_prod, phi in cols.standard_terms:
-        inv_k = 1.0 / (K * phi) if phi != 1.0 else inv_K  # phi: a plain factor per standard
+        # phi: a plain factor per standard. The linear engine forms every term afresh, as it always
+        # has: a shared intermediate result would change the order of its derivatives' sums
+        inv_k = 1.0 / (K * phi) if phi != 1.0 else (1.0 / K if inv_K is None else inv_K)
         root = mathops.sqrt(diff2 + (two_sum + inv_k) * inv_k)
         x = two_prod / (total_ml + inv_k + root)
         xs.append(x)
@@ -128,6 +134,12 @@ def standards_line(K, cols: Columns, derivative: bool = False):
     d_sxy = _weighted_sum(cols.counts, [dx * e for dx, e in zip(dxs, dev_y, strict=True)])
     d_slope = (d_sxy - slope * d_sxx) / sxx
     return slope, intercept, d_slope, -(d_slope * x_mean + slope * d_mean)
+
+
+def _readings_centred(cols: Columns) -> tuple:
+    total = sum(cols.counts)
+    y_mean = _weighted_sum(cols.counts, cols.std_A) / total
+    return total, y_mean, tuple(y - y_mean for y in cols.std_A)
 
 
 def _weighted_sum(counts, values):
