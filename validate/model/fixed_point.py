@@ -34,7 +34,7 @@ from validate.model.ice import IceTable, equilibrium_constant
 BLOCK = 10_000  # trials per block: the arrays of a step stay in a processor's cache; as many as the
 #                 Monte Carlo engine's slice (montecarlo.EVAL_SLICE), so a slice is solved as one block
 CONVERGED = 1e-9  # remaining relative error of K above which a trial's correction has not converged
-STOP = 1e-13  # relative change of K below which a block stops stepping (quadratic convergence:
+STOP = 1e-13  # relative change of K below which a trial stops stepping (quadratic convergence:
 #               the next step would change K by less than round-off)
 
 
@@ -227,8 +227,9 @@ class Solved:
 
 
 def _solve_direct(cols: Columns, start, max_steps: int) -> tuple[Any, list, Any]:
-    """Newton steps on floats or one block of trials until the next step is predicted to change
-    K by less than STOP (relative) for every trial, or `max_steps` were taken:
+    """Newton steps on floats (or arrays, stepping all trials alike; blocks of trials go to
+    `_solve_trials`) until the next step is predicted to change K by less than STOP
+    (relative) for every trial, or `max_steps` were taken:
     (K, history of the largest relative change per step, remaining relative error per trial).
     Quadratic convergence, d_(n+1) ~ C d_n^2, predicts the next change from the last two as
     d_n^3 / d_(n-1)^2; the remaining error is that prediction, or the last change when smaller
