@@ -19,6 +19,7 @@ and, for the PDF, its size. MEASURE is one of:
 
 from __future__ import annotations
 
+import inspect
 import json
 import sys
 import tempfile
@@ -48,8 +49,10 @@ def advisor(method: str, runs: int, confirm: int) -> dict:
     from validate.propagation.linear import propagate
 
     loaded = load_method(method)
-    results = propagate(build_ready_model(loaded)[0])
-    return {"cpu": [_cpu(lambda: advise(loaded, results, seed=1, confirm_with_mc=confirm))
+    model = build_ready_model(loaded)[0]
+    results = propagate(model)  # the run's model and results, handed to the advisor as a run does
+    given = {"model": model} if "model" in inspect.signature(advise).parameters else {}  # older checkouts
+    return {"cpu": [_cpu(lambda: advise(loaded, results, seed=1, confirm_with_mc=confirm, **given))
                     for _ in range(runs)]}
 
 

@@ -341,3 +341,11 @@ def test_equilibrium_study_is_judged_by_its_combined_K(nickel_demo):
     kinds = {a.kind: a for a in report.items}
     assert "more point readings" in kinds
     assert kinds["more point readings"].expanded_uncertainty_after < report.expanded_uncertainty_before
+
+
+def test_the_runs_model_handed_in_gives_the_same_advice(demo, demo_report):
+    # a run hands the advisor the model it already built (not built again): the report, Monte
+    # Carlo check included, is the one the advisor gives when it builds the model itself
+    model = build_model(demo)
+    handed = advise(demo, propagate(model), confirm_with_mc=2, mc_trials=20_000, seed=7, model=model)
+    assert handed.to_dict() == demo_report.to_dict()

@@ -110,6 +110,21 @@ def test_trials_at_the_estimates_agree_with_the_linear_engine(nickel_demo):
         np.testing.assert_allclose(out[r.name], r.value, rtol=1e-12, err_msg=r.name)
 
 
+def test_a_trials_K_does_not_depend_on_the_other_trials_of_its_block(nickel_demo):
+    # each trial steps until its own change is settled (fixed_point._solve_trials): the K of a trial
+    # solved among 3000 others is bit for bit the K it gets solved alone, or among a few others
+    model = nickel_demo.model
+    draws = draw_many(list(model.sources.values()), 3000, np.random.default_rng(11))
+    with np.errstate(invalid="ignore", divide="ignore"):
+        together = model.correction_K(draws)
+        some = [0, 17, 1234, 2999]
+        few = model.correction_K({k: v[some] for k, v in draws.items()})
+        alone = [model.correction_K({k: v[i:i + 1] for k, v in draws.items()})[0] for i in some]
+    np.testing.assert_array_equal(few, together[some])
+    np.testing.assert_array_equal(alone, together[some])
+    assert np.isfinite(together).mean() > 0.99
+
+
 @pytest.mark.parametrize("K", [30.0, 850.0, 2.0e4])
 def test_newton_agrees_with_the_plain_iteration(K):
     # invented study with M in excess: Newton's fixed point and that of K <- F(K) run to

@@ -190,11 +190,13 @@ def _strip_seed(results) -> list[dict]:
     return [r.to_dict() for r in results]
 
 
-@pytest.mark.parametrize(("kept_bytes", "growth"), [(8 * 3 * 5_000, 1), (8 * 50_000, 10)])
+@pytest.mark.parametrize(("kept_bytes", "growth"), [(8 * 3 * 5_000, 1), (8 * 50_000, 10), (8 * 4 * 5_000, 4)])
 def test_results_in_memory_groups_equal_one_pass(monkeypatch, kept_bytes, growth):
     # Room for three results' values (no trials added), or for all of them at the trials asked
-    # but for one only at the clause 8 budget: the results then run in groups, each on the same
-    # random stream; the record must be the same, number for number, as one pass for all.
+    # but for one only at the clause 8 budget, or for four at the trials asked (two groups, the
+    # first group's undecided results waiting for the second's to get their added trials
+    # together): the results then run in groups, each on the same random stream; the record
+    # must be the same, number for number, as one pass for all.
     from validate.propagation import montecarlo as mc
 
     monkeypatch.setattr(mc, "CHECK_GROWTH", growth)

@@ -287,10 +287,12 @@ SOURCES = (
 
 
 def advise(method: Method, results: list[LinearResult] | None = None, *, confirm_with_mc: int = 3,
-           mc_trials: int = 50_000, seed: int = 1, combine: int = 3) -> AdviceReport:
+           mc_trials: int = 50_000, seed: int = 1, combine: int = 3,
+           model: Model | None = None) -> AdviceReport:
     """Ranked changes that lower the expanded uncertainty, the best few confirmed by Monte Carlo,
-    and the best `combine` (two or three) together as `combined`."""
-    baseline = build_ready_model(method)[0]
+    and the best `combine` (two or three) together as `combined`. `model`: the method's model
+    ready for propagation (`build_ready_model`), when the caller has it already (not built again)."""
+    baseline = build_ready_model(method)[0] if model is None else model
     results = propagate(baseline) if results is None else results
     target, unit, before = figure(results)
     evaluated, skipped = _evaluate_all(method, results)

@@ -9,6 +9,7 @@ on the argument's type so model code never has to know which engine runs it.
 from __future__ import annotations
 
 import math
+from typing import Any
 
 import numpy as np
 from uncertainties import umath
@@ -73,21 +74,31 @@ def _flat_derivatives(x: AffineScalarFunc) -> dict:
     package's own expansion walks it once per path. Reads the package's
     `LinearCombination` form (uncertainties 3.x, pinned in pyproject.toml): a node
     holds either an expanded {Variable: coefficient} dict or (coefficient, node) pairs.
+    Nodes have no equality of their own (identity is their hash), and the variables are
+    keyed by id() (their own hash is id() in Python code) while summing; the sums run in
+    the same order either way, so the numbers are the same.
     """
     root = x._linear_part
-    if root.expanded():
+    if isinstance(root.linear_combo, dict):
         return dict(root.linear_combo)
-    weight = {id(root): 1.0}
-    flat: dict = {}
+    weight = {root: 1.0}
+    flat: dict[int, float] = {}
+    variables: dict[int, Any] = {}
     for node in _parents_first(root):
-        w = weight[id(node)]
-        if node.expanded():
-            for var, d in node.linear_combo.items():
-                flat[var] = flat.get(var, 0.0) + w * d
+        w = weight[node]
+        combo = node.linear_combo
+        if isinstance(combo, dict):
+            for var, d in combo.items():
+                key = id(var)
+                if key in flat:
+                    flat[key] += w * d
+                else:
+                    flat[key] = 0.0 + w * d
+                    variables[key] = var
         else:
-            for factor, child in node.linear_combo:
-                weight[id(child)] = weight.get(id(child), 0.0) + w * factor
-    return flat
+            for factor, child in combo:
+                weight[child] = weight.get(child, 0.0) + w * factor
+    return {variables[key]: value for key, value in flat.items()}
 
 
 def _parents_first(root) -> list:
@@ -95,17 +106,19 @@ def _parents_first(root) -> list:
     (reversed depth-first post-order, a topological order of a graph without cycles)."""
     order, seen = [], set()
     stack = [(root, False)]
+    pop, push = stack.pop, stack.append
     while stack:
-        node, finished = stack.pop()
+        node, finished = pop()
         if finished:
             order.append(node)
             continue
-        if id(node) in seen:
+        if node in seen:
             continue
-        seen.add(id(node))
-        stack.append((node, True))
-        if not node.expanded():
-            stack.extend((child, False) for _, child in node.linear_combo if id(child) not in seen)
+        seen.add(node)
+        push((node, True))
+        combo = node.linear_combo
+        if not isinstance(combo, dict):
+            stack.extend((child, False) for _, child in combo if child not in seen)
     order.reverse()
     return order
 

@@ -160,7 +160,9 @@ class EquilibriumModel(SolutionInputs):
     def evaluate(self, x) -> dict:
         factor = self.study.k_unit.factor
         to_stated = self.temperature_factor(x)
-        ks = [positive_or_nan(state.K) * to_stated for state in self.ice_tables(x)]
+        ks = [positive_or_nan(state.K) for state in self.ice_tables(x)]
+        if not (isinstance(to_stated, float) and to_stated == 1.0 and all(isinstance(k, np.ndarray) for k in ks)):
+            ks = [k * to_stated for k in ks]  # (trials times 1.0 are the trials: no pass over them)
         out = {f"K, {p}": k / factor for p, k in zip(self.points, ks, strict=True)}
         if self.weights is not None:
             kept = [(w, k) for p, w, k in zip(self.points, self.weights, ks, strict=True) if p not in self.excluded]

@@ -31,9 +31,10 @@ from uncertainties.core import AffineScalarFunc
 from validate.model import backend as mathops
 from validate.model.ice import IceTable, equilibrium_constant
 
-BLOCK = 8192  # trials per block: the arrays of a step stay in a processor's cache (8192 measured fastest)
+BLOCK = 10_000  # trials per block: the arrays of a step stay in a processor's cache; as many as the
+#                 Monte Carlo engine's slice (montecarlo.EVAL_SLICE), so a slice is solved as one block
 CONVERGED = 1e-9  # remaining relative error of K above which a trial's correction has not converged
-STOP = 1e-13  # relative change of K below which a block stops stepping (quadratic convergence:
+STOP = 1e-13  # relative change of K below which a trial stops stepping (quadratic convergence:
 #               the next step would change K by less than round-off)
 
 
@@ -75,6 +76,17 @@ class Columns:
         return tuple(((m - l_) ** 2, 2.0 * (m + l_), m + l_, 2.0 * m * l_, phi)
                      for m, l_, phi in zip(self.std_M, self.std_L, self.factors, strict=True))
 
+    @cached_property
+    def readings_centred(self) -> tuple:
+        """(total count, mean reading of the standards, each reading's deviation from it): the
+        line's y side, which K does not change (formed once, not at every step)."""
+        return _readings_centred(self)
+
+    @cached_property
+    def linear(self) -> bool:
+        """Whether the columns hold `uncertainties` numbers (the linear engine)."""
+        return self.has_ufloats()
+
     def trials(self) -> int:
         """Number of trials (0 for plain numbers and ufloats)."""
         for col in (self.std_M, self.std_L, self.std_A, self.mix_M, self.mix_L, self.mix_A):
@@ -95,19 +107,22 @@ def standards_line(K, cols: Columns, derivative: bool = False):
     dx/dK = phi x / ((phi K)^2 sqrt(D)) by implicit differentiation, and the weighted
     least-squares line in centred sums (the normal equations, as `line.level_sums`).
     Derivatives are None unless asked for."""
-    total = sum(cols.counts)
+    linear = cols.linear
+    total, y_mean, dev_y = _readings_centred(cols) if linear else cols.readings_centred
     xs, dxs = [], []
+    inv_K = None if linear else 1.0 / K  # arrays: shared by every standard without a factor (once)
     for diff2, two_sum, total_ml, two_prod, phi in cols.standard_terms:
-        inv_k = 1.0 / (K * phi) if phi != 1.0 else 1.0 / K  # phi: a plain factor per standard
+        # phi: a plain factor per standard. The linear engine forms every term afresh, as it always
+        # has: a shared intermediate result would change the order of its derivatives' sums
+        inv_k = 1.0 / (K * phi) if phi != 1.0 else (1.0 / K if inv_K is None else inv_K)
         root = mathops.sqrt(diff2 + (two_sum + inv_k) * inv_k)
         x = two_prod / (total_ml + inv_k + root)
         xs.append(x)
         if derivative:
-            dxs.append(phi * (x * inv_k * inv_k / root))
+            dx = x * inv_k * inv_k / root
+            dxs.append(dx if phi == 1.0 else phi * dx)  # phi * dx is dx itself at phi = 1
     x_mean = _weighted_sum(cols.counts, xs) / total
-    y_mean = _weighted_sum(cols.counts, cols.std_A) / total
     dev_x = [x - x_mean for x in xs]
-    dev_y = [y - y_mean for y in cols.std_A]
     sxx = _weighted_sum(cols.counts, [d * d for d in dev_x])
     sxy = _weighted_sum(cols.counts, [d * e for d, e in zip(dev_x, dev_y, strict=True)])
     slope = sxy / sxx
@@ -119,6 +134,12 @@ def standards_line(K, cols: Columns, derivative: bool = False):
     d_sxy = _weighted_sum(cols.counts, [dx * e for dx, e in zip(dxs, dev_y, strict=True)])
     d_slope = (d_sxy - slope * d_sxx) / sxx
     return slope, intercept, d_slope, -(d_slope * x_mean + slope * d_mean)
+
+
+def _readings_centred(cols: Columns) -> tuple:
+    total = sum(cols.counts)
+    y_mean = _weighted_sum(cols.counts, cols.std_A) / total
+    return total, y_mean, tuple(y - y_mean for y in cols.std_A)
 
 
 def _weighted_sum(counts, values):
@@ -206,8 +227,9 @@ class Solved:
 
 
 def _solve_direct(cols: Columns, start, max_steps: int) -> tuple[Any, list, Any]:
-    """Newton steps on floats or one block of trials until the next step is predicted to change
-    K by less than STOP (relative) for every trial, or `max_steps` were taken:
+    """Newton steps on floats (or arrays, stepping all trials alike; blocks of trials go to
+    `_solve_trials`) until the next step is predicted to change K by less than STOP
+    (relative) for every trial, or `max_steps` were taken:
     (K, history of the largest relative change per step, remaining relative error per trial).
     Quadratic convergence, d_(n+1) ~ C d_n^2, predicts the next change from the last two as
     d_n^3 / d_(n-1)^2; the remaining error is that prediction, or the last change when smaller
@@ -230,6 +252,49 @@ def _solve_direct(cols: Columns, start, max_steps: int) -> tuple[Any, list, Any]
             break
     remaining = np.fmin(np.abs(np.asarray(change, dtype=float)), _predicted(change, previous))
     return K, history, (float(remaining) if np.ndim(remaining) == 0 else remaining)
+
+
+def _solve_trials(cols: Columns, start, max_steps: int) -> tuple[np.ndarray, list, np.ndarray]:
+    """Newton steps on one block of trials, as `_solve_direct` but each trial on its own: a trial
+    stops when its own last change, or its next change predicted from the last two, is at most
+    STOP (or its change is not a number: it has no K), and the trials still stepping go on
+    without it, on their own columns. So a trial's K does not depend on the other trials of its
+    block, and the one slow trial of a block no longer costs every trial a step. History: the
+    largest relative change per step over the trials that took it."""
+    K = np.array(start, dtype=float)
+    change, previous = np.full(K.size, math.nan), np.full(K.size, math.nan)
+    active: np.ndarray | None = None  # indices of the trials still stepping; None: all of them
+    history: list[float] = []
+    for _ in range(max_steps):
+        K_new, step_change = _step_some(K, cols, active)
+        if active is None:
+            previous, change, K = change, step_change, K_new
+        else:
+            previous[active], change[active], K[active] = change[active], step_change, K_new
+        history.append(_largest(step_change))
+        last = change if active is None else change[active]
+        before = previous if active is None else previous[active]
+        with np.errstate(invalid="ignore"):
+            done = (np.abs(last) <= STOP) | (_predicted(last, before) <= STOP) | ~np.isfinite(last)
+        if done.all():
+            break
+        left = np.flatnonzero(~done)
+        active = left if active is None else active[left]
+    return K, history, np.fmin(np.abs(change), _predicted(change, previous))
+
+
+def _step_some(K: np.ndarray, cols: Columns, active: np.ndarray | None) -> tuple[np.ndarray, np.ndarray]:
+    """(new K, relative change) of the trials `active` (all when None). Few trials step on their
+    own columns (gathered); many step with the whole block (a gather of every column costs more
+    than the few trials' arithmetic it saves), of which theirs are kept: each trial's numbers are
+    the same either way (elementwise arithmetic)."""
+    if active is None or 4 * active.size > K.size:
+        K_new = _step(K, cols)
+        change = (K_new - K) / K_new
+        return (K_new, change) if active is None else (K_new[active], change[active])
+    K_old = K[active]
+    K_new = _step(K_old, cols.part(active))  # type: ignore[arg-type]
+    return K_new, (K_new - K_old) / K_new
 
 
 def _predicted(change, previous):
@@ -290,25 +355,34 @@ def _cut(v, s: slice):
 
 
 def _solve_blocks(cols: Columns, n: int, start, limiting_totals, max_steps: int) -> Solved:
-    """Arrays of trials, a block at a time; every output preallocated once."""
+    """Arrays of trials, a block at a time; every output preallocated once (a single block's
+    arrays are returned as they are, without a copy)."""
+    if n <= BLOCK:
+        return _solve_block(cols, slice(0, n), start, limiting_totals, max_steps)
     out = {k: np.empty(n) for k in ("K", "slope", "intercept", "change")}
     mix = [[np.empty(n) for _ in range(4)] for _ in cols.mix_A]
     history: list[float] = []
     for lo in range(0, n, BLOCK):
         s = slice(lo, min(lo + BLOCK, n))
-        part = cols.part(s)
-        first = (naive_start(part, [_cut(v, s) for v in limiting_totals]) if start is None
-                 else _cut(start, s))
-        K, steps, change = _solve_direct(part, np.broadcast_to(np.asarray(first, dtype=float),
-                                                               (s.stop - s.start,)), max_steps)
-        # a trial whose correction has not converged has no defined K: nan, counted by the engine
-        K = np.where(change <= CONVERGED, K, np.nan)
-        slope, intercept, states = states_at(K, part)
-        _store(out, mix, s, (K, slope, intercept, change), states)
-        history = [max(a, b) for a, b in _padded(history, steps)]
+        block = _solve_block(cols, s, start, limiting_totals, max_steps)
+        _store(out, mix, s, (block.K, block.slope, block.intercept, block.change), block.states)
+        history = [max(a, b) for a, b in _padded(history, block.history)]
     history = [h if h > -math.inf else math.nan for h in history]
     states = tuple(IceTable(*arrays) for arrays in mix)
     return Solved(out["K"], out["slope"], out["intercept"], states, history, out["change"])
+
+
+def _solve_block(cols: Columns, s: slice, start, limiting_totals, max_steps: int) -> Solved:
+    """One block of trials (the slice `s` of the columns)."""
+    part = cols.part(s) if (s.start, s.stop) != (0, cols.trials()) else cols
+    first = (naive_start(part, [_cut(v, s) for v in limiting_totals]) if start is None
+             else _cut(start, s))
+    K, steps, change = _solve_trials(part, np.broadcast_to(np.asarray(first, dtype=float),
+                                                           (s.stop - s.start,)), max_steps)
+    # a trial whose correction has not converged has no defined K: nan, counted by the engine
+    K = np.where(change <= CONVERGED, K, np.nan)
+    slope, intercept, states = states_at(K, part)
+    return Solved(K, slope, intercept, states, steps, change)
 
 
 def _store(out: dict, mix: list, s: slice, values: tuple, states) -> None:

@@ -286,17 +286,32 @@ def _run_fixed(model: Model, gums: dict[str, LinearResult], trials: int, seed: i
                progress) -> dict[str, _Final]:
     """Every output's statistics, run in groups of outputs that fit in memory; each group runs on
     the same random stream (default_rng(seed)), so the groups see the same trials. A group's
-    values are dropped once its statistics are formed."""
+    settled outputs are summarised and dropped at once; its open ones (JCGM 101 8.2 undecided)
+    wait, as long as they fit in memory beside the next group, and are given their further
+    trials together (`_extend`: one draw of the more trials for all of them, not one per group;
+    every output sees the same trials either way)."""
     final: dict[str, _Final] = {}
+    waiting: dict[str, _Kept] = {}
+    rng = np.random.default_rng(seed)
     for group in _label_groups(list(gums), trials):
+        if waiting and 8 * trials * (len(waiting) + len(group)) > MAX_KEPT_BYTES:
+            _finish(model, gums, waiting, final, trials, p, rng, progress)
         rng = np.random.default_rng(seed)
         values = _fixed(model, trials, rng, progress, group)
         in_group = {name: _Kept.of(gums[name], values.pop(name), p) for name in group}
         settled = [name for name, k in in_group.items() if k.check.settled]
         final.update({name: _Final.of(in_group.pop(name), p) for name in settled})  # dropped before more trials
-        _extend(model, gums, in_group, trials, p, rng, progress)
-        final.update({name: _Final.of(in_group.pop(name), p) for name in list(in_group)})
-    return final
+        waiting.update(in_group)
+    _finish(model, gums, waiting, final, trials, p, rng, progress)
+    return {name: final[name] for name in gums}
+
+
+def _finish(model: Model, gums: dict[str, LinearResult], waiting: dict[str, _Kept], final: dict[str, _Final],
+            trials: int, p: float, rng, progress) -> None:
+    """The waiting outputs extended together from the stream's state after `trials` trials (the
+    same after every group), summarised into `final` and dropped."""
+    _extend(model, gums, waiting, trials, p, rng, progress)
+    final.update({name: _Final.of(waiting.pop(name), p) for name in list(waiting)})
 
 
 def _extend(model: Model, gums: dict[str, LinearResult], kept: dict[str, _Kept], total: int, p: float, rng,

@@ -71,7 +71,7 @@ def analyse(path, trials: int | str | None = 1_000_000, seed: int | None = None,
     if advice:
         from validate.advisor.advice import advise
         run.advice = advise(method, results, seed=run.seed if run.seed is not None else 1,
-                            confirm_with_mc=3 if trials else 0)
+                            confirm_with_mc=3 if trials else 0, model=model)
     record = build_record(method, model, results, run.monte_carlo, combination=combination,
                           advice=run.advice, trials=run.trials, seed=run.seed)
     run.set_record(with_stored_names(record))
