@@ -12,8 +12,9 @@ between-laboratory terms):
 
 A sample read m0 times then has u^2(y0) = u_p^2 + s_r^2/m0: more readings lower the reading
 part only, and the preparation scatter never averages away. It is carried as s_m scaled to m0,
-with s_m's N - 2 degrees of freedom (u_p alone, a difference of two variances, has fewer). On a weighted line every sum
-carries the solution's weight, so the components are on the line's weighted scale.
+with s_m's N - 2 degrees of freedom (u_p alone, a difference of two variances, has fewer). On
+a weighted line every sum carries the solution's weight, so the components are on the line's
+weighted scale.
 """
 
 from __future__ import annotations
