@@ -308,30 +308,36 @@ def _run_fixed(model: Model, gums: dict[str, LinearResult], trials: int, seed: i
 
 def _finish(model: Model, gums: dict[str, LinearResult], waiting: dict[str, _Kept], final: dict[str, _Final],
             trials: int, p: float, rng, progress) -> None:
-    """The waiting outputs extended together from the stream's state after `trials` trials (the
-    same after every group), summarised into `final` and dropped."""
-    _extend(model, gums, waiting, trials, p, rng, progress)
-    final.update({name: _Final.of(waiting.pop(name), p) for name in list(waiting)})
+    """The waiting outputs extended from the stream's state after `trials` trials (the same after
+    every group), summarised into `final` and dropped."""
+    _extend(model, gums, waiting, trials, p, rng, progress, final)
 
 
 def _extend(model: Model, gums: dict[str, LinearResult], kept: dict[str, _Kept], total: int, p: float, rng,
-            progress) -> None:
+            progress, final: dict[str, _Final]) -> None:
     """JCGM 101 8.2: rounds of more trials, on the same random stream, for the outputs whose
     comparison is undecided or not yet known to delta/5; each round adds as many trials as were
-    run so far, up to the budget. A round whose open outputs do not fit in memory together runs
-    in groups, each from the stream's state at the round's start, so every output sees the same
-    trials whatever its group. Updates `kept`."""
+    run so far, up to the budget. The open outputs run in groups that fit in memory at the full
+    budget, each group through all its rounds from the stream's state after `total` trials (the
+    draws do not depend on which outputs are evaluated, so every output sees the same trials
+    whatever its group); a group's outputs are summarised into `final` and dropped before the
+    next group starts, so the values held stay within MAX_KEPT_BYTES beside the waiting ones.
+    Every output of `kept` ends in `final`."""
     budget = min(MAX_CHECK_TRIALS, CHECK_GROWTH * total)
-    while True:
-        open_ = [name for name, k in kept.items() if not k.check.settled]
-        more = min(total, budget - total)
-        if not open_ or more <= 0:
-            return
-        state = rng.bit_generator.state
-        for group in _label_groups(open_, total + more):
-            rng.bit_generator.state = state
-            _one_round(model, gums, kept, group, more, p, rng, progress)
-        total += more
+    start = rng.bit_generator.state
+    for name in [name for name, k in kept.items() if k.check.settled]:
+        final[name] = _Final.of(kept.pop(name), p)
+    for group in _label_groups(list(kept), budget) if kept else []:
+        rng.bit_generator.state = start
+        done = total
+        while True:
+            open_ = [name for name in group if not kept[name].check.settled]
+            more = min(done, budget - done)
+            if not open_ or more <= 0:
+                break
+            _one_round(model, gums, kept, open_, more, p, rng, progress)
+            done += more
+        final.update({name: _Final.of(kept.pop(name), p) for name in group})
 
 
 def _one_round(model: Model, gums: dict[str, LinearResult], kept: dict[str, _Kept], group: list[str], more: int,
@@ -381,8 +387,8 @@ def propagate_mc(model: Model, linear: list[LinearResult], trials: int | str = 1
         rng = np.random.default_rng(seed)
         values, checks = _adaptive(model, p, rng, progress)
         kept = {name: _Kept.of(gum, values.pop(name), p) for name, gum in gums.items()}
-        _extend(model, gums, kept, min(k.values.size + k.invalid for k in kept.values()), p, rng, progress)
-        final = {name: _Final.of(kept.pop(name), p) for name in gums}
+        final: dict[str, _Final] = {}
+        _extend(model, gums, kept, min(k.values.size + k.invalid for k in kept.values()), p, rng, progress, final)
     else:
         final = _run_fixed(model, gums, int(trials), seed, p, progress)
     by = _shares(model, seed + 1, ("step", "equipment"), progress, share_trials(trials)) if shares else {}
