@@ -31,7 +31,7 @@ from validate.model.errors import evaluate_formula
 from validate.model.keys import ResultKey
 from validate.model.line import fit_line, inverse_prediction, straight_line
 from validate.model.photometry import reading_correction
-from validate.model.quadratic import fit_quadratic, quadratic_coefficients, quadratic_inverse_prediction, rising_root
+from validate.model.quadratic import quadratic_coefficients, quadratic_inverse_prediction, rising_root
 from validate.model.scatter import LINE_GROUP, ScatterComponents, ScatterTerm
 
 
@@ -132,7 +132,7 @@ class Model(SolutionInputs):
         evaluation's line, or its second-order function's root on the rising branch (ISO 8466-2)."""
         if self._design().second_order:
             a, b, c = self.second_order(x, conc)
-            rising = fit_quadratic(*self._design().point_data()).coefficients[1] > 0  # form from the estimates, once
+            rising = self._design().quadratic_fit().coefficients[1] > 0  # form from the estimates, once
             return [(smp.id, rising_root(a, b, c, self._reading_terms[smp.id](x), rising))
                     for smp in self._design().samples]
         intercept, slope = self.line(x, conc)
@@ -375,7 +375,7 @@ def _observed_scatter(design: CalibrationDesign, samples) -> ScatterComponents:
 def _check_real_roots(design: CalibrationDesign, samples, scatter: ScatterComponents) -> None:
     """Every sample's mean response must have a real root of the second-order function (a response
     above the function's maximum has none): a data problem, ModelError (exit 3)."""
-    fit = fit_quadratic(*design.point_data())
+    fit = design.quadratic_fit()
     for smp in samples:
         read = design.sample(smp.id)
         pred = quadratic_inverse_prediction(fit, read.readings, sample_weight=design.weight(smp.id),

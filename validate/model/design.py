@@ -137,8 +137,11 @@ class CalibrationDesign:
     def function_fit(self, factor: float = 1.0) -> LineFit | QuadraticFit:
         """The calibration function (straight line or second order) fitted to the preparations'
         means at the estimates, with its statistics."""
-        data = self.point_data(factor)
-        return fit_quadratic(*data) if self.second_order else fit_line(*data)
+        return self.quadratic_fit(factor) if self.second_order else fit_line(*self.point_data(factor))
+
+    def quadratic_fit(self, factor: float = 1.0) -> QuadraticFit:
+        """The second-order function fitted to the preparations' means at the estimates."""
+        return fit_quadratic(*self.point_data(factor))
 
     def scatter_components(self) -> ScatterComponents:
         """Reading and preparation scatter of the line at the estimates (see validate.model.scatter)."""
@@ -313,7 +316,7 @@ def _check_second_order(method: Method, design: CalibrationDesign, levels: list[
                          where="[calibration].standards",
                          fix='add standards (ISO 8466-2 asks for about 10 levels, from memory), or use '
                              'function = "straight line"')
-    fit = fit_quadratic(*design.point_data(unit.factor))
+    fit = design.quadratic_fit(unit.factor)
     slopes = fit.slope_at([levels[0], levels[-1]])
     if not (slopes[0] > 0 and slopes[1] > 0):
         a, b, c = fit.coefficients

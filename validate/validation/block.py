@@ -19,7 +19,7 @@ from validate.model.assay import Model, build_model
 from validate.model.design import CalibrationDesign
 from validate.model.equilibrium import EquilibriumModel
 from validate.model.line import LineFit, fit_line, inverse_prediction
-from validate.model.quadratic import QuadraticFit, fit_quadratic, rising_root
+from validate.model.quadratic import QuadraticFit, rising_root
 from validate.propagation.linear import LinearResult
 from validate.validation.criteria import STUDY_CRITERIA, evaluate_criteria
 from validate.validation.limits import SampleReadings, range_flags
@@ -231,7 +231,7 @@ def validation_block(method: AssayMethod, model: Model, results: list[LinearResu
     window = absorbance_window_flags(design.every_reading(), *v.window)
     # a second-order function: readings in concentration off it, its own residual scatter (N - 3) and
     # criteria values (validation.second_order)
-    so_fit = fit_quadratic(*design.point_data(cal.concentration_unit.factor)) if design.second_order else None
+    so_fit = design.quadratic_fit(cal.concentration_unit.factor) if design.second_order else None
     read_off = so_fit or fit
     rep_groups = [group for s in design.samples
                   for group in within_series_groups(_in_concentration(read_off, s.readings), s.series)

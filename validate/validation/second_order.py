@@ -74,7 +74,7 @@ def second_order_block(method: Method, design: CalibrationDesign) -> dict | None
     if cal is None or not design.second_order:
         return None
     factor = cal.concentration_unit.factor
-    fit = fit_quadratic(*design.point_data(factor))
+    fit = design.quadratic_fit(factor)
     a, b, c = fit.coefficients
     lo, hi = min(x for x in fit.x if x > 0), max(fit.x)
     return plain({
@@ -98,7 +98,7 @@ def second_order_sample_entries(design: CalibrationDesign, factor: float, declar
                                 highest: float) -> tuple[dict, dict]:
     """The validation block's samples and range flags for a second-order function (calibration unit):
     the straight line's LOD/LOQ do not apply, the function's own declared route does."""
-    fit = fit_quadratic(*design.point_data(factor))
+    fit = design.quadratic_fit(factor)
     limits = second_order_limits(fit, design.blank_readings() or None, declared)
     samples, flags = {}, {}
     for row, smp in zip(second_order_samples(design, fit), design.samples, strict=True):
@@ -179,7 +179,7 @@ def second_order_observed(design: CalibrationDesign, factor: float, declared: st
     """The acceptance criteria's observed values for a second-order function: r^2, the largest relative
     residual and the LOQ of the function, and for the linearity criterion the adequacy test above (the
     straight line's tests showed the curvature the function is chosen for)."""
-    fit = fit_quadratic(*design.point_data(factor))
+    fit = design.quadratic_fit(factor)
     predicted = fit.predict(fit.x)
     rel = [abs(r / p) for x, r, p in zip(fit.x, fit.residuals(), predicted, strict=True) if x > 0 and p != 0]
     limits = second_order_limits(fit, design.blank_readings() or None, declared)
@@ -195,7 +195,7 @@ def with_second_order_limits(summary, design: CalibrationDesign, factor: float, 
 
     from validate.validation.limits import LimitRoute, _disagreements
 
-    fit = fit_quadratic(*design.point_data(factor))
+    fit = design.quadratic_fit(factor)
     lim = second_order_limits(fit, design.blank_readings() or None, declared)
     routes = tuple(LimitRoute(r["route"], r["sigma"], r["sigma_dof"], r["lod"], r["loq"], r["source"])
                    for r in lim["routes"])
