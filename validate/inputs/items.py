@@ -76,7 +76,7 @@ class Photometer(ItemCommon):
     gain: float = 0.0  # relative half-width of the photometric scale, shared by every reading
     drift: float = 0.0  # absorbance half-width of the change between standards and samples
     drift_basis: str = ""  # how the drift was found, in words (stated, or a check standard's readings)
-    stray_light: float = 0.0  # stray-light ratio, half-width (a fraction of the incident light)
+    stray_light: float = 0.0  # largest stray-light ratio s_max: s in [0, s_max] (a fraction of the incident light)
 
 
 LINEARITY_CORRELATIONS = ("independent", "shared")

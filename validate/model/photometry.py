@@ -27,7 +27,7 @@ import math
 from validate.inputs.items import Photometer
 from validate.inputs.schema import AssayMethod, EquilibriumMethod, Method
 from validate.metrology.equipment import SourceSet
-from validate.metrology.sources import rectangular
+from validate.metrology.sources import Source, rectangular
 from validate.model import backend
 
 LN10 = math.log(10.0)
@@ -51,6 +51,23 @@ def true_absorbance(a_read, stray):
     return -backend.log10((1.0 + stray) * backend.exp(-LN10 * a_read) - stray)
 
 
+def stray_light_source(photometer: Photometer) -> Source:
+    """The stray-light ratio s as one source shared by every reading. Stray light only adds light
+    at the detector, so s lies in [0, s_max] (s_max the stated ratio) and every reading is biased
+    low. Known only by those bounds, s is rectangular R(0, s_max) with estimate s_max/2 and
+    u = s_max/sqrt(12) (GUM 4.3.7; JCGM 101 6.4.2.1); the result is corrected by that expectation
+    (GUM 3.2.4: a result is corrected for every recognised systematic effect) while the readings
+    themselves stay as read. Both engines use this one rectangle."""
+    half = photometer.stray_light / 2.0
+    return rectangular(
+        f"{photometer.id}: stray light", half, half, step=STEP, equipment=photometer.id,
+        unit="%", display_factor=0.01,
+        provenance=f"stray-light ratio between 0 and {100 * photometer.stray_light:.3g} % (stray light only adds "
+                   f"light: readings biased low), rectangular, estimate at the midpoint; readings as read, the "
+                   f"result corrected by A = -log10((1 + s) 10^-A_read - s); shared by every reading; "
+                   f"{photometer.provenance}")
+
+
 def reading_correction(ss: SourceSet, method: Method, photometer: Photometer | None, ident: str):
     """A closure (x, a) -> the reading `a` (already corrected for the photometer's offset) corrected
     for gain, drift (solutions read after the standards) and stray light; the identity when the
@@ -71,12 +88,7 @@ def reading_correction(ss: SourceSet, method: Method, photometer: Photometer | N
             provenance=f"{photometer.drift_basis}; rectangular about zero, shared by every solution read after the "
                        f"standards (uncorrected); {photometer.provenance}"))
     if photometer.stray_light > 0:
-        stray = ss.add(rectangular(
-            f"{photometer.id}: stray light", 0.0, photometer.stray_light, step=STEP, equipment=photometer.id,
-            unit="%", display_factor=0.01,
-            provenance=f"stray-light ratio within {100 * photometer.stray_light:.3g} %, rectangular about zero "
-                       f"(readings uncorrected), shared by every reading: A_read = -log10((10^-A + s)/(1 + s)); "
-                       f"{photometer.provenance}"))
+        stray = ss.add(stray_light_source(photometer))
 
     def correct(x, a):
         if drift is not None:
