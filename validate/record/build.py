@@ -10,6 +10,7 @@ from __future__ import annotations
 import datetime as _dt
 import hashlib
 from collections.abc import Sequence
+from pathlib import Path, PurePath
 
 from validate import __version__
 from validate.equilibrium.study import equilibrium_block
@@ -93,7 +94,7 @@ def build_record(method: Method, model: Model | EquilibriumModel, results: list[
         defaults_applied=tuple(method.defaults_shown),
         notes=tuple(method.notes),
         assumptions=tuple(model.assumptions),
-        registers=tuple(method.registers_used),
+        registers=register_names(method),
         equipment=equipment,
         sources=tuple(SourceEntry.from_dict(s.to_dict(), "sources") for s in model.sources.values()),
         calibration=calibration_summary(method, model) if isinstance(model, Model) else None,
@@ -113,11 +114,33 @@ def build_record(method: Method, model: Model | EquilibriumModel, results: list[
 
 
 METHOD_FILE, READINGS, REGISTER, BUILTIN_REGISTER = "method file", "readings table", "register", "built-in register"
+# A built-in register (shipped with the package) is named by this prefix and its file name, never by
+# the place the package happens to be installed: records of one method from two installations name
+# it alike; its SHA-256 says which version it was.
+BUILTIN_PREFIX = "built-in: budgets/"
+
+
+def builtin_register_name(path: str | Path) -> str:
+    return BUILTIN_PREFIX + PurePath(path).name
+
+
+def _builtin_paths(method: Method) -> list[str]:
+    """The register files the run read that the method file did not name (the built-in ones)."""
+    given = {str(p) for p in method.input_files}
+    return [str(p) for p in method.registers_used if str(p) not in given]
+
+
+def register_names(method: Method) -> tuple[str, ...]:
+    """The registers the run read, in order: the laboratory's by the path the method gave, the
+    built-in ones by their stable name."""
+    builtin = set(_builtin_paths(method))
+    return tuple(builtin_register_name(p) if str(p) in builtin else str(p) for p in method.registers_used)
 
 
 def input_entries(method: Method) -> tuple[InputFile, ...]:
     """Every file the run read, with its SHA-256: the method file, its readings table, the
-    laboratory's registers, and the built-in registers that were loaded with them."""
+    laboratory's registers, and the built-in registers that were loaded with them (named by
+    `builtin_register_name`)."""
     given = [str(p) for p in method.input_files]
     registers = [str(p) for p in method.registers_used]
 
@@ -125,7 +148,8 @@ def input_entries(method: Method) -> tuple[InputFile, ...]:
         return METHOD_FILE if path == str(method.path) else REGISTER if path in registers else READINGS
 
     entries = [InputFile(path=p, sha256=sha256_of(p), role=role(p)) for p in given]
-    entries += [InputFile(path=p, sha256=sha256_of(p), role=BUILTIN_REGISTER) for p in registers if p not in given]
+    entries += [InputFile(path=builtin_register_name(p), sha256=sha256_of(p), role=BUILTIN_REGISTER)
+                for p in _builtin_paths(method)]
     return tuple(entries)
 
 

@@ -17,6 +17,7 @@ from pathlib import Path, PurePosixPath
 
 from validate.inputs.errors import InputError
 from validate.inputs.readings import read_bounded_bytes
+from validate.inputs.registers import default_register_files
 from validate.record.build import BUILTIN_REGISTER, METHOD_FILE
 from validate.record.manifest import check_inside
 from validate.record.types import InputFile, Record
@@ -32,10 +33,10 @@ def stored_names(entries: tuple[InputFile, ...]) -> list[str]:
     base = Path(os.path.commonpath([str(p.parent) for p in local])) if local else Path("/")
     names = []
     for entry in entries:
-        resolved = Path(entry.path).resolve()
         if entry.role == BUILTIN_REGISTER:
-            names.append(f"{REGISTERS_FOLDER}/{resolved.name}")
+            names.append(f"{REGISTERS_FOLDER}/{PurePosixPath(entry.path).name}")
         else:
+            resolved = Path(entry.path).resolve()
             names.append((PurePosixPath(INPUTS_FOLDER) / resolved.relative_to(base).as_posix()).as_posix())
     return names
 
@@ -48,8 +49,9 @@ def with_stored_names(record: Record) -> Record:
 
 def copy_bytes(entry: InputFile) -> bytes:
     """The bytes to store for an input; refused when the file changed since it was analysed
-    (read with the inputs' own bounds: a file swapped for a pipe meanwhile would hang the write)."""
-    path = Path(entry.path)
+    (read with the inputs' own bounds: a file swapped for a pipe meanwhile would hang the write).
+    A built-in register, named by its stable name, is read from the package's register folder."""
+    path = _builtin_file(entry.path) if entry.role == BUILTIN_REGISTER else Path(entry.path)
     if not path.exists():
         raise InputError("cannot read the input again to store its copy (it is gone)", file=entry.path,
                          fix="leave the input files in place until the run has finished")
@@ -58,6 +60,16 @@ def copy_bytes(entry: InputFile) -> bytes:
         raise InputError("the file changed while the run was in progress; the record is not written",
                          file=entry.path, fix="run the method again once the file is no longer being edited")
     return data
+
+
+def _builtin_file(name: str) -> Path:
+    """The installed file behind a built-in register's stable name (`builtin_register_name`)."""
+    wanted = PurePosixPath(name).name
+    found = [p for p in default_register_files() if p.name == wanted]
+    if not found:
+        raise InputError("the built-in register is no longer installed", file=name,
+                         fix="run the method again with the installed version of validate")
+    return found[0]
 
 
 class StoredCopies:
