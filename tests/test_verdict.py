@@ -89,6 +89,37 @@ def test_a_criterion_not_evaluable_is_a_reservation_with_its_reason(phosphate_li
     assert all("no reference sample" in i.why for i in verdict.not_evaluable)
 
 
+def test_criteria_without_a_reference_sample_are_not_applicable_and_no_reservation(phosphate_linear):
+    # the demo with no reference sample: recovery and E_n have nothing to compare with
+    from validate.validation.criteria import TRUENESS_CRITERIA
+    record = phosphate_linear.typed_record
+    validation = _quiet(record.validation)
+    settings = dataclasses.replace(validation.settings, reference_sample=None)
+    rows = tuple(dataclasses.replace(c, met=None, observed=None, status="not applicable")
+                 if c.key in TRUENESS_CRITERIA else c for c in validation.criteria.criteria)
+    validation = dataclasses.replace(validation, settings=settings,
+                                     criteria=dataclasses.replace(validation.criteria, criteria=rows))
+    verdict = _verdict(record, validation=validation)
+    assert verdict.status == "fit"  # not a reservation
+    assert verdict.not_evaluable == () and len(verdict.not_applicable) == 2
+    assert all("no reference sample" in i.why for i in verdict.not_applicable)
+    assert verdict.statement == ("fit for the stated purpose: 5 acceptance criteria met, 0 not met, 0 not evaluable, "
+                                 "2 not applicable; 0 warnings bear on the results")
+
+
+def test_trueness_criteria_are_not_applicable_by_default_and_not_evaluable_when_set():
+    from validate.validation.criteria import TRUENESS_CRITERIA, evaluate_criteria
+    observed = {"r_squared": 0.9999}
+    by_default = {c.key: c for c in evaluate_criteria({}, observed, ruled_out=TRUENESS_CRITERIA).criteria}
+    assert by_default["recovery_range"].status == by_default["max_abs_en"].status == "not applicable"
+    assert by_default["recovery_range"].met is None and by_default["min_r_squared"].met
+    # a limit the laboratory set itself asks for a judgement the data cannot give: a reservation
+    set_by_user = {c.key: c for c in evaluate_criteria({"max_abs_en": 1.0}, observed,
+                                                       ruled_out=TRUENESS_CRITERIA).criteria}
+    assert set_by_user["max_abs_en"].status == "not evaluable"
+    assert set_by_user["recovery_range"].status == "not applicable"
+
+
 def test_warnings_are_reservations(phosphate_linear):
     record = phosphate_linear.typed_record
     verdict = _verdict(record, results=record.results, monte_carlo_ran=False)  # the demo's own blocks, linear only
@@ -234,11 +265,25 @@ def _same_everywhere(run, folder):
     tail = _flat(" ".join(lines[max(i for i, line in enumerate(lines) if line == top):]))
     page_one = _flat(PdfReader(str(folder / "report.pdf")).pages[0].extract_text() or "")
     assert _flat(top) in page_one
-    for key in ("not_met", "not_evaluable", "warnings"):
+    for key in ("not_met", "not_evaluable", "not_applicable", "warnings"):
         for item in on_file[key]:
             assert _flat(item_text(item)) in tail, item
             assert _flat(item_text(item)) in page_one, item
     return on_file
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("demo", ["effluent_iron", "saturating_reagent"])
+def test_a_demo_without_a_reference_sample_says_the_same_everywhere(demo, tmp_path):
+    run = pipeline.analyse(DEMOS / demo / "method.toml", trials=None, advice=False)
+    verdict = _same_everywhere(run, tmp_path / "out")
+    # no reference sample named: recovery and E_n are not applicable, counted apart, no reservation
+    assert [i["what"] for i in verdict["not_applicable"]] == ["recovery against the reference value",
+                                                              "|E_n| against the reference value"]
+    assert verdict["not_evaluable"] == []
+    assert ", 0 not evaluable, 2 not applicable;" in verdict["statement"]
+    rows = {c["key"]: c["status"] for c in run.record["validation"]["criteria"]["criteria"]}
+    assert rows["recovery_range"] == rows["max_abs_en"] == "not applicable"
 
 
 @pytest.mark.slow

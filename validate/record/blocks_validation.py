@@ -66,7 +66,7 @@ class Criterion(RecordPart):
     comparison: str
     limit: float | tuple[float, ...] | None
     observed: Number
-    met: bool | None = described("null: not set or not evaluable")
+    met: bool | None = described("null: not set, not evaluable or not applicable")
     unit: str
     source: str
     is_default: bool

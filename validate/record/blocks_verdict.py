@@ -56,6 +56,9 @@ class Verdict(RecordPart):
     statement: str = described("the verdict in words, as the terminal and the report show it")
     not_met: tuple[VerdictItem, ...]
     not_evaluable: tuple[VerdictItem, ...]
+    not_applicable: tuple[VerdictItem, ...] = described(
+        "default criteria the method rules out (recovery and E_n where no reference sample is named): "
+        "counted apart, not a reservation", default=())
     warnings: tuple[VerdictItem, ...]
     interval_rule: str = described("how the reported interval of each result is chosen")
     reported: tuple[ReportedResult, ...]

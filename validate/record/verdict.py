@@ -9,7 +9,9 @@ The status:
   taken as exact, the equilibrium checks);
 - "fit" (shown as "fit for the stated purpose"): every criterion evaluated and met, nothing
   listed.
-A criterion "not set" (no limit, none by default) is neither met nor listed.
+A criterion "not set" (no limit, none by default) is neither met nor listed. A default criterion the
+method rules out ("not applicable": recovery and E_n where no reference sample is named) is listed
+and counted apart; it is no reservation.
 
 The reported interval of each result follows one rule (JCGM 101:2008, clause 8): where the
 Monte Carlo method validates the GUM interval, the result is reported as y +/- U; where it
@@ -79,6 +81,18 @@ def _why_not_evaluable(c: Criterion, validation: ValidationBlock, study: bool) -
     return "the record holds no observed value for it"
 
 
+def _why_not_applicable(c: Criterion) -> str:
+    if c.key in ("recovery_range", "max_abs_en"):
+        return "the method names no reference sample under [validation], so there is no trueness to judge"
+    return "the method rules it out"
+
+
+def not_applicable_items(validation: ValidationBlock | None) -> list[VerdictItem]:
+    """The default criteria this method rules out, with why."""
+    rows = validation.criteria.criteria if validation is not None else ()
+    return [VerdictItem(what=c.name, why=_why_not_applicable(c)) for c in rows if c.status == "not applicable"]
+
+
 def criteria_items(validation: ValidationBlock | None, study: bool) -> tuple[list[VerdictItem], list[VerdictItem]]:
     """(not met, not evaluable) among the acceptance criteria."""
     if validation is None:
@@ -117,10 +131,13 @@ def _status(not_met: list, not_evaluable: list, warnings: list, evaluated: int) 
     return "fit with reservations" if not_evaluable or warnings else "fit"
 
 
-def _statement(status: Status, met: int, not_met: int, not_evaluable: int, warnings: int) -> str:
+def _statement(status: Status, met: int, not_met: int, not_evaluable: int, warnings: int,
+               not_applicable: int = 0) -> str:
     counts = f"{met} acceptance criteria met, {not_met} not met, {not_evaluable} not evaluable"
     if met + not_met == 0:
         counts = f"no acceptance criterion could be evaluated ({not_evaluable} not evaluable)"
+    if not_applicable:
+        counts += f", {not_applicable} not applicable"
     return f"{STATEMENTS[status]}: {counts}; {warnings} warning{'s bear' if warnings != 1 else ' bears'} on the results"
 
 
@@ -155,12 +172,15 @@ def judge(*, results: Sequence[ResultEntry], validation: ValidationBlock | None,
     an uncertainty (verdict_warnings.stated_exact of the method); `method_uncertainty` the
     top-down block, whose reconciliation with the budget is judged."""
     not_met, not_evaluable = criteria_items(validation, equilibrium is not None)
+    ruled_out = not_applicable_items(validation)
     warnings = warning_items(results, validation, equilibrium, equipment, exact, monte_carlo_ran,
                              (defaults_applied, notes), method_uncertainty, standard_additions)
     rows = validation.criteria.criteria if validation is not None else ()
     met = sum(1 for c in rows if c.status == "met")
     status = _status(not_met, not_evaluable, warnings, met + len(not_met))
     return Verdict(status=status,
-                   statement=_statement(status, met, len(not_met), len(not_evaluable), len(warnings)),
-                   not_met=tuple(not_met), not_evaluable=tuple(not_evaluable), warnings=tuple(warnings),
+                   statement=_statement(status, met, len(not_met), len(not_evaluable), len(warnings),
+                                        len(ruled_out)),
+                   not_met=tuple(not_met), not_evaluable=tuple(not_evaluable), not_applicable=tuple(ruled_out),
+                   warnings=tuple(warnings),
                    interval_rule=INTERVAL_RULE, reported=tuple(reported_result(r) for r in results))

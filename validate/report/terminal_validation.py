@@ -196,7 +196,8 @@ def _limit_text(c: dict, unit: str) -> str:
 
 def _criterion_line(c: dict, concentration_unit: str) -> Line:
     """'met  limit of quantitation: 0.2467 µmol/L <= 0.5 µmol/L', every value with its unit."""
-    mark = {"met": "[green]met[/]", "not met": "[red]NOT MET[/]"}.get(c["status"], "[yellow]not evaluable[/]")
+    mark = {"met": "[green]met[/]", "not met": "[red]NOT MET[/]",
+            "not applicable": "[dim]not applicable[/]"}.get(c["status"], "[yellow]not evaluable[/]")
     unit = _criterion_unit(c, concentration_unit)
     default = " (default)" if c["is_default"] else ""
     observed = c["observed"]  # r^2 close to 1 needs its digits (as on page 1)
@@ -214,10 +215,10 @@ def criteria_lines(criteria: dict, concentration_unit: str = "") -> list[Printab
     """How many criteria are met, each evaluated or not evaluable one with its unit, and the caution."""
     rows = criteria["criteria"]
     counts = {status: sum(1 for c in rows if c["status"] == status)
-              for status in ("met", "not met", "not set", "not evaluable")}
+              for status in ("met", "not met", "not set", "not evaluable", "not applicable")}
     head = ", ".join(f"{n} {status}" for status, n in counts.items() if n)
     lines: list[Printable] = [BLANK, Line(f"[bold]Acceptance criteria[/]: {head}")]
     lines += [_criterion_line(c, concentration_unit) for c in rows
-              if c["status"] in ("met", "not met", "not evaluable")]
+              if c["status"] in ("met", "not met", "not evaluable", "not applicable")]
     lines.append(Line(f"  [dim]{escape(criteria['caution'])}[/]", soft_wrap=True))
     return lines

@@ -5,7 +5,8 @@ from __future__ import annotations
 
 from validate.report.numbers import DASH, gum_decimals, gum_pair, interval
 
-HEADINGS = (("not_met", "not met"), ("not_evaluable", "not evaluable"), ("warnings", "warnings"))
+HEADINGS = (("not_met", "not met"), ("not_evaluable", "not evaluable"), ("not_applicable", "not applicable"),
+            ("warnings", "warnings"))
 TONE = {"fit": True, "fit with reservations": None, "not shown fit": False}  # good, caution, bad
 
 
@@ -20,7 +21,7 @@ def item_text(item: dict) -> str:
 
 def listed(verdict: dict) -> list[tuple[str, list[str]]]:
     """(heading, lines) for each non-empty list under the verdict, in a fixed order."""
-    return [(title, [item_text(i) for i in verdict[key]]) for key, title in HEADINGS if verdict[key]]
+    return [(title, [item_text(i) for i in verdict.get(key, [])]) for key, title in HEADINGS if verdict.get(key)]
 
 
 def gum_text(reported: dict) -> str:

@@ -21,7 +21,7 @@ from validate.model.equilibrium import EquilibriumModel
 from validate.model.line import LineFit, fit_line, inverse_prediction
 from validate.model.quadratic import QuadraticFit, rising_root
 from validate.propagation.linear import LinearResult
-from validate.validation.criteria import STUDY_CRITERIA, evaluate_criteria
+from validate.validation.criteria import STUDY_CRITERIA, TRUENESS_CRITERIA, evaluate_criteria
 from validate.validation.limits import SampleReadings, range_flags
 from validate.validation.linearity import plain
 from validate.validation.precision import (
@@ -241,7 +241,8 @@ def validation_block(method: AssayMethod, model: Model, results: list[LinearResu
     consistency, reading_consistency = scatter_checks(method, design, _scatter_fit(fit, so_fit))
     trueness = _trueness(method, results)
     criteria = evaluate_criteria(v.acceptance, _criteria_observed(method, design, summary, results, precision,
-                                                                  trueness))
+                                                                  trueness),
+                                 ruled_out=TRUENESS_CRITERIA if v.reference_sample is None else ())
     block = plain(summary)
     block.update({
         "settings": v.to_dict(),

@@ -4,7 +4,9 @@ The laboratory sets its criteria from the requirements that apply to the
 method; the tool only compares. The defaults below are shown with every
 evaluation so the record says which limits were assumed. Relative values are
 in percent. A criterion whose limit is None is "not set"; one whose observed
-value is missing is "not evaluable" (met = None): neither counts as met.
+value is missing is "not evaluable" (met = None): neither counts as met. A default criterion
+that the method itself rules out (recovery and E_n where no reference sample is named: there is
+nothing to compare with) is "not applicable" (met = None): not a reservation, counted apart.
 
 Observed keys (what `observed` may hold):
     r_squared, max_abs_relative_residual (percent, standards above zero),
@@ -26,6 +28,10 @@ from validate.inputs.validation_settings import COMMON, CRITERIA, DEFAULTS, STUD
 from validate.validation.linearity import plain
 
 
+# the criteria that compare a result with a reference value: not applicable without a reference sample
+TRUENESS_CRITERIA = ("recovery_range", "max_abs_en")
+
+
 @dataclass(frozen=True)
 class Criterion:
     key: str
@@ -33,11 +39,11 @@ class Criterion:
     comparison: str
     limit: float | tuple[float, float] | None
     observed: float | None
-    met: bool | None  # None: not set or not evaluable
+    met: bool | None  # None: not set, not evaluable or not applicable
     unit: str
     source: str
     is_default: bool
-    status: str  # "met", "not met", "not set", "not evaluable"
+    status: str  # "met", "not met", "not set", "not evaluable", "not applicable"
 
     def to_dict(self) -> dict:
         return plain(self)
@@ -81,7 +87,7 @@ def _compare(comparison: str, observed: float, limit) -> bool:
     return lo <= observed <= hi
 
 
-def _criterion(key: str, settings: dict, observed: dict, applicable: bool) -> Criterion:
+def _criterion(key: str, settings: dict, observed: dict, applicable: bool, ruled_out: bool = False) -> Criterion:
     name, obs_key, comparison, default, unit, source = CRITERIA[key]
     is_default = key not in settings
     limit = _check_limit(key, settings.get(key, default))
@@ -89,6 +95,8 @@ def _criterion(key: str, settings: dict, observed: dict, applicable: bool) -> Cr
     value = None if value is None or not math.isfinite(float(value)) else float(value)
     if limit is None:
         met, status = None, "not set"
+    elif ruled_out and is_default:
+        met, status, value = None, "not applicable", None
     elif value is None:
         met, status = None, "not evaluable"
     else:
@@ -112,19 +120,21 @@ def _caution(keys: list[str]) -> str:
     return caution
 
 
-def evaluate_criteria(settings: dict | None, observed: dict,
-                      applicable: tuple[str, ...] | None = None) -> CriteriaResult:
+def evaluate_criteria(settings: dict | None, observed: dict, applicable: tuple[str, ...] | None = None,
+                      ruled_out: tuple[str, ...] = ()) -> CriteriaResult:
     """Compare observed values with the settings (defaults fill in what is not given).
 
     `applicable`: the criteria that apply to this kind of method (None: all). One that does not
-    apply is left out, unless the user set it: then it is shown "not evaluable"."""
+    apply is left out, unless the user set it: then it is shown "not evaluable".
+    `ruled_out`: criteria this method rules out (TRUENESS_CRITERIA without a reference sample):
+    shown "not applicable" at their defaults, "not evaluable" where the user set a limit."""
     settings = dict(settings or {})
     unknown = sorted(set(settings) - set(CRITERIA))
     if unknown:
         raise ValueError(f"unknown acceptance criteria {', '.join(unknown)}; known ones are "
                          f"{', '.join(CRITERIA)}")
     keys = _judged_keys(settings, applicable)
-    out = [_criterion(k, settings, observed, applicable is None or k in applicable) for k in keys]
+    out = [_criterion(k, settings, observed, applicable is None or k in applicable, k in ruled_out) for k in keys]
     evaluated = [c.met for c in out if c.met is not None]
     return CriteriaResult(tuple(out), {k: DEFAULTS[k] for k in keys}, all(evaluated) if evaluated else None,
                           _caution(keys))
