@@ -34,7 +34,7 @@ from validate.model.levels import Level, Preparation, ReadSolution
 from validate.model.line import LineFit, fit_line
 from validate.model.quadratic import MIN_LEVELS as MIN_LEVELS_SECOND_ORDER
 from validate.model.quadratic import QuadraticFit, fit_quadratic
-from validate.model.scatter import ScatterComponents, pooled_reading_sd
+from validate.model.scatter import ScatterComponents, pooled_reading_sd, residual_inverse_count
 from validate.model.weights import WEIGHTING_FUNCTIONS, level_weights, weight_notes
 
 MIN_LEVELS = 3  # distinct concentrations for a line with a residual scatter (n - 2 >= 1)
@@ -184,7 +184,11 @@ def scatter_of_line(preparations: list[tuple[Preparation, float]], fit) -> Scatt
     # the line's own solutions only: a sample's readings never change another sample's uncertainty
     groups = [(g, w) for p, w in preparations for g in _within_series(p.readings, p.series)]
     s_r, dof_r = pooled_reading_sd(groups)
-    inv = sum(1.0 / p.count for p, _ in preparations) / len(preparations)
+    # the coefficient of s_r^2 in the expected residual mean square, with each point's leverage
+    weights = [w for _, w in preparations]
+    inv = residual_inverse_count([p.concentration for p, _ in preparations],
+                                 None if all(w == 1.0 for w in weights) else weights,
+                                 [p.count for p, _ in preparations], len(preparations) - fit.dof)
     u_p = math.sqrt(max(0.0, fit.residual_sd**2 - s_r**2 * inv)) if s_r is not None else None
     return ScatterComponents(fit.residual_sd, fit.dof, s_r, dof_r, u_p, inv)
 

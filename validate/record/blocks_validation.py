@@ -253,7 +253,8 @@ class FitUnitsEntry(RecordPart):
     reading_sd: Number = described("pooled SD of repeated readings of one solution (absorbance); null: "
                                    "no solution read twice")
     reading_dof: int
-    preparation_sd: Number = described("preparation scatter sqrt(max(0, means_sd^2 - reading_sd^2 mean(1/m)))")
+    preparation_sd: Number = described("preparation scatter sqrt(max(0, means_sd^2 - reading_sd^2 c)), "
+                                         "c = sum((1 - h_ii)/m_i)/(N - p) with h_ii the leverage")
     covered_by_observed_scatter: tuple[str, ...] = described(
         "random effects the observed scatter stands for, left out bottom-up; empty in the bottom-up treatment")
     why: str

@@ -27,7 +27,6 @@ from dataclasses import dataclass
 from validate.inputs.validation_settings import COMMON, CRITERIA, DEFAULTS, STUDY_CRITERIA  # noqa: F401 (the table)
 from validate.validation.linearity import plain
 
-
 # the criteria that compare a result with a reference value: not applicable without a reference sample
 TRUENESS_CRITERIA = ("recovery_range", "max_abs_en")
 
