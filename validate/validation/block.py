@@ -22,7 +22,7 @@ from validate.model.line import LineFit, fit_line, inverse_prediction
 from validate.model.quadratic import QuadraticFit, rising_root
 from validate.propagation.linear import LinearResult
 from validate.validation.criteria import STUDY_CRITERIA, TRUENESS_CRITERIA, evaluate_criteria
-from validate.validation.limits import SampleReadings, range_flags
+from validate.validation.limits import range_flags, sample_readings
 from validate.validation.linearity import plain
 from validate.validation.precision import (
     READING_SCATTER,
@@ -146,16 +146,6 @@ def _summary(method: Method, cal: Calibration, design: CalibrationDesign) -> Val
     if design.second_order:  # the limits valid for the function the results are read off
         summary = with_second_order_limits(summary, design, factor, v.declared_limit)
     return summary
-
-
-def sample_readings(design: CalibrationDesign) -> SampleReadings | None:
-    """The fewest readings of a sample against the line's points, with the two scatter components
-    (None without samples, or where no solution of the line was read twice)."""
-    sc = design.scatter_components()
-    if not design.samples or sc.reading_sd is None or sc.preparation_sd is None:
-        return None
-    return SampleReadings(min(s.count for s in design.samples), sc.reading_sd, sc.preparation_sd,
-                          1.0 / sc.mean_inverse_count)
 
 
 def _sample_entries(design: CalibrationDesign, summary: ValidationSummary, factor: float = 1.0) -> tuple[dict, dict]:

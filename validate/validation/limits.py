@@ -19,6 +19,7 @@ from scipy import optimize, stats
 from validate.inputs.schema import AMOUNT_CONCENTRATION, MASS_CONCENTRATION
 from validate.inputs.units import Unit
 from validate.inputs.validation_settings import ROUTES
+from validate.model.design import CalibrationDesign
 from validate.model.line import LineFit, fit_line
 from validate.validation.linearity import negligible, plain
 
@@ -125,6 +126,27 @@ class SampleReadings:
     def response_sd(self) -> float:
         """sqrt(u_p^2 + s_r^2/m0): the SD of a sample's mean reading (one-way random model)."""
         return math.sqrt(self.preparation_sd**2 + self.reading_sd**2 / self.count)
+
+
+def sample_readings(design: CalibrationDesign) -> SampleReadings | None:
+    """The fewest readings of a sample against the line's points, with the two scatter components
+    (None without samples, or where no solution of the line was read twice). The points' count is
+    1/c, c the coefficient of s_r^2 in the points' expected residual mean square
+    (validate.model.scatter), so "fewer" compares the sample with what s_m stands for."""
+    sc = design.scatter_components()
+    if not design.samples or sc.reading_sd is None or sc.preparation_sd is None:
+        return None
+    return SampleReadings(min(s.count for s in design.samples), sc.reading_sd, sc.preparation_sd,
+                          1.0 / sc.mean_inverse_count)
+
+
+def sample_sigma(residual_sd: float, sample: SampleReadings | None) -> float | None:
+    """The response SD of the residual route where samples are read fewer times than the
+    function's points (SAMPLE_RULE): sqrt(u_p^2 + s_r^2/m0), never below the residual SD; None
+    where the residual SD itself stands (the same rule for a line and a second-order function)."""
+    if sample is None or not sample.fewer_than_points() or not residual_sd > 0:
+        return None
+    return max(sample.response_sd(), residual_sd)
 
 
 # The rule for samples read fewer times than the line's points (from memory): ICH Q2(R1) 6.3 takes
@@ -291,9 +313,9 @@ def detection_limits(fit: LineFit, blanks=None, *, alpha: float = 0.05, beta: fl
 def _residual_sigma(fit: LineFit, sample: SampleReadings | None) -> tuple[float, float | None, str]:
     """sigma of the residual route, ISO 11843-2's sample term (None: 1/K) and the note saying why
     (SAMPLE_RULE): the points' residual SD unless samples are read fewer times than the points."""
-    if sample is None or not sample.fewer_than_points() or not fit.residual_sd > 0:
+    sigma = sample_sigma(fit.residual_sd, sample)
+    if sample is None or sigma is None:
         return fit.residual_sd, None, ""
-    sigma = max(sample.response_sd(), fit.residual_sd)
     ratio = (sigma / fit.residual_sd) ** 2
     return sigma, ratio, SAMPLE_RULE.format(m0=sample.count, m=sample.points_count, sigma=sigma,
                                             s=fit.residual_sd, ratio=ratio)

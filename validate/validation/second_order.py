@@ -21,7 +21,7 @@ import numpy as np
 from validate.inputs.schema import Method
 from validate.model.design import CalibrationDesign
 from validate.model.quadratic import QuadraticFit, fit_quadratic, quadratic_inverse_prediction
-from validate.validation.limits import range_flags
+from validate.validation.limits import SampleReadings, range_flags, sample_readings, sample_sigma
 from validate.validation.linearity import plain
 
 ICH = "ICH Q2(R1) 6.3 and 7.3: LOD = 3.3 sigma/S, LOQ = 10 sigma/S, S = b (the slope of the second-order " \
@@ -30,10 +30,29 @@ NOT_SHOWN = ("ISO 11843-2 critical value and minimum detectable value are not sh
              "straight calibration line with constant scatter (ISO 11843-2:2000, clause 5, from memory)")
 
 
-def second_order_limits(fit: QuadraticFit, blanks: list[float] | None, declared: str) -> dict:
-    """The LOD/LOQ routes valid for a second-order function, and the declared one."""
+# the straight line's rule (validate.validation.limits.SAMPLE_RULE) without its ISO 11843-2 part
+SAMPLE_RULE = ("samples are read {m0} time(s), fewer than the function's points ({m:.3g} readings each): the "
+               "residual route takes sigma = sqrt(u_p^2 + s_r^2/m0) = {sigma:.4g} instead of the residual SD "
+               "{s:.4g} of the points (ICH Q2(R1) 6.3: the SD of the response as the sample is measured, from "
+               "memory)")
+
+
+def _residual_route(fit: QuadraticFit, sample: SampleReadings | None) -> tuple[float, str]:
+    """sigma of the residual route and why: the function's residual SD, or the sample's larger
+    response SD where samples are read fewer times than the points (the straight line's rule)."""
+    sigma = sample_sigma(fit.residual_sd, sample)
+    if sample is None or sigma is None:
+        return fit.residual_sd, "sigma = residual SD of the second-order function"
+    return sigma, SAMPLE_RULE.format(m0=sample.count, m=sample.points_count, sigma=sigma, s=fit.residual_sd)
+
+
+def second_order_limits(fit: QuadraticFit, blanks: list[float] | None, declared: str,
+                        sample: SampleReadings | None = None) -> dict:
+    """The LOD/LOQ routes valid for a second-order function, and the declared one. `sample`: how
+    samples are read against the function's points (validate.validation.limits.sample_readings)."""
     b = fit.coefficients[1]
-    routes = [("ich_residual_sd", fit.residual_sd, fit.dof, "sigma = residual SD of the second-order function"),
+    residual_sigma, residual_why = _residual_route(fit, sample)
+    routes = [("ich_residual_sd", residual_sigma, fit.dof, residual_why),
               ("ich_intercept_sd", fit.standard_uncertainties[0], fit.dof,
                "sigma = standard error of the function's intercept a")]
     if blanks and len(blanks) > 1:
@@ -88,7 +107,8 @@ def second_order_block(method: Method, design: CalibrationDesign) -> dict | None
         "sensitivity_at_range_ends": [b + 2 * c * lo, b + 2 * c * hi],
         "turning_point": -b / (2 * c) if c != 0 else math.inf,
         "samples": second_order_samples(design, fit),
-        "limits": second_order_limits(fit, design.blank_readings() or None, method.validation.declared_limit),
+        "limits": second_order_limits(fit, design.blank_readings() or None, method.validation.declared_limit,
+                                      sample_readings(design)),
         "source": "ISO 8466-2 (from memory): second-order calibration function, least squares through the "
                   "preparations' means; inverse prediction by the root on the rising branch",
     })
@@ -99,7 +119,7 @@ def second_order_sample_entries(design: CalibrationDesign, factor: float, declar
     """The validation block's samples and range flags for a second-order function (calibration unit):
     the straight line's LOD/LOQ do not apply, the function's own declared route does."""
     fit = design.quadratic_fit(factor)
-    limits = second_order_limits(fit, design.blank_readings() or None, declared)
+    limits = second_order_limits(fit, design.blank_readings() or None, declared, sample_readings(design))
     samples, flags = {}, {}
     for row, smp in zip(second_order_samples(design, fit), design.samples, strict=True):
         f = range_flags(row["concentration"], lowest, highest, limits["loq"], limits["lod"])
@@ -182,7 +202,7 @@ def second_order_observed(design: CalibrationDesign, factor: float, declared: st
     fit = design.quadratic_fit(factor)
     predicted = fit.predict(fit.x)
     rel = [abs(r / p) for x, r, p in zip(fit.x, fit.residuals(), predicted, strict=True) if x > 0 and p != 0]
-    limits = second_order_limits(fit, design.blank_readings() or None, declared)
+    limits = second_order_limits(fit, design.blank_readings() or None, declared, sample_readings(design))
     return {**observed, "r_squared": fit.r_squared, "max_abs_relative_residual": 100 * max(rel) if rel else None,
             "min_linearity_p_value": adequacy_p(fit), "loq": limits["loq"]}
 
@@ -196,11 +216,13 @@ def with_second_order_limits(summary, design: CalibrationDesign, factor: float, 
     from validate.validation.limits import LimitRoute, _disagreements
 
     fit = design.quadratic_fit(factor)
-    lim = second_order_limits(fit, design.blank_readings() or None, declared)
+    lim = second_order_limits(fit, design.blank_readings() or None, declared, sample_readings(design))
     routes = tuple(LimitRoute(r["route"], r["sigma"], r["sigma_dof"], r["lod"], r["loq"], r["source"])
                    for r in lim["routes"])
-    notes = (*lim["not_shown"], "the ISO 11843-2 values in this block are of the straight line and do not apply "
-             "to the second-order function")
+    rule = [r["source"][len(ICH):] for r in lim["routes"]
+            if r["route"] == "ich_residual_sd" and r["sigma"] != fit.residual_sd]  # SAMPLE_RULE applied
+    notes = (*rule, *lim["not_shown"], "the ISO 11843-2 values in this block are of the straight line and do not "
+             "apply to the second-order function")
     limits = dataclasses.replace(summary.limits, routes=routes, declared_route=lim["declared_route"], lod=lim["lod"],
                                  loq=lim["loq"], warnings=tuple(_disagreements(routes)), notes=notes)
     return dataclasses.replace(summary, limits=limits)
