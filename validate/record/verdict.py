@@ -7,8 +7,8 @@ The status:
   intermediate precision and the method's reconciliation, Monte Carlo against GUM, range flags
   and the stated scope, detection limits, equipment figures from memory or typical, inputs
   taken as exact, the equilibrium checks);
-- "fit" (shown as "fit for the stated purpose"): every criterion evaluated and met, nothing
-  listed.
+- "fit" (shown as "fit for the stated purpose"): every criterion that applies evaluated and
+  met, nothing listed.
 A criterion "not set" (no limit, none by default) is neither met nor listed. A default criterion the
 method rules out ("not applicable": recovery and E_n where no reference sample is named) is listed
 and counted apart; it is no reservation.
@@ -29,6 +29,7 @@ from validate.record.blocks_routine import MethodUncertaintyBlock
 from validate.record.blocks_validation import Criterion, ValidationBlock
 from validate.record.blocks_verdict import Basis, Clause8, ReportedResult, Status, Verdict, VerdictItem
 from validate.record.types import EquipmentEntry, ResultEntry
+from validate.validation.criteria import TRUENESS_CRITERIA
 
 STATEMENTS: dict[str, str] = {"fit": "fit for the stated purpose", "fit with reservations": "fit with reservations",
                               "not shown fit": "not shown fit"}
@@ -82,7 +83,7 @@ def _why_not_evaluable(c: Criterion, validation: ValidationBlock, study: bool) -
 
 
 def _why_not_applicable(c: Criterion) -> str:
-    if c.key in ("recovery_range", "max_abs_en"):
+    if c.key in TRUENESS_CRITERIA:
         return "the method names no reference sample under [validation], so there is no trueness to judge"
     return "the method rules it out"
 

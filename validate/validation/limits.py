@@ -130,11 +130,14 @@ class SampleReadings:
 
 def sample_readings(design: CalibrationDesign) -> SampleReadings | None:
     """The fewest readings of a sample against the line's points, with the two scatter components
-    (None without samples, or where no solution of the line was read twice). The points' count is
-    1/c, c the coefficient of s_r^2 in the points' expected residual mean square
-    (validate.model.scatter), so "fewer" compares the sample with what s_m stands for."""
+    (None without samples, where no solution of the line was read twice, or on a weighted line,
+    whose components are on its weighted scale). The points' count is 1/c, c the coefficient of
+    s_r^2 in the points' expected residual mean square (validate.model.scatter), so "fewer"
+    compares the sample with what s_m stands for."""
+    if not design.samples or design.weighted:
+        return None
     sc = design.scatter_components()
-    if not design.samples or sc.reading_sd is None or sc.preparation_sd is None:
+    if sc.reading_sd is None or sc.preparation_sd is None:
         return None
     return SampleReadings(min(s.count for s in design.samples), sc.reading_sd, sc.preparation_sd,
                           1.0 / sc.mean_inverse_count)
