@@ -24,7 +24,7 @@ from validate.record.blocks_validation import ValidationBlock, ValidationSetting
 from validate.record.blocks_verdict import Verdict
 from validate.record.tree import Number, RecordPart, described, omitted_when_none
 
-SCHEMA_VERSION = "2.1"
+SCHEMA_VERSION = "2.2"
 
 
 @dataclass(frozen=True, kw_only=True)
