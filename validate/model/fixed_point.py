@@ -29,6 +29,7 @@ import numpy as np
 from uncertainties.core import AffineScalarFunc
 
 from validate.model import backend as mathops
+from validate.model import kernels
 from validate.model.ice import IceTable, equilibrium_constant
 
 BLOCK = 10_000  # trials per block: the arrays of a step stay in a processor's cache; as many as the
@@ -355,8 +356,16 @@ def _cut(v, s: slice):
 
 
 def _solve_blocks(cols: Columns, n: int, start, limiting_totals, max_steps: int) -> Solved:
-    """Arrays of trials, a block at a time; every output preallocated once (a single block's
+    """Arrays of trials: every trial in one compiled loop (`validate.model.kernels`) where it is
+    available, else a block at a time on numpy; every output preallocated once (a single block's
     arrays are returned as they are, without a copy)."""
+    if kernels.available():
+        first = naive_start(cols, limiting_totals) if start is None else start
+        found = kernels.solve_trials(cols, first, max_steps, STOP, CONVERGED)
+        if found is not None:
+            K, slope, intercept, states, history, change = found
+            return Solved(K, slope, intercept, tuple(IceTable(*state) for state in states.transpose(1, 0, 2)),
+                          history, change)
     if n <= BLOCK:
         return _solve_block(cols, slice(0, n), start, limiting_totals, max_steps)
     out = {k: np.empty(n) for k in ("K", "slope", "intercept", "change")}

@@ -1,0 +1,90 @@
+"""The fixed point of the correction of the standards, compiled: one loop over trials.
+
+The numpy path of `validate.model.fixed_point` steps every trial of a block together, a few
+hundred elementwise passes over the block per Newton step. Here each trial runs its own Newton
+steps from start to end with every number in registers, compiled by numba (an LLVM compiler of
+a subset of Python and numpy). It solves the same equations with the same operations in the
+same order, so each trial's K, line and ICE tables are those of the numpy path to round-off
+(tests/test_fixed_point_kernel.py); the numpy path stays the reference and the fallback.
+
+numba is imported only when an equilibrium study's Monte Carlo trials are solved, never by
+`validate --help` or `validate check`. When it is missing, fails to load or to compile, or the
+environment variable VALIDATE_NO_KERNEL is set, `solve_trials` returns None and the caller
+takes the numpy path; why is logged once (logger `validate.model.kernels`), never raised.
+The compiled code is cached on disk (numba's `cache=True`: beside this module in __pycache__,
+or in the user's cache folder when the package folder cannot be written), so only the first run
+on a machine pays the compilation.
+"""
+
+from __future__ import annotations
+
+import logging
+import os
+from typing import Any
+
+import numpy as np
+
+log = logging.getLogger(__name__)
+
+DISABLE = "VALIDATE_NO_KERNEL"  # set (to anything but "" or "0") to use the numpy path only
+
+_compiled: Any = None  # the compiled function once loaded; False when it cannot be had
+_enabled = True
+
+
+def enable(on: bool) -> bool:
+    """Turn the compiled path on or off for this process (tests compare the two); returns the
+    previous setting."""
+    global _enabled
+    previous, _enabled = _enabled, bool(on)
+    return previous
+
+
+def available() -> bool:
+    """Whether the compiled path will be used (compiles or loads it on first call)."""
+    return _kernel() is not None
+
+
+def _kernel():
+    global _compiled
+    if not _enabled or os.environ.get(DISABLE, "") not in ("", "0"):
+        return None
+    if _compiled is None:
+        try:
+            from validate.model._fixed_point_kernel import compiled
+            _compiled = compiled()
+        except Exception as exc:  # noqa: BLE001 - any failure to import or compile means: use numpy
+            log.info("the compiled fixed point is not used (%s: %s); the numpy path solves the trials",
+                     type(exc).__name__, exc)
+            _compiled = False
+    return _compiled or None
+
+
+def _stacked(kinds, n: int) -> np.ndarray:
+    """Columns (M, L, A) of the standards or the mixtures, each a plain number or an array of n
+    trials, as one (3, points, n) array for the compiled loop."""
+    out = np.empty((3, len(kinds[0]), n))
+    for rows, columns in zip(out, kinds, strict=True):
+        for row, value in zip(rows, columns, strict=True):
+            row[...] = value
+    return out
+
+
+def solve_trials(cols, start, max_steps: int, stop: float, converged: float):
+    """(K, slope, intercept, states, history, remaining error) of every trial of `cols` (arrays of
+    n trials), as `fixed_point._solve_block` gives them, or None when the compiled path is not
+    available. states: (complex, free M, free L, K) per mixture, each an array of n."""
+    kernel = _kernel()
+    if kernel is None:
+        return None
+    n = cols.trials()
+    std = _stacked((cols.std_M, cols.std_L, cols.std_A), n)
+    mix = _stacked((cols.mix_M, cols.mix_L, cols.mix_A), n)
+    first = np.ascontiguousarray(np.broadcast_to(np.asarray(start, dtype=float), (n,)))
+    K, line, states = np.empty(n), np.empty((2, n)), np.empty((4, len(cols.mix_A), n))
+    change, history = np.empty(n), np.full(max_steps, -np.inf)
+    taken = kernel(std, np.asarray(cols.counts, dtype=float), np.asarray(cols.factors, dtype=float), mix,
+                   np.asarray(cols.weights, dtype=float), first, int(max_steps), float(stop), float(converged),
+                   K, line, states, change, history)
+    steps = [float(h) if h > -np.inf else float("nan") for h in history[:taken]]
+    return K, line[0], line[1], states, steps, change
