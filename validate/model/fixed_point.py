@@ -364,8 +364,7 @@ def _solve_blocks(cols: Columns, n: int, start, limiting_totals, max_steps: int)
         found = kernels.solve_trials(cols, first, max_steps, STOP, CONVERGED)
         if found is not None:
             K, slope, intercept, states, history, change = found
-            return Solved(K, slope, intercept, tuple(IceTable(*state) for state in states.transpose(1, 0, 2)),
-                          history, change)
+            return Solved(K, slope, intercept, tuple(IceTable(*state) for state in states), history, change)
     if n <= BLOCK:
         return _solve_block(cols, slice(0, n), start, limiting_totals, max_steps)
     out = {k: np.empty(n) for k in ("K", "slope", "intercept", "change")}

@@ -19,7 +19,9 @@ on a machine pays the compilation.
 from __future__ import annotations
 
 import logging
+import math
 import os
+import threading
 from typing import Any
 
 import numpy as np
@@ -53,17 +55,38 @@ def _kernel():
         try:
             from validate.model._fixed_point_kernel import compiled
             _compiled = compiled()
-        except Exception as exc:  # noqa: BLE001 - any failure to import or compile means: use numpy
+        except Exception as exc:  # any failure to import or compile means: use numpy
             log.info("the compiled fixed point is not used (%s: %s); the numpy path solves the trials",
                      type(exc).__name__, exc)
             _compiled = False
     return _compiled or None
 
 
-def _stacked(kinds, n: int) -> np.ndarray:
+class _Scratch(threading.local):
+    """Work arrays kept between calls (per thread), grown when too small: the stacked columns and
+    the kernel's outputs are megabytes for a slice of trials, and arrays of that size, made anew
+    for every slice, each cost the operating system fresh zeroed pages (more time than the
+    arithmetic they hold). Results leave in arrays of one row each, which are small enough for
+    the allocator to reuse."""
+
+    def __init__(self) -> None:
+        self.arrays: dict[str, np.ndarray] = {}
+
+    def get(self, name: str, shape: tuple[int, ...]) -> np.ndarray:
+        size = math.prod(shape)
+        found = self.arrays.get(name)
+        if found is None or found.size < size:
+            found = self.arrays[name] = np.empty(size)
+        return found[:size].reshape(shape)
+
+
+_scratch = _Scratch()
+
+
+def _stacked(name: str, kinds, n: int) -> np.ndarray:
     """Columns (M, L, A) of the standards or the mixtures, each a plain number or an array of n
     trials, as one (3, points, n) array for the compiled loop."""
-    out = np.empty((3, len(kinds[0]), n))
+    out = _scratch.get(name, (3, len(kinds[0]), n))
     for rows, columns in zip(out, kinds, strict=True):
         for row, value in zip(rows, columns, strict=True):
             row[...] = value
@@ -73,18 +96,19 @@ def _stacked(kinds, n: int) -> np.ndarray:
 def solve_trials(cols, start, max_steps: int, stop: float, converged: float):
     """(K, slope, intercept, states, history, remaining error) of every trial of `cols` (arrays of
     n trials), as `fixed_point._solve_block` gives them, or None when the compiled path is not
-    available. states: (complex, free M, free L, K) per mixture, each an array of n."""
+    available. states: per mixture (complex, free M, free L, K), each an array of n."""
     kernel = _kernel()
     if kernel is None:
         return None
-    n = cols.trials()
-    std = _stacked((cols.std_M, cols.std_L, cols.std_A), n)
-    mix = _stacked((cols.mix_M, cols.mix_L, cols.mix_A), n)
+    n, nm = cols.trials(), len(cols.mix_A)
+    std = _stacked("standards", (cols.std_M, cols.std_L, cols.std_A), n)
+    mix = _stacked("mixtures", (cols.mix_M, cols.mix_L, cols.mix_A), n)
     first = np.ascontiguousarray(np.broadcast_to(np.asarray(start, dtype=float), (n,)))
-    K, line, states = np.empty(n), np.empty((2, n)), np.empty((4, len(cols.mix_A), n))
-    change, history = np.empty(n), np.full(max_steps, -np.inf)
+    K, change, history = np.empty(n), np.empty(n), np.full(max_steps, -np.inf)
+    line, states = _scratch.get("line", (2, n)), _scratch.get("states", (4, nm, n))
     taken = kernel(std, np.asarray(cols.counts, dtype=float), np.asarray(cols.factors, dtype=float), mix,
                    np.asarray(cols.weights, dtype=float), first, int(max_steps), float(stop), float(converged),
                    K, line, states, change, history)
     steps = [float(h) if h > -np.inf else float("nan") for h in history[:taken]]
-    return K, line[0], line[1], states, steps, change
+    per_mixture = [tuple(states[q, j].copy() for q in range(4)) for j in range(nm)]
+    return K, line[0].copy(), line[1].copy(), per_mixture, steps, change
