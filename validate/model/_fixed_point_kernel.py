@@ -15,20 +15,17 @@ import math
 import numba
 import numpy as np
 
-_JIT = {"cache": True, "error_model": "numpy", "nogil": True}
+_jit = numba.njit(cache=True, error_model="numpy", nogil=True)
 LANES = 64  # trials stepped side by side: the loops over them compile to vector instructions
 
 
-@numba.njit(**_JIT)
-def _line(K, std, lo, n_lanes, counts, factors, total, y_mean, xs, dxs, out, derivative):
-    """The standards' line at K for the trials lo .. lo + n_lanes (fixed_point.standards_line):
-    out[0], out[1] = slope, intercept; with `derivative` out[2], out[3] = their derivatives by K.
-    xs, dxs: scratch of one row per standard; out[4:11]: scratch of the sums."""
-    ns = counts.size
-    x_sum, sxx, sxy = out[4], out[5], out[6]
+@_jit
+def _points(K, std, lo, n_lanes, counts, factors, xs, dxs, x_sum, derivative):
+    """[ML] of every standard at K (xs) for the trials lo .. lo + n_lanes, their count-weighted
+    sum (x_sum) and, with `derivative`, d[ML]/dK (dxs): fixed_point.standards_line's loop."""
     for t in range(n_lanes):
         x_sum[t] = 0.0
-    for i in range(ns):
+    for i in range(counts.size):
         phi, c, one_c, one_phi = factors[i], counts[i], counts[i] == 1.0, factors[i] == 1.0
         M, L, x_i, dx_i = std[0, i], std[1, i], xs[i], dxs[i]
         for t in range(n_lanes):
@@ -42,45 +39,61 @@ def _line(K, std, lo, n_lanes, counts, factors, total, y_mean, xs, dxs, out, der
             if derivative:
                 dx = x * inv_k * inv_k / root
                 dx_i[t] = dx if one_phi else phi * dx
-    x_mean = out[7]
+
+
+@_jit
+def _centred_sums(std, lo, n_lanes, counts, y_mean, xs, x_mean, ys, own, out_xx, out_xy):
+    """Over the standards, sum c (x - x_mean) v and sum c v (A - y_mean), v the deviation
+    x - x_mean itself when `own` (sxx, sxy), else ys (the derivatives: d sxx/dK / 2, d sxy/dK)."""
     for t in range(n_lanes):
-        x_mean[t] = x_sum[t] / total
-        sxx[t] = 0.0
-        sxy[t] = 0.0
-    for i in range(ns):
-        c, one_c, A, x_i = counts[i], counts[i] == 1.0, std[2, i], xs[i]
+        out_xx[t] = 0.0
+        out_xy[t] = 0.0
+    for i in range(counts.size):
+        c, one_c, A, x_i, y_i = counts[i], counts[i] == 1.0, std[2, i], xs[i], ys[i]
         for t in range(n_lanes):
             dev = x_i[t] - x_mean[t]
             e = A[lo + t] - y_mean[t]
-            sxx[t] = sxx[t] + (dev * dev if one_c else c * (dev * dev))
-            sxy[t] = sxy[t] + (dev * e if one_c else c * (dev * e))
+            v = dev if own else y_i[t]
+            out_xx[t] = out_xx[t] + (dev * v if one_c else c * (dev * v))
+            out_xy[t] = out_xy[t] + (v * e if one_c else c * (v * e))
+
+
+@_jit
+def _line(K, std, lo, n_lanes, counts, factors, total, y_mean, xs, dxs, out, derivative):
+    """The standards' line at K for the trials lo .. lo + n_lanes (fixed_point.standards_line):
+    out[0], out[1] = slope, intercept; with `derivative` out[2], out[3] = their derivatives by K.
+    xs, dxs: scratch of one row per standard; out[4:11]: scratch of the sums."""
+    x_sum, sxx, sxy, x_mean, d_sum, d_sxx, d_sxy = out[4], out[5], out[6], out[7], out[8], out[9], out[10]
+    _points(K, std, lo, n_lanes, counts, factors, xs, dxs, x_sum, derivative)
+    for t in range(n_lanes):
+        x_mean[t] = x_sum[t] / total
+    _centred_sums(std, lo, n_lanes, counts, y_mean, xs, x_mean, xs, True, sxx, sxy)
     slope, intercept = out[0], out[1]
     for t in range(n_lanes):
         slope[t] = sxy[t] / sxx[t]
         intercept[t] = y_mean[t] - slope[t] * x_mean[t]
     if not derivative:
         return
-    d_sum, d_sxx, d_sxy = out[8], out[9], out[10]
-    for t in range(n_lanes):
-        d_sum[t] = 0.0
-        d_sxx[t] = 0.0
-        d_sxy[t] = 0.0
-    for i in range(ns):
-        c, one_c, A, x_i, dx_i = counts[i], counts[i] == 1.0, std[2, i], xs[i], dxs[i]
-        for t in range(n_lanes):
-            dx = dx_i[t]
-            dev = x_i[t] - x_mean[t]
-            e = A[lo + t] - y_mean[t]
-            d_sum[t] = d_sum[t] + (dx if one_c else c * dx)
-            d_sxx[t] = d_sxx[t] + (dev * dx if one_c else c * (dev * dx))
-            d_sxy[t] = d_sxy[t] + (dx * e if one_c else c * (dx * e))
+    _points_sum(dxs, n_lanes, counts, d_sum)
+    _centred_sums(std, lo, n_lanes, counts, y_mean, xs, x_mean, dxs, False, d_sxx, d_sxy)
     d_slope, d_intercept = out[2], out[3]
     for t in range(n_lanes):
         d_slope[t] = (d_sxy[t] - slope[t] * (2.0 * d_sxx[t])) / sxx[t]
         d_intercept[t] = -(d_slope[t] * x_mean[t] + slope[t] * (d_sum[t] / total))
 
 
-@numba.njit(**_JIT)
+@_jit
+def _points_sum(values, n_lanes, counts, out):
+    """sum c_i values_i over the standards, per trial."""
+    for t in range(n_lanes):
+        out[t] = 0.0
+    for i in range(counts.size):
+        c, one_c, v = counts[i], counts[i] == 1.0, values[i]
+        for t in range(n_lanes):
+            out[t] = out[t] + (v[t] if one_c else c * v[t])
+
+
+@_jit
 def _steps(K, std, mix, weights, lo, n_lanes, counts, factors, total, y_mean, xs, dxs, line, sums, K_new):
     """One Newton step of the trials lo .. lo + n_lanes from K into K_new (fixed_point._step with
     fixed_point.combination)."""
@@ -112,7 +125,7 @@ def _steps(K, std, mix, weights, lo, n_lanes, counts, factors, total, y_mean, xs
         K_new[t] = newton if (math.isfinite(newton) and newton > 0) else F[t]
 
 
-@numba.njit(**_JIT)
+@_jit
 def _predicted(change, previous):
     """fixed_point._predicted for one trial."""
     d, p = abs(change), abs(previous)
@@ -122,7 +135,7 @@ def _predicted(change, previous):
     return predicted
 
 
-@numba.njit(**_JIT)
+@_jit
 def _fmin(a, b):
     """numpy's fmin: the smaller, ignoring a nan."""
     if math.isnan(a):
@@ -132,7 +145,7 @@ def _fmin(a, b):
     return a if a <= b else b
 
 
-@numba.njit(**_JIT)
+@_jit
 def _settle(K, K_new, change, previous, active, n_lanes, step, stop, history):
     """Take the step in the trials still stepping, record its largest finite relative change and
     stop a trial once its change, or its next change predicted from the last two, is at most
@@ -153,7 +166,41 @@ def _settle(K, K_new, change, previous, active, n_lanes, step, stop, history):
     return left
 
 
-@numba.njit(**_JIT)
+@_jit
+def _begin(std, start, lo, n_lanes, counts, total, K, change, previous, active, y_mean):
+    """The lanes' first K, no change yet, all stepping, and the standards' mean reading (which K
+    does not change: fixed_point.Columns.readings_centred)."""
+    for t in range(n_lanes):
+        K[t] = start[lo + t]
+        change[t] = math.nan
+        previous[t] = math.nan
+        active[t] = True
+    _points_sum(std[2, :, lo:lo + n_lanes], n_lanes, counts, y_mean)
+    for t in range(n_lanes):
+        y_mean[t] = y_mean[t] / total
+
+
+@_jit
+def _states(std, mix, lo, n_lanes, counts, factors, total, y_mean, K, xs, dxs, line, line_out, states_out):
+    """The line and every mixture's ICE table at the solved K (fixed_point.states_at; ice.py's
+    equilibrium_constant)."""
+    _line(K, std, lo, n_lanes, counts, factors, total, y_mean, xs, dxs, line, False)
+    for t in range(n_lanes):
+        line_out[0, lo + t] = line[0, t]
+        line_out[1, lo + t] = line[1, t]
+    for j in range(mix.shape[1]):
+        M, L, A = mix[0, j], mix[1, j], mix[2, j]
+        for t in range(n_lanes):
+            c = (A[lo + t] - line[1, t]) / line[0, t]
+            free_m = M[lo + t] - c
+            free_l = L[lo + t] - c
+            states_out[0, j, lo + t] = c
+            states_out[1, j, lo + t] = free_m
+            states_out[2, j, lo + t] = free_l
+            states_out[3, j, lo + t] = c / (free_m * free_l)
+
+
+@_jit
 def solve(std, counts, factors, mix, weights, start, max_steps, stop, converged, K_out, line_out, states_out,
           change_out, history):
     """Every trial's fixed point and the states there (fixed_point._solve_block, states_at):
@@ -173,18 +220,7 @@ def solve(std, counts, factors, mix, weights, start, max_steps, stop, converged,
     most = 0
     for lo in range(0, n, LANES):
         n_lanes = min(LANES, n - lo)
-        for t in range(n_lanes):
-            y_mean[t] = 0.0
-            K[t] = start[lo + t]
-            change[t] = math.nan
-            previous[t] = math.nan
-            active[t] = True
-        for i in range(ns):
-            c, one_c, A = counts[i], counts[i] == 1.0, std[2, i]
-            for t in range(n_lanes):
-                y_mean[t] = y_mean[t] + (A[lo + t] if one_c else c * A[lo + t])
-        for t in range(n_lanes):
-            y_mean[t] = y_mean[t] / total
+        _begin(std, start, lo, n_lanes, counts, total, K, change, previous, active, y_mean)
         for step in range(max_steps):
             _steps(K, std, mix, weights, lo, n_lanes, counts, factors, total, y_mean, xs, dxs, line, sums, K_new)
             most = max(most, step + 1)
@@ -196,20 +232,7 @@ def solve(std, counts, factors, mix, weights, start, max_steps, stop, converged,
             K[t] = K[t] if remaining <= converged else math.nan
             K_out[lo + t] = K[t]
             change_out[lo + t] = remaining
-        _line(K, std, lo, n_lanes, counts, factors, total, y_mean, xs, dxs, line, False)
-        for t in range(n_lanes):
-            line_out[0, lo + t] = line[0, t]
-            line_out[1, lo + t] = line[1, t]
-        for j in range(mix.shape[1]):
-            M, L, A = mix[0, j], mix[1, j], mix[2, j]
-            for t in range(n_lanes):
-                c = (A[lo + t] - line[1, t]) / line[0, t]
-                free_m = M[lo + t] - c
-                free_l = L[lo + t] - c
-                states_out[0, j, lo + t] = c
-                states_out[1, j, lo + t] = free_m
-                states_out[2, j, lo + t] = free_l
-                states_out[3, j, lo + t] = c / (free_m * free_l)
+        _states(std, mix, lo, n_lanes, counts, factors, total, y_mean, K, xs, dxs, line, line_out, states_out)
     return most
 
 
