@@ -204,3 +204,26 @@ def test_check_and_help_do_not_import_the_compiler():
         done = subprocess.run([sys.executable, "-c", code, *args], capture_output=True, text=True, env=env,
                               cwd=ROOT, check=False)
         assert done.returncode == 0, (args, done.stderr[-2000:])
+
+
+def test_results_held_by_the_caller_are_not_overwritten_by_the_next_solve(nickel_demo):
+    # the compiled path reuses its output arrays once nothing refers to them: results still held
+    # must keep their numbers when other trials are solved
+    model = nickel_demo.model
+    sources = list(model.sources.values())
+
+    def solved(seed):
+        draws = draw_many(sources, 3000, np.random.default_rng(seed))
+        sm, sl, sa, reps, pm, pl, pa = model.columns(draws)
+        cols = study_columns((sm, sl, sa), (pm, pl, pa), reps, model.combination_weights())
+        return _solve(cols, True, start=model.start_K, limiting_totals=sl)
+    first = solved(1)
+    kept = [first.slope.copy()] + [state.K.copy() for state in first.states]
+    second = solved(2)
+    assert not np.array_equal(second.slope, kept[0], equal_nan=True)
+    np.testing.assert_array_equal(first.slope, kept[0])
+    for state, before in zip(first.states, kept[1:], strict=True):
+        np.testing.assert_array_equal(state.K, before)
+    del first, second
+    third = solved(1)  # nothing holds the earlier results now: the same numbers as the first time
+    np.testing.assert_array_equal(third.slope, kept[0])

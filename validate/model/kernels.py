@@ -21,6 +21,7 @@ from __future__ import annotations
 import logging
 import math
 import os
+import sys
 import threading
 from typing import Any
 
@@ -63,20 +64,32 @@ def _kernel():
 
 
 class _Scratch(threading.local):
-    """Work arrays kept between calls (per thread), grown when too small: the stacked columns and
-    the kernel's outputs are megabytes for a slice of trials, and arrays of that size, made anew
-    for every slice, each cost the operating system fresh zeroed pages (more time than the
-    arithmetic they hold). Results leave in arrays of one row each, which are small enough for
-    the allocator to reuse."""
+    """Arrays kept between calls (per thread), grown when too small. The stacked columns and the
+    kernel's outputs are megabytes for a slice of trials, and arrays of that size made anew for
+    every slice each cost the operating system fresh zeroed pages, more time than the arithmetic
+    they hold. Work arrays are reused as they are; an output array is handed to the caller and
+    reused only once nothing refers to it any more (the Monte Carlo engine copies a slice's
+    results and drops them), else a new one is made."""
 
     def __init__(self) -> None:
         self.arrays: dict[str, np.ndarray] = {}
+        self.alone: dict[str, int] = {}  # an output's reference count when nothing outside refers to it
 
-    def get(self, name: str, shape: tuple[int, ...]) -> np.ndarray:
+    def work(self, name: str, shape: tuple[int, ...]) -> np.ndarray:
         size = math.prod(shape)
         found = self.arrays.get(name)
         if found is None or found.size < size:
             found = self.arrays[name] = np.empty(size)
+        return found[:size].reshape(shape)
+
+    def output(self, name: str, shape: tuple[int, ...]) -> np.ndarray:
+        size = math.prod(shape)
+        found = self.arrays.get(name)
+        if found is not None and (found.size < size or sys.getrefcount(found) > self.alone[name]):
+            found = None  # still held by a caller (views of it count): make a new one
+        if found is None:
+            found = self.arrays[name] = np.empty(size)
+            self.alone[name] = sys.getrefcount(found)
         return found[:size].reshape(shape)
 
 
@@ -86,7 +99,7 @@ _scratch = _Scratch()
 def _stacked(name: str, kinds, n: int) -> np.ndarray:
     """Columns (M, L, A) of the standards or the mixtures, each a plain number or an array of n
     trials, as one (3, points, n) array for the compiled loop."""
-    out = _scratch.get(name, (3, len(kinds[0]), n))
+    out = _scratch.work(name, (3, len(kinds[0]), n))
     for rows, columns in zip(out, kinds, strict=True):
         for row, value in zip(rows, columns, strict=True):
             row[...] = value
@@ -105,10 +118,10 @@ def solve_trials(cols, start, max_steps: int, stop: float, converged: float):
     mix = _stacked("mixtures", (cols.mix_M, cols.mix_L, cols.mix_A), n)
     first = np.ascontiguousarray(np.broadcast_to(np.asarray(start, dtype=float), (n,)))
     K, change, history = np.empty(n), np.empty(n), np.full(max_steps, -np.inf)
-    line, states = _scratch.get("line", (2, n)), _scratch.get("states", (4, nm, n))
+    line, states = _scratch.output("line", (2, n)), _scratch.output("states", (4, nm, n))
     taken = kernel(std, np.asarray(cols.counts, dtype=float), np.asarray(cols.factors, dtype=float), mix,
                    np.asarray(cols.weights, dtype=float), first, int(max_steps), float(stop), float(converged),
                    K, line, states, change, history)
     steps = [float(h) if h > -np.inf else float("nan") for h in history[:taken]]
-    per_mixture = [tuple(states[q, j].copy() for q in range(4)) for j in range(nm)]
-    return K, line[0].copy(), line[1].copy(), per_mixture, steps, change
+    per_mixture = [tuple(states[q, j] for q in range(4)) for j in range(nm)]
+    return K, line[0], line[1], per_mixture, steps, change
