@@ -16,7 +16,7 @@ import numba
 import numpy as np
 
 _jit = numba.njit(cache=True, error_model="numpy", nogil=True)
-LANES = 64  # trials stepped side by side: the loops over them compile to vector instructions
+LANES = 256  # trials stepped side by side: the loops over them compile to vector instructions
 
 
 @_jit
