@@ -227,3 +227,22 @@ def test_results_held_by_the_caller_are_not_overwritten_by_the_next_solve(nickel
     del first, second
     third = solved(1)  # nothing holds the earlier results now: the same numbers as the first time
     np.testing.assert_array_equal(third.slope, kept[0])
+
+
+def test_a_compiler_that_cannot_be_imported_leaves_the_numpy_path_with_a_note(monkeypatch, caplog, nickel_demo):
+    # numba missing (its module cannot be imported): no error, a logged note, and the trials are
+    # solved by numpy with the numbers the compiled path gives
+    model = nickel_demo.model
+    draws = draw_many(list(model.sources.values()), 2000, np.random.default_rng(4))
+    with np.errstate(all="ignore"):
+        expected = model.evaluate(draws)
+    monkeypatch.setattr(kernels, "_compiled", None)
+    monkeypatch.delitem(sys.modules, "validate.model._fixed_point_kernel", raising=False)
+    monkeypatch.setitem(sys.modules, "numba", None)  # `import numba` now fails as if it were not installed
+    with caplog.at_level("INFO", logger="validate.model.kernels"):
+        assert not kernels.available()
+        with np.errstate(all="ignore"):
+            found = model.evaluate(draws)
+    assert "not used (ModuleNotFoundError" in caplog.text and "numba" in caplog.text
+    for label in model.result_labels:
+        _same(found[label], expected[label], label)

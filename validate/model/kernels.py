@@ -25,6 +25,7 @@ import math
 import os
 import sys
 import threading
+import time
 from typing import Any
 
 import numpy as np
@@ -57,11 +58,17 @@ def _kernel():
     if _compiled is None:
         try:
             from validate.model._fixed_point_kernel import compiled
+            start = time.process_time()
             _compiled = compiled()
         except Exception as exc:  # any failure to import or compile means: use numpy
             log.info("the compiled fixed point is not used (%s: %s); the numpy path solves the trials",
                      type(exc).__name__, exc)
             _compiled = False
+        else:
+            stats = _compiled.stats
+            how = "compiled and cached" if stats.cache_misses else "loaded from the cache"
+            log.info("the compiled fixed point was %s in %.2f s CPU (cache: %s)", how,
+                     time.process_time() - start, stats.cache_path)
     return _compiled or None
 
 
