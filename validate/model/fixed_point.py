@@ -13,7 +13,9 @@ dozen. A step that would leave K > 0 falls back to the plain step F(K).
 
 Backends: plain floats and numpy arrays of trials step directly, arrays in blocks of trials
 small enough to stay in the processor's cache (a step is a few hundred elementwise
-operations); `uncertainties` numbers step on their nominal values, then take one Newton step
+operations), or, where numba is available, every trial in one compiled loop that does the same
+operations in the same order (`validate.model.kernels`; this numpy path is its reference and
+its fallback); `uncertainties` numbers step on their nominal values, then take one Newton step
 in their own arithmetic from the converged value, which gives exactly the derivatives of the
 implicit function, dK/dx = -g_x / g'(K) at g = 0.
 """
@@ -29,6 +31,7 @@ import numpy as np
 from uncertainties.core import AffineScalarFunc
 
 from validate.model import backend as mathops
+from validate.model import kernels
 from validate.model.ice import IceTable, equilibrium_constant
 
 BLOCK = 10_000  # trials per block: the arrays of a step stay in a processor's cache; as many as the
@@ -355,8 +358,12 @@ def _cut(v, s: slice):
 
 
 def _solve_blocks(cols: Columns, n: int, start, limiting_totals, max_steps: int) -> Solved:
-    """Arrays of trials, a block at a time; every output preallocated once (a single block's
+    """Arrays of trials: every trial in one compiled loop (`validate.model.kernels`) where it is
+    available, else a block at a time on numpy; every output preallocated once (a single block's
     arrays are returned as they are, without a copy)."""
+    compiled = _solve_compiled(cols, start, limiting_totals, max_steps)
+    if compiled is not None:
+        return compiled
     if n <= BLOCK:
         return _solve_block(cols, slice(0, n), start, limiting_totals, max_steps)
     out = {k: np.empty(n) for k in ("K", "slope", "intercept", "change")}
@@ -370,6 +377,19 @@ def _solve_blocks(cols: Columns, n: int, start, limiting_totals, max_steps: int)
     history = [h if h > -math.inf else math.nan for h in history]
     states = tuple(IceTable(*arrays) for arrays in mix)
     return Solved(out["K"], out["slope"], out["intercept"], states, history, out["change"])
+
+
+def _solve_compiled(cols: Columns, start, limiting_totals, max_steps: int) -> Solved | None:
+    """Every trial by the compiled loop, the same numbers as `_solve_block` gives; None when it is
+    not available (numba missing, failing to load, or switched off)."""
+    if not kernels.available():
+        return None
+    first = naive_start(cols, limiting_totals) if start is None else start
+    found = kernels.solve_trials(cols, first, max_steps, STOP, CONVERGED)
+    if found is None:
+        return None
+    K, slope, intercept, states, steps, change = found
+    return Solved(K, slope, intercept, tuple(IceTable(*state) for state in states), steps, change)
 
 
 def _solve_block(cols: Columns, s: slice, start, limiting_totals, max_steps: int) -> Solved:

@@ -1,0 +1,245 @@
+"""The compiled loop over trials behind `validate.model.kernels` (imports numba: load it only
+through `kernels`, which falls back to numpy when this module cannot be had).
+
+Every formula is `validate.model.fixed_point`'s, written per trial with the operations in the
+same order (sums over standards and mixtures from the first to the last, a count of 1 and a
+factor of 1 not multiplied), so a trial's numbers match the numpy path's to round-off. numba
+compiles without fast-math (no reordering, no fused multiply-add) and with numpy's error model
+(a division by zero gives inf or nan, as on arrays, instead of raising).
+"""
+
+from __future__ import annotations
+
+import math
+
+import numba
+import numpy as np
+
+_jit = numba.njit(cache=True, error_model="numpy", nogil=True)
+LANES = 256  # trials stepped side by side: the loops over them compile to vector instructions
+
+
+@_jit
+def _points(K, std, lo, n_lanes, counts, factors, xs, dxs, x_sum, derivative):
+    """[ML] of every standard at K (xs) for the trials lo .. lo + n_lanes, their count-weighted
+    sum (x_sum) and, with `derivative`, d[ML]/dK (dxs): fixed_point.standards_line's loop."""
+    for t in range(n_lanes):
+        x_sum[t] = 0.0
+    for i in range(counts.size):
+        phi, c, one_c, one_phi = factors[i], counts[i], counts[i] == 1.0, factors[i] == 1.0
+        M, L, x_i, dx_i = std[0, i], std[1, i], xs[i], dxs[i]
+        for t in range(n_lanes):
+            m, l_ = M[lo + t], L[lo + t]
+            d = m - l_
+            inv_k = 1.0 / K[t] if one_phi else 1.0 / (K[t] * phi)
+            root = math.sqrt(d * d + (2.0 * (m + l_) + inv_k) * inv_k)
+            x = 2.0 * m * l_ / (m + l_ + inv_k + root)
+            x_i[t] = x
+            x_sum[t] = x_sum[t] + (x if one_c else c * x)
+            if derivative:
+                dx = x * inv_k * inv_k / root
+                dx_i[t] = dx if one_phi else phi * dx
+
+
+@_jit
+def _centred_sums(std, lo, n_lanes, counts, y_mean, xs, x_mean, ys, own, out_xx, out_xy):
+    """Over the standards, sum c (x - x_mean) v and sum c v (A - y_mean), v the deviation
+    x - x_mean itself when `own` (sxx, sxy), else ys (the derivatives: d sxx/dK / 2, d sxy/dK)."""
+    for t in range(n_lanes):
+        out_xx[t] = 0.0
+        out_xy[t] = 0.0
+    for i in range(counts.size):
+        c, one_c, A, x_i, y_i = counts[i], counts[i] == 1.0, std[2, i], xs[i], ys[i]
+        for t in range(n_lanes):
+            dev = x_i[t] - x_mean[t]
+            e = A[lo + t] - y_mean[t]
+            v = dev if own else y_i[t]
+            out_xx[t] = out_xx[t] + (dev * v if one_c else c * (dev * v))
+            out_xy[t] = out_xy[t] + (v * e if one_c else c * (v * e))
+
+
+@_jit
+def _line(K, std, lo, n_lanes, counts, factors, total, y_mean, xs, dxs, out, derivative):
+    """The standards' line at K for the trials lo .. lo + n_lanes (fixed_point.standards_line):
+    out[0], out[1] = slope, intercept; with `derivative` out[2], out[3] = their derivatives by K.
+    xs, dxs: scratch of one row per standard; out[4:11]: scratch of the sums."""
+    x_sum, sxx, sxy, x_mean, d_sum, d_sxx, d_sxy = out[4], out[5], out[6], out[7], out[8], out[9], out[10]
+    _points(K, std, lo, n_lanes, counts, factors, xs, dxs, x_sum, derivative)
+    for t in range(n_lanes):
+        x_mean[t] = x_sum[t] / total
+    _centred_sums(std, lo, n_lanes, counts, y_mean, xs, x_mean, xs, True, sxx, sxy)
+    slope, intercept = out[0], out[1]
+    for t in range(n_lanes):
+        slope[t] = sxy[t] / sxx[t]
+        intercept[t] = y_mean[t] - slope[t] * x_mean[t]
+    if not derivative:
+        return
+    _points_sum(dxs, n_lanes, counts, d_sum)
+    _centred_sums(std, lo, n_lanes, counts, y_mean, xs, x_mean, dxs, False, d_sxx, d_sxy)
+    d_slope, d_intercept = out[2], out[3]
+    for t in range(n_lanes):
+        d_slope[t] = (d_sxy[t] - slope[t] * (2.0 * d_sxx[t])) / sxx[t]
+        d_intercept[t] = -(d_slope[t] * x_mean[t] + slope[t] * (d_sum[t] / total))
+
+
+@_jit
+def _points_sum(values, n_lanes, counts, out):
+    """sum c_i values_i over the standards, per trial."""
+    for t in range(n_lanes):
+        out[t] = 0.0
+    for i in range(counts.size):
+        c, one_c, v = counts[i], counts[i] == 1.0, values[i]
+        for t in range(n_lanes):
+            out[t] = out[t] + (v[t] if one_c else c * v[t])
+
+
+@_jit
+def _steps(K, std, mix, weights, lo, n_lanes, counts, factors, total, y_mean, xs, dxs, line, sums, K_new):
+    """One Newton step of the trials lo .. lo + n_lanes from K into K_new (fixed_point._step with
+    fixed_point.combination)."""
+    _line(K, std, lo, n_lanes, counts, factors, total, y_mean, xs, dxs, line, True)
+    slope, intercept, d_slope, d_intercept = line[0], line[1], line[2], line[3]
+    F, sum_q, sum_qc = sums[0], sums[1], sums[2]
+    for t in range(n_lanes):
+        F[t] = 0.0
+        sum_q[t] = 0.0
+        sum_qc[t] = 0.0
+    for j in range(weights.size):
+        w = weights[j]
+        if w == 0.0:
+            continue
+        M, L, A = mix[0, j], mix[1, j], mix[2, j]
+        for t in range(n_lanes):
+            c = (A[lo + t] - intercept[t]) / slope[t]
+            free_m = M[lo + t] - c
+            free_l = L[lo + t] - c
+            den = free_m * free_l
+            k = c / den
+            F[t] = F[t] + w * k
+            wq = w * (1.0 + k * (free_m + free_l)) / den
+            sum_q[t] = sum_q[t] + wq
+            sum_qc[t] = sum_qc[t] + wq * c
+    for t in range(n_lanes):
+        dF = -(d_intercept[t] * sum_q[t] + d_slope[t] * sum_qc[t]) / slope[t]
+        newton = K[t] - (F[t] - K[t]) / (dF - 1.0)
+        K_new[t] = newton if (math.isfinite(newton) and newton > 0) else F[t]
+
+
+@_jit
+def _predicted(change, previous):
+    """fixed_point._predicted for one trial."""
+    d, p = abs(change), abs(previous)
+    predicted = 0.0 if d == 0.0 else d * d * d / (p * p)
+    if not math.isfinite(predicted) and math.isfinite(d):
+        return math.inf
+    return predicted
+
+
+@_jit
+def _fmin(a, b):
+    """numpy's fmin: the smaller, ignoring a nan."""
+    if math.isnan(a):
+        return b
+    if math.isnan(b):
+        return a
+    return a if a <= b else b
+
+
+@_jit
+def _settle(K, K_new, change, previous, active, n_lanes, step, stop, history):
+    """Take the step in the trials still stepping, record its largest finite relative change and
+    stop a trial once its change, or its next change predicted from the last two, is at most
+    `stop` or not a number (fixed_point._solve_trials); returns how many still step."""
+    left = 0
+    for t in range(n_lanes):
+        if not active[t]:
+            continue
+        ch = (K_new[t] - K[t]) / K_new[t]
+        previous[t], change[t], K[t] = change[t], ch, K_new[t]
+        size = abs(ch)
+        if math.isfinite(size) and size > history[step]:
+            history[step] = size
+        if size <= stop or _predicted(ch, previous[t]) <= stop or not math.isfinite(ch):
+            active[t] = False
+        else:
+            left += 1
+    return left
+
+
+@_jit
+def _begin(std, start, lo, n_lanes, counts, total, K, change, previous, active, y_mean):
+    """The lanes' first K, no change yet, all stepping, and the standards' mean reading (which K
+    does not change: fixed_point.Columns.readings_centred)."""
+    for t in range(n_lanes):
+        K[t] = start[lo + t]
+        change[t] = math.nan
+        previous[t] = math.nan
+        active[t] = True
+    _points_sum(std[2, :, lo:lo + n_lanes], n_lanes, counts, y_mean)
+    for t in range(n_lanes):
+        y_mean[t] = y_mean[t] / total
+
+
+@_jit
+def _states(std, mix, lo, n_lanes, counts, factors, total, y_mean, K, xs, dxs, line, line_out, states_out):
+    """The line and every mixture's ICE table at the solved K (fixed_point.states_at; ice.py's
+    equilibrium_constant)."""
+    _line(K, std, lo, n_lanes, counts, factors, total, y_mean, xs, dxs, line, False)
+    for t in range(n_lanes):
+        line_out[0, lo + t] = line[0, t]
+        line_out[1, lo + t] = line[1, t]
+    for j in range(mix.shape[1]):
+        M, L, A = mix[0, j], mix[1, j], mix[2, j]
+        for t in range(n_lanes):
+            c = (A[lo + t] - line[1, t]) / line[0, t]
+            free_m = M[lo + t] - c
+            free_l = L[lo + t] - c
+            states_out[0, j, lo + t] = c
+            states_out[1, j, lo + t] = free_m
+            states_out[2, j, lo + t] = free_l
+            states_out[3, j, lo + t] = c / (free_m * free_l)
+
+
+@_jit
+def solve(std, counts, factors, mix, weights, start, max_steps, stop, converged, K_out, line_out, states_out,
+          change_out, history):
+    """Every trial's fixed point and the states there (fixed_point._solve_block, states_at):
+    std, mix: (M, L, A) x point x trial; fills K_out, line_out (slope, intercept), states_out
+    (complex, free M, free L, K) x mixture x trial, change_out; history[s]: the largest finite
+    |relative change| at step s (-inf where none); returns the most steps a trial took. Trials
+    step LANES at a time; a trial that has settled is no longer changed while the others step."""
+    ns, n = std.shape[1], std.shape[2]
+    total = 0.0
+    for i in range(ns):
+        total = total + counts[i]
+    xs, dxs = np.empty((ns, LANES)), np.empty((ns, LANES))
+    line, sums = np.empty((11, LANES)), np.empty((3, LANES))
+    K, K_new, y_mean = np.empty(LANES), np.empty(LANES), np.empty(LANES)
+    change, previous = np.empty(LANES), np.empty(LANES)
+    active = np.empty(LANES, dtype=np.bool_)
+    most = 0
+    for lo in range(0, n, LANES):
+        n_lanes = min(LANES, n - lo)
+        _begin(std, start, lo, n_lanes, counts, total, K, change, previous, active, y_mean)
+        for step in range(max_steps):
+            _steps(K, std, mix, weights, lo, n_lanes, counts, factors, total, y_mean, xs, dxs, line, sums, K_new)
+            most = max(most, step + 1)
+            if _settle(K, K_new, change, previous, active, n_lanes, step, stop, history) == 0:
+                break
+        for t in range(n_lanes):
+            remaining = _fmin(abs(change[t]), _predicted(change[t], previous[t]))
+            # a trial whose correction has not converged has no defined K
+            K[t] = K[t] if remaining <= converged else math.nan
+            K_out[lo + t] = K[t]
+            change_out[lo + t] = remaining
+        _states(std, mix, lo, n_lanes, counts, factors, total, y_mean, K, xs, dxs, line, line_out, states_out)
+    return most
+
+
+def compiled():
+    """The compiled `solve`, compiled (or loaded from numba's cache) here for the one signature
+    the caller uses, so a failure shows at once and not in the middle of a run."""
+    f8, i8 = numba.float64, numba.int64
+    a1, a2, a3 = f8[::1], f8[:, ::1], f8[:, :, ::1]
+    solve.compile((a3, a1, a1, a3, a1, a1, i8, f8, f8, a1, a2, a3, a1, a1))
+    return solve

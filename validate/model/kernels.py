@@ -1,0 +1,136 @@
+"""The fixed point of the correction of the standards, compiled: one loop over trials.
+
+The numpy path of `validate.model.fixed_point` steps every trial of a block together, a few
+hundred elementwise passes over the block per Newton step, each pass through memory. Here the
+trials go 256 at a time through fused loops over small work arrays that stay in the processor's
+cache, compiled by numba (an LLVM compiler of a subset of Python and numpy) to vector
+instructions; a trial stops stepping when its own change is settled, as on numpy. It solves
+the same equations with the same operations in the same order, so each trial's K, line and ICE
+tables are the numpy path's (bit for bit here; tests/test_fixed_point_kernel.py checks 1e-12);
+the numpy path stays the reference and the fallback.
+
+numba is imported only when an equilibrium study's Monte Carlo trials are solved, never by
+`validate --help` or `validate check`. When it is missing, fails to load or to compile, or the
+environment variable VALIDATE_NO_KERNEL is set, `solve_trials` returns None and the caller
+takes the numpy path; why is logged once (logger `validate.model.kernels`), never raised.
+The compiled code is cached on disk (numba's `cache=True`: beside this module in __pycache__,
+or in the user's cache folder when the package folder cannot be written), so only the first run
+on a machine pays the compilation.
+"""
+
+from __future__ import annotations
+
+import logging
+import math
+import os
+import sys
+import threading
+import time
+from typing import Any
+
+import numpy as np
+
+log = logging.getLogger(__name__)
+
+DISABLE = "VALIDATE_NO_KERNEL"  # set (to anything but "" or "0") to use the numpy path only
+
+_compiled: Any = None  # the compiled function once loaded; False when it cannot be had
+_enabled = True
+
+
+def enable(on: bool) -> bool:
+    """Turn the compiled path on or off for this process (tests compare the two); returns the
+    previous setting."""
+    global _enabled
+    previous, _enabled = _enabled, bool(on)
+    return previous
+
+
+def available() -> bool:
+    """Whether the compiled path will be used (compiles or loads it on first call)."""
+    return _kernel() is not None
+
+
+def _kernel():
+    global _compiled
+    if not _enabled or os.environ.get(DISABLE, "") not in ("", "0"):
+        return None
+    if _compiled is None:
+        try:
+            from validate.model._fixed_point_kernel import compiled
+            start = time.process_time()
+            _compiled = compiled()
+        except Exception as exc:  # any failure to import or compile means: use numpy
+            log.info("the compiled fixed point is not used (%s: %s); the numpy path solves the trials",
+                     type(exc).__name__, exc)
+            _compiled = False
+        else:
+            stats = _compiled.stats
+            how = "compiled and cached" if stats.cache_misses else "loaded from the cache"
+            log.info("the compiled fixed point was %s in %.2f s CPU (cache: %s)", how,
+                     time.process_time() - start, stats.cache_path)
+    return _compiled or None
+
+
+class _Scratch(threading.local):
+    """Arrays kept between calls (per thread), grown when too small. The stacked columns and the
+    kernel's outputs are megabytes for a slice of trials, and arrays of that size made anew for
+    every slice each cost the operating system fresh zeroed pages, more time than the arithmetic
+    they hold. Work arrays are reused as they are; an output array is handed to the caller and
+    reused only once nothing refers to it any more (the Monte Carlo engine copies a slice's
+    results and drops them), else a new one is made."""
+
+    def __init__(self) -> None:
+        self.arrays: dict[str, np.ndarray] = {}
+        self.alone: dict[str, int] = {}  # an output's reference count when nothing outside refers to it
+
+    def work(self, name: str, shape: tuple[int, ...]) -> np.ndarray:
+        size = math.prod(shape)
+        found = self.arrays.get(name)
+        if found is None or found.size < size:
+            found = self.arrays[name] = np.empty(size)
+        return found[:size].reshape(shape)
+
+    def output(self, name: str, shape: tuple[int, ...]) -> np.ndarray:
+        size = math.prod(shape)
+        found = self.arrays.get(name)
+        if found is not None and (found.size < size or sys.getrefcount(found) > self.alone[name]):
+            found = None  # still held by a caller (views of it count): make a new one
+        if found is None:
+            found = self.arrays[name] = np.empty(size)
+            self.alone[name] = sys.getrefcount(found)
+        return found[:size].reshape(shape)
+
+
+_scratch = _Scratch()
+
+
+def _stacked(name: str, kinds, n: int) -> np.ndarray:
+    """Columns (M, L, A) of the standards or the mixtures, each a plain number or an array of n
+    trials, as one (3, points, n) array for the compiled loop."""
+    out = _scratch.work(name, (3, len(kinds[0]), n))
+    for rows, columns in zip(out, kinds, strict=True):
+        for row, value in zip(rows, columns, strict=True):
+            row[...] = value
+    return out
+
+
+def solve_trials(cols, start, max_steps: int, stop: float, converged: float):
+    """(K, slope, intercept, states, history, remaining error) of every trial of `cols` (arrays of
+    n trials), as `fixed_point._solve_block` gives them, or None when the compiled path is not
+    available. states: per mixture (complex, free M, free L, K), each an array of n."""
+    kernel = _kernel()
+    if kernel is None:
+        return None
+    n, nm = cols.trials(), len(cols.mix_A)
+    std = _stacked("standards", (cols.std_M, cols.std_L, cols.std_A), n)
+    mix = _stacked("mixtures", (cols.mix_M, cols.mix_L, cols.mix_A), n)
+    first = np.ascontiguousarray(np.broadcast_to(np.asarray(start, dtype=float), (n,)))
+    K, change, history = np.empty(n), np.empty(n), np.full(max_steps, -np.inf)
+    line, states = _scratch.output("line", (2, n)), _scratch.output("states", (4, nm, n))
+    taken = kernel(std, np.asarray(cols.counts, dtype=float), np.asarray(cols.factors, dtype=float), mix,
+                   np.asarray(cols.weights, dtype=float), first, int(max_steps), float(stop), float(converged),
+                   K, line, states, change, history)
+    steps = [float(h) if h > -np.inf else float("nan") for h in history[:taken]]
+    per_mixture = [tuple(states[q, j] for q in range(4)) for j in range(nm)]
+    return K, line[0], line[1], per_mixture, steps, change
