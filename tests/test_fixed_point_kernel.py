@@ -49,20 +49,32 @@ def _solve(cols, on: bool, **kwargs) -> fixed_point.Solved:
         return fixed_point.solve(cols, **kwargs)
 
 
-def _same(a, b, what: str) -> None:
+def _same(a, b, what: str, atol: float = 0.0) -> None:
     a, b = np.asarray(a, dtype=float), np.asarray(b, dtype=float)
     np.testing.assert_array_equal(np.isnan(a), np.isnan(b), err_msg=f"{what}: undefined trials differ")
-    np.testing.assert_allclose(a, b, rtol=RTOL, atol=0.0, equal_nan=True, err_msg=what)
+    np.testing.assert_allclose(a, b, rtol=RTOL, atol=atol, equal_nan=True, err_msg=what)
 
 
-def _compare(cols, **kwargs) -> tuple[fixed_point.Solved, fixed_point.Solved]:
+def _compare(cols, scale: dict | None = None, **kwargs) -> tuple[fixed_point.Solved, fixed_point.Solved]:
+    """Both paths on `cols`; `scale` (K, slope, intercept, concentration: the study's own sizes) sets
+    an absolute floor of RTOL times that size, for trials where a quantity is driven towards zero
+    (a degenerate random study whose K collapses: both paths give about 0, in different round-off)."""
+    scale = scale or {}
+    floor = {name: RTOL * scale.get(name, 0.0) for name in ("K", "slope", "intercept", "concentration")}
     fast, reference = _solve(cols, True, **kwargs), _solve(cols, False, **kwargs)
-    for name in ("K", "slope", "intercept", "change"):
-        _same(getattr(fast, name), getattr(reference, name), name)
+    for name in ("K", "slope", "intercept"):
+        _same(getattr(fast, name), getattr(reference, name), name, floor[name])
     for j, (f, r) in enumerate(zip(fast.states, reference.states, strict=True)):
         for name in ("complex_conc", "free_M", "free_L", "K"):
-            _same(getattr(f, name), getattr(r, name), f"mixture {j}: {name}")
-    _same(fast.history, reference.history, "largest change per step")
+            _same(getattr(f, name), getattr(r, name), f"mixture {j}: {name}",
+                  floor["K" if name == "K" else "concentration"])
+    # the history holds relative changes of K between steps: differences of nearly equal numbers,
+    # so round-off in K (1e-16 relative) shows in them absolutely, not relatively
+    for what, a, b in (("last change", fast.change, reference.change),
+                       ("largest change per step", fast.history, reference.history)):
+        a, b = np.asarray(a, dtype=float), np.asarray(b, dtype=float)
+        np.testing.assert_array_equal(np.isnan(a), np.isnan(b), err_msg=f"{what}: undefined trials differ")
+        np.testing.assert_allclose(a, b, rtol=RTOL, atol=1e-13, equal_nan=True, err_msg=what)
     return fast, reference
 
 
@@ -130,17 +142,18 @@ def studies(draw):
                          (trials(mix_M, draw(st.booleans())), mix_L, readings(mix_M, mix_L)),
                          counts, weights, factors)
     start = draw(st.sampled_from([None, K, 1.3 * K]))
-    return cols, start, std_L, draw(st.sampled_from([12, 12, 12, 4, 2]))  # mostly enough steps to settle
+    sizes = {"K": K, "slope": eps, "intercept": blank + 1.0, "concentration": 5.0 * excess * scale}
+    return cols, start, std_L, draw(st.sampled_from([12, 12, 12, 4, 2])), sizes  # mostly enough steps to settle
 
 
 @settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(studies())
 def test_random_studies_agree_with_the_numpy_path(study):
-    cols, start, limiting, steps = study
-    fast, reference = _compare(cols, start=start, limiting_totals=limiting, max_steps=steps)
+    cols, start, limiting, steps, sizes = study
+    fast, reference = _compare(cols, sizes, start=start, limiting_totals=limiting, max_steps=steps)
     for i, (f, r) in enumerate(zip(_corrected_standards(fast, cols), _corrected_standards(reference, cols),
                                    strict=True)):
-        _same(f, r, f"standard {i}: corrected [ML]")
+        _same(f, r, f"standard {i}: corrected [ML]", RTOL * sizes["concentration"])
 
 
 def test_iterate_standards_on_trials_agrees_with_the_numpy_path():
