@@ -22,8 +22,8 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 from matplotlib.ticker import FixedLocator, FormatStrFormatter, NullFormatter
 from PIL import Image
-from scipy import stats
 
+from validate.metrology.probability import normal_density, t_density, t_quantile
 from validate.model.line import level_sums
 from validate.model.quadratic import rising_root
 from validate.validation.window import error_curve
@@ -91,7 +91,7 @@ def prediction_band(x, y, grid, slope: float, intercept: float, p: float = 0.95)
     residuals = y - (intercept + slope * x)
     s = math.sqrt(float(np.sum(residuals**2)) / (n - 2))
     sums = level_sums([1.0] * n, x.tolist(), y.tolist())  # xbar and Sxx of the package's one line
-    t = stats.t.ppf(0.5 + p / 2, n - 2)
+    t = t_quantile(0.5 + p / 2, n - 2)
     return t * s * np.sqrt(1.0 + 1.0 / n + (grid - sums.x_mean) ** 2 / sums.sxx), s
 
 
@@ -116,7 +116,7 @@ def _second_order_band(so: dict, grid, p: float = 0.95):
     g = np.vstack([np.ones_like(grid), grid, grid**2])
     var_fit = np.einsum("in,ij,jn->n", g, v, g)
     s = float(so["residual_standard_deviation"])
-    return stats.t.ppf(0.5 + p / 2, so["dof"]) * np.sqrt(s * s + var_fit)
+    return t_quantile(0.5 + p / 2, so["dof"]) * np.sqrt(s * s + var_fit)
 
 
 def _line_panel(ax, points: dict, samples: list, grid, line: tuple[float, float, float], half) -> None:
@@ -252,9 +252,9 @@ def monte_carlo_figure(mc: dict, value: float, u: float, nu_eff, unit: str) -> R
     ax.stairs(density, edges, fill=True, color=BAND, label="Monte Carlo trials")  # one patch, not one per bin
     grid = np.linspace(edges[0], edges[-1], 400)
     if nu_eff is None or not math.isfinite(nu_eff) or nu_eff > 1e6:
-        curve, label = stats.norm.pdf(grid, value, u), "GUM: normal, y and u(y)"
+        curve, label = normal_density(grid, value, u), "GUM: normal, y and u(y)"
     else:
-        curve = stats.t.pdf((grid - value) / u, nu_eff) / u
+        curve = t_density((grid - value) / u, nu_eff) / u
         label = f"GUM: t distribution, ν_eff = {nu_eff:.0f}, y and u(y)"
     ax.plot(grid, curve, color=LINE, linewidth=1.4, label=label)
     marks = [("interval", WARM, "-", "Monte Carlo, probabilistically symmetric"),
@@ -351,9 +351,9 @@ def _mc_panel(ax, mc: dict, value: float, u: float, nu_eff) -> None:
     ax.stairs(density, edges, fill=True, color=BAND)  # one patch, not one per bin
     grid = np.linspace(edges[0], edges[-1], 200)
     if nu_eff is None or not math.isfinite(nu_eff) or nu_eff > 1e6:
-        curve = stats.norm.pdf(grid, value, u)
+        curve = normal_density(grid, value, u)
     else:
-        curve = stats.t.pdf((grid - value) / u, nu_eff) / u
+        curve = t_density((grid - value) / u, nu_eff) / u
     ax.plot(grid, curve, color=LINE, linewidth=1.1)
     for key, colour, style in (("interval", WARM, "-"), ("shortest_interval", BAD, "--"),
                                ("gum_interval", LINE, ":")):
