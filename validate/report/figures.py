@@ -14,6 +14,7 @@ import io
 import math
 from dataclasses import dataclass
 
+import matplotlib.collections
 import matplotlib.lines
 import matplotlib.patches
 import matplotlib.ticker
@@ -308,6 +309,16 @@ STEP_COLOURS = ("#2f5d7c", "#c98a2b", "#7d8a95", "#5f9e6e", "#a02c2c", "#8c6bb1"
                 "#3d3d3d", "#9ecae1")
 
 
+def _bar_segments(ax, positions, left, values, colour: str, label: str, height: float = 0.66) -> None:
+    """One step's segments of the stacked bars (what barh draws) as one collection, not one
+    rectangle object per result: a chart of 25 results and 8 steps would hold 200."""
+    half = height / 2
+    boxes = [[(x0, y - half), (x0 + w, y - half), (x0 + w, y + half), (x0, y + half)]
+             for y, x0, w in zip(positions, left, values, strict=True)]
+    ax.add_collection(matplotlib.collections.PolyCollection(
+        boxes, facecolors=colour, edgecolors="white", linewidths=0.4, label=label))
+
+
 def step_shares_chart(bars: list[tuple[str, list[tuple[str, float]]]]) -> Raster:
     """One stacked bar per result: its variance shared out by step, the steps in one legend."""
     steps: list[str] = []
@@ -324,8 +335,7 @@ def step_shares_chart(bars: list[tuple[str, list[tuple[str, float]]]]) -> Raster
     left = np.zeros(len(bars))
     for i, step in enumerate(steps):
         values = np.array([100.0 * dict(groups).get(step, 0.0) for _, groups in bars])
-        ax.barh(positions, values, left=left, height=0.66, color=STEP_COLOURS[i % len(STEP_COLOURS)],
-                label=_short(step, 38), edgecolor="white", linewidth=0.4)
+        _bar_segments(ax, positions, left, values, STEP_COLOURS[i % len(STEP_COLOURS)], _short(step, 38))
         for pos, v, start in zip(positions, values, left, strict=True):
             if v >= 8:  # a label where the segment is wide enough to hold it
                 ax.text(start + v / 2, pos, f"{v:.0f}", ha="center", va="center", fontsize=6.5,
@@ -339,6 +349,22 @@ def step_shares_chart(bars: list[tuple[str, list[tuple[str, float]]]]) -> Raster
     ax.grid(False, axis="y")
     fig.legend(fontsize=7, frameon=False, loc="lower center", ncol=4, bbox_to_anchor=(0.5, 0.0))
     return _raster(fig)
+
+
+def _interval_marks(ax, mc: dict) -> None:
+    """The ends of the three intervals as vertical lines over the panel's height, each interval's
+    pair as one collection: what axvline draws, without a line object and its transforms per end
+    (a page of small multiples has dozens)."""
+    for key, colour, style in (("interval", WARM, "-"), ("shortest_interval", BAD, "--"),
+                               ("gum_interval", LINE, ":")):
+        ends = mc.get(key)
+        if not (ends and all(e is not None for e in ends)):
+            continue
+        ax.add_collection(matplotlib.collections.LineCollection(
+            [[(float(e), 0.0), (float(e), 1.0)] for e in ends], colors=colour, linestyles=style,
+            linewidths=1.0, capstyle="projecting" if style == "-" else "butt", zorder=2,
+            transform=ax.get_xaxis_transform()), autolim=False)
+        ax.update_datalim([(float(e), 0.0) for e in ends], updatex=True, updatey=False)  # kept in view
 
 
 def _mc_panel(ax, mc: dict, value: float, u: float, nu_eff) -> None:
@@ -355,12 +381,7 @@ def _mc_panel(ax, mc: dict, value: float, u: float, nu_eff) -> None:
     else:
         curve = t_density((grid - value) / u, nu_eff) / u
     ax.plot(grid, curve, color=LINE, linewidth=1.1)
-    for key, colour, style in (("interval", WARM, "-"), ("shortest_interval", BAD, "--"),
-                               ("gum_interval", LINE, ":")):
-        ends = mc.get(key)
-        if ends and all(e is not None for e in ends):
-            for end in ends:
-                ax.axvline(end, color=colour, linestyle=style, linewidth=1.0)
+    _interval_marks(ax, mc)
     ax.set_yticks([])
     ax.tick_params(labelsize=6.5)
     ax.xaxis.set_major_locator(matplotlib.ticker.MaxNLocator(4))
