@@ -11,7 +11,6 @@ import re
 from collections.abc import Sequence
 from functools import lru_cache
 from pathlib import Path
-from xml.sax.saxutils import escape
 
 import matplotlib
 from reportlab.lib import colors
@@ -89,6 +88,12 @@ def styles() -> dict[str, ParagraphStyle]:
         "formula": _style("formula", fontName=FONT_MONO, fontSize=10, leading=13, leftIndent=12,
                           spaceBefore=2, spaceAfter=6),
     }
+
+
+def escape(value: str) -> str:
+    """&, < and > as entities, for reportlab's paragraph markup (what xml.sax.saxutils.escape does;
+    that module is not imported because it pulls in urllib, http and ssl: about 0.08 s per run)."""
+    return value.replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;")
 
 
 CODE = re.compile(r"`([^`\n]+)`")  # `repeatability`: a key as the text names it (Markdown's code span)

@@ -14,7 +14,6 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import optimize
 
 from validate.inputs.schema import AMOUNT_CONCENTRATION, MASS_CONCENTRATION
 from validate.inputs.units import Unit
@@ -201,7 +200,9 @@ def exact_delta(dof: int, alpha: float, beta: float) -> float:
     hi = max(float(t_crit + normal_quantile(1 - beta)), 1.0)
     while excess(hi) > 0:  # widen the bracket in small steps (nct.cdf fails far out)
         hi *= 1.5
-    return float(optimize.brentq(excess, 0.0, hi))
+    from scipy.optimize import brentq  # imported here: scipy.optimize is slow to import
+
+    return float(brentq(excess, 0.0, hi))
 
 
 def iso11843_2(fit: LineFit, alpha: float = 0.05, beta: float = 0.05,
