@@ -150,3 +150,9 @@ def test_spearman_equals_scipy_stats_with_and_without_ties():
             rho, p = pr.spearman_increasing(x, y)
             ref = stats.spearmanr(x, y, alternative="greater")
             assert close(rho, float(ref.statistic)) and close(p, float(ref.pvalue)), (x, y)
+
+
+def test_spearman_with_a_value_that_is_not_finite_gives_nan_as_scipy_does():
+    rho, p = pr.spearman_increasing([1.0, 2.0, 3.0, 4.0], [0.1, float("nan"), 0.3, 0.2])
+    ref = stats.spearmanr([1.0, 2.0, 3.0, 4.0], [0.1, float("nan"), 0.3, 0.2], alternative="greater")
+    assert math.isnan(rho) and math.isnan(p) and math.isnan(ref.statistic) and math.isnan(ref.pvalue)

@@ -110,7 +110,10 @@ def spearman_increasing(x, y) -> tuple[float, float]:
     rho is Pearson's correlation of the average ranks; p is P(T > t) with
     t = rho sqrt((n - 2) / ((1 + rho)(1 - rho))) and n - 2 degrees of freedom (the t
     approximation; NIST/SEMATECH e-Handbook of Statistical Methods, 1.3.5 on rank correlation,
-    from memory). x and y need at least 3 values, and neither may be constant."""
+    from memory). x and y need at least 3 values, and neither may be constant; a value that is
+    not finite gives nan for both, as scipy.stats.spearmanr does."""
+    if not (np.all(np.isfinite(x)) and np.all(np.isfinite(y))):
+        return math.nan, math.nan
     ranked = np.column_stack((average_ranks(x), average_ranks(y)))
     rho = np.corrcoef(ranked, rowvar=False)[1, 0]
     dof = len(ranked) - 2
