@@ -16,8 +16,6 @@ import math
 import numpy as np
 from scipy import special
 
-_LOG_SQRT_2PI = 0.5 * math.log(2.0 * math.pi)
-
 
 def normal_quantile(p):
     """x with P(Z <= x) = p for the standard normal Z."""

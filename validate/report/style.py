@@ -192,7 +192,8 @@ class CellLine(Flowable):
 def cell(value, style: ParagraphStyle, width_mm: float = 174.0) -> Flowable:
     """A table cell of `value`: a CellLine for plain text, else a Paragraph of cell_text."""
     shown = str(value)
-    if len(shown) <= cell_limit(width_mm) and _one_plain_line(shown) and style.alignment in (TA_LEFT, TA_RIGHT):
+    quick = style.alignment in (TA_LEFT, TA_RIGHT) and not style.firstLineIndent and not style.backColor
+    if quick and len(shown) <= cell_limit(width_mm) and _one_plain_line(shown):
         return CellLine(shown, style)
     return Paragraph(cell_text(value, width_mm), style)
 
