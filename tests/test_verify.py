@@ -227,7 +227,7 @@ def test_a_failing_payload_builder_leaves_the_previous_record(record_dir, monkey
     def broken(record):
         raise RuntimeError("cannot serialise (simulated)")
 
-    monkeypatch.setattr(api, "record_json", broken)
+    monkeypatch.setattr(api, "json_members", broken)
     with pytest.raises(RuntimeError, match="simulated"):
         api.write_outputs(run, record_dir, overwrite=True)
     assert {name: (record_dir / name).read_bytes() for name in before} == before

@@ -16,8 +16,9 @@ import math
 from dataclasses import asdict, dataclass
 
 import numpy as np
-from scipy import linalg, stats
+from scipy import linalg
 
+from validate.metrology.probability import chi2_upper_tail, normal_upper_tail, t_upper_tail
 from validate.model import backend as mathops
 from validate.model.ice import describe_value
 
@@ -103,7 +104,7 @@ def combine_correlated(values, covariance, *, alpha: float = 0.05) -> CombinedVa
     chi2 = float(r @ linalg.cho_solve(factor, r))
     dof = n - 1
     birge = math.sqrt(chi2 / dof) if dof > 0 else math.nan
-    p = float(stats.chi2.sf(chi2, dof)) if dof > 0 else math.nan
+    p = float(chi2_upper_tail(chi2, dof)) if dof > 0 else math.nan
     weights = vinv_one / info
     return CombinedValue(
         value=value, standard_uncertainty=u, weights=tuple(float(w) for w in weights), n=n,
@@ -178,9 +179,9 @@ def trend_test(K_values, covariance, x, *, use_log10: bool = False, scale: str =
     se = np.sqrt(np.diag(cov))
     stat = float(beta[1] / se[1]) if se[1] > 0 else math.inf
     if scale == "observed":
-        p = float(2.0 * stats.t.sf(abs(stat), dof))
+        p = float(2.0 * t_upper_tail(abs(stat), dof))
     else:
-        p = float(2.0 * stats.norm.sf(abs(stat)))
+        p = float(2.0 * normal_upper_tail(abs(stat)))
     trend = bool(p < alpha)
     message = ("K changes with concentration; this may indicate another complex or a wrong "
                "stoichiometry" if trend else "no significant trend of K with concentration")

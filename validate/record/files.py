@@ -70,6 +70,20 @@ def record_json(record: RecordPart) -> bytes:
     return json_bytes(record.to_dict())
 
 
+def json_members(data: dict) -> dict[str, str]:
+    """Each top-level member of `data` as json_bytes writes it (`  "key": value`, nested lines
+    indented), so that a file and the same file without some members are both joined from one
+    serialisation (members_json) instead of serialising a large record twice."""
+    return {key: json.dumps({key: value}, indent=2, ensure_ascii=False, allow_nan=False)[2:-2]
+            for key, value in data.items()}
+
+
+def members_json(members: dict[str, str], leave_out: frozenset[str] = frozenset()) -> bytes:
+    """json_bytes of the dict the members came from, without the members named in `leave_out`."""
+    kept = [text for key, text in members.items() if key not in leave_out]
+    return ("{\n" + ",\n".join(kept) + "\n}\n" if kept else "{}\n").encode("utf-8")
+
+
 BUDGET_COLUMNS = ("result", "source", "step", "equipment", "value", "unit", "standard_uncertainty",
                   "distribution", "dof", "kind", "sensitivity", "contribution", "share", "provenance")
 

@@ -14,7 +14,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from validate.inputs.errors import InputError
-from validate.record.files import json_bytes, read_json_file, sha256_of
+from validate.record.files import json_bytes, members_json, read_json_file, sha256_of
 from validate.record.tree import RecordPart, RecordShapeError, described
 
 MANIFEST_FILE = "manifest.json"
@@ -25,6 +25,11 @@ RUN_METADATA = "run"
 def content_hash(record: dict) -> str:
     """SHA-256 of the record's JSON form as results.json holds it, without the run metadata."""
     return hashlib.sha256(json_bytes({k: v for k, v in record.items() if k != RUN_METADATA})).hexdigest()
+
+
+def content_hash_of_members(members: dict[str, str]) -> str:
+    """content_hash from the record's members as json_members gives them (no second serialisation)."""
+    return hashlib.sha256(members_json(members, frozenset({RUN_METADATA}))).hexdigest()
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -52,10 +57,12 @@ def files_of(folder: Path) -> list[str]:
                   if (p.is_file() or p.is_symlink()) and p.relative_to(folder).as_posix() != MANIFEST_FILE)
 
 
-def make_manifest(folder: Path, record: dict) -> Manifest:
+def make_manifest(folder: Path, record: dict, known_hash: str | None = None) -> Manifest:
+    """The manifest of `folder`; `known_hash`: the record's content hash when already computed."""
     entries = tuple(ManifestEntry(path=name, sha256=sha256_of(folder / name), size=(folder / name).stat().st_size)
                     for name in files_of(folder))
-    return Manifest(manifest_version=MANIFEST_VERSION, content_hash=content_hash(record), files=entries)
+    return Manifest(manifest_version=MANIFEST_VERSION, content_hash=known_hash or content_hash(record),
+                    files=entries)
 
 
 def read_manifest(folder: Path) -> Manifest | None:

@@ -14,6 +14,7 @@ import io
 import math
 from dataclasses import dataclass
 
+import matplotlib.collections
 import matplotlib.lines
 import matplotlib.patches
 import matplotlib.ticker
@@ -22,8 +23,8 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 from matplotlib.ticker import FixedLocator, FormatStrFormatter, NullFormatter
 from PIL import Image
-from scipy import stats
 
+from validate.metrology.probability import normal_density, t_density, t_quantile
 from validate.model.line import level_sums
 from validate.model.quadratic import rising_root
 from validate.validation.window import error_curve
@@ -91,7 +92,7 @@ def prediction_band(x, y, grid, slope: float, intercept: float, p: float = 0.95)
     residuals = y - (intercept + slope * x)
     s = math.sqrt(float(np.sum(residuals**2)) / (n - 2))
     sums = level_sums([1.0] * n, x.tolist(), y.tolist())  # xbar and Sxx of the package's one line
-    t = stats.t.ppf(0.5 + p / 2, n - 2)
+    t = t_quantile(0.5 + p / 2, n - 2)
     return t * s * np.sqrt(1.0 + 1.0 / n + (grid - sums.x_mean) ** 2 / sums.sxx), s
 
 
@@ -116,7 +117,7 @@ def _second_order_band(so: dict, grid, p: float = 0.95):
     g = np.vstack([np.ones_like(grid), grid, grid**2])
     var_fit = np.einsum("in,ij,jn->n", g, v, g)
     s = float(so["residual_standard_deviation"])
-    return stats.t.ppf(0.5 + p / 2, so["dof"]) * np.sqrt(s * s + var_fit)
+    return t_quantile(0.5 + p / 2, so["dof"]) * np.sqrt(s * s + var_fit)
 
 
 def _line_panel(ax, points: dict, samples: list, grid, line: tuple[float, float, float], half) -> None:
@@ -252,9 +253,9 @@ def monte_carlo_figure(mc: dict, value: float, u: float, nu_eff, unit: str) -> R
     ax.stairs(density, edges, fill=True, color=BAND, label="Monte Carlo trials")  # one patch, not one per bin
     grid = np.linspace(edges[0], edges[-1], 400)
     if nu_eff is None or not math.isfinite(nu_eff) or nu_eff > 1e6:
-        curve, label = stats.norm.pdf(grid, value, u), "GUM: normal, y and u(y)"
+        curve, label = normal_density(grid, value, u), "GUM: normal, y and u(y)"
     else:
-        curve = stats.t.pdf((grid - value) / u, nu_eff) / u
+        curve = t_density((grid - value) / u, nu_eff) / u
         label = f"GUM: t distribution, ν_eff = {nu_eff:.0f}, y and u(y)"
     ax.plot(grid, curve, color=LINE, linewidth=1.4, label=label)
     marks = [("interval", WARM, "-", "Monte Carlo, probabilistically symmetric"),
@@ -308,6 +309,16 @@ STEP_COLOURS = ("#2f5d7c", "#c98a2b", "#7d8a95", "#5f9e6e", "#a02c2c", "#8c6bb1"
                 "#3d3d3d", "#9ecae1")
 
 
+def _bar_segments(ax, positions, left, values, colour: str, label: str, height: float = 0.66) -> None:
+    """One step's segments of the stacked bars (what barh draws) as one collection, not one
+    rectangle object per result: a chart of 25 results and 8 steps would hold 200."""
+    half = height / 2
+    boxes = [[(x0, y - half), (x0 + w, y - half), (x0 + w, y + half), (x0, y + half)]
+             for y, x0, w in zip(positions, left, values, strict=True)]
+    ax.add_collection(matplotlib.collections.PolyCollection(
+        boxes, facecolors=colour, edgecolors="white", linewidths=0.4, label=label))
+
+
 def step_shares_chart(bars: list[tuple[str, list[tuple[str, float]]]]) -> Raster:
     """One stacked bar per result: its variance shared out by step, the steps in one legend."""
     steps: list[str] = []
@@ -324,8 +335,7 @@ def step_shares_chart(bars: list[tuple[str, list[tuple[str, float]]]]) -> Raster
     left = np.zeros(len(bars))
     for i, step in enumerate(steps):
         values = np.array([100.0 * dict(groups).get(step, 0.0) for _, groups in bars])
-        ax.barh(positions, values, left=left, height=0.66, color=STEP_COLOURS[i % len(STEP_COLOURS)],
-                label=_short(step, 38), edgecolor="white", linewidth=0.4)
+        _bar_segments(ax, positions, left, values, STEP_COLOURS[i % len(STEP_COLOURS)], _short(step, 38))
         for pos, v, start in zip(positions, values, left, strict=True):
             if v >= 8:  # a label where the segment is wide enough to hold it
                 ax.text(start + v / 2, pos, f"{v:.0f}", ha="center", va="center", fontsize=6.5,
@@ -341,6 +351,22 @@ def step_shares_chart(bars: list[tuple[str, list[tuple[str, float]]]]) -> Raster
     return _raster(fig)
 
 
+def _interval_marks(ax, mc: dict) -> None:
+    """The ends of the three intervals as vertical lines over the panel's height, each interval's
+    pair as one collection: what axvline draws, without a line object and its transforms per end
+    (a page of small multiples has dozens)."""
+    for key, colour, style in (("interval", WARM, "-"), ("shortest_interval", BAD, "--"),
+                               ("gum_interval", LINE, ":")):
+        ends = mc.get(key)
+        if not (ends and all(e is not None for e in ends)):
+            continue
+        ax.add_collection(matplotlib.collections.LineCollection(
+            [[(float(e), 0.0), (float(e), 1.0)] for e in ends], colors=colour, linestyles=style,
+            linewidths=1.0, capstyle="projecting" if style == "-" else "butt", zorder=2,
+            transform=ax.get_xaxis_transform()), autolim=False)
+        ax.update_datalim([(float(e), 0.0) for e in ends], updatex=True, updatey=False)  # kept in view
+
+
 def _mc_panel(ax, mc: dict, value: float, u: float, nu_eff) -> None:
     """One small histogram of the trials with the GUM curve and the three intervals."""
     hist = mc["histogram"]
@@ -351,16 +377,11 @@ def _mc_panel(ax, mc: dict, value: float, u: float, nu_eff) -> None:
     ax.stairs(density, edges, fill=True, color=BAND)  # one patch, not one per bin
     grid = np.linspace(edges[0], edges[-1], 200)
     if nu_eff is None or not math.isfinite(nu_eff) or nu_eff > 1e6:
-        curve = stats.norm.pdf(grid, value, u)
+        curve = normal_density(grid, value, u)
     else:
-        curve = stats.t.pdf((grid - value) / u, nu_eff) / u
+        curve = t_density((grid - value) / u, nu_eff) / u
     ax.plot(grid, curve, color=LINE, linewidth=1.1)
-    for key, colour, style in (("interval", WARM, "-"), ("shortest_interval", BAD, "--"),
-                               ("gum_interval", LINE, ":")):
-        ends = mc.get(key)
-        if ends and all(e is not None for e in ends):
-            for end in ends:
-                ax.axvline(end, color=colour, linestyle=style, linewidth=1.0)
+    _interval_marks(ax, mc)
     ax.set_yticks([])
     ax.tick_params(labelsize=6.5)
     ax.xaxis.set_major_locator(matplotlib.ticker.MaxNLocator(4))

@@ -14,11 +14,11 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import optimize, stats
 
 from validate.inputs.schema import AMOUNT_CONCENTRATION, MASS_CONCENTRATION
 from validate.inputs.units import Unit
 from validate.inputs.validation_settings import ROUTES
+from validate.metrology.probability import noncentral_t_lower_tail, normal_quantile, t_quantile
 from validate.model.design import CalibrationDesign
 from validate.model.line import LineFit, fit_line
 from validate.validation.linearity import negligible, plain
@@ -217,15 +217,17 @@ def _ich_route(route: str, sigma: float, dof: int, slope: float, source: str,
 
 def exact_delta(dof: int, alpha: float, beta: float) -> float:
     """Noncentrality delta with P(t'(dof, delta) <= t_{1-alpha}(dof)) = beta (ISO 11843-2, 5.3)."""
-    t_crit = stats.t.ppf(1 - alpha, dof)
+    t_crit = t_quantile(1 - alpha, dof)
 
     def excess(d):
-        return stats.nct.cdf(t_crit, dof, d) - beta  # decreases as delta grows
+        return noncentral_t_lower_tail(t_crit, dof, d) - beta  # decreases as delta grows
 
-    hi = max(float(t_crit + stats.norm.ppf(1 - beta)), 1.0)
+    hi = max(float(t_crit + normal_quantile(1 - beta)), 1.0)
     while excess(hi) > 0:  # widen the bracket in small steps (nct.cdf fails far out)
         hi *= 1.5
-    return float(optimize.brentq(excess, 0.0, hi))
+    from scipy.optimize import brentq  # imported here: scipy.optimize is slow to import
+
+    return float(brentq(excess, 0.0, hi))
 
 
 def iso11843_2(fit: LineFit, alpha: float = 0.05, beta: float = 0.05,
@@ -248,7 +250,7 @@ def iso11843_2(fit: LineFit, alpha: float = 0.05, beta: float = 0.05,
     first = 1.0 / sample_replicates if sample_term is None else sample_term
     root = math.sqrt(first + 1.0 / fit.n + fit.x_mean**2 / fit.sxx)
     scale = fit.residual_sd / abs(fit.slope) * root
-    t_a, t_b = stats.t.ppf(1 - alpha, nu), stats.t.ppf(1 - beta, nu)
+    t_a, t_b = t_quantile(1 - alpha, nu), t_quantile(1 - beta, nu)
     delta, delta_ex = float(t_a + t_b), exact_delta(nu, alpha, beta)
     return Iso11843Result(
         critical_value_response=float(t_a * fit.residual_sd * root),

@@ -13,8 +13,8 @@ import math
 from dataclasses import asdict, dataclass, fields, is_dataclass
 
 import numpy as np
-from scipy import stats
 
+from validate.metrology.probability import f_quantile, f_upper_tail, spearman_increasing, t_quantile, t_upper_tail
 from validate.model.line import LineFit
 from validate.model.quadratic import fit_quadratic
 
@@ -168,8 +168,8 @@ def lack_of_fit_test(fit: LineFit, alpha: float = 0.05) -> SignificanceTest:
         return _not_evaluable("lack-of-fit F test", alpha,
                               "replicate readings are identical (no pure error)", LOF_SOURCE)
     f = (ss_lof / df1) / (ss_pe / df2)
-    p = float(stats.f.sf(f, df1, df2))
-    crit = float(stats.f.ppf(1 - alpha, df1, df2))
+    p = float(f_upper_tail(f, df1, df2))
+    crit = float(f_quantile(1 - alpha, df1, df2))
     sig = p < alpha
     verdict = ("significant lack of fit: the line misses the standards' means by more than "
                "replicate scatter explains (curvature or a wrong standard)" if sig else
@@ -212,8 +212,8 @@ def mandel_test(fit: LineFit, alpha: float = 0.05) -> SignificanceTest:
         return _not_evaluable("Mandel's test", alpha,
                               "the quadratic fits exactly (no residual scatter)", MANDEL_SOURCE)
     f = ds2 / s2_sq
-    p = float(stats.f.sf(f, 1, n - 3))
-    crit = float(stats.f.ppf(1 - alpha, 1, n - 3))
+    p = float(f_upper_tail(f, 1, n - 3))
+    crit = float(f_quantile(1 - alpha, 1, n - 3))
     sig = p < alpha
     verdict = ("the quadratic fits significantly better: the response is curved; narrow the "
                "working range or use a second-order calibration" if sig else
@@ -286,8 +286,8 @@ def intercept_test(fit: LineFit, alpha: float = 0.05) -> SignificanceTest:
         return _not_evaluable("intercept test", alpha, "no residual scatter to test against",
                               INTERCEPT_SOURCE)
     t = fit.intercept / fit.intercept_u
-    p = float(2 * stats.t.sf(abs(t), fit.dof))
-    crit = float(stats.t.ppf(1 - alpha / 2, fit.dof))
+    p = float(2 * t_upper_tail(abs(t), fit.dof))
+    crit = float(t_quantile(1 - alpha / 2, fit.dof))
     sig = p < alpha
     verdict = ("intercept differs significantly from zero: look for a blank contribution, "
                "a baseline offset or curvature; keep the intercept" if sig else
@@ -340,13 +340,13 @@ def weighting_check(fit: LineFit, alpha: float = 0.05, replicate_sds=None) -> Si
     if len(np.unique(xs)) < 3 or negligible(float(np.ptp(spread)) ** 2, fit):
         return _not_evaluable("weighting check", alpha,
                               "needs scatter at 3 or more concentrations", WEIGHTING_SOURCE)
-    rho, p = stats.spearmanr(xs, spread, alternative="greater")
+    rho, p = spearman_increasing(xs, spread)
     details: dict[str, object] = {"basis": basis, "spearman_rho": float(rho)}
     p_values = [float(p)]
     if len(reps) >= 2 and reps[0][2] > 0:
         (_, n_lo, s_lo), (_, n_hi, s_hi) = reps[0], reps[-1]
         f = s_hi**2 / s_lo**2
-        p_f = float(stats.f.sf(f, n_hi - 1, n_lo - 1))
+        p_f = float(f_upper_tail(f, n_hi - 1, n_lo - 1))
         details.update({"variance_ratio_highest_lowest": f, "variance_ratio_p_value": p_f})
         p_values.append(p_f)
     sig = min(p_values) < alpha

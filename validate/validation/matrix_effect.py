@@ -21,10 +21,9 @@ from __future__ import annotations
 
 import math
 
-from scipy import stats
-
 from validate.inputs.addition_section import StandardAddition
 from validate.inputs.schema import AssayMethod
+from validate.metrology.probability import t_quantile, t_upper_tail
 from validate.model.addition import AdditionModel, flask_concentrations, mean_readings
 from validate.model.line import LineFit, fit_line
 
@@ -88,13 +87,13 @@ def matrix_effect(addition: LineFit, external: LineFit, factor: float = 1.0) -> 
     var = ua * ua + ue * ue
     nu = var * var / (ua ** 4 / addition.dof + ue ** 4 / external.dof)
     t = (addition.slope - external.slope) / math.sqrt(var)
-    critical = float(stats.t.ppf(1 - ALPHA / 2, nu))
-    p = float(2 * stats.t.sf(abs(t), nu))
+    critical = float(t_quantile(1 - ALPHA / 2, nu))
+    p = float(2 * t_upper_tail(abs(t), nu))
     r = addition.slope / external.slope
     rel_a, rel_e = ua / addition.slope, ue / external.slope
     u_r = abs(r) * math.sqrt(rel_a ** 2 + rel_e ** 2)
     nu_r = (rel_a ** 2 + rel_e ** 2) ** 2 / (rel_a ** 4 / addition.dof + rel_e ** 4 / external.dof)
-    k_r = float(stats.t.ppf(1 - ALPHA / 2, nu_r))
+    k_r = float(t_quantile(1 - ALPHA / 2, nu_r))
     significant = abs(t) > critical
     return {
         "external_slope": external.slope * factor, "external_slope_standard_uncertainty": ue * factor,

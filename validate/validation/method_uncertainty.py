@@ -12,7 +12,14 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-from scipy import stats
+from validate.metrology.probability import (
+    chi2_lower_tail,
+    chi2_upper_tail,
+    f_lower_tail,
+    f_upper_tail,
+    normal_quantile,
+    t_quantile,
+)
 
 BIAS_SOURCE = ("u(bias) = sqrt(RMS_bias^2 + u(C_ref)^2), RMS_bias the root mean square of the relative "
                "biases, u(C_ref) the mean relative standard uncertainty of the reference values; with a "
@@ -105,8 +112,8 @@ def combine(u_rw: float, dof_rw: float, u_bias: float, coverage_probability: flo
     u_c = math.hypot(u_rw, u_bias)
     share = (u_rw / u_c) ** 4 if u_c > 0 else 1.0  # written as a ratio: no overflow or underflow
     dof = dof_rw / share if share > 0 else math.inf
-    k = float(stats.t.ppf(0.5 + coverage_probability / 2, dof)) if math.isfinite(dof) else \
-        float(stats.norm.ppf(0.5 + coverage_probability / 2))
+    k = float(t_quantile(0.5 + coverage_probability / 2, dof)) if math.isfinite(dof) else \
+        float(normal_quantile(0.5 + coverage_probability / 2))
     return Combined(u_rw, u_bias, u_c, dof, k, k * u_c)
 
 
@@ -132,10 +139,11 @@ def reconcile(observed_sd: float, dof_observed: float, predicted_sd: float, dof_
         raise ValueError("the reconciliation needs a positive predicted uncertainty and observed degrees of freedom")
     ratio = observed_sd**2 / predicted_sd**2
     if math.isfinite(dof_predicted):
-        upper, lower = stats.f.sf(ratio, dof_observed, dof_predicted), stats.f.cdf(ratio, dof_observed, dof_predicted)
+        upper = f_upper_tail(ratio, dof_observed, dof_predicted)
+        lower = f_lower_tail(ratio, dof_observed, dof_predicted)
     else:
-        upper = stats.chi2.sf(dof_observed * ratio, dof_observed)
-        lower = stats.chi2.cdf(dof_observed * ratio, dof_observed)
+        upper = chi2_upper_tail(dof_observed * ratio, dof_observed)
+        lower = chi2_lower_tail(dof_observed * ratio, dof_observed)
     thin = dof_observed < 5
     if upper < alpha:
         verdict, p = "top-down larger", float(upper)

@@ -12,8 +12,8 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import stats
 
+from validate.metrology.probability import chi2_lower_tail, chi2_upper_tail, f_upper_tail
 from validate.validation.linearity import plain
 
 
@@ -129,7 +129,7 @@ def intermediate_precision(values, groups=None, factor: str = "day") -> Intermed
     ms_b, ms_w = ss_b / (p - 1), ss_w / (big_n - p)
     n0 = (big_n - float(np.sum(sizes**2)) / big_n) / (p - 1)
     f = ms_b / ms_w if ms_w > 0 else None
-    pv = float(stats.f.sf(f, p - 1, big_n - p)) if f is not None else None
+    pv = float(f_upper_tail(f, p - 1, big_n - p)) if f is not None else None
     s_l2 = max(0.0, (ms_b - ms_w) / n0)
     s_i2 = ms_w + s_l2
     if s_l2 > 0:  # s_I^2 = MS_b/n0 + (1 - 1/n0) MS_w
@@ -235,7 +235,7 @@ def scatter_consistency(residual_sd: float, dof: int, predicted_sd: float,
     if not (predicted_sd > 0 and math.isfinite(predicted_sd)):
         raise ValueError("the predicted (bottom-up) standard deviation must be positive")
     chi2 = dof * residual_sd**2 / predicted_sd**2
-    p_hi, p_lo = float(stats.chi2.sf(chi2, dof)), float(stats.chi2.cdf(chi2, dof))
+    p_hi, p_lo = float(chi2_upper_tail(chi2, dof)), float(chi2_lower_tail(chi2, dof))
     if p_hi < alpha and compared == READING_SCATTER:
         verdict = ("repeated readings scatter significantly more than the photometer's stated reading noise: "
                    "handling (cell placement, bubbles, temperature) adds to it, so a bottom-up budget with the "

@@ -15,10 +15,10 @@ from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
-from scipy.stats import t as student_t
 
 from validate.inputs.errors import InputError
 from validate.inputs.readings import read_text_file, text_lines
+from validate.metrology.probability import t_quantile
 from validate.model.errors import ModelError
 from validate.model.line import fit_line, inverse_prediction
 from validate.model.quadratic import FUNCTIONS
@@ -212,7 +212,7 @@ def _sample_entry(fit, summary, index: int, readings) -> dict:
                         loq=summary.limits.loq, lod=summary.limits.lod)
     if not ip.finite:
         flags.append("slope not significantly different from zero: no finite interval")
-    k = float(student_t.ppf(0.5 + COVERAGE / 2, ip.dof))  # t quantile at the line's n - 2 (GUM G.3)
+    k = float(t_quantile(0.5 + COVERAGE / 2, ip.dof))  # t quantile at the line's n - 2 (GUM G.3)
     return {"readings": r.tolist(), "replicates": ip.replicates,
             "response_mean": ip.response_mean, "concentration": ip.value,
             "standard_uncertainty": ip.standard_uncertainty, "dof": ip.dof, "flags": flags,
@@ -227,7 +227,7 @@ def _check_line_rises(path: str, fit) -> None:
     (two-sided t-test at 5 %, ISO 8466-1 reads the slope the same way), gives no concentration
     (ModelError, exit 3)."""
     t_value = fit.slope / fit.slope_u if fit.slope_u > 0 else math.inf
-    critical = float(student_t.ppf(0.975, fit.dof)) if fit.dof > 0 else math.inf
+    critical = float(t_quantile(0.975, fit.dof)) if fit.dof > 0 else math.inf
     if not fit.slope > 0:
         raise ModelError(f"{path}: the absorbance falls as the concentration rises (slope {fit.slope:.3g}); "
                          "a Beer-Lambert calibration line rises, so no concentration is reported\n"

@@ -19,6 +19,7 @@ import math
 import numpy as np
 
 from validate.inputs.schema import Method
+from validate.metrology.probability import f_upper_tail, t_quantile
 from validate.model.design import CalibrationDesign
 from validate.model.quadratic import QuadraticFit, fit_quadratic, quadratic_inverse_prediction
 from validate.validation.limits import SampleReadings, range_flags, sample_readings, sample_sigma
@@ -134,8 +135,6 @@ def second_order_sample_entries(design: CalibrationDesign, factor: float, declar
 def quick_second_order(path: str, x, y, samples: list[list[float]] | None, coverage: float) -> dict:
     """`validate calibrate --function "second order"` on a bare table (every row a point): the function,
     its limits, and each sample read off it with U = k u, k the t quantile at N - 3 (GUM G.3)."""
-    from scipy.stats import t as student_t
-
     from validate.model.errors import ModelError
 
     fit = fit_quadratic(x, y)
@@ -153,7 +152,7 @@ def quick_second_order(path: str, x, y, samples: list[list[float]] | None, cover
            "second_order": {"equation": "y = a + b x + c x^2", "dof": fit.dof,
                             "residual_standard_deviation": fit.residual_sd, "r_squared": fit.r_squared,
                             "limits": limits, "source": "ISO 8466-2 (from memory): second-order calibration function"}}
-    k = float(student_t.ppf(0.5 + coverage / 2, fit.dof))
+    k = float(t_quantile(0.5 + coverage / 2, fit.dof))
     rows = []
     for i, readings in enumerate(samples or [], 1):
         pred = quadratic_inverse_prediction(fit, readings)
@@ -181,8 +180,6 @@ ADEQUACY_SOURCE = ("adequacy of the second-order function: the construction of M
 
 def adequacy_p(fit: QuadraticFit) -> float | None:
     """p of the test that a third-order term improves the second-order function (None with n < 5)."""
-    from scipy import stats
-
     from validate.validation.linearity import _poly_rss
 
     n = fit.n
@@ -192,7 +189,7 @@ def adequacy_p(fit: QuadraticFit) -> float | None:
     rss3 = _poly_rss(x, y, w, 3)
     if rss3 <= 1e-300:
         return None
-    return float(stats.f.sf(max(fit.rss - rss3, 0.0) / (rss3 / (n - 4)), 1, n - 4))
+    return float(f_upper_tail(max(fit.rss - rss3, 0.0) / (rss3 / (n - 4)), 1, n - 4))
 
 
 def second_order_observed(design: CalibrationDesign, factor: float, declared: str, observed: dict) -> dict:

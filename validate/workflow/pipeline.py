@@ -19,9 +19,9 @@ from validate.model.equilibrium import EquilibriumModel
 from validate.propagation.linear import LinearResult, propagate
 from validate.propagation.montecarlo import McResult, expected_work, new_seed, propagate_mc
 from validate.record.build import build_record
-from validate.record.files import budget_csv, record_json
+from validate.record.files import budget_csv, json_members, members_json
 from validate.record.folder import OutputFolder
-from validate.record.manifest import MANIFEST_FILE, content_hash, make_manifest
+from validate.record.manifest import MANIFEST_FILE, content_hash_of_members, make_manifest
 from validate.record.output_checks import RECORD_ALLOWANCE, check_space
 from validate.record.stored import copy_bytes, with_stored_names
 from validate.record.types import Record
@@ -100,7 +100,9 @@ def write_record(run: Run, target: OutputFolder, pdf: bool = True) -> list[Path]
         raise ValueError("the run has no record yet: analyse() builds it")
     record = run.typed_record
     payloads = {entry.stored or "": copy_bytes(entry) for entry in record.inputs}
-    payloads["results.json"] = record_json(record)
+    members = json_members(record.to_dict())  # serialised once: results.json and the content hash
+    payloads["results.json"] = members_json(members)
+    recorded_hash = content_hash_of_members(members)
     payloads["budget.csv"] = budget_csv(run.record["budget"])
     check_space(target.out.parent, sum(len(d) for d in payloads.values()) + (RECORD_ALLOWANCE if pdf else 0))
     for name, data in payloads.items():
@@ -108,11 +110,11 @@ def write_record(run: Run, target: OutputFolder, pdf: bool = True) -> list[Path]
     if pdf:
         from validate.report.pdf import build_report
         try:
-            build_report(run.record, target.reserve("report.pdf"), content_hash=content_hash(run.record))
+            build_report(run.record, target.reserve("report.pdf"), content_hash=recorded_hash)
         except OSError as exc:  # the disk filled up or went away while the PDF was written
             raise target.failed(exc, "writing report.pdf") from None
     try:
-        manifest = make_manifest(target.staged, run.record).to_json()
+        manifest = make_manifest(target.staged, run.record, recorded_hash).to_json()
     except OSError as exc:
         raise target.failed(exc, "reading the staged files for manifest.json") from None
     target.write(MANIFEST_FILE, manifest)
