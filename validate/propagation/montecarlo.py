@@ -47,6 +47,7 @@ from validate.propagation.mcstats import (
     summarise,
     summarise_sorted,
 )
+from validate.propagation.mctails import HISTOGRAM_BINS, Outside, Tails, histogram_window
 
 CHUNK = 100_000  # trials evaluated together: large enough for numpy, small enough for memory
 MAX_ADAPTIVE_TRIALS = 10_000_000
@@ -281,48 +282,73 @@ class _Final:
         summary = summarise_sorted(kept.values, kept.invalid, p)
         return cls(summary, kept.check, _histogram(kept, summary))
 
+    @classmethod
+    def of_tails(cls, tails: Tails) -> _Final:
+        return cls(tails.summary(), tails.check, tails.histogram())
+
 
 def _run_fixed(model: Model, gums: dict[str, LinearResult], trials: int, seed: int, p: float,
                progress) -> dict[str, _Final]:
     """Every output's statistics, run in groups of outputs that fit in memory; each group runs on
     the same random stream (default_rng(seed)), so the groups see the same trials. A group's
     settled outputs are summarised and dropped at once; its open ones (JCGM 101 8.2 undecided)
-    wait, as long as they fit in memory beside the next group, and are given their further
-    trials together (`_extend`: one draw of the more trials for all of them, not one per group;
-    every output sees the same trials either way)."""
+    keep only their tails (validate.propagation.mctails) and wait, as long as they fit in memory
+    beside the next group, to be given their further trials together (`_finish`)."""
     final: dict[str, _Final] = {}
-    waiting: dict[str, _Kept] = {}
+    waiting: dict[str, _Kept | Tails] = {}
     rng = np.random.default_rng(seed)
+    budget = min(MAX_CHECK_TRIALS, CHECK_GROWTH * trials)
     for group in _label_groups(list(gums), trials):
-        if waiting and 8 * trials * (len(waiting) + len(group)) > MAX_KEPT_BYTES:
-            _finish(model, gums, waiting, final, trials, p, rng, progress)
+        if waiting and sum(_held_bytes(k) for k in waiting.values()) + 8 * trials * len(group) > MAX_KEPT_BYTES:
+            _finish(model, gums, waiting, final, trials, seed, p, rng, progress)
         rng = np.random.default_rng(seed)
         values = _fixed(model, trials, rng, progress, group)
-        in_group = {name: _Kept.of(gums[name], values.pop(name), p) for name in group}
-        settled = [name for name, k in in_group.items() if k.check.settled]
-        final.update({name: _Final.of(in_group.pop(name), p) for name in settled})  # dropped before more trials
-        waiting.update(in_group)
-    _finish(model, gums, waiting, final, trials, p, rng, progress)
+        for name in group:
+            kept = _Kept.of(gums[name], values.pop(name), p)
+            if kept.check.settled or budget <= trials:
+                final[name] = _Final.of(kept, p)  # dropped before more trials
+            else:
+                waiting[name] = Tails.of(kept.values, kept.invalid, kept.check, p, budget) or kept
+    _finish(model, gums, waiting, final, trials, seed, p, rng, progress)
     return {name: final[name] for name in gums}
 
 
-def _finish(model: Model, gums: dict[str, LinearResult], waiting: dict[str, _Kept], final: dict[str, _Final],
-            trials: int, p: float, rng, progress) -> None:
+def _held_bytes(kept: _Kept | Tails) -> int:
+    return kept.held_bytes if isinstance(kept, Tails) else 8 * kept.values.size
+
+
+def _finish(model: Model, gums: dict[str, LinearResult], waiting: dict[str, _Kept | Tails], final: dict[str, _Final],
+            trials: int, seed: int, p: float, rng, progress) -> None:
     """The waiting outputs extended from the stream's state after `trials` trials (the same after
-    every group), summarised into `final` and dropped."""
-    _extend(model, gums, waiting, trials, p, rng, progress, final)
+    every group), summarised into `final` and dropped: those with tails in one pass of draws
+    (`_extend_tails`), those kept whole (tails would have kept nearly all) with their values. An
+    output whose tails turn out not to hold an index its statistics read is run again whole
+    from the start: its first `trials` trials replayed from default_rng(seed), then the rounds."""
+    start = rng.bit_generator.state
+    tails = {name: k for name, k in waiting.items() if isinstance(k, Tails)}
+    whole = {name: k for name, k in waiting.items() if isinstance(k, _Kept)}
+    waiting.clear()
+    again = _extend_tails(model, gums, tails, trials, p, rng, progress, final)
+    rng.bit_generator.state = start
+    _extend(model, gums, whole, trials, p, rng, progress, final)
+    for group in _label_groups(again, min(MAX_CHECK_TRIALS, CHECK_GROWTH * trials)) if again else []:
+        rng = np.random.default_rng(seed)
+        values = _fixed(model, trials, rng, progress, group)
+        _extend(model, gums, {name: _Kept.of(gums[name], values.pop(name), p) for name in group}, trials, p, rng,
+                progress, final)
 
 
 def _extend(model: Model, gums: dict[str, LinearResult], kept: dict[str, _Kept], total: int, p: float, rng,
             progress, final: dict[str, _Final]) -> None:
-    """JCGM 101 8.2: rounds of more trials, on the same random stream, for the outputs whose
-    comparison is undecided or not yet known to delta/5; each round adds as many trials as were
-    run so far, up to the budget. The open outputs run in groups that fit in memory at the full
-    budget, each group through all its rounds from the stream's state after `total` trials (the
-    draws do not depend on which outputs are evaluated, so every output sees the same trials
-    whatever its group); a group's outputs are summarised into `final` and dropped before the
-    next group starts, so the values held stay within MAX_KEPT_BYTES beside the waiting ones.
-    Every output of `kept` ends in `final`."""
+    """JCGM 101 8.2 on whole values: rounds of more trials, on the same random stream, for the
+    outputs whose comparison is undecided or not yet known to delta/5; each round adds as many
+    trials as were run so far, up to the budget. The open outputs run in groups that fit in
+    memory at the full budget, each group through all its rounds from the stream's state after
+    `total` trials (the draws do not depend on which outputs are evaluated, so every output sees
+    the same trials whatever its group); a group's outputs are summarised into `final` and
+    dropped before the next group starts. Every output of `kept` ends in `final`. (The adaptive
+    run and the outputs that tails cannot serve come here; `_extend_tails` gives the others the
+    same trials in one pass.)"""
     budget = min(MAX_CHECK_TRIALS, CHECK_GROWTH * total)
     start = rng.bit_generator.state
     for name in [name for name, k in kept.items() if k.check.settled]:
@@ -361,12 +387,75 @@ def _one_round(model: Model, gums: dict[str, LinearResult], kept: dict[str, _Kep
         kept[name] = _Kept(values, k.invalid + int(more - good.size), _check(gums[name], values, p))
 
 
+def _extend_tails(model: Model, gums: dict[str, LinearResult], tails: dict[str, Tails], total: int, p: float,
+                  rng, progress, final: dict[str, _Final]) -> list[str]:
+    """The rounds of `_extend` (the same trials, the same rounds, the same comparisons) for outputs
+    that keep only their tails, so that all of them share one pass of draws (in groups only where
+    even their tails at the full budget do not fit in MAX_KEPT_BYTES). Returns the outputs whose
+    tails missed an index their statistics read (validate.propagation.mctails.Outside); the
+    others end in `final`."""
+    budget = min(MAX_CHECK_TRIALS, CHECK_GROWTH * total)
+    start = rng.bit_generator.state
+    again: list[str] = []
+    for group in _tail_groups(tails, budget):
+        rng.bit_generator.state = start
+        done = total
+        while True:
+            open_ = [name for name in group if name in tails and not tails[name].check.settled]
+            more = min(done, budget - done)
+            if not open_ or more <= 0:
+                break
+            _tails_round(model, gums, tails, open_, more, rng, progress, again)
+            done += more
+        for name in [name for name in group if name in tails]:
+            try:
+                final[name] = _Final.of_tails(tails.pop(name))
+            except Outside:
+                again.append(name)
+    return again
+
+
+def _tail_groups(tails: dict[str, Tails], budget: int) -> list[list[str]]:
+    """The outputs in groups whose tails, at most their allowance at the full budget, fit in
+    MAX_KEPT_BYTES."""
+    groups: list[list[str]] = []
+    held = MAX_KEPT_BYTES
+    for name, t in tails.items():
+        if held + 8 * t.limit > MAX_KEPT_BYTES:
+            groups.append([])
+            held = 0
+        groups[-1].append(name)
+        held += 8 * t.limit
+    return groups
+
+
+def _tails_round(model: Model, gums: dict[str, LinearResult], tails: dict[str, Tails], group: list[str],
+                 more: int, rng, progress, again: list[str]) -> None:
+    """`more` trials for the outputs of `group`, drawn in chunks as `_fixed` draws them, added to
+    their tails and compared again; an output whose tails miss a value moves to `again`."""
+    sources = list(model.sources.values())
+    done = 0
+    while done < more:
+        n = min(CHUNK, more - done)
+        for name, values in _evaluate(model, draw_many(sources, n, rng), n, group).items():
+            tails[name].add(values)
+        done += n
+        progress(n)
+    for name in group:
+        gum = gums[name]
+        try:
+            tails[name].merge()
+            tails[name].recheck(gum.value, gum.expanded_uncertainty, gum.standard_uncertainty)
+        except Outside:
+            del tails[name]
+            again.append(name)
+
+
 def _histogram(kept: _Kept, summary: McSummary) -> HistogramData:
     """The histogram shows the central part: the 95 % interval widened by 60 % on each side."""
-    low95, high95 = summary.symmetric.low, summary.symmetric.high
-    spread = 0.6 * (high95 - low95)
-    window = (low95 - spread, high95 + spread) if high95 > low95 else None
-    return histogram_data(kept.values, bins=80, value_range=window, invalid=kept.invalid, presorted=True)
+    window = histogram_window(summary.symmetric.low, summary.symmetric.high)
+    return histogram_data(kept.values, bins=HISTOGRAM_BINS, value_range=window, invalid=kept.invalid,
+                          presorted=True)
 
 
 def _defined_variance(arr: np.ndarray) -> float:
