@@ -36,7 +36,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from validate.propagation.gumcheck import GumCheck, check_gum_at
+from validate.propagation.gumcheck import GumCheck, check_gum_at, end_spreads_at
 from validate.propagation.mcstats import (
     CoverageInterval,
     HistogramData,
@@ -54,6 +54,9 @@ NOISE_SIGMAS = 6.0  # ... at least this many standard errors of the fraction bel
 HISTOGRAM_BINS = 80
 HISTOGRAM_WIDENING = 0.6  # the window: the 95 % interval widened by 60 % of its width on each side
 SLACK = 1.02  # room in a tail's allowance for the sampling noise of its count
+
+
+__all__ = ["Outside", "Tails", "allowance", "end_spreads_at", "histogram_window", "tail_fraction"]
 
 
 class Outside(LookupError):
@@ -100,18 +103,18 @@ class Tails:
 
     @classmethod
     def of(cls, s: np.ndarray, invalid: int, check: GumCheck, p: float, budget: int) -> Tails | None:
-        """The tails of a first run's sorted finite values `s`; None where they would keep nearly
-        everything (a first run too small, or values so tied that the cuts meet)."""
+        """The tails of a first run's sorted finite values `s`; None where they would keep more than
+        half of them (a small first run) or the cuts meet (values so tied)."""
         m = s.size
         keep = math.ceil(tail_fraction(p, m) * m)
         window = histogram_window(*_symmetric_ends(s, p))
-        if 2 * keep >= m or window is None:
+        if 4 * keep > m or window is None:
             return None
         low_cut, high_cut = float(s[keep - 1]), float(s[m - keep])
-        if not low_cut < high_cut:
-            return None
         below = int(np.searchsorted(s, low_cut, side="right"))
         above = int(np.searchsorted(s, high_cut, side="left"))
+        if not low_cut < high_cut or 2 * (below + m - above) > m:
+            return None
         shift = float(np.mean(s))
         d = s - shift
         counts = _sorted_histogram(s, HISTOGRAM_BINS, window)[0].astype(np.int64)

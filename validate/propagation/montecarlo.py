@@ -156,7 +156,7 @@ def _evaluate(model: Model, draws: dict[str, np.ndarray], n: int, labels, out=No
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         for start in range(0, n, EVAL_SLICE):
             stop = min(start + EVAL_SLICE, n)
-            part = model.evaluate({name: arr[start:stop] for name, arr in draws.items()})
+            part = model.outputs({name: arr[start:stop] for name, arr in draws.items()}, labels)
             for label in labels:
                 out[label][start:stop] = part[label]  # a constant output broadcasts
     return out
