@@ -15,8 +15,12 @@ result formula.
 
 from __future__ import annotations
 
+import functools
+import operator
 from dataclasses import dataclass, field
 from typing import Any
+
+import numpy as np
 
 from validate.inputs.items import Cuvette, Photometer
 from validate.inputs.schema import AssayMethod, Calibration, Method
@@ -361,14 +365,23 @@ def mean_reading_term(ss: SourceSet, method: Method, ident: str, readings: tuple
     def term(x):
         a = mean
         if observed:
-            a = a + sum(x[name] for name in noise)
+            a = a + _sum_of([x[name] for name in noise])
         elif noise:
-            a = a + sum(x[name] for name in noise) / len(noise)
+            a = a + _sum_of([x[name] for name in noise]) / len(noise)
         if offset is not None:
             a = a - x[offset]
         return correct(x, a) / exact_or(x, path, path0)
 
     return term
+
+
+def _sum_of(terms: list):
+    """sum(terms); arrays of trials added from the first, without the 0 that sum() starts from: that
+    start can change only the sign of a sum that is zero, and a reading's mean (never -0.0) is
+    added to it next, so the reading is the same number with one pass over the trials less."""
+    if terms and all(isinstance(t, np.ndarray) for t in terms):
+        return functools.reduce(operator.add, terms)
+    return sum(terms)
 
 
 def _path_of(cell) -> float:
