@@ -183,8 +183,29 @@ def test_the_tails_of_every_open_output_fit_the_memory_limit_at_the_full_budget(
 
     monkeypatch.setattr(mc, "_tails_round", watched)
     monkeypatch.setattr(mc, "_tail_groups", counted)
-    assert _records(run, 5_000, 4) == one_group
+    _same_but_moments_and_histogram(_records(run, 5_000, 4), one_group)
     assert groups and max(groups) > 1 and held and max(held) <= room
+
+
+def test_one_first_pass_with_tails_beyond_the_memory_equals_every_value_kept(monkeypatch):
+    # 10^5 trials with room for the values of two outputs only: the others keep tails cut at the
+    # quantiles of their first chunk (a pilot), so one pass of draws serves all seven; against the
+    # whole path (each output's values kept, in groups on the same stream) every order statistic,
+    # spread, verdict and trial count is the same.
+    monkeypatch.setattr(mc, "CHECK_GROWTH", 1)
+    run = api.analyse(DEMOS / "phosphate_assay" / "method.toml", trials=None, advice=False)
+    trials = 3 * mc.CHUNK // 2
+    monkeypatch.setattr(mc, "MAX_KEPT_BYTES", 8 * 2 * trials + 5 * 8 * mctails.allowance(0.95, mc.CHUNK, trials))
+    split = mc._first_split(run.model.result_labels, trials, 0.95)
+    assert split is not None and len(split[0]) == 2 and len(split[1]) == 5
+    passes: list[int] = []
+    real = mc.draw_many
+    monkeypatch.setattr(mc, "draw_many", lambda *args: passes.append(args[1]) or real(*args))
+    one_pass = _records(run, trials, 8)
+    assert sum(passes) == trials  # the trials drawn once
+    _whole(monkeypatch)
+    monkeypatch.setattr(mc, "_first_split", lambda *args: None)
+    _same_but_moments_and_histogram(one_pass, _records(run, trials, 8))
 
 
 def test_model_outputs_named_equal_every_output(write_method):

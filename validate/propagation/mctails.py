@@ -131,17 +131,20 @@ class Tails:
         return 8 * (self.low.size + self.high.size + sum(a.size + b.size for a, b in self._pending))
 
     def add(self, values: np.ndarray) -> None:
-        """More trial values of this output (undefined ones counted and left out)."""
+        """More trial values of this output (undefined ones counted and left out). They are sorted
+        once: the tails are then their two ends, and the histogram's counts a search for each edge
+        (the counts numpy.histogram gives, see mcstats.histogram_data)."""
         finite = np.isfinite(values)
-        good = values if finite.all() else values[finite]
+        good = np.sort(values if finite.all() else values[finite])
         self.invalid += int(values.size - good.size)
-        low, high = good[good <= self.low_cut], good[good >= self.high_cut]
-        self.middle += int(good.size - low.size - high.size)
-        self._pending.append((low, high))
+        below = int(np.searchsorted(good, self.low_cut, side="right"))
+        above = int(np.searchsorted(good, self.high_cut, side="left"))
+        self._pending.append((good[:below].copy(), good[above:].copy()))  # copies: the middle is freed
+        self.middle += above - below
         d = good - self.shift
         self.sum1 += float(d.sum())
         self.sum2 += float(d @ d)
-        self.counts += np.histogram(good, bins=HISTOGRAM_BINS, range=self.window)[0]
+        self.counts += _sorted_histogram(good, HISTOGRAM_BINS, self.window)[0]
 
     def merge(self) -> None:
         """The added tail values sorted into the kept ones; `Outside` when they pass the allowance."""

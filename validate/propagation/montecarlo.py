@@ -47,7 +47,7 @@ from validate.propagation.mcstats import (
     summarise,
     summarise_sorted,
 )
-from validate.propagation.mctails import HISTOGRAM_BINS, Outside, Tails, histogram_window
+from validate.propagation.mctails import HISTOGRAM_BINS, Outside, Tails, allowance, histogram_window
 
 CHUNK = 100_000  # trials evaluated together: large enough for numpy, small enough for memory
 MAX_ADAPTIVE_TRIALS = 10_000_000
@@ -289,28 +289,108 @@ class _Final:
 
 def _run_fixed(model: Model, gums: dict[str, LinearResult], trials: int, seed: int, p: float,
                progress) -> dict[str, _Final]:
-    """Every output's statistics, run in groups of outputs that fit in memory; each group runs on
-    the same random stream (default_rng(seed)), so the groups see the same trials. A group's
-    settled outputs are summarised and dropped at once; its open ones (JCGM 101 8.2 undecided)
-    keep only their tails (validate.propagation.mctails) and wait, as long as they fit in memory
-    beside the next group, to be given their further trials together (`_finish`)."""
+    """Every output's statistics from `trials` trials of default_rng(seed). Settled outputs are
+    summarised and dropped at once; open ones (JCGM 101 8.2 undecided or not yet known to
+    delta/5) keep only their tails (validate.propagation.mctails) and are given their further
+    trials together (`_finish`). One pass of draws serves every output (`_first_pass`) where those
+    kept whole and the tails of the others fit in MAX_KEPT_BYTES; otherwise the outputs run in
+    groups that fit, each group on the same random stream, so every group sees the same trials."""
     final: dict[str, _Final] = {}
     waiting: dict[str, _Kept | Tails] = {}
+    again: list[str] = []
+    groups = _label_groups(list(gums), trials)  # refuses a run whose single result does not fit
+    split = _first_split(list(gums), trials, p)
     rng = np.random.default_rng(seed)
-    budget = min(MAX_CHECK_TRIALS, CHECK_GROWTH * trials)
-    for group in _label_groups(list(gums), trials):
+    if split is not None:
+        _first_pass(model, gums, split, trials, p, rng, progress, (final, waiting, again))
+        groups = []
+    for group in groups:
         if waiting and sum(_held_bytes(k) for k in waiting.values()) + 8 * trials * len(group) > MAX_KEPT_BYTES:
             _finish(model, gums, waiting, final, trials, seed, p, rng, progress)
         rng = np.random.default_rng(seed)
         values = _fixed(model, trials, rng, progress, group)
         for name in group:
-            kept = _Kept.of(gums[name], values.pop(name), p)
-            if kept.check.settled or budget <= trials:
-                final[name] = _Final.of(kept, p)  # dropped before more trials
-            else:
-                waiting[name] = Tails.of(kept.values, kept.invalid, kept.check, p, budget) or kept
-    _finish(model, gums, waiting, final, trials, seed, p, rng, progress)
+            _first_whole(gums[name], values.pop(name), trials, p, final, waiting)
+    _finish(model, gums, waiting, final, trials, seed, p, rng, progress, again)
     return {name: final[name] for name in gums}
+
+
+def _first_whole(gum: LinearResult, values: np.ndarray, trials: int, p: float, final: dict[str, _Final],
+                 waiting: dict[str, _Kept | Tails]) -> None:
+    """An output's first run from its every value: summarised into `final` when settled (or when no
+    trials can be added), else its tails (or, where tails would keep most, its values) wait."""
+    kept = _Kept.of(gum, values, p)
+    if kept.check.settled or _budget(trials) <= trials:
+        final[gum.name] = _Final.of(kept, p)
+    else:
+        waiting[gum.name] = Tails.of(kept.values, kept.invalid, kept.check, p, _budget(trials)) or kept
+
+
+def _budget(trials: int) -> int:
+    """Trials an output may reach in the JCGM 101 8.2 rounds after a first run of `trials`."""
+    return min(MAX_CHECK_TRIALS, CHECK_GROWTH * trials)
+
+
+def _first_split(labels: list[str], trials: int, p: float) -> tuple[list[str], list[str]] | None:
+    """The most outputs (in order) whose every value of the first run fits in MAX_KEPT_BYTES beside
+    the tails of the rest (at their allowance after `trials`); None when even one does not."""
+    whole_bytes, tail_bytes = 8 * trials, 8 * allowance(p, min(CHUNK, trials), trials)
+    for k in range(len(labels), 0, -1):
+        if k * whole_bytes + (len(labels) - k) * tail_bytes <= MAX_KEPT_BYTES:
+            return labels[:k], labels[k:]
+    return None
+
+
+def _first_pass(model: Model, gums: dict[str, LinearResult], split: tuple[list[str], list[str]], trials: int,
+                p: float, rng, progress, into: tuple[dict, dict, list]) -> None:
+    """The first run of every output in one pass of draws: the outputs of split[0] keep every
+    value; those of split[1] keep tails whose cuts come from their first CHUNK trials (the
+    pilot; their histogram's window too), so the pass holds what `_first_split` allowed. An output
+    whose pilot gives no tails, or whose tails miss a value at the end, goes to `again` (run whole
+    later). Fills (final, waiting, again) as `_first_whole` and `_finish` read them."""
+    final, waiting, again = into
+    whole, tailed = split
+    values = {name: np.empty(trials) for name in whole}
+    tails: dict[str, Tails] = {}
+    sources = list(model.sources.values())
+    done = 0
+    while done < trials:
+        n = min(CHUNK, trials - done)
+        labels = whole + [name for name in tailed if done == 0 or name in tails]
+        out = {name: values[name][done:done + n] if name in values else np.empty(n) for name in labels}
+        _evaluate(model, draw_many(sources, n, rng), n, labels, out)
+        for name in labels[len(whole):]:
+            if done > 0:
+                tails[name].add(out[name])
+            elif (pilot := _pilot(gums[name], out[name], p, _budget(trials))) is not None:
+                tails[name] = pilot
+            else:
+                again.append(name)
+        done += n
+        progress(n)
+    for name in whole:
+        _first_whole(gums[name], values.pop(name), trials, p, final, waiting)
+    for name, t in tails.items():
+        gum = gums[name]
+        try:
+            t.merge()
+            t.recheck(gum.value, gum.expanded_uncertainty, gum.standard_uncertainty)
+            if t.check.settled or _budget(trials) <= trials:
+                final[name] = _Final.of_tails(t)
+            else:
+                waiting[name] = t
+        except Outside:
+            again.append(name)
+
+
+def _pilot(gum: LinearResult, values: np.ndarray, p: float, budget: int) -> Tails | None:
+    """Tails from an output's first chunk of trials; None where they cannot be made."""
+    finite = np.sort(values[np.isfinite(values)])
+    try:
+        check = check_gum(gum.value, gum.expanded_uncertainty, gum.standard_uncertainty, finite, p)
+    except ValueError:  # too few defined trials for an interval
+        return None
+    return Tails.of(finite, int(values.size - finite.size), check, p, budget)
 
 
 def _held_bytes(kept: _Kept | Tails) -> int:
@@ -318,20 +398,21 @@ def _held_bytes(kept: _Kept | Tails) -> int:
 
 
 def _finish(model: Model, gums: dict[str, LinearResult], waiting: dict[str, _Kept | Tails], final: dict[str, _Final],
-            trials: int, seed: int, p: float, rng, progress) -> None:
+            trials: int, seed: int, p: float, rng, progress, again: list[str] | None = None) -> None:
     """The waiting outputs extended from the stream's state after `trials` trials (the same after
     every group), summarised into `final` and dropped: those with tails in one pass of draws
     (`_extend_tails`), those kept whole (tails would have kept nearly all) with their values. An
-    output whose tails turn out not to hold an index its statistics read is run again whole
-    from the start: its first `trials` trials replayed from default_rng(seed), then the rounds."""
+    output whose tails turn out not to hold an index its statistics read (and those of `again`)
+    is run again whole from the start: its first `trials` trials replayed from default_rng(seed),
+    then the rounds."""
     start = rng.bit_generator.state
     tails = {name: k for name, k in waiting.items() if isinstance(k, Tails)}
     whole = {name: k for name, k in waiting.items() if isinstance(k, _Kept)}
     waiting.clear()
-    again = _extend_tails(model, gums, tails, trials, p, rng, progress, final)
+    again = (again or []) + _extend_tails(model, gums, tails, trials, p, rng, progress, final)
     rng.bit_generator.state = start
     _extend(model, gums, whole, trials, p, rng, progress, final)
-    for group in _label_groups(again, min(MAX_CHECK_TRIALS, CHECK_GROWTH * trials)) if again else []:
+    for group in _label_groups(again, max(trials, _budget(trials))) if again else []:
         rng = np.random.default_rng(seed)
         values = _fixed(model, trials, rng, progress, group)
         _extend(model, gums, {name: _Kept.of(gums[name], values.pop(name), p) for name in group}, trials, p, rng,
@@ -517,6 +598,8 @@ def expected_work(trials: int | str, model: Model, shares: bool = True) -> int:
     groups = len({s.step for s in model.sources.values()}) + len({s.equipment for s in model.sources.values()})
     if trials == "auto":
         main = adaptive_batch_size(model.method.settings.coverage_probability) * 10
+    elif _first_split(model.result_labels, int(trials), model.method.settings.coverage_probability):
+        main = int(trials)  # one pass of draws for every result
     else:  # a run too large to keep every result's values at once runs once per group of results
         per = MAX_KEPT_BYTES // (8 * int(trials)) if 8 * int(trials) <= MAX_KEPT_BYTES else 1
         main = int(trials) * -(-len(model.result_labels) // max(1, per))
