@@ -119,7 +119,7 @@ class Tails:
         d = s - shift
         counts = _sorted_histogram(s, HISTOGRAM_BINS, window)[0].astype(np.int64)
         return cls(p, low_cut, high_cut, s[:below].copy(), s[above:].copy(), above - below, invalid, shift,
-                   float(d.sum()), float(d @ d), window, counts, allowance(p, m, budget), check)
+                   float(d.sum()), float(np.sum(d * d)), window, counts, allowance(p, m, budget), check)
 
     @property
     def n(self) -> int:
@@ -143,7 +143,8 @@ class Tails:
         self.middle += above - below
         d = good - self.shift
         self.sum1 += float(d.sum())
-        self.sum2 += float(d @ d)
+        d *= d  # in place: the squares (no BLAS call: its threads cost more than the sum)
+        self.sum2 += float(d.sum())
         self.counts += _sorted_histogram(good, HISTOGRAM_BINS, self.window)[0]
 
     def merge(self) -> None:
