@@ -6,14 +6,22 @@ calibration line is refitted in every trial without a Python loop per trial and
 the model's temporary arrays stay in the processor's cache. The random stream
 depends on CHUNK only; slicing the evaluation changes no number.
 
-Memory: the output values kept for the coverage intervals (8 bytes per trial and
-result) are held for at most MAX_KEPT_BYTES at once. A run whose results do not
-fit together runs in groups of results, each group on the same random stream
-(the same seed, so the same trials; the model is evaluated once per group); a
-result is summarised as soon as it is final and its values are dropped. A run
-whose single result does not fit stops with a message before any trial. (The
-adaptive procedure, trials="auto", keeps every result's values of its batches, at
-most MAX_ADAPTIVE_TRIALS each: it is not split into groups.)
+Memory: the output values kept for the coverage intervals are held for at most
+MAX_KEPT_BYTES at once: 8 bytes per trial for a result kept whole, and for a result
+whose comparison with the GUM interval (JCGM 101 8.2) is still open, or that does
+not fit beside the others, only the tails of its values that its statistics read
+(validate.propagation.mctails: exact order statistics, checked at every use; the
+result is run again whole where a tail misses one). So the first run and the
+clause 8 rounds are each one pass of draws for every result; only where even the
+tails do not fit do the results run in groups, each group on the same random
+stream (the same seed, so the same trials). A result is summarised as soon as it
+is final and its values are dropped. A run whose single result does not fit stops
+with a message before any trial. (The adaptive procedure, trials="auto", keeps
+every result's values of its batches, at most MAX_ADAPTIVE_TRIALS each: it is
+not split into groups.)
+
+The engine evaluates only the results it keeps (Model.outputs: the line and the
+samples named, the same code and numbers as Model.evaluate).
 
 Budget shares (held groups) use common random numbers: one set of draws and one
 base run, shared by every held-group run.
