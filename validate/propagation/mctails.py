@@ -150,9 +150,11 @@ class Tails:
     def merge(self) -> None:
         """The added tail values sorted into the kept ones; `Outside` when they pass the allowance."""
         if self._pending:
-            self.low = np.sort(np.concatenate([self.low, *(a for a, _ in self._pending)]))
-            self.high = np.sort(np.concatenate([self.high, *(b for _, b in self._pending)]))
+            self.low = np.concatenate([self.low, *(a for a, _ in self._pending)])
+            self.high = np.concatenate([self.high, *(b for _, b in self._pending)])
             self._pending.clear()
+            self.low.sort()  # in place: a merge holds at most one more copy of the tails
+            self.high.sort()
         if self.low.size + self.high.size > self.limit:
             raise Outside(f"the tails hold {self.low.size + self.high.size} values, above {self.limit}")
 

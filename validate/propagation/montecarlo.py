@@ -341,10 +341,12 @@ def _budget(trials: int) -> int:
 
 def _first_split(labels: list[str], trials: int, p: float) -> tuple[list[str], list[str]] | None:
     """The most outputs (in order) whose every value of the first run fits in MAX_KEPT_BYTES beside
-    the tails of the rest (at their allowance after `trials`); None when even one does not."""
+    the tails of the rest (at their allowance after `trials`, and room for one more copy while
+    one is merged); None when even one does not."""
     whole_bytes, tail_bytes = 8 * trials, 8 * allowance(p, min(CHUNK, trials), trials)
     for k in range(len(labels), 0, -1):
-        if k * whole_bytes + (len(labels) - k) * tail_bytes <= MAX_KEPT_BYTES:
+        tails = len(labels) - k
+        if k * whole_bytes + (tails + (1 if tails else 0)) * tail_bytes <= MAX_KEPT_BYTES:
             return labels[:k], labels[k:]
     return None
 
@@ -506,13 +508,13 @@ def _extend_tails(model: Model, gums: dict[str, LinearResult], tails: dict[str, 
 
 def _tail_groups(tails: dict[str, Tails], budget: int) -> list[list[str]]:
     """The outputs in groups whose tails, at most their allowance at the full budget, fit in
-    MAX_KEPT_BYTES."""
+    MAX_KEPT_BYTES with room for one more copy while one is merged."""
     groups: list[list[str]] = []
     held = MAX_KEPT_BYTES
     for name, t in tails.items():
         if held + 8 * t.limit > MAX_KEPT_BYTES:
             groups.append([])
-            held = 0
+            held = 8 * t.limit  # the merge's copy
         groups[-1].append(name)
         held += 8 * t.limit
     return groups
