@@ -225,3 +225,12 @@ def test_histogram_window_is_the_interval_widened_on_each_side():
     assert mctails.histogram_window(1.0, 2.0) == pytest.approx((0.4, 2.6))
     assert mctails.histogram_window(1.0, 1.0) is None
     assert math.isclose(mctails.tail_fraction(0.95, 10**6), 0.0625)
+
+
+def test_no_tails_where_they_would_keep_a_quarter_or_more_of_the_values(monkeypatch):
+    # At p = 0.5 each tail would keep over 62 % (1.25 (1 - p)): the first run keeps whole values,
+    # in groups where they do not fit together, and never plans tails.
+    assert mc._first_split(["a", "b", "c"], 10**6, 0.5) == (["a", "b", "c"], [])
+    monkeypatch.setattr(mc, "MAX_KEPT_BYTES", 8 * 2 * 10**6)
+    assert mc._first_split(["a", "b", "c"], 10**6, 0.5) is None
+    assert mc._first_split(["a", "b", "c"], 10**6, 0.95) == (["a"], ["b", "c"])

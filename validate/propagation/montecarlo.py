@@ -55,7 +55,7 @@ from validate.propagation.mcstats import (
     summarise,
     summarise_sorted,
 )
-from validate.propagation.mctails import HISTOGRAM_BINS, Outside, Tails, allowance, histogram_window
+from validate.propagation.mctails import HISTOGRAM_BINS, Outside, Tails, allowance, histogram_window, tail_fraction
 
 CHUNK = 100_000  # trials evaluated together: large enough for numpy, small enough for memory
 MAX_ADAPTIVE_TRIALS = 10_000_000
@@ -344,6 +344,8 @@ def _first_split(labels: list[str], trials: int, p: float) -> tuple[list[str], l
     the tails of the rest (at their allowance after `trials`, and room for one more copy while
     one is merged); None when even one does not."""
     whole_bytes, tail_bytes = 8 * trials, 8 * allowance(p, min(CHUNK, trials), trials)
+    if 4 * tail_fraction(p, min(CHUNK, trials)) > 1:  # no tails are made (mctails.Tails.of): whole or groups
+        tail_bytes = MAX_KEPT_BYTES + 1
     for k in range(len(labels), 0, -1):
         tails = len(labels) - k
         if k * whole_bytes + (tails + (1 if tails else 0)) * tail_bytes <= MAX_KEPT_BYTES:
