@@ -108,8 +108,12 @@ def _mc_and_floor(method: str, runs: int, growth: int | None) -> dict:
     from validate.propagation.distributions import draw_many
     from validate.workflow import pipeline
 
+    try:  # where the rounds' settings live (older checkouts: in montecarlo itself)
+        from validate.propagation import mcrounds as rounds
+    except ImportError:
+        rounds = mc
     if growth is not None:
-        mc.CHECK_GROWTH = growth
+        rounds.CHECK_GROWTH = growth
     run = pipeline.analyse(method, trials=None, advice=False)
     trials = 1_000_000
     results: list = []
@@ -121,7 +125,7 @@ def _mc_and_floor(method: str, runs: int, growth: int | None) -> dict:
     def draw_only() -> None:
         rng, done = np.random.default_rng(1), 0
         while done < drawn:
-            n = min(mc.CHUNK, drawn - done)
+            n = min(rounds.CHUNK, drawn - done)
             draw_many(sources, n, rng)
             done += n
 

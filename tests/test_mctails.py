@@ -15,6 +15,7 @@ import pytest
 from conftest import DEMOS
 
 from validate.propagation import gumcheck, mctails
+from validate.propagation import mcrounds as rounds
 from validate.propagation import montecarlo as mc
 from validate.propagation.gumcheck import check_gum, end_spreads
 from validate.propagation.mcstats import histogram_data, summarise
@@ -40,7 +41,7 @@ def _records(run, trials: int, seed: int) -> list[dict]:
 
 def _whole(monkeypatch) -> None:
     """Every open output kept whole (the path before the tails)."""
-    monkeypatch.setattr(mc.Tails, "of", classmethod(lambda cls, *args: None))
+    monkeypatch.setattr(rounds.Tails, "of", classmethod(lambda cls, *args: None))
 
 
 def _same_but_moments_and_histogram(tails: list[dict], whole: list[dict]) -> None:
@@ -56,7 +57,7 @@ def _same_but_moments_and_histogram(tails: list[dict], whole: list[dict]) -> Non
 
 @pytest.mark.parametrize("seed", [4, 9])
 def test_phosphate_demo_tails_equal_whole_values(monkeypatch, seed):
-    monkeypatch.setattr(mc, "CHECK_GROWTH", 10)
+    monkeypatch.setattr(rounds, "CHECK_GROWTH", 10)
     run = api.analyse(DEMOS / "phosphate_assay" / "method.toml", trials=None, advice=False)
     tails = _records(run, 5_000, seed)
     assert any(r["trials"] > 5_000 for r in tails)  # some outputs had trials added
@@ -88,13 +89,13 @@ def test_an_output_whose_tails_miss_a_value_is_run_again_whole(monkeypatch, writ
         _whole_records = _records(run, 20_000, 3)
     monkeypatch.setattr(mctails, "tail_fraction", lambda p, first: 0.001)
     again: list[list[str]] = []
-    real = mc._extend_tails
+    real = rounds._extend_tails
 
     def watched(*args):
         again.append(real(*args))
         return again[-1]
 
-    monkeypatch.setattr(mc, "_extend_tails", watched)
+    monkeypatch.setattr(rounds, "_extend_tails", watched)
     assert _records(run, 20_000, 3) == _whole_records
     assert again == [["Y"]]
 
@@ -163,14 +164,14 @@ def test_the_tails_of_every_open_output_fit_the_memory_limit_at_the_full_budget(
     # The clause 8 rounds (JCGM 101 8.2) run the open outputs in groups whose tails, at their
     # allowance at the full budget, fit MAX_KEPT_BYTES; what they hold never passes it, and the
     # numbers are those of one group for all.
-    monkeypatch.setattr(mc, "CHECK_GROWTH", 10)
+    monkeypatch.setattr(rounds, "CHECK_GROWTH", 10)
     run = api.analyse(DEMOS / "phosphate_assay" / "method.toml", trials=None, advice=False)
     one_group = _records(run, 5_000, 4)
     room = 8 * 2 * mctails.allowance(0.95, 5_000, 50_000)  # one output's tails at the budget and its merge
-    monkeypatch.setattr(mc, "MAX_KEPT_BYTES", room)
+    monkeypatch.setattr(rounds, "MAX_KEPT_BYTES", room)
     held: list[int] = []
     groups: list[int] = []
-    real_round, real_groups = mc._tails_round, mc._tail_groups
+    real_round, real_groups = rounds._tails_round, rounds._tail_groups
 
     def watched(model, gums, tails, group, *rest):
         real_round(model, gums, tails, group, *rest)
@@ -181,8 +182,8 @@ def test_the_tails_of_every_open_output_fit_the_memory_limit_at_the_full_budget(
         groups.append(len(found))
         return found
 
-    monkeypatch.setattr(mc, "_tails_round", watched)
-    monkeypatch.setattr(mc, "_tail_groups", counted)
+    monkeypatch.setattr(rounds, "_tails_round", watched)
+    monkeypatch.setattr(rounds, "_tail_groups", counted)
     _same_but_moments_and_histogram(_records(run, 5_000, 4), one_group)
     assert groups and max(groups) > 1 and held and max(held) <= room
 
@@ -192,20 +193,20 @@ def test_one_first_pass_with_tails_beyond_the_memory_equals_every_value_kept(mon
     # quantiles of their first chunk (a pilot), so one pass of draws serves all seven; against the
     # whole path (each output's values kept, in groups on the same stream) every order statistic,
     # spread, verdict and trial count is the same.
-    monkeypatch.setattr(mc, "CHECK_GROWTH", 1)
+    monkeypatch.setattr(rounds, "CHECK_GROWTH", 1)
     run = api.analyse(DEMOS / "phosphate_assay" / "method.toml", trials=None, advice=False)
-    trials = 3 * mc.CHUNK // 2
-    room = 8 * 2 * trials + (5 + 1) * 8 * mctails.allowance(0.95, mc.CHUNK, trials)  # + one tail's merge
-    monkeypatch.setattr(mc, "MAX_KEPT_BYTES", room)
-    split = mc._first_split(run.model.result_labels, trials, 0.95)
+    trials = 3 * rounds.CHUNK // 2
+    room = 8 * 2 * trials + (5 + 1) * 8 * mctails.allowance(0.95, rounds.CHUNK, trials)  # + one tail's merge
+    monkeypatch.setattr(rounds, "MAX_KEPT_BYTES", room)
+    split = rounds.first_split(run.model.result_labels, trials, 0.95)
     assert split is not None and len(split[0]) == 2 and len(split[1]) == 5
     passes: list[int] = []
-    real = mc.draw_many
-    monkeypatch.setattr(mc, "draw_many", lambda *args: passes.append(args[1]) or real(*args))
+    real = rounds.draw_many
+    monkeypatch.setattr(rounds, "draw_many", lambda *args: passes.append(args[1]) or real(*args))
     one_pass = _records(run, trials, 8)
     assert sum(passes) == trials  # the trials drawn once
     _whole(monkeypatch)
-    monkeypatch.setattr(mc, "_first_split", lambda *args: None)
+    monkeypatch.setattr(rounds, "first_split", lambda *args: None)
     _same_but_moments_and_histogram(one_pass, _records(run, trials, 8))
 
 
@@ -230,7 +231,7 @@ def test_histogram_window_is_the_interval_widened_on_each_side():
 def test_no_tails_where_they_would_keep_a_quarter_or_more_of_the_values(monkeypatch):
     # At p = 0.5 each tail would keep over 62 % (1.25 (1 - p)): the first run keeps whole values,
     # in groups where they do not fit together, and never plans tails.
-    assert mc._first_split(["a", "b", "c"], 10**6, 0.5) == (["a", "b", "c"], [])
-    monkeypatch.setattr(mc, "MAX_KEPT_BYTES", 8 * 2 * 10**6)
-    assert mc._first_split(["a", "b", "c"], 10**6, 0.5) is None
-    assert mc._first_split(["a", "b", "c"], 10**6, 0.95) == (["a"], ["b", "c"])
+    assert rounds.first_split(["a", "b", "c"], 10**6, 0.5) == (["a", "b", "c"], [])
+    monkeypatch.setattr(rounds, "MAX_KEPT_BYTES", 8 * 2 * 10**6)
+    assert rounds.first_split(["a", "b", "c"], 10**6, 0.5) is None
+    assert rounds.first_split(["a", "b", "c"], 10**6, 0.95) == (["a"], ["b", "c"])
