@@ -123,10 +123,8 @@ class Model(SolutionInputs):
         plan = self.__dict__.get("_outputs_plan")
         if plan is None or plan.labels != tuple(self.result_labels):  # made again if results were added
             plan = self.__dict__["_outputs_plan"] = _plan(self)
-        wanted = set(labels)
-        if not wanted <= plan.own_labels:
-            return self.evaluate(x)
-        return self._results(x, plan.only(wanted))
+        some = plan.only(labels)
+        return self.evaluate(x) if some is None else self._results(x, some)
 
     def _results(self, x, plan: _Plan) -> dict:
         conc = self.concentrations(x)
@@ -175,16 +173,18 @@ class _Plan:
     own: tuple[str, ...]
     reads: bool
     samples: tuple = ()
+    _subsets: dict = field(default_factory=dict, compare=False, repr=False)  # made once per set of labels
 
-    @property
-    def own_labels(self) -> frozenset[str]:
-        return frozenset(self.own)
-
-    def only(self, wanted: set[str]) -> _Plan:
-        """The plan for the results in `wanted` only (in the model's order)."""
-        keep = [i for i, label in enumerate(self.own) if label in wanted]
-        samples = tuple(self.samples[i] for i in keep) if self.reads else ()
-        return _Plan(self.labels, tuple(self.own[i] for i in keep), self.reads, samples)
+    def only(self, labels) -> _Plan | None:
+        """The plan for the results named in `labels` only (in the model's order); None when one
+        named is not among `own`."""
+        wanted = frozenset(labels)
+        if wanted not in self._subsets:
+            keep = [i for i, label in enumerate(self.own) if label in wanted]
+            samples = tuple(self.samples[i] for i in keep) if self.reads else ()
+            some = _Plan(self.labels, tuple(self.own[i] for i in keep), self.reads, samples)
+            self._subsets[wanted] = some if wanted <= frozenset(self.own) else None
+        return self._subsets[wanted]
 
 
 def _plan(model: Model) -> _Plan:

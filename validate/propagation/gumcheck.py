@@ -129,7 +129,7 @@ def check_gum(y: float, expanded: float, u: float, sorted_values: np.ndarray, p:
 
 def check_gum_at(y: float, expanded: float, u: float, at: Callable[[int], float], m: int, p: float) -> GumCheck:
     """`check_gum` of M sorted finite values of which `at(i)` gives the one at 0-based index i
-    (the engine's kept tails give only the ones the comparison reads, `needed_indices`)."""
+    (the engine's kept tails give only the values it reads: the ends and their spread brackets)."""
     low, high = symmetric_indices(m, p)
     delta = numerical_tolerance(u, 2) if u > 0 else 0.0
     validation = validate_gum(y, (y - expanded, y + expanded), (float(at(low)), float(at(high))), delta)

@@ -60,7 +60,7 @@ def run_trials(model: Model, trials: int, rng, progress, labels=None, out=None) 
     while done < trials:
         n = min(CHUNK, trials - done)
         evaluate(model, draw_many(sources, n, rng), n, labels,
-                  {label: values[label][done:done + n] for label in labels})
+                 {label: values[label][done:done + n] for label in labels})
         done += n
         progress(n)
     return values
@@ -119,7 +119,7 @@ class Final:
 
 
 def run_fixed(model: Model, gums: dict[str, LinearResult], trials: int, seed: int, p: float,
-               progress) -> dict[str, Final]:
+              progress) -> dict[str, Final]:
     """Every output's statistics from `trials` trials of default_rng(seed). Settled outputs are
     summarised and dropped at once; open ones (JCGM 101 8.2 undecided or not yet known to
     delta/5) keep only their tails (validate.propagation.mctails) and are given their further
@@ -206,16 +206,22 @@ def _first_pass(model: Model, gums: dict[str, LinearResult], split: tuple[list[s
     for name in whole:
         _first_whole(gums[name], values.pop(name), trials, p, final, waiting)
     for name, t in tails.items():
-        gum = gums[name]
-        try:
-            t.merge()
-            t.recheck(gum.value, gum.expanded_uncertainty, gum.standard_uncertainty)
-            if t.check.settled or _budget(trials) <= trials:
-                final[name] = Final.of_tails(t)
-            else:
-                waiting[name] = t
-        except Outside:
-            again.append(name)
+        _first_tails(gums[name], t, trials, into)
+
+
+def _first_tails(gum: LinearResult, tails: Tails, trials: int, into: tuple[dict, dict, list]) -> None:
+    """An output's first run from its tails, as `_first_whole` from every value; to `again` where
+    the tails miss a value the statistics read."""
+    final, waiting, again = into
+    try:
+        tails.merge()
+        tails.recheck(gum.value, gum.expanded_uncertainty, gum.standard_uncertainty)
+        if tails.check.settled or _budget(trials) <= trials:
+            final[gum.name] = Final.of_tails(tails)
+        else:
+            waiting[gum.name] = tails
+    except Outside:
+        again.append(gum.name)
 
 
 def _pilot(gum: LinearResult, values: np.ndarray, p: float, budget: int) -> Tails | None:
@@ -250,12 +256,12 @@ def _finish(model: Model, gums: dict[str, LinearResult], waiting: dict[str, Kept
     for group in label_groups(again, max(trials, _budget(trials))) if again else []:
         rng = np.random.default_rng(seed)
         values = run_trials(model, trials, rng, progress, group)
-        extend_whole(model, gums, {name: Kept.of(gums[name], values.pop(name), p) for name in group}, trials, p, rng,
-                progress, final)
+        extend_whole(model, gums, {name: Kept.of(gums[name], values.pop(name), p) for name in group}, trials, p,
+                     rng, progress, final)
 
 
 def extend_whole(model: Model, gums: dict[str, LinearResult], kept: dict[str, Kept], total: int, p: float, rng,
-            progress, final: dict[str, Final]) -> None:
+                 progress, final: dict[str, Final]) -> None:
     """JCGM 101 8.2 on whole values: rounds of more trials, on the same random stream, for the
     outputs whose comparison is undecided or not yet known to delta/5; each round adds as many
     trials as were run so far, up to the budget. The open outputs run in groups that fit in
