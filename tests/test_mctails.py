@@ -36,7 +36,9 @@ formula = "X1 + X2"
 
 
 def _records(run, trials: int, seed: int) -> list[dict]:
-    return [r.to_dict() for r in mc.propagate_mc(run.model, run.results, trials, seed=seed, shares=False)]
+    """Each output's record, with both ends' spreads (the record shows the larger only)."""
+    return [{**r.to_dict(), "spreads": (r.check.spread_low, r.check.spread_high)}
+            for r in mc.propagate_mc(run.model, run.results, trials, seed=seed, shares=False)]
 
 
 def _whole(monkeypatch) -> None:
