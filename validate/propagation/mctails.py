@@ -14,7 +14,8 @@ statistics read only the two ends of the sorted values:
 So after the first run (its values whole and sorted) an open output keeps, from then on, only
 the values at or below a low cut and at or above a high cut, both set from the first run a
 generous margin beyond the fraction 1 - p (`tail_fraction`), and counts the values between
-them. The middle values are never needed: as long as every index read lies inside the kept
+them. (An output whose first run's values do not fit in memory beside the others' is cut the
+same way from its first chunk of trials, a pilot, and keeps tails from the start.) The middle values are never needed: as long as every index read lies inside the kept
 tails, each order statistic is the same number the whole sorted array would give (the count of
 the middle makes the indices exact). Whether it does is checked at every use; where it does not
 (`Outside`), the engine runs that output again with its values whole, so no statistic ever
@@ -24,9 +25,10 @@ Two things differ from keeping every value, and only these:
 - mean and standard deviation come from sums of the differences from the first run's mean
   (shifted sums: no cancellation), not numpy's pairwise sum of the sorted values; the two
   agree to round-off (relative differences of order 1e-15; the tests hold them to 1e-12);
-- the histogram's window is that of the first run's symmetric interval widened by 60 % on each
-  side (the one the whole values would get from the final interval is known only at the end;
-  the two windows differ by the ends' Monte Carlo noise), and its counts are exact on it.
+- the histogram's window is that of the first run's (or the pilot's) symmetric interval widened
+  by 60 % on each side (the one the whole values would get from the final interval is known
+  only at the end; the two windows differ by the ends' Monte Carlo noise), and its counts are
+  exact on it.
 """
 
 from __future__ import annotations
