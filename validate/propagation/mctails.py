@@ -15,9 +15,10 @@ So after the first run (its values whole and sorted) an open output keeps, from 
 the values at or below a low cut and at or above a high cut, both set from the first run a
 generous margin beyond the fraction 1 - p (`tail_fraction`), and counts the values between
 them. (An output whose first run's values do not fit in memory beside the others' is cut the
-same way from its first chunk of trials, a pilot, and keeps tails from the start.) The middle values are never needed: as long as every index read lies inside the kept
-tails, each order statistic is the same number the whole sorted array would give (the count of
-the middle makes the indices exact). Whether it does is checked at every use; where it does not
+same way from its first chunk of trials, a pilot, and keeps tails from the start.) The middle
+values are never needed: as long as every index read lies inside the kept tails, each order
+statistic is the same number the whole sorted array would give (the count of the middle makes
+the indices exact). Whether it does is checked at every use; where it does not
 (`Outside`), the engine runs that output again with its values whole, so no statistic ever
 comes from a guess.
 
