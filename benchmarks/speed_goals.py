@@ -147,6 +147,14 @@ class Bench:
             self.both(Goal(f"  ... ratio engine / floor, {label}, {how}", 2.0, "x"),
                       lambda c: _median(measured(c)["cpu"]) / _median(measured(c)["floor"]))
 
+    def stages(self, method: Path, label: str) -> None:
+        """Where a default run's CPU time goes, stage by stage (context for the whole-run goal)."""
+        if self.only not in f"stages of a default run, {label}":
+            return
+        found = probe(ROOT, "stages", method, 1)["stages"]
+        for stage, seconds in found.items():
+            show(Goal(f"  stages of a default run, {label}: {stage}", None), seconds, None)
+
     def memory(self, method: Path, label: str) -> None:
         self.both(Goal(f"peak memory, Monte Carlo at 10^7 trials + shares, {label}: MiB", 600.0, "MiB"),
                   lambda c: probe(c, "memory", method, 1)["mib"], slow=True)
@@ -193,7 +201,9 @@ def main() -> None:
         bench.pdf(DEMOS["phosphate"], "phosphate demo")
         for label, method in DEMOS.items():
             bench.whole(method, f"{label} demo", 4.0)
+        bench.monte_carlo(scaled, "generated 40 x 50")
         bench.whole(scaled, "generated 40 x 50", 15.0, slow=True)
+        bench.stages(scaled, "generated 40 x 50")
         if args.memory:
             for label, method in DEMOS.items():
                 bench.memory(method, f"{label} demo")

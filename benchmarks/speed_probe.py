@@ -15,6 +15,8 @@ and, for the PDF, its size. MEASURE is one of:
            only (the trials of the main run and of the additions, and the shares' one set)
   mc-asked the same with no trials added for the clause 8 comparison (the trials asked only)
   memory   peak resident memory (MiB) of the Monte Carlo stage at 10^7 trials with the shares
+  stages   a default run (10^6 trials, seed 1, advisor, record folder with the PDF) with the CPU
+           seconds of each stage: imports, GUM, Monte Carlo, advisor, record, PDF, manifest
 """
 
 from __future__ import annotations
@@ -106,8 +108,12 @@ def _mc_and_floor(method: str, runs: int, growth: int | None) -> dict:
     from validate.propagation.distributions import draw_many
     from validate.workflow import pipeline
 
+    try:  # where the rounds' settings live (older checkouts: in montecarlo itself)
+        from validate.propagation import mcrounds as rounds
+    except ImportError:
+        rounds = mc
     if growth is not None:
-        mc.CHECK_GROWTH = growth
+        rounds.CHECK_GROWTH = growth
     run = pipeline.analyse(method, trials=None, advice=False)
     trials = 1_000_000
     results: list = []
@@ -119,7 +125,7 @@ def _mc_and_floor(method: str, runs: int, growth: int | None) -> dict:
     def draw_only() -> None:
         rng, done = np.random.default_rng(1), 0
         while done < drawn:
-            n = min(mc.CHUNK, drawn - done)
+            n = min(rounds.CHUNK, drawn - done)
             draw_many(sources, n, rng)
             done += n
 
@@ -137,13 +143,51 @@ def memory(method: str) -> dict:
     return {"mib": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0}  # Linux: KiB
 
 
+STAGES = (("validate.workflow.pipeline", "propagate", "GUM"),
+          ("validate.workflow.pipeline", "propagate_mc", "Monte Carlo"),
+          ("validate.advisor.advice", "advise", "advisor"),
+          ("validate.workflow.pipeline", "build_record", "record built"),
+          ("validate.workflow.pipeline", "record_json", "results.json"),
+          ("validate.workflow.pipeline", "content_hash", "content hash"),
+          ("validate.report.pdf", "build_report", "PDF"),
+          ("validate.workflow.pipeline", "make_manifest", "manifest"))
+
+
+def stages(method: str, runs: int) -> dict:
+    """CPU seconds of each stage of a default run, from the stage functions wrapped in timers."""
+    import importlib
+
+    start = time.process_time()
+    from validate.workflow import pipeline
+
+    spent = {"imports": time.process_time() - start}
+    for module_name, attr, label in STAGES:
+        module = importlib.import_module(module_name)
+        setattr(module, attr, _stage_timer(getattr(module, attr), label, spent))
+    with tempfile.TemporaryDirectory() as folder:
+        total = _cpu(lambda: pipeline.write_outputs(pipeline.analyse(method, trials=1_000_000, seed=1),
+                                                    Path(folder) / "record"))
+    spent["the rest"] = total - sum(v for k, v in spent.items() if k != "imports")
+    return {"cpu": [total + spent["imports"]], "stages": spent}
+
+
+def _stage_timer(func, label: str, spent: dict):
+    def timed(*args, **kwargs):
+        start = time.process_time()
+        try:
+            return func(*args, **kwargs)
+        finally:
+            spent[label] = spent.get(label, 0.0) + time.process_time() - start
+    return timed
+
+
 def main() -> None:
     checkout, measure, method, runs = sys.argv[1], sys.argv[2], sys.argv[3], int(sys.argv[4])
     sys.path.insert(0, checkout)
     probes = {"gum": lambda: gum(method, runs), "advisor": lambda: advisor(method, runs, 3),
               "advisor-linear": lambda: advisor(method, runs, 0), "pdf": lambda: pdf(method, runs),
               "mc": lambda: _mc_and_floor(method, runs, None), "mc-asked": lambda: _mc_and_floor(method, runs, 1),
-              "memory": lambda: memory(method)}
+              "memory": lambda: memory(method), "stages": lambda: stages(method, runs)}
     if measure not in probes:
         raise SystemExit(f"unknown measure {measure!r}; choose one of {', '.join(probes)}")
     print(json.dumps(probes[measure]()))

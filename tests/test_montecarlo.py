@@ -11,6 +11,7 @@ from conftest import DEMOS
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
+from validate.propagation import mcrounds as rounds
 from validate.propagation.montecarlo import evaluate_trials
 from validate.workflow import pipeline as api
 
@@ -154,9 +155,9 @@ def test_calibration_refitted_in_every_trial(tmp_path, monkeypatch):
         assert intercepts[trial] == pytest.approx(intercept, rel=1e-7, abs=1e-12)
     # and the spread of the line feeds the result: Monte Carlo and GUM agree for this
     # nearly linear model (JCGM 101 clause 8 spirit: relative difference of u below 5 %)
-    from validate.propagation import montecarlo
+    from validate.propagation import mcrounds, montecarlo
 
-    monkeypatch.setattr(montecarlo, "CHECK_GROWTH", 1)  # the trials the clause 8 comparison adds are not checked here
+    monkeypatch.setattr(mcrounds, "CHECK_GROWTH", 1)  # the trials the clause 8 comparison adds are not checked here
     run = api.analyse(folder / "method.toml", trials=None, advice=False)
     for gum, mc in zip(run.results, montecarlo.propagate_mc(run.model, run.results, 100_000, seed=4, shares=False),
                        strict=True):
@@ -186,6 +187,9 @@ formula = "A / B + C * A"
 """
 
 
+MOMENTS = ("mean", "standard_uncertainty", "histogram")
+
+
 def _strip_seed(results) -> list[dict]:
     return [r.to_dict() for r in results]
 
@@ -195,17 +199,21 @@ def test_results_in_memory_groups_equal_one_pass(monkeypatch, kept_bytes, growth
     # Room for three results' values (no trials added), or for all of them at the trials asked
     # but for one only at the clause 8 budget, or for four at the trials asked (two groups, the
     # first group's undecided results waiting for the second's to get their added trials
-    # together): the results then run in groups, each on the same random stream; the record
-    # must be the same, number for number, as one pass for all.
+    # together): the results then run in groups, each on the same random stream, or in one pass
+    # with tails for those beyond the room (validate.propagation.mctails); the record must be
+    # the same, number for number, as one pass for all (mean and SD of tails to round-off).
     from validate.propagation import montecarlo as mc
 
-    monkeypatch.setattr(mc, "CHECK_GROWTH", growth)
+    monkeypatch.setattr(rounds, "CHECK_GROWTH", growth)
     run = api.analyse(DEMOS / "phosphate_assay" / "method.toml", trials=None, advice=False)
     one_pass = _strip_seed(mc.propagate_mc(run.model, run.results, 5_000, seed=4, shares=False))
-    monkeypatch.setattr(mc, "MAX_KEPT_BYTES", kept_bytes)
+    monkeypatch.setattr(rounds, "MAX_KEPT_BYTES", kept_bytes)
     grouped = _strip_seed(mc.propagate_mc(run.model, run.results, 5_000, seed=4, shares=False))
-    assert grouped == one_pass
-    assert len(mc._label_groups(run.model.result_labels, 5_000 * growth)) > 1
+    for g, o in zip(grouped, one_pass, strict=True):  # outputs on tails (tests/test_mctails.py): mean
+        assert {k: v for k, v in g.items() if k not in MOMENTS} == {k: v for k, v in o.items() if k not in MOMENTS}
+        assert [g[k] for k in MOMENTS[:2]] == pytest.approx([o[k] for k in MOMENTS[:2]], rel=1e-12, abs=0.0)
+        assert sum(g["histogram"]["counts"]) <= g["trials"]  # and SD to round-off, the histogram's window
+    assert len(rounds.label_groups(run.model.result_labels, 5_000 * growth)) > 1
     if growth > 1:  # the case is one: some results had trials added
         assert any(r["trials"] > 5_000 for r in grouped)
 
@@ -215,7 +223,7 @@ def test_slices_of_the_evaluation_change_no_number(write_method, monkeypatch):
 
     run = api.analyse(write_method(SEVERAL), trials=None, advice=False)
     whole = mc.evaluate_trials(run.model, 30_000, np.random.default_rng(5))
-    monkeypatch.setattr(mc, "EVAL_SLICE", 977)  # slices that do not divide the chunk
+    monkeypatch.setattr(rounds, "EVAL_SLICE", 977)  # slices that do not divide the chunk
     sliced = mc.evaluate_trials(run.model, 30_000, np.random.default_rng(5))
     assert all(np.array_equal(whole[k], sliced[k]) for k in whole)
 
@@ -240,7 +248,7 @@ def test_too_many_trials_stop_with_the_limit_before_any_trial(write_method):
     from validate.propagation import montecarlo as mc
 
     run = api.analyse(write_method(SEVERAL), trials=None, advice=False)
-    most = mc.MAX_KEPT_BYTES // 8
+    most = rounds.MAX_KEPT_BYTES // 8
     with pytest.raises(ModelError, match=f"use at most {most:,} trials"):
         mc.propagate_mc(run.model, run.results, most + 1, seed=1)
 
@@ -249,21 +257,24 @@ def test_the_clause_8_rounds_keep_the_values_held_within_the_memory_limit(monkey
     # The values an output keeps for its coverage interval (JCGM 101 7.7) grow with every round of
     # the clause 8 comparison (8.2): the open outputs run in groups that fit MAX_KEPT_BYTES at the
     # full budget, and each group's outputs are summarised and dropped before the next, so what is
-    # held never passes the limit for the waiting outputs plus the limit for one group.
+    # held never passes the limit for the waiting outputs plus the limit for one group. (This is
+    # the path of outputs kept whole: the adaptive run's, and the one for outputs whose tails
+    # miss a value; tests/test_mctails.py holds the tails to the limit.)
     from validate.propagation import montecarlo as mc
 
-    monkeypatch.setattr(mc, "CHECK_GROWTH", 10)
+    monkeypatch.setattr(rounds.Tails, "of", classmethod(lambda cls, *args: None))  # every output kept whole
+    monkeypatch.setattr(rounds, "CHECK_GROWTH", 10)
     run = api.analyse(DEMOS / "phosphate_assay" / "method.toml", trials=None, advice=False)
     one_pass = _strip_seed(mc.propagate_mc(run.model, run.results, 5_000, seed=4, shares=False))
-    monkeypatch.setattr(mc, "MAX_KEPT_BYTES", 8 * 50_000)  # one output at the clause 8 budget
+    monkeypatch.setattr(rounds, "MAX_KEPT_BYTES", 8 * 50_000)  # one output at the clause 8 budget
     held: list[int] = []
-    real_round = mc._one_round
+    real_round = rounds._one_round
 
     def watched(model, gums, kept, group, more, p, rng, progress):
         held.append(8 * (sum(k.values.size for k in kept.values()) + len(group) * more))
         return real_round(model, gums, kept, group, more, p, rng, progress)
 
-    monkeypatch.setattr(mc, "_one_round", watched)
+    monkeypatch.setattr(rounds, "_one_round", watched)
     grouped = _strip_seed(mc.propagate_mc(run.model, run.results, 5_000, seed=4, shares=False))
     assert grouped == one_pass  # the same numbers as with room for everything
-    assert held and max(held) <= 2 * mc.MAX_KEPT_BYTES
+    assert held and max(held) <= 2 * rounds.MAX_KEPT_BYTES

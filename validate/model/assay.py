@@ -15,8 +15,12 @@ result formula.
 
 from __future__ import annotations
 
+import functools
+import operator
 from dataclasses import dataclass, field
 from typing import Any
+
+import numpy as np
 
 from validate.inputs.items import Cuvette, Photometer
 from validate.inputs.schema import AssayMethod, Calibration, Method
@@ -44,6 +48,15 @@ class SolutionInputs:
 
     def nominal_inputs(self) -> dict[str, float]:
         return {name: s.value for name, s in self.sources.items()}
+
+    def evaluate(self, x) -> dict:
+        """Every result from source values of any backend."""
+        raise NotImplementedError
+
+    def outputs(self, x, labels) -> dict:
+        """At least the results named in `labels` (the Monte Carlo engine asks for the ones it
+        keeps); a model that cannot evaluate fewer gives them all."""
+        return self.evaluate(x)
 
     def concentrations(self, x) -> dict:
         conc: dict = {}
@@ -101,14 +114,25 @@ class Model(SolutionInputs):
 
     def evaluate(self, x) -> dict:
         """Results (in their display units) from source values of any backend."""
+        return self._results(x, _plan(self))
+
+    def outputs(self, x, labels) -> dict:
+        """The results named in `labels`: the line and only the samples named (every result
+        when one named is not the assay's own, e.g. a standard addition's). The same code as
+        `evaluate`, so the same numbers; its plan is made once per model."""
+        plan = self.__dict__.get("_outputs_plan")
+        if plan is None or plan.labels != tuple(self.result_labels):  # made again if results were added
+            plan = self.__dict__["_outputs_plan"] = _plan(self)
+        some = plan.only(labels)
+        return self.evaluate(x) if some is None else self._results(x, some)
+
+    def _results(self, x, plan: _Plan) -> dict:
         conc = self.concentrations(x)
         values = dict(conc)
-        formula = self.method.result.formula
-        factor = self.method.result.unit.factor
-        read = self._read_off_line(x, conc) if "c_measured" in formula.names else [("", None)]
+        formula, factor = self.method.result.formula, self.method.result.unit.factor
+        read = self._read_off_line(x, conc, plan.samples) if plan.reads else [("", None)] * len(plan.own)
         results = {}
-        own = [lb for lb, key in zip(self.result_labels, self.result_keys, strict=True) if key.kind == "result"]
-        for (sample_id, c_measured), label in zip(read, own, strict=True):  # others: a subclass's results
+        for (sample_id, c_measured), label in zip(read, plan.own, strict=True):  # others: a subclass's results
             for name, term in self._quantity_terms.items():
                 values[name] = term(x, sample_id)
             if c_measured is not None:  # a result without a sample reads nothing off the line
@@ -127,16 +151,46 @@ class Model(SolutionInputs):
         values["c_measured"] = c_measured
         return float(evaluate_formula(self.method.result.formula, values, sample_id) / self.method.result.unit.factor)
 
-    def _read_off_line(self, x, conc) -> list[tuple[str, Any]]:
-        """(sample id, concentration in the measured solution) of every sample, from this
-        evaluation's line, or its second-order function's root on the rising branch (ISO 8466-2)."""
+    def _read_off_line(self, x, conc, samples=None) -> list[tuple[str, Any]]:
+        """(sample id, concentration in the measured solution) of every sample (or of the design's
+        `samples` given), from this evaluation's line, or its second-order function's root on the
+        rising branch (ISO 8466-2)."""
+        samples = self._design().samples if samples is None else samples
         if self._design().second_order:
             a, b, c = self.second_order(x, conc)
             rising = self._design().quadratic_fit().coefficients[1] > 0  # form from the estimates, once
-            return [(smp.id, rising_root(a, b, c, self._reading_terms[smp.id](x), rising))
-                    for smp in self._design().samples]
+            return [(smp.id, rising_root(a, b, c, self._reading_terms[smp.id](x), rising)) for smp in samples]
         intercept, slope = self.line(x, conc)
-        return [(smp.id, (self._reading_terms[smp.id](x) - intercept) / slope) for smp in self._design().samples]
+        return [(smp.id, (self._reading_terms[smp.id](x) - intercept) / slope) for smp in samples]
+
+
+@dataclass(frozen=True)
+class _Plan:
+    """Which of the model's results an evaluation gives: their labels in order (`own`), whether
+    they read a concentration off the line (`reads`), and the design's samples they read."""
+
+    labels: tuple[str, ...]  # the model's result_labels when made
+    own: tuple[str, ...]
+    reads: bool
+    samples: tuple = ()
+    _subsets: dict = field(default_factory=dict, compare=False, repr=False)  # made once per set of labels
+
+    def only(self, labels) -> _Plan | None:
+        """The plan for the results named in `labels` only (in the model's order); None when one
+        named is not among `own`."""
+        wanted = frozenset(labels)
+        if wanted not in self._subsets:
+            keep = [i for i, label in enumerate(self.own) if label in wanted]
+            samples = tuple(self.samples[i] for i in keep) if self.reads else ()
+            some = _Plan(self.labels, tuple(self.own[i] for i in keep), self.reads, samples)
+            self._subsets[wanted] = some if wanted <= frozenset(self.own) else None
+        return self._subsets[wanted]
+
+
+def _plan(model: Model) -> _Plan:
+    own = tuple(lb for lb, key in zip(model.result_labels, model.result_keys, strict=True) if key.kind == "result")
+    reads = "c_measured" in model.method.result.formula.names
+    return _Plan(tuple(model.result_labels), own, reads, tuple(model._design().samples) if reads else ())
 
 
 def build_model(method: AssayMethod) -> Model:
@@ -311,14 +365,23 @@ def mean_reading_term(ss: SourceSet, method: Method, ident: str, readings: tuple
     def term(x):
         a = mean
         if observed:
-            a = a + sum(x[name] for name in noise)
+            a = a + _sum_of([x[name] for name in noise])
         elif noise:
-            a = a + sum(x[name] for name in noise) / len(noise)
+            a = a + _sum_of([x[name] for name in noise]) / len(noise)
         if offset is not None:
             a = a - x[offset]
         return correct(x, a) / exact_or(x, path, path0)
 
     return term
+
+
+def _sum_of(terms: list):
+    """sum(terms); arrays of trials added from the first, without the 0 that sum() starts from: that
+    start can change only the sign of a sum that is zero, and a reading's mean (never -0.0) is
+    added to it next, so the reading is the same number with one pass over the trials less."""
+    if terms and all(isinstance(t, np.ndarray) for t in terms):
+        return functools.reduce(operator.add, terms)
+    return sum(terms)
 
 
 def _path_of(cell) -> float:

@@ -35,7 +35,7 @@ from validate.model import kernels
 from validate.model.ice import IceTable, equilibrium_constant
 
 BLOCK = 10_000  # trials per block: the arrays of a step stay in a processor's cache; as many as the
-#                 Monte Carlo engine's slice (montecarlo.EVAL_SLICE), so a slice is solved as one block
+#                 Monte Carlo engine's slice (mcrounds.EVAL_SLICE), so a slice is solved as one block
 CONVERGED = 1e-9  # remaining relative error of K above which a trial's correction has not converged
 STOP = 1e-13  # relative change of K below which a trial stops stepping (quadratic convergence:
 #               the next step would change K by less than round-off)

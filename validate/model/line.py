@@ -59,12 +59,18 @@ def level_sums(counts: Sequence, x: Sequence, y: Sequence, weights: Sequence | N
         raise ValueError(f"a straight line needs one count, x and y per level; got {len(c)} counts, "
                          f"{len(x)} x values and {len(y)} y values")
     total = sum(c)
-    x_mean = sum(cj * xj for cj, xj in zip(c, x, strict=True)) / total
-    y_mean = sum(cj * yj for cj, yj in zip(c, y, strict=True)) / total
+    x_mean = sum(_times(cj, xj) for cj, xj in zip(c, x, strict=True)) / total
+    y_mean = sum(_times(cj, yj) for cj, yj in zip(c, y, strict=True)) / total
     dx = [xj - x_mean for xj in x]
-    sxx = sum(cj * d * d for cj, d in zip(c, dx, strict=True))
-    sxy = sum(cj * d * (yj - y_mean) for cj, d, yj in zip(c, dx, y, strict=True))
+    sxx = sum(_times(cj, d) * d for cj, d in zip(c, dx, strict=True))
+    sxy = sum(_times(cj, d) * (yj - y_mean) for cj, d, yj in zip(c, dx, y, strict=True))
     return LevelSums(total, x_mean, y_mean, sxx, sxy)
+
+
+def _times(c, v):
+    """c v; an array of trials itself where c is 1 (1 v is v exactly, so the Monte Carlo engine
+    skips a pass over the trials; other backends keep the product, and with it their expression)."""
+    return v if c == 1 and isinstance(v, np.ndarray) else c * v
 
 
 def straight_line(counts: Sequence, x: Sequence, y: Sequence, weights: Sequence | None = None):

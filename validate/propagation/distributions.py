@@ -150,7 +150,8 @@ def draw_many(sources: Iterable[Source], n: int, rng: np.random.Generator) -> di
     ordered = drawing_order(sources)
     grouped = [s for s in ordered if s.dof_group and s.distribution == "t" and s.u > 0
                and math.isfinite(s.dof)]
-    out = {src.name: draw(src, n, rng) for src in ordered if src not in grouped}
+    in_groups = {s.name for s in grouped}  # by name (unique here): no comparison of sources field by field
+    out = {src.name: draw(src, n, rng) for src in ordered if src.name not in in_groups}
     for group in sorted({s.dof_group for s in grouped}):
         out.update(_draw_group(group, [s for s in grouped if s.dof_group == group], n, rng))
     return out

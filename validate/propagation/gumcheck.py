@@ -21,15 +21,16 @@ guessed. A difference beyond noise needs no more trials: more cannot turn it int
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
 
 from validate.propagation.mcstats import (
     GumValidation,
-    _interval_length,
     coverage_interval_symmetric,
     numerical_tolerance,
+    symmetric_indices,
     validate_gum,
 )
 
@@ -98,26 +99,42 @@ def end_spreads(sorted_values: np.ndarray, p: float) -> tuple[float, float]:
     with about 95 % confidence. Half the distance between those order statistics is the spread.
     """
     s = np.asarray(sorted_values, dtype=float)
-    m = s.size
-    q = _interval_length(m, p)
-    r = (m - q + 1) // 2  # 1-based rank of the low end, as in coverage_interval_symmetric
-    return _spread_at(s, r - 1), _spread_at(s, r + q - 1)
+    return end_spreads_at(s.__getitem__, s.size, p)
 
 
-def _spread_at(s: np.ndarray, index: int) -> float:
-    m = s.size
+def end_spreads_at(at: Callable[[int], float], m: int, p: float) -> tuple[float, float]:
+    """`end_spreads` of M sorted values of which `at(i)` gives the one at 0-based index i."""
+    low, high = symmetric_indices(m, p)
+    return _spread_at(at, m, low), _spread_at(at, m, high)
+
+
+def spread_indices(m: int, index: int) -> tuple[int, int]:
+    """The 0-based indices whose values bracket the order statistic at `index` (see end_spreads)."""
     a = (index + 1) / m
     k = math.ceil(CONFIDENCE_Z * math.sqrt(m * a * (1.0 - a)))
-    return float(s[min(index + k, m - 1)] - s[max(index - k, 0)]) / 2.0
+    return max(index - k, 0), min(index + k, m - 1)
+
+
+def _spread_at(at: Callable[[int], float], m: int, index: int) -> float:
+    below, above = spread_indices(m, index)
+    return float(at(above) - at(below)) / 2.0
 
 
 def check_gum(y: float, expanded: float, u: float, sorted_values: np.ndarray, p: float) -> GumCheck:
     """The JCGM 101 8.2 comparison for one output from its sorted finite Monte Carlo values."""
-    interval = coverage_interval_symmetric(sorted_values, p, presorted=True)
+    s = np.asarray(sorted_values)
+    coverage_interval_symmetric(s, p, presorted=True)  # refuses values that are not finite
+    return check_gum_at(y, expanded, u, s.__getitem__, s.size, p)
+
+
+def check_gum_at(y: float, expanded: float, u: float, at: Callable[[int], float], m: int, p: float) -> GumCheck:
+    """`check_gum` of M sorted finite values of which `at(i)` gives the one at 0-based index i
+    (the engine's kept tails give only the values it reads: the ends and their spread brackets)."""
+    low, high = symmetric_indices(m, p)
     delta = numerical_tolerance(u, 2) if u > 0 else 0.0
-    validation = validate_gum(y, (y - expanded, y + expanded), (interval.low, interval.high), delta)
-    low, high = end_spreads(sorted_values, p)
-    return GumCheck(validation, low, high, TARGET_FRACTION * delta, int(np.asarray(sorted_values).size))
+    validation = validate_gum(y, (y - expanded, y + expanded), (float(at(low)), float(at(high))), delta)
+    spread_low, spread_high = end_spreads_at(at, m, p)
+    return GumCheck(validation, spread_low, spread_high, TARGET_FRACTION * delta, int(m))
 
 
-__all__ = ["GumCheck", "VERDICTS", "check_gum", "end_spreads"]
+__all__ = ["GumCheck", "VERDICTS", "check_gum", "check_gum_at", "end_spreads"]

@@ -99,10 +99,15 @@ def coverage_interval_symmetric(values, p: float = 0.95, *, presorted: bool = Fa
     """
     p = _check_p(p)
     s = _sorted_finite(values, presorted)
-    m = s.size
+    low, high = symmetric_indices(s.size, p)
+    return CoverageInterval(float(s[low]), float(s[high]), p, "symmetric")
+
+
+def symmetric_indices(m: int, p: float) -> tuple[int, int]:
+    """0-based indices, among M sorted values, of the ends y_(r), y_(r+q) of JCGM 101 7.7.1."""
     q = _interval_length(m, p)
     r = (m - q + 1) // 2  # covers both cases of 7.7.1
-    return CoverageInterval(float(s[r - 1]), float(s[r + q - 1]), p, "symmetric")
+    return r - 1, r + q - 1
 
 
 def coverage_interval_shortest(values, p: float = 0.95, *, presorted: bool = False) -> CoverageInterval:
@@ -113,16 +118,22 @@ def coverage_interval_shortest(values, p: float = 0.95, *, presorted: bool = Fal
     """
     p = _check_p(p)
     s = _sorted_finite(values, presorted)
-    m = s.size
-    q = _interval_length(m, p)
+    q = _interval_length(s.size, p)
+    return shortest_between(s[: s.size - q], s[q:], p)
+
+
+def shortest_between(lower: np.ndarray, upper: np.ndarray, p: float) -> CoverageInterval:
+    """The shortest of the intervals [lower[r], upper[r]]: with M sorted values y and q of 7.7.1,
+    lower = y_(1) .. y_(M-q) and upper = y_(q+1) .. y_(M), so JCGM 101 7.7.2 needs only the lowest
+    and the highest M - q values (the first of equal widths wins)."""
     best_r, best_width = 0, math.inf  # 0-based r
-    for start in range(0, m - q, _CHUNK):
-        stop = min(start + _CHUNK, m - q)
-        widths = s[start + q : stop + q] - s[start:stop]
+    for start in range(0, lower.size, _CHUNK):
+        stop = min(start + _CHUNK, lower.size)
+        widths = upper[start:stop] - lower[start:stop]
         i = int(np.argmin(widths))
         if widths[i] < best_width:
             best_r, best_width = start + i, float(widths[i])
-    return CoverageInterval(float(s[best_r]), float(s[best_r + q]), p, "shortest")
+    return CoverageInterval(float(lower[best_r]), float(upper[best_r]), p, "shortest")
 
 
 @dataclass(frozen=True)
@@ -398,14 +409,19 @@ def histogram_data(values, bins: int = 100, value_range: tuple[float, float] | N
         counts, edges = _sorted_histogram(good, int(bins), value_range)
     else:
         counts, edges = np.histogram(good, bins=int(bins), range=value_range)
-    widths = np.diff(edges)
-    density = counts / (good.size * widths)
+    return histogram_of_counts(counts, edges, int(good.size), int(v.size - good.size) + int(invalid))
+
+
+def histogram_of_counts(counts: np.ndarray, edges: np.ndarray, n: int, invalid: int) -> HistogramData:
+    """The histogram of `n` finite trials from its counts and edges (some trials may lie outside
+    the edges; `density` divides by all n); `invalid` undefined trials are counted beside."""
+    density = counts / (n * np.diff(edges))
     return HistogramData(
         counts=tuple(int(c) for c in counts),
         edges=tuple(float(e) for e in edges),
         density=tuple(float(d) for d in density),
-        n=int(good.size),
-        invalid_trials=int(v.size - good.size) + int(invalid),
+        n=int(n),
+        invalid_trials=int(invalid),
     )
 
 

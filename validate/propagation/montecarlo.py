@@ -1,19 +1,12 @@
 """The Monte Carlo engine (JCGM 101): the same model evaluated on arrays of trials.
 
-Trials are drawn for every source (validate.propagation.distributions) in chunks
-of CHUNK, and the model runs on slices of EVAL_SLICE trials of them, so the
-calibration line is refitted in every trial without a Python loop per trial and
-the model's temporary arrays stay in the processor's cache. The random stream
-depends on CHUNK only; slicing the evaluation changes no number.
-
-Memory: the output values kept for the coverage intervals (8 bytes per trial and
-result) are held for at most MAX_KEPT_BYTES at once. A run whose results do not
-fit together runs in groups of results, each group on the same random stream
-(the same seed, so the same trials; the model is evaluated once per group); a
-result is summarised as soon as it is final and its values are dropped. A run
-whose single result does not fit stops with a message before any trial. (The
-adaptive procedure, trials="auto", keeps every result's values of its batches, at
-most MAX_ADAPTIVE_TRIALS each: it is not split into groups.)
+A fixed number of trials, with the JCGM 101 8.2 rounds that add trials where the comparison
+with the GUM interval is open, runs in validate.propagation.mcrounds (its settings: CHUNK,
+EVAL_SLICE, MAX_KEPT_BYTES, MAX_CHECK_TRIALS, CHECK_GROWTH): one pass of draws for every result
+where what is kept fits in memory, every value of a result (8 bytes a trial) or only the tails
+its statistics read (validate.propagation.mctails); a run whose single result does not fit
+stops with a message before any trial. The adaptive procedure (trials="auto", JCGM 101 7.9) is
+here; it keeps every result's values of its batches, at most MAX_ADAPTIVE_TRIALS each.
 
 Budget shares (held groups) use common random numbers: one set of draws and one
 base run, shared by every held-group run.
@@ -31,10 +24,12 @@ from dataclasses import dataclass
 import numpy as np
 
 from validate.model.assay import Model
-from validate.model.errors import ModelError
+from validate.propagation import mcrounds
 from validate.propagation.distributions import draw_many
-from validate.propagation.gumcheck import GumCheck, check_gum
+from validate.propagation.gumcheck import GumCheck
 from validate.propagation.linear import LinearResult
+from validate.propagation.mcrounds import Final, Kept, extend_whole, label_groups, run_fixed, run_trials
+from validate.propagation.mcrounds import evaluate as _evaluate
 from validate.propagation.mcstats import (
     AdaptiveCheck,
     CoverageInterval,
@@ -43,19 +38,12 @@ from validate.propagation.mcstats import (
     adaptive_batch_size,
     adaptive_converged,
     coverage_interval_symmetric,
-    histogram_data,
     summarise,
-    summarise_sorted,
 )
 
-CHUNK = 100_000  # trials evaluated together: large enough for numpy, small enough for memory
 MAX_ADAPTIVE_TRIALS = 10_000_000
 SHARE_TRIALS = 50_000  # trials per held-group run for the Monte Carlo shares (common random numbers)
 INVALID_WARNING = 0.001  # share of undefined trials above which a warning is shown
-MAX_CHECK_TRIALS = 10_000_000  # trial budget of the JCGM 101 8.2 comparison per output
-CHECK_GROWTH = 10  # ... and at most this many times the trials asked for (a small run stays small)
-EVAL_SLICE = 10_000  # trials per model evaluation: its temporaries stay in the core's cache
-MAX_KEPT_BYTES = 320 * 2**20  # output values kept at once; with the rest a run stays within about 600 MiB
 
 
 @dataclass(frozen=True)
@@ -147,36 +135,6 @@ def _held(model: Model, draws: dict[str, np.ndarray], hold, n: int) -> dict[str,
     return {**draws, **{name: np.full(n, model.sources[name].value) for name in hold}}
 
 
-def _evaluate(model: Model, draws: dict[str, np.ndarray], n: int, labels, out=None) -> dict[str, np.ndarray]:
-    """The outputs named in `labels` for n drawn trials, the model run on slices of EVAL_SLICE
-    trials (elementwise arithmetic: the same numbers as one run on all n). `out` may give the
-    arrays to fill (label -> array of n)."""
-    out = {label: np.empty(n) for label in labels} if out is None else out
-    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-        for start in range(0, n, EVAL_SLICE):
-            stop = min(start + EVAL_SLICE, n)
-            part = model.evaluate({name: arr[start:stop] for name, arr in draws.items()})
-            for label in labels:
-                out[label][start:stop] = part[label]  # a constant output broadcasts
-    return out
-
-
-def _fixed(model: Model, trials: int, rng, progress, labels=None, out=None) -> dict[str, np.ndarray]:
-    """Output values of `trials` trials, kept for `labels` (every output when None); `out` may give
-    the arrays to fill (label -> array of `trials`)."""
-    labels = model.result_labels if labels is None else labels
-    values = {label: np.empty(trials) for label in labels} if out is None else out
-    sources = list(model.sources.values())
-    done = 0
-    while done < trials:
-        n = min(CHUNK, trials - done)
-        _evaluate(model, draw_many(sources, n, rng), n, labels,
-                  {label: values[label][done:done + n] for label in labels})
-        done += n
-        progress(n)
-    return values
-
-
 def _adaptive(model: Model, p: float, rng, progress) -> tuple[dict, dict]:
     """JCGM 101 7.9: batches of M trials until every output's statistics are stable."""
     m = adaptive_batch_size(p)
@@ -234,141 +192,6 @@ def _shares(model: Model, seed: int, keys: tuple[str, ...], progress,
     return out
 
 
-@dataclass
-class _Kept:
-    """One output's finite values (sorted), its count of undefined trials and its JCGM 101 8.2
-    comparison."""
-
-    values: np.ndarray
-    invalid: int
-    check: GumCheck
-
-    @classmethod
-    def of(cls, gum: LinearResult, arr: np.ndarray, p: float) -> _Kept:
-        finite = np.isfinite(arr)
-        good = arr if finite.all() else arr[finite]
-        return cls(good, int(arr.size - good.size), _check(gum, good, p))
-
-
-def _check(gum: LinearResult, finite: np.ndarray, p: float) -> GumCheck:
-    finite.sort()  # in place, once: the check, the summary and the histogram read the sorted values
-    return check_gum(gum.value, gum.expanded_uncertainty, gum.standard_uncertainty, finite, p)
-
-
-def _label_groups(labels: list[str], trials_each: int) -> list[list[str]]:
-    """The outputs in groups whose values fit in MAX_KEPT_BYTES at `trials_each` trials."""
-    per = 8 * trials_each
-    if per > MAX_KEPT_BYTES:
-        most = MAX_KEPT_BYTES // 8
-        raise ModelError(f"{trials_each:,} Monte Carlo trials would need {per / 2**20:,.0f} MiB for the values of "
-                         f"one result (the coverage intervals need them all), above the limit of "
-                         f"{MAX_KEPT_BYTES / 2**20:,.0f} MiB that keeps a run within about 600 MiB; use at most "
-                         f"{most:,} trials (JCGM 101 7.2.2 finds about 10^6 enough for a 95 % interval)")
-    size = max(1, MAX_KEPT_BYTES // per)
-    return [labels[i:i + size] for i in range(0, len(labels), size)]
-
-
-@dataclass(frozen=True)
-class _Final:
-    """What is kept of one output once its values are dropped."""
-
-    summary: McSummary
-    check: GumCheck
-    histogram: HistogramData
-
-    @classmethod
-    def of(cls, kept: _Kept, p: float) -> _Final:
-        summary = summarise_sorted(kept.values, kept.invalid, p)
-        return cls(summary, kept.check, _histogram(kept, summary))
-
-
-def _run_fixed(model: Model, gums: dict[str, LinearResult], trials: int, seed: int, p: float,
-               progress) -> dict[str, _Final]:
-    """Every output's statistics, run in groups of outputs that fit in memory; each group runs on
-    the same random stream (default_rng(seed)), so the groups see the same trials. A group's
-    settled outputs are summarised and dropped at once; its open ones (JCGM 101 8.2 undecided)
-    wait, as long as they fit in memory beside the next group, and are given their further
-    trials together (`_extend`: one draw of the more trials for all of them, not one per group;
-    every output sees the same trials either way)."""
-    final: dict[str, _Final] = {}
-    waiting: dict[str, _Kept] = {}
-    rng = np.random.default_rng(seed)
-    for group in _label_groups(list(gums), trials):
-        if waiting and 8 * trials * (len(waiting) + len(group)) > MAX_KEPT_BYTES:
-            _finish(model, gums, waiting, final, trials, p, rng, progress)
-        rng = np.random.default_rng(seed)
-        values = _fixed(model, trials, rng, progress, group)
-        in_group = {name: _Kept.of(gums[name], values.pop(name), p) for name in group}
-        settled = [name for name, k in in_group.items() if k.check.settled]
-        final.update({name: _Final.of(in_group.pop(name), p) for name in settled})  # dropped before more trials
-        waiting.update(in_group)
-    _finish(model, gums, waiting, final, trials, p, rng, progress)
-    return {name: final[name] for name in gums}
-
-
-def _finish(model: Model, gums: dict[str, LinearResult], waiting: dict[str, _Kept], final: dict[str, _Final],
-            trials: int, p: float, rng, progress) -> None:
-    """The waiting outputs extended from the stream's state after `trials` trials (the same after
-    every group), summarised into `final` and dropped."""
-    _extend(model, gums, waiting, trials, p, rng, progress, final)
-
-
-def _extend(model: Model, gums: dict[str, LinearResult], kept: dict[str, _Kept], total: int, p: float, rng,
-            progress, final: dict[str, _Final]) -> None:
-    """JCGM 101 8.2: rounds of more trials, on the same random stream, for the outputs whose
-    comparison is undecided or not yet known to delta/5; each round adds as many trials as were
-    run so far, up to the budget. The open outputs run in groups that fit in memory at the full
-    budget, each group through all its rounds from the stream's state after `total` trials (the
-    draws do not depend on which outputs are evaluated, so every output sees the same trials
-    whatever its group); a group's outputs are summarised into `final` and dropped before the
-    next group starts, so the values held stay within MAX_KEPT_BYTES beside the waiting ones.
-    Every output of `kept` ends in `final`."""
-    budget = min(MAX_CHECK_TRIALS, CHECK_GROWTH * total)
-    start = rng.bit_generator.state
-    for name in [name for name, k in kept.items() if k.check.settled]:
-        final[name] = _Final.of(kept.pop(name), p)
-    for group in _label_groups(list(kept), budget) if kept else []:
-        rng.bit_generator.state = start
-        done = total
-        while True:
-            open_ = [name for name in group if not kept[name].check.settled]
-            more = min(done, budget - done)
-            if not open_ or more <= 0:
-                break
-            _one_round(model, gums, kept, open_, more, p, rng, progress)
-            done += more
-        final.update({name: _Final.of(kept.pop(name), p) for name in group})
-
-
-def _one_round(model: Model, gums: dict[str, LinearResult], kept: dict[str, _Kept], group: list[str], more: int,
-               p: float, rng, progress) -> None:
-    """`more` trials for the outputs of `group`, added to their kept values and compared again."""
-    buffers = {}
-    for name in group:  # each output's values move to a buffer with room for the new trials
-        k = kept[name]
-        buffers[name] = np.empty(k.values.size + more)
-        buffers[name][:k.values.size] = k.values
-        kept[name] = _Kept(buffers[name][:k.values.size], k.invalid, k.check)  # the old array is freed
-    _fixed(model, more, rng, progress, group, {name: buffers[name][-more:] for name in group})
-    for name in group:
-        k, buffer = kept[name], buffers[name]
-        start = k.values.size
-        segment = buffer[start:]
-        finite = np.isfinite(segment)
-        good = segment if finite.all() else segment[finite]  # a copy only when some are undefined
-        buffer[start:start + good.size] = good
-        values = buffer[:start + good.size]
-        kept[name] = _Kept(values, k.invalid + int(more - good.size), _check(gums[name], values, p))
-
-
-def _histogram(kept: _Kept, summary: McSummary) -> HistogramData:
-    """The histogram shows the central part: the 95 % interval widened by 60 % on each side."""
-    low95, high95 = summary.symmetric.low, summary.symmetric.high
-    spread = 0.6 * (high95 - low95)
-    window = (low95 - spread, high95 + spread) if high95 > low95 else None
-    return histogram_data(kept.values, bins=80, value_range=window, invalid=kept.invalid, presorted=True)
-
-
 def _defined_variance(arr: np.ndarray) -> float:
     """Variance over the defined trials; nan, without numpy's warning, when fewer than two are
     defined (a point left out of an equilibrium study can have none in a held-group run)."""
@@ -386,11 +209,11 @@ def propagate_mc(model: Model, linear: list[LinearResult], trials: int | str = 1
     if trials == "auto":
         rng = np.random.default_rng(seed)
         values, checks = _adaptive(model, p, rng, progress)
-        kept = {name: _Kept.of(gum, values.pop(name), p) for name, gum in gums.items()}
-        final: dict[str, _Final] = {}
-        _extend(model, gums, kept, min(k.values.size + k.invalid for k in kept.values()), p, rng, progress, final)
+        kept = {name: Kept.of(gum, values.pop(name), p) for name, gum in gums.items()}
+        final: dict[str, Final] = {}
+        extend_whole(model, gums, kept, min(k.values.size + k.invalid for k in kept.values()), p, rng, progress, final)
     else:
-        final = _run_fixed(model, gums, int(trials), seed, p, progress)
+        final = run_fixed(model, gums, int(trials), seed, p, progress)
     by = _shares(model, seed + 1, ("step", "equipment"), progress, share_trials(trials)) if shares else {}
     results = []
     for gum in linear:
@@ -407,8 +230,8 @@ def symmetric_intervals(model: Model, trials: int, seed: int) -> dict[str, Cover
     trials added) and no shares. What the advisor compares before and after a change."""
     p = model.method.settings.coverage_probability
     out = {}
-    for group in _label_groups(model.result_labels, trials):
-        values = _fixed(model, trials, np.random.default_rng(seed), lambda n: None, group)
+    for group in label_groups(model.result_labels, trials):
+        values = run_trials(model, trials, np.random.default_rng(seed), lambda n: None, group)
         for name in group:
             arr = values.pop(name)
             finite = np.sort(arr[np.isfinite(arr)])
@@ -428,8 +251,10 @@ def expected_work(trials: int | str, model: Model, shares: bool = True) -> int:
     groups = len({s.step for s in model.sources.values()}) + len({s.equipment for s in model.sources.values()})
     if trials == "auto":
         main = adaptive_batch_size(model.method.settings.coverage_probability) * 10
+    elif mcrounds.first_split(model.result_labels, int(trials), model.method.settings.coverage_probability):
+        main = int(trials)  # one pass of draws for every result
     else:  # a run too large to keep every result's values at once runs once per group of results
-        per = MAX_KEPT_BYTES // (8 * int(trials)) if 8 * int(trials) <= MAX_KEPT_BYTES else 1
+        per = mcrounds.MAX_KEPT_BYTES // (8 * int(trials)) if 8 * int(trials) <= mcrounds.MAX_KEPT_BYTES else 1
         main = int(trials) * -(-len(model.result_labels) // max(1, per))
     return main + (groups * share_trials(trials) if shares else 0)
 
