@@ -147,8 +147,8 @@ STAGES = (("validate.workflow.pipeline", "propagate", "GUM"),
           ("validate.workflow.pipeline", "propagate_mc", "Monte Carlo"),
           ("validate.advisor.advice", "advise", "advisor"),
           ("validate.workflow.pipeline", "build_record", "record built"),
-          ("validate.workflow.pipeline", "record_json", "results.json"),
-          ("validate.workflow.pipeline", "content_hash", "content hash"),
+          ("validate.workflow.pipeline", "json_members", "results.json"),
+          ("validate.workflow.pipeline", "content_hash_of_members", "content hash"),
           ("validate.report.pdf", "build_report", "PDF"),
           ("validate.workflow.pipeline", "make_manifest", "manifest"))
 

@@ -156,3 +156,14 @@ def test_spearman_with_a_value_that_is_not_finite_gives_nan_as_scipy_does():
     rho, p = pr.spearman_increasing([1.0, 2.0, 3.0, 4.0], [0.1, float("nan"), 0.3, 0.2])
     ref = stats.spearmanr([1.0, 2.0, 3.0, 4.0], [0.1, float("nan"), 0.3, 0.2], alternative="greater")
     assert math.isnan(rho) and math.isnan(p) and math.isnan(ref.statistic) and math.isnan(ref.pvalue)
+
+
+def test_chi2_and_f_tails_below_zero_are_those_of_scipy_stats():
+    # a statistic that round-off leaves a hair below 0 (a quadratic form r' V^-1 r at r = 0):
+    # the tails are 1 and 0 there, as scipy.stats gives, not nan
+    for x in (-1e-15, -0.5, -3.0):
+        for dof in (1, 3, 9.5):
+            assert pr.chi2_upper_tail(x, dof) == stats.chi2.sf(x, dof) == 1.0
+            assert pr.chi2_lower_tail(x, dof) == stats.chi2.cdf(x, dof) == 0.0
+            assert pr.f_upper_tail(x, dof, 5) == stats.f.sf(x, dof, 5) == 1.0
+            assert pr.f_lower_tail(x, dof, 5) == stats.f.cdf(x, dof, 5) == 0.0

@@ -57,23 +57,23 @@ def t_density(x, dof):
 
 
 def chi2_upper_tail(x, dof):
-    """P(X > x) for chi-square with `dof` degrees of freedom."""
-    return special.chdtrc(dof, x)
+    """P(X > x) for chi-square with `dof` degrees of freedom (1 below 0, as scipy.stats gives)."""
+    return special.chdtrc(dof, np.maximum(x, 0.0))
 
 
 def chi2_lower_tail(x, dof):
-    """P(X <= x) for chi-square with `dof` degrees of freedom."""
-    return special.chdtr(dof, x)
+    """P(X <= x) for chi-square with `dof` degrees of freedom (0 below 0, as scipy.stats gives)."""
+    return special.chdtr(dof, np.maximum(x, 0.0))
 
 
 def f_upper_tail(x, dof1, dof2):
-    """P(F > x) for the F distribution with (dof1, dof2) degrees of freedom."""
-    return special.fdtrc(dof1, dof2, x)
+    """P(F > x) for the F distribution with (dof1, dof2) degrees of freedom (1 below 0)."""
+    return special.fdtrc(dof1, dof2, np.maximum(x, 0.0))
 
 
 def f_lower_tail(x, dof1, dof2):
-    """P(F <= x) for the F distribution with (dof1, dof2) degrees of freedom."""
-    return special.fdtr(dof1, dof2, x)
+    """P(F <= x) for the F distribution with (dof1, dof2) degrees of freedom (0 below 0)."""
+    return special.fdtr(dof1, dof2, np.maximum(x, 0.0))
 
 
 def f_quantile(p, dof1, dof2):

@@ -78,13 +78,23 @@ def _sorted_finite(values, presorted: bool) -> np.ndarray:
     return s
 
 
+class TooFewTrials(ValueError):
+    """Fewer defined trials than a coverage interval at p needs (q of JCGM 101 7.7.1 > M - 1)."""
+
+
+def fewest_trials(p: float) -> int:
+    """The fewest trials the engine runs for a 100p % symmetric interval: 1/(1 - p) + 1. (q of
+    7.7.1 fits in M - 1 for M above 0.5/(1 - p), but an interval's end is then the extreme trial.)"""
+    return math.ceil(round(1.0 / (1.0 - p), 6)) + 1  # rounded first: 1 - 0.9998 is not exact in binary
+
+
 def _interval_length(m: int, p: float) -> int:
     """q of JCGM 101 7.7.1: pM if that is an integer, else the integer part of pM + 1/2."""
     q = math.floor(p * m + 0.5)  # equals pM when pM is an integer
     if q > m - 1:
-        raise ValueError(
+        raise TooFewTrials(
             f"{m} valid trials are too few for a {100 * p:g} % coverage interval; "
-            f"use at least {math.ceil(round(1.0 / (1.0 - p), 9)) + 1} (JCGM 101 7.2 advises "
+            f"use at least {fewest_trials(p)} (JCGM 101 7.2 advises "
             "a number of trials far larger than 1/(1 - p))"
         )
     return q

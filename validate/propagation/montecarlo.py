@@ -23,7 +23,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from validate.inputs.errors import InputError
 from validate.model.assay import Model
+from validate.model.errors import ModelError
 from validate.propagation import mcrounds
 from validate.propagation.distributions import draw_many
 from validate.propagation.gumcheck import GumCheck
@@ -35,9 +37,11 @@ from validate.propagation.mcstats import (
     CoverageInterval,
     HistogramData,
     McSummary,
+    TooFewTrials,
     adaptive_batch_size,
     adaptive_converged,
     coverage_interval_symmetric,
+    fewest_trials,
     summarise,
 )
 
@@ -200,10 +204,26 @@ def _defined_variance(arr: np.ndarray) -> float:
 
 def propagate_mc(model: Model, linear: list[LinearResult], trials: int | str = 1_000_000,
                  seed: int | None = None, shares: bool = True, progress=None) -> list[McResult]:
-    """Monte Carlo results for every output, validated against the GUM results (JCGM 101 clause 8)."""
+    """Monte Carlo results for every output, validated against the GUM results (JCGM 101 clause 8).
+    Raises InputError where the trials asked, and ModelError where the defined trials left, are too
+    few for a coverage interval at the method's coverage probability."""
     seed = new_seed() if seed is None else int(seed)
     progress = progress or (lambda n: None)
     p = model.method.settings.coverage_probability
+    if trials != "auto" and int(trials) < fewest_trials(p):
+        raise InputError(f"{int(trials):,} Monte Carlo trials are too few for a {100 * p:g} % coverage interval "
+                         f"(coverage_probability = {p:g} in [settings])", where="--trials",
+                         fix=f"ask for at least {fewest_trials(p):,} trials (JCGM 101 7.2.2 advises at least "
+                             f"10^4/(1 - p) = {10_000 / (1 - p):,.0f}), or lower coverage_probability")
+    try:
+        return _propagate(model, linear, trials, seed, p, shares, progress)
+    except TooFewTrials as exc:  # most trials gave no defined result
+        raise ModelError(f"Monte Carlo: {exc}; too many trials gave no defined result (see the model's "
+                         "warnings), or ask for more trials") from exc
+
+
+def _propagate(model: Model, linear: list[LinearResult], trials, seed: int, p: float, shares: bool,
+               progress) -> list[McResult]:
     gums = {gum.name: gum for gum in linear}
     checks: dict[str, AdaptiveCheck] = {}
     if trials == "auto":
