@@ -92,7 +92,7 @@ def _trials(text: str):
         return "auto"
     value = _whole_number(text, "trials", "give a whole number of trials or 'auto'")
     if value < 0 or (0 < value < MIN_TRIALS) or value > MAX_TRIALS:
-        raise argparse.ArgumentTypeError(f"give 0 (no Monte Carlo), {MIN_TRIALS} to {MAX_TRIALS:.0e} trials, "
+        raise argparse.ArgumentTypeError(f"give 0 (no Monte Carlo), {MIN_TRIALS} to {MAX_TRIALS:,} trials, "
                                          f"or 'auto' (got {text})")
     return value
 

@@ -3,14 +3,14 @@ filed record asks its re-run for (`validate verify` takes them from a results.js
 have been forged, so they are checked the same way).
 
 The Monte Carlo engine keeps one result's values whole for its coverage intervals, within
-320 MiB (8 bytes a trial: 41,943,040 trials; README, Performance), so 4 x 10^7 trials is the
+256 MiB (8 bytes a trial: 33,554,432 trials; README, Performance), so 3.3 x 10^7 trials is the
 most a run is asked for; numpy's seed is a
 non-negative integer, and 2^63 - 1 keeps it within a signed 64-bit integer in the record.
 """
 
 from __future__ import annotations
 
-MAX_TRIALS = 40_000_000
+MAX_TRIALS = 33_000_000
 MIN_TRIALS = 1000
 MAX_SEED = 2**63 - 1
 
@@ -21,7 +21,7 @@ def trials_problem(trials) -> str | None:
         return None
     if isinstance(trials, bool) or not isinstance(trials, int) or not (
             trials == 0 or MIN_TRIALS <= trials <= MAX_TRIALS):
-        return f"give 0 (no Monte Carlo), {MIN_TRIALS} to {MAX_TRIALS:.0e} trials, or 'auto' (got {trials!r})"
+        return f"give 0 (no Monte Carlo), {MIN_TRIALS} to {MAX_TRIALS:,} trials, or 'auto' (got {trials!r})"
     return None
 
 

@@ -33,7 +33,8 @@ CHUNK = 100_000  # trials evaluated together: large enough for numpy, small enou
 MAX_CHECK_TRIALS = 10_000_000  # trial budget of the JCGM 101 8.2 comparison per output
 CHECK_GROWTH = 10  # ... and at most this many times the trials asked for (a small run stays small)
 EVAL_SLICE = 10_000  # trials per model evaluation: its temporaries stay in the core's cache
-MAX_KEPT_BYTES = 320 * 2**20  # output values kept at once; with the rest a run stays within about 600 MiB
+MAX_KEPT_BYTES = 256 * 2**20  # output values kept at once; with the draws of a chunk and the compiled
+#                               fixed point's library (about 100 MiB) a run stays within about 600 MiB
 
 
 def evaluate(model: Model, draws: dict[str, np.ndarray], n: int, labels, out=None) -> dict[str, np.ndarray]:
