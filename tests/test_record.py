@@ -237,3 +237,12 @@ def test_each_declaration_has_the_keys_of_the_stage_result_it_holds():
         stage_keys = {f.name for f in dataclasses.fields(stage_type)} | added
         declared_keys = {f.metadata.get("key", f.name) for f in dataclasses.fields(declared)}
         assert stage_keys == declared_keys, (stage_type.__name__, stage_keys ^ declared_keys)
+
+
+def test_the_schema_writer_takes_an_option_for_an_option_not_a_file_name(tmp_path, monkeypatch, capsys):
+    monkeypatch.chdir(tmp_path)
+    assert schema.main(["--help"]) == 0 and "usage" in capsys.readouterr().out
+    assert schema.main(["--bogus"]) == 2
+    assert list(tmp_path.iterdir()) == []  # no file named --help or --bogus
+    assert schema.main([str(tmp_path / "s.json")]) == 0
+    assert (tmp_path / "s.json").read_text(encoding="utf-8") == schema.schema_text()

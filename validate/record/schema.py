@@ -94,6 +94,9 @@ def _doc_of(cls: type) -> str:
 
 def main(argv: list[str] | None = None) -> int:
     """Write the schema to the package (or to the path given)."""
+    if argv and argv[0].startswith("-"):  # not a path: `--help` must not become a file named --help
+        print("usage: python -m validate.record.schema [PATH]   (default: the package's results.schema.json)")
+        return 0 if argv[0] in ("-h", "--help") else 2
     target = Path(argv[0]) if argv else SCHEMA_FILE
     target.write_text(schema_text(), encoding="utf-8")
     print(f"wrote {target}")
