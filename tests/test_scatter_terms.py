@@ -234,11 +234,13 @@ def test_components_add_up_to_the_means_scatter(noise, m0):
         assert all(sc.point_term(lv.id, m, 1.0).u == pytest.approx(sc.means_sd, rel=1e-12) for lv in levels)
 
 
-def test_no_scatter_check_against_the_stated_noise_on_a_weighted_line(tmp_path):
-    # On a weighted line the scatter components are on the line's normalised weighted scale
-    # (Miller and Miller 5.10: weights normalised to a mean of 1), not in absorbance: a chi-square
-    # against the photometer's noise in absorbance would compare unlike quantities, so neither
-    # check is made.
+def test_on_a_weighted_line_only_the_pure_error_is_checked_against_the_stated_noise(tmp_path):
+    # On a weighted line the means' scatter about the line is on the line's normalised weighted
+    # scale (Miller and Miller 5.10: weights normalised to a mean of 1), not in absorbance, so that
+    # check is not made. The pure error (ISO 8466-1: repeated readings of one solution about their
+    # own mean) does not involve the line at all: taken unweighted it is in absorbance and is set
+    # against the photometer's stated noise (chi-square, NIST/SEMATECH e-Handbook 1.3.5.8) exactly
+    # as on the unweighted line of the same readings.
     from conftest import copy_demo
 
     from validate.validation.block import scatter_checks
@@ -249,7 +251,11 @@ def test_no_scatter_check_against_the_stated_noise_on_a_weighted_line(tmp_path):
     method, model = api.check(path)
     from validate.model.line import fit_line
     fit = fit_line(*model.design.point_data())
-    assert scatter_checks(method, model.design, fit) == (None, None)
+    line_w, reading_w = scatter_checks(method, model.design, fit)
     unweighted_method, unweighted = api.check(PHOSPHATE)
     line, reading = scatter_checks(unweighted_method, unweighted.design, fit_line(*unweighted.design.point_data()))
     assert line is not None and reading is not None
+    assert line_w is None and reading_w is not None
+    assert reading_w.dof == reading.dof
+    assert (reading_w.observed_sd, reading_w.predicted_sd, reading_w.chi_square, reading_w.p_excess) == \
+        pytest.approx((reading.observed_sd, reading.predicted_sd, reading.chi_square, reading.p_excess), rel=1e-12)

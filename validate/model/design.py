@@ -147,6 +147,12 @@ class CalibrationDesign:
         """Reading and preparation scatter of the line at the estimates (see validate.model.scatter)."""
         return _scatter_components(self)
 
+    def reading_sd_in_absorbance(self) -> tuple[float | None, int]:
+        """(s_r, dof): the readings' scatter pooled within the line's preparations and series,
+        unweighted, so in absorbance whatever the line's weighting (the pure error of ISO 8466-1);
+        (None, 0) where no preparation was read twice."""
+        return pooled_reading_sd([(g, 1.0) for _, p in self.fitted() for g in _within_series(p.readings, p.series)])
+
     def sample(self, ident: str) -> ReadSolution:
         return next(s for s in self.samples if s.id == ident)
 

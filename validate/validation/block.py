@@ -113,11 +113,14 @@ def scatter_checks(method: AssayMethod, design: CalibrationDesign, fit: LineFit)
     error against the reading noise (None where no solution was read twice or no noise is
     stated), and the scatter of the preparation means about the line against preparation plus
     reading noise for a mean of m readings (None where nothing is predicted). On a weighted line
-    both are None: the scatter components are then on the line's normalised weighted scale, not
-    in absorbance, and cannot be set against a stated noise in absorbance."""
-    if design.weighted:
-        return None, None
+    the pure error is taken unweighted (in absorbance, pooled over the line's solutions: the
+    stated noise is one figure for every reading), and the second check is not made: the means'
+    scatter about a weighted line is on its normalised weighted scale, not in absorbance."""
     prep, noise = predicted_scatter(method, fit.slope)
+    if design.weighted:
+        s_r, dof_r = design.reading_sd_in_absorbance()
+        return None, (scatter_consistency(s_r, dof_r, noise, compared=READING_SCATTER)
+                      if s_r is not None and noise > 0 else None)
     sc = design.scatter_components()
     reading = (scatter_consistency(sc.reading_sd, sc.reading_dof, noise, compared=READING_SCATTER)
                if sc.reading_sd is not None and noise > 0 else None)
