@@ -202,6 +202,16 @@ def test_criteria_not_evaluable_and_en_are_shown_with_the_limit():
     assert "not evaluable  recovery: no observed value (see the verdict) within 95 to 105 %" in text
 
 
+def test_a_criterion_not_applicable_is_shown_as_not_judged_without_a_limit_to_meet():
+    # recovery where the method names no reference sample: nothing to compare, so no limit to meet
+    criteria = {"caution": "", "criteria": [
+        {"status": "not applicable", "met": None, "name": "recovery", "observed": None, "comparison": "within",
+         "limit": [95.0, 105.0], "is_default": True, "unit": "%"}]}
+    text = _text(terminal.criteria_lines(criteria))
+    assert "not applicable  recovery: not judged for this method (see the verdict)" in text
+    assert "95 to 105" not in text and "no observed value" not in text
+
+
 def test_output_into_a_file_or_pipe_is_not_broken_at_80_columns():
     out = io.StringIO()  # not a terminal
     console = Console(file=out, highlight=False, color_system=None)

@@ -201,6 +201,8 @@ def _criterion_line(c: dict, concentration_unit: str) -> Line:
     unit = _criterion_unit(c, concentration_unit)
     default = " (default)" if c["is_default"] else ""
     observed = c["observed"]  # r^2 close to 1 needs its digits (as on page 1)
+    if c["status"] == "not applicable":  # nothing to judge: the verdict says why (no reference sample)
+        return Line(f"  {mark}  {escape(c['name'])}: not judged for this method (see the verdict)", soft_wrap=True)
     if observed is None:
         shown = "no observed value (see the verdict)"
     else:
