@@ -88,6 +88,9 @@ def volume_term(ss: SourceSet, method: Method, delivery: Delivery, step: str, us
             v = v + sign * x[name]
         return v
 
+    # what the volume is computed from: two uses with the same key give the same numbers from
+    # one x (a model may compute such a volume once per evaluation of arrays of trials)
+    term.key = (volume, alpha, cal, temp, tuple(terms))  # type: ignore[attr-defined]
     return term
 
 

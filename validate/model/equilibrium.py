@@ -180,7 +180,9 @@ def build_equilibrium_model(method: EquilibriumMethod) -> EquilibriumModel:
     for sol in solution_order(method.solutions):
         model._solution_terms[sol.id] = solution_term(ss, method, sol, False)
     treatment = method.settings.scatter
-    std_totals = [_mix_totals(ss, method, mix, scatter_covers(treatment, "standard preparation"))
+    volumes = _VolumeMemo()
+    model._memos.append(volumes)
+    std_totals = [_mix_totals(ss, method, mix, scatter_covers(treatment, "standard preparation"), volumes)
                   for mix in study.standards]
     design = model.design = _design(model, std_totals)
     scatter = _standards_scatter(design) if observed else None
@@ -193,7 +195,7 @@ def build_equilibrium_model(method: EquilibriumMethod) -> EquilibriumModel:
     # a mixture is the study's sample: u_p^2 + s_r^2/m where the observed scatter covers preparing it
     mixture_covered = scatter_covers(treatment, "sample preparation")
     for mix, point in zip(study.mixtures, design.mixtures, strict=True):
-        totals = _mix_totals(ss, method, mix, mixture_covered)
+        totals = _mix_totals(ss, method, mix, mixture_covered, volumes)
         terms = scatter.sample_terms(point.id, point.count, 1.0) if scatter else None
         model._points.append((totals, reading(point.id, point.readings, terms)))
     series_points = iter(design.series_points)
@@ -273,18 +275,48 @@ def impossible_reason(state, m_total, l_total) -> str | None:
     return None
 
 
-def _mix_totals(ss: SourceSet, method: EquilibriumMethod, mix, covered: bool):
+class _VolumeMemo:
+    """The volumes of one evaluation on arrays of trials, by what each is computed from (a volume
+    term's `key`): where the observed scatter covers the glassware's per-use repeatability, the
+    standards and mixtures made with one flask or pipette at one volume compute the same numbers
+    from the same calibration and temperature draws, so each is computed once per evaluation
+    (cleared by `EquilibriumModel.columns`). Only arrays are kept: an estimate's volume (float
+    or ufloat) is computed afresh for every use, so the linear engine's sums are unchanged."""
+
+    def __init__(self) -> None:
+        self.x = None
+        self.volumes: dict = {}
+
+    def __call__(self, term, x):
+        if self.x is not x:
+            self.clear()
+            self.x = x
+        found = self.volumes.get(term.key)
+        if found is not None:
+            return found
+        volume = term(x)
+        if isinstance(volume, np.ndarray):
+            self.volumes[term.key] = volume
+        return volume
+
+    def clear(self) -> None:
+        self.x = None
+        self.volumes.clear()
+
+
+def _mix_totals(ss: SourceSet, method: EquilibriumMethod, mix, covered: bool, volumes: _VolumeMemo):
     """A closure (x, concentrations) -> (total M, total L) of a standard or mixture made up in a
-    flask; without the glassware's per-use repeatability where the observed scatter covers it."""
+    flask; without the glassware's per-use repeatability where the observed scatter covers it.
+    `volumes` computes a volume shared with another preparation once per evaluation of trials."""
     step = f"prepare {mix.id}"
     flask = volume_term(ss, method, mix.flask, step, mix.id, not covered)
     parts = {r: volume_term(ss, method, d, step, f"{mix.id}, {r}", not covered)
              for r, d in mix.parts.items()}
 
     def totals(x, conc):
-        v = flask(x)
-        m = conc[mix.solutions["metal"]] * parts["metal"](x) / v if "metal" in parts else 0.0
-        l_ = conc[mix.solutions["ligand"]] * parts["ligand"](x) / v if "ligand" in parts else 0.0
+        v = volumes(flask, x)
+        m = conc[mix.solutions["metal"]] * volumes(parts["metal"], x) / v if "metal" in parts else 0.0
+        l_ = conc[mix.solutions["ligand"]] * volumes(parts["ligand"], x) / v if "ligand" in parts else 0.0
         return m, l_
     return totals
 
