@@ -64,3 +64,27 @@ def test_the_linear_engine_is_unchanged_by_the_memo(nickel_demo, monkeypatch):
     _use_by_use(monkeypatch)
     own = linear.propagate(model)
     assert [r.to_dict() for r in shared] == [r.to_dict() for r in own]
+
+
+def test_a_volume_of_trials_is_each_trials_own_volume_bit_for_bit(tmp_path):
+    # the array path of a volume term (fewer passes) against the expression for one trial, on a
+    # burette delivery: the difference of two readings (signs -1 and +1) with the offset and the
+    # temperature; method from test_burette_rule (invented)
+    import textwrap
+
+    from test_burette_rule import METHOD
+
+    from validate.metrology.equipment import SourceSet, volume_term
+    from validate.workflow import pipeline as api
+
+    path = tmp_path / "method.toml"
+    path.write_text(textwrap.dedent(METHOD.format(volume="1.00 mL")), encoding="utf-8")
+    method, _ = api.check(path)
+    ss = SourceSet()
+    term = volume_term(ss, method, method.solutions["diluted"].aliquot, "dilute", "diluted")
+    assert len(term.key[-1]) == 2  # the two readings
+    draws = draw_many(list(ss.sources.values()), 2000, np.random.default_rng(7))
+    trials = term(draws)
+    one_by_one = [term({name: float(arr[i]) for name, arr in draws.items()}) for i in range(2000)]
+    assert isinstance(one_by_one[0], float)
+    assert trials.tobytes() == np.array(one_by_one).tobytes()
