@@ -389,8 +389,8 @@ def _x_ticks(lo: float, hi: float) -> tuple[list[float], list[str], str]:
     slack = 1e-9 * (hi - lo)
     ticks = [t for t in ticks if lo - slack <= t <= hi + slack]
     formatter = matplotlib.ticker.ScalarFormatter()
-    formatter.create_dummy_axis()
-    formatter.axis.set_view_interval(lo, hi)
+    formatter.create_dummy_axis()  # an axis that holds the view interval only, which the format reads
+    formatter.axis.set_view_interval(lo, hi)  # type: ignore[union-attr]  # set just above
     return ticks, formatter.format_ticks(ticks), formatter.get_offset()
 
 
