@@ -375,7 +375,7 @@ def _panel_view(edges, density, curve, mc: dict) -> tuple[float, float, float]:
         ends = mc.get(key)
         if ends and all(e is not None for e in ends):
             xs += [float(e) for e in ends]
-    lo, hi = matplotlib.transforms.nonsingular(min(xs), max(xs), expander=0.05)
+    lo, hi = matplotlib.ticker.MaxNLocator(4).nonsingular(min(xs), max(xs))  # a range, not a point
     ys = np.concatenate([density[np.isfinite(density)], curve[np.isfinite(curve)], [0.0]])
     top = float(ys.max())
     top = top * 1.05 if top > 0 else 1.0
