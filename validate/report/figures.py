@@ -319,6 +319,21 @@ def _bar_segments(ax, positions, left, values, colour: str, label: str, height: 
         boxes, facecolors=colour, edgecolors="white", linewidths=0.4, label=label))
 
 
+def _row_labels(ax, positions, labels: list[str], axes_width_in: float) -> None:
+    """Labels of horizontal bars at the left of the axes, each with an outward tick, as y tick labels
+    look (8 pt, after _tidy), drawn as one collection and plain texts: a tick object per bar costs
+    about 2 ms in matplotlib, 0.1 s for a chart of 50 results."""
+    ax.set_yticks([])
+    at = matplotlib.transforms.blended_transform_factory(ax.transAxes, ax.transData)
+    tick = TICK_PT / 72 / axes_width_in
+    ax.add_collection(matplotlib.collections.LineCollection(
+        [[(0.0, p), (-tick, p)] for p in positions], colors="black", linewidths=SPINE_WIDTH, transform=at,
+        clip_on=False), autolim=False)
+    for p, label in zip(positions, labels, strict=True):
+        ax.text(-(TICK_PT + PAD_PT) / 72 / axes_width_in, p, label, transform=at, ha="right", va="center",
+                fontsize=8, clip_on=False)
+
+
 def step_shares_chart(bars: list[tuple[str, list[tuple[str, float]]]]) -> Raster:
     """One stacked bar per result: its variance shared out by step, the steps in one legend."""
     steps: list[str] = []
@@ -341,11 +356,10 @@ def step_shares_chart(bars: list[tuple[str, list[tuple[str, float]]]]) -> Raster
                 ax.text(start + v / 2, pos, f"{v:.0f}", ha="center", va="center", fontsize=6.5,
                         color="white" if i % len(STEP_COLOURS) in (0, 3, 4, 5, 8) else POINT)
         left += values
-    ax.set_yticks(positions)
-    ax.set_yticklabels([_short(label, 30) for label, _ in bars], fontsize=7.5)
     ax.set_xlim(0, 100)
     ax.set_xlabel("share of the combined variance / %", fontsize=8)
     _tidy(ax)
+    _row_labels(ax, positions, [_short(label, 30) for label, _ in bars], 0.77 * WIDTH_IN)
     ax.grid(False, axis="y")
     fig.legend(fontsize=7, frameon=False, loc="lower center", ncol=4, bbox_to_anchor=(0.5, 0.0))
     return _raster(fig)
