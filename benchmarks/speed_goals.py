@@ -11,6 +11,12 @@ runs of the generated method) are skipped unless --before-all is given.
 Methods: the two demos in example_inputs/ and a generated copy of the phosphate demo with
 40 standards and 50 samples (benchmarks/scaled_method.py; invented readings).
 
+Each checkout's modules are compiled to bytecode first, as `pip install .` does for a user (an
+environment with PYTHONDONTWRITEBYTECODE set would otherwise compile every module again in each
+measured process: about 0.35 s per command on a slow machine). The first lines print what this
+machine does in a fixed workload (numpy's normal draws, a Python loop), so figures from
+different machines can be set side by side; compare ratios, not seconds, across machines.
+
 Usage: python benchmarks/speed_goals.py [--runs 3] [--before CHECKOUT [--before-all]] [--memory]
        [--only TEXT]   (TEXT: only the measures whose label contains it, e.g. "Monte Carlo")
 """
@@ -52,6 +58,33 @@ def pin_to_one_core() -> str:
         return "pinned to one core"
     except (AttributeError, OSError):
         return "could not pin to one core (figures are CPU time all the same)"
+
+
+def compile_checkout(checkout: Path) -> None:
+    """Bytecode for every module of the checkout's package, as an installation writes it."""
+    subprocess.run([sys.executable, "-m", "compileall", "-q", str(checkout / "validate")], check=True,
+                   env=_env(checkout), capture_output=True)
+
+
+def machine_reference() -> str:
+    """CPU seconds of two fixed workloads on this machine (the best of 5): 10^7 standard normal
+    draws with numpy, and a Python loop summing 10^7 integers."""
+    import time
+
+    import numpy as np
+
+    def best(work) -> float:
+        spent = []
+        for _ in range(5):
+            start = time.process_time()
+            work()
+            spent.append(time.process_time() - start)
+        return min(spent)
+
+    rng = np.random.default_rng(1)
+    draws = best(lambda: rng.standard_normal(10_000_000))
+    loop = best(lambda: sum(range(10_000_000)))
+    return f"this machine: 10^7 normal draws {draws:.3f} s, a Python loop over 10^7 integers {loop:.3f} s"
 
 
 def _env(checkout: Path) -> dict:
@@ -181,6 +214,10 @@ def main() -> None:
     parser.add_argument("--only", default="", help="run only the measures whose label contains this text")
     args = parser.parse_args()
     print(pin_to_one_core(), f"; CPU seconds, median of {args.runs} runs; before = {args.before or '-'}")
+    print(machine_reference())
+    for checkout in (ROOT, args.before):
+        if checkout is not None:
+            compile_checkout(checkout.resolve())
     print(f"{'measure':58s} {'before':>9s} {'after':>9s} {'ratio':>8s}   goal")
     with tempfile.TemporaryDirectory() as folder:
         scratch = Path(folder)

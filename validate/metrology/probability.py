@@ -1,5 +1,5 @@
 """Quantiles, tail areas and densities of the normal, Student t, chi-square and F distributions,
-and Spearman's rank correlation test, from scipy.special.
+and Spearman's rank correlation test, from scipy._special().
 
 scipy.stats computes these with the same scipy.special functions, but importing it costs about
 half a second of CPU, which every run and every command would pay; these functions call the
@@ -7,6 +7,10 @@ special functions directly, with the same formulas, so the numbers are the same 
 for the arguments used here (tests/test_probability.py compares them with scipy.stats and with
 printed tables). Arguments are degrees of freedom > 0 (math.inf allowed where stated) and
 probabilities inside (0, 1).
+
+scipy.special itself is imported at the first call, not with this module: its import costs about
+a quarter of a second of CPU, which `validate check` (reading and checking a method file) does
+not need to pay.
 """
 
 from __future__ import annotations
@@ -14,17 +18,23 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from scipy import special
+
+
+def _special():
+    """scipy.special, imported at the first use (then a lookup in the module cache)."""
+    from scipy import special
+
+    return special
 
 
 def normal_quantile(p):
     """x with P(Z <= x) = p for the standard normal Z."""
-    return special.ndtri(p)
+    return _special().ndtri(p)
 
 
 def normal_upper_tail(x):
     """P(Z > x) for the standard normal Z."""
-    return special.ndtr(-np.asarray(x, dtype=float))
+    return _special().ndtr(-np.asarray(x, dtype=float))
 
 
 def normal_density(x, mean=0.0, sd=1.0):
@@ -35,12 +45,12 @@ def normal_density(x, mean=0.0, sd=1.0):
 
 def t_quantile(p, dof):
     """x with P(T <= x) = p for Student's t with `dof` degrees of freedom (math.inf: normal)."""
-    return special.stdtrit(dof, p)
+    return _special().stdtrit(dof, p)
 
 
 def t_upper_tail(x, dof):
     """P(T > x) for Student's t with `dof` degrees of freedom (math.inf: normal)."""
-    return special.stdtr(dof, -np.asarray(x, dtype=float))
+    return _special().stdtr(dof, -np.asarray(x, dtype=float))
 
 
 def t_density(x, dof):
@@ -52,38 +62,38 @@ def t_density(x, dof):
     x = np.asarray(x, dtype=float)
     if math.isinf(dof):
         return normal_density(x)
-    return np.exp(np.log(special.poch(0.5 * dof, 0.5)) - 0.5 * (np.log(dof) + np.log(np.pi))
+    return np.exp(np.log(_special().poch(0.5 * dof, 0.5)) - 0.5 * (np.log(dof) + np.log(np.pi))
                   - (dof + 1) / 2 * np.log1p(x * x / dof))
 
 
 def chi2_upper_tail(x, dof):
     """P(X > x) for chi-square with `dof` degrees of freedom (1 below 0, as scipy.stats gives)."""
-    return special.chdtrc(dof, np.maximum(x, 0.0))
+    return _special().chdtrc(dof, np.maximum(x, 0.0))
 
 
 def chi2_lower_tail(x, dof):
     """P(X <= x) for chi-square with `dof` degrees of freedom (0 below 0, as scipy.stats gives)."""
-    return special.chdtr(dof, np.maximum(x, 0.0))
+    return _special().chdtr(dof, np.maximum(x, 0.0))
 
 
 def f_upper_tail(x, dof1, dof2):
     """P(F > x) for the F distribution with (dof1, dof2) degrees of freedom (1 below 0)."""
-    return special.fdtrc(dof1, dof2, np.maximum(x, 0.0))
+    return _special().fdtrc(dof1, dof2, np.maximum(x, 0.0))
 
 
 def f_lower_tail(x, dof1, dof2):
     """P(F <= x) for the F distribution with (dof1, dof2) degrees of freedom (0 below 0)."""
-    return special.fdtr(dof1, dof2, np.maximum(x, 0.0))
+    return _special().fdtr(dof1, dof2, np.maximum(x, 0.0))
 
 
 def f_quantile(p, dof1, dof2):
     """x with P(F <= x) = p for the F distribution with (dof1, dof2) degrees of freedom."""
-    return special.fdtri(dof1, dof2, p)
+    return _special().fdtri(dof1, dof2, p)
 
 
 def noncentral_t_lower_tail(x, dof, noncentrality):
     """P(T' <= x) for the noncentral t with `dof` degrees of freedom and noncentrality delta."""
-    return special.nctdtr(dof, noncentrality, x)
+    return _special().nctdtr(dof, noncentrality, x)
 
 
 def average_ranks(values) -> np.ndarray:

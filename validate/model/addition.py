@@ -23,11 +23,10 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field, fields
 
-from scipy import special  # the t quantile only (scipy.stats is slow to import)
-
 from validate.inputs.addition_section import StandardAddition
 from validate.inputs.schema import AssayMethod
 from validate.metrology.equipment import SourceSet, volume_term
+from validate.metrology.probability import t_quantile
 from validate.model.assay import Model, ModelError, build_model, mean_reading_term
 from validate.model.keys import ResultKey
 from validate.model.line import fit_line, straight_line
@@ -104,7 +103,7 @@ def check_addition_line(method: AssayMethod, add: StandardAddition, c_std: float
     if fit.slope <= 0:
         raise ModelError(f"{where}: the response falls as standard is added (slope {fit.slope * f:.4g} absorbance "
                          f"per {u}); check the readings' order against spike_volumes and the standard solution")
-    g = (float(special.stdtrit(fit.dof, 0.975)) * fit.slope_u / fit.slope) ** 2
+    g = (float(t_quantile(0.975, fit.dof)) * fit.slope_u / fit.slope) ** 2
     if g >= 1:
         raise ModelError(f"{where}: the slope does not differ significantly from zero (Fieller's g = {g:.2f} >= 1), "
                          f"so the extrapolated concentration has no finite interval; add larger amounts of standard")

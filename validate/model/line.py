@@ -23,7 +23,8 @@ from dataclasses import asdict, dataclass
 from typing import Any
 
 import numpy as np
-from scipy import special  # the t quantile only: scipy.stats costs half a second to import
+
+from validate.metrology.probability import t_quantile
 
 
 @dataclass(frozen=True)
@@ -194,7 +195,7 @@ def inverse_prediction(fit: LineFit, readings, sample_weight: float = 1.0,
         raise ValueError("an inverse prediction needs at least one reading")
     y0 = float(r.mean())
     b = fit.slope
-    t = special.stdtrit(fit.dof, 0.5 + confidence / 2.0)  # what scipy.stats.t.ppf computes
+    t = t_quantile(0.5 + confidence / 2.0, fit.dof)  # what scipy.stats.t.ppf computes
     ratio = t * fit.slope_u / b if b != 0 else math.inf
     g = ratio * ratio
     finite = g < 1.0

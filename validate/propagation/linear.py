@@ -13,10 +13,10 @@ import math
 from collections.abc import Sequence
 from dataclasses import asdict, dataclass
 
-from scipy import special  # the quantiles only: scipy.stats costs half a second to import
 from uncertainties import ufloat
 from uncertainties.core import AffineScalarFunc
 
+from validate.metrology.probability import normal_quantile, t_quantile
 from validate.model.assay import Model, ModelError
 
 
@@ -91,8 +91,8 @@ def welch_satterthwaite(contributions: list[float], dofs: list[float], groups: l
 def coverage_factor(p: float, dof: float) -> float:
     """k = t_{(1+p)/2, nu}; the normal quantile when nu is infinite (GUM G.3.4)."""
     if math.isinf(dof) or dof > 1e7:
-        return float(special.ndtri(0.5 + p / 2.0))  # what scipy.stats.norm.ppf computes
-    return float(special.stdtrit(dof, 0.5 + p / 2.0))  # what scipy.stats.t.ppf computes
+        return float(normal_quantile(0.5 + p / 2.0))  # what scipy.stats.norm.ppf computes
+    return float(t_quantile(0.5 + p / 2.0, dof))  # what scipy.stats.t.ppf computes
 
 
 def propagate(model: Model) -> list[LinearResult]:
