@@ -231,16 +231,22 @@ def test_slices_of_the_evaluation_change_no_number(write_method, monkeypatch):
 def test_shares_from_one_set_of_draws_equal_a_fresh_draw_per_group(write_method):
     # The definition: every held-group run draws all sources from the same seed, the group's held
     # at their estimates (common random numbers); the engine draws once and runs the base once.
+    # The share reported adds the linearised model as a control variate on those same trials
+    # (validate.propagation.mcshares; tests/test_mc_shares.py checks it against the standards).
+    from validate.propagation import mcshares
     from validate.propagation import montecarlo as mc
 
     run = api.analyse(write_method(SEVERAL), trials=None, advice=False)
-    model, n, seed = run.model, 5_000, 8
-    shares = mc._shares(model, seed, ("step",), lambda k: None, n)["step"]
+    model, n, seed = run.model, 5_000, 8  # one batch
+    estimates = mcshares.share_estimates(model, run.results, seed, ("step",), lambda k: None, n)["step"]
     base = mc.evaluate_trials(model, n, np.random.default_rng(seed))
-    for group, share in shares["Y"]:
+    for group, share in estimates["Y"]:
         names = frozenset(k for k, s in model.sources.items() if (s.step or "(none)") == group)
         held = mc.evaluate_trials(model, n, np.random.default_rng(seed), names)
-        assert share == 1.0 - np.nanvar(held["Y"]) / np.nanvar(base["Y"])
+        assert share.plain == pytest.approx(1.0 - np.nanvar(held["Y"]) / np.nanvar(base["Y"]), rel=1e-12, abs=1e-15)
+        assert share.share == share.plain - share.linear_mc + share.linear_exact
+    reported = mc._shares(model, run.results, seed, ("step",), lambda k: None, n)["step"]["Y"]
+    assert sorted(reported) == sorted((g, s.share) for g, s in estimates["Y"])
 
 
 def test_too_many_trials_stop_with_the_limit_before_any_trial(write_method):

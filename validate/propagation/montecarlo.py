@@ -8,8 +8,9 @@ its statistics read (validate.propagation.mctails); a run whose single result do
 stops with a message before any trial. The adaptive procedure (trials="auto", JCGM 101 7.9) is
 here; it keeps every result's values of its batches, at most MAX_ADAPTIVE_TRIALS each.
 
-Budget shares (held groups) use common random numbers: one set of draws and one
-base run, shared by every held-group run.
+Budget shares (held groups) use common random numbers: each batch of draws and its base run
+are shared by every held-group run, with the linearised model as a control variate
+(validate.propagation.mcshares).
 
 Trials whose result is undefined (NaN or infinite, e.g. a zero slope) are
 counted and reported, never dropped silently (docs/design.md, "Monte Carlo").
@@ -26,12 +27,13 @@ import numpy as np
 from validate.inputs.errors import InputError
 from validate.model.assay import Model
 from validate.model.errors import ModelError
-from validate.propagation import mcrounds
+from validate.propagation import mcrounds, mcshares
 from validate.propagation.distributions import draw_many
 from validate.propagation.gumcheck import GumCheck
 from validate.propagation.linear import LinearResult
 from validate.propagation.mcrounds import Final, Kept, extend_whole, label_groups, run_fixed, run_trials
 from validate.propagation.mcrounds import evaluate as _evaluate
+from validate.propagation.mcshares import SHARE_TRIALS, held_draws
 from validate.propagation.mcstats import (
     AdaptiveCheck,
     CoverageInterval,
@@ -46,7 +48,6 @@ from validate.propagation.mcstats import (
 )
 
 MAX_ADAPTIVE_TRIALS = 10_000_000
-SHARE_TRIALS = 50_000  # trials per held-group run for the Monte Carlo shares (common random numbers)
 INVALID_WARNING = 0.001  # share of undefined trials above which a warning is shown
 
 
@@ -129,14 +130,7 @@ def evaluate_trials(model: Model, n: int, rng: np.random.Generator, hold: frozen
     share their random numbers (common random numbers: their difference is
     the held sources' effect, not sampling noise)."""
     draws = draw_many(list(model.sources.values()), n, rng)
-    return _evaluate(model, _held(model, draws, hold, n), n, model.result_labels)
-
-
-def _held(model: Model, draws: dict[str, np.ndarray], hold, n: int) -> dict[str, np.ndarray]:
-    """The draws with the sources named in `hold` at their estimates (the others shared, not copied)."""
-    if not hold:
-        return draws
-    return {**draws, **{name: np.full(n, model.sources[name].value) for name in hold}}
+    return _evaluate(model, held_draws(model, draws, hold, n), n, model.result_labels)
 
 
 def _adaptive(model: Model, p: float, rng, progress) -> tuple[dict, dict]:
@@ -162,44 +156,16 @@ def _adaptive(model: Model, p: float, rng, progress) -> tuple[dict, dict]:
 
 
 def share_trials(trials) -> int:
-    """Trials per held-group run: SHARE_TRIALS, fewer when the main run itself is smaller."""
+    """Most trials of the shares' runs: SHARE_TRIALS, fewer when the main run itself is smaller."""
     return SHARE_TRIALS if trials == "auto" else max(1000, min(SHARE_TRIALS, int(trials) // 4))
 
 
-def _shares(model: Model, seed: int, keys: tuple[str, ...], progress,
+def _shares(model: Model, linear: list[LinearResult], seed: int, keys: tuple[str, ...], progress,
             n: int = SHARE_TRIALS) -> dict[str, dict[str, list[tuple[str, float]]]]:
-    """Share of the variance removed when one group of sources is held at its estimates:
-    1 - Var(held) / Var(all), from runs of n trials on common random numbers: one set of draws
-    and one base run serve every group of every key (a group holding the same sources as one
-    already run is not run again)."""
-    draws = draw_many(list(model.sources.values()), n, np.random.default_rng(seed))
-    labels = model.result_labels
-    base = _evaluate(model, draws, n, labels)
-    var0 = {k: _defined_variance(v) for k, v in base.items()}
-    held_var: dict[frozenset, dict[str, float]] = {}
-    out = {}
-    for key in keys:
-        groups: dict[str, set] = {}
-        for name, src in model.sources.items():
-            groups.setdefault(getattr(src, key) or "(none)", set()).add(name)
-        shares: dict[str, list[tuple[str, float]]] = {label: [] for label in labels}
-        for group, names in groups.items():
-            held = frozenset(names)
-            if held not in held_var:
-                arrays = _evaluate(model, _held(model, draws, held, n), n, labels)
-                held_var[held] = {label: _defined_variance(arr) for label, arr in arrays.items()}
-            progress(n)
-            for label in labels:
-                share = 1.0 - held_var[held][label] / var0[label] if var0[label] > 0 else 0.0
-                shares[label].append((group, float(share)))
-        out[key] = {k: sorted(v, key=lambda t: (-round(t[1], 12), t[0])) for k, v in shares.items()}
-    return out
-
-
-def _defined_variance(arr: np.ndarray) -> float:
-    """Variance over the defined trials; nan, without numpy's warning, when fewer than two are
-    defined (a point left out of an equilibrium study can have none in a held-group run)."""
-    return float(np.nanvar(arr)) if np.count_nonzero(~np.isnan(arr)) > 1 else math.nan
+    """Share of the variance removed when one group of sources is held at its estimates,
+    1 - Var(held) / Var(all), on common random numbers with the linearised model as a control
+    variate, in batches until precise or n trials (validate.propagation.mcshares)."""
+    return mcshares.shares(model, linear, seed, keys, progress, n)
 
 
 def propagate_mc(model: Model, linear: list[LinearResult], trials: int | str = 1_000_000,
@@ -234,7 +200,7 @@ def _propagate(model: Model, linear: list[LinearResult], trials, seed: int, p: f
         extend_whole(model, gums, kept, min(k.values.size + k.invalid for k in kept.values()), p, rng, progress, final)
     else:
         final = run_fixed(model, gums, int(trials), seed, p, progress)
-    by = _shares(model, seed + 1, ("step", "equipment"), progress, share_trials(trials)) if shares else {}
+    by = _shares(model, linear, seed + 1, ("step", "equipment"), progress, share_trials(trials)) if shares else {}
     results = []
     for gum in linear:
         f = final[gum.name]
@@ -267,7 +233,8 @@ def smallest_t_dof(model: Model, gum: LinearResult) -> float:
 
 
 def expected_work(trials: int | str, model: Model, shares: bool = True) -> int:
-    """Trials the run will evaluate, for a progress bar (the adaptive run is open-ended)."""
+    """Trials the run will evaluate, for a progress bar (the adaptive run is open-ended; the
+    shares count at their most, share_trials, and stop early once precise)."""
     groups = len({s.step for s in model.sources.values()}) + len({s.equipment for s in model.sources.values()})
     if trials == "auto":
         main = adaptive_batch_size(model.method.settings.coverage_probability) * 10

@@ -1,0 +1,357 @@
+"""Monte Carlo shares of the variance by group of sources (by step, by equipment item).
+
+A group's share is the part of an output's variance removed when the group's sources are held
+at their estimates: 1 - Var(held) / Var(all). Every held-group run uses the same draws as the
+base run (common random numbers), so their difference is the group's effect, not sampling noise.
+
+Control variate. With the same draws the linearised model y_lin = sum_i c_i (x_i - x_i0) is
+evaluated too (c_i: the GUM sensitivity coefficients, GUM 5.1.3). Its held-group share is known
+exactly: sum_{i in g} c_i^2 var_i / sum_i c_i^2 var_i, with var_i the variance of the
+distribution actually drawn (`drawn_variance`; uncorrelated inputs, the members of a dof group
+included). The estimate is
+
+    share = share_MC(y) - share_MC(y_lin) + share_lin,
+
+both Monte Carlo shares on the same defined trials (a trial where y is undefined is left out of
+both). For a linear model it is the exact share whatever the trials; what noise is left comes
+from the model's departure from its linearisation only.
+
+Trials run in batches of SHARE_BATCH until every share's standard error is at most SHARE_TARGET,
+or SHARE_TRIALS trials (the most). The standard error is the first-order (delta method) one:
+sqrt(sum_j IF_j^2) / N over the N trials where both runs are defined, IF_j the estimator's
+influence function at trial j (`_ratio_influence`), its centres (means, variances) taken per
+batch. An output reached by a t input with nu <= HEAVY_TAILS_DOF (no finite fourth moment; for
+nu <= 2 no finite variance, and no shares reported) keeps the plain estimate 1 - Var(held) /
+Var(all), and its variance ratios have no standard error to stop on: a model with such an output
+runs all SHARE_TRIALS trials, as does one with an output the GUM evaluation does not give.
+
+Draw order: one generator default_rng(seed); each batch draws every source (draw_many's order:
+sources sorted by name, each its whole block of the batch, then the dof groups' factors), then
+the base run and one run per distinct held set of sources on those draws.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from functools import cached_property
+
+import numpy as np
+
+from validate.metrology.sources import Source
+from validate.model.assay import Model
+from validate.propagation.distributions import draw_many
+from validate.propagation.linear import LinearResult
+from validate.propagation.mcrounds import evaluate
+
+SHARE_TRIALS = 50_000  # the most trials of the shares' runs (each held group's run and the base run)
+SHARE_BATCH = 10_000  # trials per batch: the standard error is looked at after each
+SHARE_TARGET = 0.0025  # each share's standard error, as a fraction (0.25 percentage points)
+HEAVY_TAILS_DOF = 4  # a t input with at most this many degrees of freedom: plain estimate, all trials
+# Measured (benchmarks/share_precision.py; docs/design.md, "Monte Carlo"): on the assay demo the
+# runs stop after one batch, the shares' spread over 20 seeds 0.005 percentage points at the
+# median (0.015 at most) against 0.24 (0.47) for the plain estimate at 50,000 trials, at a
+# quarter of the CPU; the stated error is 0.65 to 1.44 times the spread seen.
+
+
+def drawn_variance(src: Source) -> float:
+    """Variance of the distribution `distributions.draw` samples for a source (JCGM 101 6.4):
+    u^2 for normal, rectangular and triangular (u is their standard deviation); w^2/3 + d^2/9
+    for the curvilinear trapezoid (u^2 unless its half-width was clipped at zero); for t the
+    scale u gives u^2 nu/(nu - 2) when nu > 2 (JCGM 101 6.4.9) and no finite variance else."""
+    u = float(src.u)
+    if u == 0.0:
+        return 0.0
+    if src.distribution == "t" and math.isfinite(src.dof):
+        return u * u * src.dof / (src.dof - 2.0) if src.dof > 2 else math.inf
+    if src.distribution == "trapezoid":
+        return src.half_width**2 / 3.0 + float(src.trapezoid_d) ** 2 / 9.0
+    return u * u
+
+
+def held_draws(model: Model, draws: dict[str, np.ndarray], hold, n: int) -> dict[str, np.ndarray]:
+    """The draws with the sources named in `hold` at their estimates (the others shared, not copied)."""
+    if not hold:
+        return draws
+    return {**draws, **{name: np.full(n, model.sources[name].value) for name in hold}}
+
+
+class Moments:
+    """Count, mean and sum of squared deviations of each column's defined values, added a batch
+    at a time (the pairwise update of Chan, Golub and LeVeque: no sums of squares of raw values)."""
+
+    def __init__(self, width: int):
+        self.n = np.zeros(width)
+        self.mean = np.zeros(width)
+        self.m2 = np.zeros(width)
+
+    def add(self, part: _Spread) -> None:
+        """Add a batch's values, given as their spread."""
+        k = part.k
+        total = self.n + k
+        with np.errstate(invalid="ignore", divide="ignore"):
+            delta = part.mean - self.mean
+            self.m2 += part.m2 + np.where(total > 0, delta * delta * self.n * k / total, 0.0)
+            self.mean += np.where(total > 0, delta * k / total, 0.0)
+        self.n = total
+
+    @property
+    def variance(self) -> np.ndarray:
+        """Variance (divisor n, as numpy's var); nan with fewer than two values."""
+        with np.errstate(invalid="ignore", divide="ignore"):
+            return np.where(self.n > 1, self.m2 / self.n, np.nan)
+
+
+@dataclass
+class _Spread:
+    """A batch's values on the trials `ok`, a column per output: count, mean, squared deviations
+    from the mean (0 where not ok), their sum and their mean (the variance, divisor k)."""
+
+    k: np.ndarray
+    mean: np.ndarray
+    d: np.ndarray
+    m2: np.ndarray
+    v: np.ndarray
+
+    @classmethod
+    def of(cls, values: np.ndarray, ok: np.ndarray) -> _Spread:
+        k = ok.sum(axis=0)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            if ok.all():
+                mean = values.mean(axis=0)
+                d = values - mean
+            else:  # undefined trials count as at the mean: no deviation, no influence
+                d = np.where(ok, values, 0.0)
+                mean = np.where(k > 0, d.sum(axis=0) / k, 0.0)
+                d -= mean
+                d *= ok
+            np.square(d, out=d)
+            m2 = d.sum(axis=0)
+            v = np.where(k > 0, m2 / k, 0.0)
+        return cls(k, mean, d, m2, v)
+
+    @cached_property
+    def excess(self) -> np.ndarray:
+        """Each trial's squared deviation less the variance (a base run's serves every held run)."""
+        return self.d - self.v
+
+
+def _ratio_influence(all_: _Spread, held: _Spread) -> np.ndarray:
+    """Influence function of R = Var(held)/Var(all), a column per output, over the trials where
+    both are defined (both spreads taken on them): (e_held - R e_all) / Var(all), e a trial's
+    squared deviation less the variance (first order, delta method). It is 0 (to round-off) on a
+    trial not defined, and 0 in a column without variance."""
+    with np.errstate(invalid="ignore", divide="ignore"):
+        scale = np.where(all_.v > 0, 1.0 / all_.v, 0.0)
+        ratio = held.v * scale
+    out = held.d - held.v
+    out *= scale
+    out -= all_.excess * (ratio * scale)
+    return out
+
+
+class _HeldSums:
+    """One held set's sums, a column per output: its model values and linearised values (each
+    on the trials where the held run is defined), and the squared influence of the estimators
+    over the trials where both runs are defined."""
+
+    def __init__(self, width: int):
+        self.y = Moments(width)
+        self.lin = Moments(width)
+        self.influence2 = np.zeros(width)  # with the control variate
+        self.plain2 = np.zeros(width)  # without
+        self.joint = np.zeros(width)
+
+    def add(self, y0: np.ndarray, l0: np.ndarray, ok0: np.ndarray, base: tuple[_Spread, _Spread],
+            yh: np.ndarray, lh: np.ndarray, errors: bool) -> None:
+        """A batch: the base run's values (y0, l0, defined where ok0; `base` their spreads) and
+        this held run's (yh, lh); the influence sums too where `errors`."""
+        okh = np.isfinite(yh)
+        both = ok0 & okh
+        held = (_Spread.of(yh, both), _Spread.of(lh, both))
+        usual = np.array_equal(both, okh)  # the base run is defined wherever this one is
+        self.y.add(held[0] if usual else _Spread.of(yh, okh))
+        self.lin.add(held[1] if usual else _Spread.of(lh, okh))
+        if not errors:
+            return
+        if not np.array_equal(both, ok0):
+            base = (_Spread.of(y0, both), _Spread.of(l0, both))
+        plain = _ratio_influence(base[0], held[0])  # the plain share is 1 - R: its influence is -that
+        influence = _ratio_influence(base[1], held[1])
+        influence -= plain
+        k = held[0].k
+        self.influence2 += np.where(k > 1, np.square(influence).sum(axis=0), 0.0)
+        self.plain2 += np.where(k > 1, np.square(plain).sum(axis=0), 0.0)
+        self.joint += np.where(k > 1, k, 0)
+
+
+@dataclass(frozen=True)
+class Share:
+    """One group's share for one output, with the parts it is made of."""
+
+    share: float  # the estimate reported
+    plain: float  # 1 - Var(held)/Var(all) of the model
+    linear_mc: float  # the same of the linearised model on the same trials (nan: no control variate)
+    linear_exact: float  # its exact value (nan: no control variate)
+    standard_error: float  # first-order standard error of `share`
+    plain_standard_error: float  # the same of `plain`, for comparison
+    trials: int
+
+
+@dataclass(frozen=True)
+class _Linearised:
+    """Sensitivity coefficients of the outputs with a control variate, as a matrix."""
+
+    names: list[str]  # sources with a coefficient, sorted
+    coefficients: np.ndarray  # (sources, outputs); a zero column for an output without one
+    terms: dict[str, dict[str, float]]  # output -> source -> c_i^2 var_i
+
+    def exact(self, label: str, held: frozenset) -> float:
+        terms = self.terms[label]
+        return math.fsum(v for k, v in terms.items() if k in held) / math.fsum(terms.values())
+
+    def values(self, draws: dict[str, np.ndarray], model: Model, n: int) -> tuple[np.ndarray, np.ndarray]:
+        """y_lin of every output for these draws, (trials, outputs), and the deviations
+        x_i - x_i0 it is made of, (trials, sources)."""
+        deviations = np.empty((n, len(self.names)), order="F")
+        for j, name in enumerate(self.names):
+            np.subtract(draws[name], model.sources[name].value, out=deviations[:, j])
+        return deviations @ self.coefficients, deviations
+
+
+def _linearised(model: Model, linear: list[LinearResult]) -> _Linearised:
+    """c_i = contribution / u (the contribution is c_i u(x_i), GUM 5.1.3) of every output with
+    some variance whose contributing inputs all have finite drawn fourth moments: none is a t
+    input with nu <= HEAVY_TAILS_DOF. (With one, the model and its linearisation part in the
+    rare far trials that carry the variance's noise: measured on the equilibrium demo, nu = 3,
+    the control variate widened the spread of most shares; such an output keeps the plain
+    estimate.)"""
+    variances = {name: drawn_variance(src) for name, src in model.sources.items()}
+    terms: dict[str, dict[str, float]] = {}
+    coefficient: dict[str, dict[str, float]] = {}
+    for gum in linear:
+        c = {row.source: row.contribution / model.sources[row.source].u
+             for row in gum.contributions if row.contribution != 0}
+        if not any(_heavy_tailed(model.sources[name]) for name in c):
+            t = {name: ci * ci * variances[name] for name, ci in c.items()}
+            if math.fsum(t.values()) > 0:
+                coefficient[gum.name], terms[gum.name] = c, t
+    labels = list(model.result_labels)
+    names = sorted({name for c in coefficient.values() for name in c})
+    matrix = np.zeros((len(names), len(labels)))
+    for j, label in enumerate(labels):
+        for i, name in enumerate(names):
+            matrix[i, j] = coefficient.get(label, {}).get(name, 0.0)
+    return _Linearised(names, matrix, terms)
+
+
+def share_estimates(model: Model, linear: list[LinearResult], seed: int, keys: tuple[str, ...],
+                    progress, n: int = SHARE_TRIALS, target: float = SHARE_TARGET,
+                    always_errors: bool = False) -> dict[str, dict[str, list[tuple[str, Share]]]]:
+    """{key: {output: [(group, Share)]}}, groups in the order first met among the sources. The
+    standard errors are estimated where they may stop the runs early, or with `always_errors`
+    (nan otherwise)."""
+    labels = list(model.result_labels)
+    lin = _linearised(model, linear)
+    groups = {key: _groups(model, key) for key in keys}
+    held_sets = list(dict.fromkeys(frozenset(names) for g in groups.values() for names in g.values()))
+    may_stop = _may_stop(model, linear)
+    position = {name: i for i, name in enumerate(lin.names)}
+    sources = list(model.sources.values())
+    rng = np.random.default_rng(seed)
+    base_y, base_lin = Moments(len(labels)), Moments(len(labels))
+    sums = {held: _HeldSums(len(labels)) for held in held_sets}
+    done = 0
+    while done < n:
+        b = min(SHARE_BATCH, n - done)
+        draws = draw_many(sources, b, rng)
+        y0 = _outputs(model, draws, b, labels)
+        l0, deviations = lin.values(draws, model, b)
+        ok0 = np.isfinite(y0)
+        base = (_Spread.of(y0, ok0), _Spread.of(l0, ok0))
+        base_y.add(base[0])
+        base_lin.add(base[1])
+        for held in held_sets:
+            yh = _outputs(model, held_draws(model, draws, held, b), b, labels)
+            rows = sorted(position[name] for name in held if name in position)  # not in the set's order
+            lh = l0 - deviations[:, rows] @ lin.coefficients[rows] if rows else l0
+            sums[held].add(y0, l0, ok0, base, yh, lh, may_stop or always_errors)
+        done += b
+        progress(b * sum(len(g) for g in groups.values()))
+        out = _estimates(groups, base_y, base_lin, sums, lin, labels, done)
+        if may_stop and _precise(out, target):
+            break
+    return out
+
+
+def _may_stop(model: Model, linear: list[LinearResult]) -> bool:
+    """Whether the shares' runs may stop before their most trials: every output has its GUM
+    evaluation (its sensitivity coefficients), and no input from a t distribution with at most
+    HEAVY_TAILS_DOF degrees of freedom reaches one (no finite fourth moment of the output, so a
+    variance ratio has no standard error to stop on)."""
+    if not set(model.result_labels) <= {gum.name for gum in linear}:
+        return False
+    return not any(row.contribution != 0 and _heavy_tailed(model.sources[row.source])
+                   for gum in linear for row in gum.contributions)
+
+
+def _heavy_tailed(src: Source) -> bool:
+    """A t input without a finite fourth moment (nu <= 4; nu <= 2: no finite variance either)."""
+    return src.distribution == "t" and src.dof <= HEAVY_TAILS_DOF and src.u > 0
+
+
+def _outputs(model: Model, draws: dict[str, np.ndarray], n: int, labels: list[str]) -> np.ndarray:
+    """The model's outputs for n trials, (trials, outputs), each column filled in place."""
+    values = np.empty((n, len(labels)), order="F")
+    evaluate(model, draws, n, labels, {label: values[:, j] for j, label in enumerate(labels)})
+    return values
+
+
+def _groups(model: Model, key: str) -> dict[str, set[str]]:
+    groups: dict[str, set[str]] = {}
+    for name, src in model.sources.items():
+        groups.setdefault(getattr(src, key) or "(none)", set()).add(name)
+    return groups
+
+
+def _estimates(groups, base_y: Moments, base_lin: Moments, sums, lin: _Linearised, labels,
+               trials: int) -> dict[str, dict[str, list[tuple[str, Share]]]]:
+    v_all, w_all = base_y.variance, base_lin.variance
+    out: dict[str, dict[str, list[tuple[str, Share]]]] = {}
+    for key, by_group in groups.items():
+        out[key] = {label: [] for label in labels}
+        for group, names in by_group.items():
+            s = sums[frozenset(names)]
+            v_held, w_held = s.y.variance, s.lin.variance
+            with np.errstate(invalid="ignore", divide="ignore"):
+                se = np.where(s.joint > 0, np.sqrt(s.influence2) / s.joint, np.nan)
+                se_plain = np.where(s.joint > 0, np.sqrt(s.plain2) / s.joint, np.nan)
+            for j, label in enumerate(labels):
+                plain = 1.0 - v_held[j] / v_all[j] if v_all[j] > 0 else 0.0
+                if label in lin.terms and v_all[j] > 0 and w_all[j] > 0:
+                    exact = lin.exact(label, frozenset(names))
+                    linear_mc = 1.0 - w_held[j] / w_all[j]
+                    share, error = plain - linear_mc + exact, se[j]
+                else:
+                    exact = linear_mc = math.nan
+                    share, error = plain, se_plain[j]
+                out[key][label].append((group, Share(float(share), float(plain), float(linear_mc), exact,
+                                                     float(error), float(se_plain[j]), trials)))
+    return out
+
+
+def _precise(estimates, target: float) -> bool:
+    """Every defined share's standard error at most `target` (a share with no variance to
+    estimate, nan, cannot be made more precise by more trials and does not hold the run)."""
+    return all(math.isnan(s.share) or s.standard_error <= target
+               for by_label in estimates.values() for rows in by_label.values() for _, s in rows)
+
+
+def shares(model: Model, linear: list[LinearResult], seed: int, keys: tuple[str, ...], progress,
+           n: int = SHARE_TRIALS) -> dict[str, dict[str, list[tuple[str, float]]]]:
+    """{key: {output: [(group, share)]}}, largest share first (ties by group name)."""
+    out = {}
+    for key, by_label in share_estimates(model, linear, seed, keys, progress, n).items():
+        out[key] = {label: sorted(((g, s.share) for g, s in rows), key=lambda t: (-round(t[1], 12), t[0]))
+                    for label, rows in by_label.items()}
+    return out
