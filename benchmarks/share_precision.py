@@ -59,7 +59,7 @@ def spread(method: str, count: int) -> dict:
     for seed in range(1, count + 1):
         if mcshares is not None:
             estimates = mcshares.share_estimates(run.model, run.results, seed, ("step", "equipment"),
-                                                 lambda k: None, always_errors=True)
+                                                 lambda k: None)
             for key, by_label in estimates.items():
                 for label, rows in by_label.items():
                     for group, s in rows:

@@ -49,13 +49,16 @@ def test_trials_are_bit_identical_with_and_without_the_memo(nickel_demo, monkeyp
         assert np.asarray(shared[label]).tobytes() == np.asarray(own[label]).tobytes(), label
 
 
-def test_monte_carlo_and_its_shares_are_bit_identical_with_and_without_the_memo(nickel_demo, monkeypatch):
+def test_monte_carlo_is_bit_identical_with_and_without_the_memo(nickel_demo, monkeypatch):
+    # the demo's results get no variance shares (its line's scatter has 3 degrees of freedom: no
+    # finite fourth moment, validate.propagation.mcshares); a held-group run is a model evaluation
+    # on other draws, which the test above covers
     model, results = nickel_demo.model, nickel_demo.results
     shared = propagate_mc(model, results, 20_000, seed=1, shares=True)
     _use_by_use(monkeypatch)
     own = propagate_mc(model, results, 20_000, seed=1, shares=True)
     assert [repr(r) for r in shared] == [repr(r) for r in own]
-    assert any(r.shares_by_step for r in own)
+    assert not any(r.shares_by_step or r.shares_exist for r in own)
 
 
 def test_the_linear_engine_is_unchanged_by_the_memo(nickel_demo, monkeypatch):

@@ -140,17 +140,23 @@ def test_the_stated_error_matches_the_spread_between_seeds():
 
 
 @pytest.mark.parametrize("dof", [2, 3, 4])
-def test_an_output_reached_by_a_t_input_with_heavy_tails_keeps_the_plain_estimate_and_every_trial(dof):
+def test_an_output_reached_by_a_t_input_with_heavy_tails_gets_no_shares(dof):
     # nu <= 4: no finite fourth moment of the t distribution (nu <= 2: no finite variance; any
-    # statistics handbook), so a variance ratio has no standard error to stop on and the far
-    # trials part the model from its linearisation. Another output of the same model keeps its
-    # control variate; the runs, shared, go to the end.
+    # statistics handbook), so a variance ratio has no standard error: such an output gets no
+    # shares, and another output of the same model keeps its own, stopping once precise.
     model = HandModel([Source("a", 1.0, 0.1, "t", dof=dof, step="a"), Source("b", 2.0, 0.1, step="b")],
                       {"Y": lambda x: x["a"] * x["b"], "Z": lambda x: x["b"] ** 2})
     estimates, _ = _estimates(model, n=30_000, keys=("step",))
-    assert all(math.isnan(s.linear_exact) and s.share == s.plain and s.trials == 30_000
-               for _, s in estimates["step"]["Y"])
-    assert all(not math.isnan(s.linear_exact) and s.trials == 30_000 for _, s in estimates["step"]["Z"])
+    assert "Y" not in estimates["step"]
+    assert all(not math.isnan(s.linear_exact) and s.trials == mcshares.SHARE_BATCH for _, s in estimates["step"]["Z"])
+
+
+def test_no_trials_when_no_output_gets_shares():
+    model = HandModel([Source("a", 1.0, 0.1, "t", dof=3, step="a"), Source("b", 2.0, 0.1, step="b")],
+                      {"Y": lambda x: x["a"] * x["b"]})
+    estimates, done = _estimates(model, n=30_000, keys=("step", "equipment"))
+    assert estimates == {"step": {}, "equipment": {}}
+    assert done == 0  # trials reported to the progress bar
 
 
 def test_an_undefined_trial_is_left_out_of_the_model_and_of_its_linearisation():

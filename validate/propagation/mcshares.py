@@ -20,14 +20,12 @@ Trials run in batches of SHARE_BATCH until every share's standard error is at mo
 or SHARE_TRIALS trials (the most). The standard error is the first-order (delta method) one:
 sqrt(sum_j IF_j^2) / N over the N trials where both runs are defined, IF_j the estimator's
 influence function at trial j (`_ratio_influence`), its centres (means, variances) taken per
-batch. An output reached by a t input with nu <= HEAVY_TAILS_DOF (no finite fourth moment; for
-nu <= 2 no finite variance, and no shares reported) keeps the plain estimate 1 - Var(held) /
-Var(all), and its variance ratios have no standard error to stop on: a model with such an output
-runs all SHARE_TRIALS trials, as does one with an output the GUM evaluation does not give.
-
-Draw order: one generator default_rng(seed); each batch draws every source (draw_many's order:
-sources sorted by name, each its whole block of the batch, then the dof groups' factors), then
-the base run and one run per distinct held set of sources on those draws.
+batch. An output reached by a t input with nu <= HEAVY_TAILS_DOF gets no shares: its variance
+exists only for nu > 2 and a variance ratio has a finite standard error only where the fourth
+moment does, nu > 4 (any statistics handbook on Student's t). Measured on the equilibrium demo
+(nu = 3), the plain estimate at 50,000 trials moved a share by up to 22 percentage points between
+seeds and the control variate widened that: a figure that cannot be given a precision is not
+reported (the record says why, `McResult.moments_note`); the GUM budget stands for such outputs.
 """
 
 from __future__ import annotations
@@ -47,7 +45,7 @@ from validate.propagation.mcrounds import evaluate
 SHARE_TRIALS = 50_000  # the most trials of the shares' runs (each held group's run and the base run)
 SHARE_BATCH = 10_000  # trials per batch: the standard error is looked at after each
 SHARE_TARGET = 0.0025  # each share's standard error, as a fraction (0.25 percentage points)
-HEAVY_TAILS_DOF = 4  # a t input with at most this many degrees of freedom: plain estimate, all trials
+HEAVY_TAILS_DOF = 4  # a t input with at most this many degrees of freedom: no shares for what it reaches
 # Measured (benchmarks/share_precision.py; docs/design.md, "Monte Carlo"): on the assay demo the
 # runs stop after one batch, the shares' spread over 20 seeds 0.005 percentage points at the
 # median (0.015 at most) against 0.24 (0.47) for the plain estimate at 50,000 trials, at a
@@ -163,17 +161,15 @@ class _HeldSums:
         self.joint = np.zeros(width)
 
     def add(self, y0: np.ndarray, l0: np.ndarray, ok0: np.ndarray, base: tuple[_Spread, _Spread],
-            yh: np.ndarray, lh: np.ndarray, errors: bool) -> None:
+            yh: np.ndarray, lh: np.ndarray) -> None:
         """A batch: the base run's values (y0, l0, defined where ok0; `base` their spreads) and
-        this held run's (yh, lh); the influence sums too where `errors`."""
+        this held run's (yh, lh), with the influence sums of the standard errors."""
         okh = np.isfinite(yh)
         both = ok0 & okh
         held = (_Spread.of(yh, both), _Spread.of(lh, both))
         usual = np.array_equal(both, okh)  # the base run is defined wherever this one is
         self.y.add(held[0] if usual else _Spread.of(yh, okh))
         self.lin.add(held[1] if usual else _Spread.of(lh, okh))
-        if not errors:
-            return
         if not np.array_equal(both, ok0):
             base = (_Spread.of(y0, both), _Spread.of(l0, both))
         plain = _ratio_influence(base[0], held[0])  # the plain share is 1 - R: its influence is -that
@@ -220,23 +216,18 @@ class _Linearised:
 
 
 def _linearised(model: Model, linear: list[LinearResult]) -> _Linearised:
-    """c_i = contribution / u (the contribution is c_i u(x_i), GUM 5.1.3) of every output with
-    some variance whose contributing inputs all have finite drawn fourth moments: none is a t
-    input with nu <= HEAVY_TAILS_DOF. (With one, the model and its linearisation part in the
-    rare far trials that carry the variance's noise: measured on the equilibrium demo, nu = 3,
-    the control variate widened the spread of most shares; such an output keeps the plain
-    estimate.)"""
+    """c_i = contribution / u (the contribution is c_i u(x_i), GUM 5.1.3) of every output given
+    with some variance (their columns in the order of `linear`)."""
     variances = {name: drawn_variance(src) for name, src in model.sources.items()}
     terms: dict[str, dict[str, float]] = {}
     coefficient: dict[str, dict[str, float]] = {}
     for gum in linear:
         c = {row.source: row.contribution / model.sources[row.source].u
              for row in gum.contributions if row.contribution != 0}
-        if not any(_heavy_tailed(model.sources[name]) for name in c):
-            t = {name: ci * ci * variances[name] for name, ci in c.items()}
-            if math.fsum(t.values()) > 0:
-                coefficient[gum.name], terms[gum.name] = c, t
-    labels = list(model.result_labels)
+        t = {name: ci * ci * variances[name] for name, ci in c.items()}
+        if math.fsum(t.values()) > 0:
+            coefficient[gum.name], terms[gum.name] = c, t
+    labels = [gum.name for gum in linear]
     names = sorted({name for c in coefficient.values() for name in c})
     matrix = np.zeros((len(names), len(labels)))
     for j, label in enumerate(labels):
@@ -245,54 +236,57 @@ def _linearised(model: Model, linear: list[LinearResult]) -> _Linearised:
     return _Linearised(names, matrix, terms)
 
 
+def with_shares(model: Model, linear: list[LinearResult]) -> list[LinearResult]:
+    """The outputs that get shares: those no t input with nu <= HEAVY_TAILS_DOF reaches (no finite
+    fourth moment: a variance ratio without a standard error)."""
+    return [gum for gum in linear
+            if not any(row.contribution != 0 and _heavy_tailed(model.sources[row.source])
+                       for row in gum.contributions)]
+
+
 def share_estimates(model: Model, linear: list[LinearResult], seed: int, keys: tuple[str, ...],
-                    progress, n: int = SHARE_TRIALS, target: float = SHARE_TARGET,
-                    always_errors: bool = False) -> dict[str, dict[str, list[tuple[str, Share]]]]:
-    """{key: {output: [(group, Share)]}}, groups in the order first met among the sources. The
-    standard errors are estimated where they may stop the runs early, or with `always_errors`
-    (nan otherwise)."""
-    labels = list(model.result_labels)
-    lin = _linearised(model, linear)
+                    progress, n: int = SHARE_TRIALS,
+                    target: float = SHARE_TARGET) -> dict[str, dict[str, list[tuple[str, Share]]]]:
+    """{key: {output: [(group, Share)]}} of the outputs `with_shares`, groups in the order first met
+    among the sources; no trials at all when there is none."""
+    given = with_shares(model, linear)
+    if not given:
+        return {key: {} for key in keys}
+    labels = [gum.name for gum in given]
+    lin = _linearised(model, given)
     groups = {key: _groups(model, key) for key in keys}
     held_sets = list(dict.fromkeys(frozenset(names) for g in groups.values() for names in g.values()))
-    may_stop = _may_stop(model, linear)
-    position = {name: i for i, name in enumerate(lin.names)}
     sources = list(model.sources.values())
     rng = np.random.default_rng(seed)
-    base_y, base_lin = Moments(len(labels)), Moments(len(labels))
+    base = (Moments(len(labels)), Moments(len(labels)))
     sums = {held: _HeldSums(len(labels)) for held in held_sets}
     done = 0
     while done < n:
         b = min(SHARE_BATCH, n - done)
-        draws = draw_many(sources, b, rng)
-        y0 = _outputs(model, draws, b, labels)
-        l0, deviations = lin.values(draws, model, b)
-        ok0 = np.isfinite(y0)
-        base = (_Spread.of(y0, ok0), _Spread.of(l0, ok0))
-        base_y.add(base[0])
-        base_lin.add(base[1])
-        for held in held_sets:
-            yh = _outputs(model, held_draws(model, draws, held, b), b, labels)
-            rows = sorted(position[name] for name in held if name in position)  # not in the set's order
-            lh = l0 - deviations[:, rows] @ lin.coefficients[rows] if rows else l0
-            sums[held].add(y0, l0, ok0, base, yh, lh, may_stop or always_errors)
+        _add_batch(model, lin, labels, draw_many(sources, b, rng), b, base, sums)
         done += b
         progress(b * sum(len(g) for g in groups.values()))
-        out = _estimates(groups, base_y, base_lin, sums, lin, labels, done)
-        if may_stop and _precise(out, target):
+        out = _estimates(groups, base[0], base[1], sums, lin, labels, done)
+        if _precise(out, target):
             break
     return out
 
 
-def _may_stop(model: Model, linear: list[LinearResult]) -> bool:
-    """Whether the shares' runs may stop before their most trials: every output has its GUM
-    evaluation (its sensitivity coefficients), and no input from a t distribution with at most
-    HEAVY_TAILS_DOF degrees of freedom reaches one (no finite fourth moment of the output, so a
-    variance ratio has no standard error to stop on)."""
-    if not set(model.result_labels) <= {gum.name for gum in linear}:
-        return False
-    return not any(row.contribution != 0 and _heavy_tailed(model.sources[row.source])
-                   for gum in linear for row in gum.contributions)
+def _add_batch(model: Model, lin: _Linearised, labels: list[str], draws: dict[str, np.ndarray], b: int,
+               base: tuple[Moments, Moments], sums: dict[frozenset, _HeldSums]) -> None:
+    """One batch of b drawn trials: the base run and every held set's run, model and linearised."""
+    y0 = _outputs(model, draws, b, labels)
+    l0, deviations = lin.values(draws, model, b)
+    ok0 = np.isfinite(y0)
+    spread = (_Spread.of(y0, ok0), _Spread.of(l0, ok0))
+    base[0].add(spread[0])
+    base[1].add(spread[1])
+    position = {name: i for i, name in enumerate(lin.names)}
+    for held, held_sums in sums.items():
+        yh = _outputs(model, held_draws(model, draws, held, b), b, labels)
+        rows = sorted(position[name] for name in held if name in position)  # not in the set's order
+        lh = l0 - deviations[:, rows] @ lin.coefficients[rows] if rows else l0
+        held_sums.add(y0, l0, ok0, spread, yh, lh)
 
 
 def _heavy_tailed(src: Source) -> bool:

@@ -73,6 +73,12 @@ class McResult:
         return self.smallest_dof > 1
 
     @property
+    def shares_exist(self) -> bool:
+        """Variance shares with a standard error need a finite fourth moment: no t input with
+        nu <= 4 reaches the result (validate.propagation.mcshares, which then runs none)."""
+        return self.smallest_dof > mcshares.HEAVY_TAILS_DOF
+
+    @property
     def warning(self) -> str | None:
         share = self.summary.invalid_trials / self.summary.total_trials
         if share > INVALID_WARNING:
@@ -88,19 +94,21 @@ class McResult:
             return (f"an input drawn from a t distribution with {nu:g} degrees of freedom has no finite "
                     "variance, so the output has none: the Monte Carlo standard uncertainty and the "
                     "variance shares do not exist and are not reported; the coverage intervals stand")
-        if nu <= 4:
+        if nu <= mcshares.HEAVY_TAILS_DOF:
             return (f"an input drawn from a t distribution with {nu:g} degrees of freedom (at most 4) has "
-                    "no finite fourth moment: the Monte Carlo standard uncertainty and the variance "
-                    "shares vary strongly between runs; rely on the coverage intervals")
+                    "no finite fourth moment: the Monte Carlo standard uncertainty varies strongly between "
+                    "runs, and variance shares would have no standard error (they moved by up to 22 "
+                    "percentage points between seeds on such a model), so none are reported; rely on the "
+                    "coverage intervals and the GUM budget")
         return None
 
     def to_dict(self) -> dict:
         s, c = self.summary, self.check
         v = c.validation
-        shares = self.variance_exists
+        shares = self.shares_exist
         return {
             "trials": s.total_trials, "mean": s.mean if self.mean_exists else None,
-            "standard_uncertainty": s.standard_deviation if shares else None,
+            "standard_uncertainty": s.standard_deviation if self.variance_exists else None,
             "interval": [s.symmetric.low, s.symmetric.high],
             "shortest_interval": [s.shortest.low, s.shortest.high],
             "coverage_probability": s.p,
@@ -232,9 +240,11 @@ def smallest_t_dof(model: Model, gum: LinearResult) -> float:
     return min(dofs, default=math.inf)
 
 
-def expected_work(trials: int | str, model: Model, shares: bool = True) -> int:
+def expected_work(trials: int | str, model: Model, linear: list[LinearResult] | None = None,
+                  shares: bool = True) -> int:
     """Trials the run will evaluate, for a progress bar (the adaptive run is open-ended; the
-    shares count at their most, share_trials, and stop early once precise)."""
+    shares count at their most, share_trials, and stop early once precise; none where no result
+    gets shares, see mcshares.with_shares: `linear` tells, when given)."""
     groups = len({s.step for s in model.sources.values()}) + len({s.equipment for s in model.sources.values()})
     if trials == "auto":
         main = adaptive_batch_size(model.method.settings.coverage_probability) * 10
@@ -243,6 +253,7 @@ def expected_work(trials: int | str, model: Model, shares: bool = True) -> int:
     else:  # a run too large to keep every result's values at once runs once per group of results
         per = mcrounds.MAX_KEPT_BYTES // (8 * int(trials)) if 8 * int(trials) <= mcrounds.MAX_KEPT_BYTES else 1
         main = int(trials) * -(-len(model.result_labels) // max(1, per))
+    shares = shares and (linear is None or bool(mcshares.with_shares(model, linear)))
     return main + (groups * share_trials(trials) if shares else 0)
 
 

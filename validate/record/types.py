@@ -259,8 +259,8 @@ class MonteCarloResult(RecordPart):
                                         "(JCGM 101 8.2, from memory)")
     adaptive: AdaptiveCheck | None
     warning: str | None
-    moments_note: str | None = described("why the standard uncertainty or shares are left out or unreliable "
-                                         "(a t input with nu <= 4)")
+    moments_note: str | None = described("why the standard uncertainty or the shares are left out, or why the "
+                                         "standard uncertainty is unreliable (a t input with nu <= 4)")
     histogram: Histogram
     shares_by_step: tuple[MonteCarloShare, ...]
     shares_by_equipment: tuple[MonteCarloShare, ...]

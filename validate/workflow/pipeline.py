@@ -66,7 +66,7 @@ def analyse(path, trials: int | str | None = 1_000_000, seed: int | None = None,
     run.combination = combination
     if trials is not None:
         run.seed = new_seed() if seed is None else int(seed)
-        progress = progress_factory(expected_work(trials, model)) if progress_factory else None
+        progress = progress_factory(expected_work(trials, model, results)) if progress_factory else None
         run.monte_carlo = propagate_mc(model, results, trials, run.seed, progress=progress)
     if advice:
         from validate.advisor.advice import advise
