@@ -12,7 +12,8 @@ and, for the PDF, its size. MEASURE is one of:
            figure functions and the file size
   mc       the Monte Carlo stage of a default run (10^6 trials, seed 1, with the shares and the
            clause 8 comparison's added trials) and its floor: drawing the same random numbers
-           only (the trials of the main run and of the additions, and the shares' one set)
+           only (as many trials as the run drew: every call of draw_many counted, the main
+           run's, the additions' and the shares' batches)
   mc-asked the same with no trials added for the clause 8 comparison (the trials asked only)
   memory   peak resident memory (MiB) of the Monte Carlo stage at 10^7 trials with the shares
   stages   a default run (10^6 trials, seed 1, advisor, record folder with the PDF) with the CPU
@@ -102,6 +103,8 @@ def pdf(method: str, runs: int) -> dict:
 
 
 def _mc_and_floor(method: str, runs: int, growth: int | None) -> dict:
+    import importlib
+
     import numpy as np
 
     from validate.propagation import montecarlo as mc
@@ -116,10 +119,9 @@ def _mc_and_floor(method: str, runs: int, growth: int | None) -> dict:
         rounds.CHECK_GROWTH = growth
     run = pipeline.analyse(method, trials=None, advice=False)
     trials = 1_000_000
-    results: list = []
-    engine = [_cpu(lambda: results.append(mc.propagate_mc(run.model, run.results, trials, seed=1)))
-              for _ in range(runs)]
-    drawn = max(r.summary.total_trials for r in results[-1]) + mc.share_trials(trials)
+    counted = _count_draws(importlib, draw_many)
+    engine = [_cpu(lambda: mc.propagate_mc(run.model, run.results, trials, seed=1)) for _ in range(runs)]
+    drawn = counted[-1] // runs  # the trials one run drew, every draw_many call counted
     sources = list(run.model.sources.values())
 
     def draw_only() -> None:
@@ -130,6 +132,25 @@ def _mc_and_floor(method: str, runs: int, growth: int | None) -> dict:
             done += n
 
     return {"cpu": engine, "floor": [_cpu(draw_only) for _ in range(runs)], "drawn": drawn}
+
+
+def _count_draws(importlib, draw_many) -> list[int]:
+    """Wrap draw_many where the engine's modules call it; the returned list's last item is the
+    number of trials drawn so far (the floor then draws exactly what the runs drew)."""
+    total = [0]
+
+    def counting(sources, n, rng):
+        total.append(total[-1] + int(n))
+        return draw_many(sources, n, rng)
+
+    for name in ("montecarlo", "mcrounds", "mcshares"):
+        try:
+            module = importlib.import_module(f"validate.propagation.{name}")
+        except ImportError:
+            continue
+        if getattr(module, "draw_many", None) is draw_many:
+            module.draw_many = counting
+    return total
 
 
 def memory(method: str) -> dict:
