@@ -38,7 +38,7 @@ from validate.advisor.curvature import curvature_candidates
 from validate.advisor.readings import reading_candidates
 from validate.advisor.stated_inputs import input_value_candidates, temperature_candidates
 from validate.advisor.weighing import weighing_candidates
-from validate.equilibrium.study import build_ready_model
+from validate.equilibrium.study import build_ready_model, settled_weights
 from validate.inputs.errors import InputError
 from validate.inputs.registers import RegisterEntry, merge_registers
 from validate.inputs.schema import Method
@@ -161,8 +161,11 @@ class _Evaluated:
     value: float
 
 
-def _evaluate(method: Method, candidate: Candidate) -> _Evaluated:
-    model = build_ready_model(candidate.apply(method))[0]
+def _evaluate(method: Method, candidate: Candidate, start: list[float] | None = None) -> _Evaluated:
+    """The candidate's model and results; `start`: the run's settled weights of an equilibrium
+    study's combination, where the candidate's own weights begin their passes (a change of
+    uncertainties moves them little; they settle to the same tolerance as from equal weights)."""
+    model = build_ready_model(candidate.apply(method), start)[0]
     results = propagate(model)
     return _Evaluated(candidate, model, results, figure(results)[2])
 
@@ -179,7 +182,8 @@ def _advice(ev: _Evaluated, before: list[LinearResult], fig_before: float) -> Ad
                   c.assumption, "", effects, dict(c.details))
 
 
-def _combine(method: Method, ranked: list[_Evaluated], how_many: int) -> _Evaluated | None:
+def _combine(method: Method, ranked: list[_Evaluated], how_many: int,
+             start: list[float] | None = None) -> _Evaluated | None:
     """The best `how_many` (at least two) changes that touch different things, applied one after another."""
     if how_many < 2:
         return None
@@ -203,7 +207,7 @@ def _combine(method: Method, ranked: list[_Evaluated], how_many: int) -> _Evalua
                          "; ".join(c.cost for c in chosen),
                          "; ".join(dict.fromkeys(c.assumption for c in chosen if c.assumption)),
                          frozenset(touched), apply, {"changes": [c.change for c in chosen]})
-    return _evaluate(method, combined)
+    return _evaluate(method, combined, start)
 
 
 def _mc_figure(model: Model, results: list[LinearResult], trials: int, seed: int) -> float:
@@ -295,10 +299,11 @@ def advise(method: Method, results: list[LinearResult] | None = None, *, confirm
     baseline = build_ready_model(method)[0] if model is None else model
     results = propagate(baseline) if results is None else results
     target, unit, before = figure(results)
-    evaluated, skipped = _evaluate_all(method, results)
+    start = settled_weights(baseline)  # where an equilibrium study's candidates begin their weights
+    evaluated, skipped = _evaluate_all(method, results, start)
     useful, without = _partition(evaluated, before)
     items = [_advice(ev, results, before) for ev in useful]
-    combined_ev = _combine(method, useful, combine)
+    combined_ev = _combine(method, useful, combine, start)
     combined = _advice(combined_ev, results, before) if combined_ev else None
     mc_before = None
     if confirm_with_mc > 0 and (items or combined):
@@ -322,13 +327,14 @@ def _partition(evaluated: list[_Evaluated], before: float) -> tuple[list[_Evalua
     return useful, without
 
 
-def _evaluate_all(method: Method, results: list[LinearResult]) -> tuple[list[_Evaluated], list[str]]:
+def _evaluate_all(method: Method, results: list[LinearResult],
+                  start: list[float] | None = None) -> tuple[list[_Evaluated], list[str]]:
     """Every candidate evaluated, best first; those the model cannot evaluate, with the reason."""
     entries, _ = merge_registers([Path(r) for r in method.registers_used])  # the files the method was read with
     evaluated, skipped = [], []
     for cand in generate(method, Shares.of(results), entries):
         try:
-            evaluated.append(_evaluate(method, cand))
+            evaluated.append(_evaluate(method, cand, start))
         except (ModelError, InputError, ValueError, ZeroDivisionError) as exc:
             skipped.append(f"{cand.change}: {exc}")
     evaluated.sort(key=lambda ev: (ev.value, ev.candidate.change))
