@@ -33,9 +33,12 @@ import math
 from dataclasses import dataclass, field
 from pathlib import Path
 
+import numpy as np
+
 from validate.advisor.candidates import Candidate, Shares, class_candidates, piston_candidates, volume_pair_candidates
 from validate.advisor.curvature import curvature_candidates
 from validate.advisor.readings import reading_candidates
+from validate.advisor.remembered_draws import RememberedStreams
 from validate.advisor.stated_inputs import input_value_candidates, temperature_candidates
 from validate.advisor.weighing import weighing_candidates
 from validate.equilibrium.study import build_ready_model, settled_weights
@@ -210,17 +213,29 @@ def _combine(method: Method, ranked: list[_Evaluated], how_many: int,
     return _evaluate(method, combined, start)
 
 
-def _mc_figure(model: Model, results: list[LinearResult], trials: int, seed: int) -> float:
+def _figure_labels(results: list[LinearResult]) -> list[str]:
+    """The results the ranking figure reads (`figure`): an equilibrium study's combined K alone,
+    otherwise every result."""
+    names = [r.name for r in results]
+    return [COMBINED] if COMBINED in names else names
+
+
+def _mc_figure(model: Model, results: list[LinearResult], trials: int, seed: int,
+               streams: RememberedStreams | None = None) -> float:
     """Half-width of the probabilistically symmetric interval (JCGM 101 7.7.1) in the ranking
     figure, from exactly `trials` trials (the clause 8 comparison, which may add trials, is not
-    what the advice needs)."""
-    intervals = symmetric_intervals(model, trials, seed)
-    widths = [(intervals[r.name].high - intervals[r.name].low) / 2 for r in results]
+    what the advice needs), of the results the figure reads only. `streams`: the generators of
+    the seed that remember the draws the checks share (the same numbers, drawn once)."""
+    intervals = symmetric_intervals(model, trials, seed, _figure_labels(results),
+                                    np.random.default_rng if streams is None else streams)
+    widths = [(intervals[r.name].high - intervals[r.name].low) / 2 if r.name in intervals else math.nan
+              for r in results]
     return figure(results, widths)[2]
 
 
-def _confirm(advice: Advice, ev: _Evaluated, mc_before: float, trials: int, seed: int) -> Advice:
-    mc_after = _mc_figure(ev.model, ev.results, trials, seed)
+def _confirm(advice: Advice, ev: _Evaluated, mc_before: float, trials: int, seed: int,
+             streams: RememberedStreams | None = None) -> Advice:
+    mc_after = _mc_figure(ev.model, ev.results, trials, seed, streams)
     note = f"Monte Carlo ({trials} trials, seed {seed}): {mc_after:.4g} after, {mc_before:.4g} before"
     confirmed = mc_after < mc_before
     if not confirmed:
@@ -230,9 +245,9 @@ def _confirm(advice: Advice, ev: _Evaluated, mc_before: float, trials: int, seed
 
 
 def _confirm_first(items: list[Advice], evaluated: list[_Evaluated], how_many: int, mc_before: float,
-                   trials: int, seed: int) -> list[Advice]:
+                   trials: int, seed: int, streams: RememberedStreams | None = None) -> list[Advice]:
     """The first `how_many` advices with their Monte Carlo check, the others as they are."""
-    return [_confirm(advice, ev, mc_before, trials, seed) if i < how_many else advice
+    return [_confirm(advice, ev, mc_before, trials, seed, streams) if i < how_many else advice
             for i, (advice, ev) in enumerate(zip(items, evaluated, strict=True))]
 
 
@@ -307,10 +322,12 @@ def advise(method: Method, results: list[LinearResult] | None = None, *, confirm
     combined = _advice(combined_ev, results, before) if combined_ev else None
     mc_before = None
     if confirm_with_mc > 0 and (items or combined):
-        mc_before = _mc_figure(baseline, results, mc_trials, seed)
-        items = _confirm_first(items, useful, confirm_with_mc, mc_before, mc_trials, seed)
+        streams = RememberedStreams()  # the run's draws, remembered for the changes' checks
+        mc_before = _mc_figure(baseline, results, mc_trials, seed, streams)
+        streams.remembering = False
+        items = _confirm_first(items, useful, confirm_with_mc, mc_before, mc_trials, seed, streams)
         if combined and combined_ev:
-            combined = _confirm(combined, combined_ev, mc_before, mc_trials, seed)
+            combined = _confirm(combined, combined_ev, mc_before, mc_trials, seed, streams)
     match baseline:
         case Model():  # the reading window concerns an assay's samples
             items += window_advice(baseline, results, before, unit)
