@@ -179,3 +179,33 @@ def test_a_related_study_begun_from_the_demos_weights_settles_where_equal_weight
         return  # no fixed point reached from equal weights: nothing to compare with
     warm_model, warm = build_ready_model(method, settled_weights(nickel_demo.model))
     _assert_same_combination(warm, cold, warm_model, cold_model)
+
+
+def test_the_columns_are_formed_once_for_every_pass(nickel_demo, monkeypatch):
+    # the totals and mean readings do not depend on the weights: formed once (in the linear
+    # engine's numbers) for all the passes, which give the same numbers as passes that form them
+    # anew (to the last bits: two evaluations of the model in `uncertainties` numbers may sum a
+    # derivative in another order)
+    from uncertainties.core import AffineScalarFunc
+
+    from validate.model.equilibrium import EquilibriumModel
+
+    model = copy.deepcopy(nickel_demo.model)
+    formed = [0]
+    real = EquilibriumModel.columns
+
+    def counted(self, x):
+        formed[0] += any(isinstance(v, AffineScalarFunc) for v in x.values())
+        return real(self, x)
+
+    monkeypatch.setattr(EquilibriumModel, "columns", counted)
+    held = prepare_combination(model)
+    assert formed[0] == 1
+    model.temperature_name = None  # as during the passes: the van 't Hoff factor is left out
+    variables = {n: study.ufloat(s.value, s.u, tag=n) for n, s in model.sources.items()}
+    kept = [i for i, p in enumerate(model.points) if p not in model.excluded]
+    model.weights = list(held[0].weights)  # the weights the last pass began from are not kept: use
+    anew = study._combination_pass(model, variables, kept)  # the settled ones on both sides
+    again = study._combination_pass(model, variables, kept, model.columns(variables))
+    np.testing.assert_allclose(again[1], anew[1], rtol=1e-14, atol=0)
+    np.testing.assert_allclose(again[2], anew[2], rtol=1e-13, atol=0)

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Sequence
+from dataclasses import dataclass
 
 import numpy as np
 from uncertainties import ufloat
@@ -57,12 +58,15 @@ def prepare_combination(model: EquilibriumModel, start: Sequence[float] | None =
     # multiplicative error in GLS weights pulls the mean low (Peelle's pertinent puzzle; e.g.
     # Froehner, Nucl. Sci. Eng. 126 (1997) 1, from memory).
     temperature, model.temperature_name = model.temperature_name, None
+    # the totals and mean readings (with their derivatives) do not depend on the weights: formed
+    # once for every pass
+    passes = _Passes(model, variables, kept, model.columns(variables))
     try:
         begin = _usable_start(model, start, kept, x0)
-        settled = None if begin is None else _settle_from(model, variables, kept, x0, begin)
+        settled = None if begin is None else _settle_from(model, passes, x0, begin)
         if settled is None:  # no start, or it did not settle: the passes from equal weights decide
             model.weights = None
-            settled = _settle_weights(model, variables, kept, x0)
+            settled = _settle_weights(model, passes, x0)
         combined, values, cov = settled
     finally:
         model.temperature_name = temperature
@@ -71,13 +75,29 @@ def prepare_combination(model: EquilibriumModel, start: Sequence[float] | None =
     return combined, values, cov
 
 
-def _settle_weights(model: EquilibriumModel, variables: dict, kept: list[int], x0):
+@dataclass(frozen=True)
+class _Passes:
+    """What every GLS pass of one study evaluates: its model, the sources as `uncertainties`
+    numbers, the points kept in the combination and the columns of those sources."""
+
+    model: EquilibriumModel
+    variables: dict
+    kept: list[int]
+    columns: tuple
+
+    def run(self):
+        """(GLS combination, K values, covariance) with the model's present weights, and the
+        combination's weights over every point (0 for a point left out)."""
+        combined, values, cov = _combination_pass(self.model, self.variables, self.kept, self.columns)
+        return (combined, values, cov), _full_weights(combined, self.kept, len(values))
+
+
+def _settle_weights(model: EquilibriumModel, passes: _Passes, x0):
     """GLS passes until the weights the standards are corrected with are the combination's."""
     last = math.inf
     for _ in range(WEIGHT_PASSES):
         used = normalised(model.combination_weights(), len(model.points))
-        combined, values, cov = _combination_pass(model, variables, kept)
-        weights = _full_weights(combined, kept, len(values))
+        (combined, values, cov), weights = passes.run()
         change = max(abs(a - b) for a, b in zip(used, weights, strict=True))
         if change > last or not _correction_defined(model, weights, x0):
             # not settling (strongly correlated points far apart): keep the weights of the last
@@ -113,7 +133,7 @@ def _usable_start(model: EquilibriumModel, start: Sequence[float] | None, kept: 
     return weights if _correction_defined(model, weights, x0) else None
 
 
-def _settle_from(model: EquilibriumModel, variables: dict, kept: list[int], x0, weights: list[float]):
+def _settle_from(model: EquilibriumModel, passes: _Passes, x0, weights: list[float]):
     """GLS passes from `weights`, each after the first begun from the Anderson mixture of its
     predecessors' results (`_mixed`), until a pass changes the weights by at most
     WEIGHT_TOLERANCE, as `_settle_weights` asks; None, leaving the model's weights to be set
@@ -126,10 +146,9 @@ def _settle_from(model: EquilibriumModel, variables: dict, kept: list[int], x0, 
         model.weights = weights
         used = normalised(weights, len(model.points))
         try:
-            combined, values, cov = _combination_pass(model, variables, kept)
+            (combined, values, cov), new = passes.run()
         except (ArithmeticError, ValueError):  # a mixture the plain passes never visit: not settled
             return None
-        new = _full_weights(combined, kept, len(values))
         change = max(abs(a - b) for a, b in zip(used, new, strict=True))
         if not change < last or not _correction_defined(model, new, x0):
             return None
@@ -179,8 +198,8 @@ def _unsettled_note(change: float) -> str:
             "last pass before, the same weights in both")
 
 
-def _combination_pass(model: EquilibriumModel, variables: dict, kept: list[int]):
-    outputs = model.evaluate(variables)
+def _combination_pass(model: EquilibriumModel, variables: dict, kept: list[int], columns=None):
+    outputs = model.evaluate(variables, columns)
     ks = [outputs[f"K, {p}"] for p in model.points]
     cov = covariance(ks)  # summed in source-name order: the same bits in every run
     values = [k.nominal_value for k in ks]
