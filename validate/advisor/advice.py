@@ -33,12 +33,15 @@ import math
 from dataclasses import dataclass, field
 from pathlib import Path
 
+import numpy as np
+
 from validate.advisor.candidates import Candidate, Shares, class_candidates, piston_candidates, volume_pair_candidates
 from validate.advisor.curvature import curvature_candidates
 from validate.advisor.readings import reading_candidates
+from validate.advisor.remembered_draws import RememberedStreams
 from validate.advisor.stated_inputs import input_value_candidates, temperature_candidates
 from validate.advisor.weighing import weighing_candidates
-from validate.equilibrium.study import build_ready_model
+from validate.equilibrium.study import build_ready_model, settled_weights
 from validate.inputs.errors import InputError
 from validate.inputs.registers import RegisterEntry, merge_registers
 from validate.inputs.schema import Method
@@ -161,8 +164,11 @@ class _Evaluated:
     value: float
 
 
-def _evaluate(method: Method, candidate: Candidate) -> _Evaluated:
-    model = build_ready_model(candidate.apply(method))[0]
+def _evaluate(method: Method, candidate: Candidate, start: list[float] | None = None) -> _Evaluated:
+    """The candidate's model and results; `start`: the run's settled weights of an equilibrium
+    study's combination, where the candidate's own weights begin their passes (a change of
+    uncertainties moves them little; they settle to the same tolerance as from equal weights)."""
+    model = build_ready_model(candidate.apply(method), start)[0]
     results = propagate(model)
     return _Evaluated(candidate, model, results, figure(results)[2])
 
@@ -179,7 +185,8 @@ def _advice(ev: _Evaluated, before: list[LinearResult], fig_before: float) -> Ad
                   c.assumption, "", effects, dict(c.details))
 
 
-def _combine(method: Method, ranked: list[_Evaluated], how_many: int) -> _Evaluated | None:
+def _combine(method: Method, ranked: list[_Evaluated], how_many: int,
+             start: list[float] | None = None) -> _Evaluated | None:
     """The best `how_many` (at least two) changes that touch different things, applied one after another."""
     if how_many < 2:
         return None
@@ -203,20 +210,32 @@ def _combine(method: Method, ranked: list[_Evaluated], how_many: int) -> _Evalua
                          "; ".join(c.cost for c in chosen),
                          "; ".join(dict.fromkeys(c.assumption for c in chosen if c.assumption)),
                          frozenset(touched), apply, {"changes": [c.change for c in chosen]})
-    return _evaluate(method, combined)
+    return _evaluate(method, combined, start)
 
 
-def _mc_figure(model: Model, results: list[LinearResult], trials: int, seed: int) -> float:
+def _figure_labels(results: list[LinearResult]) -> list[str]:
+    """The results the ranking figure reads (`figure`): an equilibrium study's combined K alone,
+    otherwise every result."""
+    names = [r.name for r in results]
+    return [COMBINED] if COMBINED in names else names
+
+
+def _mc_figure(model: Model, results: list[LinearResult], trials: int, seed: int,
+               streams: RememberedStreams | None = None) -> float:
     """Half-width of the probabilistically symmetric interval (JCGM 101 7.7.1) in the ranking
     figure, from exactly `trials` trials (the clause 8 comparison, which may add trials, is not
-    what the advice needs)."""
-    intervals = symmetric_intervals(model, trials, seed)
-    widths = [(intervals[r.name].high - intervals[r.name].low) / 2 for r in results]
+    what the advice needs), of the results the figure reads only. `streams`: the generators of
+    the seed that remember the draws the checks share (the same numbers, drawn once)."""
+    intervals = symmetric_intervals(model, trials, seed, _figure_labels(results),
+                                    np.random.default_rng if streams is None else streams)
+    widths = [(intervals[r.name].high - intervals[r.name].low) / 2 if r.name in intervals else math.nan
+              for r in results]
     return figure(results, widths)[2]
 
 
-def _confirm(advice: Advice, ev: _Evaluated, mc_before: float, trials: int, seed: int) -> Advice:
-    mc_after = _mc_figure(ev.model, ev.results, trials, seed)
+def _confirm(advice: Advice, ev: _Evaluated, mc_before: float, trials: int, seed: int,
+             streams: RememberedStreams | None = None) -> Advice:
+    mc_after = _mc_figure(ev.model, ev.results, trials, seed, streams)
     note = f"Monte Carlo ({trials} trials, seed {seed}): {mc_after:.4g} after, {mc_before:.4g} before"
     confirmed = mc_after < mc_before
     if not confirmed:
@@ -226,9 +245,9 @@ def _confirm(advice: Advice, ev: _Evaluated, mc_before: float, trials: int, seed
 
 
 def _confirm_first(items: list[Advice], evaluated: list[_Evaluated], how_many: int, mc_before: float,
-                   trials: int, seed: int) -> list[Advice]:
+                   trials: int, seed: int, streams: RememberedStreams | None = None) -> list[Advice]:
     """The first `how_many` advices with their Monte Carlo check, the others as they are."""
-    return [_confirm(advice, ev, mc_before, trials, seed) if i < how_many else advice
+    return [_confirm(advice, ev, mc_before, trials, seed, streams) if i < how_many else advice
             for i, (advice, ev) in enumerate(zip(items, evaluated, strict=True))]
 
 
@@ -295,17 +314,20 @@ def advise(method: Method, results: list[LinearResult] | None = None, *, confirm
     baseline = build_ready_model(method)[0] if model is None else model
     results = propagate(baseline) if results is None else results
     target, unit, before = figure(results)
-    evaluated, skipped = _evaluate_all(method, results)
+    start = settled_weights(baseline)  # where an equilibrium study's candidates begin their weights
+    evaluated, skipped = _evaluate_all(method, results, start)
     useful, without = _partition(evaluated, before)
     items = [_advice(ev, results, before) for ev in useful]
-    combined_ev = _combine(method, useful, combine)
+    combined_ev = _combine(method, useful, combine, start)
     combined = _advice(combined_ev, results, before) if combined_ev else None
     mc_before = None
     if confirm_with_mc > 0 and (items or combined):
-        mc_before = _mc_figure(baseline, results, mc_trials, seed)
-        items = _confirm_first(items, useful, confirm_with_mc, mc_before, mc_trials, seed)
+        streams = RememberedStreams()  # the run's draws, remembered for the changes' checks
+        mc_before = _mc_figure(baseline, results, mc_trials, seed, streams)
+        streams.remembering = False
+        items = _confirm_first(items, useful, confirm_with_mc, mc_before, mc_trials, seed, streams)
         if combined and combined_ev:
-            combined = _confirm(combined, combined_ev, mc_before, mc_trials, seed)
+            combined = _confirm(combined, combined_ev, mc_before, mc_trials, seed, streams)
     match baseline:
         case Model():  # the reading window concerns an assay's samples
             items += window_advice(baseline, results, before, unit)
@@ -322,13 +344,14 @@ def _partition(evaluated: list[_Evaluated], before: float) -> tuple[list[_Evalua
     return useful, without
 
 
-def _evaluate_all(method: Method, results: list[LinearResult]) -> tuple[list[_Evaluated], list[str]]:
+def _evaluate_all(method: Method, results: list[LinearResult],
+                  start: list[float] | None = None) -> tuple[list[_Evaluated], list[str]]:
     """Every candidate evaluated, best first; those the model cannot evaluate, with the reason."""
     entries, _ = merge_registers([Path(r) for r in method.registers_used])  # the files the method was read with
     evaluated, skipped = [], []
     for cand in generate(method, Shares.of(results), entries):
         try:
-            evaluated.append(_evaluate(method, cand))
+            evaluated.append(_evaluate(method, cand, start))
         except (ModelError, InputError, ValueError, ZeroDivisionError) as exc:
             skipped.append(f"{cand.change}: {exc}")
     evaluated.sort(key=lambda ev: (ev.value, ev.candidate.change))

@@ -102,12 +102,13 @@ class EquilibriumModel(SolutionInputs):
         return ([t[0] for t, _ in std], [t[1] for t, _ in std], [a for _, a in std], reps,
                 [t[0] for t, _ in pts], [t[1] for t, _ in pts], [a for _, a in pts])
 
-    def ice_tables(self, x):
+    def ice_tables(self, x, columns=None):
         """The ICE table of every point. The correction of the standards is the fixed point of
         the combination with the reported K's weights (`combination_weights`), so the K used
         to correct the standards is the reported combined K; an excluded point has weight 0
-        and is never averaged into it. Trials start from the estimate's K (`start_K`)."""
-        sm, sl, sa, reps, pm, pl, pa = self.columns(x)
+        and is never averaged into it. Trials start from the estimate's K (`start_K`).
+        `columns`: this x's `columns(x)`, when the caller holds them (they do not depend on the weights)."""
+        sm, sl, sa, reps, pm, pl, pa = self.columns(x) if columns is None else columns
         study = self.study
         if study.correction == "none":
             return self._uncorrected(sm, sl, sa, reps, pm, pl, pa)
@@ -157,10 +158,10 @@ class EquilibriumModel(SolutionInputs):
         dt = x[self.temperature_name]
         return mathops.exp(-x[ENTHALPY] * dt / (R_GAS * t0 * (t0 + dt)))
 
-    def evaluate(self, x) -> dict:
+    def evaluate(self, x, columns=None) -> dict:
         factor = self.study.k_unit.factor
         to_stated = self.temperature_factor(x)
-        ks = [positive_or_nan(state.K) for state in self.ice_tables(x)]
+        ks = [positive_or_nan(state.K) for state in self.ice_tables(x, columns)]
         if not (isinstance(to_stated, float) and to_stated == 1.0 and all(isinstance(k, np.ndarray) for k in ks)):
             ks = [k * to_stated for k in ks]  # (trials times 1.0 are the trials: no pass over them)
         out = {f"K, {p}": k / factor for p, k in zip(self.points, ks, strict=True)}

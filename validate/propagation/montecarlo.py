@@ -218,14 +218,16 @@ def _propagate(model: Model, linear: list[LinearResult], trials, seed: int, p: f
     return results
 
 
-def symmetric_intervals(model: Model, trials: int, seed: int) -> dict[str, CoverageInterval]:
-    """The probabilistically symmetric coverage interval (JCGM 101 7.7.1) of every output from
-    exactly `trials` trials of default_rng(seed): no comparison with the GUM interval (so no
+def symmetric_intervals(model: Model, trials: int, seed: int, labels: list[str] | None = None,
+                        stream=np.random.default_rng) -> dict[str, CoverageInterval]:
+    """The probabilistically symmetric coverage interval (JCGM 101 7.7.1) of every output (or of
+    `labels`) from exactly `trials` trials of stream(seed), numpy's default generator unless the
+    caller gives one that draws the same numbers: no comparison with the GUM interval (so no
     trials added) and no shares. What the advisor compares before and after a change."""
     p = model.method.settings.coverage_probability
     out = {}
-    for group in label_groups(model.result_labels, trials):
-        values = run_trials(model, trials, np.random.default_rng(seed), lambda n: None, group)
+    for group in label_groups(model.result_labels if labels is None else labels, trials):
+        values = run_trials(model, trials, stream(seed), lambda n: None, group)
         for name in group:
             arr = values.pop(name)
             finite = np.sort(arr[np.isfinite(arr)])
