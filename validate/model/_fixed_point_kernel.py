@@ -181,13 +181,9 @@ def _begin(std, start, lo, n_lanes, counts, total, K, change, previous, active, 
 
 
 @_jit
-def _states(std, mix, lo, n_lanes, counts, factors, total, y_mean, K, xs, dxs, line, line_out, states_out):
-    """The line and every mixture's ICE table at the solved K (fixed_point.states_at; ice.py's
+def _states(mix, lo, n_lanes, line, states_out):
+    """Every mixture's ICE table off the line at the solved K (fixed_point.states_at; ice.py's
     equilibrium_constant)."""
-    _line(K, std, lo, n_lanes, counts, factors, total, y_mean, xs, dxs, line, False)
-    for t in range(n_lanes):
-        line_out[0, lo + t] = line[0, t]
-        line_out[1, lo + t] = line[1, t]
     for j in range(mix.shape[1]):
         M, L, A = mix[0, j], mix[1, j], mix[2, j]
         for t in range(n_lanes):
@@ -201,13 +197,41 @@ def _states(std, mix, lo, n_lanes, counts, factors, total, y_mean, K, xs, dxs, l
 
 
 @_jit
+def _results(mix, lo, n_lanes, line, kept, out_weights, scale, factor, combined, results_out):
+    """What the equilibrium model reports of the trials (EquilibriumModel.evaluate's numpy path):
+    each mixture's K off the line (as `_states`), nan where not positive, times the trial's
+    `scale` (one number when scale has one element), over `factor`: results_out[j]; with
+    results_out holding one more row, sum of out_weights[j] K_j over the `kept` mixtures (from
+    the first, as Python's sum), over `factor`: results_out[nm] (log10 is left to numpy)."""
+    nm = mix.shape[1]
+    with_combined = results_out.shape[0] > nm
+    for t in range(n_lanes):
+        combined[t] = 0.0
+    for j in range(nm):
+        M, L, A = mix[0, j], mix[1, j], mix[2, j]
+        row, w, use = results_out[j], out_weights[j], kept[j] and with_combined
+        for t in range(n_lanes):
+            c = (A[lo + t] - line[1, t]) / line[0, t]
+            k = c / ((M[lo + t] - c) * (L[lo + t] - c))
+            k = (k if k > 0 else math.nan) * (scale[0] if scale.size == 1 else scale[lo + t])
+            row[lo + t] = k / factor
+            if use:
+                combined[t] = combined[t] + w * k
+    if with_combined:
+        for t in range(n_lanes):
+            results_out[nm, lo + t] = combined[t] / factor
+
+
+@_jit
 def solve(std, counts, factors, mix, weights, start, max_steps, stop, converged, K_out, line_out, states_out,
-          change_out, history):
-    """Every trial's fixed point and the states there (fixed_point._solve_block, states_at):
-    std, mix: (M, L, A) x point x trial; fills K_out, line_out (slope, intercept), states_out
-    (complex, free M, free L, K) x mixture x trial, change_out; history[s]: the largest finite
-    |relative change| at step s (-inf where none); returns the most steps a trial took. Trials
-    step LANES at a time; a trial that has settled is no longer changed while the others step."""
+          change_out, history, kept, out_weights, scale, factor, results_out):
+    """Every trial's fixed point and what is asked of it there (fixed_point._solve_block,
+    states_at): std, mix: (M, L, A) x point x trial; fills K_out, line_out (slope, intercept),
+    change_out and history[s] (the largest finite |relative change| at step s, -inf where none);
+    returns the most steps a trial took. Then, where they have room for the trials: states_out
+    (complex, free M, free L, K) x mixture x trial, and results_out (`_results`: the model's
+    outputs, so the Monte Carlo engine needs no pass of its own over the ICE tables). Trials step
+    LANES at a time; a trial that has settled is no longer changed while the others step."""
     ns, n = std.shape[1], std.shape[2]
     total = 0.0
     for i in range(ns):
@@ -216,7 +240,8 @@ def solve(std, counts, factors, mix, weights, start, max_steps, stop, converged,
     line, sums = np.empty((11, LANES)), np.empty((3, LANES))
     K, K_new, y_mean = np.empty(LANES), np.empty(LANES), np.empty(LANES)
     change, previous = np.empty(LANES), np.empty(LANES)
-    active = np.empty(LANES, dtype=np.bool_)
+    active, combined = np.empty(LANES, dtype=np.bool_), np.empty(LANES)
+    want_states, want_results = states_out.shape[2] == n, results_out.shape[1] == n
     most = 0
     for lo in range(0, n, LANES):
         n_lanes = min(LANES, n - lo)
@@ -232,7 +257,15 @@ def solve(std, counts, factors, mix, weights, start, max_steps, stop, converged,
             K[t] = K[t] if remaining <= converged else math.nan
             K_out[lo + t] = K[t]
             change_out[lo + t] = remaining
-        _states(std, mix, lo, n_lanes, counts, factors, total, y_mean, K, xs, dxs, line, line_out, states_out)
+        # the line and the mixtures' states at the solved K (fixed_point.states_at)
+        _line(K, std, lo, n_lanes, counts, factors, total, y_mean, xs, dxs, line, False)
+        for t in range(n_lanes):
+            line_out[0, lo + t] = line[0, t]
+            line_out[1, lo + t] = line[1, t]
+        if want_states:
+            _states(mix, lo, n_lanes, line, states_out)
+        if want_results:
+            _results(mix, lo, n_lanes, line, kept, out_weights, scale, factor, combined, results_out)
     return most
 
 
@@ -241,5 +274,5 @@ def compiled():
     the caller uses, so a failure shows at once and not in the middle of a run."""
     f8, i8 = numba.float64, numba.int64
     a1, a2, a3 = f8[::1], f8[:, ::1], f8[:, :, ::1]
-    solve.compile((a3, a1, a1, a3, a1, a1, i8, f8, f8, a1, a2, a3, a1, a1))
+    solve.compile((a3, a1, a1, a3, a1, a1, i8, f8, f8, a1, a2, a3, a1, a1, numba.boolean[::1], a1, a1, f8, a2))
     return solve
