@@ -336,15 +336,16 @@ class Reported:
 
 
 def solve_reported(cols: Columns, reported: Reported, *, start=None, limiting_totals=None,
-                   max_steps: int = 12) -> np.ndarray | None:
+                   max_steps: int = 12, stacks=None) -> np.ndarray | None:
     """The rows `reported` asks for (a mixture's K per row, then the combined K) of every trial,
     from the compiled loop without the ICE tables they are read from; None where that loop does
     not serve (plain numbers, ufloats, numba not available): the caller then reads them off
-    `solve`'s states, the reference these rows are tested against."""
+    `solve`'s states, the reference these rows are tested against. `stacks`: the columns already
+    in the compiled loop's input arrays (`kernels.stacks`), which are then not copied there."""
     if cols.trials() == 0 or cols.has_ufloats() or not kernels.available():
         return None
     first = naive_start(cols, limiting_totals) if start is None else start
-    return kernels.solve_reported(cols, first, max_steps, STOP, CONVERGED, reported)
+    return kernels.solve_reported(cols, first, max_steps, STOP, CONVERGED, reported, stacks)
 
 
 def solve(cols: Columns, *, start=None, limiting_totals=None, max_steps: int = 12) -> Solved:

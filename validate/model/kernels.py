@@ -115,13 +115,24 @@ def _stacked(name: str, kinds, n: int) -> np.ndarray:
     return out
 
 
+def stacks(n_standards: int, n_mixtures: int, n: int) -> tuple[np.ndarray, np.ndarray]:
+    """The compiled loop's input arrays, (M, L, A) x standard x trial and (M, L, A) x mixture x
+    trial, for a caller that writes its columns straight into them (and passes them back as
+    `stacks`, so they are not copied again); reused by the next call of this thread."""
+    return _scratch.work("standards", (3, n_standards, n)), _scratch.work("mixtures", (3, n_mixtures, n))
+
+
 def _solve(kernel, cols, start, max_steps: int, stop: float, converged: float, K, line, states, change,
-           reported=None, results=None) -> list[float]:
-    """Run the compiled loop on the columns of `cols`; `states` and `results` are filled where they
-    have room for the n trials (an empty array asks for none). Returns the history of steps."""
+           reported=None, results=None, stacked=None) -> list[float]:
+    """Run the compiled loop on the columns of `cols` (already in the arrays `stacked`, when
+    given); `states` and `results` are filled where they have room for the n trials (an empty
+    array asks for none). Returns the history of steps."""
     n = cols.trials()
-    std = _stacked("standards", (cols.std_M, cols.std_L, cols.std_A), n)
-    mix = _stacked("mixtures", (cols.mix_M, cols.mix_L, cols.mix_A), n)
+    if stacked is None:
+        std = _stacked("standards", (cols.std_M, cols.std_L, cols.std_A), n)
+        mix = _stacked("mixtures", (cols.mix_M, cols.mix_L, cols.mix_A), n)
+    else:
+        std, mix = stacked
     first = np.ascontiguousarray(np.broadcast_to(np.asarray(start, dtype=float), (n,)))
     history = np.full(max_steps, -np.inf)
     if reported is None:
@@ -153,11 +164,12 @@ def solve_trials(cols, start, max_steps: int, stop: float, converged: float):
     return K, line[0], line[1], per_mixture, steps, change
 
 
-def solve_reported(cols, start, max_steps: int, stop: float, converged: float, reported):
+def solve_reported(cols, start, max_steps: int, stop: float, converged: float, reported, stacked=None):
     """The reported outputs of every trial of `cols` (`fixed_point.Reported`: a row per mixture,
     and the combined K's row when it has weights), without the ICE tables they come from; None
     when the compiled path is not available. What the numpy path does in several passes over
-    every mixture's ICE table is done here in the loop that has the trial's line at hand."""
+    every mixture's ICE table is done here in the loop that has the trial's line at hand.
+    `stacked`: `stacks` holding the columns of `cols` already."""
     kernel = _kernel()
     if kernel is None:
         return None
@@ -167,5 +179,5 @@ def solve_reported(cols, start, max_steps: int, stop: float, converged: float, r
     line = _scratch.work("line, reported", (2, n))
     results = _scratch.output("results", (rows, n))
     _solve(kernel, cols, start, max_steps, stop, converged, K, line, _scratch.work("no states", (4, nm, 0)),
-           change, reported, results)
+           change, reported, results, stacked)
     return results
