@@ -20,18 +20,20 @@ LANES = 256  # trials stepped side by side: the loops over them compile to vecto
 
 
 @_jit
-def _points(K, std, lo, n_lanes, counts, factors, xs, dxs, x_sum, derivative):
+def _points(K, std, lo, n_lanes, counts, factors, xs, dxs, x_sum, inv_K, derivative):
     """[ML] of every standard at K (xs) for the trials lo .. lo + n_lanes, their count-weighted
-    sum (x_sum) and, with `derivative`, d[ML]/dK (dxs): fixed_point.standards_line's loop."""
+    sum (x_sum) and, with `derivative`, d[ML]/dK (dxs): fixed_point.standards_line's loop, 1/K
+    formed once for the standards without a factor (inv_K, scratch), as there."""
     for t in range(n_lanes):
         x_sum[t] = 0.0
+        inv_K[t] = 1.0 / K[t]
     for i in range(counts.size):
         phi, c, one_c, one_phi = factors[i], counts[i], counts[i] == 1.0, factors[i] == 1.0
         M, L, x_i, dx_i = std[0, i], std[1, i], xs[i], dxs[i]
         for t in range(n_lanes):
             m, l_ = M[lo + t], L[lo + t]
             d = m - l_
-            inv_k = 1.0 / K[t] if one_phi else 1.0 / (K[t] * phi)
+            inv_k = inv_K[t] if one_phi else 1.0 / (K[t] * phi)
             root = math.sqrt(d * d + (2.0 * (m + l_) + inv_k) * inv_k)
             x = 2.0 * m * l_ / (m + l_ + inv_k + root)
             x_i[t] = x
@@ -62,9 +64,9 @@ def _centred_sums(std, lo, n_lanes, counts, y_mean, xs, x_mean, ys, own, out_xx,
 def _line(K, std, lo, n_lanes, counts, factors, total, y_mean, xs, dxs, out, derivative):
     """The standards' line at K for the trials lo .. lo + n_lanes (fixed_point.standards_line):
     out[0], out[1] = slope, intercept; with `derivative` out[2], out[3] = their derivatives by K.
-    xs, dxs: scratch of one row per standard; out[4:11]: scratch of the sums."""
+    xs, dxs: scratch of one row per standard; out[4:12]: scratch of the sums and 1/K."""
     x_sum, sxx, sxy, x_mean, d_sum, d_sxx, d_sxy = out[4], out[5], out[6], out[7], out[8], out[9], out[10]
-    _points(K, std, lo, n_lanes, counts, factors, xs, dxs, x_sum, derivative)
+    _points(K, std, lo, n_lanes, counts, factors, xs, dxs, x_sum, out[11], derivative)
     for t in range(n_lanes):
         x_mean[t] = x_sum[t] / total
     _centred_sums(std, lo, n_lanes, counts, y_mean, xs, x_mean, xs, True, sxx, sxy)
@@ -237,7 +239,7 @@ def solve(std, counts, factors, mix, weights, start, max_steps, stop, converged,
     for i in range(ns):
         total = total + counts[i]
     xs, dxs = np.empty((ns, LANES)), np.empty((ns, LANES))
-    line, sums = np.empty((11, LANES)), np.empty((3, LANES))
+    line, sums = np.empty((12, LANES)), np.empty((3, LANES))
     K, K_new, y_mean = np.empty(LANES), np.empty(LANES), np.empty(LANES)
     change, previous = np.empty(LANES), np.empty(LANES)
     active, combined = np.empty(LANES, dtype=np.bool_), np.empty(LANES)

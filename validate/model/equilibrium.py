@@ -98,10 +98,7 @@ class EquilibriumModel(SolutionInputs):
         pts = [(totals(x, conc), reading(x)) for totals, reading in self._points]
         for memo in self._memos:  # the series' totals of this x are no longer needed: free them
             memo.clear()
-        # the line runs through the preparations' means: a standard of p preparations is their mean
-        # with weight p (the same line as one point per preparation, all at one concentration)
-        reps = [len(lv.preparations) for lv in self.design.standards]
-        return ([t[0] for t, _ in std], [t[1] for t, _ in std], [a for _, a in std], reps,
+        return ([t[0] for t, _ in std], [t[1] for t, _ in std], [a for _, a in std], self._preparation_counts(),
                 [t[0] for t, _ in pts], [t[1] for t, _ in pts], [a for _, a in pts])
 
     def ice_tables(self, x):
@@ -109,23 +106,24 @@ class EquilibriumModel(SolutionInputs):
         the combination with the reported K's weights (`combination_weights`), so the K used
         to correct the standards is the reported combined K; an excluded point has weight 0
         and is never averaged into it. Trials start from the estimate's K (`start_K`)."""
-        return self._ice_tables(self.columns(x))
-
-    def _ice_tables(self, columns):
-        sm, sl, sa, reps, pm, pl, pa = columns
+        sm, sl, sa, reps, pm, pl, pa = self.columns(x)
         study = self.study
         if study.correction == "none":
             return self._uncorrected(sm, sl, sa, reps, pm, pl, pa)
         solved = corrected_states((sm, sl, sa), (pm, pl, pa), **self._correction_settings(reps))
         return list(solved.states)
 
+    def _preparation_counts(self) -> list[int]:
+        # the line runs through the preparations' means: a standard of p preparations is their mean
+        # with weight p (the same line as one point per preparation, all at one concentration)
+        return [len(lv.preparations) for lv in self.design.standards]
+
     def _correction_settings(self, reps) -> dict:
         """The arguments of the correction of the standards (`corrected_states`); reps: the
         standards' preparation counts (`columns`)."""
         study = self.study
         return dict(limiting="L" if study.limiting == "ligand" else "M", iterations=max(study.iterations, 1),
-                    standard_weights=reps,
-                    mixture_weights=self.combination_weights(), start=self.start_K)
+                    standard_weights=reps, mixture_weights=self.combination_weights(), start=self.start_K)
 
     def correction_K(self, x):
         """The K the standards are corrected with (SI; the fixed point of the combination), or
@@ -198,9 +196,8 @@ class EquilibriumModel(SolutionInputs):
         std, mix = self._stacked_columns(x, n)
         kept = tuple(p not in self.excluded for p in self.points)
         weights = None if self.weights is None else tuple(self.weights)
-        reps = [len(lv.preparations) for lv in self.design.standards]
         rows = corrected_reported(tuple(std), tuple(mix), Reported(to_stated, factor, weights, kept),
-                                  stacks=(std, mix), **self._correction_settings(reps))
+                                  stacks=(std, mix), **self._correction_settings(self._preparation_counts()))
         if rows is None:
             return None
         out = {f"K, {p}": row for p, row in zip(self.points, rows, strict=False)}
