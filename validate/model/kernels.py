@@ -9,6 +9,11 @@ the same equations with the same operations in the same order, so each trial's K
 tables are the numpy path's (bit for bit here; tests/test_fixed_point_kernel.py checks 1e-12);
 the numpy path stays the reference and the fallback.
 
+For the equilibrium model's Monte Carlo outputs (`solve_reported`) the loop goes on from each
+trial's fixed point to the K's the model reports (positive or nan, the temperature scale, the
+unit, the combined K), and the model writes its totals and readings straight into the loop's
+input arrays (`stacks`): neither the ICE tables nor copies of the columns are made as arrays.
+
 numba is imported only when an equilibrium study's Monte Carlo trials are solved, never by
 `validate --help` or `validate check`. When it is missing, fails to load or to compile, or the
 environment variable VALIDATE_NO_KERNEL is set, `solve_trials` returns None and the caller
