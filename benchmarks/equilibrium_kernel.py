@@ -3,7 +3,8 @@
 Prints, pinned to one core, CPU seconds (time.process_time):
 - model trials per second on the nickel demo (draws made beforehand and not counted; the model
   run on slices of the Monte Carlo engine's size), with the compiled fixed point
-  (validate/model/kernels.py) and with the numpy path, median of --runs;
+  (validate/model/kernels.py: the fixed point and the reported K's in one loop, the columns
+  written into its inputs) and with the numpy path, median of --runs;
 - what a process pays to use the compiled path: with numba's cache empty (the first run on a
   machine: import, compilation, writing the cache) and with it filled (import and loading), each
   in a fresh process with its own cache folder (NUMBA_CACHE_DIR).

@@ -11,6 +11,7 @@ definition of a stability constant, K = [ML]/([M][L])) with noise added per tria
 
 from __future__ import annotations
 
+import copy
 import os
 import subprocess
 import sys
@@ -19,11 +20,11 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-from conftest import DEMOS
+from conftest import DEMOS, copy_demo
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from validate.model import fixed_point, kernels
+from validate.model import equilibrium, fixed_point, kernels
 from validate.model.ice import complex_concentration
 from validate.model.standards import iterate_standards, study_columns
 from validate.propagation.distributions import draw_many
@@ -154,6 +155,110 @@ def test_random_studies_agree_with_the_numpy_path(study):
     for i, (f, r) in enumerate(zip(_corrected_standards(fast, cols), _corrected_standards(reference, cols),
                                    strict=True)):
         _same(f, r, f"standard {i}: corrected [ML]", RTOL * sizes["concentration"])
+
+
+def _reported_reference(solved: fixed_point.Solved, reported: fixed_point.Reported) -> list[np.ndarray]:
+    """What EquilibriumModel.evaluate's numpy path makes of the ICE tables: each K positive or
+    nan, times the scale, over the factor; the weighted sum over the kept mixtures, over the factor."""
+    ks = [np.where(state.K > 0, state.K, np.nan) * reported.scale for state in solved.states]
+    rows = [k / reported.factor for k in ks]
+    if reported.weights is not None:
+        rows.append(sum(w * k for w, k, use in zip(reported.weights, ks, reported.kept, strict=True) if use)
+                    / reported.factor)
+    return rows
+
+
+@settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(studies(), st.data())
+def test_the_reported_rows_of_random_studies_agree_with_the_ice_tables(study, data):
+    # the compiled loop's reported K's (fixed_point.solve_reported) against the numpy path's ICE
+    # tables at its own fixed point, for any scale (none, one number, one per trial), unit factor,
+    # combination weights (none; some negative, as generalised least squares gives) and kept points
+    cols, start, limiting, steps, sizes = study
+    n, nm = cols.trials(), len(cols.mix_A)
+    rng = np.random.default_rng(data.draw(st.integers(0, 2**32 - 1)))
+    scale = data.draw(st.sampled_from([1.0, 0.97, "trials"]))
+    scale = 1.0 + 0.01 * rng.standard_normal(n) if scale == "trials" else scale
+    weights = data.draw(st.none() | st.lists(st.floats(-1.0, 2.0), min_size=nm, max_size=nm).map(tuple))
+    kept = tuple(data.draw(st.lists(st.booleans(), min_size=nm, max_size=nm)))
+    reported = fixed_point.Reported(scale, data.draw(st.sampled_from([1.0, 1e-3, 3.0])), weights, kept)
+    with compiled(True), np.errstate(all="ignore"):
+        rows = fixed_point.solve_reported(cols, reported, start=start, limiting_totals=limiting, max_steps=steps)
+    reference = _reported_reference(_solve(cols, False, start=start, limiting_totals=limiting, max_steps=steps),
+                                    reported)
+    assert rows is not None and len(rows) == len(reference) == nm + (weights is not None)
+    # a K driven towards zero in a degenerate study: an absolute floor of RTOL at the study's K size
+    floor = RTOL * 1.1 * sizes["K"] * (1.0 + sum(abs(w) for w in weights or ())) / reported.factor
+    for j, (found, expected) in enumerate(zip(rows, reference, strict=True)):
+        _same(found, np.broadcast_to(expected, (n,)), f"reported row {j}", floor)
+
+
+def _variant_of_the_demo(tmp_path):
+    """The nickel demo with a reaction enthalpy (K carried to the stated temperature: a scale per
+    trial) and a standard made without metal (a total of exactly 0 written into the loop's
+    input); its two readings are invented, like the demo's. One point then drops out."""
+    folder = copy_demo(tmp_path, DEMOS / "nickel_complex")
+    method = folder / "method.toml"
+    text = method.read_text(encoding="utf-8").replace(
+        'ionic_strength = "0.10 mol/L"\n',
+        'ionic_strength = "0.10 mol/L"\nreaction_enthalpy = { value = "-20 kJ/mol", u = "5 kJ/mol" }\n', 1)
+    method.write_text(text + '\n[equilibrium.standards.E0]\nligand = { item = "burette_10", volume = "1.00 mL" }\n'
+                      'flask = "flask_25"\n', encoding="utf-8")
+    with (folder / "readings.csv").open("a", encoding="utf-8") as readings:
+        readings.write("E0,0.0031\nE0,0.0035\n")
+    from validate.workflow import pipeline
+    return pipeline.analyse(method, trials=None, advice=False).model
+
+
+def test_the_models_outputs_agree_with_the_numpy_path_in_every_setting(nickel_demo, tmp_path):
+    # EquilibriumModel.evaluate on trials: the compiled loop's reported K's (with the totals and
+    # readings written into its inputs) against the numpy path's, on the demo, on the demo without
+    # combination weights and with a point left out, and on a variant with a temperature scale per
+    # trial, a total of 0 and a point that drops out at the estimates
+    variant = _variant_of_the_demo(tmp_path)
+    assert variant.temperature_name is not None and variant.excluded
+    unweighted, one_out = copy.copy(nickel_demo.model), copy.copy(nickel_demo.model)
+    unweighted.weights = None
+    one_out.excluded = {one_out.points[1]: "left out by this test"}
+    for model in (nickel_demo.model, unweighted, one_out, variant):
+        draws = draw_many(list(model.sources.values()), 12_000, np.random.default_rng(11))
+        with compiled(True), np.errstate(all="ignore"):
+            fast = {label: np.array(v) for label, v in model.evaluate(draws).items()}
+        with compiled(False), np.errstate(all="ignore"):
+            reference = model.evaluate(draws)
+        assert fast.keys() == reference.keys() and list(fast) == model.result_labels
+        for label in model.result_labels:
+            _same(fast[label], reference[label], label)
+
+
+def test_the_columns_written_into_the_loops_inputs_are_the_columns(tmp_path):
+    # the totals and readings written straight into the compiled loop's input arrays are, bit for
+    # bit, those `columns` makes (standards, mixtures and series points; a total of 0 included)
+    model = _variant_of_the_demo(tmp_path)
+    draws = draw_many(list(model.sources.values()), 3000, np.random.default_rng(2))
+    with np.errstate(all="ignore"):
+        sm, sl, sa, _, pm, pl, pa = model.columns(draws)
+        std, mix = model._stacked_columns(draws, 3000)
+    assert not np.any(std[0, -1])  # E0: no metal
+    for stack, columns in ((std, (sm, sl, sa)), (mix, (pm, pl, pa))):
+        for rows, column in zip(stack, columns, strict=True):
+            assert len(rows) == len(column)
+            for row, value in zip(rows, column, strict=True):
+                assert row.tobytes() == np.broadcast_to(value, row.shape).tobytes()
+    assert all(not memo.volumes for memo in model._memos if isinstance(memo, equilibrium._VolumeMemo))
+
+
+def test_reported_results_held_by_the_caller_are_not_overwritten(nickel_demo):
+    # the reported rows are an array the compiled path reuses once nothing refers to it
+    model = nickel_demo.model
+    sources = list(model.sources.values())
+    with compiled(True), np.errstate(all="ignore"):
+        first = model.evaluate(draw_many(sources, 3000, np.random.default_rng(1)))
+        kept = {label: v.copy() for label, v in first.items()}
+        second = model.evaluate(draw_many(sources, 3000, np.random.default_rng(2)))
+    for label in model.result_labels:
+        np.testing.assert_array_equal(first[label], kept[label])
+        assert not np.array_equal(second[label], kept[label], equal_nan=True)
 
 
 def test_iterate_standards_on_trials_agrees_with_the_numpy_path():

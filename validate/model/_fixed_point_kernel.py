@@ -20,18 +20,20 @@ LANES = 256  # trials stepped side by side: the loops over them compile to vecto
 
 
 @_jit
-def _points(K, std, lo, n_lanes, counts, factors, xs, dxs, x_sum, derivative):
+def _points(K, std, lo, n_lanes, counts, factors, xs, dxs, x_sum, inv_K, derivative):
     """[ML] of every standard at K (xs) for the trials lo .. lo + n_lanes, their count-weighted
-    sum (x_sum) and, with `derivative`, d[ML]/dK (dxs): fixed_point.standards_line's loop."""
+    sum (x_sum) and, with `derivative`, d[ML]/dK (dxs): fixed_point.standards_line's loop, 1/K
+    formed once for the standards without a factor (inv_K, scratch), as there."""
     for t in range(n_lanes):
         x_sum[t] = 0.0
+        inv_K[t] = 1.0 / K[t]
     for i in range(counts.size):
         phi, c, one_c, one_phi = factors[i], counts[i], counts[i] == 1.0, factors[i] == 1.0
         M, L, x_i, dx_i = std[0, i], std[1, i], xs[i], dxs[i]
         for t in range(n_lanes):
             m, l_ = M[lo + t], L[lo + t]
             d = m - l_
-            inv_k = 1.0 / K[t] if one_phi else 1.0 / (K[t] * phi)
+            inv_k = inv_K[t] if one_phi else 1.0 / (K[t] * phi)
             root = math.sqrt(d * d + (2.0 * (m + l_) + inv_k) * inv_k)
             x = 2.0 * m * l_ / (m + l_ + inv_k + root)
             x_i[t] = x
@@ -62,9 +64,9 @@ def _centred_sums(std, lo, n_lanes, counts, y_mean, xs, x_mean, ys, own, out_xx,
 def _line(K, std, lo, n_lanes, counts, factors, total, y_mean, xs, dxs, out, derivative):
     """The standards' line at K for the trials lo .. lo + n_lanes (fixed_point.standards_line):
     out[0], out[1] = slope, intercept; with `derivative` out[2], out[3] = their derivatives by K.
-    xs, dxs: scratch of one row per standard; out[4:11]: scratch of the sums."""
+    xs, dxs: scratch of one row per standard; out[4:12]: scratch of the sums and 1/K."""
     x_sum, sxx, sxy, x_mean, d_sum, d_sxx, d_sxy = out[4], out[5], out[6], out[7], out[8], out[9], out[10]
-    _points(K, std, lo, n_lanes, counts, factors, xs, dxs, x_sum, derivative)
+    _points(K, std, lo, n_lanes, counts, factors, xs, dxs, x_sum, out[11], derivative)
     for t in range(n_lanes):
         x_mean[t] = x_sum[t] / total
     _centred_sums(std, lo, n_lanes, counts, y_mean, xs, x_mean, xs, True, sxx, sxy)
@@ -181,13 +183,9 @@ def _begin(std, start, lo, n_lanes, counts, total, K, change, previous, active, 
 
 
 @_jit
-def _states(std, mix, lo, n_lanes, counts, factors, total, y_mean, K, xs, dxs, line, line_out, states_out):
-    """The line and every mixture's ICE table at the solved K (fixed_point.states_at; ice.py's
+def _states(mix, lo, n_lanes, line, states_out):
+    """Every mixture's ICE table off the line at the solved K (fixed_point.states_at; ice.py's
     equilibrium_constant)."""
-    _line(K, std, lo, n_lanes, counts, factors, total, y_mean, xs, dxs, line, False)
-    for t in range(n_lanes):
-        line_out[0, lo + t] = line[0, t]
-        line_out[1, lo + t] = line[1, t]
     for j in range(mix.shape[1]):
         M, L, A = mix[0, j], mix[1, j], mix[2, j]
         for t in range(n_lanes):
@@ -201,22 +199,51 @@ def _states(std, mix, lo, n_lanes, counts, factors, total, y_mean, K, xs, dxs, l
 
 
 @_jit
+def _results(mix, lo, n_lanes, line, kept, out_weights, scale, factor, combined, results_out):
+    """What the equilibrium model reports of the trials (EquilibriumModel.evaluate's numpy path):
+    each mixture's K off the line (as `_states`), nan where not positive, times the trial's
+    `scale` (one number when scale has one element), over `factor`: results_out[j]; with
+    results_out holding one more row, sum of out_weights[j] K_j over the `kept` mixtures (from
+    the first, as Python's sum), over `factor`: results_out[nm] (log10 is left to numpy)."""
+    nm = mix.shape[1]
+    with_combined = results_out.shape[0] > nm
+    for t in range(n_lanes):
+        combined[t] = 0.0
+    for j in range(nm):
+        M, L, A = mix[0, j], mix[1, j], mix[2, j]
+        row, w, use = results_out[j], out_weights[j], kept[j] and with_combined
+        for t in range(n_lanes):
+            c = (A[lo + t] - line[1, t]) / line[0, t]
+            k = c / ((M[lo + t] - c) * (L[lo + t] - c))
+            k = (k if k > 0 else math.nan) * (scale[0] if scale.size == 1 else scale[lo + t])
+            row[lo + t] = k / factor
+            if use:
+                combined[t] = combined[t] + w * k
+    if with_combined:
+        for t in range(n_lanes):
+            results_out[nm, lo + t] = combined[t] / factor
+
+
+@_jit
 def solve(std, counts, factors, mix, weights, start, max_steps, stop, converged, K_out, line_out, states_out,
-          change_out, history):
-    """Every trial's fixed point and the states there (fixed_point._solve_block, states_at):
-    std, mix: (M, L, A) x point x trial; fills K_out, line_out (slope, intercept), states_out
-    (complex, free M, free L, K) x mixture x trial, change_out; history[s]: the largest finite
-    |relative change| at step s (-inf where none); returns the most steps a trial took. Trials
-    step LANES at a time; a trial that has settled is no longer changed while the others step."""
+          change_out, history, kept, out_weights, scale, factor, results_out):
+    """Every trial's fixed point and what is asked of it there (fixed_point._solve_block,
+    states_at): std, mix: (M, L, A) x point x trial; fills K_out, line_out (slope, intercept),
+    change_out and history[s] (the largest finite |relative change| at step s, -inf where none);
+    returns the most steps a trial took. Then, where they have room for the trials: states_out
+    (complex, free M, free L, K) x mixture x trial, and results_out (`_results`: the model's
+    outputs, so the Monte Carlo engine needs no pass of its own over the ICE tables). Trials step
+    LANES at a time; a trial that has settled is no longer changed while the others step."""
     ns, n = std.shape[1], std.shape[2]
     total = 0.0
     for i in range(ns):
         total = total + counts[i]
     xs, dxs = np.empty((ns, LANES)), np.empty((ns, LANES))
-    line, sums = np.empty((11, LANES)), np.empty((3, LANES))
+    line, sums = np.empty((12, LANES)), np.empty((3, LANES))
     K, K_new, y_mean = np.empty(LANES), np.empty(LANES), np.empty(LANES)
     change, previous = np.empty(LANES), np.empty(LANES)
-    active = np.empty(LANES, dtype=np.bool_)
+    active, combined = np.empty(LANES, dtype=np.bool_), np.empty(LANES)
+    want_states, want_results = states_out.shape[2] == n, results_out.shape[1] == n
     most = 0
     for lo in range(0, n, LANES):
         n_lanes = min(LANES, n - lo)
@@ -232,7 +259,15 @@ def solve(std, counts, factors, mix, weights, start, max_steps, stop, converged,
             K[t] = K[t] if remaining <= converged else math.nan
             K_out[lo + t] = K[t]
             change_out[lo + t] = remaining
-        _states(std, mix, lo, n_lanes, counts, factors, total, y_mean, K, xs, dxs, line, line_out, states_out)
+        # the line and the mixtures' states at the solved K (fixed_point.states_at)
+        _line(K, std, lo, n_lanes, counts, factors, total, y_mean, xs, dxs, line, False)
+        for t in range(n_lanes):
+            line_out[0, lo + t] = line[0, t]
+            line_out[1, lo + t] = line[1, t]
+        if want_states:
+            _states(mix, lo, n_lanes, line, states_out)
+        if want_results:
+            _results(mix, lo, n_lanes, line, kept, out_weights, scale, factor, combined, results_out)
     return most
 
 
@@ -241,5 +276,5 @@ def compiled():
     the caller uses, so a failure shows at once and not in the middle of a run."""
     f8, i8 = numba.float64, numba.int64
     a1, a2, a3 = f8[::1], f8[:, ::1], f8[:, :, ::1]
-    solve.compile((a3, a1, a1, a3, a1, a1, i8, f8, f8, a1, a2, a3, a1, a1))
+    solve.compile((a3, a1, a1, a3, a1, a1, i8, f8, f8, a1, a2, a3, a1, a1, numba.boolean[::1], a1, a1, f8, a2))
     return solve

@@ -321,6 +321,33 @@ def states_at(K, cols: Columns):
     return slope, intercept, tuple(states)
 
 
+@dataclass(frozen=True)
+class Reported:
+    """What the equilibrium model reports of every trial (`EquilibriumModel.evaluate`), for
+    `solve_reported`: each mixture's K, nan where not positive, times `scale` (a number, or one
+    per trial: the carry to the stated temperature), over `factor` (the display unit); with
+    `weights` (one per mixture), also the combined K: the sum of weights[j] K_j over the
+    mixtures `kept`, from the first, over `factor`."""
+
+    scale: Any
+    factor: float
+    weights: tuple | None
+    kept: tuple
+
+
+def solve_reported(cols: Columns, reported: Reported, *, start=None, limiting_totals=None,
+                   max_steps: int = 12, stacks=None) -> np.ndarray | None:
+    """The rows `reported` asks for (a mixture's K per row, then the combined K) of every trial,
+    from the compiled loop without the ICE tables they are read from; None where that loop does
+    not serve (plain numbers, ufloats, numba not available): the caller then reads them off
+    `solve`'s states, the reference these rows are tested against. `stacks`: the columns already
+    in the compiled loop's input arrays (`kernels.stacks`), which are then not copied there."""
+    if cols.trials() == 0 or cols.has_ufloats() or not kernels.available():
+        return None
+    first = naive_start(cols, limiting_totals) if start is None else start
+    return kernels.solve_reported(cols, first, max_steps, STOP, CONVERGED, reported, stacks)
+
+
 def solve(cols: Columns, *, start=None, limiting_totals=None, max_steps: int = 12) -> Solved:
     """K with F(K) = K and the states there, on any backend. `start`: a first K (a float, or
     one per trial); None: the shortcut's K (`naive_start` on `limiting_totals`)."""

@@ -9,6 +9,11 @@ the same equations with the same operations in the same order, so each trial's K
 tables are the numpy path's (bit for bit here; tests/test_fixed_point_kernel.py checks 1e-12);
 the numpy path stays the reference and the fallback.
 
+For the equilibrium model's Monte Carlo outputs (`solve_reported`) the loop goes on from each
+trial's fixed point to the K's the model reports (positive or nan, the temperature scale, the
+unit, the combined K), and the model writes its totals and readings straight into the loop's
+input arrays (`stacks`): neither the ICE tables nor copies of the columns are made as arrays.
+
 numba is imported only when an equilibrium study's Monte Carlo trials are solved, never by
 `validate --help` or `validate check`. When it is missing, fails to load or to compile, or the
 environment variable VALIDATE_NO_KERNEL is set, `solve_trials` returns None and the caller
@@ -115,6 +120,40 @@ def _stacked(name: str, kinds, n: int) -> np.ndarray:
     return out
 
 
+def stacks(n_standards: int, n_mixtures: int, n: int) -> tuple[np.ndarray, np.ndarray]:
+    """The compiled loop's input arrays, (M, L, A) x standard x trial and (M, L, A) x mixture x
+    trial, for a caller that writes its columns straight into them (and passes them back as
+    `stacks`, so they are not copied again); reused by the next call of this thread."""
+    return _scratch.work("standards", (3, n_standards, n)), _scratch.work("mixtures", (3, n_mixtures, n))
+
+
+def _solve(kernel, cols, start, max_steps: int, stop: float, converged: float, K, line, states, change,
+           reported=None, results=None, stacked=None) -> list[float]:
+    """Run the compiled loop on the columns of `cols` (already in the arrays `stacked`, when
+    given); `states` and `results` are filled where they have room for the n trials (an empty
+    array asks for none). Returns the history of steps."""
+    n = cols.trials()
+    if stacked is None:
+        std = _stacked("standards", (cols.std_M, cols.std_L, cols.std_A), n)
+        mix = _stacked("mixtures", (cols.mix_M, cols.mix_L, cols.mix_A), n)
+    else:
+        std, mix = stacked
+    first = np.ascontiguousarray(np.broadcast_to(np.asarray(start, dtype=float), (n,)))
+    history = np.full(max_steps, -np.inf)
+    if reported is None:
+        kept, out_weights, scale, factor = np.zeros(0, dtype=bool), np.zeros(0), np.ones(1), 1.0
+        results = np.empty((0, 0))
+    else:
+        kept = np.asarray(reported.kept, dtype=bool)
+        out_weights = np.zeros(len(kept)) if reported.weights is None else np.asarray(reported.weights, dtype=float)
+        scale = np.ascontiguousarray(reported.scale, dtype=float).reshape(-1)
+        factor = float(reported.factor)
+    taken = kernel(std, np.asarray(cols.counts, dtype=float), np.asarray(cols.factors, dtype=float), mix,
+                   np.asarray(cols.weights, dtype=float), first, int(max_steps), float(stop), float(converged),
+                   K, line, states, change, history, kept, out_weights, scale, factor, results)
+    return [float(h) if h > -np.inf else float("nan") for h in history[:taken]]
+
+
 def solve_trials(cols, start, max_steps: int, stop: float, converged: float):
     """(K, slope, intercept, states, history, remaining error) of every trial of `cols` (arrays of
     n trials), as `fixed_point._solve_block` gives them, or None when the compiled path is not
@@ -123,14 +162,27 @@ def solve_trials(cols, start, max_steps: int, stop: float, converged: float):
     if kernel is None:
         return None
     n, nm = cols.trials(), len(cols.mix_A)
-    std = _stacked("standards", (cols.std_M, cols.std_L, cols.std_A), n)
-    mix = _stacked("mixtures", (cols.mix_M, cols.mix_L, cols.mix_A), n)
-    first = np.ascontiguousarray(np.broadcast_to(np.asarray(start, dtype=float), (n,)))
-    K, change, history = np.empty(n), np.empty(n), np.full(max_steps, -np.inf)
+    K, change = np.empty(n), np.empty(n)
     line, states = _scratch.output("line", (2, n)), _scratch.output("states", (4, nm, n))
-    taken = kernel(std, np.asarray(cols.counts, dtype=float), np.asarray(cols.factors, dtype=float), mix,
-                   np.asarray(cols.weights, dtype=float), first, int(max_steps), float(stop), float(converged),
-                   K, line, states, change, history)
-    steps = [float(h) if h > -np.inf else float("nan") for h in history[:taken]]
+    steps = _solve(kernel, cols, start, max_steps, stop, converged, K, line, states, change)
     per_mixture = [tuple(states[q, j] for q in range(4)) for j in range(nm)]
     return K, line[0], line[1], per_mixture, steps, change
+
+
+def solve_reported(cols, start, max_steps: int, stop: float, converged: float, reported, stacked=None):
+    """The reported outputs of every trial of `cols` (`fixed_point.Reported`: a row per mixture,
+    and the combined K's row when it has weights), without the ICE tables they come from; None
+    when the compiled path is not available. What the numpy path does in several passes over
+    every mixture's ICE table is done here in the loop that has the trial's line at hand.
+    `stacked`: `stacks` holding the columns of `cols` already."""
+    kernel = _kernel()
+    if kernel is None:
+        return None
+    n, nm = cols.trials(), len(cols.mix_A)
+    rows = nm + (0 if reported.weights is None else 1)
+    K, change = _scratch.work("K, reported", (n,)), _scratch.work("change, reported", (n,))
+    line = _scratch.work("line, reported", (2, n))
+    results = _scratch.output("results", (rows, n))
+    _solve(kernel, cols, start, max_steps, stop, converged, K, line, _scratch.work("no states", (4, nm, 0)),
+           change, reported, results, stacked)
+    return results

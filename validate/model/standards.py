@@ -142,6 +142,21 @@ def corrected_states(standards, mixtures, *, limiting: str = "L", iterations: in
                              "zero; check the standards' concentrations and absorbances") from None
 
 
+def corrected_reported(standards, mixtures, reported: fixed_point.Reported, *, limiting: str = "L",
+                       iterations: int = 12, standard_weights=None, mixture_weights=None, start=None,
+                       standard_K_factors=None, stacks=None) -> np.ndarray | None:
+    """What `reported` asks of the trials at the fixed point of `corrected_states` (a row per
+    mixture's K, then the combined K), straight from the compiled loop; None where it does not
+    serve (not arrays of trials, numba not available): read them off `corrected_states` then.
+    `stacks`: the columns already in the loop's input arrays (`kernels.stacks`)."""
+    _check_iteration(limiting, iterations, standards, mixtures)
+    cols = study_columns(standards, mixtures, standard_weights, mixture_weights, standard_K_factors)
+    limiting_totals = list(standards[1] if limiting == "L" else standards[0])
+    with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
+        return fixed_point.solve_reported(cols, reported, start=start, limiting_totals=limiting_totals,
+                                          max_steps=iterations, stacks=stacks)
+
+
 def iterate_standards(standards_M, standards_L, standards_A, mixtures_M, mixtures_L, mixtures_A, *,
                       limiting: str = "L", path_length=1.0, iterations: int = 12, tolerance: float = 1e-9,
                       standard_weights=None, mixture_weights=None, standard_K_factors=None) -> StandardsCorrection:
