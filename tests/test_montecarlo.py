@@ -246,7 +246,7 @@ def test_shares_from_one_set_of_draws_equal_a_fresh_draw_per_group(write_method)
         assert share.plain == pytest.approx(1.0 - np.nanvar(held["Y"]) / np.nanvar(base["Y"]), rel=1e-12, abs=1e-15)
         assert share.share == share.plain - share.linear_mc + share.linear_exact
     reported = mc._shares(model, run.results, seed, ("step",), lambda k: None, n)["step"]["Y"]
-    assert sorted(reported) == sorted((g, s.share) for g, s in estimates["Y"])
+    assert sorted(reported) == sorted((g, s.share, s.standard_error, s.trials) for g, s in estimates["Y"])
 
 
 def test_too_many_trials_stop_with_the_limit_before_any_trial(write_method):

@@ -46,7 +46,7 @@ def test_the_file_written_is_exactly_the_tree_in_json_form(filed, name):
     run, folder = filed[name]
     written = _written(folder)
     assert written == run.typed_record.to_dict() == run.record
-    assert written["schema_version"] == SCHEMA_VERSION == "2.2"
+    assert written["schema_version"] == SCHEMA_VERSION == "2.3"
 
 
 @pytest.mark.parametrize("name", DEMO_NAMES)

@@ -1,5 +1,5 @@
 """Quantiles, tail areas and densities of the normal, Student t, chi-square and F distributions,
-and Spearman's rank correlation test, from scipy._special().
+and Spearman's rank correlation test, from scipy.special (imported at the first use).
 
 scipy.stats computes these with the same scipy.special functions, but importing it costs about
 half a second of CPU, which every run and every command would pay; these functions call the

@@ -12,9 +12,11 @@ included). The estimate is
 
     share = share_MC(y) - share_MC(y_lin) + share_lin,
 
-both Monte Carlo shares on the same defined trials (a trial where y is undefined is left out of
-both). For a linear model it is the exact share whatever the trials; what noise is left comes
-from the model's departure from its linearisation only.
+both Monte Carlo shares on the same trials. For a linear model it is the exact share whatever
+the trials; what noise is left comes from the model's departure from its linearisation only. An
+output with an undefined trial (in the base run or a held run) gets the plain estimate over its
+defined trials: the exact linear share is over every trial, and which trials fall out depends
+on the inputs, so the control variate would carry a bias there.
 
 Trials run in batches of SHARE_BATCH until every share's standard error is at most SHARE_TARGET,
 or SHARE_TRIALS trials (the most). The standard error is the first-order (delta method) one:
@@ -322,7 +324,11 @@ def _estimates(groups, base_y: Moments, base_lin: Moments, sums, lin: _Linearise
                 se_plain = np.where(s.joint > 0, np.sqrt(s.plain2) / s.joint, np.nan)
             for j, label in enumerate(labels):
                 plain = 1.0 - v_held[j] / v_all[j] if v_all[j] > 0 else 0.0
-                if label in lin.terms and v_all[j] > 0 and w_all[j] > 0:
+                # the exact linear share is over every trial: where some trial of y is undefined, y_lin's
+                # share on the defined ones is not centred on it (which trials fall out depends on the
+                # inputs), and the control variate would add a bias no number of trials removes
+                every_trial = base_y.n[j] == trials and s.y.n[j] == trials
+                if every_trial and label in lin.terms and v_all[j] > 0 and w_all[j] > 0:
                     exact = lin.exact(label, frozenset(names))
                     linear_mc = 1.0 - w_held[j] / w_all[j]
                     share, error = plain - linear_mc + exact, se[j]
@@ -342,10 +348,12 @@ def _precise(estimates, target: float) -> bool:
 
 
 def shares(model: Model, linear: list[LinearResult], seed: int, keys: tuple[str, ...], progress,
-           n: int = SHARE_TRIALS) -> dict[str, dict[str, list[tuple[str, float]]]]:
-    """{key: {output: [(group, share)]}}, largest share first (ties by group name)."""
+           n: int = SHARE_TRIALS) -> dict[str, dict[str, list[tuple[str, float, float, int]]]]:
+    """{key: {output: [(group, share, standard error, trials)]}}, largest share first (ties by group
+    name)."""
     out = {}
     for key, by_label in share_estimates(model, linear, seed, keys, progress, n).items():
-        out[key] = {label: sorted(((g, s.share) for g, s in rows), key=lambda t: (-round(t[1], 12), t[0]))
+        out[key] = {label: sorted(((g, s.share, s.standard_error, s.trials) for g, s in rows),
+                                  key=lambda t: (-round(t[1], 12), t[0]))
                     for label, rows in by_label.items()}
     return out

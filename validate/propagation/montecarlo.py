@@ -59,8 +59,8 @@ class McResult:
     check: GumCheck  # JCGM 101 8.2, decided beyond Monte Carlo noise
     adaptive: AdaptiveCheck | None
     histogram: HistogramData
-    shares_by_step: tuple[tuple[str, float], ...]
-    shares_by_equipment: tuple[tuple[str, float], ...]
+    shares_by_step: tuple[tuple[str, float, float, int], ...]  # (group, share, standard error, trials)
+    shares_by_equipment: tuple[tuple[str, float, float, int], ...]
     smallest_dof: float = math.inf  # least degrees of freedom of a t input that reaches the result
 
     @property
@@ -97,9 +97,8 @@ class McResult:
         if nu <= mcshares.HEAVY_TAILS_DOF:
             return (f"an input drawn from a t distribution with {nu:g} degrees of freedom (at most 4) has "
                     "no finite fourth moment: the Monte Carlo standard uncertainty varies strongly between "
-                    "runs, and variance shares would have no standard error (they moved by up to 22 "
-                    "percentage points between seeds on such a model), so none are reported; rely on the "
-                    "coverage intervals and the GUM budget")
+                    "runs, and variance shares would have no standard error, so none are reported; rely on "
+                    "the coverage intervals and the GUM budget")
         return None
 
     def to_dict(self) -> dict:
@@ -120,10 +119,14 @@ class McResult:
             "adaptive": self.adaptive.to_dict() if self.adaptive else None,
             "warning": self.warning, "moments_note": self.moments_note,
             "histogram": {"edges": list(self.histogram.edges), "counts": list(self.histogram.counts)},
-            "shares_by_step": [{"group": g, "share": x} for g, x in self.shares_by_step] if shares else [],
-            "shares_by_equipment": ([{"group": g, "share": x} for g, x in self.shares_by_equipment]
-                                    if shares else []),
+            "shares_by_step": [_share_entry(row) for row in self.shares_by_step] if shares else [],
+            "shares_by_equipment": [_share_entry(row) for row in self.shares_by_equipment] if shares else [],
         }
+
+
+def _share_entry(row: tuple[str, float, float, int]) -> dict:
+    group, share, error, trials = row
+    return {"group": group, "share": share, "standard_error": error, "trials": trials}
 
 
 def new_seed() -> int:
@@ -169,7 +172,7 @@ def share_trials(trials) -> int:
 
 
 def _shares(model: Model, linear: list[LinearResult], seed: int, keys: tuple[str, ...], progress,
-            n: int = SHARE_TRIALS) -> dict[str, dict[str, list[tuple[str, float]]]]:
+            n: int = SHARE_TRIALS) -> dict[str, dict[str, list[tuple[str, float, float, int]]]]:
     """Share of the variance removed when one group of sources is held at its estimates,
     1 - Var(held) / Var(all), on common random numbers with the linearised model as a control
     variate, in batches until precise or n trials (validate.propagation.mcshares)."""

@@ -276,8 +276,20 @@ def _mc_shares(mc: dict, result: dict) -> list:
         return []
     return [data_table(["grouped by", "group", "share, GUM", "share, Monte Carlo"], rows,
                        [30, 84, 30, 30], numeric={2, 3}),
-            para("Shares of the variance by group from the Monte Carlo evaluation, beside the "
-                 "GUM shares of the same groups.", "note")]
+            para("Shares of the variance by group from the Monte Carlo evaluation, beside the GUM shares of "
+                 f"the same groups{_share_precision(mc)}.", "note")]
+
+
+def _share_precision(mc: dict) -> str:
+    """How the Monte Carlo shares were estimated and how precise they are, from the record."""
+    rows = [g for key in ("shares_by_step", "shares_by_equipment") for g in mc.get(key) or []]
+    trials = [g["trials"] for g in rows if is_number(g.get("trials"))]
+    errors = [g["standard_error"] for g in rows if is_number(g.get("standard_error"))]
+    if not trials or not errors:
+        return ""
+    return (f": their own runs of {max(trials):,} trials on common random numbers, the linearised model as a "
+            f"control variate where every trial is defined; largest standard error "
+            f"{num(100 * max(errors), 2)} percentage points")
 
 
 def monte_carlo_intro(record: dict) -> list:
