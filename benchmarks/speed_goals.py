@@ -11,8 +11,9 @@ runs of the generated method) are skipped unless --before-all is given.
 Methods: the two demos in example_inputs/ and a generated copy of the phosphate demo with
 40 standards and 50 samples (benchmarks/scaled_method.py; invented readings).
 
-Each checkout's modules are compiled to bytecode first (into a scratch folder, PYTHONPYCACHEPREFIX,
-not into the checkout), as `pip install .` does for a user (an
+Each checkout's modules are compiled to bytecode first (into its __pycache__ folders, which git
+ignores; not PYTHONPYCACHEPREFIX, which would leave every installed library without its
+bytecode), as `pip install .` does for a user (an
 environment with PYTHONDONTWRITEBYTECODE set would otherwise compile every module again in each
 measured process: about 0.35 s per command on a slow machine). The first lines print what this
 machine does in a fixed workload (numpy's normal draws, a Python loop), so figures from
@@ -219,7 +220,6 @@ def main() -> None:
     print(f"{'measure':58s} {'before':>9s} {'after':>9s} {'ratio':>8s}   goal")
     with tempfile.TemporaryDirectory() as folder:
         scratch = Path(folder)
-        os.environ["PYTHONPYCACHEPREFIX"] = str(scratch / "bytecode")  # nothing written into the checkouts
         for checkout in (ROOT, args.before):
             if checkout is not None:
                 compile_checkout(checkout.resolve())
