@@ -174,3 +174,16 @@ def test_an_output_with_undefined_trials_gets_the_plain_share_of_its_defined_tri
         assert math.isnan(share.linear_exact) and share.share == share.plain
         assert math.isfinite(share.share)
         assert abs(share.share - long.share) <= 4 * math.hypot(share.standard_error, long.standard_error)
+
+
+def test_the_report_states_the_shares_precision_from_the_record():
+    from validate.report.sections_uncertainty import _largest_share_gap
+
+    def result(name, gum, mc):
+        return {"sample": name, "budget_by_step": [{"group": "a", "share": gum}],
+                "monte_carlo": {"shares_by_step": [{"group": "a", "share": mc, "standard_error": 0.0004,
+                                                    "trials": 10_000}]}}
+
+    text = _largest_share_gap([result("s1", 0.50, 0.52), result("s2", 0.40, 0.47)])[0].text
+    assert "by at most 7 percentage points (largest: a, s2)" in text
+    assert "runs of 10,000 trials" in text and "standard error of at most 0.04 percentage points" in text
