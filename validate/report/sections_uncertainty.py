@@ -277,19 +277,25 @@ def _mc_shares(mc: dict, result: dict) -> list:
     return [data_table(["grouped by", "group", "share, GUM", "share, Monte Carlo"], rows,
                        [30, 84, 30, 30], numeric={2, 3}),
             para("Shares of the variance by group from the Monte Carlo evaluation, beside the GUM shares of "
-                 f"the same groups{_share_precision(mc)}.", "note")]
+                 f"the same groups{_share_precision_text(mc)}.", "note")]
 
 
-def _share_precision(mc: dict) -> str:
-    """How the Monte Carlo shares were estimated and how precise they are, from the record."""
-    rows = [g for key in ("shares_by_step", "shares_by_equipment") for g in mc.get(key) or []]
+def _share_precision(mcs: list[dict]) -> tuple[int, float] | None:
+    """(trials, largest standard error) of the Monte Carlo shares of these results' Monte Carlo
+    blocks, from the record; None where the record does not give them."""
+    rows = [g for mc in mcs for key in ("shares_by_step", "shares_by_equipment") for g in mc.get(key) or []]
     trials = [g["trials"] for g in rows if is_number(g.get("trials"))]
     errors = [g["standard_error"] for g in rows if is_number(g.get("standard_error"))]
-    if not trials or not errors:
+    return (max(trials), max(errors)) if trials and errors else None
+
+
+def _share_precision_text(mc: dict) -> str:
+    found = _share_precision([mc])
+    if found is None:
         return ""
-    return (f": their own runs of {max(trials):,} trials on common random numbers, the linearised model as a "
+    return (f": their own runs of {found[0]:,} trials on common random numbers, the linearised model as a "
             f"control variate where every trial is defined; largest standard error "
-            f"{num(100 * max(errors), 2)} percentage points")
+            f"{num(100 * found[1], 2)} percentage points")
 
 
 def monte_carlo_intro(record: dict) -> list:
@@ -343,15 +349,12 @@ def _largest_share_gap(results: list[dict]) -> list:
 
 def _shares_precision_all(results: list[dict]) -> str:
     """The Monte Carlo shares' trials and their largest standard error over every result."""
-    rows = [g for r in results for key in ("shares_by_step", "shares_by_equipment")
-            for g in r["monte_carlo"].get(key) or []]
-    trials = [g["trials"] for g in rows if is_number(g.get("trials"))]
-    errors = [g["standard_error"] for g in rows if is_number(g.get("standard_error"))]
-    if not trials or not errors:
+    found = _share_precision([r["monte_carlo"] for r in results])
+    if found is None:
         return ""
-    return (f"; the Monte Carlo shares come from their own runs of {max(trials):,} trials (common random numbers, "
+    return (f"; the Monte Carlo shares come from their own runs of {found[0]:,} trials (common random numbers, "
             f"the linearised model as a control variate where every trial is defined), each to a standard error "
-            f"of at most {num(100 * max(errors), 2)} percentage points")
+            f"of at most {num(100 * found[1], 2)} percentage points")
 
 
 def _notes_of(results: list[dict]) -> list:
