@@ -22,7 +22,8 @@ Trials run in batches of SHARE_BATCH until every share's standard error is at mo
 or SHARE_TRIALS trials (the most). The standard error is the first-order (delta method) one:
 sqrt(sum_j IF_j^2) / N over the N trials where both runs are defined, IF_j the estimator's
 influence function at trial j (`_ratio_influence`), its centres (means, variances) taken per
-batch. An output reached by a t input with nu <= HEAVY_TAILS_DOF gets no shares: its variance
+batch. An output reached by a t input with nu <= HEAVY_TAILS_DOF (`t_inputs_reaching`: a
+non-zero GUM contribution, or a change when the input alone is moved) gets no shares: its variance
 exists only for nu > 2 and a variance ratio has a finite standard error only where the fourth
 moment does, nu > 4 (any statistics handbook on Student's t). Measured on the equilibrium demo
 (nu = 3), the plain estimate at 50,000 trials moved a share by up to 22 percentage points between
@@ -48,6 +49,7 @@ SHARE_TRIALS = 50_000  # the most trials of the shares' runs (each held group's 
 SHARE_BATCH = 10_000  # trials per batch: the standard error is looked at after each
 SHARE_TARGET = 0.0025  # each share's standard error, as a fraction (0.25 percentage points)
 HEAVY_TAILS_DOF = 4  # a t input with at most this many degrees of freedom: no shares for what it reaches
+PROBE_STEPS = (-5.0, -1.5, 1.5, 5.0)  # standard uncertainties a t input is moved by to see what it reaches
 # Measured (benchmarks/share_precision.py; docs/design.md, "Monte Carlo"): on the assay demo the
 # runs stop after one batch, the shares' spread over 20 seeds 0.005 percentage points at the
 # median (0.015 at most) against 0.24 (0.47) for the plain estimate at 50,000 trials, at a
@@ -241,9 +243,42 @@ def _linearised(model: Model, linear: list[LinearResult]) -> _Linearised:
 def with_shares(model: Model, linear: list[LinearResult]) -> list[LinearResult]:
     """The outputs that get shares: those no t input with nu <= HEAVY_TAILS_DOF reaches (no finite
     fourth moment: a variance ratio without a standard error)."""
-    return [gum for gum in linear
-            if not any(row.contribution != 0 and _heavy_tailed(model.sources[row.source])
-                       for row in gum.contributions)]
+    reach = t_inputs_reaching(model, linear)
+    return [gum for gum in linear if not any(_heavy_tailed(src) for src in reach[gum.name])]
+
+
+def t_inputs_reaching(model: Model, linear: list[LinearResult]) -> dict[str, list[Source]]:
+    """For each output, the t-distributed inputs (finite nu, u > 0) that reach it: those with a
+    non-zero GUM contribution, and those whose sensitivity is zero at the estimates (an extremum,
+    a symmetric model) but which change the output when moved alone by PROBE_STEPS standard
+    uncertainties: their tails act through the model's curvature all the same."""
+    t_inputs = [s for s in model.sources.values() if s.distribution == "t" and s.u > 0 and math.isfinite(s.dof)]
+    names = {s.name for s in t_inputs}
+    reached = {gum.name: {row.source for row in gum.contributions if row.contribution != 0 and row.source in names}
+               for gum in linear}
+    unseen = [s for s in t_inputs if any(s.name not in r for r in reached.values())]
+    if unseen:
+        for label, moved in _changed_by_moving(model, unseen, list(reached)).items():
+            reached[label] |= moved
+    return {label: [s for s in t_inputs if s.name in found] for label, found in reached.items()}
+
+
+def _changed_by_moving(model: Model, inputs: list[Source], labels: list[str]) -> dict[str, set[str]]:
+    """The inputs whose move alone (to value + k u, k in PROBE_STEPS; every other source at its
+    estimate) changes each output, a defined value becoming undefined included: one evaluation
+    of 1 + len(PROBE_STEPS) per input trials, the first at the estimates."""
+    k = len(PROBE_STEPS)
+    n = 1 + k * len(inputs)
+    draws = {name: np.full(n, float(src.value)) for name, src in model.sources.items()}
+    for i, src in enumerate(inputs):
+        draws[src.name][1 + i * k:1 + (i + 1) * k] = float(src.value) + np.asarray(PROBE_STEPS) * float(src.u)
+    values = evaluate(model, draws, n, labels)
+    out = {}
+    for label in labels:
+        v = values[label]
+        changed = (v != v[0]) & ~(np.isnan(v) & np.isnan(v[0]))
+        out[label] = {src.name for i, src in enumerate(inputs) if changed[1 + i * k:1 + (i + 1) * k].any()}
+    return out
 
 
 def share_estimates(model: Model, linear: list[LinearResult], seed: int, keys: tuple[str, ...],

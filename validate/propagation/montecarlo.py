@@ -212,12 +212,14 @@ def _propagate(model: Model, linear: list[LinearResult], trials, seed: int, p: f
     else:
         final = run_fixed(model, gums, int(trials), seed, p, progress)
     by = _shares(model, linear, seed + 1, ("step", "equipment"), progress, share_trials(trials)) if shares else {}
+    reach = mcshares.t_inputs_reaching(model, linear)
     results = []
     for gum in linear:
         f = final[gum.name]
         results.append(McResult(gum.name, seed, f.summary, f.check, checks.get(gum.name), f.histogram,
                                 tuple(by.get("step", {}).get(gum.name, ())),
-                                tuple(by.get("equipment", {}).get(gum.name, ())), smallest_t_dof(model, gum)))
+                                tuple(by.get("equipment", {}).get(gum.name, ())),
+                                min((src.dof for src in reach[gum.name]), default=math.inf)))
     return results
 
 
@@ -236,13 +238,6 @@ def symmetric_intervals(model: Model, trials: int, seed: int, labels: list[str] 
             finite = np.sort(arr[np.isfinite(arr)])
             out[name] = coverage_interval_symmetric(finite, p, presorted=True)
     return out
-
-
-def smallest_t_dof(model: Model, gum: LinearResult) -> float:
-    """The least degrees of freedom of a t-distributed input that reaches the result."""
-    dofs = [model.sources[row.source].dof for row in gum.contributions
-            if row.contribution != 0 and model.sources[row.source].distribution == "t"]
-    return min(dofs, default=math.inf)
 
 
 def expected_work(trials: int | str, model: Model, linear: list[LinearResult] | None = None,
