@@ -233,7 +233,8 @@ def _states(mix, lo, n_lanes, line, states_out):
     slope, intercept = line[0], line[1]
     for j in range(mix.shape[1]):
         M, L, A = mix[0, j, lo:hi], mix[1, j, lo:hi], mix[2, j, lo:hi]
-        cs, ms, ls, ks = states_out[0, j, lo:hi], states_out[1, j, lo:hi], states_out[2, j, lo:hi], states_out[3, j, lo:hi]
+        cs, ms = states_out[0, j, lo:hi], states_out[1, j, lo:hi]
+        ls, ks = states_out[2, j, lo:hi], states_out[3, j, lo:hi]
         for t in range(n_lanes):
             c = (A[t] - intercept[t]) / slope[t]
             free_m = M[t] - c
