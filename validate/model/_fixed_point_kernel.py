@@ -20,42 +20,72 @@ LANES = 256  # trials stepped side by side: the loops over them compile to vecto
 
 
 @_jit
-def _points(K, std, lo, n_lanes, counts, factors, xs, dxs, x_sum, inv_K, derivative):
+def _points(K, std, lo, n_lanes, counts, factors, xs, dxs, x_sum, inv_K, inv_phi_K, derivative):
     """[ML] of every standard at K (xs) for the trials lo .. lo + n_lanes, their count-weighted
     sum (x_sum) and, with `derivative`, d[ML]/dK (dxs): fixed_point.standards_line's loop, 1/K
-    formed once for the standards without a factor (inv_K, scratch), as there."""
+    formed once for the standards without a factor (inv_K, scratch), as there; inv_phi_K: scratch
+    for 1/(K phi) of a standard with a factor. Every lane loop reads whole rows from their first
+    element (no per-lane choice of address), so it compiles to plain vector loads."""
+    hi = lo + n_lanes
     for t in range(n_lanes):
         x_sum[t] = 0.0
         inv_K[t] = 1.0 / K[t]
     for i in range(counts.size):
         phi, c, one_c, one_phi = factors[i], counts[i], counts[i] == 1.0, factors[i] == 1.0
-        M, L, x_i, dx_i = std[0, i], std[1, i], xs[i], dxs[i]
-        for t in range(n_lanes):
-            m, l_ = M[lo + t], L[lo + t]
-            d = m - l_
-            inv_k = inv_K[t] if one_phi else 1.0 / (K[t] * phi)
-            root = math.sqrt(d * d + (2.0 * (m + l_) + inv_k) * inv_k)
-            x = 2.0 * m * l_ / (m + l_ + inv_k + root)
-            x_i[t] = x
-            x_sum[t] = x_sum[t] + (x if one_c else c * x)
-            if derivative:
-                dx = x * inv_k * inv_k / root
+        M, L, x_i, dx_i = std[0, i, lo:hi], std[1, i, lo:hi], xs[i], dxs[i]
+        inv_k = inv_K
+        if not one_phi:
+            inv_k = inv_phi_K
+            for t in range(n_lanes):
+                inv_k[t] = 1.0 / (K[t] * phi)
+        if derivative:
+            for t in range(n_lanes):
+                m, l_, ik = M[t], L[t], inv_k[t]
+                d = m - l_
+                root = math.sqrt(d * d + (2.0 * (m + l_) + ik) * ik)
+                x = 2.0 * m * l_ / (m + l_ + ik + root)
+                x_i[t] = x
+                x_sum[t] = x_sum[t] + (x if one_c else c * x)
+                dx = x * ik * ik / root
                 dx_i[t] = dx if one_phi else phi * dx
+        else:
+            for t in range(n_lanes):
+                m, l_, ik = M[t], L[t], inv_k[t]
+                d = m - l_
+                root = math.sqrt(d * d + (2.0 * (m + l_) + ik) * ik)
+                x = 2.0 * m * l_ / (m + l_ + ik + root)
+                x_i[t] = x
+                x_sum[t] = x_sum[t] + (x if one_c else c * x)
 
 
 @_jit
-def _centred_sums(std, lo, n_lanes, counts, y_mean, xs, x_mean, ys, own, out_xx, out_xy):
-    """Over the standards, sum c (x - x_mean) v and sum c v (A - y_mean), v the deviation
-    x - x_mean itself when `own` (sxx, sxy), else ys (the derivatives: d sxx/dK / 2, d sxy/dK)."""
+def _centred_sums(std, lo, n_lanes, counts, y_mean, xs, x_mean, out_xx, out_xy):
+    """Over the standards, sxx = sum c (x - x_mean)^2 and sxy = sum c (x - x_mean)(A - y_mean)."""
     for t in range(n_lanes):
         out_xx[t] = 0.0
         out_xy[t] = 0.0
     for i in range(counts.size):
-        c, one_c, A, x_i, y_i = counts[i], counts[i] == 1.0, std[2, i], xs[i], ys[i]
+        c, one_c, A, x_i = counts[i], counts[i] == 1.0, std[2, i, lo:lo + n_lanes], xs[i]
         for t in range(n_lanes):
             dev = x_i[t] - x_mean[t]
-            e = A[lo + t] - y_mean[t]
-            v = dev if own else y_i[t]
+            e = A[t] - y_mean[t]
+            out_xx[t] = out_xx[t] + (dev * dev if one_c else c * (dev * dev))
+            out_xy[t] = out_xy[t] + (dev * e if one_c else c * (dev * e))
+
+
+@_jit
+def _centred_derivatives(std, lo, n_lanes, counts, y_mean, xs, x_mean, ys, out_xx, out_xy):
+    """Over the standards, sum c (x - x_mean) y and sum c y (A - y_mean), y the derivatives ys:
+    d sxx/dK / 2 and d sxy/dK."""
+    for t in range(n_lanes):
+        out_xx[t] = 0.0
+        out_xy[t] = 0.0
+    for i in range(counts.size):
+        c, one_c, A, x_i, y_i = counts[i], counts[i] == 1.0, std[2, i, lo:lo + n_lanes], xs[i], ys[i]
+        for t in range(n_lanes):
+            dev = x_i[t] - x_mean[t]
+            e = A[t] - y_mean[t]
+            v = y_i[t]
             out_xx[t] = out_xx[t] + (dev * v if one_c else c * (dev * v))
             out_xy[t] = out_xy[t] + (v * e if one_c else c * (v * e))
 
@@ -64,12 +94,12 @@ def _centred_sums(std, lo, n_lanes, counts, y_mean, xs, x_mean, ys, own, out_xx,
 def _line(K, std, lo, n_lanes, counts, factors, total, y_mean, xs, dxs, out, derivative):
     """The standards' line at K for the trials lo .. lo + n_lanes (fixed_point.standards_line):
     out[0], out[1] = slope, intercept; with `derivative` out[2], out[3] = their derivatives by K.
-    xs, dxs: scratch of one row per standard; out[4:12]: scratch of the sums and 1/K."""
+    xs, dxs: scratch of one row per standard; out[4:13]: scratch of the sums and 1/K."""
     x_sum, sxx, sxy, x_mean, d_sum, d_sxx, d_sxy = out[4], out[5], out[6], out[7], out[8], out[9], out[10]
-    _points(K, std, lo, n_lanes, counts, factors, xs, dxs, x_sum, out[11], derivative)
+    _points(K, std, lo, n_lanes, counts, factors, xs, dxs, x_sum, out[11], out[12], derivative)
     for t in range(n_lanes):
         x_mean[t] = x_sum[t] / total
-    _centred_sums(std, lo, n_lanes, counts, y_mean, xs, x_mean, xs, True, sxx, sxy)
+    _centred_sums(std, lo, n_lanes, counts, y_mean, xs, x_mean, sxx, sxy)
     slope, intercept = out[0], out[1]
     for t in range(n_lanes):
         slope[t] = sxy[t] / sxx[t]
@@ -77,7 +107,7 @@ def _line(K, std, lo, n_lanes, counts, factors, total, y_mean, xs, dxs, out, der
     if not derivative:
         return
     _points_sum(dxs, n_lanes, counts, d_sum)
-    _centred_sums(std, lo, n_lanes, counts, y_mean, xs, x_mean, dxs, False, d_sxx, d_sxy)
+    _centred_derivatives(std, lo, n_lanes, counts, y_mean, xs, x_mean, dxs, d_sxx, d_sxy)
     d_slope, d_intercept = out[2], out[3]
     for t in range(n_lanes):
         d_slope[t] = (d_sxy[t] - slope[t] * (2.0 * d_sxx[t])) / sxx[t]
@@ -102,6 +132,7 @@ def _steps(K, std, mix, weights, lo, n_lanes, counts, factors, total, y_mean, xs
     _line(K, std, lo, n_lanes, counts, factors, total, y_mean, xs, dxs, line, True)
     slope, intercept, d_slope, d_intercept = line[0], line[1], line[2], line[3]
     F, sum_q, sum_qc = sums[0], sums[1], sums[2]
+    hi = lo + n_lanes
     for t in range(n_lanes):
         F[t] = 0.0
         sum_q[t] = 0.0
@@ -110,11 +141,11 @@ def _steps(K, std, mix, weights, lo, n_lanes, counts, factors, total, y_mean, xs
         w = weights[j]
         if w == 0.0:
             continue
-        M, L, A = mix[0, j], mix[1, j], mix[2, j]
+        M, L, A = mix[0, j, lo:hi], mix[1, j, lo:hi], mix[2, j, lo:hi]
         for t in range(n_lanes):
-            c = (A[lo + t] - intercept[t]) / slope[t]
-            free_m = M[lo + t] - c
-            free_l = L[lo + t] - c
+            c = (A[t] - intercept[t]) / slope[t]
+            free_m = M[t] - c
+            free_l = L[t] - c
             den = free_m * free_l
             k = c / den
             F[t] = F[t] + w * k
@@ -148,23 +179,29 @@ def _fmin(a, b):
 
 
 @_jit
-def _settle(K, K_new, change, previous, active, n_lanes, step, stop, history):
-    """Take the step in the trials still stepping, record its largest finite relative change and
-    stop a trial once its change, or its next change predicted from the last two, is at most
-    `stop` or not a number (fixed_point._solve_trials); returns how many still step."""
+def _settle(K, K_new, change, previous, active, n_lanes, stop, largest):
+    """Take the step in the trials still stepping, keep each lane's largest finite relative
+    change of this step in `largest` (the step's history, over the lanes) and stop a trial once
+    its change, or its next change predicted from the last two, is at most `stop` or not a number
+    (fixed_point._solve_trials); returns how many still step. One loop without branches on the
+    lane (a settled lane keeps its numbers by a choice of values), so it compiles to vector
+    instructions; the arithmetic of a lane still stepping is that of the trial alone."""
     left = 0
     for t in range(n_lanes):
-        if not active[t]:
-            continue
+        on = active[t]
         ch = (K_new[t] - K[t]) / K_new[t]
-        previous[t], change[t], K[t] = change[t], ch, K_new[t]
+        before = change[t]
+        predicted = _predicted(ch, before)
         size = abs(ch)
-        if math.isfinite(size) and size > history[step]:
-            history[step] = size
-        if size <= stop or _predicted(ch, previous[t]) <= stop or not math.isfinite(ch):
-            active[t] = False
-        else:
-            left += 1
+        finite = math.isfinite(ch)
+        seen = largest[t]
+        largest[t] = size if (on and finite and size > seen) else seen
+        previous[t] = before if on else previous[t]
+        change[t] = ch if on else before
+        K[t] = K_new[t] if on else K[t]
+        going = on and not (size <= stop or predicted <= stop or not finite)
+        active[t] = going
+        left += 1 if going else 0
     return left
 
 
@@ -172,12 +209,18 @@ def _settle(K, K_new, change, previous, active, n_lanes, step, stop, history):
 def _begin(std, start, lo, n_lanes, counts, total, K, change, previous, active, y_mean):
     """The lanes' first K, no change yet, all stepping, and the standards' mean reading (which K
     does not change: fixed_point.Columns.readings_centred)."""
+    hi = lo + n_lanes
+    first = start[lo:hi]
     for t in range(n_lanes):
-        K[t] = start[lo + t]
+        K[t] = first[t]
         change[t] = math.nan
         previous[t] = math.nan
         active[t] = True
-    _points_sum(std[2, :, lo:lo + n_lanes], n_lanes, counts, y_mean)
+        y_mean[t] = 0.0
+    for i in range(counts.size):
+        c, one_c, A = counts[i], counts[i] == 1.0, std[2, i, lo:hi]
+        for t in range(n_lanes):
+            y_mean[t] = y_mean[t] + (A[t] if one_c else c * A[t])
     for t in range(n_lanes):
         y_mean[t] = y_mean[t] / total
 
@@ -186,42 +229,52 @@ def _begin(std, start, lo, n_lanes, counts, total, K, change, previous, active, 
 def _states(mix, lo, n_lanes, line, states_out):
     """Every mixture's ICE table off the line at the solved K (fixed_point.states_at; ice.py's
     equilibrium_constant)."""
+    hi = lo + n_lanes
+    slope, intercept = line[0], line[1]
     for j in range(mix.shape[1]):
-        M, L, A = mix[0, j], mix[1, j], mix[2, j]
+        M, L, A = mix[0, j, lo:hi], mix[1, j, lo:hi], mix[2, j, lo:hi]
+        cs, ms = states_out[0, j, lo:hi], states_out[1, j, lo:hi]
+        ls, ks = states_out[2, j, lo:hi], states_out[3, j, lo:hi]
         for t in range(n_lanes):
-            c = (A[lo + t] - line[1, t]) / line[0, t]
-            free_m = M[lo + t] - c
-            free_l = L[lo + t] - c
-            states_out[0, j, lo + t] = c
-            states_out[1, j, lo + t] = free_m
-            states_out[2, j, lo + t] = free_l
-            states_out[3, j, lo + t] = c / (free_m * free_l)
+            c = (A[t] - intercept[t]) / slope[t]
+            free_m = M[t] - c
+            free_l = L[t] - c
+            cs[t] = c
+            ms[t] = free_m
+            ls[t] = free_l
+            ks[t] = c / (free_m * free_l)
 
 
 @_jit
-def _results(mix, lo, n_lanes, line, kept, out_weights, scale, factor, combined, results_out):
+def _results(mix, lo, n_lanes, line, kept, out_weights, scale, factor, combined, ks, results_out):
     """What the equilibrium model reports of the trials (EquilibriumModel.evaluate's numpy path):
     each mixture's K off the line (as `_states`), nan where not positive, times the trial's
-    `scale` (one number when scale has one element), over `factor`: results_out[j]; with
-    results_out holding one more row, sum of out_weights[j] K_j over the `kept` mixtures (from
-    the first, as Python's sum), over `factor`: results_out[nm] (log10 is left to numpy)."""
+    `scale` (a row of the block's lanes), over `factor`: results_out[j]; with results_out
+    holding one more row, sum of out_weights[j] K_j over the `kept` mixtures (from the first, as
+    Python's sum), over `factor`: results_out[nm] (log10 is left to numpy). ks: scratch."""
     nm = mix.shape[1]
+    hi = lo + n_lanes
     with_combined = results_out.shape[0] > nm
+    slope, intercept = line[0], line[1]
     for t in range(n_lanes):
         combined[t] = 0.0
     for j in range(nm):
-        M, L, A = mix[0, j], mix[1, j], mix[2, j]
-        row, w, use = results_out[j], out_weights[j], kept[j] and with_combined
+        M, L, A = mix[0, j, lo:hi], mix[1, j, lo:hi], mix[2, j, lo:hi]
+        row = results_out[j, lo:hi]
         for t in range(n_lanes):
-            c = (A[lo + t] - line[1, t]) / line[0, t]
-            k = c / ((M[lo + t] - c) * (L[lo + t] - c))
-            k = (k if k > 0 else math.nan) * (scale[0] if scale.size == 1 else scale[lo + t])
-            row[lo + t] = k / factor
-            if use:
-                combined[t] = combined[t] + w * k
+            c = (A[t] - intercept[t]) / slope[t]
+            k = c / ((M[t] - c) * (L[t] - c))
+            k = (k if k > 0 else math.nan) * scale[t]
+            row[t] = k / factor
+            ks[t] = k
+        if kept[j] and with_combined:
+            w = out_weights[j]
+            for t in range(n_lanes):
+                combined[t] = combined[t] + w * ks[t]
     if with_combined:
+        row = results_out[nm, lo:hi]
         for t in range(n_lanes):
-            results_out[nm, lo + t] = combined[t] / factor
+            row[t] = combined[t] / factor
 
 
 @_jit
@@ -239,35 +292,45 @@ def solve(std, counts, factors, mix, weights, start, max_steps, stop, converged,
     for i in range(ns):
         total = total + counts[i]
     xs, dxs = np.empty((ns, LANES)), np.empty((ns, LANES))
-    line, sums = np.empty((12, LANES)), np.empty((3, LANES))
+    line, sums = np.empty((13, LANES)), np.empty((3, LANES))
     K, K_new, y_mean = np.empty(LANES), np.empty(LANES), np.empty(LANES)
     change, previous = np.empty(LANES), np.empty(LANES)
-    active, combined = np.empty(LANES, dtype=np.bool_), np.empty(LANES)
+    active, combined, ks = np.empty(LANES, dtype=np.bool_), np.empty(LANES), np.empty(LANES)
+    largest = np.full((max_steps, LANES), -math.inf)  # per step and lane: the history before its max
+    one_scale = np.full(LANES, scale[0]) if scale.size == 1 else scale[:0]
     want_states, want_results = states_out.shape[2] == n, results_out.shape[1] == n
     most = 0
     for lo in range(0, n, LANES):
         n_lanes = min(LANES, n - lo)
+        hi = lo + n_lanes
         _begin(std, start, lo, n_lanes, counts, total, K, change, previous, active, y_mean)
         for step in range(max_steps):
             _steps(K, std, mix, weights, lo, n_lanes, counts, factors, total, y_mean, xs, dxs, line, sums, K_new)
             most = max(most, step + 1)
-            if _settle(K, K_new, change, previous, active, n_lanes, step, stop, history) == 0:
+            if _settle(K, K_new, change, previous, active, n_lanes, stop, largest[step]) == 0:
                 break
+        K_block, change_block = K_out[lo:hi], change_out[lo:hi]
         for t in range(n_lanes):
             remaining = _fmin(abs(change[t]), _predicted(change[t], previous[t]))
             # a trial whose correction has not converged has no defined K
             K[t] = K[t] if remaining <= converged else math.nan
-            K_out[lo + t] = K[t]
-            change_out[lo + t] = remaining
+            K_block[t] = K[t]
+            change_block[t] = remaining
         # the line and the mixtures' states at the solved K (fixed_point.states_at)
         _line(K, std, lo, n_lanes, counts, factors, total, y_mean, xs, dxs, line, False)
+        slope_block, intercept_block = line_out[0, lo:hi], line_out[1, lo:hi]
         for t in range(n_lanes):
-            line_out[0, lo + t] = line[0, t]
-            line_out[1, lo + t] = line[1, t]
+            slope_block[t] = line[0, t]
+            intercept_block[t] = line[1, t]
         if want_states:
             _states(mix, lo, n_lanes, line, states_out)
         if want_results:
-            _results(mix, lo, n_lanes, line, kept, out_weights, scale, factor, combined, results_out)
+            _results(mix, lo, n_lanes, line, kept, out_weights, one_scale if scale.size == 1 else scale[lo:hi],
+                     factor, combined, ks, results_out)
+    for step in range(most):
+        for t in range(LANES):
+            if largest[step, t] > history[step]:
+                history[step] = largest[step, t]
     return most
 
 
