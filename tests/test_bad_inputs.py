@@ -413,21 +413,21 @@ def test_bad_input_is_refused_by_the_command(tmp_path, label):
     _assert_refused(proc.returncode, proc.stderr, out, code, expected)
 
 
-def test_an_equipment_id_equal_to_a_solution_id_is_accepted(tmp_path):
+def test_an_equipment_id_equal_to_a_solution_id_is_accepted(tmp_path, run_command):
     # Equipment ids and solution ids are named in different keys (flask/aliquot/balance against
     # from/standards), so the same word in both is unambiguous and allowed.
     folder = tmp_path / "demo"
     shutil.copytree(DEMO, folder)
     _edit(folder, "[equipment.balance]", "[equipment.stock]")
     _edit(folder, 'balance = "balance"', 'balance = "stock"')
-    proc = _cli("check", str(folder / METHOD))
+    proc = run_command("check", str(folder / METHOD))
     assert proc.returncode == 0, proc.stderr
 
 
-def test_slightly_negative_blank_readings_are_accepted(tmp_path):
+def test_slightly_negative_blank_readings_are_accepted(tmp_path, run_command):
     # a blank read against a reference can come out a little below zero: within -0.05 it is kept
     folder = tmp_path / "demo"
     shutil.copytree(DEMO, folder)
     _edit(folder, "blank,0.0111", "blank,-0.0040", name=READINGS)
-    proc = _cli("check", str(folder / METHOD))
+    proc = run_command("check", str(folder / METHOD))
     assert proc.returncode == 0, proc.stderr
