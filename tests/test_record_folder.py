@@ -104,13 +104,14 @@ def _no_hidden_siblings(out: Path) -> list[str]:
 
 def _verifies(out: Path, passed: dict[str, bool]) -> bool:
     """verify_record(out).passed, re-run only for a folder not seen before: `passed` keeps the
-    answer by the folder's content (every file's name and bytes), and the same files give the
-    same answer (the re-run reads nothing else)."""
+    answer by the folder's content (every entry's name and kind, every file's bytes), and the
+    same content gives the same answer (the re-run reads nothing else)."""
     digest = hashlib.sha256()
     for path in sorted(out.rglob("*")):
-        if path.is_file():
-            digest.update(f"{path.relative_to(out).as_posix()}\0{path.stat().st_size}\0".encode())
-            digest.update(path.read_bytes())
+        kind = "link" if path.is_symlink() else "folder" if path.is_dir() else "file"
+        digest.update(f"{path.relative_to(out).as_posix()}\0{kind}\0".encode())
+        if kind == "file":
+            digest.update(hashlib.sha256(path.read_bytes()).digest())
     key = digest.hexdigest()
     if key not in passed:
         passed[key] = verify_record(out).passed
