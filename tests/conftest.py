@@ -1,10 +1,11 @@
-"""Shared test helpers: paths, a writer for small method files, and the invented nickel(II)
-demo run once per session for the tests that only read its results."""
+"""Shared test helpers: paths, a writer for small method files, the command run in this
+process, and the invented demos run once per session for the tests that only read their results."""
 
 from __future__ import annotations
 
 import json
 import shutil
+from dataclasses import dataclass
 from pathlib import Path
 
 import pytest
@@ -12,6 +13,36 @@ import pytest
 ROOT = Path(__file__).resolve().parents[1]
 REFERENCE = Path(__file__).resolve().parent / "reference"
 DEMOS = ROOT / "example_inputs"
+
+
+@dataclass(frozen=True)
+class Ran:
+    """What a finished command gave: its exit code and what it printed (as subprocess.run gives them)."""
+
+    returncode: int
+    stdout: str
+    stderr: str
+
+
+@pytest.fixture
+def run_command(capsys):
+    """`validate ARGS` run in this process through `validate.cli.main`, the function that
+    `python -m validate.cli` and the installed `validate` call; returns a Ran. An exit of
+    argparse's own (a bad option) gives its exit code as a process would. Starting a process
+    costs about a second of imports; tests that check the process itself (signals, start-up
+    imports, environment variables, the entry point) still start one."""
+    from validate import cli
+
+    def run(*args) -> Ran:
+        capsys.readouterr()  # what the test printed before is not the command's
+        try:
+            code = cli.main([str(arg) for arg in args])
+        except SystemExit as exc:
+            code = 0 if exc.code is None else exc.code if isinstance(exc.code, int) else 1
+        captured = capsys.readouterr()
+        return Ran(code, captured.out, captured.err)
+
+    return run
 
 
 @pytest.fixture

@@ -1,4 +1,10 @@
-"""Bad input gets a clear message naming the file and the key, exit code 2, no traceback."""
+"""Bad input gets a clear message naming the file and the key, exit code 2, no traceback.
+
+The commands run in this process through `validate.cli.main` (the conftest fixture
+`run_command`); `validate init` also runs as a separate `python -m validate.cli` process, as a
+user would start it (the other commands do so in test_bad_inputs.py, test_verify_edits.py,
+test_hostile_text.py and test_validation_record.py).
+"""
 
 from __future__ import annotations
 
@@ -13,9 +19,8 @@ from conftest import DEMOS, edit_text
 DEMO = DEMOS / "phosphate_assay"
 
 
-def _run(*args, cwd=None):
-    return subprocess.run([sys.executable, "-m", "validate.cli", *args], capture_output=True, text=True,
-                          cwd=cwd)
+def _process(*args):
+    return subprocess.run([sys.executable, "-m", "validate.cli", *args], capture_output=True, text=True)
 
 
 def _edit(folder, old, new, name="method.toml"):
@@ -40,10 +45,10 @@ CASES = [
 
 
 @pytest.mark.parametrize("label, old, new, expected", CASES, ids=[c[0] for c in CASES])
-def test_bad_method_file(demo_copy, tmp_path, label, old, new, expected):
+def test_bad_method_file(demo_copy, tmp_path, run_command, label, old, new, expected):
     method = _edit(demo_copy, old, new)
     out = tmp_path / "out"
-    proc = _run("run", str(method), "--out", str(out))
+    proc = run_command("run", str(method), "--out", str(out))
     assert proc.returncode == 2, proc.stderr
     assert "Traceback" not in proc.stderr
     for fragment in expected:
@@ -51,23 +56,23 @@ def test_bad_method_file(demo_copy, tmp_path, label, old, new, expected):
     assert not out.exists(), "a refused input must leave no output"
 
 
-def test_non_numeric_reading(demo_copy, tmp_path):
+def test_non_numeric_reading(demo_copy, tmp_path, run_command):
     _edit(demo_copy, "S4,0.3406", "S4,zero point three", name="readings.csv")
-    proc = _run("run", str(demo_copy / "method.toml"), "--out", str(tmp_path / "out"))
+    proc = run_command("run", str(demo_copy / "method.toml"), "--out", str(tmp_path / "out"))
     assert proc.returncode == 2
     assert "readings.csv" in proc.stderr and "row" in proc.stderr and "not a number" in proc.stderr
 
 
-def test_decimal_comma_reading(demo_copy, tmp_path):
+def test_decimal_comma_reading(demo_copy, tmp_path, run_command):
     _edit(demo_copy, "S4,0.3406", 'S4,"0,3406"', name="readings.csv")
-    proc = _run("check", str(demo_copy / "method.toml"))
+    proc = run_command("check", str(demo_copy / "method.toml"))
     assert proc.returncode == 2 and "decimal comma" in proc.stderr
 
 
 @pytest.mark.slow
-def test_demo_run_writes_the_record(tmp_path):
+def test_demo_run_writes_the_record(tmp_path, run_command):
     out = tmp_path / "out"
-    proc = _run("run", str(DEMO / "method.toml"), "--out", str(out), "--trials", "20000", "--seed", "7")
+    proc = run_command("run", str(DEMO / "method.toml"), "--out", str(out), "--trials", "20000", "--seed", "7")
     assert proc.returncode == 0, proc.stderr
     record = json.loads((out / "results.json").read_text())
     assert record["software"]["name"] == "validate"
@@ -94,14 +99,14 @@ def test_demo_run_writes_the_record(tmp_path):
     # the trials asked for are recorded; the clause 8 comparison may add trials (JCGM 101 8.2)
     assert record["monte_carlo_settings"]["trials"] == 20000 and mc["trials"] >= 20000 and mc["seed"] == 7
     # a second run into the same folder is refused rather than overwriting the record
-    again = _run("run", str(DEMO / "method.toml"), "--out", str(out), "--trials", "0")
+    again = run_command("run", str(DEMO / "method.toml"), "--out", str(out), "--trials", "0")
     assert again.returncode == 2 and "--overwrite" in again.stderr
 
 
-def test_init_writes_a_starter_that_checks(tmp_path):
-    proc = _run("init", str(tmp_path / "new"))
+def test_init_writes_a_starter_that_checks(tmp_path, run_command):
+    proc = _process("init", str(tmp_path / "new"))
     assert proc.returncode == 0, proc.stderr
-    check = _run("check", str(tmp_path / "new" / "method.toml"))
+    check = run_command("check", str(tmp_path / "new" / "method.toml"))
     assert check.returncode == 0, check.stderr
 
 

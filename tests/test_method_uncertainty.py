@@ -7,8 +7,6 @@ by hand in the comments. The combination rule is Nordtest TR 537's (from memory)
 from __future__ import annotations
 
 import math
-import subprocess
-import sys
 from pathlib import Path
 
 import pandas as pd
@@ -163,9 +161,9 @@ def test_control_without_series_labels_is_refused(demo_copy):
         load_method(demo_copy / "method.toml")
 
 
-def test_bad_routine_input_exits_with_2(demo_copy):
+def test_bad_routine_input_exits_with_2(demo_copy, run_command):
     method = _edit(demo_copy, 'bias_treatment = "included"', 'bias_treatment = "ignored"')
-    done = subprocess.run([sys.executable, "-m", "validate.cli", "check", str(method)], capture_output=True, text=True)
+    done = run_command("check", method)
     assert done.returncode == 2 and "Traceback" not in done.stderr
 
 

@@ -4,8 +4,6 @@ ISO 8466-2 inverse-prediction formula, both engines, and the straight line as it
 from __future__ import annotations
 
 import math
-import subprocess
-import sys
 
 import numpy as np
 import pytest
@@ -156,24 +154,18 @@ def _demo_copy(tmp_path, readings_edit=None, method_edit=None):
     return folder / "method.toml"
 
 
-def _check(path):
-    return subprocess.run([sys.executable, "-m", "validate.cli", "check", str(path)], capture_output=True,
-                          text=True, timeout=120)
-
-
-def test_second_order_with_three_levels_exits_2(tmp_path):
+def test_second_order_with_three_levels_exits_2(tmp_path, run_command):
     path = _demo_copy(tmp_path, method_edit=lambda t: t.replace(
         'standards = ["S05", "S1", "S2", "S3", "S4", "S5", "S6", "S8", "S10"]\nblanks = ["blank"]',
         'standards = ["S1", "S5", "S10"]\nblanks = []'))
-    proc = _check(path)
+    proc = run_command("check", path)
     assert proc.returncode == 2, proc.stderr
     assert "second-order function" in proc.stderr and "Traceback" not in proc.stderr
 
 
-def test_sample_above_the_function_maximum_exits_3(tmp_path):
+def test_sample_above_the_function_maximum_exits_3(tmp_path, run_command):
     path = _demo_copy(tmp_path, readings_edit=lambda t: t.replace("rinse_2,0.", "rinse_2,3."))
-    proc = subprocess.run([sys.executable, "-m", "validate.cli", "run", str(path), "--out", str(tmp_path / "o"),
-                           "--trials", "0", "--no-advice", "--no-pdf"], capture_output=True, text=True, timeout=120)
+    proc = run_command("run", path, "--out", tmp_path / "o", "--trials", "0", "--no-advice", "--no-pdf")
     assert proc.returncode == 3, proc.stderr
     assert "no real root" in proc.stderr and "Traceback" not in proc.stderr
 
@@ -186,11 +178,6 @@ def _table(tmp_path, levels):
     path = tmp_path / "table.csv"
     path.write_text("\n".join(lines) + "\n", encoding="utf-8")
     return path
-
-
-def _calibrate(*args):
-    return subprocess.run([sys.executable, "-m", "validate.cli", "calibrate", *map(str, args)], capture_output=True,
-                          text=True, timeout=120)
 
 
 def test_calibrate_second_order_json_adds_coefficients_and_covariance(tmp_path):
@@ -210,10 +197,11 @@ def test_calibrate_second_order_json_adds_coefficients_and_covariance(tmp_path):
     assert result["second_order"]["limits"]["not_shown"]  # ISO 11843-2 left out, and why
 
 
-def test_calibrate_second_order_bad_inputs_exit_2_and_3(tmp_path):
-    few = _calibrate(_table(tmp_path, [0, 5, 10]), "--function", "second order")
+def test_calibrate_second_order_bad_inputs_exit_2_and_3(tmp_path, run_command):
+    few = run_command("calibrate", _table(tmp_path, [0, 5, 10]), "--function", "second order")
     assert few.returncode == 2 and "at least 4" in few.stderr and "Traceback" not in few.stderr
-    no_root = _calibrate(_table(tmp_path, [0, 1, 2, 4, 6, 8, 10]), "--function", "second order", "--sample", "2.5")
+    no_root = run_command("calibrate", _table(tmp_path, [0, 1, 2, 4, 6, 8, 10]), "--function", "second order",
+                          "--sample", "2.5")
     assert no_root.returncode == 3 and "no real root" in no_root.stderr and "Traceback" not in no_root.stderr
 
 
