@@ -252,15 +252,23 @@ def t_inputs_reaching(model: Model, linear: list[LinearResult]) -> dict[str, lis
     non-zero GUM contribution, and those whose sensitivity is zero at the estimates (an extremum,
     a symmetric model) but which change the output when moved alone by PROBE_STEPS standard
     uncertainties: their tails act through the model's curvature all the same."""
-    t_inputs = [s for s in model.sources.values() if s.distribution == "t" and s.u > 0 and math.isfinite(s.dof)]
+    t_inputs = [s for s in model.sources.values() if _t_input(s)]
     names = {s.name for s in t_inputs}
-    reached = {gum.name: {row.source for row in gum.contributions if row.contribution != 0 and row.source in names}
-               for gum in linear}
+    reached = {gum.name: _contributing(gum, names) for gum in linear}
     unseen = [s for s in t_inputs if any(s.name not in r for r in reached.values())]
     if unseen:
         for label, moved in _changed_by_moving(model, unseen, list(reached)).items():
             reached[label] |= moved
     return {label: [s for s in t_inputs if s.name in found] for label, found in reached.items()}
+
+
+def _t_input(src: Source) -> bool:
+    return src.distribution == "t" and src.u > 0 and math.isfinite(src.dof)
+
+
+def _contributing(gum: LinearResult, names: set[str]) -> set[str]:
+    """The sources among `names` with a non-zero GUM contribution to the output."""
+    return {row.source for row in gum.contributions if row.contribution != 0 and row.source in names}
 
 
 def _changed_by_moving(model: Model, inputs: list[Source], labels: list[str]) -> dict[str, set[str]]:
