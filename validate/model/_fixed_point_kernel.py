@@ -38,24 +38,26 @@ def _points(K, std, lo, n_lanes, counts, factors, xs, dxs, x_sum, inv_K, inv_phi
             inv_k = inv_phi_K
             for t in range(n_lanes):
                 inv_k[t] = 1.0 / (K[t] * phi)
-        if derivative:
+        if derivative:  # two loops, so that neither chooses per lane
             for t in range(n_lanes):
-                m, l_, ik = M[t], L[t], inv_k[t]
-                d = m - l_
-                root = math.sqrt(d * d + (2.0 * (m + l_) + ik) * ik)
-                x = 2.0 * m * l_ / (m + l_ + ik + root)
+                x, root = _bound(M[t], L[t], inv_k[t])
                 x_i[t] = x
                 x_sum[t] = x_sum[t] + (x if one_c else c * x)
-                dx = x * ik * ik / root
+                dx = x * inv_k[t] * inv_k[t] / root
                 dx_i[t] = dx if one_phi else phi * dx
         else:
             for t in range(n_lanes):
-                m, l_, ik = M[t], L[t], inv_k[t]
-                d = m - l_
-                root = math.sqrt(d * d + (2.0 * (m + l_) + ik) * ik)
-                x = 2.0 * m * l_ / (m + l_ + ik + root)
+                x = _bound(M[t], L[t], inv_k[t])[0]
                 x_i[t] = x
                 x_sum[t] = x_sum[t] + (x if one_c else c * x)
+
+
+@_jit
+def _bound(m, l_, ik):
+    """[ML] of one standard with totals m, l_ at 1/(K phi) = ik, and the root it is formed with."""
+    d = m - l_
+    root = math.sqrt(d * d + (2.0 * (m + l_) + ik) * ik)
+    return 2.0 * m * l_ / (m + l_ + ik + root), root
 
 
 @_jit
