@@ -49,7 +49,7 @@ SHARE_TRIALS = 50_000  # the most trials of the shares' runs (each held group's 
 SHARE_BATCH = 10_000  # trials per batch: the standard error is looked at after each
 SHARE_TARGET = 0.0025  # each share's standard error, as a fraction (0.25 percentage points)
 HEAVY_TAILS_DOF = 4  # a t input with at most this many degrees of freedom: no shares for what it reaches
-PROBE_STEPS = (-5.0, -1.5, 1.5, 5.0)  # standard uncertainties a t input is moved by to see what it reaches
+PROBE_STEPS = (-5.0, -1.5, 1.5, 5.0)  # standard uncertainties a t input is moved by (`_growth` reads this order)
 # Measured (benchmarks/share_precision.py; docs/design.md, "Monte Carlo"): on the assay demo the
 # runs stop after one batch, the shares' spread over 20 seeds 0.005 percentage points at the
 # median (0.015 at most) against 0.24 (0.47) for the plain estimate at 50,000 trials, at a
@@ -241,25 +241,49 @@ def _linearised(model: Model, linear: list[LinearResult]) -> _Linearised:
 
 
 def with_shares(model: Model, linear: list[LinearResult]) -> list[LinearResult]:
-    """The outputs that get shares: those no t input with nu <= HEAVY_TAILS_DOF reaches (no finite
-    fourth moment: a variance ratio without a standard error)."""
+    """The outputs that get shares: those to which no t input gives tails of nu <= HEAVY_TAILS_DOF
+    (no finite fourth moment: a variance ratio without a standard error)."""
     reach = t_inputs_reaching(model, linear)
-    return [gum for gum in linear if not any(_heavy_tailed(src) for src in reach[gum.name])]
+    return [gum for gum in linear if not any(dof <= HEAVY_TAILS_DOF for dof in reach[gum.name].values())]
 
 
-def t_inputs_reaching(model: Model, linear: list[LinearResult]) -> dict[str, list[Source]]:
-    """For each output, the t-distributed inputs (finite nu, u > 0) that reach it: those with a
-    non-zero GUM contribution, and those whose sensitivity is zero at the estimates (an extremum,
-    a symmetric model) but which change the output when moved alone by PROBE_STEPS standard
-    uncertainties: their tails act through the model's curvature all the same."""
-    t_inputs = [s for s in model.sources.values() if _t_input(s)]
-    names = {s.name for s in t_inputs}
-    reached = {gum.name: _contributing(gum, names) for gum in linear}
-    unseen = [s for s in t_inputs if any(s.name not in r for r in reached.values())]
+def t_inputs_reaching(model: Model, linear: list[LinearResult]) -> dict[str, dict[str, float]]:
+    """For each output, the t-distributed inputs (finite nu, u > 0) that reach it, each with the
+    degrees of freedom of the tails it gives the output: an output that goes as |x - x0|^p far
+    out has the moments of order k < nu/p, the tails of a t with nu/p.
+    - A non-zero GUM contribution: p = 1, the input's own nu.
+    - A sensitivity of zero at the estimates (an extremum, a symmetric model): the input moved
+      alone by PROBE_STEPS standard uncertainties shows whether it acts all the same, and p from
+      the growth of the change between 1.5 and 5 u (2 for y = x^2; 2 where a move leaves the
+      output undefined and no growth can be read).
+    - Inputs that act only together (a product of two inputs at zero): moved at once, each is
+      counted with its own nu (a product of independent inputs has the moments its factors have).
+    A model whose response grows faster beyond 5 u than between 1.5 and 5 u is not caught."""
+    t_inputs = {s.name: s for s in model.sources.values() if _t_input(s)}
+    labels = [gum.name for gum in linear]
+    reached = {gum.name: {name: float(t_inputs[name].dof) for name in _contributing(gum, set(t_inputs))}
+               for gum in linear}
+    unseen = [s for s in t_inputs.values() if any(s.name not in r for r in reached.values())]
     if unseen:
-        for label, moved in _changed_by_moving(model, unseen, list(reached)).items():
-            reached[label] |= moved
-    return {label: [s for s in t_inputs if s.name in found] for label, found in reached.items()}
+        powers = _moved(model, [(s,) for s in unseen], labels)
+        for label, found in reached.items():
+            for src, power in zip(unseen, powers[label], strict=True):
+                if src.name not in found and power is not None:
+                    found[src.name] = src.dof / power
+        _acting_together(model, unseen, reached)
+    return reached
+
+
+def _acting_together(model: Model, unseen: list[Source], reached: dict[str, dict[str, float]]) -> None:
+    """Add to each output the unseen inputs that change it only when moved at once."""
+    left = {label: tuple(s for s in unseen if s.name not in found) for label, found in reached.items()}
+    sets = list(dict.fromkeys(group for group in left.values() if len(group) > 1))
+    if not sets:
+        return
+    powers = _moved(model, sets, list(reached))
+    for label, group in left.items():
+        if len(group) > 1 and powers[label][sets.index(group)] is not None:
+            reached[label].update({src.name: float(src.dof) for src in group})
 
 
 def _t_input(src: Source) -> bool:
@@ -271,22 +295,34 @@ def _contributing(gum: LinearResult, names: set[str]) -> set[str]:
     return {row.source for row in gum.contributions if row.contribution != 0 and row.source in names}
 
 
-def _changed_by_moving(model: Model, inputs: list[Source], labels: list[str]) -> dict[str, set[str]]:
-    """The inputs whose move alone (to value + k u, k in PROBE_STEPS; every other source at its
-    estimate) changes each output, a defined value becoming undefined included: one evaluation
-    of 1 + len(PROBE_STEPS) per input trials, the first at the estimates."""
+def _moved(model: Model, groups: list[tuple[Source, ...]], labels: list[str]) -> dict[str, list[float | None]]:
+    """For each output and each group of inputs moved together (to value + k u, k in PROBE_STEPS;
+    every other source at its estimate): None where no move changes the output, else the power
+    p the change grows with (`_growth`). One evaluation of 1 + len(PROBE_STEPS) per group trials,
+    the first at the estimates."""
     k = len(PROBE_STEPS)
-    n = 1 + k * len(inputs)
-    draws = {name: np.full(n, float(src.value)) for name, src in model.sources.items()}
-    for i, src in enumerate(inputs):
-        draws[src.name][1 + i * k:1 + (i + 1) * k] = float(src.value) + np.asarray(PROBE_STEPS) * float(src.u)
-    values = evaluate(model, draws, n, labels)
-    out = {}
-    for label in labels:
-        v = values[label]
-        changed = (v != v[0]) & ~(np.isnan(v) & np.isnan(v[0]))
-        out[label] = {src.name for i, src in enumerate(inputs) if changed[1 + i * k:1 + (i + 1) * k].any()}
-    return out
+    draws = {name: np.full(1 + k * len(groups), float(src.value)) for name, src in model.sources.items()}
+    for i, group in enumerate(groups):
+        for src in group:
+            draws[src.name][1 + i * k:1 + (i + 1) * k] = float(src.value) + np.asarray(PROBE_STEPS) * float(src.u)
+    values = evaluate(model, draws, 1 + k * len(groups), labels)
+    return {label: [_growth(values[label][0], values[label][1 + i * k:1 + (i + 1) * k]) for i in range(len(groups))]
+            for label in labels}
+
+
+def _growth(base: float, moved: np.ndarray) -> float | None:
+    """None where the moves (at PROBE_STEPS) leave the output as it is; else p with |change| ~ k^p,
+    the larger of the two sides' log(change at 5 u / change at 1.5 u) / log(5 / 1.5), within 1 to
+    8; 2 where a move leaves the output undefined or a side's change cannot be read."""
+    change = np.abs(moved - base)
+    undefined = np.isnan(moved) != np.isnan(base)
+    if not (undefined.any() or (change > 0).any()):
+        return None
+    if undefined.any() or not np.isfinite(change).all():
+        return 2.0
+    sides = [(change[0], change[1]), (change[3], change[2])]  # (at 5 u, at 1.5 u) below and above
+    found = [math.log(far / near) / math.log(5.0 / 1.5) for far, near in sides if far > 0 and near > 0]
+    return min(8.0, max(1.0, *found)) if found else 2.0
 
 
 def share_estimates(model: Model, linear: list[LinearResult], seed: int, keys: tuple[str, ...],
@@ -332,11 +368,6 @@ def _add_batch(model: Model, lin: _Linearised, labels: list[str], draws: dict[st
         rows = sorted(position[name] for name in held if name in position)  # not in the set's order
         lh = l0 - deviations[:, rows] @ lin.coefficients[rows] if rows else l0
         held_sums.add(y0, l0, ok0, spread, yh, lh)
-
-
-def _heavy_tailed(src: Source) -> bool:
-    """A t input without a finite fourth moment (nu <= 4; nu <= 2: no finite variance either)."""
-    return src.distribution == "t" and src.dof <= HEAVY_TAILS_DOF and src.u > 0
 
 
 def _outputs(model: Model, draws: dict[str, np.ndarray], n: int, labels: list[str]) -> np.ndarray:

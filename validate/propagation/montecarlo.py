@@ -61,7 +61,8 @@ class McResult:
     histogram: HistogramData
     shares_by_step: tuple[tuple[str, float, float, int], ...]  # (group, share, standard error, trials)
     shares_by_equipment: tuple[tuple[str, float, float, int], ...]
-    smallest_dof: float = math.inf  # least degrees of freedom of a t input that reaches the result
+    smallest_dof: float = math.inf  # least degrees of freedom of the tails a t input gives the result
+    through_curvature: bool = False  # ... given by an input acting only through the model's curvature (nu/p)
 
     @property
     def variance_exists(self) -> bool:
@@ -91,15 +92,21 @@ class McResult:
         """Why the standard uncertainty and the shares are left out, or why to distrust them."""
         nu = self.smallest_dof
         if nu <= 2:
-            return (f"an input drawn from a t distribution with {nu:g} degrees of freedom has no finite "
-                    "variance, so the output has none: the Monte Carlo standard uncertainty and the "
-                    "variance shares do not exist and are not reported; the coverage intervals stand")
+            return (f"{self._tails(nu)} has no finite variance, so the output has none: the Monte Carlo "
+                    "standard uncertainty and the variance shares do not exist and are not reported; the "
+                    "coverage intervals stand")
         if nu <= mcshares.HEAVY_TAILS_DOF:
-            return (f"an input drawn from a t distribution with {nu:g} degrees of freedom (at most 4) has "
-                    "no finite fourth moment: the Monte Carlo standard uncertainty varies strongly between "
-                    "runs, and variance shares would have no standard error, so none are reported; rely on "
-                    "the coverage intervals and the GUM budget")
+            return (f"{self._tails(nu)} (at most 4) has no finite fourth moment: the Monte Carlo standard "
+                    "uncertainty varies strongly between runs, and variance shares would have no standard "
+                    "error, so none are reported; rely on the coverage intervals and the GUM budget")
         return None
+
+    def _tails(self, nu: float) -> str:
+        if self.through_curvature:  # e.g. y = x^2 with x at 0: the output goes as the square of a t variable
+            return ("an input drawn from a t distribution acts on the output through the model's curvature "
+                    f"(its sensitivity is zero at the estimates), giving it the tails of a t distribution with "
+                    f"{nu:g} degrees of freedom, which")
+        return f"an input drawn from a t distribution with {nu:g} degrees of freedom"
 
     def to_dict(self) -> dict:
         s, c = self.summary, self.check
@@ -219,8 +226,15 @@ def _propagate(model: Model, linear: list[LinearResult], trials, seed: int, p: f
         results.append(McResult(gum.name, seed, f.summary, f.check, checks.get(gum.name), f.histogram,
                                 tuple(by.get("step", {}).get(gum.name, ())),
                                 tuple(by.get("equipment", {}).get(gum.name, ())),
-                                min((src.dof for src in reach[gum.name]), default=math.inf)))
+                                *_tails(model, reach[gum.name])))
     return results
+
+
+def _tails(model: Model, reach: dict[str, float]) -> tuple[float, bool]:
+    """The least degrees of freedom of the tails the t inputs give a result, and whether an input
+    acting only through the model's curvature gives them (mcshares.t_inputs_reaching)."""
+    nu = min(reach.values(), default=math.inf)
+    return nu, any(dof == nu and dof != model.sources[name].dof for name, dof in reach.items())
 
 
 def symmetric_intervals(model: Model, trials: int, seed: int, labels: list[str] | None = None,
