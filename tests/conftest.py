@@ -120,3 +120,29 @@ def edit_text(folder: Path, old: str, new: str, name: str = "method.toml", count
     assert old in text, f"test set-up: {old!r} not in {name}"
     path.write_text(text.replace(old, new, count), encoding="utf-8")
     return folder / "method.toml"
+
+
+OUTPUT_FILES = ("results.json", "manifest.json", "budget.csv", "report.pdf")  # what a re-run does not read
+
+
+@pytest.fixture
+def rerun_once(monkeypatch):
+    """`verify_record`'s re-run of the stored method made once per distinct stored inputs and
+    settings within a test, for tests that verify many edited copies of one record: the re-run
+    reads only the folder's stored copies (never the record's outputs, which the edits change)
+    and is deterministic for a seed, so the copies' re-runs are the same numbers. Every
+    comparison of a record with the re-run is still made afresh."""
+    from validate.workflow import verify
+
+    real, done = verify.analyse, {}
+
+    def analyse(method_file, *, redirect, **settings):
+        folder = Path(redirect.folder)
+        stored = tuple(sorted((str(path.relative_to(folder)), path.read_bytes()) for path in folder.rglob("*")
+                              if path.is_file() and str(path.relative_to(folder)) not in OUTPUT_FILES))
+        key = (str(Path(method_file).relative_to(folder)), stored, tuple(sorted(settings.items())))
+        if key not in done:
+            done[key] = real(method_file, redirect=redirect, **settings)
+        return done[key]
+
+    monkeypatch.setattr(verify, "analyse", analyse)

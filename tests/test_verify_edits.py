@@ -130,7 +130,7 @@ EDITS = [
 
 
 @pytest.mark.slow
-def test_an_edited_number_anywhere_in_the_record_is_caught_by_the_rerun(folder):
+def test_an_edited_number_anywhere_in_the_record_is_caught_by_the_rerun(folder, rerun_once):
     original = _read(folder)
     for path in EDITS:
         record = json.loads(json.dumps(original))

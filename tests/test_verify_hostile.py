@@ -162,7 +162,7 @@ def _files(folder: Path) -> list[str]:
 
 @settings(max_examples=12, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
 @given(data=st.data())
-def test_any_edit_of_any_file_is_caught(filed, tmp_path_factory, capsys, data):
+def test_any_edit_of_any_file_is_caught(filed, tmp_path_factory, capsys, rerun_once, data):
     folder = tmp_path_factory.mktemp("edited") / "record"
     shutil.copytree(filed, folder)
     name = data.draw(st.sampled_from(_files(folder)), label="file")
@@ -216,7 +216,7 @@ def _edited(value):
 
 @settings(max_examples=10, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
 @given(data=st.data())
-def test_any_number_edited_is_caught_even_with_a_new_manifest(filed, tmp_path_factory, data):
+def test_any_number_edited_is_caught_even_with_a_new_manifest(filed, tmp_path_factory, rerun_once, data):
     folder = tmp_path_factory.mktemp("forged") / "record"
     shutil.copytree(filed, folder)
     record = _read(folder)
