@@ -22,9 +22,9 @@ Trials run in batches of SHARE_BATCH until every share's standard error is at mo
 or SHARE_TRIALS trials (the most). The standard error is the first-order (delta method) one:
 sqrt(sum_j IF_j^2) / N over the N trials where both runs are defined, IF_j the estimator's
 influence function at trial j (`_ratio_influence`), its centres (means, variances) taken per
-batch. An output reached by a t input with nu <= HEAVY_TAILS_DOF (`t_inputs_reaching`: a
-non-zero GUM contribution, or a change when the input alone is moved) gets no shares: its variance
-exists only for nu > 2 and a variance ratio has a finite standard error only where the fourth
+batch. An output to which a t input gives tails of nu <= HEAVY_TAILS_DOF (`t_inputs_reaching`:
+the input's own nu where its GUM contribution is not zero, nu/p where it acts through the
+model's curvature) gets no shares: its variance exists only for nu > 2 and a variance ratio has a finite standard error only where the fourth
 moment does, nu > 4 (any statistics handbook on Student's t). Measured on the equilibrium demo
 (nu = 3), the plain estimate at 50,000 trials moved a share by up to 22 percentage points between
 seeds and the control variate widened that: a figure that cannot be given a precision is not
@@ -48,7 +48,7 @@ from validate.propagation.mcrounds import evaluate
 SHARE_TRIALS = 50_000  # the most trials of the shares' runs (each held group's run and the base run)
 SHARE_BATCH = 10_000  # trials per batch: the standard error is looked at after each
 SHARE_TARGET = 0.0025  # each share's standard error, as a fraction (0.25 percentage points)
-HEAVY_TAILS_DOF = 4  # a t input with at most this many degrees of freedom: no shares for what it reaches
+HEAVY_TAILS_DOF = 4  # tails of at most this many degrees of freedom (t_inputs_reaching): no shares
 PROBE_STEPS = (-5.0, -1.5, 1.5, 5.0)  # standard uncertainties a t input is moved by (`_growth` reads this order)
 # Measured (benchmarks/share_precision.py; docs/design.md, "Monte Carlo"): on the assay demo the
 # runs stop after one batch, the shares' spread over 20 seeds 0.005 percentage points at the
