@@ -24,8 +24,9 @@ sqrt(sum_j IF_j^2) / N over the N trials where both runs are defined, IF_j the e
 influence function at trial j (`_ratio_influence`), its centres (means, variances) taken per
 batch. An output to which a t input gives tails of nu <= HEAVY_TAILS_DOF (`t_inputs_reaching`:
 the input's own nu where its GUM contribution is not zero, nu/p where it acts through the
-model's curvature) gets no shares: its variance exists only for nu > 2 and a variance ratio has a finite standard error only where the fourth
-moment does, nu > 4 (any statistics handbook on Student's t). Measured on the equilibrium demo
+model's curvature) gets no shares: its variance exists only for nu > 2 and a variance ratio
+has a finite standard error only where the fourth moment does, nu > 4 (any statistics handbook
+on Student's t). Measured on the equilibrium demo
 (nu = 3), the plain estimate at 50,000 trials moved a share by up to 22 percentage points between
 seeds and the control variate widened that: a figure that cannot be given a precision is not
 reported (the record says why, `McResult.moments_note`); the GUM budget stands for such outputs.
