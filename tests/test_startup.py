@@ -31,12 +31,14 @@ def test_escape_is_the_standard_librarys(value):
     assert escape(value) == library_escape(value)
 
 
-def test_check_reads_a_method_without_importing_scipy():
+@pytest.mark.parametrize("demo", ["nickel_complex", "phosphate_assay"])
+def test_check_reads_a_method_without_importing_scipy(demo):
     # scipy.special costs about a quarter of a second to import (it pulls in numpy.f2py and the array
-    # API layer); reading and checking a method file needs no quantile, so `validate check` leaves it
+    # API layer); reading and checking a method file needs no quantile (an assay's steep slope is
+    # significant without one: validate.model.line.slope_resolved), so `validate check` leaves it
     # to the commands that compute (validate.metrology.probability imports it at the first call)
     root = Path(__file__).resolve().parents[1]
-    method = root / "example_inputs" / "nickel_complex" / "method.toml"
+    method = root / "example_inputs" / demo / "method.toml"
     code = ("import sys, runpy; sys.argv = ['validate', 'check', sys.argv[1]]\n"
             "try:\n    runpy.run_module('validate.cli', run_name='__main__')\n"
             "except SystemExit as exc:\n    assert not exc.code, exc.code\n"

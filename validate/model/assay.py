@@ -33,7 +33,7 @@ from validate.model.design import check_calibration_data as check_calibration_da
 from validate.model.errors import ModelError as ModelError  # imported from here by the later stages
 from validate.model.errors import evaluate_formula
 from validate.model.keys import ResultKey
-from validate.model.line import fit_line, inverse_prediction, straight_line
+from validate.model.line import fit_line, inverse_prediction, slope_resolved, straight_line
 from validate.model.photometry import reading_correction
 from validate.model.quadratic import quadratic_coefficients, quadratic_inverse_prediction, rising_root
 from validate.model.scatter import LINE_GROUP, ScatterComponents, ScatterTerm
@@ -422,6 +422,8 @@ def _observed_scatter(design: CalibrationDesign, samples) -> ScatterComponents:
         raise ModelError(f"calibration: {exc}") from None
     if design.second_order:
         _check_real_roots(design, samples, scatter)
+        return scatter
+    if slope_resolved(fit):  # what the loop below asks of each sample, without a t quantile where clear
         return scatter
     for smp in samples:
         read = design.sample(smp.id)

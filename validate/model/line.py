@@ -177,6 +177,23 @@ class InversePrediction:
         return asdict(self)
 
 
+def slope_resolved(fit: LineFit, confidence: float = 0.95) -> bool:
+    """Is the slope significantly different from zero at `confidence` (Fieller's g < 1, as
+    `inverse_prediction.finite`: |b| / u(b) > t_q(nu), q = (1 + confidence)/2)? The t quantile is
+    needed only for a slope whose t ratio is at most tan(pi (q - 1/2)): that is the quantile of
+    the t distribution with nu = 1 (the Cauchy distribution), and t_q(nu) falls as nu grows for
+    q > 1/2 (any statistics handbook), so a larger ratio is significant at every nu >= 1."""
+    b = fit.slope
+    if b == 0:
+        return False
+    q = 0.5 + confidence / 2.0
+    ratio = abs(b) / fit.slope_u if fit.slope_u > 0 else math.inf
+    if fit.dof >= 1 and ratio > math.tan(math.pi * (q - 0.5)):
+        return True
+    g = (t_quantile(q, fit.dof) * fit.slope_u / b) ** 2
+    return g < 1.0
+
+
 def inverse_prediction(fit: LineFit, readings, sample_weight: float = 1.0,
                        confidence: float = 0.95, response_variance: float | None = None) -> InversePrediction:
     """x0 = (y0 - a) / b with the observed-scatter standard uncertainty.
