@@ -187,7 +187,7 @@ def slope_resolved(fit: LineFit, confidence: float = 0.95) -> bool:
     if b == 0:
         return False
     q = 0.5 + confidence / 2.0
-    ratio = abs(b) / fit.slope_u if fit.slope_u > 0 else math.inf
+    ratio = abs(b) / fit.slope_u if fit.slope_u != 0 else math.inf  # a nan u(b) falls to the test below
     if fit.dof >= 1 and ratio > math.tan(math.pi * (q - 0.5)):
         return True
     g = (t_quantile(q, fit.dof) * fit.slope_u / b) ** 2
