@@ -18,7 +18,7 @@ from test_mc_shares import HandModel
 from validate.metrology.sources import Source
 from validate.propagation import mcshares
 from validate.propagation.linear import propagate
-from validate.propagation.montecarlo import _tails
+from validate.propagation.montecarlo import _tail_dof
 
 
 def _square_model(dof: float) -> HandModel:
@@ -37,8 +37,8 @@ def test_an_input_with_zero_sensitivity_reaches_the_output_with_the_tails_of_its
     reach = mcshares.t_inputs_reaching(model, linear)
     assert reach["Y"] == {"a": pytest.approx(1.5, rel=1e-9)}  # nu/2: Y = a^2 has no finite variance
     assert reach["W"] == {}  # moved alone, a leaves W unchanged
-    assert _tails(model, reach["Y"]) == (pytest.approx(1.5, rel=1e-9), True)
-    assert _tails(model, reach["W"]) == (math.inf, False)
+    assert _tail_dof(model, reach["Y"]) == (pytest.approx(1.5, rel=1e-9), True)
+    assert _tail_dof(model, reach["W"]) == (math.inf, False)
 
 
 def test_an_input_with_a_contribution_keeps_its_own_degrees_of_freedom():
@@ -46,7 +46,7 @@ def test_an_input_with_a_contribution_keeps_its_own_degrees_of_freedom():
     model = HandModel([a], {"Y": lambda x: 2.0 * x["a"]})
     reach = mcshares.t_inputs_reaching(model, propagate(model))
     assert reach["Y"] == {"a": 3.0}
-    assert _tails(model, reach["Y"]) == (3.0, False)
+    assert _tail_dof(model, reach["Y"]) == (3.0, False)
 
 
 @pytest.mark.parametrize(("dof", "shares"), [(3, False), (6, False), (8, False), (9, True)])

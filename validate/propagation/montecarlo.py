@@ -92,16 +92,16 @@ class McResult:
         """Why the standard uncertainty and the shares are left out, or why to distrust them."""
         nu = self.smallest_dof
         if nu <= 2:
-            return (f"{self._tails(nu)} has no finite variance, so the output has none: the Monte Carlo "
+            return (f"{self._tail_source(nu)} has no finite variance, so the output has none: the Monte Carlo "
                     "standard uncertainty and the variance shares do not exist and are not reported; the "
                     "coverage intervals stand")
         if nu <= mcshares.HEAVY_TAILS_DOF:
-            return (f"{self._tails(nu)} (at most 4) has no finite fourth moment: the Monte Carlo standard "
+            return (f"{self._tail_source(nu)} (at most 4) has no finite fourth moment: the Monte Carlo standard "
                     "uncertainty varies strongly between runs, and variance shares would have no standard "
                     "error, so none are reported; rely on the coverage intervals and the GUM budget")
         return None
 
-    def _tails(self, nu: float) -> str:
+    def _tail_source(self, nu: float) -> str:
         if self.through_curvature:  # e.g. y = x^2 with x at 0: the output goes as the square of a t variable
             return ("an input drawn from a t distribution acts on the output through the model's curvature "
                     f"(its sensitivity is zero at the estimates), giving it the tails of a t distribution with "
@@ -226,11 +226,11 @@ def _propagate(model: Model, linear: list[LinearResult], trials, seed: int, p: f
         results.append(McResult(gum.name, seed, f.summary, f.check, checks.get(gum.name), f.histogram,
                                 tuple(by.get("step", {}).get(gum.name, ())),
                                 tuple(by.get("equipment", {}).get(gum.name, ())),
-                                *_tails(model, reach[gum.name])))
+                                *_tail_dof(model, reach[gum.name])))
     return results
 
 
-def _tails(model: Model, reach: dict[str, float]) -> tuple[float, bool]:
+def _tail_dof(model: Model, reach: dict[str, float]) -> tuple[float, bool]:
     """The least degrees of freedom of the tails the t inputs give a result, and whether an input
     acting only through the model's curvature gives them (mcshares.t_inputs_reaching)."""
     nu = min(reach.values(), default=math.inf)
